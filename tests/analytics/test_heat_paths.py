@@ -226,8 +226,7 @@ def test_capacity_falls_short_and_respects_drive_limits() -> None:
     assert not cap.holdable and cap.margin < 0.0
     assert cap.point.voltage <= 12.0 + 1e-6
     assert cap.current <= 6.0
-    # The best current is interior or on a limit; at it, no neighbouring
-    # current within the limits cools more (self-produced values).
+    # Relaxing the drive limits can only add cooling (self-produced values).
     more = hp.capacity_at_setpoint(tset, ta, MODULE, R_HOT, R_COLD, UA, 20.0)
     assert more.max_cooling >= cap.max_cooling - 1e-9
 

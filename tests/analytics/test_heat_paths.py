@@ -14,6 +14,8 @@ from typing import Any
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.typing import NDArray
 from scipy.integrate import solve_bvp, solve_ivp
 from scipy.optimize import root as scipy_root
@@ -269,3 +271,22 @@ def test_bad_drive_is_refused(kwargs: dict[str, float]) -> None:
 def test_negative_sink_resistance_is_refused() -> None:
     with pytest.raises(OutOfDomainError, match="r_hot"):
         hp.operating_point(298.15, MODULE, -0.1, R_COLD, UA, current=2.0)
+
+
+@settings(max_examples=30, deadline=None)
+@given(
+    st.floats(min_value=273.15, max_value=318.15),
+    st.floats(min_value=0.2, max_value=6.5),
+    st.floats(min_value=0.0, max_value=20.0),
+)
+def test_operating_point_closes_or_refuses_across_domain(
+    ta: float, current: float, q_int: float
+) -> None:
+    # Over 0..45 °C ambient and the module's current range the result is
+    # either a state whose balances close or a specific, documented refusal.
+    try:
+        op = hp.operating_point(ta, MODULE, R_HOT, R_COLD, UA, current=current, q_internal=q_int)
+    except OutOfDomainError:
+        return
+    assert all(math.isfinite(getattr(op, f)) for f in op.__dataclass_fields__)
+    _check_balances(op, ta, q_int, MODULE.seebeck, MODULE.resistance)

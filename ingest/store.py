@@ -1,0 +1,389 @@
+"""The database: table definitions, engine set-up and the writes the ingester makes.
+
+Times are stored as integer milliseconds since the Unix epoch, UTC (``*_ms`` columns): exact,
+the same on SQLite and PostgreSQL, cheap to compare and to load into numpy. The API turns them
+into RFC 3339 strings at the edge.
+
+SQLite runs in WAL mode with ``synchronous=FULL``: in WAL mode ``NORMAL`` may lose the last
+transactions on power failure, and the ingester acknowledges a message to the broker only after
+its commit, so a commit has to survive a power cut. FULL costs one fsync per commit, which the
+batching writer amortises over hundreds of readings.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import sqlalchemy as sa
+from sqlalchemy import event
+from sqlalchemy.dialects import postgresql, sqlite
+from sqlalchemy.engine import Connection, Engine
+from sqlalchemy.exc import SQLAlchemyError
+
+from tecfleet.ingest.errors import StoreError
+
+metadata = sa.MetaData(
+    naming_convention={
+        "ix": "ix_%(table_name)s_%(column_0_N_name)s",
+        "uq": "uq_%(table_name)s_%(column_0_N_name)s",
+        "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+        "pk": "pk_%(table_name)s",
+        "ck": "ck_%(table_name)s_%(constraint_name)s",
+    }
+)
+
+devices = sa.Table(
+    "devices",
+    metadata,
+    sa.Column("device_id", sa.String(64), primary_key=True),
+    sa.Column("label", sa.String(200)),
+    sa.Column("site", sa.String(200)),
+    sa.Column("module", sa.JSON),
+    sa.Column("cabinet", sa.JSON),
+    sa.Column("registered_at_ms", sa.BigInteger),
+    sa.Column("first_seen_ms", sa.BigInteger),
+    sa.Column("last_reading_ms", sa.BigInteger),
+    sa.Column("readings", sa.BigInteger, nullable=False, server_default="0"),
+    sa.Column("status", sa.String(16)),
+    sa.Column("status_at_ms", sa.BigInteger),
+)
+
+readings = sa.Table(
+    "readings",
+    metadata,
+    sa.Column("id", sa.BigInteger().with_variant(sa.Integer, "sqlite"), primary_key=True),
+    sa.Column("device_id", sa.String(64), sa.ForeignKey("devices.device_id"), nullable=False),
+    sa.Column("ts_ms", sa.BigInteger, nullable=False),
+    sa.Column("seq", sa.BigInteger),
+    sa.Column("t_cabinet", sa.Float, nullable=False),
+    sa.Column("t_cold", sa.Float, nullable=False),
+    sa.Column("t_hot", sa.Float, nullable=False),
+    sa.Column("t_ambient", sa.Float, nullable=False),
+    sa.Column("current", sa.Float, nullable=False),
+    sa.Column("voltage", sa.Float, nullable=False),
+    sa.Column("rh", sa.Float),
+    sa.Column("door_open", sa.Boolean),
+    sa.Column("received_ms", sa.BigInteger, nullable=False),
+    sa.UniqueConstraint("device_id", "ts_ms"),
+)
+
+rejects = sa.Table(
+    "rejects",
+    metadata,
+    sa.Column("id", sa.BigInteger().with_variant(sa.Integer, "sqlite"), primary_key=True),
+    sa.Column("received_ms", sa.BigInteger, nullable=False),
+    sa.Column("topic", sa.String(1024), nullable=False),
+    sa.Column("device_id", sa.String(64)),
+    sa.Column("item", sa.Integer),
+    sa.Column("code", sa.String(40), nullable=False),
+    sa.Column("reason", sa.Text, nullable=False),
+    sa.Column("payload", sa.LargeBinary, nullable=False),
+    sa.Column("payload_size", sa.Integer, nullable=False),
+)
+
+api_keys = sa.Table(
+    "api_keys",
+    metadata,
+    sa.Column("id", sa.Integer, primary_key=True),
+    sa.Column("name", sa.String(200), nullable=False),
+    sa.Column("scope", sa.String(16), nullable=False),
+    sa.Column("key_hash", sa.String(64), nullable=False, unique=True),
+    sa.Column("prefix", sa.String(16), nullable=False),
+    sa.Column("created_ms", sa.BigInteger, nullable=False),
+    sa.Column("revoked_ms", sa.BigInteger),
+)
+
+estimates = sa.Table(
+    "estimates",
+    metadata,
+    sa.Column("id", sa.BigInteger().with_variant(sa.Integer, "sqlite"), primary_key=True),
+    sa.Column("device_id", sa.String(64), sa.ForeignKey("devices.device_id"), nullable=False),
+    sa.Column("key", sa.String(64), nullable=False),
+    sa.Column("at_ms", sa.BigInteger, nullable=False),
+    sa.Column("value", sa.Float),
+    sa.Column("stderr", sa.Float),
+    sa.Column("n", sa.Integer, nullable=False, server_default="0"),
+    sa.Column("reliable", sa.Boolean, nullable=False, server_default=sa.true()),
+    sa.Column("note", sa.Text),
+    sa.UniqueConstraint("device_id", "key", "at_ms"),
+)
+
+alerts = sa.Table(
+    "alerts",
+    metadata,
+    sa.Column("id", sa.BigInteger().with_variant(sa.Integer, "sqlite"), primary_key=True),
+    sa.Column("device_id", sa.String(64), sa.ForeignKey("devices.device_id"), nullable=False),
+    sa.Column("kind", sa.String(32), nullable=False),
+    sa.Column("severity", sa.String(16), nullable=False),
+    sa.Column("state", sa.String(16), nullable=False),
+    sa.Column("opened_ms", sa.BigInteger, nullable=False),
+    sa.Column("updated_ms", sa.BigInteger, nullable=False),
+    sa.Column("resolved_ms", sa.BigInteger),
+    sa.Column("summary", sa.Text, nullable=False),
+    sa.Column("evidence", sa.JSON, nullable=False),
+    sa.Column("reopen_count", sa.Integer, nullable=False, server_default="0"),
+    sa.Index("ix_alerts_device_id_kind_state", "device_id", "kind", "state"),
+)
+
+
+def now_ms() -> int:
+    return time.time_ns() // 1_000_000
+
+
+def _sqlite_pragmas(dbapi_connection: Any, _record: Any) -> None:
+    cursor = dbapi_connection.cursor()
+    cursor.execute("PRAGMA journal_mode=WAL")
+    cursor.execute("PRAGMA synchronous=FULL")
+    cursor.execute("PRAGMA foreign_keys=ON")
+    cursor.execute("PRAGMA busy_timeout=10000")
+    cursor.close()
+
+
+def make_engine(url: str) -> Engine:
+    """An engine for ``url`` (SQLAlchemy URL), with SQLite set to WAL and durable commits."""
+    try:
+        sa_url = sa.make_url(url)
+    except Exception as exc:  # SQLAlchemy raises ArgumentError for garbage
+        raise StoreError(f"invalid database URL {url!r}: {exc}") from exc
+    if sa_url.get_backend_name() == "sqlite":
+        database = sa_url.database or ""
+        if database and database != ":memory:":
+            from pathlib import Path
+
+            Path(database).expanduser().resolve().parent.mkdir(parents=True, exist_ok=True)
+        engine = sa.create_engine(sa_url, connect_args={"check_same_thread": False})
+        event.listen(engine, "connect", _sqlite_pragmas)
+        return engine
+    if sa_url.get_backend_name() == "postgresql":
+        return sa.create_engine(sa_url, pool_pre_ping=True, connect_args={"connect_timeout": 5})
+    raise StoreError(
+        f"unsupported database {sa_url.get_backend_name()!r}; use sqlite or postgresql"
+    )
+
+
+def migrate(engine: Engine) -> None:
+    """Apply every Alembic migration not yet applied (``tecfleet db upgrade``)."""
+    from alembic import command
+    from alembic.config import Config
+
+    config = Config()
+    config.set_main_option("script_location", "tecfleet.ingest:migrations")
+    try:
+        with engine.begin() as connection:
+            config.attributes["connection"] = connection
+            command.upgrade(config, "head")
+    except SQLAlchemyError as exc:
+        raise StoreError(f"database migration failed: {exc}") from exc
+
+
+@dataclass(frozen=True, slots=True)
+class Reading:
+    """One validated reading of one device (temperatures in °C)."""
+
+    device_id: str
+    ts_ms: int
+    t_cabinet: float
+    t_cold: float
+    t_hot: float
+    t_ambient: float
+    current: float
+    voltage: float
+    seq: int | None = None
+    rh: float | None = None
+    door_open: bool | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class Reject:
+    """One payload (or one item of a batch) that cannot be stored, and why."""
+
+    topic: str
+    payload: bytes
+    code: str
+    reason: str
+    device_id: str | None = None
+    item: int | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class StatusUpdate:
+    device_id: str
+    status: str
+    at_ms: int
+
+
+def _insert(dialect_name: str, table: sa.Table) -> Any:
+    if dialect_name == "postgresql":
+        return postgresql.insert(table)
+    return sqlite.insert(table)
+
+
+def write_batch(
+    connection: Connection,
+    batch_readings: Sequence[Reading],
+    batch_rejects: Sequence[Reject],
+    statuses: Sequence[StatusUpdate] = (),
+    *,
+    payload_cap: int = 4096,
+) -> int:
+    """Store readings idempotently, plus rejects and status changes, in the caller's transaction.
+
+    Returns the number of readings newly stored; a reading whose (device, timestamp) is already
+    stored is skipped, so a redelivered message stores nothing twice.
+    """
+    dialect = connection.dialect.name
+    received = now_ms()
+    stored = 0
+    device_ids = sorted({r.device_id for r in batch_readings} | {s.device_id for s in statuses})
+    if device_ids:
+        upsert = _insert(dialect, devices).on_conflict_do_nothing(index_elements=["device_id"])
+        connection.execute(
+            upsert, [{"device_id": d, "first_seen_ms": received, "readings": 0} for d in device_ids]
+        )
+    if batch_readings:
+        rows = [
+            {
+                "device_id": r.device_id,
+                "ts_ms": r.ts_ms,
+                "seq": r.seq,
+                "t_cabinet": r.t_cabinet,
+                "t_cold": r.t_cold,
+                "t_hot": r.t_hot,
+                "t_ambient": r.t_ambient,
+                "current": r.current,
+                "voltage": r.voltage,
+                "rh": r.rh,
+                "door_open": r.door_open,
+                "received_ms": received,
+            }
+            for r in batch_readings
+        ]
+        stmt = (
+            _insert(dialect, readings)
+            .on_conflict_do_nothing(index_elements=["device_id", "ts_ms"])
+            .returning(readings.c.device_id, readings.c.ts_ms)
+        )
+        inserted = connection.execute(stmt, rows).all()
+        stored = len(inserted)
+        per_device: dict[str, tuple[int, int]] = {}
+        for device_id, ts in inserted:
+            count, newest = per_device.get(device_id, (0, ts))
+            per_device[device_id] = (count + 1, max(newest, ts))
+        for device_id, (count, newest) in per_device.items():
+            connection.execute(
+                devices.update()
+                .where(devices.c.device_id == device_id)
+                .values(
+                    readings=devices.c.readings + count,
+                    last_reading_ms=sa.case(
+                        (
+                            sa.or_(
+                                devices.c.last_reading_ms.is_(None),
+                                devices.c.last_reading_ms < newest,
+                            ),
+                            newest,
+                        ),
+                        else_=devices.c.last_reading_ms,
+                    ),
+                )
+            )
+    for status in statuses:
+        connection.execute(
+            devices.update()
+            .where(devices.c.device_id == status.device_id)
+            .where(sa.or_(devices.c.status_at_ms.is_(None), devices.c.status_at_ms <= status.at_ms))
+            .values(status=status.status, status_at_ms=status.at_ms)
+        )
+    if batch_rejects:
+        connection.execute(
+            rejects.insert(),
+            [
+                {
+                    "received_ms": received,
+                    "topic": rej.topic[:1024],
+                    "device_id": rej.device_id,
+                    "item": rej.item,
+                    "code": rej.code,
+                    "reason": rej.reason[:2000],
+                    "payload": bytes(rej.payload[:payload_cap]),
+                    "payload_size": len(rej.payload),
+                }
+                for rej in batch_rejects
+            ],
+        )
+    return stored
+
+
+def store_batch(
+    engine: Engine,
+    batch_readings: Sequence[Reading],
+    batch_rejects: Sequence[Reject] = (),
+    statuses: Sequence[StatusUpdate] = (),
+    *,
+    payload_cap: int = 4096,
+) -> int:
+    """``write_batch`` in a transaction of its own; database failures become ``StoreError``."""
+    try:
+        with engine.begin() as connection:
+            return write_batch(
+                connection, batch_readings, batch_rejects, statuses, payload_cap=payload_cap
+            )
+    except SQLAlchemyError as exc:
+        raise StoreError(f"could not store batch: {exc.__class__.__name__}: {exc}") from exc
+
+
+def ping(engine: Engine) -> bool:
+    """True when the database answers a trivial query."""
+    try:
+        with engine.connect() as connection:
+            connection.execute(sa.text("SELECT 1"))
+        return True
+    except SQLAlchemyError:
+        return False
+
+
+READING_COLUMNS = (
+    "ts_ms",
+    "seq",
+    "t_cabinet",
+    "t_cold",
+    "t_hot",
+    "t_ambient",
+    "current",
+    "voltage",
+    "rh",
+    "door_open",
+)
+
+
+def load_readings(
+    engine: Engine,
+    device_id: str,
+    start_ms: int | None = None,
+    end_ms: int | None = None,
+) -> Any:
+    """Stored readings of one device as a pandas DataFrame, oldest first.
+
+    Columns are ``READING_COLUMNS``; ``start_ms`` is inclusive and ``end_ms`` exclusive
+    (milliseconds since the Unix epoch, UTC).
+    """
+    import pandas as pd
+
+    stmt = sa.select(*(readings.c[name] for name in READING_COLUMNS)).where(
+        readings.c.device_id == device_id
+    )
+    if start_ms is not None:
+        stmt = stmt.where(readings.c.ts_ms >= start_ms)
+    if end_ms is not None:
+        stmt = stmt.where(readings.c.ts_ms < end_ms)
+    stmt = stmt.order_by(readings.c.ts_ms)
+    try:
+        with engine.connect() as connection:
+            result = connection.execute(stmt)
+            frame = pd.DataFrame(result.fetchall(), columns=list(READING_COLUMNS))
+    except SQLAlchemyError as exc:
+        raise StoreError(f"could not load readings of {device_id}: {exc}") from exc
+    return frame

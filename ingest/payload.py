@@ -162,19 +162,21 @@ def _senml_items(
     """Resolve a SenML pack into reading dicts grouped by time, plus per-record problems."""
     base_name, base_time, base_unit, base_value = "", 0.0, None, 0.0
     groups: dict[float, dict[str, Any]] = {}
-    problems: list[str] = []
+    problems: list[tuple[str, str]] = []
     for index, rec in enumerate(pack):
         if "bver" in rec and rec["bver"] not in (10,) and not isinstance(rec["bver"], bool):
-            problems.append(f"record {index}: unsupported SenML version {rec['bver']!r}")
+            problems.append(
+                ("senml_error", f"record {index}: unsupported SenML version {rec['bver']!r}")
+            )
             continue
         if "bn" in rec:
             if not isinstance(rec["bn"], str):
-                problems.append(f"record {index}: bn must be a string")
+                problems.append(("senml_error", f"record {index}: bn must be a string"))
                 continue
             base_name = rec["bn"]
         for key in ("bt", "bv"):
             if key in rec and (isinstance(rec[key], bool) or not isinstance(rec[key], int | float)):
-                problems.append(f"record {index}: {key} must be a number")
+                problems.append(("senml_error", f"record {index}: {key} must be a number"))
                 break
         else:
             base_time = float(rec.get("bt", base_time))
@@ -185,18 +187,18 @@ def _senml_items(
                 continue
             name = rec["n"]
             if not isinstance(name, str):
-                problems.append(f"record {index}: n must be a string")
+                problems.append(("senml_error", f"record {index}: n must be a string"))
                 continue
             channel = name if name in SENML_UNITS or name in SENML_BOOLEANS else None
             if channel is None:
                 full = base_name + name
                 channel = re.split(r"[:/]", full)[-1] if full else None
             if channel not in SENML_UNITS and channel not in SENML_BOOLEANS:
-                problems.append(f"record {index}: unknown name {name!r}")
+                problems.append(("senml_error", f"record {index}: unknown name {name!r}"))
                 continue
             t = rec.get("t", 0.0)
             if isinstance(t, bool) or not isinstance(t, int | float):
-                problems.append(f"record {index}: t must be a number")
+                problems.append(("senml_error", f"record {index}: t must be a number"))
                 continue
             when = base_time + float(t)
             if when < SENML_RELATIVE_LIMIT_S:
@@ -204,18 +206,25 @@ def _senml_items(
             unit = rec.get("u", base_unit)
             if channel in SENML_BOOLEANS:
                 if "vb" not in rec:
-                    problems.append(f"record {index}: {channel} needs a boolean value (vb)")
+                    problems.append(
+                        ("senml_error", f"record {index}: {channel} needs a boolean value (vb)")
+                    )
                     continue
                 value: Any = rec["vb"]
             else:
                 if unit is not None and unit != SENML_UNITS[channel]:
                     problems.append(
-                        f"record {index}: {channel} unit {unit!r}, "
-                        f"expected {SENML_UNITS[channel]!r}"
+                        (
+                            "bad_unit",
+                            f"record {index}: {channel} unit {unit!r}, "
+                            f"expected {SENML_UNITS[channel]!r}",
+                        )
                     )
                     continue
                 if "v" not in rec:
-                    problems.append(f"record {index}: {channel} needs a numeric value (v)")
+                    problems.append(
+                        ("senml_error", f"record {index}: {channel} needs a numeric value (v)")
+                    )
                     continue
                 raw = rec["v"]
                 value = (
@@ -315,8 +324,8 @@ def parse_message(
     items: list[Any]
     if _is_senml(doc):
         items, problems = _senml_items(doc, now_s)
-        for problem in problems:
-            out.rejects.append(Reject(topic, payload, "senml_error", problem, device_id))
+        for code, text in problems:
+            out.rejects.append(Reject(topic, payload, code, text, device_id))
         if not items and not problems:
             out.rejects.append(
                 Reject(topic, payload, "senml_error", "SenML pack holds no readings", device_id)

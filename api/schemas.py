@@ -1,0 +1,105 @@
+"""Request and response bodies of the REST API (separate from the tables)."""
+
+from __future__ import annotations
+
+from typing import Any, Generic, TypeVar
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+T = TypeVar("T")
+
+
+class Page(BaseModel, Generic[T]):
+    items: list[T]
+    next_cursor: str | None
+
+
+class ModuleIn(BaseModel):
+    """Module ratings as printed on a datasheet (all optional)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    couples: int | None = Field(None, ge=1, le=2000)
+    i_max_a: float | None = Field(None, gt=0, le=50)
+    v_max_v: float | None = Field(None, gt=0, le=200)
+    dt_max_k: float | None = Field(None, gt=0, le=150)
+    q_max_w: float | None = Field(None, gt=0, le=2000)
+    t_hot_rated_c: float | None = Field(None, ge=-20, le=100)
+    count: int | None = Field(None, ge=1, le=64)
+
+
+class CabinetIn(BaseModel):
+    """Cabinet size and the band it must hold; temperatures in °C."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    volume_l: float | None = Field(None, gt=0, le=10_000)
+    setpoint_c: float | None = Field(None, ge=-40, le=40)
+    low_limit_c: float | None = Field(None, ge=-60, le=60)
+    high_limit_c: float | None = Field(None, ge=-60, le=60)
+
+    @model_validator(mode="after")
+    def _limits_ordered(self) -> CabinetIn:
+        low, high = self.low_limit_c, self.high_limit_c
+        if low is not None and high is not None and low >= high:
+            raise ValueError("low_limit_c must be below high_limit_c")
+        if self.setpoint_c is not None:
+            if low is not None and self.setpoint_c < low:
+                raise ValueError("setpoint_c is below low_limit_c")
+            if high is not None and self.setpoint_c > high:
+                raise ValueError("setpoint_c is above high_limit_c")
+        return self
+
+
+class DeviceIn(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+    label: str | None = Field(None, max_length=200)
+    site: str | None = Field(None, max_length=200)
+    module: ModuleIn | None = None
+    cabinet: CabinetIn | None = None
+
+
+class ReadingOut(BaseModel):
+    ts: str
+    seq: int | None
+    t_cabinet: float
+    t_cold: float
+    t_hot: float
+    t_ambient: float
+    current: float
+    voltage: float
+    rh: float | None
+    door_open: bool | None
+
+
+class DeviceOut(BaseModel):
+    device_id: str
+    label: str | None
+    site: str | None
+    module: dict[str, Any] | None
+    cabinet: dict[str, Any] | None
+    registered_at: str | None
+    first_seen_at: str | None
+    last_reading_at: str | None
+    readings: int
+    online: bool
+    status: str | None
+    open_alerts: int
+
+
+class DeviceDetail(DeviceOut):
+    latest_reading: ReadingOut | None
+
+
+class RejectOut(BaseModel):
+    id: int
+    received_at: str
+    topic: str
+    device_id: str | None
+    item: int | None
+    code: str
+    reason: str
+    payload: str
+    payload_encoding: str
+    payload_size: int

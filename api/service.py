@@ -1,0 +1,115 @@
+"""Runs the roles of one tecfleet process: ingester, analytics loop and HTTP API.
+
+Ctrl-C / SIGTERM stops the HTTP server first, then the analytics loop, then drains the
+ingester (commit and acknowledge what was received) before the process exits.
+"""
+
+from __future__ import annotations
+
+import logging
+import signal
+import threading
+from collections.abc import Callable
+from typing import Any
+
+import uvicorn
+from sqlalchemy.engine import Engine
+
+from tecfleet.api.app import create_app
+from tecfleet.ingest.ingester import Ingester
+from tecfleet.ingest.settings import Settings
+
+log = logging.getLogger(__name__)
+
+
+class Service:
+    def __init__(self, settings: Settings, engine: Engine) -> None:
+        self.settings = settings
+        self.engine = engine
+        self.stopping = threading.Event()
+        self.ingester = Ingester(settings, engine) if "ingest" in settings.roles else None
+        self.server: uvicorn.Server | None = None
+        self._analytics: threading.Thread | None = None
+
+    def ready(self) -> tuple[bool, str]:
+        if self.ingester is not None and not self.ingester.ready.is_set():
+            return False, "MQTT subscription not yet in place"
+        return True, "ready"
+
+    def _analytics_loop(self, analyze: Callable[[], Any]) -> None:
+        while not self.stopping.is_set():
+            try:
+                analyze()
+            except Exception:  # keep the loop alive; the next round retries
+                log.exception("analysis round failed")
+            self.stopping.wait(self.settings.analyze_every_s)
+
+    def run(self, on_started: Callable[[], None] | None = None) -> None:
+        """Run until a signal (or ``stop``), then shut down in order."""
+        if self.ingester is not None:
+            self.ingester.start()
+        if "analytics" in self.settings.roles:
+            analyze = analysis_round(self.settings, self.engine)
+            self._analytics = threading.Thread(
+                target=self._analytics_loop, args=(analyze,), name="tecfleet-analytics", daemon=True
+            )
+            self._analytics.start()
+        try:
+            if "api" in self.settings.roles:
+                app = create_app(self.engine, ready=self.ready, settings=self.settings)
+                config = uvicorn.Config(
+                    app,
+                    host=self.settings.http_host,
+                    port=self.settings.http_port,
+                    log_level="warning",
+                    lifespan="on",
+                )
+                self.server = uvicorn.Server(config)
+                if on_started is not None:
+                    threading.Thread(target=self._announce, args=(on_started,), daemon=True).start()
+                self.server.run()
+            else:
+                self._wait_for_signal(on_started)
+        finally:
+            self.shutdown()
+
+    def _announce(self, on_started: Callable[[], None]) -> None:
+        while self.server is not None and not self.server.started:
+            if self.stopping.wait(0.05):
+                return
+        on_started()
+
+    def _wait_for_signal(self, on_started: Callable[[], None] | None) -> None:
+        def handler(_signum: int, _frame: Any) -> None:
+            self.stopping.set()
+
+        signal.signal(signal.SIGINT, handler)
+        signal.signal(signal.SIGTERM, handler)
+        if on_started is not None:
+            on_started()
+        while not self.stopping.wait(0.5):
+            pass
+
+    def stop(self) -> None:
+        self.stopping.set()
+        if self.server is not None:
+            self.server.should_exit = True
+
+    def shutdown(self) -> None:
+        self.stopping.set()
+        if self._analytics is not None:
+            self._analytics.join(30)
+        if self.ingester is not None:
+            self.ingester.stop()
+        self.engine.dispose()
+        log.info("tecfleet stopped")
+
+
+def analysis_round(settings: Settings, engine: Engine) -> Callable[[], Any]:
+    """The function the analytics loop calls every ``analyze_every_s`` seconds."""
+    from tecfleet.analytics import runner
+
+    def round_() -> Any:
+        return runner.analyze(engine, settings=settings)
+
+    return round_

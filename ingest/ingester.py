@@ -138,6 +138,8 @@ class Ingester:
             target=self._connect_loop, name="tecfleet-mqtt", daemon=True
         )
         self._pending_subscribe: dict[int, str] = {}
+        self.messages_received = 0
+        self.max_queue_depth = 0
 
     # Life cycle ----------------------------------------------------------
 
@@ -253,6 +255,8 @@ class Ingester:
         metrics.MESSAGES.labels(kind).inc()
         self._queue.put(_Received(self._generation, message.mid, message.qos, parsed))
         metrics.QUEUE_DEPTH.inc()
+        self.messages_received += 1
+        self.max_queue_depth = max(self.max_queue_depth, self._queue.qsize())
 
     # Writer --------------------------------------------------------------
 

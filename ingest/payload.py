@@ -122,6 +122,8 @@ _CODE_BY_PYDANTIC = {
 
 def _describe(exc: ValidationError) -> tuple[str, str]:
     errors = exc.errors(include_url=False)
+    # A missing field says most about a malformed item; report it first.
+    errors.sort(key=lambda err: err["type"] != "missing")
     first = errors[0]
     name = ".".join(str(p) for p in first["loc"]) or "item"
     code = _CODE_BY_PYDANTIC.get(first["type"], "wrong_type")

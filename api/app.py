@@ -124,7 +124,7 @@ def create_app(
         limit: Limit = 1000,
         cursor: str | None = None,
     ) -> dict[str, Any]:
-        bounds = {}
+        bounds: dict[str, int | None] = {}
         for name, text in (("start", start), ("end", end)):
             if text is None:
                 bounds[name] = None

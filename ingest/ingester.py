@@ -24,7 +24,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import paho.mqtt.client as mqtt
-from paho.mqtt.enums import CallbackAPIVersion
+from paho.mqtt.enums import CallbackAPIVersion, MQTTProtocolVersion
 from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
 from paho.mqtt.reasoncodes import ReasonCode
@@ -49,7 +49,7 @@ class _Received:
     parsed: Parsed
 
 
-def detect_protocol(settings: Settings, timeout_s: float = 5.0) -> int:
+def detect_protocol(settings: Settings, timeout_s: float = 5.0) -> MQTTProtocolVersion:
     """MQTT 5 if the broker speaks it, else 3.1.1 (``mqtt_protocol=auto``).
 
     A throwaway clean connection asks; it never touches the ingester's own session.
@@ -98,7 +98,7 @@ def detect_protocol(settings: Settings, timeout_s: float = 5.0) -> int:
     raise ConnectionError(f"MQTT broker refused the connection: {reason}")
 
 
-def _new_client(settings: Settings, client_id: str, protocol: int) -> mqtt.Client:
+def _new_client(settings: Settings, client_id: str, protocol: MQTTProtocolVersion) -> mqtt.Client:
     client = mqtt.Client(
         callback_api_version=CallbackAPIVersion.VERSION2,
         client_id=client_id,
@@ -126,7 +126,7 @@ class Ingester:
         self.settings = settings
         self.engine = engine
         self.ready = threading.Event()
-        self.protocol: int | None = None
+        self.protocol: MQTTProtocolVersion | None = None
         self._queue: queue.Queue[Any] = queue.Queue()
         self._generation = 0
         self._stopping = threading.Event()
@@ -182,7 +182,7 @@ class Ingester:
         client.reconnect_delay_set(min_delay=1, max_delay=30)
         properties = None
         if self.protocol == mqtt.MQTTv5:
-            properties = Properties(PacketTypes.CONNECT)
+            properties = Properties(PacketTypes.CONNECT)  # type: ignore[no-untyped-call]
             properties.SessionExpiryInterval = self.settings.mqtt_session_expiry_s
             properties.ReceiveMaximum = self.settings.mqtt_receive_maximum
             client.connect_async(

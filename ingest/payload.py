@@ -160,7 +160,7 @@ def _is_senml(doc: Any) -> bool:
 
 def _senml_items(
     pack: list[dict[str, Any]], now_s: float
-) -> tuple[list[dict[str, Any]], list[str]]:
+) -> tuple[list[dict[str, Any]], list[tuple[str, str]]]:
     """Resolve a SenML pack into reading dicts grouped by time, plus per-record problems."""
     base_name, base_time, base_unit, base_value = "", 0.0, None, 0.0
     groups: dict[float, dict[str, Any]] = {}
@@ -272,10 +272,10 @@ def parse_message(
         )
         return out
     if kind == "status":
-        text = bytes(payload).strip().lower()
-        if text in (b"online", b"offline"):
-            out.status = StatusUpdate(device_id, text.decode(), int(now_s * 1000))
-        elif text:
+        status_text = bytes(payload).strip().lower()
+        if status_text in (b"online", b"offline"):
+            out.status = StatusUpdate(device_id, status_text.decode(), int(now_s * 1000))
+        elif status_text:
             out.rejects.append(
                 Reject(
                     topic,
@@ -326,8 +326,8 @@ def parse_message(
     items: list[Any]
     if _is_senml(doc):
         items, problems = _senml_items(doc, now_s)
-        for code, text in problems:
-            out.rejects.append(Reject(topic, payload, code, text, device_id))
+        for reason_code, text in problems:
+            out.rejects.append(Reject(topic, payload, reason_code, text, device_id))
         if not items and not problems:
             out.rejects.append(
                 Reject(topic, payload, "senml_error", "SenML pack holds no readings", device_id)

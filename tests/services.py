@@ -4,6 +4,7 @@ TECFLEET_REQUIRE_SERVICES=1 (set by .ci/run)."""
 
 from __future__ import annotations
 
+import contextlib
 import getpass
 import glob
 import os
@@ -81,7 +82,9 @@ class Mosquitto:
 
     def start(self) -> None:
         log = open(self.workdir / "mosquitto.log", "ab")  # noqa: SIM115 - closed with the process
-        self.process = subprocess.Popen([self.binary, "-c", str(self.config)], stdout=log, stderr=log)
+        self.process = subprocess.Popen(
+            [self.binary, "-c", str(self.config)], stdout=log, stderr=log
+        )
         wait_port(self.port)
 
     def stop(self) -> None:
@@ -139,8 +142,6 @@ class Postgres:
         return self.url(name)
 
     def destroy(self) -> None:
-        try:
+        with contextlib.suppress(subprocess.CalledProcessError):
             self.stop()
-        except subprocess.CalledProcessError:
-            pass
         shutil.rmtree(self.dir, ignore_errors=True)

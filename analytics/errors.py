@@ -33,3 +33,18 @@ class InconsistentRatingsError(PhysicsError):
 
 class NoConvergenceError(PhysicsError):
     """A numerical solver or fit did not converge; no result is returned."""
+
+
+class EstimationError(PhysicsError):
+    """Parameters could not be estimated from the readings given."""
+
+
+class InsufficientDataError(EstimationError):
+    """Too few usable readings, or readings that do not vary enough, to estimate a parameter.
+
+    ``reason`` says what was missing in words a person can act on.
+    """
+
+    def __init__(self, message: str, reason: str | None = None) -> None:
+        super().__init__(message)
+        self.reason = reason or message

@@ -1,0 +1,947 @@
+"""Estimate the physical state of a cooler from its readings: module, cabinet, sinks.
+
+Pure functions on numpy arrays, SI units, temperatures in kelvin, times in seconds. No I/O:
+:mod:`.runner` loads readings, calls these and stores what they return.
+
+Model (sign conventions of :mod:`.physics`; Ioffe 1957, Goldsmid 2010 ch. 2, Rowe 1995)::
+
+    V  = I·R(Tm) + S(Tm)·ΔT                       terminal voltage, ΔT = Th - Tc
+    Qc = S·I·Tc - ½·I²·R - K·ΔT                   heat drawn at the cold face
+    Qh = S·I·Th + ½·I²·R - K·ΔT                   heat released at the hot face
+    R(Tm) = R25·(1 + α·(Tm - 298.15 K)),  S(Tm) = S25·(1 + β·(Tm - 298.15 K))
+
+and the lumped energy balances of the cabinet air, the cold sink and the hot sink
+(Incropera et al. 2007, ch. 5, lumped capacitance)::
+
+    C·dTcab/dt  = UA·(Ta - Tcab) - Qc - Cc·dTc/dt        cabinet (Qc seen through the cold sink)
+    Cc·dTc/dt   = (Tcab - Tc)/r_cold - Qc                 cold sink
+    Ch·dTh/dt   = Qh - (Th - Ta)/r_hot                    hot sink
+
+The balances are used in integral form over short segments (integrating them removes the need
+for noisy derivatives: ∫C·dT/dt dt = C·(T_end - T_start)); all three share the module conductance
+K, which makes K identifiable when the unit runs at more than one operating point (on/off cycling
+or changing current). When it is not, K leans on a prior (registered ratings, or a typical module
+ZT) and is reported as unreliable.
+
+Seebeck coefficient: from the regression of V on I and ΔT across operating points, and directly
+from the open-circuit voltage V_oc = S·ΔT when the driver leaves the module floating while off.
+At a switch-off the ohmic part I·R disappears at once while S·ΔT remains, which separates them
+(T. C. Harman, "Special techniques for measurement of thermoelectric properties",
+J. Appl. Phys. 29, 1373, 1958); see :func:`harman_steps`.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import NDArray
+from scipy.ndimage import median_filter
+from scipy.optimize import approx_fprime
+
+from . import heat_paths, physics
+from ._validate import T_25C_K, T_MAX_K, T_MIN_K, FloatArray
+from .errors import EstimationError, InsufficientDataError, PhysicsError
+
+__all__ = [
+    "TYPICAL_MODULE_ZT",
+    "ElectricalFit",
+    "Estimate",
+    "Performance",
+    "SampleFlags",
+    "ThermalFit",
+    "detect_floating_driver",
+    "fit_electrical",
+    "fit_thermal",
+    "flag_samples",
+    "harman_steps",
+    "hot_side_resistance_ratio",
+    "performance_now",
+    "propagate",
+    "setpoint_capacity",
+]
+
+BoolArray = NDArray[np.bool_]
+
+#: Effective ZT of commercial bismuth-telluride cooling modules near room temperature, used
+#: only as a weak prior on K when a device has no registered ratings [-]. About 0.6-0.8
+#: (from memory); 0.7 with a wide (50 %) prior spread.
+TYPICAL_MODULE_ZT = 0.7
+
+#: Smallest plausible module Seebeck coefficient [V/K]: a few couples at ~400 µV/K each.
+#: Open-circuit readings below this are taken as a driver that shorts or grounds the module
+#: while off (common practice, no source).
+_MIN_FLOATING_SEEBECK = 2e-3
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """One estimated quantity.
+
+    Attributes
+    ----------
+    value : Best estimate (unit given by the key it is stored under).
+    stderr : Standard error, None when it cannot be stated.
+    n : Number of samples behind it [-].
+    reliable : False when the data cannot support it (then ``note`` says why).
+    note : Why it is unreliable, or how it was obtained, in words.
+    """
+
+    value: float
+    stderr: float | None
+    n: int
+    reliable: bool = True
+    note: str | None = None
+
+
+# ---------------------------------------------------------------------------
+# Data quality
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class SampleFlags:
+    """Which samples are usable for what, and why others were left out.
+
+    Attributes
+    ----------
+    usable : Finite, in range, no spike, door shut and settled [-].
+    on : Module current above the on threshold [-].
+    steady : Usable and at least ``settle_s`` after the last switch [-].
+    counts : Samples left out, by reason (``missing``, ``sensor_fault``, ``door``) [-].
+    """
+
+    usable: BoolArray
+    on: BoolArray
+    steady: BoolArray
+    counts: dict[str, int] = field(default_factory=dict)
+
+
+def flag_samples(
+    time_s: FloatArray,
+    t_cabinet: FloatArray,
+    t_cold: FloatArray,
+    t_hot: FloatArray,
+    t_ambient: FloatArray,
+    current: FloatArray,
+    voltage: FloatArray,
+    door_open: BoolArray | None = None,
+    *,
+    on_current: float = 0.05,
+    settle_s: float = 600.0,
+    door_settle_s: float = 900.0,
+    spike_k: float = 3.0,
+) -> SampleFlags:
+    """Sort samples into usable or left out (missing channel, sensor fault, door).
+
+    A sensor fault is a temperature outside -60..150 °C, a negative current, or a spike: a
+    sample more than ``spike_k`` from the running median of five on any temperature channel
+    (a physical temperature cannot jump and come straight back within a minute; common
+    practice, no source). Samples while a door is open and for ``door_settle_s`` after it shuts
+    are left out: the air exchange is a load the model does not describe.
+
+    Parameters
+    ----------
+    time_s : Sample times, increasing [s].
+    t_cabinet, t_cold, t_hot, t_ambient : Temperatures [K].
+    current : Module current [A].
+    voltage : Module voltage [V].
+    door_open : Door state per sample, optional [-].
+    on_current : Current above which the module counts as on [A].
+    settle_s : Time after a switch before a sample counts as steady [s].
+    door_settle_s : Time after a door opening still left out [s].
+    spike_k : Deviation from the running median that marks a spike [K].
+
+    Returns
+    -------
+    The flags and the counts of samples left out by reason.
+    """
+    t = np.asarray(time_s, dtype=np.float64)
+    temps = np.vstack([t_cabinet, t_cold, t_hot, t_ambient]).astype(np.float64)
+    i = np.asarray(current, dtype=np.float64)
+    v = np.asarray(voltage, dtype=np.float64)
+    missing = ~(np.all(np.isfinite(temps), axis=0) & np.isfinite(i) & np.isfinite(v))
+    filled = np.where(np.isfinite(temps), temps, 0.0)
+    out_of_range = np.any((filled < T_MIN_K) | (filled > T_MAX_K), axis=0) | (
+        np.nan_to_num(i) < -on_current
+    )
+    if t.size >= 5:
+        smooth = median_filter(filled, size=(1, 5), mode="nearest")
+        spike = np.any(np.abs(filled - smooth) > spike_k, axis=0)
+    else:
+        spike = np.zeros(t.size, dtype=bool)
+    fault = (out_of_range | spike) & ~missing
+
+    if door_open is None:
+        door = np.zeros(t.size, dtype=bool)
+    else:
+        d = np.asarray(door_open, dtype=bool)
+        # Time since the last sample with the door open, carried forward.
+        last_open = np.where(d, t, -np.inf)
+        last_open = np.maximum.accumulate(last_open) if t.size else last_open
+        door = t - last_open <= door_settle_s
+    door = door & ~missing & ~fault
+
+    on = np.nan_to_num(i) > on_current
+    usable = ~missing & ~fault & ~door
+    switch_t = t[1:][on[1:] != on[:-1]] if t.size > 1 else t[:0]
+    last_switch = np.full(t.size, -np.inf)
+    if switch_t.size:
+        idx = np.searchsorted(switch_t, t, side="right") - 1
+        last_switch = np.where(idx >= 0, switch_t[np.clip(idx, 0, None)], -np.inf)
+    steady = usable & (t - last_switch >= settle_s)
+    counts = {
+        "missing": int(missing.sum()),
+        "sensor_fault": int(fault.sum()),
+        "door": int(door.sum()),
+        "transient": int((usable & ~steady).sum()),
+    }
+    return SampleFlags(usable=usable, on=on, steady=steady, counts=counts)
+
+
+# ---------------------------------------------------------------------------
+# Electrical: R and S
+# ---------------------------------------------------------------------------
+
+
+def detect_floating_driver(
+    voltage_off: FloatArray, delta_t_off: FloatArray, min_delta_t: float = 2.0
+) -> bool:
+    """Whether a module left off shows its open-circuit (Seebeck) voltage.
+
+    A floating module shows V = S·ΔT (Harman 1958); a driver that shorts or grounds it shows
+    about 0. Decided on the median of V/ΔT over off samples with |ΔT| > ``min_delta_t``,
+    against the smallest plausible module S (a few couples; common practice, no source).
+
+    Parameters
+    ----------
+    voltage_off : Voltage of samples with the module off [V].
+    delta_t_off : Th - Tc of the same samples [K].
+    min_delta_t : Smallest |ΔT| that gives a usable ratio [K].
+
+    Returns
+    -------
+    True when the off voltage follows S·ΔT.
+    """
+    v = np.asarray(voltage_off, dtype=np.float64)
+    dt = np.asarray(delta_t_off, dtype=np.float64)
+    sel = np.abs(dt) > min_delta_t
+    if sel.sum() < 5:
+        return False
+    return bool(np.median(v[sel] / dt[sel]) > _MIN_FLOATING_SEEBECK)
+
+
+@dataclass(frozen=True)
+class ElectricalFit:
+    """Module resistance and Seebeck coefficient fitted to V = I·R + S·ΔT.
+
+    Attributes
+    ----------
+    r25 : Resistance at 25 °C mean module temperature [ohm].
+    s25 : Seebeck coefficient at 25 °C mean module temperature [V/K].
+    cov : Covariance of (r25, s25) [ohm², ohm·V/K, (V/K)²].
+    n_on : On samples used [-].
+    n_off : Open-circuit (off, floating) samples used [-].
+    residual_v : Residual standard deviation [V].
+    reliable : False when the readings could not separate R from S.
+    note : Why not, or how the values were obtained.
+    """
+
+    r25: float
+    s25: float
+    cov: FloatArray
+    n_on: int
+    n_off: int
+    residual_v: float
+    reliable: bool
+    note: str | None
+
+
+def _trimmed_lstsq(x: FloatArray, y: FloatArray, cut: float = 4.0) -> tuple[FloatArray, BoolArray]:
+    # One pass of outlier removal at `cut` robust standard deviations, then a refit: the
+    # readings carry occasional glitches the model cannot explain.
+    coef = np.linalg.lstsq(x, y, rcond=None)[0]
+    res = y - x @ coef
+    mad = float(np.median(np.abs(res - np.median(res)))) * 1.4826
+    keep = np.abs(res) <= cut * mad if mad > 0.0 else np.ones(y.size, dtype=bool)
+    if keep.sum() >= x.shape[1] + 2 and not keep.all():
+        coef = np.linalg.lstsq(x[keep], y[keep], rcond=None)[0]
+    return np.asarray(coef, dtype=np.float64), keep
+
+
+def fit_electrical(
+    current: FloatArray,
+    voltage: FloatArray,
+    t_cold: FloatArray,
+    t_hot: FloatArray,
+    usable: BoolArray,
+    *,
+    floating: bool,
+    on_current: float = 0.05,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    prior: tuple[float, float, float] | None = None,
+    min_on: int = 20,
+    max_rel_stderr: float = 0.01,
+) -> ElectricalFit:
+    """Fit R25 and S25 to V = R25·I·(1 + α·(Tm - 25 °C)) + S25·ΔT·(1 + β·(Tm - 25 °C)).
+
+    Ordinary least squares (``numpy.linalg.lstsq``) over on samples plus, when the driver
+    floats, off samples (V_oc = S·ΔT, I = 0). Module equation: Goldsmid (2010), ch. 2;
+    temperature coefficients as in :func:`.physics.resistance_at_temperature`.
+
+    With a ``prior`` (R25, S25, relative standard deviation), e.g. from the registered ratings,
+    the fit is regularised towards it (Bayesian ridge: prior rows appended to the design). The
+    fit is marked unreliable when the data alone cannot pin R25 or S25 to within
+    ``max_rel_stderr`` (constant current with no open-circuit voltage, too few samples).
+
+    Parameters
+    ----------
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_cold, t_hot : Face temperatures [K].
+    usable : Samples that may be used [-].
+    floating : Whether off samples show the open-circuit voltage [-].
+    on_current : Current above which the module counts as on [A].
+    alpha : Temperature coefficient of R [1/K].
+    beta : Temperature coefficient of S [1/K].
+    prior : (R25 [ohm], S25 [V/K], relative standard deviation [-]), optional.
+    min_on : Fewest on samples accepted [-].
+    max_rel_stderr : Largest data-only relative standard error called reliable [-].
+
+    Returns
+    -------
+    The fit.
+
+    Raises
+    ------
+    InsufficientDataError : too few samples, or R and S not separable and no prior.
+    """
+    i = np.asarray(current, dtype=np.float64)
+    v = np.asarray(voltage, dtype=np.float64)
+    tc = np.asarray(t_cold, dtype=np.float64)
+    th = np.asarray(t_hot, dtype=np.float64)
+    dt = th - tc
+    tm = 0.5 * (tc + th) - T_25C_K
+    on = usable & (i > on_current)
+    off = usable & (i <= on_current) & (np.abs(dt) > 1.0) if floating else np.zeros_like(on)
+    rows = on | off
+    n_on, n_off = int(on.sum()), int(off.sum())
+    if n_on < min_on:
+        raise InsufficientDataError(
+            f"{n_on} usable on samples, need {min_on}", "module hardly ran in this window"
+        )
+    x = np.column_stack([i * (1.0 + alpha * tm), dt * (1.0 + beta * tm)])[rows]
+    y = v[rows]
+    coef, keep = _trimmed_lstsq(x, y)
+    x, y = x[keep], y[keep]
+    res = y - x @ coef
+    dof = max(y.size - 2, 1)
+    sigma = max(float(np.sqrt(res @ res / dof)), 1e-6)
+    xtx = x.T @ x
+    data_ok = np.linalg.cond(xtx) < 1e12
+    rel_se = np.array([np.inf, np.inf])
+    if data_ok:
+        cov_data = sigma**2 * np.linalg.inv(xtx)
+        rel_se = np.sqrt(np.diag(cov_data)) / np.maximum(np.abs(coef), 1e-12)
+        data_ok = bool(np.all(rel_se < max_rel_stderr)) and bool(np.all(coef > 0.0))
+    note: str | None = None
+    if not data_ok:
+        if n_off == 0 and np.ptp(i[on]) < 0.05 * float(np.mean(i[on])):
+            note = "constant current and no open-circuit voltage: R and S not separable"
+        else:
+            note = "readings do not vary enough to separate R and S"
+    if prior is not None:
+        r0, s0, rel = prior
+        w = np.array([sigma / (rel * r0), sigma / (rel * s0)])
+        xa = np.vstack([x, np.diag(w)])
+        ya = np.concatenate([y, w * np.array([r0, s0])])
+        coef = np.asarray(np.linalg.lstsq(xa, ya, rcond=None)[0], dtype=np.float64)
+        cov: FloatArray = np.asarray(sigma**2 * np.linalg.inv(xa.T @ xa), dtype=np.float64)
+        if not data_ok:
+            note = f"{note}; values lean on the registered ratings"
+    elif data_ok:
+        cov = np.asarray(sigma**2 * np.linalg.inv(xtx), dtype=np.float64)
+    else:
+        raise InsufficientDataError(f"R and S not identifiable: {note}", note)
+    if not np.all(coef > 0.0):
+        raise EstimationError(f"fitted R25/S25 not positive: {coef}")
+    return ElectricalFit(
+        r25=float(coef[0]),
+        s25=float(coef[1]),
+        cov=np.asarray(cov, dtype=np.float64),
+        n_on=n_on,
+        n_off=n_off,
+        residual_v=sigma,
+        reliable=data_ok,
+        note=note,
+    )
+
+
+def harman_steps(
+    time_s: FloatArray,
+    current: FloatArray,
+    voltage: FloatArray,
+    t_cold: FloatArray,
+    t_hot: FloatArray,
+    usable: BoolArray,
+    *,
+    on_current: float = 0.05,
+    max_gap_s: float = 180.0,
+    min_delta_t: float = 2.0,
+) -> tuple[FloatArray, FloatArray]:
+    """Seebeck coefficient and resistance from each switch-off (Harman's method).
+
+    At a switch-off the ohmic voltage I·R vanishes at once while the Seebeck voltage S·ΔT
+    remains (T. C. Harman, J. Appl. Phys. 29, 1373, 1958). With the first off sample
+    S = V_off/ΔT_off, and the last on sample then gives R = (V_on - S·ΔT_on)/I_on. Unlike
+    Harman's adiabatic bench set-up, ΔT is measured on both sides of the step, so the decay of
+    ΔT between samples does not bias S. Needs a driver that leaves the module floating.
+
+    Parameters
+    ----------
+    time_s : Sample times [s].
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_cold, t_hot : Face temperatures [K].
+    usable : Samples that may be used [-].
+    on_current : Current above which the module counts as on [A].
+    max_gap_s : Largest time between the two samples of a step [s].
+    min_delta_t : Smallest ΔT after the step that gives a usable ratio [K].
+
+    Returns
+    -------
+    (S per step [V/K], R per step at the mean module temperature of the step [ohm]).
+    """
+    t = np.asarray(time_s, dtype=np.float64)
+    i = np.asarray(current, dtype=np.float64)
+    v = np.asarray(voltage, dtype=np.float64)
+    dt = np.asarray(t_hot, dtype=np.float64) - np.asarray(t_cold, dtype=np.float64)
+    on = i > on_current
+    k = np.flatnonzero(
+        on[:-1]
+        & ~on[1:]
+        & usable[:-1]
+        & usable[1:]
+        & (np.diff(t) <= max_gap_s)
+        & (np.abs(dt[1:]) > min_delta_t)
+    )
+    s = v[k + 1] / dt[k + 1]
+    r = (v[k] - s * dt[k]) / i[k]
+    return s, r
+
+
+# ---------------------------------------------------------------------------
+# Thermal: UA, C, K, sink resistances
+# ---------------------------------------------------------------------------
+
+#: Order of the thermal unknowns in :class:`ThermalFit`.
+THERMAL_PARAMS = ("ua", "k", "c", "c_cold", "g_cold", "g_hot", "c_hot")
+
+
+@dataclass(frozen=True)
+class ThermalFit:
+    """Cabinet, sink and module thermal parameters from the integral energy balances.
+
+    Attributes
+    ----------
+    ua : Cabinet heat-loss conductance [W/K].
+    k : Module thermal conductance [W/K].
+    c : Effective heat capacity of cabinet air and contents [J/K].
+    c_cold, c_hot : Heat capacities of the cold and hot sinks [J/K].
+    g_cold, g_hot : Conductances cabinet air to cold face and hot face to ambient [W/K].
+    cov : Covariance of the parameters in ``THERMAL_PARAMS`` order.
+    n : Segments used (per balance) [-].
+    n_samples : Samples behind them [-].
+    k_from_data : True when the readings, not the prior, determine K.
+    ua_reliable : False when the cabinet balance is poorly determined.
+    note : Remarks on identifiability.
+    """
+
+    ua: float
+    k: float
+    c: float
+    c_cold: float
+    g_cold: float
+    g_hot: float
+    c_hot: float
+    cov: FloatArray
+    n: int
+    n_samples: int
+    k_from_data: bool
+    ua_reliable: bool
+    note: str | None
+
+    def stderr(self, name: str) -> float:
+        """Standard error of one parameter (a name from ``THERMAL_PARAMS``)."""
+        j = THERMAL_PARAMS.index(name)
+        return float(np.sqrt(max(self.cov[j, j], 0.0)))
+
+
+def _segment_sums(seg: NDArray[np.int64], n_seg: int, weights: FloatArray) -> FloatArray:
+    return np.bincount(seg, weights=weights, minlength=n_seg).astype(np.float64)
+
+
+def _physical(params: FloatArray) -> bool:
+    ua, k, g_cold, g_hot = params[0], params[1], params[4], params[5]
+    return bool(ua > 0.0 and k > 0.0 and g_cold > 0.0 and g_hot > 0.0)
+
+
+def _solve_with_prior(
+    xw: FloatArray, yw: FloatArray, k0: float, k_sd: float, fixed: int | None
+) -> tuple[FloatArray, FloatArray]:
+    # Weighted least squares with a Gaussian prior on column 1 (K), in information form;
+    # `fixed` holds that column at its prior value instead. Covariance scaled by the reduced
+    # chi-square when the residuals exceed their assumed scale.
+    n_par = xw.shape[1]
+    if fixed is not None:
+        free = [j for j in range(n_par) if j != fixed]
+        y_adj = yw - xw[:, fixed] * k0
+        sub, sub_cov = _solve_with_prior(xw[:, free], y_adj, 0.0, math.inf, None)
+        params = np.zeros(n_par)
+        params[free] = sub
+        params[fixed] = k0
+        cov = np.zeros((n_par, n_par))
+        cov[np.ix_(free, free)] = sub_cov
+        cov[fixed, fixed] = k_sd**2
+        return params, cov
+    info = xw.T @ xw
+    rhs = xw.T @ yw
+    if math.isfinite(k_sd) and n_par > 1:
+        info[1, 1] += 1.0 / k_sd**2
+        rhs[1] += k0 / k_sd**2
+    try:
+        cov_i: FloatArray = np.asarray(np.linalg.inv(info), dtype=np.float64)
+    except np.linalg.LinAlgError as exc:
+        raise EstimationError("thermal balance matrix is singular") from exc
+    params = cov_i @ rhs
+    dof = max(yw.size - n_par, 1)
+    chi2 = float(np.sum((yw - xw @ params) ** 2)) / dof
+    return np.asarray(params, dtype=np.float64), cov_i * max(chi2, 1.0)
+
+
+def fit_thermal(
+    time_s: FloatArray,
+    t_cabinet: FloatArray,
+    t_cold: FloatArray,
+    t_hot: FloatArray,
+    t_ambient: FloatArray,
+    current: FloatArray,
+    seebeck: FloatArray,
+    resistance: FloatArray,
+    usable: BoolArray,
+    k_prior: float,
+    k_prior_rel: float,
+    *,
+    segment_s: float = 900.0,
+    max_gap_s: float = 180.0,
+    min_segments: int = 8,
+    on_current: float = 0.05,
+    switch_guard_s: float = 180.0,
+) -> ThermalFit:
+    """Fit UA, C, K and the sink conductances to the integral energy balances.
+
+    Over each segment of ``segment_s`` (trapezoidal integrals over consecutive usable samples
+    no more than ``max_gap_s`` apart), with Pc = S·I·Tc - ½·I²·R and Ph = S·I·Th + ½·I²·R:
+
+        ∫Pc = UA·∫(Ta - Tcab) + K·∫ΔT - C·δTcab - Cc·δTc           (cabinet)
+        ∫Pc = g_c·∫(Tcab - Tc) + K·∫ΔT - Cc·δTc                    (cold sink)
+        ∫Ph = g_h·∫(Th - Ta)   + K·∫ΔT + Ch·δTh                    (hot sink)
+
+    (δ the change over the segment), stacked and solved by weighted least squares
+    (``numpy.linalg.lstsq``) with a prior row K = ``k_prior`` ± ``k_prior_rel``. Each balance is
+    weighted by its own residual scale from a first pass. Lumped-capacitance balances:
+    Incropera et al. (2007), ch. 5; module heats: Goldsmid (2010), ch. 2.
+
+    Parameters
+    ----------
+    time_s : Sample times [s].
+    t_cabinet, t_cold, t_hot, t_ambient : Temperatures [K].
+    current : Module current [A].
+    seebeck : Seebeck coefficient at each sample's mean module temperature [V/K].
+    resistance : Resistance at each sample's mean module temperature [ohm].
+    usable : Samples that may be used [-].
+    k_prior : Prior module conductance [W/K].
+    k_prior_rel : Relative standard deviation of the prior [-].
+    segment_s : Segment length [s].
+    max_gap_s : Largest gap between samples integrated across [s].
+    min_segments : Fewest segments accepted [-].
+    on_current : Current above which the module counts as on [A].
+    switch_guard_s : Sample pairs closer than this after a switch are left out [s]: the sink
+        temperatures then change too fast for trapezoidal integration over one sample interval,
+        and the errors would line up with the switching and bias K and UA.
+
+    Returns
+    -------
+    The fit.
+
+    Raises
+    ------
+    InsufficientDataError : too few usable segments.
+    EstimationError : the fit gives non-physical values.
+    """
+    t = np.asarray(time_s, dtype=np.float64)
+    tcab, tc, th, ta = (
+        np.asarray(a, dtype=np.float64) for a in (t_cabinet, t_cold, t_hot, t_ambient)
+    )
+    i = np.asarray(current, dtype=np.float64)
+    s = np.asarray(seebeck, dtype=np.float64)
+    r = np.asarray(resistance, dtype=np.float64)
+    if t.size < 2:
+        raise InsufficientDataError("fewer than two samples", "no readings in this window")
+    pc = s * i * tc - 0.5 * i * i * r
+    ph = s * i * th + 0.5 * i * i * r
+    dtv = th - tc
+    h = np.diff(t)
+    on = i > on_current
+    switched = np.concatenate([[False], on[1:] != on[:-1]])
+    last_switch = np.maximum.accumulate(np.where(switched, t, -np.inf))
+    settled = (t - last_switch >= switch_guard_s)[:-1] & ~switched[1:]
+    pair = usable[:-1] & usable[1:] & (h <= max_gap_s) & (h > 0) & settled
+
+    def trap(f: FloatArray) -> FloatArray:
+        return np.asarray(0.5 * (f[:-1] + f[1:]) * h, dtype=np.float64)
+
+    seg_all = np.floor((t[:-1] - t[0]) / segment_s).astype(np.int64)
+    seg = seg_all[pair]
+    n_seg = int(seg_all.max()) + 1 if seg_all.size else 0
+    span = _segment_sums(seg, n_seg, h[pair])
+    good = span >= 0.6 * segment_s
+    if good.sum() < min_segments:
+        raise InsufficientDataError(
+            f"{int(good.sum())} usable {segment_s / 60:.0f}-minute segments, need {min_segments}",
+            "too few complete stretches of readings (door openings, gaps or faults)",
+        )
+
+    def sums(f: FloatArray) -> FloatArray:
+        return _segment_sums(seg, n_seg, f[pair])[good]
+
+    i_pc, i_ph = sums(trap(pc)), sums(trap(ph))
+    i_cab, i_dt = sums(trap(ta - tcab)), sums(trap(dtv))
+    i_cold, i_hot = sums(trap(tcab - tc)), sums(trap(th - ta))
+    d_cab, d_c, d_h = sums(np.diff(tcab)), sums(np.diff(tc)), sums(np.diff(th))
+    z = np.zeros_like(i_pc)
+    # Columns: ua, k, c, c_cold, g_cold, g_hot, c_hot
+    x_cab = np.column_stack([i_cab, i_dt, -d_cab, -d_c, z, z, z])
+    x_cold = np.column_stack([z, i_dt, z, -d_c, i_cold, z, z])
+    x_hot = np.column_stack([z, i_dt, z, z, z, i_hot, d_h])
+    blocks = [(x_cab, i_pc), (x_cold, i_pc), (x_hot, i_ph)]
+    x_all = np.vstack([b[0] for b in blocks])
+    y_all = np.concatenate([b[1] for b in blocks])
+    # Scale columns so the prior and the conditioning checks are unit-free.
+    scale = np.maximum(np.abs(x_all).max(axis=0), 1e-12)
+    xs_all = x_all / scale
+    w0 = 1.0 / (k_prior_rel * k_prior)
+    prior_row = np.zeros(len(THERMAL_PARAMS))
+    prior_row[1] = 1.0 / scale[1]
+    # Pass 1: equal weights, weak prior, to get each balance's residual scale.
+    coef = np.linalg.lstsq(
+        np.vstack([xs_all, prior_row * w0 * float(np.std(y_all))]),
+        np.concatenate([y_all, [w0 * float(np.std(y_all)) * k_prior]]),
+        rcond=None,
+    )[0]
+    sig = []
+    m = i_pc.size
+    for b in range(3):
+        res_b = y_all[b * m : (b + 1) * m] - xs_all[b * m : (b + 1) * m] @ coef
+        sig.append(
+            max(float(np.median(np.abs(res_b))) * 1.4826, 1e-9 * float(np.std(y_all)) + 1e-12)
+        )
+    wts = np.repeat(1.0 / np.array(sig), m)
+    # Drop segments the model cannot explain (unmodelled loads, glitches), then refit.
+    res_all = (y_all - xs_all @ coef) * wts
+    keep = np.abs(res_all) <= 4.0
+    xw = xs_all[keep] * wts[keep, None]
+    yw = y_all[keep] * wts[keep]
+    prior_sd = k_prior_rel * k_prior * scale[1]  # prior on K in scaled coordinates
+    params, cov = _solve_with_prior(xw, yw, k_prior * scale[1], prior_sd, None)
+    params, cov = params / scale, cov / np.outer(scale, scale)
+    forced = False
+    if not _physical(params):
+        # Degenerate data (one operating point) can let noise push K to absurd values; hold K
+        # at its prior and fit the rest, reporting K as not measured.
+        forced = True
+        params, cov = _solve_with_prior(xw, yw, k_prior * scale[1], prior_sd, 1)
+        params, cov = params / scale, cov / np.outer(scale, scale)
+    ua, k, c, c_cold, g_cold, g_hot, c_hot = (float(p) for p in params)
+    if not _physical(params):
+        raise EstimationError(
+            f"non-physical thermal fit: UA={ua:.3g} W/K, K={k:.3g} W/K, "
+            f"1/r_cold={g_cold:.3g} W/K, 1/r_hot={g_hot:.3g} W/K"
+        )
+    # K counts as measured when the data narrow it to less than half the prior spread.
+    k_sd = float(np.sqrt(cov[1, 1]))
+    k_from_data = not forced and k_sd < 0.5 * k_prior_rel * k_prior
+    ua_rel = float(np.sqrt(cov[0, 0])) / ua
+    ua_ok = ua_rel < 0.15
+    notes = []
+    if not k_from_data:
+        notes.append("module conductance weakly identifiable: value leans on its prior")
+    if not ua_ok:
+        notes.append(f"cabinet UA poorly determined (±{100 * ua_rel:.0f} %)")
+    return ThermalFit(
+        ua=ua,
+        k=k,
+        c=c,
+        c_cold=c_cold,
+        g_cold=g_cold,
+        g_hot=g_hot,
+        c_hot=c_hot,
+        cov=np.asarray(cov, dtype=np.float64),
+        n=int(good.sum()),
+        n_samples=int(pair[np.isin(seg_all, np.flatnonzero(good))].sum()),
+        k_from_data=bool(k_from_data),
+        ua_reliable=bool(ua_ok),
+        note="; ".join(notes) or None,
+    )
+
+
+def hot_side_resistance_ratio(
+    time_s: FloatArray,
+    t_hot: FloatArray,
+    t_ambient: FloatArray,
+    t_cold: FloatArray,
+    current: FloatArray,
+    seebeck: FloatArray,
+    resistance: FloatArray,
+    conductance: float,
+    usable: BoolArray,
+    *,
+    c_hot: float = 0.0,
+    max_gap_s: float = 180.0,
+    min_heat_j: float = 3.6e4,
+) -> Estimate:
+    """Hot-side (sink plus fan) thermal resistance over a short stretch of readings.
+
+    r_hot = ∫(Th - Ta) dt / (∫Qh dt - Ch·δTh), the hot sink's energy balance integrated over the
+    stretch (Incropera et al. 2007, ch. 5), with Qh = S·I·Th + ½·I²·R - K·ΔT (Goldsmid 2010,
+    ch. 2). Integrating over whole on/off cycles cancels most of the heat stored in the sink, so
+    the estimate works on short windows (tens of minutes) and reacts quickly to a blocked fin
+    or a failed fan. Standard error from the spread of the per-pair ratio, treating pairs as
+    independent (an underestimate when residuals are correlated).
+
+    Parameters
+    ----------
+    time_s : Sample times [s].
+    t_hot, t_ambient, t_cold : Temperatures [K].
+    current : Module current [A].
+    seebeck, resistance : Module S [V/K] and R [ohm] at each sample's mean temperature.
+    conductance : Module thermal conductance K [W/K].
+    usable : Samples that may be used [-].
+    c_hot : Heat capacity of the hot sink, when known [J/K].
+    max_gap_s : Largest gap between samples integrated across [s].
+    min_heat_j : Least heat rejected over the stretch for a usable ratio [J].
+
+    Returns
+    -------
+    r_hot [K/W].
+
+    Raises
+    ------
+    InsufficientDataError : too little heat rejected to measure it.
+    """
+    t = np.asarray(time_s, dtype=np.float64)
+    th = np.asarray(t_hot, dtype=np.float64)
+    i = np.asarray(current, dtype=np.float64)
+    qh = seebeck * i * th + 0.5 * i * i * resistance - conductance * (th - t_cold)
+    rise = th - t_ambient
+    h = np.diff(t)
+    pair = usable[:-1] & usable[1:] & (h <= max_gap_s) & (h > 0)
+    q_int = 0.5 * (qh[:-1] + qh[1:]) * h
+    r_int = 0.5 * (rise[:-1] + rise[1:]) * h
+    heat = float(q_int[pair].sum() - c_hot * np.diff(th)[pair].sum())
+    n = int(pair.sum())
+    if n < 10 or heat < min_heat_j:
+        raise InsufficientDataError(
+            f"{heat:.3g} J rejected over {n} sample pairs", "module hardly ran: no heat to measure"
+        )
+    value = float(r_int[pair].sum()) / heat
+    # Spread of the pair-level mismatch against the fitted ratio, summed as independent errors.
+    mismatch = r_int[pair] - value * q_int[pair]
+    se = float(np.sqrt(np.sum(mismatch**2))) / heat
+    return Estimate(value, se, n)
+
+
+# ---------------------------------------------------------------------------
+# Performance and capacity
+# ---------------------------------------------------------------------------
+
+
+def propagate(
+    f: Callable[[FloatArray], float], params: FloatArray, cov: FloatArray
+) -> tuple[float, float]:
+    """Value and first-order standard error of ``f(params)`` (delta method).
+
+    σ_f² = J·Σ·Jᵀ with the gradient J by finite differences (``scipy.optimize.approx_fprime``);
+    e.g. JCGM 100:2008 (GUM), section 5.1.
+
+    Parameters
+    ----------
+    f : Function of the parameter vector [unit of the result].
+    params : Parameter values [their units].
+    cov : Their covariance matrix [products of their units].
+
+    Returns
+    -------
+    (value, standard error).
+    """
+    p = np.asarray(params, dtype=np.float64)
+    value = float(f(p))
+    eps = np.maximum(np.abs(p), 1e-12) * 1e-6
+    grad = approx_fprime(p, f, eps)
+    var = float(grad @ cov @ grad)
+    return value, math.sqrt(max(var, 0.0))
+
+
+@dataclass(frozen=True)
+class Performance:
+    """Module performance at given face temperatures and current.
+
+    Attributes
+    ----------
+    cooling_w, input_power_w, cop, cop_max, current_for_best_cop_a, carnot_cop :
+        Qc [W], P [W], COP [-], best COP at these temperatures [-], the current giving it [A],
+        Carnot COP [-], each as an :class:`Estimate`.
+    """
+
+    cooling_w: Estimate
+    input_power_w: Estimate
+    cop: Estimate
+    cop_max: Estimate
+    current_for_best_cop_a: Estimate
+    carnot_cop: Estimate
+
+
+def performance_now(
+    current: float,
+    t_cold: float,
+    t_hot: float,
+    s25: float,
+    r25: float,
+    k: float,
+    cov: FloatArray,
+    n: int,
+    *,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+) -> Performance:
+    """Cooling, power, COP and the best COP at one operating point, with standard errors.
+
+    Qc, P and COP from :func:`.physics.cold_side_heat`, :func:`.physics.input_power`,
+    :func:`.physics.cop`; the best COP and its current from :func:`.physics.best_cop` and
+    :func:`.physics.current_for_best_cop` (Ioffe 1957); the Carnot COP Tc/(Th - Tc). S and R are
+    taken at the mean face temperature. Errors by :func:`propagate` from ``cov``.
+
+    Parameters
+    ----------
+    current : Module current [A].
+    t_cold, t_hot : Face temperatures [K].
+    s25 : Seebeck coefficient at 25 °C [V/K].
+    r25 : Resistance at 25 °C [ohm].
+    k : Thermal conductance [W/K].
+    cov : Covariance of (s25, r25, k).
+    n : Samples behind the operating point [-].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+
+    Returns
+    -------
+    The figures.
+
+    Raises
+    ------
+    EstimationError : no power taken, or hot face not above cold face.
+    """
+    tm = 0.5 * (t_cold + t_hot)
+    p0 = np.array([s25, r25, k])
+
+    def at(p: FloatArray) -> tuple[float, float, float]:
+        s = float(physics.seebeck_at_temperature(float(p[0]), tm, beta))
+        r = float(physics.resistance_at_temperature(float(p[1]), tm, alpha))
+        return s, r, float(p[2])
+
+    def qc(p: FloatArray) -> float:
+        return float(physics.cold_side_heat(current, t_cold, t_hot, *at(p)))
+
+    def pw(p: FloatArray) -> float:
+        s, r, _ = at(p)
+        return float(physics.input_power(current, t_cold, t_hot, s, r))
+
+    def cp(p: FloatArray) -> float:
+        return float(physics.cop(current, t_cold, t_hot, *at(p)))
+
+    def best(p: FloatArray) -> float:
+        return float(physics.best_cop(t_cold, t_hot, *at(p)))
+
+    def i_best(p: FloatArray) -> float:
+        return float(physics.current_for_best_cop(t_cold, t_hot, *at(p)))
+
+    if t_hot <= t_cold:
+        raise EstimationError("hot face not above cold face: COP figures undefined")
+    try:
+        figures = [propagate(f, p0, cov) for f in (qc, pw, cp, best, i_best)]
+    except PhysicsError as exc:
+        raise EstimationError(f"performance undefined at this operating point: {exc}") from exc
+    carnot = float(physics.carnot_cop(t_cold, t_hot))
+    est = [Estimate(v, se, n) for v, se in figures]
+    return Performance(est[0], est[1], est[2], est[3], est[4], Estimate(carnot, None, n))
+
+
+def setpoint_capacity(
+    setpoint_k: float,
+    design_ambient_k: float,
+    s25: float,
+    r25: float,
+    k: float,
+    r_hot: float,
+    r_cold: float,
+    ua: float,
+    max_current: float,
+    *,
+    max_voltage: float | None = None,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+) -> heat_paths.SetpointCapacity:
+    """Whether the fitted cooler can hold its setpoint at the design ambient.
+
+    Thin wrapper on :func:`.heat_paths.capacity_at_setpoint` with the fitted module (at 25 °C,
+    with temperature coefficients), sinks and cabinet.
+
+    Parameters
+    ----------
+    setpoint_k : Cabinet setpoint [K].
+    design_ambient_k : Ambient the unit must cope with [K].
+    s25 : Seebeck coefficient at 25 °C [V/K].
+    r25 : Resistance at 25 °C [ohm].
+    k : Module thermal conductance [W/K].
+    r_hot, r_cold : Sink resistances [K/W].
+    ua : Cabinet heat-loss conductance [W/K].
+    max_current : Largest drive current [A].
+    max_voltage : Largest drive voltage, optional [V].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+
+    Returns
+    -------
+    The capacity figures.
+
+    Raises
+    ------
+    EstimationError : the capacity could not be computed.
+    """
+    module = physics.ModuleParameters(s25, r25, k)
+    try:
+        return heat_paths.capacity_at_setpoint(
+            setpoint_k,
+            design_ambient_k,
+            module,
+            r_hot,
+            r_cold,
+            ua,
+            max_current,
+            max_voltage=max_voltage,
+            alpha=alpha,
+            beta=beta,
+        )
+    except PhysicsError as exc:
+        raise EstimationError(f"capacity at setpoint not computable: {exc}") from exc

@@ -1,0 +1,247 @@
+"""Estimators recover known module, cabinet and sink parameters from synthetic readings.
+
+References named beside each check:
+- Module equations V = I·R + S·ΔT, Qc, Qh: H. J. Goldsmid, Introduction to Thermoelectricity,
+  Springer, 2010, ch. 2; D. M. Rowe (ed.), CRC Handbook of Thermoelectrics, 1995.
+- Switch-off separation of I·R and S·ΔT: T. C. Harman, J. Appl. Phys. 29, 1373 (1958).
+- Best COP at the Ioffe current: A. F. Ioffe, Semiconductor Thermoelements, 1957.
+- First-order error propagation: JCGM 100:2008 (GUM), eq. (13).
+The synthetic readings come from tests/analytics/synthetic.py (lumped balances, Incropera et al.
+2007 ch. 5); tolerances are set by the noise added there and explained at each check.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from tecfleet.analytics import diagnostics as dg
+from tecfleet.analytics import physics as ph
+from tecfleet.analytics.errors import InsufficientDataError
+from tests.analytics.synthetic import Noise, Truth, simulate
+
+K0 = 273.15
+QUIET = Noise(0.0, 0.0, 0.0)
+
+
+def _arrays(df: pd.DataFrame) -> dict[str, Any]:
+    t = (df.ts_ms.to_numpy() - df.ts_ms.to_numpy()[0]) / 1000.0
+    a: dict[str, Any] = {"t": t}
+    for col in ("t_cabinet", "t_cold", "t_hot", "t_ambient"):
+        a[col] = df[col].to_numpy() + K0
+    a["i"] = df.current.to_numpy()
+    a["v"] = df.voltage.to_numpy()
+    a["door"] = df.door_open.to_numpy()
+    a["flags"] = dg.flag_samples(
+        t, a["t_cabinet"], a["t_cold"], a["t_hot"], a["t_ambient"], a["i"], a["v"], a["door"]
+    )
+    return a
+
+
+@pytest.fixture(scope="module")
+def day() -> dict[str, Any]:
+    return _arrays(simulate(Truth(), 1.0, seed=3))
+
+
+def test_electrical_fit_recovers_r25_and_s25(day: dict[str, Any]) -> None:
+    # V = I·R + S·ΔT (Goldsmid 2010). Noise: 5 mV on V and 10 mA on I over ~1000 on samples;
+    # the fit's own standard error is ~0.02 % on R, so 0.5 % (R) and 1 % (S) are ample while
+    # still catching a missed temperature correction (α·10 K = 4.5 %).
+    tr = Truth()
+    e = dg.fit_electrical(
+        day["i"], day["v"], day["t_cold"], day["t_hot"], day["flags"].usable, floating=True
+    )
+    assert e.reliable
+    assert e.r25 == pytest.approx(tr.r25, rel=5e-3)
+    assert e.s25 == pytest.approx(tr.s25, rel=1e-2)
+    se_r = float(np.sqrt(e.cov[0, 0]))
+    assert 0.0 < se_r < 0.01 * tr.r25
+    assert abs(e.r25 - tr.r25) < 6.0 * se_r
+
+
+def test_floating_driver_detected_only_when_it_floats(day: dict[str, Any]) -> None:
+    # Off and floating, V = S·ΔT (Harman 1958); shorted, V = 0.
+    off = ~day["flags"].on
+    dt = day["t_hot"] - day["t_cold"]
+    assert dg.detect_floating_driver(day["v"][off], dt[off])
+    grounded = _arrays(simulate(Truth(floating=False), 0.5, seed=4))
+    off_g = ~grounded["flags"].on
+    dt_g = grounded["t_hot"] - grounded["t_cold"]
+    assert not dg.detect_floating_driver(grounded["v"][off_g], dt_g[off_g])
+
+
+def test_harman_steps_give_seebeck_at_the_step() -> None:
+    # Harman (1958): after switch-off V = S·ΔT. Without noise each step's S equals S at the
+    # mean temperature of the first off sample; the only error left is the simulator's Euler
+    # step (5 s), hence 0.5 %.
+    tr = Truth()
+    a = _arrays(simulate(tr, 0.25, seed=1, noise=QUIET))
+    s, r = dg.harman_steps(a["t"], a["i"], a["v"], a["t_cold"], a["t_hot"], a["flags"].usable)
+    assert s.size >= 5
+    tm = 0.5 * (a["t_cold"] + a["t_hot"])
+    k = np.flatnonzero(a["flags"].on[:-1] & ~a["flags"].on[1:])
+    k = k[np.abs(a["t_hot"][k + 1] - a["t_cold"][k + 1]) > 2.0]
+    expected = ph.seebeck_at_temperature(tr.s25, tm[k + 1], tr.beta)
+    np.testing.assert_allclose(s, expected, rtol=5e-3)
+    # R from the last on sample, with S taken from the off sample (S differs by β·δTm, < 1 %).
+    expected_r = ph.resistance_at_temperature(tr.r25, tm[k], tr.alpha)
+    np.testing.assert_allclose(r, expected_r, rtol=2e-2)
+
+
+def test_constant_current_without_open_circuit_voltage_is_not_separable() -> None:
+    # Constant current, steady temperatures, driver shorting the module while off: V = I·R +
+    # S·ΔT has one equation for two unknowns at a single operating point.
+    tr = Truth(floating=False, ambient_swing_k=0.0)
+    a = _arrays(simulate(tr, 0.25, seed=2, constant_current=3.0))
+    usable = a["flags"].usable
+    # Leave out the start-up transient: the steady part alone is one operating point.
+    usable = usable & (a["t"] > 3 * 3600)
+    with pytest.raises(InsufficientDataError):
+        dg.fit_electrical(a["i"], a["v"], a["t_cold"], a["t_hot"], usable, floating=False)
+    e = dg.fit_electrical(
+        a["i"], a["v"], a["t_cold"], a["t_hot"], usable, floating=False, prior=(2.1, 0.050, 0.1)
+    )
+    assert not e.reliable
+    assert e.note is not None and "not separable" in e.note
+
+
+def test_too_few_on_samples_raise() -> None:
+    a = _arrays(simulate(Truth(), 0.01, seed=2))
+    with pytest.raises(InsufficientDataError):
+        dg.fit_electrical(a["i"], a["v"], a["t_cold"], a["t_hot"], a["flags"].usable, floating=True)
+
+
+def _thermal(a: dict[str, Any], tr: Truth, k_prior: float = 0.4) -> dg.ThermalFit:
+    tm = 0.5 * (a["t_cold"] + a["t_hot"])
+    s = ph.seebeck_at_temperature(tr.s25, tm, tr.beta)
+    r = ph.resistance_at_temperature(tr.r25, tm, tr.alpha)
+    return dg.fit_thermal(
+        a["t"],
+        a["t_cabinet"],
+        a["t_cold"],
+        a["t_hot"],
+        a["t_ambient"],
+        a["i"],
+        np.asarray(s),
+        np.asarray(r),
+        a["flags"].usable,
+        k_prior,
+        0.5,
+    )
+
+
+def test_thermal_fit_recovers_cabinet_sinks_and_module_without_noise() -> None:
+    # Noise-free: what remains is trapezoidal integration over 60 s samples of a model stepped
+    # at 5 s, which the fit's residuals show as a few per cent; 5 % on UA, K and r_hot,
+    # 10 % on r_cold (the smallest temperature difference of the three) and 15 % on C.
+    tr = Truth()
+    f = _thermal(_arrays(simulate(tr, 1.0, seed=1, noise=QUIET)), tr)
+    assert f.ua == pytest.approx(tr.ua, rel=0.05)
+    assert f.k == pytest.approx(tr.k, rel=0.05)
+    assert 1.0 / f.g_hot == pytest.approx(tr.r_hot, rel=0.05)
+    assert 1.0 / f.g_cold == pytest.approx(tr.r_cold, rel=0.10)
+    assert f.c == pytest.approx(tr.c, rel=0.15)
+    assert f.k_from_data
+    assert f.ua_reliable
+
+
+def test_thermal_fit_with_noise_stays_within_its_error(day: dict[str, Any]) -> None:
+    # 0.05 K temperature noise: UA within 15 % and inside four of its standard errors; the
+    # prior on K is 20 % off and must not drag the estimate (cycling makes K observable).
+    tr = Truth()
+    f = _thermal(day, tr, k_prior=0.4)
+    assert f.ua == pytest.approx(tr.ua, rel=0.15)
+    assert abs(f.ua - tr.ua) < 4.0 * f.stderr("ua")
+    assert f.k == pytest.approx(tr.k, rel=0.10)
+    assert 1.0 / f.g_hot == pytest.approx(tr.r_hot, rel=0.05)
+
+
+def test_conductance_leans_on_prior_at_constant_current() -> None:
+    # One operating point: K·∫ΔT and UA·∫(Ta - Tcab) move together, so the data cannot
+    # separate them and K must be reported as prior-driven.
+    tr = Truth(ambient_swing_k=0.0)
+    a = _arrays(simulate(tr, 1.0, seed=5, constant_current=2.0))
+    a["flags"] = dg.SampleFlags(
+        usable=a["flags"].usable & (a["t"] > 3 * 3600), on=a["flags"].on, steady=a["flags"].steady
+    )
+    f = _thermal(a, tr)
+    assert not f.k_from_data
+    assert f.note is not None and "conductance" in f.note
+
+
+def test_hot_side_resistance_over_one_hour(day: dict[str, Any]) -> None:
+    # Integrated hot-sink balance over one hour of cycling: the heat stored in the sink (Ch·δTh)
+    # is corrected with the true Ch, noise 0.05 K on ~12 K rise; 5 %.
+    tr = Truth()
+    sl = slice(600, 660)
+    tm = 0.5 * (day["t_cold"][sl] + day["t_hot"][sl])
+    est = dg.hot_side_resistance_ratio(
+        day["t"][sl],
+        day["t_hot"][sl],
+        day["t_ambient"][sl],
+        day["t_cold"][sl],
+        day["i"][sl],
+        np.asarray(ph.seebeck_at_temperature(tr.s25, tm, tr.beta)),
+        np.asarray(ph.resistance_at_temperature(tr.r25, tm, tr.alpha)),
+        tr.k,
+        day["flags"].usable[sl],
+        c_hot=tr.c_hot,
+    )
+    assert est.value == pytest.approx(tr.r_hot, rel=0.05)
+    assert est.stderr is not None and 0.0 < est.stderr < 0.05 * tr.r_hot
+
+
+def test_flags_count_door_spike_and_missing() -> None:
+    df = simulate(Truth(), 0.2, seed=7, door_every_h=2.0)
+    df.loc[50, "t_hot"] += 20.0  # a spike on one channel
+    df.loc[60, "voltage"] = np.nan  # a missing channel
+    a = _arrays(df)
+    c = a["flags"].counts
+    assert c["missing"] == 1
+    assert c["sensor_fault"] >= 1 and not a["flags"].usable[50]
+    # Two minutes open every two hours plus 15 minutes settling: 17 samples per opening.
+    openings = int(np.sum(np.diff(df.door_open.astype(int)) == 1)) + int(df.door_open.iloc[0])
+    assert c["door"] == pytest.approx(17 * openings, abs=openings)
+
+
+def test_performance_consistent_with_ioffe_optimum() -> None:
+    # Ioffe (1957): at I = current_for_best_cop the COP equals the best COP; the best COP lies
+    # below the Carnot COP (second law). With zero covariance the standard errors are zero.
+    tr = Truth()
+    tc, th = 278.0, 308.0
+    cov = np.zeros((3, 3))
+    p = dg.performance_now(3.0, tc, th, tr.s25, tr.r25, tr.k, cov, 10)
+    i_best = p.current_for_best_cop_a.value
+    at_best = dg.performance_now(i_best, tc, th, tr.s25, tr.r25, tr.k, cov, 10)
+    assert at_best.cop.value == pytest.approx(p.cop_max.value, rel=1e-9)
+    assert p.cop.value < p.cop_max.value < p.carnot_cop.value
+    assert p.carnot_cop.value == pytest.approx(tc / (th - tc))
+    assert p.cop.stderr == 0.0
+    # Qc by hand from Goldsmid (2010) ch. 2 with S, R at the mean face temperature.
+    s = tr.s25 * (1 + tr.beta * (0.5 * (tc + th) - 298.15))
+    r = tr.r25 * (1 + tr.alpha * (0.5 * (tc + th) - 298.15))
+    assert p.cooling_w.value == pytest.approx(s * 3.0 * tc - 0.5 * 9.0 * r - tr.k * (th - tc))
+
+
+def test_propagate_matches_gum_for_a_linear_function() -> None:
+    # GUM eq. (13): for f = a·x + b·y, u² = a²·u_x² + b²·u_y² + 2·a·b·u_xy (exact when linear).
+    cov = np.array([[0.04, 0.01], [0.01, 0.09]])
+    value, se = dg.propagate(
+        lambda p: 3.0 * float(p[0]) - 2.0 * float(p[1]), np.array([1.0, 2.0]), cov
+    )
+    assert value == pytest.approx(-1.0)
+    assert se == pytest.approx(np.sqrt(9 * 0.04 + 4 * 0.09 - 12 * 0.01), rel=1e-5)
+
+
+def test_capacity_with_true_parameters() -> None:
+    # The true cooler holds 5 °C at 25 °C ambient with its 4 A drive (it does in the simulator),
+    # so the capacity check at that ambient must agree and report a positive margin.
+    tr = Truth()
+    cap = dg.setpoint_capacity(
+        tr.setpoint_c + K0, 25.0 + K0, tr.s25, tr.r25, tr.k, tr.r_hot, tr.r_cold, tr.ua, 4.0
+    )
+    assert cap.holdable and cap.margin > 0.0
+    assert cap.heat_load == pytest.approx(tr.ua * 20.0)

@@ -16,6 +16,7 @@ from tecfleet.api import queries
 from tecfleet.api.auth import Principal, authenticate
 from tecfleet.api.schemas import DeviceDetail, DeviceIn, DeviceOut, Page, ReadingOut, RejectOut
 from tecfleet.api.timefmt import rfc3339_to_ms
+from tecfleet.ingest import metrics as _ingest_metrics  # noqa: F401 - registers the counters
 from tecfleet.ingest.errors import NotFoundError, StoreError
 from tecfleet.ingest.settings import Settings
 from tecfleet.ingest.store import ping
@@ -56,7 +57,7 @@ def create_app(
         return found
 
     def needs(scope: str) -> Callable[..., Principal]:
-        def check(who: Annotated[Principal, Depends(principal)]) -> Principal:
+        def check(who: Principal = Depends(principal)) -> Principal:
             if not who.allows(scope):
                 raise HTTPException(403, f"this route needs a key with scope {scope!r}")
             return who

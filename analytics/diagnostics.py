@@ -437,8 +437,13 @@ def harman_steps(
 # Thermal: UA, C, K, sink resistances
 # ---------------------------------------------------------------------------
 
-#: Order of the thermal unknowns in :class:`ThermalFit`.
-THERMAL_PARAMS = ("ua", "k", "c", "c_cold", "g_cold", "g_hot", "c_hot")
+#: Names of the thermal parameters in :class:`ThermalFit`.
+THERMAL_PARAMS = ("ua", "k", "c", "q_internal", "c_cold", "g_cold", "g_hot", "c_hot")
+
+#: Prior on the heat released inside the cabinet by its inner fan and electronics [W]: about
+#: 1 W ± 1 W for small thermoelectric cabinets (common practice, no source). Without it UA and
+#: a constant internal load cannot be told apart while the ambient hardly changes.
+Q_INTERNAL_PRIOR = (1.0, 1.0)
 
 
 @dataclass(frozen=True)
@@ -449,77 +454,116 @@ class ThermalFit:
     ----------
     ua : Cabinet heat-loss conductance [W/K].
     k : Module thermal conductance [W/K].
-    c : Effective heat capacity of cabinet air and contents [J/K].
+    c : Effective heat capacity of the cabinet air (and what follows it within the hour) [J/K].
+    q_internal : Heat released inside the cabinet [W].
     c_cold, c_hot : Heat capacities of the cold and hot sinks [J/K].
     g_cold, g_hot : Conductances cabinet air to cold face and hot face to ambient [W/K].
-    cov : Covariance of the parameters in ``THERMAL_PARAMS`` order.
-    n : Segments used (per balance) [-].
+    stderrs : Standard error of each parameter, by name.
+    n : Segments used in the sink balances [-].
     n_samples : Samples behind them [-].
     k_from_data : True when the readings, not the prior, determine K.
     ua_reliable : False when the cabinet balance is poorly determined.
+    c_reliable : False when the heat capacity is poorly determined.
     note : Remarks on identifiability.
     """
 
     ua: float
     k: float
     c: float
+    q_internal: float
     c_cold: float
     g_cold: float
     g_hot: float
     c_hot: float
-    cov: FloatArray
+    stderrs: dict[str, float]
     n: int
     n_samples: int
     k_from_data: bool
     ua_reliable: bool
+    c_reliable: bool
     note: str | None
 
     def stderr(self, name: str) -> float:
         """Standard error of one parameter (a name from ``THERMAL_PARAMS``)."""
-        j = THERMAL_PARAMS.index(name)
-        return float(np.sqrt(max(self.cov[j, j], 0.0)))
+        return self.stderrs[name]
 
 
 def _segment_sums(seg: NDArray[np.int64], n_seg: int, weights: FloatArray) -> FloatArray:
     return np.bincount(seg, weights=weights, minlength=n_seg).astype(np.float64)
 
 
-def _physical(params: FloatArray) -> bool:
-    ua, k, g_cold, g_hot = params[0], params[1], params[4], params[5]
-    return bool(ua > 0.0 and k > 0.0 and g_cold > 0.0 and g_hot > 0.0)
-
-
 def _solve_with_prior(
-    xw: FloatArray, yw: FloatArray, k0: float, k_sd: float, fixed: int | None
+    xw: FloatArray,
+    yw: FloatArray,
+    index: int,
+    p0: float,
+    p_sd: float,
+    fixed: bool = False,
 ) -> tuple[FloatArray, FloatArray]:
-    # Weighted least squares with a Gaussian prior on column 1 (K), in information form;
-    # `fixed` holds that column at its prior value instead. Covariance scaled by the reduced
-    # chi-square when the residuals exceed their assumed scale.
+    # Weighted least squares with a Gaussian prior on one column, in information form; `fixed`
+    # holds that column at its prior value instead. Covariance scaled by the reduced chi-square
+    # when the residuals exceed their assumed scale.
     n_par = xw.shape[1]
-    if fixed is not None:
-        free = [j for j in range(n_par) if j != fixed]
-        y_adj = yw - xw[:, fixed] * k0
-        sub, sub_cov = _solve_with_prior(xw[:, free], y_adj, 0.0, math.inf, None)
+    if fixed:
+        free = [j for j in range(n_par) if j != index]
+        sub, sub_cov = _solve_with_prior(xw[:, free], yw - xw[:, index] * p0, 0, 0.0, math.inf)
         params = np.zeros(n_par)
         params[free] = sub
-        params[fixed] = k0
+        params[index] = p0
         cov = np.zeros((n_par, n_par))
         cov[np.ix_(free, free)] = sub_cov
-        cov[fixed, fixed] = k_sd**2
+        cov[index, index] = p_sd**2
         return params, cov
     info = xw.T @ xw
     rhs = xw.T @ yw
-    if math.isfinite(k_sd) and n_par > 1:
-        info[1, 1] += 1.0 / k_sd**2
-        rhs[1] += k0 / k_sd**2
+    if math.isfinite(p_sd):
+        info[index, index] += 1.0 / p_sd**2
+        rhs[index] += p0 / p_sd**2
     try:
         cov_i: FloatArray = np.asarray(np.linalg.inv(info), dtype=np.float64)
     except np.linalg.LinAlgError as exc:
-        raise EstimationError("thermal balance matrix is singular") from exc
+        raise EstimationError("energy balance matrix is singular") from exc
     params = cov_i @ rhs
     dof = max(yw.size - n_par, 1)
     chi2 = float(np.sum((yw - xw @ params) ** 2)) / dof
     return np.asarray(params, dtype=np.float64), cov_i * max(chi2, 1.0)
+
+
+def _robust_weighted(
+    blocks: list[tuple[FloatArray, FloatArray]],
+    index: int,
+    p0: float,
+    p_sd: float,
+    positive_cols: tuple[int, ...],
+) -> tuple[FloatArray, FloatArray, bool]:
+    # Columns scaled to unit size; each balance weighted by its own robust residual scale from a
+    # first pass; rows beyond four of those scales dropped (unmodelled loads, glitches). When
+    # a parameter that must be positive is not (degenerate data: noise pushing the poorly
+    # determined direction anywhere), the prior-carrying one is held at its prior instead; the
+    # flag returned says so.
+    x_all = np.vstack([b[0] for b in blocks])
+    y_all = np.concatenate([b[1] for b in blocks])
+    scale = np.maximum(np.abs(x_all).max(axis=0), 1e-12)
+    xs = x_all / scale
+    y_scale = max(float(np.std(y_all)), 1e-12)
+    coef, _ = _solve_with_prior(xs, y_all, index, p0 * scale[index], p_sd * scale[index] / y_scale)
+    wts = np.empty(y_all.size)
+    start = 0
+    for xb, _yb in blocks:
+        end = start + xb.shape[0]
+        res = y_all[start:end] - xs[start:end] @ coef
+        sd = float(np.median(np.abs(res - np.median(res)))) * 1.4826
+        wts[start:end] = 1.0 / max(sd, 1e-9 * y_scale)
+        start = end
+    keep = np.abs((y_all - xs @ coef) * wts) <= 4.0
+    xw, yw = xs[keep] * wts[keep, None], y_all[keep] * wts[keep]
+    params, cov = _solve_with_prior(xw, yw, index, p0 * scale[index], p_sd * scale[index])
+    forced = not all(params[j] > 0.0 for j in positive_cols)
+    if forced:
+        params, cov = _solve_with_prior(
+            xw, yw, index, p0 * scale[index], p_sd * scale[index], fixed=True
+        )
+    return params / scale, cov / np.outer(scale, scale), forced
 
 
 def fit_thermal(
@@ -536,24 +580,34 @@ def fit_thermal(
     k_prior_rel: float,
     *,
     segment_s: float = 900.0,
+    cabinet_block_s: float = 3600.0,
     max_gap_s: float = 180.0,
     min_segments: int = 8,
     on_current: float = 0.05,
     switch_guard_s: float = 180.0,
+    q_internal_prior: tuple[float, float] = Q_INTERNAL_PRIOR,
 ) -> ThermalFit:
-    """Fit UA, C, K and the sink conductances to the integral energy balances.
+    """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
 
-    Over each segment of ``segment_s`` (trapezoidal integrals over consecutive usable samples
-    no more than ``max_gap_s`` apart), with Pc = S·I·Tc - ½·I²·R and Ph = S·I·Th + ½·I²·R:
+    Stage 1, the sinks, over segments of ``segment_s`` (trapezoidal integrals over consecutive
+    usable samples at most ``max_gap_s`` apart), with Pc = S·I·Tc - ½·I²·R and
+    Ph = S·I·Th + ½·I²·R (Goldsmid 2010, ch. 2):
 
-        ∫Pc = UA·∫(Ta - Tcab) + K·∫ΔT - C·δTcab - Cc·δTc           (cabinet)
-        ∫Pc = g_c·∫(Tcab - Tc) + K·∫ΔT - Cc·δTc                    (cold sink)
-        ∫Ph = g_h·∫(Th - Ta)   + K·∫ΔT + Ch·δTh                    (hot sink)
+        ∫Pc = g_c·∫(Tcab - Tc) + K·∫ΔT - Cc·δTc          (cold sink)
+        ∫Ph = g_h·∫(Th - Ta)   + K·∫ΔT + Ch·δTh          (hot sink)
 
-    (δ the change over the segment), stacked and solved by weighted least squares
-    (``numpy.linalg.lstsq``) with a prior row K = ``k_prior`` ± ``k_prior_rel``. Each balance is
-    weighted by its own residual scale from a first pass. Lumped-capacitance balances:
-    Incropera et al. (2007), ch. 5; module heats: Goldsmid (2010), ch. 2.
+    solved together by weighted least squares with a prior K = ``k_prior`` ± ``k_prior_rel``.
+    Two operating points (on/off, or two currents) make K identifiable; at one, it leans on the
+    prior and is reported so.
+
+    Stage 2, the cabinet, over blocks of ``cabinet_block_s`` with Qc = Pc - K·ΔT:
+
+        ∫Qc = UA·∫(Ta - Tcab) + q_int·τ - C·δTcab
+
+    with a prior on q_int (``q_internal_prior``). Blocks of an hour or more average over the
+    thermostat cycles, so heat exchanged with slowly following contents mostly cancels; blocks
+    the model cannot explain (warm goods put in) are dropped as outliers. Lumped-capacitance
+    balances: Incropera et al. (2007), ch. 5.
 
     Parameters
     ----------
@@ -564,14 +618,16 @@ def fit_thermal(
     resistance : Resistance at each sample's mean module temperature [ohm].
     usable : Samples that may be used [-].
     k_prior : Prior module conductance [W/K].
-    k_prior_rel : Relative standard deviation of the prior [-].
-    segment_s : Segment length [s].
+    k_prior_rel : Relative standard deviation of that prior [-].
+    segment_s : Segment length of the sink balances [s].
+    cabinet_block_s : Block length of the cabinet balance [s].
     max_gap_s : Largest gap between samples integrated across [s].
-    min_segments : Fewest segments accepted [-].
+    min_segments : Fewest sink segments accepted [-].
     on_current : Current above which the module counts as on [A].
-    switch_guard_s : Sample pairs closer than this after a switch are left out [s]: the sink
-        temperatures then change too fast for trapezoidal integration over one sample interval,
-        and the errors would line up with the switching and bias K and UA.
+    switch_guard_s : Sample pairs closer than this after a switch are left out [s]: sink
+        temperatures then change too fast for trapezoidal integration over one interval, and
+        the errors would line up with the switching and bias K.
+    q_internal_prior : (mean [W], standard deviation [W]) of the internal load.
 
     Returns
     -------
@@ -579,7 +635,7 @@ def fit_thermal(
 
     Raises
     ------
-    InsufficientDataError : too few usable segments.
+    InsufficientDataError : too few usable segments or blocks.
     EstimationError : the fit gives non-physical values.
     """
     t = np.asarray(time_s, dtype=np.float64)
@@ -599,83 +655,82 @@ def fit_thermal(
     switched = np.concatenate([[False], on[1:] != on[:-1]])
     last_switch = np.maximum.accumulate(np.where(switched, t, -np.inf))
     settled = (t - last_switch >= switch_guard_s)[:-1] & ~switched[1:]
-    pair = usable[:-1] & usable[1:] & (h <= max_gap_s) & (h > 0) & settled
+    base = usable[:-1] & usable[1:] & (h <= max_gap_s) & (h > 0)
+    pair = base & settled
 
     def trap(f: FloatArray) -> FloatArray:
         return np.asarray(0.5 * (f[:-1] + f[1:]) * h, dtype=np.float64)
 
-    seg_all = np.floor((t[:-1] - t[0]) / segment_s).astype(np.int64)
-    seg = seg_all[pair]
-    n_seg = int(seg_all.max()) + 1 if seg_all.size else 0
-    span = _segment_sums(seg, n_seg, h[pair])
-    good = span >= 0.6 * segment_s
-    if good.sum() < min_segments:
+    def segments(
+        length: float, use: BoolArray
+    ) -> tuple[Callable[[FloatArray], FloatArray], int, NDArray[np.int64], BoolArray]:
+        seg_all = np.floor((t[:-1] - t[0]) / length).astype(np.int64)
+        seg = seg_all[use]
+        n_seg = int(seg_all.max()) + 1 if seg_all.size else 0
+        good = _segment_sums(seg, n_seg, h[use]) >= 0.6 * length
+
+        def sums(f: FloatArray) -> FloatArray:
+            return _segment_sums(seg, n_seg, f[use])[good]
+
+        return sums, int(good.sum()), seg_all, good
+
+    sums, n_good, seg_all, good = segments(segment_s, pair)
+    if n_good < min_segments:
         raise InsufficientDataError(
-            f"{int(good.sum())} usable {segment_s / 60:.0f}-minute segments, need {min_segments}",
+            f"{n_good} usable {segment_s / 60:.0f}-minute segments, need {min_segments}",
             "too few complete stretches of readings (door openings, gaps or faults)",
         )
-
-    def sums(f: FloatArray) -> FloatArray:
-        return _segment_sums(seg, n_seg, f[pair])[good]
-
-    i_pc, i_ph = sums(trap(pc)), sums(trap(ph))
-    i_cab, i_dt = sums(trap(ta - tcab)), sums(trap(dtv))
+    i_pc, i_ph, i_dt = sums(trap(pc)), sums(trap(ph)), sums(trap(dtv))
     i_cold, i_hot = sums(trap(tcab - tc)), sums(trap(th - ta))
-    d_cab, d_c, d_h = sums(np.diff(tcab)), sums(np.diff(tc)), sums(np.diff(th))
+    d_c, d_h = sums(np.diff(tc)), sums(np.diff(th))
     z = np.zeros_like(i_pc)
-    # Columns: ua, k, c, c_cold, g_cold, g_hot, c_hot
-    x_cab = np.column_stack([i_cab, i_dt, -d_cab, -d_c, z, z, z])
-    x_cold = np.column_stack([z, i_dt, z, -d_c, i_cold, z, z])
-    x_hot = np.column_stack([z, i_dt, z, z, z, i_hot, d_h])
-    blocks = [(x_cab, i_pc), (x_cold, i_pc), (x_hot, i_ph)]
-    x_all = np.vstack([b[0] for b in blocks])
-    y_all = np.concatenate([b[1] for b in blocks])
-    # Scale columns so the prior and the conditioning checks are unit-free.
-    scale = np.maximum(np.abs(x_all).max(axis=0), 1e-12)
-    xs_all = x_all / scale
-    w0 = 1.0 / (k_prior_rel * k_prior)
-    prior_row = np.zeros(len(THERMAL_PARAMS))
-    prior_row[1] = 1.0 / scale[1]
-    # Pass 1: equal weights, weak prior, to get each balance's residual scale.
-    coef = np.linalg.lstsq(
-        np.vstack([xs_all, prior_row * w0 * float(np.std(y_all))]),
-        np.concatenate([y_all, [w0 * float(np.std(y_all)) * k_prior]]),
-        rcond=None,
-    )[0]
-    sig = []
-    m = i_pc.size
-    for b in range(3):
-        res_b = y_all[b * m : (b + 1) * m] - xs_all[b * m : (b + 1) * m] @ coef
-        sig.append(
-            max(float(np.median(np.abs(res_b))) * 1.4826, 1e-9 * float(np.std(y_all)) + 1e-12)
-        )
-    wts = np.repeat(1.0 / np.array(sig), m)
-    # Drop segments the model cannot explain (unmodelled loads, glitches), then refit.
-    res_all = (y_all - xs_all @ coef) * wts
-    keep = np.abs(res_all) <= 4.0
-    xw = xs_all[keep] * wts[keep, None]
-    yw = y_all[keep] * wts[keep]
-    prior_sd = k_prior_rel * k_prior * scale[1]  # prior on K in scaled coordinates
-    params, cov = _solve_with_prior(xw, yw, k_prior * scale[1], prior_sd, None)
-    params, cov = params / scale, cov / np.outer(scale, scale)
-    forced = False
-    if not _physical(params):
-        # Degenerate data (one operating point) can let noise push K to absurd values; hold K
-        # at its prior and fit the rest, reporting K as not measured.
-        forced = True
-        params, cov = _solve_with_prior(xw, yw, k_prior * scale[1], prior_sd, 1)
-        params, cov = params / scale, cov / np.outer(scale, scale)
-    ua, k, c, c_cold, g_cold, g_hot, c_hot = (float(p) for p in params)
-    if not _physical(params):
+    # Sink unknowns: k, c_cold, g_cold, g_hot, c_hot
+    x_cold = np.column_stack([i_dt, -d_c, i_cold, z, z])
+    x_hot = np.column_stack([i_dt, z, z, i_hot, d_h])
+    p1, cov1, forced = _robust_weighted(
+        [(x_cold, i_pc), (x_hot, i_ph)], 0, k_prior, k_prior_rel * k_prior, (0, 2, 3)
+    )
+    k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in p1)
+    if k <= 0.0 or g_cold <= 0.0 or g_hot <= 0.0:
         raise EstimationError(
-            f"non-physical thermal fit: UA={ua:.3g} W/K, K={k:.3g} W/K, "
-            f"1/r_cold={g_cold:.3g} W/K, 1/r_hot={g_hot:.3g} W/K"
+            f"non-physical sink fit: K={k:.3g} W/K, 1/r_cold={g_cold:.3g} W/K, "
+            f"1/r_hot={g_hot:.3g} W/K"
         )
-    # K counts as measured when the data narrow it to less than half the prior spread.
-    k_sd = float(np.sqrt(cov[1, 1]))
+    k_sd = float(np.sqrt(max(cov1[0, 0], 0.0)))
     k_from_data = not forced and k_sd < 0.5 * k_prior_rel * k_prior
-    ua_rel = float(np.sqrt(cov[0, 0])) / ua
+
+    # Cabinet: every usable pair counts (switching does not matter for whole-hour sums).
+    qc = pc - k * dtv
+    bsums, n_blocks, _, _ = segments(cabinet_block_s, base)
+    if n_blocks < 3:
+        raise InsufficientDataError(
+            f"{n_blocks} usable {cabinet_block_s / 3600:.1f}-hour blocks, need 3",
+            "too few complete hours for the cabinet balance (door openings, gaps or faults)",
+        )
+    x_cab = np.column_stack([bsums(trap(ta - tcab)), bsums(h), -bsums(np.diff(tcab))])
+    q0, q_sd = q_internal_prior
+    p2, cov2, _ = _robust_weighted([(x_cab, bsums(trap(qc)))], 1, q0, q_sd, (0,))
+    ua, q_int, c = (float(v) for v in p2)
+    if ua <= 0.0:
+        raise EstimationError(f"non-physical cabinet fit: UA={ua:.3g} W/K")
+    sd1 = np.sqrt(np.maximum(np.diag(cov1), 0.0))
+    sd2 = np.sqrt(np.maximum(np.diag(cov2), 0.0))
+    # K's own uncertainty moves Qc, hence UA: add it in quadrature (first order).
+    dua_dk = float(bsums(trap(dtv)).sum()) / float(x_cab[:, 0].sum())
+    ua_sd = math.hypot(float(sd2[0]), k_sd * dua_dk)
+    stderrs = {
+        "k": k_sd,
+        "c_cold": float(sd1[1]),
+        "g_cold": float(sd1[2]),
+        "g_hot": float(sd1[3]),
+        "c_hot": float(sd1[4]),
+        "ua": ua_sd,
+        "q_internal": float(sd2[1]),
+        "c": float(sd2[2]),
+    }
+    ua_rel = ua_sd / ua
     ua_ok = ua_rel < 0.15
+    c_ok = c > 0.0 and float(sd2[2]) < 0.3 * c
     notes = []
     if not k_from_data:
         notes.append("module conductance weakly identifiable: value leans on its prior")
@@ -685,15 +740,17 @@ def fit_thermal(
         ua=ua,
         k=k,
         c=c,
+        q_internal=q_int,
         c_cold=c_cold,
         g_cold=g_cold,
         g_hot=g_hot,
         c_hot=c_hot,
-        cov=np.asarray(cov, dtype=np.float64),
-        n=int(good.sum()),
+        stderrs=stderrs,
+        n=n_good,
         n_samples=int(pair[np.isin(seg_all, np.flatnonzero(good))].sum()),
-        k_from_data=bool(k_from_data),
+        k_from_data=k_from_data,
         ua_reliable=bool(ua_ok),
+        c_reliable=bool(c_ok),
         note="; ".join(notes) or None,
     )
 

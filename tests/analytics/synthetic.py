@@ -31,6 +31,7 @@ class Truth:
     c_hot: float = 300.0  # [J/K]
     r_cold: float = 0.35  # [K/W]
     r_hot: float = 0.20  # [K/W]
+    q_internal: float = 1.0  # inner fan and electronics [W]
     setpoint_c: float = 5.0  # [°C]
     band_k: float = 0.6  # thermostat half band [K]
     currents: tuple[float, ...] = (3.0, 4.0)  # drive levels, picked per on period [A]
@@ -98,7 +99,7 @@ def simulate(
             qh = s * i * th + 0.5 * i * i * r - tr.k * (th - tc)
             q_cab_to_cold = (tcab - tc) / tr.r_cold
             door_load = 8.0 * (ta - tcab) if opened else 0.0
-            dcab = (tr.ua * (ta - tcab) - q_cab_to_cold + door_load) / tr.c
+            dcab = (tr.ua * (ta - tcab) + tr.q_internal - q_cab_to_cold + door_load) / tr.c
             dc = (q_cab_to_cold - qc) / tr.c_cold
             dh = (qh - (th - ta) / tr.r_hot) / tr.c_hot
             tcab += dcab * substep_s

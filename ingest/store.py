@@ -215,6 +215,54 @@ class StatusUpdate:
     at_ms: int
 
 
+_DEVICE_BUMP = (
+    devices.update()
+    .where(devices.c.device_id == sa.bindparam("b_device"))
+    .values(
+        readings=devices.c.readings + sa.bindparam("b_count"),
+        last_reading_ms=sa.case(
+            (
+                sa.or_(
+                    devices.c.last_reading_ms.is_(None),
+                    devices.c.last_reading_ms < sa.bindparam("b_newest"),
+                ),
+                sa.bindparam("b_newest"),
+            ),
+            else_=devices.c.last_reading_ms,
+        ),
+    )
+)
+
+_DEVICE_RECOUNT = (
+    devices.update()
+    .where(devices.c.device_id == sa.bindparam("b_device"))
+    .values(
+        readings=sa.select(sa.func.count())
+        .select_from(readings)
+        .where(readings.c.device_id == sa.bindparam("b_device"))
+        .scalar_subquery(),
+        last_reading_ms=sa.select(sa.func.max(readings.c.ts_ms))
+        .where(readings.c.device_id == sa.bindparam("b_device"))
+        .scalar_subquery(),
+    )
+)
+
+
+_READING_INSERT_COLUMNS = (
+    "device_id, ts_ms, seq, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, rh,"
+    " door_open, received_ms"
+)
+
+
+def _insert_readings_sql(connection: Connection) -> str:
+    marker = "?" if connection.dialect.paramstyle == "qmark" else "%s"
+    values = ", ".join([marker] * 12)
+    return (
+        f"INSERT INTO readings ({_READING_INSERT_COLUMNS}) VALUES ({values})"
+        " ON CONFLICT (device_id, ts_ms) DO NOTHING"
+    )
+
+
 def _insert(dialect_name: str, table: sa.Table) -> Any:
     if dialect_name == "postgresql":
         return postgresql.insert(table)
@@ -244,52 +292,44 @@ def write_batch(
             upsert, [{"device_id": d, "first_seen_ms": received, "readings": 0} for d in device_ids]
         )
     if batch_readings:
+        # Straight to the driver's executemany: SQLAlchemy's per-row parameter processing
+        # would cost more than the insert itself.
         rows = [
-            {
-                "device_id": r.device_id,
-                "ts_ms": r.ts_ms,
-                "seq": r.seq,
-                "t_cabinet": r.t_cabinet,
-                "t_cold": r.t_cold,
-                "t_hot": r.t_hot,
-                "t_ambient": r.t_ambient,
-                "current": r.current,
-                "voltage": r.voltage,
-                "rh": r.rh,
-                "door_open": r.door_open,
-                "received_ms": received,
-            }
+            (
+                r.device_id,
+                r.ts_ms,
+                r.seq,
+                r.t_cabinet,
+                r.t_cold,
+                r.t_hot,
+                r.t_ambient,
+                r.current,
+                r.voltage,
+                r.rh,
+                r.door_open,
+                received,
+            )
             for r in batch_readings
         ]
-        stmt = (
-            _insert(dialect, readings)
-            .on_conflict_do_nothing(index_elements=["device_id", "ts_ms"])
-            .returning(readings.c.device_id, readings.c.ts_ms)
-        )
-        inserted = connection.execute(stmt, rows).all()
-        stored = len(inserted)
-        per_device: dict[str, tuple[int, int]] = {}
-        for device_id, ts in inserted:
-            count, newest = per_device.get(device_id, (0, ts))
-            per_device[device_id] = (count + 1, max(newest, ts))
-        for device_id, (count, newest) in per_device.items():
+        result = connection.exec_driver_sql(_insert_readings_sql(connection), rows)
+        stored = result.rowcount
+        if stored == len(rows):
+            # Every row was new: the batch itself says what each device gained.
+            per_device: dict[str, list[int]] = {}
+            for r in batch_readings:
+                entry = per_device.setdefault(r.device_id, [0, r.ts_ms])
+                entry[0] += 1
+                entry[1] = max(entry[1], r.ts_ms)
             connection.execute(
-                devices.update()
-                .where(devices.c.device_id == device_id)
-                .values(
-                    readings=devices.c.readings + count,
-                    last_reading_ms=sa.case(
-                        (
-                            sa.or_(
-                                devices.c.last_reading_ms.is_(None),
-                                devices.c.last_reading_ms < newest,
-                            ),
-                            newest,
-                        ),
-                        else_=devices.c.last_reading_ms,
-                    ),
-                )
+                _DEVICE_BUMP,
+                [{"b_device": d, "b_count": c, "b_newest": t} for d, (c, t) in per_device.items()],
             )
+        else:
+            # Some rows were already stored (a redelivery or replay): recount those devices
+            # from the index rather than guess which rows were new.
+            touched = sorted({r.device_id for r in batch_readings})
+            connection.execute(_DEVICE_RECOUNT, [{"b_device": d} for d in touched])
+            stored = max(stored, 0)
     for status in statuses:
         connection.execute(
             devices.update()
@@ -387,3 +427,19 @@ def load_readings(
     except SQLAlchemyError as exc:
         raise StoreError(f"could not load readings of {device_id}: {exc}") from exc
     return frame
+
+
+# ---------------------------------------------------------------------------
+# Diagnostics progress (migration 0002). Written only by tecfleet.analytics.runner:
+# ``done_ms`` is the end of the last analysed step (event time, epoch ms UTC); ``state``
+# carries what the next step needs (fitted parameters, baselines, CUSUM sums, trend series).
+# ---------------------------------------------------------------------------
+
+analysis_state = sa.Table(
+    "analysis_state",
+    metadata,
+    sa.Column("device_id", sa.String(64), sa.ForeignKey("devices.device_id"), primary_key=True),
+    sa.Column("done_ms", sa.BigInteger, nullable=False),
+    sa.Column("state", sa.JSON, nullable=False),
+    sa.Column("updated_ms", sa.BigInteger, nullable=False),
+)

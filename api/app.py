@@ -13,7 +13,7 @@ from prometheus_client import CONTENT_TYPE_LATEST, REGISTRY, generate_latest
 from sqlalchemy.engine import Engine
 
 from tecfleet.api import queries
-from tecfleet.api.auth import Principal, authenticate
+from tecfleet.api.auth import require
 from tecfleet.api.schemas import DeviceDetail, DeviceIn, DeviceOut, Page, ReadingOut, RejectOut
 from tecfleet.api.timefmt import rfc3339_to_ms
 from tecfleet.ingest import metrics as _ingest_metrics  # noqa: F401 - registers the counters
@@ -40,32 +40,8 @@ def create_app(
     app.state.engine = engine
     app.state.settings = settings
 
-    def principal(request: Request) -> Principal:
-        header = request.headers.get("authorization", "")
-        scheme, _, token = header.partition(" ")
-        if scheme.lower() != "bearer" or not token.strip():
-            raise HTTPException(
-                401,
-                "missing API key: send Authorization: Bearer <key>",
-                headers={"WWW-Authenticate": "Bearer"},
-            )
-        found = authenticate(engine, token.strip())
-        if found is None:
-            raise HTTPException(
-                401, "unknown or revoked API key", headers={"WWW-Authenticate": "Bearer"}
-            )
-        return found
-
-    def needs(scope: str) -> Callable[..., Principal]:
-        def check(who: Principal = Depends(principal)) -> Principal:
-            if not who.allows(scope):
-                raise HTTPException(403, f"this route needs a key with scope {scope!r}")
-            return who
-
-        return check
-
-    reader = Depends(needs("read"))
-    writer = Depends(needs("write"))
+    reader = Depends(require("read"))
+    writer = Depends(require("write"))
 
     @app.exception_handler(NotFoundError)
     async def _not_found(_request: Request, exc: NotFoundError) -> JSONResponse:

@@ -8,9 +8,11 @@ from __future__ import annotations
 
 import hashlib
 import secrets
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import sqlalchemy as sa
+from fastapi import Depends, HTTPException, Request
 from sqlalchemy.engine import Engine
 from sqlalchemy.exc import SQLAlchemyError
 
@@ -68,3 +70,32 @@ def authenticate(engine: Engine, key: str) -> Principal | None:
     if row is None:
         return None
     return Principal(key_id=row.id, name=row.name, scope=row.scope)
+
+
+def principal(request: Request) -> Principal:
+    """FastAPI dependency: the key holder behind the request's bearer token (401 if none)."""
+    header = request.headers.get("authorization", "")
+    scheme, _, token = header.partition(" ")
+    if scheme.lower() != "bearer" or not token.strip():
+        raise HTTPException(
+            401,
+            "missing API key: send Authorization: Bearer <key>",
+            headers={"WWW-Authenticate": "Bearer"},
+        )
+    found = authenticate(request.app.state.engine, token.strip())
+    if found is None:
+        raise HTTPException(
+            401, "unknown or revoked API key", headers={"WWW-Authenticate": "Bearer"}
+        )
+    return found
+
+
+def require(scope: str) -> Callable[..., Principal]:
+    """FastAPI dependency factory: a key with at least ``scope`` (403 otherwise)."""
+
+    def check(who: Principal = Depends(principal)) -> Principal:
+        if not who.allows(scope):
+            raise HTTPException(403, f"this route needs a key with scope {scope!r}")
+        return who
+
+    return check

@@ -38,7 +38,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.ndimage import median_filter
 from scipy.optimize import approx_fprime
 
 from . import heat_paths, physics
@@ -137,10 +136,11 @@ def flag_samples(
     """Sort samples into usable or left out (missing channel, sensor fault, door).
 
     A sensor fault is a temperature outside -60..150 °C, a negative current, or a spike: a
-    sample more than ``spike_k`` from the running median of five on any temperature channel
-    (a physical temperature cannot jump and come straight back within a minute; common
-    practice, no source). Samples while a door is open and for ``door_settle_s`` after it shuts
-    are left out: the air exchange is a load the model does not describe.
+    sample more than ``spike_k`` away from both neighbours, in the same direction, while the
+    neighbours agree and the drive does not switch (a physical temperature cannot jump and come
+    straight back within one sample; common practice, no source). Samples while a door is open
+    and for ``door_settle_s`` after it shuts are left out: the air exchange is a load the model
+    does not describe.
 
     Parameters
     ----------
@@ -167,11 +167,22 @@ def flag_samples(
     out_of_range = np.any((filled < T_MIN_K) | (filled > T_MAX_K), axis=0) | (
         np.nan_to_num(i) < -on_current
     )
-    if t.size >= 5:
-        smooth = median_filter(filled, size=(1, 5), mode="nearest")
-        spike = np.any(np.abs(filled - smooth) > spike_k, axis=0)
-    else:
-        spike = np.zeros(t.size, dtype=bool)
+    spike = np.zeros(t.size, dtype=bool)
+    if t.size >= 3:
+        # A spike leaves and rejoins its neighbours, which agree with each other; a real step
+        # (the module switching) does not rejoin. Samples where the current changes are spared:
+        # the faces then really jump.
+        x = filled
+        d_prev, d_next = x[:, 1:-1] - x[:, :-2], x[:, 1:-1] - x[:, 2:]
+        jump = (
+            (np.abs(d_prev) > spike_k)
+            & (np.abs(d_next) > spike_k)
+            & (np.sign(d_prev) == np.sign(d_next))
+            & (np.abs(x[:, :-2] - x[:, 2:]) < spike_k)
+        )
+        ic = np.nan_to_num(i) > on_current
+        steady_drive = (ic[1:-1] == ic[:-2]) & (ic[1:-1] == ic[2:])
+        spike[1:-1] = np.any(jump, axis=0) & steady_drive
     fault = (out_of_range | spike) & ~missing
 
     if door_open is None:
@@ -247,6 +258,8 @@ class ElectricalFit:
     residual_v : Residual standard deviation [V].
     reliable : False when the readings could not separate R from S.
     note : Why not, or how the values were obtained.
+    r_reliable : R alone is well determined (with S held at its rated value when the
+        readings cannot separate them).
     """
 
     r25: float
@@ -257,6 +270,7 @@ class ElectricalFit:
     residual_v: float
     reliable: bool
     note: str | None
+    r_reliable: bool = True
 
 
 def _trimmed_lstsq(x: FloatArray, y: FloatArray, cut: float = 4.0) -> tuple[FloatArray, BoolArray]:
@@ -293,7 +307,8 @@ def fit_electrical(
     temperature coefficients as in :func:`.physics.resistance_at_temperature`.
 
     With a ``prior`` (R25, S25, relative standard deviation), e.g. from the registered ratings,
-    the fit is regularised towards it (Bayesian ridge: prior rows appended to the design). The
+    the fit is regularised towards it (Bayesian ridge: prior rows appended to the design); when
+    the readings cannot separate R and S, S is held at the prior and R fitted alone. The
     fit is marked unreliable when the data alone cannot pin R25 or S25 to within
     ``max_rel_stderr`` (constant current with no open-circuit voltage, too few samples).
 
@@ -353,15 +368,27 @@ def fit_electrical(
             note = "constant current and no open-circuit voltage: R and S not separable"
         else:
             note = "readings do not vary enough to separate R and S"
-    if prior is not None:
+    r_ok = data_ok
+    if prior is not None and not data_ok:
+        # S barely varies between units of one type and does not wear; hold it at the rated
+        # value and fit R alone, carrying the prior's spread on S into R's error.
+        _r0, s0, rel = prior
+        x0, x1 = x[:, 0], x[:, 1]
+        r_fit = float(x0 @ (y - s0 * x1) / (x0 @ x0))
+        lever = float(x0 @ x1 / (x0 @ x0))
+        var_s = (rel * s0) ** 2
+        var_r = sigma**2 / float(x0 @ x0) + lever**2 * var_s
+        coef = np.array([r_fit, s0])
+        cov = np.array([[var_r, -lever * var_s], [-lever * var_s, var_s]])
+        r_ok = math.sqrt(var_r) < 5.0 * max_rel_stderr * abs(r_fit)
+        note = f"{note}; S held at the registered ratings"
+    elif prior is not None:
         r0, s0, rel = prior
         w = np.array([sigma / (rel * r0), sigma / (rel * s0)])
         xa = np.vstack([x, np.diag(w)])
         ya = np.concatenate([y, w * np.array([r0, s0])])
         coef = np.asarray(np.linalg.lstsq(xa, ya, rcond=None)[0], dtype=np.float64)
-        cov: FloatArray = np.asarray(sigma**2 * np.linalg.inv(xa.T @ xa), dtype=np.float64)
-        if not data_ok:
-            note = f"{note}; values lean on the registered ratings"
+        cov = np.asarray(sigma**2 * np.linalg.inv(xa.T @ xa), dtype=np.float64)
     elif data_ok:
         cov = np.asarray(sigma**2 * np.linalg.inv(xtx), dtype=np.float64)
     else:
@@ -377,6 +404,7 @@ def fit_electrical(
         residual_v=sigma,
         reliable=data_ok,
         note=note,
+        r_reliable=bool(r_ok),
     )
 
 
@@ -535,12 +563,13 @@ def _robust_weighted(
     p0: float,
     p_sd: float,
     positive_cols: tuple[int, ...],
+    hold_when_weak: bool = True,
 ) -> tuple[FloatArray, FloatArray, bool]:
     # Columns scaled to unit size; each balance weighted by its own robust residual scale from a
     # first pass; rows beyond four of those scales dropped (unmodelled loads, glitches). When
     # a parameter that must be positive is not (degenerate data: noise pushing the poorly
-    # determined direction anywhere), the prior-carrying one is held at its prior instead; the
-    # flag returned says so.
+    # determined direction anywhere), the prior-carrying one is held at its prior; the flag
+    # returned says so.
     x_all = np.vstack([b[0] for b in blocks])
     y_all = np.concatenate([b[1] for b in blocks])
     scale = np.maximum(np.abs(x_all).max(axis=0), 1e-12)
@@ -558,7 +587,11 @@ def _robust_weighted(
     keep = np.abs((y_all - xs @ coef) * wts) <= 4.0
     xw, yw = xs[keep] * wts[keep, None], y_all[keep] * wts[keep]
     params, cov = _solve_with_prior(xw, yw, index, p0 * scale[index], p_sd * scale[index])
-    forced = not all(params[j] > 0.0 for j in positive_cols)
+    p_sd_post = math.sqrt(max(float(cov[index, index]), 0.0)) / scale[index]
+    # Also held when the data narrow it less than halving the prior spread: a weakly identified
+    # parameter moved by sensor bias is worse than the prior itself.
+    weak = hold_when_weak and p_sd_post >= 0.5 * p_sd
+    forced = not all(params[j] > 0.0 for j in positive_cols) or weak
     if forced:
         params, cov = _solve_with_prior(
             xw, yw, index, p0 * scale[index], p_sd * scale[index], fixed=True
@@ -584,7 +617,7 @@ def fit_thermal(
     max_gap_s: float = 180.0,
     min_segments: int = 8,
     on_current: float = 0.05,
-    switch_guard_s: float = 180.0,
+    switch_guard_s: float = 0.0,
     q_internal_prior: tuple[float, float] = Q_INTERNAL_PRIOR,
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
@@ -624,7 +657,8 @@ def fit_thermal(
     max_gap_s : Largest gap between samples integrated across [s].
     min_segments : Fewest sink segments accepted [-].
     on_current : Current above which the module counts as on [A].
-    switch_guard_s : Sample pairs closer than this after a switch are left out [s]: sink
+    switch_guard_s : Sample pairs closer than this after a switch are left out [s]; 0 keeps
+        all. Worth setting (to a few sink time constants) when the sinks store heat: sink
         temperatures then change too fast for trapezoidal integration over one interval, and
         the errors would line up with the switching and bias K.
     q_internal_prior : (mean [W], standard deviation [W]) of the internal load.
@@ -654,7 +688,11 @@ def fit_thermal(
     on = i > on_current
     switched = np.concatenate([[False], on[1:] != on[:-1]])
     last_switch = np.maximum.accumulate(np.where(switched, t, -np.inf))
-    settled = (t - last_switch >= switch_guard_s)[:-1] & ~switched[1:]
+    settled = (
+        (t - last_switch >= switch_guard_s)[:-1] & ~switched[1:]
+        if switch_guard_s > 0.0
+        else np.ones(h.size, dtype=bool)
+    )
     base = usable[:-1] & usable[1:] & (h <= max_gap_s) & (h > 0)
     pair = base & settled
 
@@ -709,7 +747,9 @@ def fit_thermal(
         )
     x_cab = np.column_stack([bsums(trap(ta - tcab)), bsums(h), -bsums(np.diff(tcab))])
     q0, q_sd = q_internal_prior
-    p2, cov2, _ = _robust_weighted([(x_cab, bsums(trap(qc)))], 1, q0, q_sd, (0,))
+    p2, cov2, _ = _robust_weighted(
+        [(x_cab, bsums(trap(qc)))], 1, q0, q_sd, (0,), hold_when_weak=False
+    )
     ua, q_int, c = (float(v) for v in p2)
     if ua <= 0.0:
         raise EstimationError(f"non-physical cabinet fit: UA={ua:.3g} W/K")
@@ -769,6 +809,8 @@ def hot_side_resistance_ratio(
     c_hot: float = 0.0,
     max_gap_s: float = 180.0,
     min_heat_j: float = 3.6e4,
+    probe_offset_k: float = 0.3,
+    max_rel_stderr: float = 0.2,
 ) -> Estimate:
     """Hot-side (sink plus fan) thermal resistance over a short stretch of readings.
 
@@ -777,7 +819,8 @@ def hot_side_resistance_ratio(
     ch. 2). Integrating over whole on/off cycles cancels most of the heat stored in the sink, so
     the estimate works on short windows (tens of minutes) and reacts quickly to a blocked fin
     or a failed fan. Standard error from the spread of the per-pair ratio, treating pairs as
-    independent (an underestimate when residuals are correlated).
+    independent, plus a probe offset on the rise (which dominates when the sink runs only a
+    few kelvin above ambient).
 
     Parameters
     ----------
@@ -790,6 +833,9 @@ def hot_side_resistance_ratio(
     c_hot : Heat capacity of the hot sink, when known [J/K].
     max_gap_s : Largest gap between samples integrated across [s].
     min_heat_j : Least heat rejected over the stretch for a usable ratio [J].
+    probe_offset_k : Uncertainty of the difference of two uncalibrated probes [K]; about
+        0.2-0.5 K (common practice, no source). Added to the error as an offset of the rise.
+    max_rel_stderr : Largest relative standard error called reliable [-].
 
     Returns
     -------
@@ -817,8 +863,18 @@ def hot_side_resistance_ratio(
     value = float(r_int[pair].sum()) / heat
     # Spread of the pair-level mismatch against the fitted ratio, summed as independent errors.
     mismatch = r_int[pair] - value * q_int[pair]
-    se = float(np.sqrt(np.sum(mismatch**2))) / heat
-    return Estimate(value, se, n)
+    se_noise = float(np.sqrt(np.sum(mismatch**2))) / heat
+    # A constant probe offset does not average out: it shifts the mean rise itself.
+    mean_rise = float(r_int[pair].sum()) / float(h[pair].sum())
+    se_offset = abs(value) * probe_offset_k / max(abs(mean_rise), 1e-9)
+    se = math.hypot(se_noise, se_offset)
+    reliable = se < max_rel_stderr * abs(value)
+    note = (
+        None
+        if reliable
+        else f"hot sink only {mean_rise:.1f} K above ambient: probe offsets dominate"
+    )
+    return Estimate(value, se, n, reliable, note)
 
 
 # ---------------------------------------------------------------------------

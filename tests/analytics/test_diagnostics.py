@@ -178,7 +178,8 @@ def test_conductance_leans_on_prior_at_constant_current() -> None:
 
 def test_hot_side_resistance_over_one_hour(day: dict[str, Any]) -> None:
     # Integrated hot-sink balance over one hour of cycling: the heat stored in the sink (Ch·δTh)
-    # is corrected with the true Ch, noise 0.05 K on ~12 K rise; 5 %.
+    # is corrected with the true Ch, noise 0.05 K on ~12 K rise; 5 %. The stated error includes
+    # a 0.3 K probe offset on that rise (~2.5 %) plus noise, so it lies between 2 % and 10 %.
     tr = Truth()
     sl = slice(600, 660)
     tm = 0.5 * (day["t_cold"][sl] + day["t_hot"][sl])
@@ -195,7 +196,8 @@ def test_hot_side_resistance_over_one_hour(day: dict[str, Any]) -> None:
         c_hot=tr.c_hot,
     )
     assert est.value == pytest.approx(tr.r_hot, rel=0.05)
-    assert est.stderr is not None and 0.0 < est.stderr < 0.05 * tr.r_hot
+    assert est.stderr is not None and 0.02 * tr.r_hot < est.stderr < 0.10 * tr.r_hot
+    assert est.reliable
 
 
 def test_flags_count_door_spike_and_missing() -> None:

@@ -1,0 +1,709 @@
+"""Run the diagnostics over stored readings and store the estimates.
+
+Event time only: the readings' own timestamps cut the history into fixed, epoch-aligned steps,
+so a backfilled month gives exactly the estimates it would have given live. A step [a, b) is
+analysed once a reading at or after b is stored; readings arriving later for an analysed step
+are not revisited. Per device, the table ``analysis_state`` holds the end of the last analysed
+step and what the next step needs (fitted parameters, baselines, CUSUM sums, trend series), so
+each run reads only the readings since then (plus one fit window of look-back).
+
+Cadence (defaults of :class:`AnalysisSettings`):
+
+* every hour (``step_s``): the short-window hot-side resistance and its change statistics;
+* every 6 hours (``window_s``): the module, cabinet, sink and performance fits over the last
+  6 hours, with R25 and UA change statistics;
+* every day (``daily_s``): Theil-Sen slopes, days to the wear limit, and setpoint capacity.
+
+Estimate keys (``estimates.key``; value, stderr, n, reliable, note; at_ms = step end):
+
+=============================================  ============================================
+module.resistance_ohm                          R at the window's mean module temperature [ohm]
+module.resistance_25c_ohm                      R referred to 25 °C mean module temperature [ohm]
+module.seebeck_v_per_k                         S at the window's mean module temperature [V/K]
+module.seebeck_25c_v_per_k                     S referred to 25 °C [V/K]
+module.seebeck_step_v_per_k                    S from switch-off steps (Harman), floating drivers
+module.conductance_w_per_k                     K [W/K]; unreliable when it leans on its prior
+module.z_per_k / module.zt                     Z = S²/(R·K) [1/K], ZT at the mean temperature
+module.off_leak_w                              K·ΔT while off: heat the idle module lets in [W]
+cabinet.ua_w_per_k                             UA [W/K]
+cabinet.heat_leak_w                            UA·(Ta - Tcab) over the window's last hour [W]
+cabinet.heat_capacity_j_per_k                  effective heat capacity [J/K]
+cabinet.internal_load_w                        heat released inside (fans, electronics) [W]
+cold_side.resistance_k_per_w                   (Tcab - Tc)/Qc [K/W]
+hot_side.resistance_k_per_w                    (Th - Ta)/Qh over the last hour [K/W] (hourly)
+hot_side.resistance_fit_k_per_w                the same from the 6-hour sink fit [K/W]
+performance.cooling_w / input_power_w / cop    at the window's latest steady on operating point
+performance.cop_max / current_for_best_cop_a   best COP at those temperatures and its current
+performance.carnot_cop                         Tc/(Th - Tc)
+capacity.holdable / margin_w / max_cooling_w   setpoint capacity at the design ambient (daily)
+capacity.heat_load_w                           heat load at setpoint and design ambient [W]
+<q>.baseline                                   commissioning baseline (median of first days)
+<q>.change_pct                                 recent value against baseline [%]
+<q>.cusum                                      Page's upper CUSUM on standardised values [σ]
+<q>.flag                                       1 when change_pct reaches its threshold, else 0
+<q>.slope_pct_per_30d (+ _low / _high)         Theil-Sen slope of daily medians, 95 % CI (daily)
+module.days_to_wear_limit                      days until R25 reaches the wear limit (daily)
+quality.samples / quality.left_out_*           samples used and left out, by reason
+quality.switch_offs / quality.driver_floating  on/off cycles seen; open-circuit voltage seen
+=============================================  ============================================
+
+``<q>`` is ``module.resistance_25c`` (6-hourly), ``cabinet.ua`` (6-hourly) or
+``hot_side.resistance`` (hourly). Change keys appear once the baseline period has passed.
+
+Cautions: these estimates support maintenance; they do not replace temperature monitoring of
+medicines or samples. For storage of medicines follow the maker's instructions and local
+codes and licensed practice; condensation near electronics needs an electrician's judgement.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field
+from datetime import UTC, datetime
+from typing import Any
+
+import numpy as np
+import sqlalchemy as sa
+from sqlalchemy.dialects import postgresql, sqlite
+from sqlalchemy.engine import Connection, Engine
+
+from tecfleet.ingest import store
+
+from . import diagnostics as dg
+from . import physics, trends
+from ._validate import T_25C_K, FloatArray
+from .errors import PhysicsError
+
+__all__ = [
+    "AnalysisReport",
+    "AnalysisSettings",
+    "analyze",
+    "estimate_history",
+    "latest_health",
+]
+
+T0 = 273.15
+MS_DAY = 86_400_000
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """Cadence, thresholds and priors of the diagnostics (times in seconds)."""
+
+    step_s: int = 3600
+    window_s: int = 6 * 3600
+    #: Readings behind the thermal fit (K, sinks, cabinet), ending with each window: a day
+    #: averages over use and ambient cycles, which the cabinet balance needs.
+    thermal_window_s: int = 24 * 3600
+    daily_s: int = 86_400
+    margin_s: int = 1800  # look-back for door settling and spike filtering
+    on_current: float = 0.05  # [A]
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO  # [1/K]
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO  # [1/K]
+    baseline_days: float = 3.0
+    trend_days: float = 30.0
+    #: +10 % on R25 as end of useful life (common practice, no source).
+    wear_limit_pct: float = 10.0
+    r25_flag_pct: float = 4.0
+    ua_flag_pct: float = 25.0
+    r_hot_flag_pct: float = 50.0
+    cusum_allowance: float = 0.5  # [σ], Page (1954), Montgomery (from memory)
+    #: Upper ambient of climate classes SN and N, 32 °C (ISO 15502 / IEC 62552; from memory).
+    design_ambient_c: float = 32.0
+    default_setpoint_c: float = 5.0
+    #: Uncertainty of the difference of two uncalibrated probes [K] (common practice, no source).
+    probe_offset_k: float = 0.3
+    #: Rated hot-side temperature assumed when a registration omits it, 27 °C (common
+    #: practice for module datasheets, no source).
+    default_t_hot_rated_c: float = 27.0
+
+
+@dataclass
+class AnalysisReport:
+    """What a run of :func:`analyze` did."""
+
+    devices: int = 0
+    steps: int = 0
+    estimates: int = 0
+    skipped: dict[str, str] = field(default_factory=dict)
+    seconds: float = 0.0
+
+
+# ---------------------------------------------------------------------------
+# Public API
+# ---------------------------------------------------------------------------
+
+
+def analyze(
+    engine: Engine, *, device_id: str | None = None, settings: AnalysisSettings | None = None
+) -> AnalysisReport:
+    """Bring every estimate of one device (or of all) up to its newest stored reading."""
+    cfg = settings or AnalysisSettings()
+    started = time.perf_counter()
+    report = AnalysisReport()
+    dev_q = sa.select(
+        store.devices.c.device_id,
+        store.devices.c.module,
+        store.devices.c.cabinet,
+        store.devices.c.last_reading_ms,
+    ).where(store.devices.c.last_reading_ms.is_not(None))
+    if device_id is not None:
+        dev_q = dev_q.where(store.devices.c.device_id == device_id)
+    with engine.connect() as conn:
+        devs = conn.execute(dev_q.order_by(store.devices.c.device_id)).all()
+        states = {
+            r.device_id: (int(r.done_ms), dict(r.state))
+            for r in conn.execute(sa.select(store.analysis_state))
+        }
+    for dev in devs:
+        report.devices += 1
+        with engine.begin() as conn:
+            n_steps, n_est = _analyze_device(conn, dev, states.get(dev.device_id), cfg)
+        report.steps += n_steps
+        report.estimates += n_est
+        if n_steps == 0:
+            report.skipped[dev.device_id] = "no complete step since the last run"
+    report.seconds = time.perf_counter() - started
+    return report
+
+
+def latest_health(engine: Engine, device_id: str) -> dict[str, dict[str, Any]]:
+    """Newest estimate of every key of a device, in the contract's shape plus extras.
+
+    Each value is ``{"value", "stderr", "n", "reliable", "at", "note"}``; keys whose newest
+    rows hold no value (the data could not support one) fall back to their newest valued row.
+    """
+    e = store.estimates
+    newest = (
+        sa.select(e.c.key, sa.func.max(e.c.at_ms).label("at_ms"))
+        .where(e.c.device_id == device_id, e.c.value.is_not(None))
+        .group_by(e.c.key)
+        .subquery()
+    )
+    q = (
+        sa.select(e.c.key, e.c.at_ms, e.c.value, e.c.stderr, e.c.n, e.c.reliable, e.c.note)
+        .join(
+            newest,
+            sa.and_(e.c.key == newest.c.key, e.c.at_ms == newest.c.at_ms),
+        )
+        .where(e.c.device_id == device_id)
+    )
+    with engine.connect() as conn:
+        rows = conn.execute(q).all()
+    return {r.key: _row_dict(r) for r in sorted(rows, key=lambda r: str(r.key))}
+
+
+def estimate_history(
+    engine: Engine,
+    device_id: str,
+    key: str,
+    start_ms: int | None = None,
+    end_ms: int | None = None,
+) -> list[dict[str, Any]]:
+    """Stored estimates of one key, oldest first (``start_ms`` inclusive, ``end_ms`` exclusive)."""
+    e = store.estimates
+    q = sa.select(e.c.key, e.c.at_ms, e.c.value, e.c.stderr, e.c.n, e.c.reliable, e.c.note).where(
+        e.c.device_id == device_id, e.c.key == key
+    )
+    if start_ms is not None:
+        q = q.where(e.c.at_ms >= start_ms)
+    if end_ms is not None:
+        q = q.where(e.c.at_ms < end_ms)
+    with engine.connect() as conn:
+        rows = conn.execute(q.order_by(e.c.at_ms)).all()
+    return [_row_dict(r) | {"at_ms": int(r.at_ms)} for r in rows]
+
+
+def _row_dict(r: Any) -> dict[str, Any]:
+    return {
+        "value": r.value,
+        "stderr": r.stderr,
+        "n": int(r.n),
+        "reliable": bool(r.reliable),
+        "at": _rfc3339(int(r.at_ms)),
+        "note": r.note,
+    }
+
+
+def _rfc3339(ms: int) -> str:
+    return datetime.fromtimestamp(ms / 1000.0, tz=UTC).isoformat(timespec="milliseconds")[:-6] + "Z"
+
+
+# ---------------------------------------------------------------------------
+# Per device
+# ---------------------------------------------------------------------------
+
+
+@dataclass
+class _Data:
+    ts: np.ndarray[Any, np.dtype[np.int64]]
+    t: FloatArray
+    tcab: FloatArray
+    tc: FloatArray
+    th: FloatArray
+    ta: FloatArray
+    i: FloatArray
+    v: FloatArray
+    door: np.ndarray[Any, np.dtype[np.bool_]]
+
+    def slice(self, start_ms: int, end_ms: int) -> slice:
+        a = int(np.searchsorted(self.ts, start_ms, side="left"))
+        b = int(np.searchsorted(self.ts, end_ms, side="left"))
+        return slice(a, b)
+
+
+def _load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> _Data:
+    r = store.readings
+    q = (
+        sa.select(
+            r.c.ts_ms,
+            r.c.t_cabinet,
+            r.c.t_cold,
+            r.c.t_hot,
+            r.c.t_ambient,
+            r.c.current,
+            r.c.voltage,
+            r.c.door_open,
+        )
+        .where(r.c.device_id == device_id, r.c.ts_ms >= start_ms, r.c.ts_ms < end_ms)
+        .order_by(r.c.ts_ms)
+    )
+    rows = conn.execute(q).all()
+    if not rows:
+        arr = np.zeros((0, 8))
+    else:
+        arr = np.array(
+            [tuple(np.nan if x is None else x for x in row) for row in rows], dtype=np.float64
+        )
+    ts = arr[:, 0].astype(np.int64)
+    return _Data(
+        ts=ts,
+        t=(ts - start_ms) / 1000.0,
+        tcab=arr[:, 1] + T0,
+        tc=arr[:, 2] + T0,
+        th=arr[:, 3] + T0,
+        ta=arr[:, 4] + T0,
+        i=arr[:, 5],
+        v=arr[:, 6],
+        door=np.nan_to_num(arr[:, 7]) > 0.5,
+    )
+
+
+def _priors(module: Any, cfg: AnalysisSettings) -> physics.ModuleParameters | None:
+    if not isinstance(module, dict):
+        return None
+    try:
+        params = physics.parameters_from_ratings(
+            float(module["i_max_a"]),
+            float(module["v_max_v"]),
+            float(module["dt_max_k"]),
+            float(module.get("t_hot_rated_c") or cfg.default_t_hot_rated_c) + T0,
+            q_max=None if module.get("q_max_w") is None else float(module["q_max_w"]),
+            n_couples=None if module.get("couples") is None else int(module["couples"]),
+        )
+        count = int(module.get("count") or 1)
+        # Several modules in one unit are wired in series (common practice, no source).
+        return physics.modules_in_series(params, count) if count > 1 else params
+    except (KeyError, TypeError, ValueError, PhysicsError):
+        return None
+
+
+class _Rows:
+    """Estimate rows collected for one device, written in one statement."""
+
+    def __init__(self, device_id: str) -> None:
+        self.device_id = device_id
+        self.rows: list[dict[str, Any]] = []
+
+    def add(
+        self,
+        key: str,
+        at_ms: int,
+        value: float | None,
+        stderr: float | None,
+        n: int,
+        reliable: bool = True,
+        note: str | None = None,
+    ) -> None:
+        if value is not None and not math.isfinite(value):
+            return
+        if stderr is not None and not math.isfinite(stderr):
+            stderr = None
+        self.rows.append(
+            {
+                "device_id": self.device_id,
+                "key": key,
+                "at_ms": at_ms,
+                "value": value,
+                "stderr": stderr,
+                "n": int(n),
+                "reliable": bool(reliable),
+                "note": note,
+            }
+        )
+
+    def est(self, key: str, at_ms: int, e: dg.Estimate) -> None:
+        self.add(key, at_ms, e.value, e.stderr, e.n, e.reliable, e.note)
+
+
+def _analyze_device(
+    conn: Connection, dev: Any, saved: tuple[int, dict[str, Any]] | None, cfg: AnalysisSettings
+) -> tuple[int, int]:
+    step = cfg.step_s * 1000
+    window = cfg.window_s * 1000
+    last = int(dev.last_reading_ms)
+    if saved is None:
+        first = conn.execute(
+            sa.select(sa.func.min(store.readings.c.ts_ms)).where(
+                store.readings.c.device_id == dev.device_id
+            )
+        ).scalar()
+        if first is None:
+            return 0, 0
+        done = int(first) // step * step
+        state: dict[str, Any] = {}
+    else:
+        done, state = saved
+    end = last // step * step
+    if end <= done:
+        return 0, 0
+    lookback = max(window, cfg.thermal_window_s * 1000) + cfg.margin_s * 1000
+    data = _load(conn, dev.device_id, done - lookback, end)
+    rows = _Rows(dev.device_id)
+    prior = _priors(dev.module, cfg)
+    cabinet = dev.cabinet if isinstance(dev.cabinet, dict) else {}
+    setpoint_c = float(cabinet.get("setpoint_c") or cfg.default_setpoint_c)
+    steps = 0
+    for b in range(done + step, end + 1, step):
+        steps += 1
+        if b % window == 0:
+            _fit_window(data, b, rows, state, prior, cfg)
+        if b % (cfg.daily_s * 1000) == 0:
+            _daily(b, rows, state, prior, setpoint_c, cfg)
+        _hourly(data, b, rows, state, cfg)
+    _write(conn, dev.device_id, rows.rows, end, state)
+    return steps, len(rows.rows)
+
+
+def _write(
+    conn: Connection, device_id: str, rows: list[dict[str, Any]], done: int, state: dict[str, Any]
+) -> None:
+    dialect = conn.dialect.name
+    ins: Any = (postgresql.insert if dialect == "postgresql" else sqlite.insert)(store.estimates)
+    if rows:
+        conn.execute(ins.on_conflict_do_nothing(index_elements=["device_id", "key", "at_ms"]), rows)
+    st = store.analysis_state
+    values = {"done_ms": done, "state": state, "updated_ms": store.now_ms()}
+    upd = conn.execute(st.update().where(st.c.device_id == device_id).values(**values))
+    if upd.rowcount == 0:
+        conn.execute(st.insert().values(device_id=device_id, **values))
+
+
+def _flags(data: _Data, sl: slice, cfg: AnalysisSettings) -> dg.SampleFlags:
+    return dg.flag_samples(
+        data.t[sl], data.tcab[sl], data.tc[sl], data.th[sl], data.ta[sl], data.i[sl],
+        data.v[sl], data.door[sl], on_current=cfg.on_current,
+    )  # fmt: skip
+
+
+def _fit_window(
+    data: _Data,
+    b: int,
+    rows: _Rows,
+    state: dict[str, Any],
+    prior: physics.ModuleParameters | None,
+    cfg: AnalysisSettings,
+) -> None:
+    window = cfg.window_s * 1000
+    thermal_window = max(cfg.thermal_window_s * 1000, window)
+    full = data.slice(b - thermal_window - cfg.margin_s * 1000, b)
+    fl_all = _flags(data, full, cfg)
+    off_th = int(np.searchsorted(data.ts[full], b - thermal_window))
+    offset = int(np.searchsorted(data.ts[full], b - window))
+    w = slice(full.start + offset, full.stop)
+    wt = slice(full.start + off_th, full.stop)
+    fl = dg.SampleFlags(
+        fl_all.usable[offset:], fl_all.on[offset:], fl_all.steady[offset:], fl_all.counts
+    )
+    usable_th = fl_all.usable[off_th:]
+    n = w.stop - w.start
+    if n < 10:
+        return
+    t, tcab, tc, th, ta = data.t[w], data.tcab[w], data.tc[w], data.th[w], data.ta[w]
+    i, v = data.i[w], data.v[w]
+    dt = th - tc
+    tm = 0.5 * (tc + th)
+    usable = fl.usable
+    off = usable & ~fl.on
+    floating = dg.detect_floating_driver(v[off], dt[off])
+    switch_offs = int(np.sum(fl.on[:-1] & ~fl.on[1:]))
+    excluded = int(n - usable.sum())
+    rows.add("quality.samples", b, float(usable.sum()), None, n)
+    rows.add("quality.left_out", b, float(excluded), None, n)
+    for reason in ("door", "sensor_fault", "missing"):
+        # counts cover the look-back too; report the share inside the window
+        rows.add(f"quality.left_out_{reason}", b, float(fl_all.counts[reason]), None, n)
+    rows.add("quality.switch_offs", b, float(switch_offs), None, n)
+    rows.add("quality.driver_floating", b, 1.0 if floating else 0.0, None, n)
+
+    # --- electrical ---
+    e_prior = (prior.resistance, prior.seebeck, 0.15) if prior is not None else None
+    try:
+        el = dg.fit_electrical(
+            i, v, tc, th, usable, floating=floating, on_current=cfg.on_current,
+            alpha=cfg.alpha, beta=cfg.beta, prior=e_prior,
+        )  # fmt: skip
+    except PhysicsError as exc:
+        note = getattr(exc, "reason", str(exc))
+        rows.add("module.resistance_25c_ohm", b, None, None, n, False, note)
+        return
+    on = usable & fl.on
+    tm_on = float(np.mean(tm[on]))
+    f_r = 1.0 + cfg.alpha * (tm_on - T_25C_K)
+    f_s = 1.0 + cfg.beta * (tm_on - T_25C_K)
+    se_r, se_s = (float(np.sqrt(max(x, 0.0))) for x in np.diag(el.cov))
+    n_el = el.n_on + el.n_off
+    r_note = None if el.r_reliable else el.note
+    rows.add("module.resistance_25c_ohm", b, el.r25, se_r, n_el, el.r_reliable, r_note)
+    rows.add("module.resistance_ohm", b, el.r25 * f_r, se_r * f_r, n_el, el.r_reliable, r_note)
+    rows.add("module.seebeck_25c_v_per_k", b, el.s25, se_s, n_el, el.reliable, el.note)
+    rows.add("module.seebeck_v_per_k", b, el.s25 * f_s, se_s * f_s, n_el, el.reliable, el.note)
+    if floating:
+        s_steps, _ = dg.harman_steps(t, i, v, tc, th, usable, on_current=cfg.on_current)
+        if s_steps.size >= 3:
+            rows.add(
+                "module.seebeck_step_v_per_k", b, float(np.median(s_steps)),
+                float(np.std(s_steps, ddof=1) / math.sqrt(s_steps.size)), int(s_steps.size),
+            )  # fmt: skip
+    if el.r_reliable:
+        _track(rows, state, "r25", "module.resistance_25c", b, el.r25, cfg.r25_flag_pct, 0.003, cfg)
+
+    # --- thermal ---
+    tm_th = 0.5 * (data.tc[wt] + data.th[wt])
+    s_t = el.s25 * (1.0 + cfg.beta * (tm_th - T_25C_K))
+    r_t = el.r25 * (1.0 + cfg.alpha * (tm_th - T_25C_K))
+    if prior is not None:
+        k0, k_rel = prior.conductance, 0.3
+    else:
+        k0 = el.s25**2 * T_25C_K / (el.r25 * dg.TYPICAL_MODULE_ZT)
+        k_rel = 0.5
+    state["params"] = {"s25": el.s25, "r25": el.r25, "k": state.get("params", {}).get("k", k0)}
+    state["params"]["cov_rs"] = el.cov.tolist()
+    try:
+        th_fit = dg.fit_thermal(
+            data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
+            s_t, r_t, usable_th, k0, k_rel, on_current=cfg.on_current,
+        )  # fmt: skip
+    except PhysicsError as exc:
+        rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))
+        return
+    sd = th_fit.stderrs
+    ns = th_fit.n_samples
+    k_note = None if th_fit.k_from_data else th_fit.note
+    rows.add("module.conductance_w_per_k", b, th_fit.k, sd["k"], ns, th_fit.k_from_data, k_note)
+    state["params"].update(
+        {"k": th_fit.k, "k_sd": sd["k"], "c_hot": max(th_fit.c_hot, 0.0), "ua": th_fit.ua,
+         "q_int": th_fit.q_internal, "r_cold": 1.0 / th_fit.g_cold, "r_hot": 1.0 / th_fit.g_hot,
+         "i_seen": float(np.max(i[usable])) if usable.any() else 0.0}
+    )  # fmt: skip
+    cov3 = np.zeros((3, 3))
+    cov3[0, 0], cov3[1, 1] = el.cov[1, 1], el.cov[0, 0]
+    cov3[0, 1] = cov3[1, 0] = el.cov[0, 1]
+    cov3[2, 2] = sd["k"] ** 2
+    s_m, r_m = el.s25 * f_s, el.r25 * f_r
+    z_val, z_se = dg.propagate(
+        lambda p: float(p[0] ** 2 / (p[1] * p[2])), np.array([s_m, r_m, th_fit.k]), cov3
+    )
+    rows.add("module.z_per_k", b, z_val, z_se, ns, th_fit.k_from_data, k_note)
+    rows.add("module.zt", b, z_val * tm_on, z_se * tm_on, ns, th_fit.k_from_data, k_note)
+    if off.any():
+        rows.add("module.off_leak_w", b, th_fit.k * float(np.mean(dt[off])), None, int(off.sum()))
+    ua_note = th_fit.note if not th_fit.ua_reliable else None
+    rows.add("cabinet.ua_w_per_k", b, th_fit.ua, sd["ua"], ns, th_fit.ua_reliable, ua_note)
+    rows.add("cabinet.internal_load_w", b, th_fit.q_internal, sd["q_internal"], ns)
+    rows.add(
+        "cabinet.heat_capacity_j_per_k", b, th_fit.c, sd["c"], ns, th_fit.c_reliable,
+        None if th_fit.c_reliable else "heat capacity poorly determined in this window",
+    )  # fmt: skip
+    last_hour = usable & (t >= t[-1] - 3600.0)
+    if last_hour.any():
+        d_amb = float(np.mean(ta[last_hour] - tcab[last_hour]))
+        rows.add(
+            "cabinet.heat_leak_w", b, th_fit.ua * d_amb, sd["ua"] * abs(d_amb),
+            int(last_hour.sum()), th_fit.ua_reliable, ua_note,
+        )  # fmt: skip
+    g_c, g_h = th_fit.g_cold, th_fit.g_hot
+    # Probe offsets shift the small temperature differences themselves (see
+    # diagnostics.hot_side_resistance_ratio); add them to the fit's error.
+    rise_c = float(np.mean((data.tcab[wt] - data.tc[wt])[usable_th]))
+    rise_h = float(np.mean((data.th[wt] - data.ta[wt])[usable_th]))
+    for key, g, sd_g, rise in (
+        ("cold_side.resistance_k_per_w", g_c, sd["g_cold"], rise_c),
+        ("hot_side.resistance_fit_k_per_w", g_h, sd["g_hot"], rise_h),
+    ):
+        se = math.hypot(sd_g / g**2, (1.0 / g) * cfg.probe_offset_k / max(abs(rise), 1e-9))
+        ok = se < 0.2 / g
+        note = None if ok else f"only {rise:.1f} K across this path: probe offsets dominate"
+        rows.add(key, b, 1.0 / g, se, ns, ok, note)
+    if th_fit.ua_reliable:
+        _track(rows, state, "ua", "cabinet.ua", b, th_fit.ua, cfg.ua_flag_pct, 0.03, cfg)
+
+    # --- performance now ---
+    pick = fl.steady & fl.on & (t >= t[-1] - 3600.0)
+    if not pick.any():
+        pick = fl.steady & fl.on
+    if not pick.any():
+        pick = on
+    if pick.any():
+        try:
+            perf = dg.performance_now(
+                float(np.mean(i[pick])), float(np.mean(tc[pick])), float(np.mean(th[pick])),
+                el.s25, el.r25, th_fit.k, cov3, int(pick.sum()), alpha=cfg.alpha, beta=cfg.beta,
+            )  # fmt: skip
+        except PhysicsError:
+            return
+        for name in (
+            "cooling_w", "input_power_w", "cop", "cop_max", "current_for_best_cop_a", "carnot_cop"
+        ):  # fmt: skip
+            rows.est(f"performance.{name}", b, getattr(perf, name))
+
+
+def _hourly(data: _Data, b: int, rows: _Rows, state: dict[str, Any], cfg: AnalysisSettings) -> None:
+    params = state.get("params")
+    if not params or "k" not in params or "c_hot" not in params:
+        return
+    step = cfg.step_s * 1000
+    full = data.slice(b - step - cfg.margin_s * 1000, b)
+    fl = _flags(data, full, cfg)
+    offset = int(np.searchsorted(data.ts[full], b - step))
+    w = slice(full.start + offset, full.stop)
+    if w.stop - w.start < 10:
+        return
+    tm = 0.5 * (data.tc[w] + data.th[w])
+    s = params["s25"] * (1.0 + cfg.beta * (tm - T_25C_K))
+    r = params["r25"] * (1.0 + cfg.alpha * (tm - T_25C_K))
+    try:
+        est = dg.hot_side_resistance_ratio(
+            data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r, params["k"],
+            fl.usable[offset:], c_hot=params["c_hot"], probe_offset_k=cfg.probe_offset_k,
+        )  # fmt: skip
+    except PhysicsError:
+        return
+    rows.est("hot_side.resistance_k_per_w", b, est)
+    if not est.reliable:
+        return
+    _track(rows, state, "rhot", "hot_side.resistance", b, est.value, cfg.r_hot_flag_pct, 0.03, cfg)
+
+
+def _track(
+    rows: _Rows,
+    state: dict[str, Any],
+    name: str,
+    prefix: str,
+    b: int,
+    value: float,
+    flag_pct: float,
+    min_rel_spread: float,
+    cfg: AnalysisSettings,
+) -> None:
+    """Append a value to its series and emit baseline, change, CUSUM and flag estimates."""
+    series = state.setdefault("series", {}).setdefault(name, [])
+    first = state.setdefault("first", {}).setdefault(name, b)
+    series.append([b, value])
+    horizon = b - int(cfg.trend_days * MS_DAY)
+    baseline_end = first + int(cfg.baseline_days * MS_DAY)
+    while series and series[0][0] < horizon and series[0][0] > baseline_end:
+        series.pop(0)
+    bases = state.setdefault("baseline", {})
+    if name not in bases:
+        if b < baseline_end:
+            return
+        pool = np.array([x for at, x in series if at <= baseline_end])
+        if pool.size == 0:
+            return
+        bl = trends.baseline(pool, min_rel_spread)
+        bases[name] = {"center": bl.center, "spread": bl.spread, "n": bl.n}
+        # baseline values are no longer needed in the series beyond the trend horizon
+    bl_d = bases[name]
+    center, spread = float(bl_d["center"]), float(bl_d["spread"])
+    state["series"][name] = [p for p in series if p[0] >= horizon]
+    recent_from = b - (cfg.step_s * 1000 if name == "rhot" else MS_DAY)
+    recent = float(np.median([x for at, x in state["series"][name] if at > recent_from]))
+    change = trends.percent_change(recent, center)
+    cus = state.setdefault("cusum", {})
+    c_new = trends.cusum_update(
+        float(cus.get(name, 0.0)), value, center, spread, cfg.cusum_allowance
+    )
+    cus[name] = c_new
+    n_base = int(bl_d["n"])
+    rows.add(f"{prefix}.baseline", b, center, spread / math.sqrt(max(n_base, 1)), n_base)
+    rows.add(f"{prefix}.change_pct", b, change, 100.0 * spread / center, n_base)
+    rows.add(f"{prefix}.cusum", b, c_new, None, n_base)
+    rows.add(f"{prefix}.flag", b, 1.0 if change >= flag_pct else 0.0, None, n_base)
+
+
+def _daily(
+    b: int,
+    rows: _Rows,
+    state: dict[str, Any],
+    prior: physics.ModuleParameters | None,
+    setpoint_c: float,
+    cfg: AnalysisSettings,
+) -> None:
+    bases = state.get("baseline", {})
+    for name, prefix in (
+        ("r25", "module.resistance_25c"), ("ua", "cabinet.ua"), ("rhot", "hot_side.resistance")
+    ):  # fmt: skip
+        series = state.get("series", {}).get(name)
+        if name not in bases or not series:
+            continue
+        center = float(bases[name]["center"])
+        arr = np.array(series, dtype=np.float64)
+        day = np.floor(arr[:, 0] / MS_DAY)
+        days = np.unique(day)
+        med = np.array([np.median(arr[day == d, 1]) for d in days])
+        try:
+            tr = trends.theil_sen_trend(days, 100.0 * (med / center - 1.0), min_points=7)
+        except PhysicsError:
+            continue
+        half = 0.5 * (tr.high - tr.low) * 30.0
+        key = f"{prefix}.slope_pct_per_30d"
+        rows.add(key, b, tr.slope * 30.0, half / 1.96, tr.n, note="95 % CI in _low/_high")
+        rows.add(f"{key}_low", b, tr.low * 30.0, None, tr.n)
+        rows.add(f"{key}_high", b, tr.high * 30.0, None, tr.n)
+        if name == "r25":
+            change = 100.0 * (float(med[-1]) / center - 1.0)
+            left = trends.days_to_limit(change, tr.slope, cfg.wear_limit_pct)
+            rows.add(
+                "module.days_to_wear_limit", b, left, None, tr.n,
+                note=f"wear limit +{cfg.wear_limit_pct:g} % on R25 (common practice, no source)",
+            )  # fmt: skip
+    p = state.get("params", {})
+    if "ua" not in p:
+        return
+    i_max = prior_i = None
+    v_max = None
+    if prior is not None:
+        # Imax = S·Tc/R at ΔTmax is what the ratings give; recompute from the prior module.
+        rt = physics.ratings_from_parameters(prior, cfg.default_t_hot_rated_c + T0)
+        prior_i, v_max = rt.i_max, rt.v_max
+    i_max = prior_i if prior_i is not None else float(p.get("i_seen", 0.0))
+    if i_max <= 0.0:
+        return
+    try:
+        cap = dg.setpoint_capacity(
+            setpoint_c + T0, cfg.design_ambient_c + T0, p["s25"], p["r25"], p["k"], p["r_hot"],
+            p["r_cold"], p["ua"], i_max, max_voltage=v_max, alpha=cfg.alpha, beta=cfg.beta,
+        )  # fmt: skip
+    except PhysicsError as exc:
+        rows.add("capacity.margin_w", b, None, None, 0, False, str(exc))
+        return
+    note = (
+        f"setpoint {setpoint_c:g} °C at design ambient {cfg.design_ambient_c:g} °C, "
+        f"drive up to {i_max:.2f} A" + ("" if prior_i is not None else " (largest current seen)")
+    )
+    rows.add("capacity.margin_w", b, cap.margin, None, 1, note=note)
+    rows.add("capacity.holdable", b, 1.0 if cap.holdable else 0.0, None, 1, note=note)
+    rows.add("capacity.max_cooling_w", b, cap.max_cooling, None, 1)
+    rows.add("capacity.heat_load_w", b, cap.heat_load, None, 1)

@@ -173,7 +173,10 @@ def _check_balances(op: hp.OperatingPoint, ta: float, q_int: float, s: float, r:
     assert op.qh == pytest.approx(op.qc + op.power, rel=1e-12)
     assert op.voltage == pytest.approx(s * (op.th - op.tc) + op.current * r, rel=1e-12)
     assert op.qc == pytest.approx(ph.cold_side_heat(op.current, op.tc, op.th, s, r, k), rel=1e-12)
-    assert op.cop <= ph.carnot_cop(op.tc, op.th)
+    # The Carnot bound applies while the module pumps heat uphill; at a tiny current with an
+    # internal load the cold face can end up warmer than the hot face, where it has no meaning.
+    if op.th > op.tc and op.qc > 0:
+        assert op.cop <= ph.carnot_cop(op.tc, op.th)
 
 
 @pytest.mark.parametrize("current", [0.5, 2.0, 4.0, 6.0])

@@ -12,6 +12,7 @@ from fastapi.responses import FileResponse, JSONResponse, Response
 from prometheus_client import CONTENT_TYPE_LATEST, REGISTRY, generate_latest
 from sqlalchemy.engine import Engine
 
+from tecfleet.analytics import runner
 from tecfleet.api import queries
 from tecfleet.api.auth import require
 from tecfleet.api.schemas import DeviceDetail, DeviceIn, DeviceOut, Page, ReadingOut, RejectOut
@@ -26,6 +27,21 @@ DEVICE_ID = PathParam(pattern=r"^[A-Za-z0-9_.\-]{1,64}$")
 Limit = Annotated[int, Query(ge=1, le=5000)]
 
 ReadyCheck = Callable[[], tuple[bool, str]]
+
+
+def _time_bounds(start: str | None, end: str | None) -> dict[str, int | None]:
+    bounds: dict[str, int | None] = {}
+    for name, text in (("start", start), ("end", end)):
+        if text is None:
+            bounds[name] = None
+            continue
+        try:
+            bounds[name] = rfc3339_to_ms(text)
+        except ValueError as exc:
+            raise HTTPException(
+                422, [{"loc": ["query", name], "msg": str(exc), "type": "value_error"}]
+            ) from exc
+    return bounds
 
 
 def create_app(
@@ -101,21 +117,32 @@ def create_app(
         limit: Limit = 1000,
         cursor: str | None = None,
     ) -> dict[str, Any]:
-        bounds: dict[str, int | None] = {}
-        for name, text in (("start", start), ("end", end)):
-            if text is None:
-                bounds[name] = None
-                continue
-            try:
-                bounds[name] = rfc3339_to_ms(text)
-            except ValueError as exc:
-                raise HTTPException(
-                    422, [{"loc": ["query", name], "msg": str(exc), "type": "value_error"}]
-                ) from exc
+        bounds = _time_bounds(start, end)
         items, next_cursor = queries.list_readings(
             engine, device_id, bounds["start"], bounds["end"], limit, cursor
         )
         return {"items": items, "next_cursor": next_cursor}
+
+    @app.get("/v1/devices/{device_id}/health", dependencies=[reader])
+    def device_health(device_id: Annotated[str, DEVICE_ID]) -> dict[str, Any]:
+        """Newest estimate of every key: ``{"value", "stderr", "n", "reliable", "at", "note"}``."""
+        if not queries.device_exists(engine, device_id):
+            raise NotFoundError(f"device {device_id!r} is not known")
+        return dict(runner.latest_health(engine, device_id))
+
+    @app.get("/v1/devices/{device_id}/estimates/{key}", dependencies=[reader])
+    def estimate_history(
+        device_id: Annotated[str, DEVICE_ID],
+        key: str,
+        start: str | None = None,
+        end: str | None = None,
+    ) -> dict[str, Any]:
+        """History of one estimate key, oldest first."""
+        if not queries.device_exists(engine, device_id):
+            raise NotFoundError(f"device {device_id!r} is not known")
+        bounds = _time_bounds(start, end)
+        items = runner.estimate_history(engine, device_id, key, bounds["start"], bounds["end"])
+        return {"items": items, "next_cursor": None}
 
     @app.get("/v1/rejects", response_model=Page[RejectOut], dependencies=[reader])
     def rejects_list(limit: Limit = 100, cursor: str | None = None) -> dict[str, Any]:

@@ -141,7 +141,7 @@ def cmd_analyze(args: argparse.Namespace) -> int:
     from tecfleet.analytics.runner import analyze
 
     settings = _settings(args)
-    report = analyze(_engine(settings), device_id=args.device, settings=settings)
+    report = analyze(_engine(settings), device_id=args.device)
     print(report, flush=True)
     return 0
 

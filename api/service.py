@@ -110,6 +110,6 @@ def analysis_round(settings: Settings, engine: Engine) -> Callable[[], Any]:
     from tecfleet.analytics import runner
 
     def round_() -> Any:
-        return runner.analyze(engine, settings=settings)
+        return runner.analyze(engine)
 
     return round_

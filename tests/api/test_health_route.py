@@ -12,20 +12,7 @@ from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
 from tecfleet.ingest import store
 from tests.analytics.synthetic import Truth, simulate
-
-CONTRACT_KEYS = (
-    "module.resistance_ohm",
-    "module.resistance_25c_ohm",
-    "module.seebeck_v_per_k",
-    "module.conductance_w_per_k",
-    "module.zt",
-    "cabinet.ua_w_per_k",
-    "cabinet.heat_leak_w",
-    "hot_side.resistance_k_per_w",
-    "performance.cop",
-    "performance.cop_max",
-    "performance.cooling_w",
-)
+from tests.analytics.test_runner import CONTRACT_KEYS
 
 
 def test_health_has_every_contract_key_after_analysis(sqlite_url: str) -> None:

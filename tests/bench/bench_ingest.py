@@ -137,50 +137,8 @@ def ingester_rate(port: int, db_url: str, messages: list[tuple[str, bytes]], n_r
     return stored / elapsed
 
 
-def raw_sqlite_rate(path: Path, data: list[dict[str, Any]]) -> float:
-    engine = store.make_engine(f"sqlite:///{path}")
-    store.migrate(engine)
-    store.store_batch(engine, [], [])
-    with engine.begin() as c:
-        c.execute(
-            store.devices.insert(),
-            [{"device_id": d, "readings": 0} for d in sorted({r["device"] for r in data})],
-        )
-    engine.dispose()
-    connection = sqlite3.connect(path)
-    connection.execute("PRAGMA journal_mode=WAL")
-    connection.execute("PRAGMA synchronous=FULL")
-    tuples = [
-        (
-            r["device"],
-            int(r["ts"] * 1000),
-            r["seq"],
-            r["t_cabinet"],
-            r["t_cold"],
-            r["t_hot"],
-            r["t_ambient"],
-            r["current"],
-            r["voltage"],
-            0,
-        )
-        for r in data
-    ]
-    sql = (
-        "INSERT INTO readings (device_id, ts_ms, seq, t_cabinet, t_cold, t_hot, t_ambient,"
-        " current, voltage, received_ms) VALUES (?,?,?,?,?,?,?,?,?,?)"
-    )
-    start = time.perf_counter()
-    for i in range(0, len(tuples), 1000):
-        connection.executemany(sql, tuples[i : i + 1000])
-        connection.commit()
-    elapsed = time.perf_counter() - start
-    connection.close()
-    return len(tuples) / elapsed
-
-
-def raw_pg_rate(url: str, data: list[dict[str, Any]]) -> float:
-    import psycopg
-
+def _prepare(url: str, data: list[dict[str, Any]]) -> list[tuple[Any, ...]]:
+    """Create the schema and the devices, and return the rows as driver tuples."""
     engine = store.make_engine(url)
     store.migrate(engine)
     with engine.begin() as c:
@@ -189,34 +147,44 @@ def raw_pg_rate(url: str, data: list[dict[str, Any]]) -> float:
             [{"device_id": d, "readings": 0} for d in sorted({r["device"] for r in data})],
         )
     engine.dispose()
-    dsn = url.replace("postgresql+psycopg://", "postgresql://")
-    tuples = [
-        (
-            r["device"],
-            int(r["ts"] * 1000),
-            r["seq"],
-            r["t_cabinet"],
-            r["t_cold"],
-            r["t_hot"],
-            r["t_ambient"],
-            r["current"],
-            r["voltage"],
-            0,
-        )
+    return [
+        (r["device"], int(r["ts"] * 1000), r["seq"], r["t_cabinet"], r["t_cold"], r["t_hot"],
+         r["t_ambient"], r["current"], r["voltage"], 0)
         for r in data
-    ]
-    sql = (
-        "INSERT INTO readings (device_id, ts_ms, seq, t_cabinet, t_cold, t_hot, t_ambient,"
-        " current, voltage, received_ms) VALUES (%s,%s,%s,%s,%s,%s,%s,%s,%s,%s)"
-    )
-    with psycopg.connect(dsn) as connection:
-        start = time.perf_counter()
-        for i in range(0, len(tuples), 1000):
-            with connection.cursor() as cursor:
-                cursor.executemany(sql, tuples[i : i + 1000])
-            connection.commit()
-        elapsed = time.perf_counter() - start
-    return len(tuples) / elapsed
+    ]  # fmt: skip
+
+
+_RAW_INSERT = (
+    "INSERT INTO readings (device_id, ts_ms, seq, t_cabinet, t_cold, t_hot, t_ambient,"
+    " current, voltage, received_ms) VALUES ({m},{m},{m},{m},{m},{m},{m},{m},{m},{m})"
+)
+
+
+def _time_inserts(connection: Any, sql: str, tuples: list[tuple[Any, ...]]) -> float:
+    start = time.perf_counter()
+    for i in range(0, len(tuples), 1000):
+        connection.cursor().executemany(sql, tuples[i : i + 1000])
+        connection.commit()
+    return len(tuples) / (time.perf_counter() - start)
+
+
+def raw_sqlite_rate(path: Path, data: list[dict[str, Any]]) -> float:
+    tuples = _prepare(f"sqlite:///{path}", data)
+    connection = sqlite3.connect(path)
+    connection.execute("PRAGMA journal_mode=WAL")
+    connection.execute("PRAGMA synchronous=FULL")
+    try:
+        return _time_inserts(connection, _RAW_INSERT.format(m="?"), tuples)
+    finally:
+        connection.close()
+
+
+def raw_pg_rate(url: str, data: list[dict[str, Any]]) -> float:
+    import psycopg
+
+    tuples = _prepare(url, data)
+    with psycopg.connect(url.replace("postgresql+psycopg://", "postgresql://")) as connection:
+        return _time_inserts(connection, _RAW_INSERT.format(m="%s"), tuples)
 
 
 def single_messages(data: list[dict[str, Any]]) -> list[tuple[str, bytes]]:

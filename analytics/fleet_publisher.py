@@ -15,8 +15,8 @@ clock. Modes of ``tecfleet simulate``:
 While behind the wall clock, readings go out in batches (JSON arrays of ``--batch``
 readings per device); once caught up, every reading goes out at once (batch of one, a single
 JSON object). MQTT: QoS 1 on ``<prefix>/<device_id>/telemetry``; retained ``online`` /
-``offline`` on ``<prefix>/<device_id>/status`` (the one publisher connection carries a last
-will on its own ``<prefix>/_simulator/status`` topic).
+``offline`` on ``<prefix>/<device_id>/status`` as devices come and go (one publisher
+connection cannot carry a last will per device, so none is set).
 """
 
 from __future__ import annotations
@@ -114,7 +114,6 @@ class MqttSink(Sink):
             self.client.tls_set()
         self.client.max_inflight_messages_set(max(20, min(max_pending, 100)))
         self.client.max_queued_messages_set(0)
-        self.client.will_set(f"{prefix}/_simulator/status", b"offline", qos=1, retain=True)
         connected = threading.Event()
         self._error: str | None = None
 
@@ -130,7 +129,6 @@ class MqttSink(Sink):
             self.client.loop_stop()
             raise ConnectionError(f"MQTT broker {url} refused or did not answer: {self._error}")
         self._pending: deque[Any] = deque()
-        self.client.publish(f"{prefix}/_simulator/status", b"online", qos=1, retain=True)
 
     def _throttle(self, limit: int) -> None:
         while self._pending and (len(self._pending) > limit or self._pending[0].is_published()):
@@ -158,7 +156,6 @@ class MqttSink(Sink):
 
     def close(self) -> None:
         try:
-            self.client.publish(f"{self.prefix}/_simulator/status", b"offline", qos=1, retain=True)
             self.flush()
         finally:
             self.client.disconnect()

@@ -168,8 +168,9 @@ def test_conductance_leans_on_prior_at_constant_current() -> None:
     # separate them and K must be reported as prior-driven.
     tr = Truth(ambient_swing_k=0.0)
     a = _arrays(simulate(tr, 1.0, seed=5, constant_current=2.0))
+    f = a["flags"]
     a["flags"] = dg.SampleFlags(
-        usable=a["flags"].usable & (a["t"] > 3 * 3600), on=a["flags"].on, steady=a["flags"].steady
+        f.usable & (a["t"] > 3 * 3600), f.on, f.steady, f.missing, f.fault, f.door
     )
     f = _thermal(a, tr)
     assert not f.k_from_data
@@ -235,11 +236,9 @@ def test_performance_consistent_with_ioffe_optimum() -> None:
 def test_propagate_matches_gum_for_a_linear_function() -> None:
     # GUM eq. (13): for f = a·x + b·y, u² = a²·u_x² + b²·u_y² + 2·a·b·u_xy (exact when linear).
     cov = np.array([[0.04, 0.01], [0.01, 0.09]])
-    value, se = dg.propagate(
-        lambda p: 3.0 * float(p[0]) - 2.0 * float(p[1]), np.array([1.0, 2.0]), cov
-    )
-    assert value == pytest.approx(-1.0)
-    assert se == pytest.approx(np.sqrt(9 * 0.04 + 4 * 0.09 - 12 * 0.01), rel=1e-5)
+    value, se = dg.propagate(lambda p: 3.0 * p[:, 0] - 2.0 * p[:, 1], np.array([1.0, 2.0]), cov)
+    assert value[0] == pytest.approx(-1.0)
+    assert se[0] == pytest.approx(np.sqrt(9 * 0.04 + 4 * 0.09 - 12 * 0.01), rel=1e-5)
 
 
 def test_capacity_with_true_parameters() -> None:

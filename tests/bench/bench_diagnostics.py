@@ -1,0 +1,272 @@
+"""Accuracy, detection and speed of the diagnostics against simulated fleets with known truth.
+
+Run: ``python tests/bench/bench_diagnostics.py [--part accuracy,detect,season,speed]``.
+Prints tables; asserts nothing (targets are printed beside the figures). Simulated data only.
+
+Targets: healthy units after 7 days of one-minute data: R25 within 2 %, S within 5 %, UA and
+r_hot within 20 %. A 5 % rise of R25 flagged within 7 days of crossing, a 1.5x UA step within
+2 days, a 3x r_hot step within 2 hours; no flag on healthy units over a 90-day season with the
+ambient swinging about ±10 K; 100 devices x 30 days analysed from scratch in under 60 s.
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import sqlite3
+import sys
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import sqlalchemy as sa
+
+from tecfleet.analytics import runner
+from tecfleet.analytics import simulator as sim
+from tecfleet.ingest import store
+
+START_S = 1_735_689_600.0  # 2025-01-01T00:00Z, a day boundary
+
+
+def build_db(path: Path, spec: sim.FleetSpec, days: float) -> tuple[Any, sim.FleetTruth, float]:
+    """Simulate ``spec`` for ``days`` and bulk-load the readings; returns (engine, truth, s)."""
+    engine = store.make_engine(f"sqlite:///{path}")
+    store.migrate(engine)
+    t0 = time.perf_counter()
+    simulator = sim.Simulator(spec)
+    total = round(days * 86_400.0 / spec.interval_s)
+    ids = spec.device_ids
+    now = store.now_ms()
+    raw = sqlite3.connect(path)
+    raw.executemany(
+        "INSERT INTO devices (device_id, module, cabinet, readings, first_seen_ms) "
+        "VALUES (?, ?, ?, 0, ?)",
+        [
+            (
+                d.device_id,
+                _json(d.registration()["module"]),
+                _json(d.registration()["cabinet"]),
+                now,
+            )
+            for d in spec.devices
+        ],
+    )
+    done = 0
+    last = dict.fromkeys(ids, 0)
+    while done < total:
+        k = min(1440, total - done)
+        c = simulator.run(k)
+        done += k
+        m = c.measured
+        door = c.truth["door_s"] > 0
+        j, i = np.nonzero(c.present)
+        ts = np.round(c.ts[j, i] * 1000.0).astype(np.int64)
+        cols = [m[n][j, i] for n in ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current",
+                                     "voltage", "rh")]  # fmt: skip
+        dev = np.array(ids)[i]
+        rows = zip(
+            dev.tolist(), ts.tolist(), *(col.tolist() for col in cols), door[j, i].tolist(),
+            [now] * len(ts), strict=True,
+        )  # fmt: skip
+        raw.executemany(
+            "INSERT OR IGNORE INTO readings (device_id, ts_ms, t_cabinet, t_cold, t_hot, "
+            "t_ambient, current, voltage, rh, door_open, received_ms) "
+            "VALUES (?,?,?,?,?,?,?,?,?,?,?)",
+            rows,
+        )
+        for d, t in zip(dev.tolist(), ts.tolist(), strict=True):
+            last[d] = max(last[d], t)
+    raw.executemany(
+        "UPDATE devices SET last_reading_ms = ?, readings = "
+        "(SELECT COUNT(*) FROM readings r WHERE r.device_id = devices.device_id) "
+        "WHERE device_id = ?",
+        [(v, d) for d, v in last.items()],
+    )
+    raw.commit()
+    raw.close()
+    return engine, simulator.truth, time.perf_counter() - t0
+
+
+def _json(x: Any) -> str:
+    import json
+
+    return json.dumps(x)
+
+
+def _latest(engine: Any, device: str, key: str) -> tuple[float, bool] | None:
+    h = runner.latest_health(engine, device)
+    if key not in h:
+        return None
+    return float(h[key]["value"]), bool(h[key]["reliable"])
+
+
+def _first_flag(engine: Any, device: str, prefix: str, after_ms: int) -> int | None:
+    for row in runner.estimate_history(engine, device, f"{prefix}.flag", start_ms=after_ms):
+        if row["value"] == 1.0:
+            return int(row["at_ms"])
+    return None
+
+
+def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
+    print(f"\n== Accuracy: healthy units, {days:g} days of one-minute data, seeds {seeds}, "
+          f"{n_dev} devices each (noise, bias, quantisation, doors, loads on) ==")  # fmt: skip
+    checks = (
+        ("R25", "module.resistance_25c_ohm", "r25", 0.02),
+        ("S25", "module.seebeck_25c_v_per_k", "s25", 0.05),
+        ("UA", "cabinet.ua_w_per_k", "ua", 0.20),
+        ("r_hot (1 h)", "hot_side.resistance_k_per_w", "r_hot", 0.20),
+        ("r_hot (24 h fit)", "hot_side.resistance_fit_k_per_w", "r_hot", 0.20),
+        ("r_cold", "cold_side.resistance_k_per_w", "r_cold", 0.20),
+        ("K", "module.conductance_w_per_k", "k", 0.20),
+    )
+    errs: dict[tuple[str, str], list[tuple[float, bool]]] = {}
+    missing: dict[str, int] = {}
+    for seed in seeds:
+        spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
+        with tempfile.TemporaryDirectory() as tmp:
+            engine, truth, _ = build_db(Path(tmp) / "acc.db", spec, days)
+            runner.analyze(engine)
+            end = START_S + days * 86_400.0
+            for d in spec.devices:
+                tp = truth.params_at(d.device_id, end)
+                mode = f"{d.control}/{d.off_voltage}"
+                for name, key, tkey, _tol in checks:
+                    got = _latest(engine, d.device_id, key)
+                    if got is None:
+                        missing[name] = missing.get(name, 0) + 1
+                        continue
+                    rel = got[0] / tp[tkey] - 1.0
+                    errs.setdefault((name, "all"), []).append((rel, got[1]))
+                    errs.setdefault((name, mode), []).append((rel, got[1]))
+            engine.dispose()
+    print(f"{'quantity':18} {'group':26} {'n':>3} {'median|err|':>11} {'p90|err|':>9} "
+          f"{'within':>7} {'target':>7} {'reliable':>8} {'within|rel':>10}")  # fmt: skip
+    for name, _key, _t, tol in checks:
+        for (q, group), vals in sorted(errs.items()):
+            if q != name:
+                continue
+            e = np.abs(np.array([v for v, _ in vals]))
+            rel_ok = np.array([r for _, r in vals])
+            within_rel = float(np.mean(e[rel_ok] <= tol)) if rel_ok.any() else float("nan")
+            print(f"{name:18} {group:26} {e.size:3d} {100 * np.median(e):10.1f}% "
+                  f"{100 * np.percentile(e, 90):8.1f}% {100 * np.mean(e <= tol):6.0f}% "
+                  f"{100 * tol:6.0f}% {100 * rel_ok.mean():7.0f}% "
+                  f"{100 * within_rel:9.0f}%")  # fmt: skip
+    if missing:
+        print("no estimate at the end:", missing)
+
+
+def part_detect(seed: int, n_dev: int, days: float) -> None:
+    print(f"\n== Detection: {n_dev} devices, {days:g} days, seed {seed}, faults wear/leak/fan ==")
+    spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days,
+                            faults="wear:2,leak:2,fan:2")  # fmt: skip
+    # Leak and fan as the targets state them: a 1.5x UA step and a 3x r_hot step.
+    faults = tuple(
+        dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
+    )
+    spec = dataclasses.replace(spec, faults=faults)
+    prefix = {"wear": "module.resistance_25c", "leak": "cabinet.ua", "fan": "hot_side.resistance"}
+    target_h = {"wear": 7 * 24.0, "leak": 48.0, "fan": 2.0}
+    with tempfile.TemporaryDirectory() as tmp:
+        engine, _truth, _ = build_db(Path(tmp) / "det.db", spec, days)
+        t0 = time.perf_counter()
+        runner.analyze(engine)
+        print(f"(analysis {time.perf_counter() - t0:.1f} s)")
+        faulty = set()
+        print(f"{'device':10} {'fault':6} {'from (UTC h)':>12} {'flag delay':>11} {'target':>7}")
+        for f in spec.faults:
+            faulty.add(f.device_id)
+            if f.kind == "wear":
+                # R25 = r0·(1 + (m - 1)·frac): +5 % at frac = 0.05/(m - 1).
+                start = f.start_s + f.ramp_s * 0.05 / (f.magnitude - 1.0)
+            else:
+                start = f.start_s
+            hit = _first_flag(engine, f.device_id, prefix[f.kind], int(f.start_s * 1000))
+            delay = "never" if hit is None else f"{(hit / 1000.0 - start) / 3600.0:9.1f} h"
+            print(f"{f.device_id:10} {f.kind:6} {(start - START_S) / 3600:12.1f} {delay:>11} "
+                  f"{target_h[f.kind]:6.0f}h")  # fmt: skip
+        false = 0
+        healthy = [d.device_id for d in spec.devices if d.device_id not in faulty]
+        for dev in healthy:
+            for p in prefix.values():
+                if _first_flag(engine, dev, p, 0) is not None:
+                    false += 1
+                    print(f"false flag: {dev} {p}")
+        print(f"healthy devices: {len(healthy)}, false flags: {false}")
+        engine.dispose()
+
+
+def part_season(seed: int, n_dev: int, days: float) -> None:
+    print(f"\n== Season: {n_dev} healthy devices, {days:g} days, ambient swinging about ±10 K ==")
+    spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
+    # A slow weather anomaly of 5 K s.d. with a 20-day memory plus a 4 K daily swing gives
+    # excursions of about ±10 K over the season.
+    devs = tuple(
+        dataclasses.replace(d, t_amb_weather_k=5.0, t_amb_tau_h=480.0, t_amb_daily_k=4.0)
+        for d in spec.devices
+    )
+    spec = dataclasses.replace(spec, devices=devs)
+    with tempfile.TemporaryDirectory() as tmp:
+        engine, _truth, _ = build_db(Path(tmp) / "season.db", spec, days)
+        runner.analyze(engine)
+        flags = 0
+        for d in spec.devices:
+            for p in ("module.resistance_25c", "cabinet.ua", "hot_side.resistance"):
+                if _first_flag(engine, d.device_id, p, 0) is not None:
+                    flags += 1
+                    print(f"flag: {d.device_id} {p}")
+            ch = runner.estimate_history(engine, d.device_id, "module.resistance_25c.change_pct")
+            amb = runner.estimate_history(engine, d.device_id, "module.resistance_ohm")
+            if ch and amb:
+                v = np.array([h["value"] for h in ch])
+                r = np.array([h["value"] for h in amb])
+                print(f"{d.device_id}: R swings {100 * (r.max() / r.min() - 1):.1f} %, "
+                      f"R25 change within [{v.min():+.1f}, {v.max():+.1f}] %")  # fmt: skip
+        print(f"flags on healthy units: {flags}")
+        engine.dispose()
+
+
+def part_speed(n_dev: int, days: float) -> None:
+    print(f"\n== Speed: {n_dev} devices x {days:g} days of one-minute data, from scratch ==")
+    spec = sim.random_fleet(n_dev, seed=5, start_s=START_S, days=days)
+    with tempfile.TemporaryDirectory() as tmp:
+        engine, _truth, build_s = build_db(Path(tmp) / "speed.db", spec, days)
+        with engine.connect() as c:
+            n = c.execute(sa.select(sa.func.count()).select_from(store.readings)).scalar()
+        print(f"simulated and stored {n} readings in {build_s:.1f} s (not timed below)")
+        t0 = time.perf_counter()
+        rep = runner.analyze(engine)
+        dt = time.perf_counter() - t0
+        print(f"analyze: {dt:.1f} s for {rep.devices} devices, {rep.steps} steps, "
+              f"{rep.estimates} estimates; target < 60 s")  # fmt: skip
+        t0 = time.perf_counter()
+        rep2 = runner.analyze(engine)
+        print(f"re-run with nothing new: {time.perf_counter() - t0:.2f} s ({rep2.steps} steps)")
+        engine.dispose()
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--part", default="accuracy,detect,speed")
+    ap.add_argument("--seeds", default="1,2,3")
+    ap.add_argument("--devices", type=int, default=8)
+    ap.add_argument("--speed-devices", type=int, default=100)
+    ap.add_argument("--speed-days", type=float, default=30.0)
+    ap.add_argument("--season-days", type=float, default=90.0)
+    args = ap.parse_args(argv)
+    parts = set(args.part.split(","))
+    if "accuracy" in parts:
+        part_accuracy([int(s) for s in args.seeds.split(",")], args.devices, 7.0)
+    if "detect" in parts:
+        part_detect(4, 10, 26.0)
+    if "season" in parts:
+        part_season(6, 4, args.season_days)
+    if "speed" in parts:
+        part_speed(args.speed_devices, args.speed_days)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

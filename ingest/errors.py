@@ -38,3 +38,11 @@ class NotFoundError(TecfleetError):
 
 class BrokerError(TecfleetError):
     """The MQTT broker could not be reached or refused us."""
+
+
+class AlertError(TecfleetError):
+    """An alert rule, threshold override or maintenance window is invalid."""
+
+
+class WebhookError(TecfleetError):
+    """A webhook cannot be registered or delivered (bad URL, refused address, HTTP failure)."""

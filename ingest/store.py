@@ -443,3 +443,107 @@ analysis_state = sa.Table(
     sa.Column("state", sa.JSON, nullable=False),
     sa.Column("updated_ms", sa.BigInteger, nullable=False),
 )
+
+
+# ---------------------------------------------------------------------------
+# Alerts: lifecycle and delivery (migration 0003). Written by tecfleet.analytics.alerts
+# (progress, audit, outbox) and tecfleet.api.notify / alert_routes (delivery, webhooks).
+# ``alert_progress.done_ms`` is the event time up to which alerts are evaluated; ``state``
+# carries each rule's pending/clearing timers so a fresh process continues where it stopped.
+# ``notifications`` is the outbox, written in the same transaction as the alert change.
+# ---------------------------------------------------------------------------
+
+_ALERT_BIGID = sa.BigInteger().with_variant(sa.Integer, "sqlite")
+
+alert_progress = sa.Table(
+    "alert_progress",
+    metadata,
+    sa.Column("device_id", sa.String(64), sa.ForeignKey("devices.device_id"), primary_key=True),
+    sa.Column("done_ms", sa.BigInteger, nullable=False),
+    sa.Column("state", sa.JSON, nullable=False),
+    sa.Column("updated_ms", sa.BigInteger, nullable=False),
+)
+
+alert_audit = sa.Table(
+    "alert_audit",
+    metadata,
+    sa.Column("id", _ALERT_BIGID, primary_key=True),
+    sa.Column("alert_id", _ALERT_BIGID, sa.ForeignKey("alerts.id"), nullable=False, index=True),
+    sa.Column("at_ms", sa.BigInteger, nullable=False),
+    sa.Column("from_state", sa.String(16)),
+    sa.Column("to_state", sa.String(16), nullable=False),
+    sa.Column("severity", sa.String(16), nullable=False),
+    sa.Column("actor", sa.String(200), nullable=False),
+    sa.Column("note", sa.Text),
+)
+
+alert_policies = sa.Table(
+    "alert_policies",
+    metadata,
+    sa.Column("scope", sa.String(16), primary_key=True),
+    sa.Column("name", sa.String(200), primary_key=True),
+    sa.Column("thresholds", sa.JSON, nullable=False),
+    sa.Column("updated_ms", sa.BigInteger, nullable=False),
+)
+
+maintenance_windows = sa.Table(
+    "maintenance_windows",
+    metadata,
+    sa.Column("id", _ALERT_BIGID, primary_key=True),
+    sa.Column("device_id", sa.String(64)),
+    sa.Column("site", sa.String(200)),
+    sa.Column("start_ms", sa.BigInteger, nullable=False),
+    sa.Column("end_ms", sa.BigInteger, nullable=False),
+    sa.Column("reason", sa.Text),
+    sa.Column("created_ms", sa.BigInteger, nullable=False),
+    sa.Column("created_by", sa.String(200)),
+)
+
+notifications = sa.Table(
+    "notifications",
+    metadata,
+    sa.Column("id", _ALERT_BIGID, primary_key=True),
+    sa.Column("created_ms", sa.BigInteger, nullable=False),
+    sa.Column("event_ms", sa.BigInteger, nullable=False),
+    sa.Column("event", sa.String(40), nullable=False),
+    sa.Column("alert_id", _ALERT_BIGID),
+    sa.Column("device_id", sa.String(64)),
+    sa.Column("site", sa.String(200)),
+    sa.Column("kind", sa.String(32)),
+    sa.Column("payload", sa.JSON, nullable=False),
+    sa.Column("state", sa.String(16), nullable=False, index=True),
+    sa.Column("hold_until_ms", sa.BigInteger),
+    sa.Column("mqtt_state", sa.String(16), nullable=False, index=True),
+    sa.Column("group_id", _ALERT_BIGID),
+)
+
+webhooks = sa.Table(
+    "webhooks",
+    metadata,
+    sa.Column("id", _ALERT_BIGID, primary_key=True),
+    sa.Column("url", sa.String(2000), nullable=False),
+    sa.Column("secret", sa.String(200), nullable=False),
+    sa.Column("description", sa.String(200)),
+    sa.Column("created_ms", sa.BigInteger, nullable=False),
+    sa.Column("created_by", sa.String(200)),
+    sa.Column("deleted_ms", sa.BigInteger),
+)
+
+webhook_deliveries = sa.Table(
+    "webhook_deliveries",
+    metadata,
+    sa.Column("id", _ALERT_BIGID, primary_key=True),
+    sa.Column("webhook_id", _ALERT_BIGID, sa.ForeignKey("webhooks.id"), nullable=False),
+    sa.Column("notification_id", _ALERT_BIGID, sa.ForeignKey("notifications.id"), nullable=False),
+    sa.Column("msg_id", sa.String(80), nullable=False),
+    sa.Column("state", sa.String(16), nullable=False),
+    sa.Column("attempts", sa.Integer, nullable=False, server_default="0"),
+    sa.Column("created_ms", sa.BigInteger, nullable=False),
+    sa.Column("next_attempt_ms", sa.BigInteger, nullable=False),
+    sa.Column("last_attempt_ms", sa.BigInteger),
+    sa.Column("last_status", sa.Integer),
+    sa.Column("last_error", sa.Text),
+    sa.Column("delivered_ms", sa.BigInteger),
+    sa.UniqueConstraint("webhook_id", "notification_id"),
+    sa.Index("ix_webhook_deliveries_state_next_attempt_ms", "state", "next_attempt_ms"),
+)

@@ -146,3 +146,23 @@ def test_shared_subscription_splits_the_stream_without_loss(
         pub.close()
         first.stop()
         second.stop()
+
+
+def test_broker_restart_mid_stream_loses_nothing(mosquitto: Mosquitto, db_url: str) -> None:
+    ingester, engine, _ = start_ingester(db_url, mosquitto.url, client_id="tecfleet-restart")
+    try:
+        pub = Publisher(mosquitto.url)
+        for i in range(500):
+            pub.publish("tecfleet/cab-b/telemetry", reading(i))
+        pub.close()
+        mosquitto.stop()
+        time.sleep(2)
+        mosquitto.start()
+        pub = Publisher(mosquitto.url)
+        for i in range(500, 1000):
+            pub.publish("tecfleet/cab-b/telemetry", reading(i))
+        pub.close()
+        assert wait_for(lambda: count_readings(engine) == 1000, 60), count_readings(engine)
+        assert _seqs(engine, "cab-b") == list(range(1000))
+    finally:
+        ingester.stop()

@@ -49,7 +49,6 @@ class EmbeddedBroker:
                 "amqtt.plugins.authentication.AnonymousAuthPlugin": {"allow_anonymous": True},
             },
         }
-        # amqtt logs every packet at INFO; the demo's console is for people.
         # amqtt logs every packet at INFO and each refused MQTT 5 probe at WARNING.
         logging.getLogger("amqtt").setLevel(logging.ERROR)
         logging.getLogger("transitions").setLevel(logging.WARNING)

@@ -414,7 +414,9 @@ def sensor_fault_observations(
         )
     spikes = np.zeros(n, dtype=np.float64)
     spiky_cols = np.zeros(n, dtype=bool)
-    for col in _TEMPS:
+    # Only the slow channels: the module faces really do jump within a minute when the
+    # drive switches on or off.
+    for col in ("t_cabinet", "t_ambient"):
         x = frame[col].to_numpy(np.float64)
         if n < 3:
             break
@@ -434,7 +436,17 @@ def sensor_fault_observations(
     hour_covered = (t - t[0]) >= 3_600_000
     with np.errstate(invalid="ignore"):
         missing = 1.0 - present / expected
-    mark(hour_covered & np.isfinite(missing) & (missing > policy.dropout_fraction), "dropouts")
+    # a gap long enough to be "offline" is that rule's business, not a dropout
+    longest = pd.Series(np.diff(t, prepend=t[0]).astype(np.float64), index=idx)
+    longest_hour = longest.rolling("3600s").max().to_numpy()
+    offline_gap = np.maximum(policy.offline_factor * interval, policy.offline_min_s * 1000)
+    mark(
+        hour_covered
+        & np.isfinite(missing)
+        & (missing > policy.dropout_fraction)
+        & ~(longest_hour > offline_gap),
+        "dropouts",
+    )
     if i_ref is not None and i_ref > 0:
         cur = pd.Series(frame["current"].to_numpy(np.float64), index=idx)
         on_min = cur.rolling(f"{int(policy.impossible_on_s)}s").min().to_numpy()

@@ -55,6 +55,9 @@ def create_app(
     )
     app.state.engine = engine
     app.state.settings = settings
+    from tecfleet.api.alert_routes import router as alert_router
+
+    app.include_router(alert_router)
 
     reader = Depends(require("read"))
     writer = Depends(require("write"))

@@ -1,0 +1,357 @@
+"""Alert rules and lifecycle on a real database, with synthetic faults and simulated healthy
+fleets. Expected values come from the formulas' sources (named at each check), from
+psychrolib and scipy, or are stated as facts of the trade."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+
+import numpy as np
+import psychrolib
+import pytest
+import sqlalchemy as sa
+from scipy.special import logsumexp
+
+from tecfleet.analytics import alerts
+from tecfleet.analytics.simulator import DeviceSpec, FleetSpec, simulate
+from tecfleet.ingest import store
+from tecfleet.ingest.store import Reading
+
+T0 = 1_790_000_000_000  # an arbitrary start, epoch ms
+MIN = 60_000
+
+
+@pytest.fixture
+def engine(sqlite_url: str) -> Iterator[sa.Engine]:
+    e = store.make_engine(sqlite_url)
+    store.migrate(e)
+    yield e
+    e.dispose()
+
+
+def cabinet_series(
+    n: int, *, hot: tuple[int, int] | None = None, hot_c: float = 10.0
+) -> list[Reading]:
+    """Healthy 1-minute readings of a 5 °C cabinet whose channels all wander a little;
+    cabinet at ``hot_c`` (+0.1 K every other minute) for minutes [a, b) of ``hot``."""
+    out = []
+    for i in range(n):
+        wobble = 0.3 * math.sin(i / 17.0)
+        t_cab = 5.0 + wobble
+        if hot is not None and hot[0] <= i < hot[1]:
+            t_cab = hot_c + (0.1 if i % 2 else 0.0)  # a live probe flickers by one step
+        out.append(
+            Reading(
+                "cab-1", T0 + i * MIN, round(t_cab, 2), round(-1.0 + wobble, 2),
+                round(30.0 + 0.5 * math.cos(i / 13.0), 2), round(22.0 + 0.2 * math.sin(i / 29.0), 2),
+                3.0, 8.0, seq=i, rh=45.0,
+            )
+        )  # fmt: skip
+    return out
+
+
+def kinds(changes: list[alerts.AlertChange]) -> list[tuple[str, str]]:
+    return [(c.kind, c.change) for c in changes]
+
+
+# ---------------------------------------------------------------------------
+# Mean kinetic temperature
+# ---------------------------------------------------------------------------
+
+
+def test_mkt_matches_the_usp_formula_computed_with_scipy() -> None:
+    # USP <1079> (Haynes 1971): MKT = (ΔH/R) / −ln(mean(exp(−ΔH/(R·T_i)))), ΔH = 83.144 kJ/mol,
+    # R = 8.3144 J/(mol·K) (from memory). Reference: scipy's logsumexp of the same terms.
+    temps_c = np.array([2.0, 5.0, 8.0, 15.0, 25.0, 4.0])
+    a = 83_144.0 / 8.3144
+    reference_k = -a / (logsumexp(-a / (temps_c + 273.15)) - math.log(temps_c.size))
+    assert alerts.mean_kinetic_temperature(temps_c) == pytest.approx(reference_k - 273.15, abs=1e-9)
+
+
+def test_mkt_of_a_constant_is_that_constant_and_never_below_the_mean() -> None:
+    # Fact of the formula: a constant series gives its own temperature, and since exp is
+    # convex the MKT is at least the arithmetic mean (Jensen; USP <1079> notes MKT ≥ mean).
+    assert alerts.mean_kinetic_temperature([6.0] * 10) == pytest.approx(6.0, abs=1e-9)
+    rng = np.random.default_rng(1)
+    temps = rng.uniform(2.0, 25.0, 500)
+    assert alerts.mean_kinetic_temperature(temps) > float(np.mean(temps))
+
+
+# ---------------------------------------------------------------------------
+# Excursion
+# ---------------------------------------------------------------------------
+
+
+def test_excursion_opens_after_the_delay_and_resolves_with_duration_and_peak(db_url: str) -> None:
+    engine = store.make_engine(db_url)
+    store.migrate(engine)
+    # cabinet at 10 °C for 100 minutes from minute 1500 (medicine band 2-8 °C, WHO; from memory)
+    store.store_batch(engine, cabinet_series(2000, hot=(1500, 1600)))
+    changes = alerts.evaluate(engine)
+    assert kinds(changes) == [("excursion", "opened"), ("excursion", "resolved")]
+    opened, resolved = changes
+    # default delay 30 min (common practice, no source): opens at minute 1530
+    assert opened.at_ms == T0 + 1530 * MIN
+    assert opened.severity == "warning"
+    assert opened.evidence["high_limit_c"] == 8.0
+    assert opened.evidence["peak_c"] == 10.1
+    assert opened.evidence["active_s"] == 30 * 60
+    assert "maker's storage instructions" in opened.evidence["caution"]
+    # MKT evidence over the trailing 24 h equals the formula on the same stored samples
+    frame = store.load_readings(
+        engine, "cab-1", T0 + 1530 * MIN - 86_400_000 + 1, T0 + 1530 * MIN + 1
+    )
+    assert opened.evidence["mkt_c"] == pytest.approx(
+        alerts.mean_kinetic_temperature(frame["t_cabinet"].to_numpy()), abs=1e-3
+    )
+    inside = ((frame["t_cabinet"] >= 2.0) & (frame["t_cabinet"] <= 8.0)).mean() * 100
+    assert opened.evidence["time_in_range_pct"] == pytest.approx(inside, abs=0.01)
+    # back in range at minute 1600, resolved after 30 min clear; lasted 100 min
+    assert resolved.at_ms == T0 + 1630 * MIN
+    assert resolved.evidence["duration_s"] == 100 * 60
+    assert resolved.evidence["peak"] == 10.1
+    assert resolved.summary.startswith("Resolved after 1.7 h")
+    with engine.connect() as conn:
+        row = conn.execute(sa.select(store.alerts)).one()
+        trail = conn.execute(
+            sa.select(store.alert_audit.c.to_state).order_by(store.alert_audit.c.id)
+        )
+        assert [r.to_state for r in trail] == ["open", "resolved"]
+    assert row.state == "resolved" and row.resolved_ms == T0 + 1630 * MIN
+    engine.dispose()
+
+
+def test_short_door_opening_does_not_fire(engine: sa.Engine) -> None:
+    store.store_batch(engine, cabinet_series(600, hot=(300, 320)))  # 20 min < 30 min delay
+    assert alerts.evaluate(engine) == []
+
+
+def test_long_excursion_turns_critical_after_ten_hours(engine: sa.Engine) -> None:
+    # 10 h above 8 °C, the WHO PQS 30-day recorder heat alarm (from memory)
+    store.store_batch(engine, cabinet_series(1500, hot=(100, 1400), hot_c=9.0))
+    changes = alerts.evaluate(engine)
+    assert kinds(changes) == [
+        ("excursion", "opened"), ("excursion", "escalated"), ("excursion", "resolved")
+    ]  # fmt: skip
+    assert changes[1].severity == "critical"
+    assert changes[1].at_ms == T0 + (100 + 600) * MIN
+
+
+def test_food_profile_uses_five_and_eight_degrees(engine: sa.Engine) -> None:
+    # UK FSA advice ≤ 5 °C, 8 °C legal ceiling in England (from memory)
+    alerts.set_policy(engine, "device", "cab-1", {"profile": "food"})
+    store.store_batch(engine, cabinet_series(400, hot=(100, 300), hot_c=6.5))
+    changes = alerts.evaluate(engine)
+    assert kinds(changes)[0] == ("excursion", "opened")
+    assert changes[0].evidence["high_limit_c"] == 5.0
+    assert changes[0].severity == "warning"
+
+
+# ---------------------------------------------------------------------------
+# Lifecycle: incremental, deterministic, restart-safe
+# ---------------------------------------------------------------------------
+
+
+def _alert_rows(engine: sa.Engine) -> list[tuple[object, ...]]:
+    with engine.connect() as conn:
+        rows = conn.execute(sa.select(store.alerts).order_by(store.alerts.c.id)).fetchall()
+    return [
+        (r.kind, r.severity, r.state, r.opened_ms, r.resolved_ms, r.summary, r.reopen_count)
+        for r in rows
+    ]
+
+
+def test_live_in_chunks_equals_backfill_and_restart_adds_nothing(tmp_path: object) -> None:
+    first, second = cabinet_series(2400, hot=(1500, 1600)), cabinet_series(2400, hot=(1800, 1900))
+    data = first[:1700] + second[1700:]
+    urls = [f"sqlite:///{tmp_path}/{name}.db" for name in ("backfill", "live")]
+    back, live = (store.make_engine(u) for u in urls)
+    for e in (back, live):
+        store.migrate(e)
+    store.store_batch(back, data)
+    alerts.evaluate(back)
+    for start in range(0, len(data), 137):
+        store.store_batch(live, data[start : start + 137])
+        alerts.evaluate(live)
+    assert _alert_rows(back) == _alert_rows(live)
+    # the second episode came back within the reopen window: same alert, reopen counted
+    assert len(_alert_rows(back)) == 1 and _alert_rows(back)[0][6] == 1
+    back.dispose()
+    fresh = store.make_engine(urls[0])  # a new process state on the same database
+    assert alerts.evaluate(fresh) == []
+    with fresh.connect() as conn:
+        assert conn.execute(sa.select(sa.func.count()).select_from(store.alerts)).scalar() == 1
+    fresh.dispose()
+    live.dispose()
+
+
+def test_acknowledge_records_who_and_when(engine: sa.Engine) -> None:
+    store.store_batch(engine, cabinet_series(1560, hot=(1500, 1560)))
+    (change,) = alerts.evaluate(engine)
+    row = alerts.acknowledge(engine, change.alert_id, "night-shift", "door left ajar")
+    assert row["state"] == "acknowledged"
+    trail = alerts.audit_trail(engine, change.alert_id)
+    assert [(h["to_state"], h["actor"]) for h in trail] == [
+        ("open", "system"), ("acknowledged", "night-shift")
+    ]  # fmt: skip
+    # still one alert per device and kind as the excursion goes on
+    store.store_batch(engine, cabinet_series(1700, hot=(1500, 1600))[1560:])
+    changes = alerts.evaluate(engine)
+    assert kinds(changes) == [("excursion", "resolved")]
+    assert changes[0].alert_id == change.alert_id
+
+
+# ---------------------------------------------------------------------------
+# Other rules
+# ---------------------------------------------------------------------------
+
+
+def test_offline_gap_opens_at_five_intervals_and_resolves_on_return(engine: sa.Engine) -> None:
+    data = cabinet_series(600)
+    store.store_batch(engine, data[:300] + data[400:])  # 100 minutes silent after minute 299
+    changes = alerts.evaluate(engine)
+    assert kinds(changes) == [("offline", "opened"), ("offline", "resolved")]
+    # usual interval 1 min; 5 × 1 min = 5 min is below the 10-minute floor (common practice)
+    assert changes[0].at_ms == T0 + 299 * MIN + 10 * MIN
+    assert changes[1].at_ms == T0 + 400 * MIN
+
+
+def test_offline_judged_against_the_fleet_and_the_wall_clock(engine: sa.Engine) -> None:
+    store.store_batch(engine, cabinet_series(200))
+    other = [
+        Reading("cab-2", r.ts_ms, 5.0, -1.0, 30.0, 22.0, 3.0, 8.0) for r in cabinet_series(300)
+    ]
+    store.store_batch(engine, other)
+    changes = alerts.evaluate(engine)  # event time: cab-2 runs 100 min past cab-1's last
+    assert [(c.device_id, c.kind, c.change) for c in changes] == [("cab-1", "offline", "opened")]
+    assert changes[0].at_ms == T0 + 199 * MIN + 10 * MIN
+    # live: the wall clock says cab-2 is silent too; same opening time rule
+    changes = alerts.evaluate(engine, now_ms=T0 + 400 * MIN)
+    assert [(c.device_id, c.kind, c.change) for c in changes] == [("cab-2", "offline", "opened")]
+    assert changes[0].at_ms == T0 + 299 * MIN + 10 * MIN
+    assert alerts.evaluate(engine, now_ms=T0 + 401 * MIN) == []
+
+
+def test_over_temperature_with_hysteresis(engine: sa.Engine) -> None:
+    data = cabinet_series(200)
+    hot = [71.0, 72.0] * 5 + [68.0] * 40 + [65.0] * 60  # 68 °C holds (70 - 3 K hysteresis)
+    rows = [
+        Reading(r.device_id, r.ts_ms, r.t_cabinet, r.t_cold, hot[i] if i < len(hot) else r.t_hot,
+                r.t_ambient, r.current, r.voltage, seq=r.seq)
+        for i, r in enumerate(data)
+    ]  # fmt: skip
+    store.store_batch(engine, rows)
+    changes = alerts.evaluate(engine)
+    assert kinds(changes) == [("over_temperature", "opened"), ("over_temperature", "resolved")]
+    # 70 °C warning (common practice, no source) sustained 5 min
+    assert changes[0].at_ms == T0 + 5 * MIN
+    assert changes[0].evidence["peak_c"] == 72.0
+    # held at 68 °C, clears below 67 °C at minute 50, resolves 30 min later
+    assert changes[1].at_ms == T0 + 80 * MIN
+
+
+def test_condensation_against_psychrolib_dew_point(engine: sa.Engine) -> None:
+    alerts.set_policy(engine, "device", "cab-1", {"profile": "enclosure", "low_limit_c": -10.0})
+    data = cabinet_series(200)
+    rows = [
+        Reading(r.device_id, r.ts_ms, 20.0 + (r.seq or 0) % 3 * 0.1, 12.0 + 0.01 * i, 35.0 + 0.1 * (i % 5),
+                25.0 + 0.1 * (i % 4), 3.0, 8.0, seq=r.seq, rh=70.0)
+        for i, r in enumerate(data)
+    ]  # fmt: skip
+    store.store_batch(engine, rows)
+    changes = [c for c in alerts.evaluate(engine) if c.kind == "condensation_risk"]
+    assert [c.change for c in changes] == ["opened"]
+    psychrolib.SetUnitSystem(psychrolib.SI)
+    first = rows[30]  # open after 30 min of risk (common practice, no source)
+    expected = psychrolib.GetTDewPointFromRelHum(first.t_ambient, 0.70)
+    assert changes[0].at_ms == first.ts_ms
+    assert changes[0].evidence["dew_point_c"] == pytest.approx(expected, abs=0.01)
+    assert "qualified person" in changes[0].evidence["caution"]
+
+
+def test_stuck_cabinet_probe_is_a_sensor_fault(engine: sa.Engine) -> None:
+    data = cabinet_series(400)
+    rows = [
+        Reading(r.device_id, r.ts_ms, 4.7 if i >= 100 else r.t_cabinet, r.t_cold, r.t_hot,
+                r.t_ambient, r.current, r.voltage, seq=r.seq)
+        for i, r in enumerate(data)
+    ]  # fmt: skip
+    store.store_batch(engine, rows)
+    changes = alerts.evaluate(engine)
+    assert kinds(changes) == [("sensor_fault", "opened")]
+    # flat over the 60-minute window (samples 100..159), then the 15-minute delay
+    assert changes[0].at_ms == T0 + (159 + 15) * MIN
+    assert "t_cabinet stuck" in changes[0].evidence["issues"]
+
+
+def _estimate(engine: sa.Engine, key: str, at_ms: int, value: float) -> None:
+    with engine.begin() as conn:
+        conn.execute(
+            store.estimates.insert().values(
+                device_id="cab-1", key=key, at_ms=at_ms, value=value, n=10, reliable=True
+            )
+        )
+
+
+def test_module_wear_summary_from_the_trend_estimates(engine: sa.Engine) -> None:
+    store.store_batch(engine, cabinet_series(10))
+    day = 86_400_000
+    for d, pct in enumerate([1.0, 3.0, 6.1]):
+        _estimate(engine, "module.resistance_25c.change_pct", T0 + d * day, pct)
+    _estimate(engine, "module.resistance_25c.baseline", T0, 2.04)
+    _estimate(engine, "module.resistance_25c_ohm", T0 + 2 * day, 2.16)
+    _estimate(engine, "module.resistance_25c.slope_pct_per_30d", T0 + 2 * day, 4.5)
+    _estimate(engine, "module.days_to_wear_limit", T0 + 2 * day, 26.0)
+    changes = [c for c in alerts.evaluate(engine) if c.kind == "module_wear"]
+    assert [c.change for c in changes] == ["opened"]
+    # +5 % warning (common practice, no source), opened at the first estimate over it
+    assert changes[0].at_ms == T0 + 2 * day
+    assert changes[0].summary == (
+        "Module resistance at 25 °C has risen 6.1% since commissioning (2.04 -> 2.16 ohm), "
+        "about 0.15%/day; at this rate it reaches the 10% limit in 26 days; plan a module "
+        "replacement."
+    )
+    assert alerts.evaluate(engine) == []
+
+
+def test_maintenance_holds_notices_and_sends_the_open_alert_at_the_end(engine: sa.Engine) -> None:
+    alerts.add_maintenance(engine, T0 + 1400 * MIN, T0 + 1700 * MIN, device_id="cab-1")
+    store.store_batch(engine, cabinet_series(1800, hot=(1500, 1800)))
+    changes = alerts.evaluate(engine)
+    assert kinds(changes) == [("excursion", "opened")]
+    n = store.notifications
+    with engine.connect() as conn:
+        rows = conn.execute(sa.select(n.c.event, n.c.state).order_by(n.c.id)).fetchall()
+    # the held notice is replaced by one sent after the window, as the excursion continues
+    assert [(r.event, r.state) for r in rows] == [
+        ("alert.opened", "suppressed"), ("alert.opened", "pending")
+    ]  # fmt: skip
+
+
+# ---------------------------------------------------------------------------
+# Healthy fleet, long run
+# ---------------------------------------------------------------------------
+
+
+def test_healthy_simulated_fleet_raises_nothing_over_ten_days(engine: sa.Engine) -> None:
+    start_s = T0 / 1000
+    spec = FleetSpec(
+        devices=tuple(DeviceSpec(f"ok-{i}", setpoint_c=5.0, t_amb_mean_c=20.0 + 2 * i) for i in range(3)),
+        start_s=start_s, interval_s=60.0, seed=11, random_use=False,
+    )  # fmt: skip
+    chunks, _truth = simulate(spec, days=10, chunk_steps=1440)
+    for chunk in chunks:
+        batch = []
+        for row in chunk.payload_rows():
+            for item, device in zip(row, chunk.device_ids, strict=True):
+                if item is None:
+                    continue
+                batch.append(
+                    Reading(device, int(round(item["ts"] * 1000)), item["t_cabinet"], item["t_cold"],
+                            item["t_hot"], item["t_ambient"], item["current"], item["voltage"],
+                            rh=item.get("rh"), door_open=item.get("door_open"))
+                )  # fmt: skip
+        store.store_batch(engine, batch)
+        found = alerts.evaluate(engine)
+        assert [(c.device_id, c.kind, c.evidence) for c in found] == []

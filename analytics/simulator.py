@@ -645,91 +645,104 @@ class Simulator:
         door_left, cut_left = self.door_left, self.cut_left
         loads_log = self.truth.loads
 
+        # door and power state along the chunk (sequential but cheap), then everything that
+        # depends only on them, vectorised over the chunk
+        door_s_all = np.empty((m, n))
+        powered_all = np.empty((m, n), dtype=bool)
+        for j in range(m):
+            door_left = np.maximum(door_left, door_start[j])
+            cut_left = np.maximum(cut_left, cut_start[j])
+            door_s_all[j] = np.minimum(door_left, self.interval)
+            door_left = door_left - door_s_all[j]
+            powered_all[j] = cut_left <= 0.0
+            cut_left = np.maximum(cut_left - self.interval, 0.0)
+        pw = powered_all.astype(np.float64)
+        ua_eff_all = ua_all + p["g_door"] * (door_s_all / self.interval)
+        inv_rc_all = pw / rc_all + (1.0 - pw) / (rc_all * 2.5)  # inner fan stopped in a cut
+        inv_rh_all = pw / rh_all_res + (1.0 - pw) / (rh_all_res * 3.0)  # hot fan stopped
+        q_int_all = pw * p["q_internal"]
+        sp_hi, sp_lo = sp_k + hyst, sp_k - hyst
+        prop_f = prop.astype(np.float64)
+        volt_f = 1.0 - prop_f
+        e_wall_all, e_el_all, e_rej_all = en["wall"], en["electrical"], en["rejected"]
+        t_air_out, t_cont_out, tc_out, th_out = tr["t_air"], tr["t_contents"], tr["t_cold"], tr["t_hot"]
+        cur_out, v_out = tr["current"], tr["voltage"]
+
         for j in range(m):
             t_amb = t_amb_all[j]
             r25 = r25_all[j]
-            ua0 = ua_all[j]
             vsup = vs_all[j]
-            # use events starting in this interval
-            door_left = np.maximum(door_left, door_start[j])
-            cut_left = np.maximum(cut_left, cut_start[j])
             load = load_all[j]
-            e_load = np.zeros(n)
             if load.any():
-                target = t_amb  # goods arrive at room temperature
-                e_load = cn * load * (target - tn)
-                tn = tn + load * (target - tn)
+                # warm goods arrive at room temperature and replace part of the contents
+                en["loads"][j] = cn * load * (t_amb - tn)
+                tn = tn + load * (t_amb - tn)
                 for i in np.nonzero(load)[0]:
                     loads_log.setdefault(self.ids[i], []).append(float(t[j]))
-            door_s = np.minimum(door_left, self.interval)
-            door_left = door_left - door_s
-            powered = cut_left <= 0.0
-            cut_left = np.maximum(cut_left - self.interval, 0.0)
-            ua = ua0 + p["g_door"] * (door_s / self.interval)
-            rc = np.where(powered, rc_all[j], rc_all[j] * 2.5)  # inner fan stopped
-            rh = np.where(powered, rh_all_res[j], rh_all_res[j] * 3.0)  # hot fan stopped
-            q_int = np.where(powered, p["q_internal"], 0.0)
-            inv_rc, inv_rh = 1.0 / rc, 1.0 / rh
+            ua = ua_eff_all[j]
+            inv_rc, inv_rh = inv_rc_all[j], inv_rh_all[j]
+            q_int = q_int_all[j]
+            pw_j = pw[j]
             e_stored0 = ca * ta + cn * tn
+            ua_tamb = ua * t_amb
+            rh_tamb = t_amb * inv_rh
+            den0 = ca_h + ua + g - g * w1
+            e_wall = e_el = e_rej = 0.0
             for _ in range(self.n_sub):
                 dtm = 0.5 * (tc + th) - T25_K
                 s = s25 * (1.0 + BETA_S * dtm)
                 r = r25 * (1.0 + ALPHA_R * dtm)
                 # drive: thermostat with hysteresis, or proportional current
-                on = (ta > sp_k + hyst) | (on & (ta > sp_k - hyst))
-                i_volt = np.clip((vsup - s * (th - tc)) / r, 0.0, ilim)
+                on = (ta > sp_hi) | (on & (ta > sp_lo))
+                i_volt = np.minimum(np.maximum((vsup - s * (th - tc)) / r, 0.0), ilim)
                 # predictor: faces at that current with the air as it is, then the current the
                 # supply really drives across that temperature difference (damps the lag at
                 # switch-on, when ΔT jumps by tens of kelvin)
                 si = s * i_volt
                 jh = 0.5 * i_volt * i_volt * r
-                a11 = si + k_mod + inv_rc
                 a22 = si - k_mod - inv_rh
-                b2 = -jh - t_amb * inv_rh
-                tc_p = ((ta * inv_rc + jh) * a22 + k_mod * b2) / (a11 * a22 + k_mod * k_mod)
+                b2 = -jh - rh_tamb
+                tc_p = ((ta * inv_rc + jh) * a22 + k_mod * b2) / ((si + k_mod + inv_rc) * a22 + k_mod * k_mod)
                 th_p = (b2 - k_mod * tc_p) / a22
-                i_volt = np.clip((vsup - s * (th_p - tc_p)) / r, 0.0, ilim)
-                i_prop = np.minimum(np.clip(ibias + kp * (ta - sp_k), 0.0, ilim), i_volt)
-                cur = np.where(prop, i_prop, np.where(on, i_volt, 0.0))
-                cur = np.where(powered, cur, 0.0)
+                i_volt = np.minimum(np.maximum((vsup - s * (th_p - tc_p)) / r, 0.0), ilim)
+                i_prop = np.minimum(np.maximum(ibias + kp * (ta - sp_k), 0.0), i_volt)
+                cur = (prop_f * i_prop + volt_f * on * i_volt) * pw_j
                 # faces, linear in the air temperature at the end of the sub-step
                 si = s * cur
                 jh = 0.5 * cur * cur * r
                 a11 = si + k_mod + inv_rc
                 a22 = si - k_mod - inv_rh
-                b2 = -jh - t_amb * inv_rh
+                b2 = -jh - rh_tamb
                 det = a11 * a22 + k_mod * k_mod
                 mcoef = a22 * inv_rc / det  # dTc/dTair
                 tc0 = (jh * a22 + k_mod * b2) / det
-                q1 = (1.0 - mcoef) * inv_rc
-                q0 = -tc0 * inv_rc
                 # backward Euler on air and contents
                 w0 = cn_h * tn / (cn_h + g)
-                ta_new = (ca_h * ta + ua * t_amb + g * w0 + q_int - q0) / (
-                    ca_h + ua + g - g * w1 + q1
+                ta = (ca_h * ta + ua_tamb + g * w0 + q_int + tc0 * inv_rc) / (
+                    den0 + (1.0 - mcoef) * inv_rc
                 )
-                tn = w0 + w1 * ta_new
-                ta = ta_new
+                tn = w0 + w1 * ta
                 tc = tc0 + mcoef * ta
                 th = (b2 - k_mod * tc) / a22
-                power = cur * (s * (th - tc) + cur * r)
-                en["wall"][j] += ua * (t_amb - ta) * h
-                en["internal"][j] += q_int * h
-                en["electrical"][j] += power * h
-                en["rejected"][j] += (th - t_amb) * inv_rh * h
-            en["loads"][j] = e_load
-            en["stored"][j] = ca * ta + cn * tn - e_stored0 + e_load
-            # (the load's heat is stored in the contents too: counted as input and storage)
-            tr["t_air"][j] = ta
-            tr["t_contents"][j] = tn
-            tr["t_cold"][j] = tc
-            tr["t_hot"][j] = th
-            tr["t_ambient"][j] = t_amb
-            tr["current"][j] = cur
-            tr["voltage"][j] = s * (th - tc) + cur * r
-            tr["on"][j] = cur > 0.0
-            tr["door_s"][j] = door_s
-            tr["powered"][j] = powered
+                e_wall = e_wall + ua * (t_amb - ta)
+                e_el = e_el + cur * (s * (th - tc) + cur * r)
+                e_rej = e_rej + (th * inv_rh - rh_tamb)
+            e_wall_all[j] = e_wall * h
+            e_el_all[j] = e_el * h
+            e_rej_all[j] = e_rej * h
+            en["internal"][j] = q_int * (h * self.n_sub)
+            # the load's heat is stored in the contents too: counted as input and storage
+            en["stored"][j] = ca * ta + cn * tn - e_stored0 + en["loads"][j]
+            t_air_out[j] = ta
+            t_cont_out[j] = tn
+            tc_out[j] = tc
+            th_out[j] = th
+            cur_out[j] = cur
+            v_out[j] = s * (th - tc) + cur * r
+        tr["t_ambient"][:] = t_amb_all
+        tr["on"][:] = cur_out > 0.0
+        tr["door_s"][:] = door_s_all
+        tr["powered"][:] = powered_all
         self.t_air, self.t_cont, self.tc, self.th, self.on = ta, tn, tc, th, on
         self.door_left, self.cut_left = door_left, cut_left
         for key in ("t_air", "t_contents", "t_cold", "t_hot", "t_ambient"):

@@ -156,7 +156,8 @@ def test_healthy_unit_holds_its_setpoint() -> None:
     assert not truth.excursions.get("unit-1")
 
 
-def _pair(fault: sm.Fault, days: float = 4, **dev_kw: object) -> tuple[sm.Chunk, sm.Chunk]:
+def _pair(fault: sm.Fault, days: float = 3, **dev_kw: object) -> tuple[sm.Chunk, sm.Chunk]:
+    """The same unit and seed without and with ``fault``: identical noise, identical use."""
     dev = fridge(**dev_kw)
     base = sm.FleetSpec((dev,), START, seed=5)
     healthy, _ = run(base, days)
@@ -164,52 +165,80 @@ def _pair(fault: sm.Fault, days: float = 4, **dev_kw: object) -> tuple[sm.Chunk,
     return healthy, faulty
 
 
-def _on(chunk: sm.Chunk, start: int) -> np.ndarray:
-    return (chunk.measured["current"][start:, 0] > 0.5) & chunk.present[start:, 0]
+#: Twin units side by side: same ambient (daily cycle, no weather), no random use, so every
+#: difference between a column and its healthy twin comes from the fault.
+_TWINS = {
+    "ok": ("thermostat", None),
+    "leak": ("thermostat", ("leak", 1.6)),
+    "fan": ("thermostat", ("fan", 3.0)),
+    "inner_fan": ("thermostat", ("inner_fan", 2.5)),
+    "sag": ("thermostat", ("sag", 0.8)),
+    "ok_p": ("proportional", None),
+    "wear_p": ("proportional", ("wear", 1.15)),
+}
 
 
-def test_wear_raises_v_over_i_and_leaves_the_hot_side_alone() -> None:
-    ok, worn = _pair(sm.Fault("wear", "unit-1", START, magnitude=1.15), control="proportional")
-    k = 1440
-    ratio = [np.median(c.measured["voltage"][k:, 0][_on(c, k)] / c.measured["current"][k:, 0][_on(c, k)])
-             for c in (ok, worn)]  # fmt: skip
+@pytest.fixture(scope="module")
+def twins() -> dict[str, dict[str, np.ndarray]]:
+    devices, faults = [], []
+    for name, (control, fault) in _TWINS.items():
+        devices.append(quiet(fridge(name, control=control), t_amb_daily_k=2.0))
+        if fault is not None:
+            faults.append(sm.Fault(fault[0], name, START + DAY, magnitude=fault[1]))
+    spec = sm.FleetSpec(tuple(devices), START, seed=5, faults=tuple(faults), random_use=False)
+    chunk, _ = run(spec, 3)
+    k = 2 * 1440  # the last day, a day after the faults began
+    out = {}
+    for i, name in enumerate(_TWINS):
+        col = {key: v[k:, i] for key, v in chunk.measured.items()}
+        col.update({"true_" + key: v[k:, i] for key, v in chunk.truth.items()})
+        col["on_mask"] = col["current"] > 0.5
+        out[name] = col
+    return out
+
+
+def _median_on(col: dict[str, np.ndarray], values: np.ndarray) -> float:
+    return float(np.median(values[col["on_mask"]]))
+
+
+def test_twins_share_their_ambient(twins: dict[str, dict[str, np.ndarray]]) -> None:
+    for name in _TWINS:
+        np.testing.assert_allclose(twins[name]["true_t_ambient"], twins["ok"]["true_t_ambient"])
+
+
+def test_wear_raises_v_over_i_and_leaves_the_hot_side_alone(twins: dict[str, dict[str, np.ndarray]]) -> None:
+    ok, worn = twins["ok_p"], twins["wear_p"]
+    ratio = [_median_on(c, c["voltage"] / np.maximum(c["current"], 1e-3)) for c in (ok, worn)]
     assert ratio[1] / ratio[0] > 1.08
-    rise = [np.median((c.truth["t_hot"] - c.truth["t_ambient"])[k:, 0]) for c in (ok, worn)]
+    rise = [_median_on(c, c["true_t_hot"] - c["true_t_ambient"]) for c in (ok, worn)]
     assert rise[1] / rise[0] == pytest.approx(1.0, abs=0.15)
-    np.testing.assert_array_equal(ok.measured["t_ambient"], worn.measured["t_ambient"])
 
 
-def test_hot_fan_failure_raises_hot_side_rise() -> None:
-    ok, bad = _pair(sm.Fault("fan", "unit-1", START + DAY, magnitude=3.0))
-    k = 2 * 1440
-    rise = [np.median((c.measured["t_hot"] - c.measured["t_ambient"])[k:, 0][_on(c, k)])
-            for c in (ok, bad)]  # fmt: skip
+def test_hot_fan_failure_raises_hot_side_rise(twins: dict[str, dict[str, np.ndarray]]) -> None:
+    ok, bad = twins["ok"], twins["fan"]
+    rise = [_median_on(c, c["t_hot"] - c["t_ambient"]) for c in (ok, bad)]
     assert rise[1] > 1.8 * rise[0]
-    # before the fault the two runs are identical
-    np.testing.assert_array_equal(ok.measured["t_hot"][:1440], bad.measured["t_hot"][:1440])
 
 
-def test_leak_raises_duty_cycle_not_resistance() -> None:
-    ok, leaky = _pair(sm.Fault("leak", "unit-1", START, magnitude=1.6))
-    k = 1440
-    duty = [c.truth["on"][k:, 0].mean() for c in (ok, leaky)]
+def test_leak_raises_duty_cycle_not_resistance(twins: dict[str, dict[str, np.ndarray]]) -> None:
+    ok, leaky = twins["ok"], twins["leak"]
+    duty = [c["true_on"].mean() for c in (ok, leaky)]
     assert duty[1] > duty[0] * 1.15
-    ratio = [np.median(c.measured["voltage"][k:, 0][_on(c, k)] / c.measured["current"][k:, 0][_on(c, k)])
-             for c in (ok, leaky)]  # fmt: skip
+    ratio = [_median_on(c, c["voltage"] / np.maximum(c["current"], 1e-3)) for c in (ok, leaky)]
     assert ratio[1] / ratio[0] == pytest.approx(1.0, abs=0.04)
+    rise = [_median_on(c, c["true_t_hot"] - c["true_t_ambient"]) for c in (ok, leaky)]
+    assert rise[1] / rise[0] == pytest.approx(1.0, abs=0.1)
 
 
-def test_inner_fan_failure_widens_cabinet_to_cold_face_gap() -> None:
-    ok, bad = _pair(sm.Fault("inner_fan", "unit-1", START, magnitude=2.5))
-    k = 1440
-    gap = [np.median((c.truth["t_air"] - c.truth["t_cold"])[k:, 0][_on(c, k)]) for c in (ok, bad)]
+def test_inner_fan_failure_widens_cabinet_to_cold_face_gap(
+    twins: dict[str, dict[str, np.ndarray]],
+) -> None:
+    gap = [_median_on(c, c["true_t_air"] - c["true_t_cold"]) for c in (twins["ok"], twins["inner_fan"])]
     assert gap[1] > 1.8 * gap[0]
 
 
-def test_supply_sag_lowers_the_drive_current() -> None:
-    ok, sag = _pair(sm.Fault("sag", "unit-1", START, magnitude=0.8))
-    k = 1440
-    cur = [np.median(c.measured["current"][k:, 0][_on(c, k)]) for c in (ok, sag)]
+def test_supply_sag_lowers_the_drive_current(twins: dict[str, dict[str, np.ndarray]]) -> None:
+    cur = [_median_on(c, c["current"]) for c in (twins["ok"], twins["sag"])]
     assert cur[1] < 0.9 * cur[0]
 
 

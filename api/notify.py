@@ -200,6 +200,7 @@ class Notifier(threading.Thread):
         """One round: fan out new notices, publish to MQTT, attempt due webhook deliveries."""
         now = store.now_ms()
         self.fan_out(now)
+        self.fan_out(now)  # group notices made by the first pass go out in this round too
         if self.settings is not None:
             self.publish_mqtt()
         self.deliver_due(now)
@@ -215,7 +216,8 @@ class Notifier(threading.Thread):
             if not pending:
                 return
             hooks = [
-                int(h) for h in conn.execute(sa.select(w.c.id).where(w.c.deleted_ms.is_(None)))
+                int(h)
+                for h in conn.execute(sa.select(w.c.id).where(w.c.deleted_ms.is_(None))).scalars()
             ]
             ready: list[Any] = []
             buckets: dict[tuple[str, str, int], list[Any]] = {}

@@ -43,11 +43,18 @@ def cabinet_series(
             t_cab = hot_c + (0.1 if i % 2 else 0.0)  # a live probe flickers by one step
         out.append(
             Reading(
-                "cab-1", T0 + i * MIN, round(t_cab, 2), round(-1.0 + wobble, 2),
-                round(30.0 + 0.5 * math.cos(i / 13.0), 2), round(22.0 + 0.2 * math.sin(i / 29.0), 2),
-                3.0, 8.0, seq=i, rh=45.0,
+                "cab-1",
+                T0 + i * MIN,
+                round(t_cab, 2),
+                round(-1.0 + wobble, 2),
+                round(30.0 + 0.5 * math.cos(i / 13.0), 2),
+                round(22.0 + 0.2 * math.sin(i / 29.0), 2),
+                3.0,
+                8.0,
+                seq=i,
+                rh=45.0,
             )
-        )  # fmt: skip
+        )
     return out
 
 
@@ -132,8 +139,10 @@ def test_long_excursion_turns_critical_after_ten_hours(engine: sa.Engine) -> Non
     store.store_batch(engine, cabinet_series(1500, hot=(100, 1400), hot_c=9.0))
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [
-        ("excursion", "opened"), ("excursion", "escalated"), ("excursion", "resolved")
-    ]  # fmt: skip
+        ("excursion", "opened"),
+        ("excursion", "escalated"),
+        ("excursion", "resolved"),
+    ]
     assert changes[1].severity == "critical"
     assert changes[1].at_ms == T0 + (100 + 600) * MIN
 
@@ -193,8 +202,9 @@ def test_acknowledge_records_who_and_when(engine: sa.Engine) -> None:
     assert row["state"] == "acknowledged"
     trail = alerts.audit_trail(engine, change.alert_id)
     assert [(h["to_state"], h["actor"]) for h in trail] == [
-        ("open", "system"), ("acknowledged", "night-shift")
-    ]  # fmt: skip
+        ("open", "system"),
+        ("acknowledged", "night-shift"),
+    ]
     # still one alert per device and kind as the excursion goes on
     store.store_batch(engine, cabinet_series(1700, hot=(1500, 1600))[1560:])
     changes = alerts.evaluate(engine)
@@ -237,10 +247,19 @@ def test_over_temperature_with_hysteresis(engine: sa.Engine) -> None:
     data = cabinet_series(200)
     hot = [71.0, 72.0] * 5 + [68.0] * 40 + [65.0] * 60  # 68 °C holds (70 - 3 K hysteresis)
     rows = [
-        Reading(r.device_id, r.ts_ms, r.t_cabinet, r.t_cold, hot[i] if i < len(hot) else r.t_hot,
-                r.t_ambient, r.current, r.voltage, seq=r.seq)
+        Reading(
+            r.device_id,
+            r.ts_ms,
+            r.t_cabinet,
+            r.t_cold,
+            hot[i] if i < len(hot) else r.t_hot,
+            r.t_ambient,
+            r.current,
+            r.voltage,
+            seq=r.seq,
+        )
         for i, r in enumerate(data)
-    ]  # fmt: skip
+    ]
     store.store_batch(engine, rows)
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [("over_temperature", "opened"), ("over_temperature", "resolved")]
@@ -255,10 +274,20 @@ def test_condensation_against_psychrolib_dew_point(engine: sa.Engine) -> None:
     alerts.set_policy(engine, "device", "cab-1", {"profile": "enclosure", "low_limit_c": -10.0})
     data = cabinet_series(200)
     rows = [
-        Reading(r.device_id, r.ts_ms, 20.0 + (r.seq or 0) % 3 * 0.1, 12.0 + 0.01 * i, 35.0 + 0.1 * (i % 5),
-                25.0 + 0.1 * (i % 4), 3.0, 8.0, seq=r.seq, rh=70.0)
+        Reading(
+            r.device_id,
+            r.ts_ms,
+            20.0 + (r.seq or 0) % 3 * 0.1,
+            12.0 + 0.01 * i,
+            35.0 + 0.1 * (i % 5),
+            25.0 + 0.1 * (i % 4),
+            3.0,
+            8.0,
+            seq=r.seq,
+            rh=70.0,
+        )
         for i, r in enumerate(data)
-    ]  # fmt: skip
+    ]
     store.store_batch(engine, rows)
     changes = [c for c in alerts.evaluate(engine) if c.kind == "condensation_risk"]
     assert [c.change for c in changes] == ["opened"]
@@ -273,10 +302,19 @@ def test_condensation_against_psychrolib_dew_point(engine: sa.Engine) -> None:
 def test_stuck_cabinet_probe_is_a_sensor_fault(engine: sa.Engine) -> None:
     data = cabinet_series(400)
     rows = [
-        Reading(r.device_id, r.ts_ms, 4.7 if i >= 100 else r.t_cabinet, r.t_cold, r.t_hot,
-                r.t_ambient, r.current, r.voltage, seq=r.seq)
+        Reading(
+            r.device_id,
+            r.ts_ms,
+            4.7 if i >= 100 else r.t_cabinet,
+            r.t_cold,
+            r.t_hot,
+            r.t_ambient,
+            r.current,
+            r.voltage,
+            seq=r.seq,
+        )
         for i, r in enumerate(data)
-    ]  # fmt: skip
+    ]
     store.store_batch(engine, rows)
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [("sensor_fault", "opened")]
@@ -325,8 +363,9 @@ def test_maintenance_holds_notices_and_sends_the_open_alert_at_the_end(engine: s
         rows = conn.execute(sa.select(n.c.event, n.c.state).order_by(n.c.id)).fetchall()
     # the held notice is replaced by one sent after the window, as the excursion continues
     assert [(r.event, r.state) for r in rows] == [
-        ("alert.opened", "suppressed"), ("alert.opened", "pending")
-    ]  # fmt: skip
+        ("alert.opened", "suppressed"),
+        ("alert.opened", "pending"),
+    ]
 
 
 # ---------------------------------------------------------------------------
@@ -337,9 +376,14 @@ def test_maintenance_holds_notices_and_sends_the_open_alert_at_the_end(engine: s
 def test_healthy_simulated_fleet_raises_nothing_over_ten_days(engine: sa.Engine) -> None:
     start_s = T0 / 1000
     spec = FleetSpec(
-        devices=tuple(DeviceSpec(f"ok-{i}", setpoint_c=5.0, t_amb_mean_c=20.0 + 2 * i) for i in range(3)),
-        start_s=start_s, interval_s=60.0, seed=11, random_use=False,
-    )  # fmt: skip
+        devices=tuple(
+            DeviceSpec(f"ok-{i}", setpoint_c=5.0, t_amb_mean_c=20.0 + 2 * i) for i in range(3)
+        ),
+        start_s=start_s,
+        interval_s=60.0,
+        seed=11,
+        random_use=False,
+    )
     chunks, _truth = simulate(spec, days=10, chunk_steps=1440)
     for chunk in chunks:
         batch = []
@@ -348,10 +392,19 @@ def test_healthy_simulated_fleet_raises_nothing_over_ten_days(engine: sa.Engine)
                 if item is None:
                     continue
                 batch.append(
-                    Reading(device, int(round(item["ts"] * 1000)), item["t_cabinet"], item["t_cold"],
-                            item["t_hot"], item["t_ambient"], item["current"], item["voltage"],
-                            rh=item.get("rh"), door_open=item.get("door_open"))
-                )  # fmt: skip
+                    Reading(
+                        device,
+                        round(item["ts"] * 1000),
+                        item["t_cabinet"],
+                        item["t_cold"],
+                        item["t_hot"],
+                        item["t_ambient"],
+                        item["current"],
+                        item["voltage"],
+                        rh=item.get("rh"),
+                        door_open=item.get("door_open"),
+                    )
+                )
         store.store_batch(engine, batch)
         found = alerts.evaluate(engine)
         assert [(c.device_id, c.kind, c.evidence) for c in found] == []

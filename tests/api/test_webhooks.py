@@ -44,7 +44,7 @@ class Receiver:
         outer = self
 
         class Handler(BaseHTTPRequestHandler):
-            def do_POST(self) -> None:  # noqa: N802 - http.server's naming
+            def do_POST(self) -> None:
                 body = self.rfile.read(int(self.headers["content-length"]))
                 if outer.down:
                     self.send_response(503)

@@ -65,6 +65,10 @@ class Service:
                     lifespan="on",
                 )
                 self.server = uvicorn.Server(config)
+                # uvicorn re-raises the signal that stopped it once it is done; with our own
+                # handlers in place that lands here instead of killing the process before
+                # the ingester has drained.
+                self._install_signal_handlers()
                 if on_started is not None:
                     threading.Thread(target=self._announce, args=(on_started,), daemon=True).start()
                 self.server.run()
@@ -79,12 +83,18 @@ class Service:
                 return
         on_started()
 
-    def _wait_for_signal(self, on_started: Callable[[], None] | None) -> None:
+    def _install_signal_handlers(self) -> None:
+        if threading.current_thread() is not threading.main_thread():
+            return
+
         def handler(_signum: int, _frame: Any) -> None:
-            self.stopping.set()
+            self.stop()
 
         signal.signal(signal.SIGINT, handler)
         signal.signal(signal.SIGTERM, handler)
+
+    def _wait_for_signal(self, on_started: Callable[[], None] | None) -> None:
+        self._install_signal_handlers()
         if on_started is not None:
             on_started()
         while not self.stopping.wait(0.5):

@@ -138,11 +138,20 @@ def cmd_db_upgrade(args: argparse.Namespace) -> int:
 
 
 def cmd_analyze(args: argparse.Namespace) -> int:
+    from tecfleet.analytics.alerts import evaluate
     from tecfleet.analytics.runner import analyze
 
     settings = _settings(args)
-    report = analyze(_engine(settings), device_id=args.device)
-    print(report, flush=True)
+    engine = _engine(settings)
+    report = analyze(engine, device_id=args.device)
+    # Event time only: "offline" is judged against the newest stored reading.
+    changes = evaluate(engine, device_id=args.device)
+    print(
+        f"analysed {report.devices} device(s): {report.steps} step(s), "
+        f"{report.estimates} estimate(s) in {report.seconds:.1f} s; "
+        f"{len(changes)} alert change(s)",
+        flush=True,
+    )
     return 0
 
 

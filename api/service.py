@@ -16,8 +16,10 @@ import uvicorn
 from sqlalchemy.engine import Engine
 
 from tecfleet.api.app import create_app
+from tecfleet.api.notify import Notifier
 from tecfleet.ingest.ingester import Ingester
 from tecfleet.ingest.settings import Settings
+from tecfleet.ingest.store import now_ms
 
 log = logging.getLogger(__name__)
 
@@ -30,6 +32,7 @@ class Service:
         self.ingester = Ingester(settings, engine) if "ingest" in settings.roles else None
         self.server: uvicorn.Server | None = None
         self._analytics: threading.Thread | None = None
+        self.notifier: Notifier | None = None
 
     def ready(self) -> tuple[bool, str]:
         if self.ingester is not None and not self.ingester.ready.is_set():
@@ -48,6 +51,9 @@ class Service:
         """Run until a signal (or ``stop``), then shut down in order."""
         if self.ingester is not None:
             self.ingester.start()
+        if "analytics" in self.settings.roles or "api" in self.settings.roles:
+            self.notifier = Notifier(self.engine, self.settings)
+            self.notifier.start()
         if "analytics" in self.settings.roles:
             analyze = analysis_round(self.settings, self.engine)
             self._analytics = threading.Thread(
@@ -109,6 +115,8 @@ class Service:
         self.stopping.set()
         if self._analytics is not None:
             self._analytics.join(30)
+        if self.notifier is not None:
+            self.notifier.stop()
         if self.ingester is not None:
             self.ingester.stop()
         self.engine.dispose()
@@ -116,10 +124,15 @@ class Service:
 
 
 def analysis_round(settings: Settings, engine: Engine) -> Callable[[], Any]:
-    """The function the analytics loop calls every ``analyze_every_s`` seconds."""
-    from tecfleet.analytics import runner
+    """The function the analytics loop calls every ``analyze_every_s`` seconds.
+
+    Estimates first, then alerts; the live service judges "offline" on the wall clock.
+    """
+    from tecfleet.analytics import alerts, runner
 
     def round_() -> Any:
-        return runner.analyze(engine)
+        report = runner.analyze(engine)
+        alerts.evaluate(engine, now_ms=now_ms())
+        return report
 
     return round_

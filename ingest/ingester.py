@@ -245,7 +245,7 @@ class Ingester:
             return
         parsed = parse_message(
             message.topic,
-            message.payload,
+            bytes(message.payload),
             prefix=self.settings.topic_prefix,
             now_s=time.time(),
             future_tolerance_s=self.settings.future_tolerance_s,

@@ -25,5 +25,8 @@ python3 -m venv .venv
 .venv/bin/python -m pip install -q -e '.[test]'
 
 .venv/bin/ruff check ingest analytics api tests
-.venv/bin/mypy ingest analytics api
+# mypy checks the installed names (tecfleet.*): a tree of links maps them onto the folders.
+mkdir -p .mypy-src/tecfleet
+for stage in ingest analytics api; do ln -sfn "$PWD/$stage" ".mypy-src/tecfleet/$stage"; done
+(cd .mypy-src && ../.venv/bin/mypy --config-file ../pyproject.toml -p tecfleet)
 TECFLEET_REQUIRE_SERVICES="${TECFLEET_REQUIRE_SERVICES:-1}" .venv/bin/python -m pytest "$@"

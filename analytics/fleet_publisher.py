@@ -32,7 +32,7 @@ import time
 import uuid
 from collections import deque
 from collections.abc import Callable
-from typing import IO, Any
+from typing import IO, Any, cast
 from urllib.parse import unquote, urlsplit
 
 import orjson
@@ -65,10 +65,10 @@ class Sink:
     def send(self, device_id: str, readings: list[dict[str, Any]]) -> None:
         raise NotImplementedError
 
-    def status(self, device_id: str, online: bool) -> None:  # noqa: B027 - optional
+    def status(self, device_id: str, online: bool) -> None:
         pass
 
-    def close(self) -> None:  # noqa: B027 - optional
+    def close(self) -> None:
         pass
 
 
@@ -171,23 +171,24 @@ class FileSink(Sink):
     def __init__(self, path: str) -> None:
         self.path = path
         self.csv = path.lower().endswith(".csv")
-        self.fh: IO[Any] = open(path, "w", newline="", encoding="utf-8") if self.csv else open(path, "wb")  # noqa: SIM115
+        self.fh: IO[Any]
+        if self.csv:
+            self.fh = open(path, "w", newline="", encoding="utf-8")  # noqa: SIM115 - closed in close()
+        else:
+            self.fh = open(path, "wb")  # noqa: SIM115 - closed in close()
         self.sent = 0
         self.bytes = 0
         if self.csv:
-            self.writer = csv.writer(self.fh)
+            self.writer = csv.writer(cast(IO[str], self.fh))
             self.writer.writerow(_CSV_FIELDS)
 
     def send(self, device_id: str, readings: list[dict[str, Any]]) -> None:
         self.sent += len(readings)
         if self.csv:
-            self.writer.writerows(
-                [device_id, *(r[k] for k in _CSV_FIELDS[1:])] for r in readings
-            )
+            self.writer.writerows([device_id, *(r[k] for k in _CSV_FIELDS[1:])] for r in readings)
         else:
-            data = b"".join(
-                orjson.dumps({"device_id": device_id, **r}) + b"\n" for r in readings
-            )
+            head = b'{"device_id":' + orjson.dumps(device_id) + b","
+            data = b"".join(head + orjson.dumps(r)[1:] + b"\n" for r in readings)
             self.bytes += len(data)
             self.fh.write(data)
 
@@ -262,7 +263,7 @@ def publish_fleet(
             k = int((now - t_next) // interval) + 1
         k = max(1, min(k, max_chunk))
         if end_s is not None:
-            k = max(1, min(k, int(math.ceil((end_s - t_next) / interval))))
+            k = max(1, min(k, math.ceil((end_s - t_next) / interval)))
         chunk = sim.run(k)
         rows = chunk.payload_rows()
         live = k == 1 and due(sim.t_next) > clock()
@@ -301,19 +302,34 @@ def publish_fleet(
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Options of ``tecfleet simulate``."""
-    parser.add_argument("--mqtt", default=os.environ.get("TECFLEET_MQTT_URL", "mqtt://127.0.0.1:1883"),
-                        help="broker URL (default mqtt://127.0.0.1:1883)")  # fmt: skip
-    parser.add_argument("--topic-prefix", default=os.environ.get("TECFLEET_TOPIC_PREFIX", "tecfleet"))
+    parser.add_argument(
+        "--mqtt",
+        default=os.environ.get("TECFLEET_MQTT_URL", "mqtt://127.0.0.1:1883"),
+        help="broker URL (default mqtt://127.0.0.1:1883)",
+    )
+    parser.add_argument(
+        "--topic-prefix", default=os.environ.get("TECFLEET_TOPIC_PREFIX", "tecfleet")
+    )
     parser.add_argument("--devices", type=int, default=10, help="number of coolers")
     parser.add_argument("--days", type=float, default=1.0, help="simulated days")
     parser.add_argument("--interval-s", type=float, default=60.0, help="sample interval [s]")
-    parser.add_argument("--speed", type=float, default=0.0,
-                        help="1 live, k accelerated (ends at now), 0 backfill as fast as possible")  # fmt: skip
-    parser.add_argument("--follow", action="store_true",
-                        help="after reaching now, go on publishing live until interrupted")  # fmt: skip
+    parser.add_argument(
+        "--speed",
+        type=float,
+        default=0.0,
+        help="1 live, k accelerated (ends at now), 0 backfill as fast as possible",
+    )
+    parser.add_argument(
+        "--follow",
+        action="store_true",
+        help="after reaching now, go on publishing live until interrupted",
+    )
     parser.add_argument("--seed", type=int, default=0)
-    parser.add_argument("--faults", default="none",
-                        help='fault mix, e.g. "wear:2,leak:1,fan:1,sensor:1,offline:1" or "none"')  # fmt: skip
+    parser.add_argument(
+        "--faults",
+        default="none",
+        help='fault mix, e.g. "wear:2,leak:1,fan:1,sensor:1,offline:1" or "none"',
+    )
     parser.add_argument("--batch", type=int, default=240, help="readings per message while behind")
     parser.add_argument("--out", default=None, help="write .csv or .jsonl instead of MQTT")
     parser.add_argument("--truth", default=None, help="write the ground truth JSON here")
@@ -327,6 +343,7 @@ def run(args: argparse.Namespace) -> int:
     days = float(args.days)
     speed = float(args.speed)
     duration = days * 86_400.0
+    end: float | None
     if speed == 0:
         start, end = now - duration, now
     elif speed == 1:
@@ -342,15 +359,25 @@ def run(args: argparse.Namespace) -> int:
     if args.scenario == "demo":
         from .scenario import demo_fleet
 
-        spec, _reg = demo_fleet(args.seed, now_s=now, days_backfill=days, interval_s=args.interval_s)
+        spec, _reg = demo_fleet(
+            args.seed, now_s=now, days_backfill=days, interval_s=args.interval_s
+        )
         spec = _restart(spec, start)
     else:
-        spec = random_fleet(args.devices, seed=args.seed, start_s=start, days=days,
-                            interval_s=args.interval_s, faults=args.faults)  # fmt: skip
+        spec = random_fleet(
+            args.devices,
+            seed=args.seed,
+            start_s=start,
+            days=days,
+            interval_s=args.interval_s,
+            faults=args.faults,
+        )
     sink: Sink
     try:
-        sink = FileSink(args.out) if args.out else MqttSink(
-            args.mqtt, args.topic_prefix, client_id=args.client_id
+        sink = (
+            FileSink(args.out)
+            if args.out
+            else MqttSink(args.mqtt, args.topic_prefix, client_id=args.client_id)
         )
     except (OSError, ConnectionError, ValueError) as exc:
         print(f"simulate: {exc}", file=sys.stderr)
@@ -383,5 +410,3 @@ def _restart(spec: FleetSpec, start_s: float) -> FleetSpec:
     from dataclasses import replace
 
     return replace(spec, start_s=start_s)
-
-

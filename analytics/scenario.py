@@ -107,7 +107,7 @@ def _unit(device_id: str, kind: str, label: str, rng: np.random.Generator) -> De
     if kind == "med":  # 24 V upright medicine fridge, two modules in series, 2-8 °C
         ratings["count"] = 2
         volume = float(rng.uniform(45, 60))
-        body = {
+        body: dict[str, Any] = {
             "ua": float(rng.uniform(0.6, 0.8)),
             "r_hot": float(rng.uniform(0.12, 0.16)),
             "r_cold": float(rng.uniform(0.25, 0.3)),
@@ -202,7 +202,7 @@ def demo_fleet(
             ramp_s=5 * DAY,
             channel="t_cabinet",
             mode="drift",
-        ),  # fmt: skip
+        ),
         Fault("sensor", "kv-rid-enc02", now - 2 * DAY, channel="t_hot", mode="stuck"),
         Fault("offline", "kv-van-vac01", now - 20 * 3600.0),
     )
@@ -271,8 +271,16 @@ def run_demo_feed(
         sink: MqttSink | None = None
         try:
             sink = MqttSink(mqtt_url, prefix, client_id=f"tecfleet-demo-feed-{seed}")
-            publish_fleet(spec, sink, end_s=None, speed=0.0, batch=batch, stop=stop,
-                          on_caught_up=caught_up, simulator=sim)  # fmt: skip
+            publish_fleet(
+                spec,
+                sink,
+                end_s=None,
+                speed=0.0,
+                batch=batch,
+                stop=stop,
+                on_caught_up=caught_up,
+                simulator=sim,
+            )
         except (OSError, ConnectionError, TimeoutError) as exc:
             log.warning("demo feed: broker problem (%s); retrying", exc)
             stop.wait(3.0)

@@ -110,7 +110,13 @@ STANDARD_RATINGS: dict[str, float] = {
 
 FAULT_KINDS = ("wear", "leak", "fan", "inner_fan", "sag", "sensor", "offline")
 #: Parameter each physical fault multiplies.
-_FAULT_PARAM = {"wear": "r25", "leak": "ua", "fan": "r_hot", "inner_fan": "r_cold", "sag": "v_supply"}
+_FAULT_PARAM = {
+    "wear": "r25",
+    "leak": "ua",
+    "fan": "r_hot",
+    "inner_fan": "r_cold",
+    "sag": "v_supply",
+}
 
 
 # ---------------------------------------------------------------------------
@@ -374,9 +380,7 @@ class FleetTruth:
             series = []
             for t in sorted(breaks):
                 row = {"ts": t}
-                row.update(
-                    {_TRUTH_NAMES[k]: v for k, v in self.params_at(d.device_id, t).items()}
-                )
+                row.update({_TRUTH_NAMES[k]: v for k, v in self.params_at(d.device_id, t).items()})
                 series.append(row)
             devices[d.device_id] = {
                 "registration": d.registration(),
@@ -497,14 +501,44 @@ class Simulator:
         self.n = n = len(devs)
         self.ids = [d.device_id for d in devs]
         self.index = {d: i for i, d in enumerate(self.ids)}
-        p = {name: _col(devs, name) for name in (
-            "s25", "r25", "k", "i_limit", "ua", "r_hot", "r_cold", "c_air", "c_contents",
-            "g_contents", "q_internal", "setpoint_c", "hysteresis_k", "v_supply", "kp_a_per_k",
-            "i_bias_a", "ctrl_bias_k", "door_per_day", "door_mean_s", "g_door", "loads_per_day",
-            "load_fraction", "cuts_per_30d", "cut_mean_s", "t_amb_mean_c", "t_amb_daily_k",
-            "t_amb_phase_h", "t_amb_weather_k", "t_amb_tau_h", "rh_mean", "utc_offset_h",
-            "jitter_s", "p_missed",
-        )}  # fmt: skip
+        p = {
+            name: _col(devs, name)
+            for name in (
+                "s25",
+                "r25",
+                "k",
+                "i_limit",
+                "ua",
+                "r_hot",
+                "r_cold",
+                "c_air",
+                "c_contents",
+                "g_contents",
+                "q_internal",
+                "setpoint_c",
+                "hysteresis_k",
+                "v_supply",
+                "kp_a_per_k",
+                "i_bias_a",
+                "ctrl_bias_k",
+                "door_per_day",
+                "door_mean_s",
+                "g_door",
+                "loads_per_day",
+                "load_fraction",
+                "cuts_per_30d",
+                "cut_mean_s",
+                "t_amb_mean_c",
+                "t_amb_daily_k",
+                "t_amb_phase_h",
+                "t_amb_weather_k",
+                "t_amb_tau_h",
+                "rh_mean",
+                "utc_offset_h",
+                "jitter_s",
+                "p_missed",
+            )
+        }
         self.p = p
         self.proportional = np.array([d.control == "proportional" for d in devs])
         self.off_open = np.array([d.off_voltage == "open_circuit" for d in devs])
@@ -563,7 +597,9 @@ class Simulator:
         # AR(1) along time with per-device coefficient: lfilter per distinct phi
         for value in np.unique(phi):
             cols = np.nonzero(phi == value)[0]
-            y, _ = lfilter([1.0], [1.0, -value], drive[:, cols], axis=0, zi=(value * prev[cols])[None, :])
+            y, _ = lfilter(
+                [1.0], [1.0, -value], drive[:, cols], axis=0, zi=(value * prev[cols])[None, :]
+            )
             anomaly[:, cols] = y
         self.weather = anomaly[-1].copy()
         hours = ((t[:, None] / 3600.0) + p["utc_offset_h"]) % 24.0
@@ -581,7 +617,7 @@ class Simulator:
         return out
 
     def _use(self, t: FloatArray) -> tuple[FloatArray, FloatArray, FloatArray]:
-        """Random starts of doors / loads / cuts (m, n): door seconds, load fraction, cut seconds."""
+        """Doors / loads / cuts starting at each step (m, n): door s, load fraction, cut s."""
         p, g, m, n = self.p, self.streams.gen, t.shape[0], self.n
         u_door = g["door"].random((m, n))
         l_door = g["door_len"].exponential(1.0, (m, n))
@@ -595,7 +631,9 @@ class Simulator:
             hours = ((t[:, None] / 3600.0) + p["utc_offset_h"]) % 24.0
             busy = np.where((hours >= 7.0) & (hours < 19.0), 1.8, 0.2)
             dt_day = self.interval / 86_400.0
-            door = np.where(u_door < p["door_per_day"] * dt_day * busy, l_door * p["door_mean_s"], 0.0)
+            door = np.where(
+                u_door < p["door_per_day"] * dt_day * busy, l_door * p["door_mean_s"], 0.0
+            )
             load = np.where(u_load < p["loads_per_day"] * dt_day * busy, p["load_fraction"], 0.0)
             cut = np.where(u_cut < p["cuts_per_30d"] * dt_day / 30.0, l_cut * p["cut_mean_s"], 0.0)
         for i, e in self.events:
@@ -627,11 +665,23 @@ class Simulator:
         rc_all = p["r_cold"] * fac["r_cold"]
         vs_all = p["v_supply"] * fac["v_supply"]
 
-        names = ("t_air", "t_contents", "t_cold", "t_hot", "t_ambient", "current", "voltage",
-                 "on", "door_s", "powered")  # fmt: skip
+        names = (
+            "t_air",
+            "t_contents",
+            "t_cold",
+            "t_hot",
+            "t_ambient",
+            "current",
+            "voltage",
+            "on",
+            "door_s",
+            "powered",
+        )
         tr = {k: np.empty((m, n)) for k in names}
-        en = {k: np.zeros((m, n)) for k in ("wall", "internal", "loads", "electrical",
-                                             "rejected", "stored")}  # fmt: skip
+        en = {
+            k: np.zeros((m, n))
+            for k in ("wall", "internal", "loads", "electrical", "rejected", "stored")
+        }
 
         s25, k_mod, ca, cn, g = p["s25"], p["k"], p["c_air"], p["c_contents"], p["g_contents"]
         sp_k = p["setpoint_c"] + T0_K + p["ctrl_bias_k"]
@@ -665,7 +715,12 @@ class Simulator:
         prop_f = prop.astype(np.float64)
         volt_f = 1.0 - prop_f
         e_wall_all, e_el_all, e_rej_all = en["wall"], en["electrical"], en["rejected"]
-        t_air_out, t_cont_out, tc_out, th_out = tr["t_air"], tr["t_contents"], tr["t_cold"], tr["t_hot"]
+        t_air_out, t_cont_out, tc_out, th_out = (
+            tr["t_air"],
+            tr["t_contents"],
+            tr["t_cold"],
+            tr["t_hot"],
+        )
         cur_out, v_out = tr["current"], tr["voltage"]
 
         for j in range(m):
@@ -702,7 +757,9 @@ class Simulator:
                 jh = 0.5 * i_volt * i_volt * r
                 a22 = si - k_mod - inv_rh
                 b2 = -jh - rh_tamb
-                tc_p = ((ta * inv_rc + jh) * a22 + k_mod * b2) / ((si + k_mod + inv_rc) * a22 + k_mod * k_mod)
+                tc_p = ((ta * inv_rc + jh) * a22 + k_mod * b2) / (
+                    (si + k_mod + inv_rc) * a22 + k_mod * k_mod
+                )
                 th_p = (b2 - k_mod * tc_p) / a22
                 i_volt = np.minimum(np.maximum((vsup - s * (th_p - tc_p)) / r, 0.0), ilim)
                 i_prop = np.minimum(np.maximum(ibias + kp * (ta - sp_k), 0.0), i_volt)
@@ -765,7 +822,9 @@ class Simulator:
             self.truth.power_cuts.setdefault(dev, []).append((float(t[j]), float(cut[j, i])))
         low, high = self.limits
         outside = (tr["t_air"] < low) | (tr["t_air"] > high)
-        changed = np.nonzero(outside.any(axis=0) | np.array([s is not None for s in self.outside_since]))[0]
+        changed = np.nonzero(
+            outside.any(axis=0) | np.array([s is not None for s in self.outside_since])
+        )[0]
         for i in changed:
             dev = self.ids[i]
             for j in range(t.shape[0]):
@@ -795,10 +854,11 @@ class Simulator:
             "t_hot": tr["t_hot"],
             "t_ambient": tr["t_ambient"],
             "current": tr["current"],
-            "voltage": np.where(tr["current"] > 0.0, tr["voltage"],
-                                np.where(self.off_open, tr["voltage"], 0.0)),
+            "voltage": np.where(
+                tr["current"] > 0.0, tr["voltage"], np.where(self.off_open, tr["voltage"], 0.0)
+            ),
             "rh": tr["rh"],
-        }  # fmt: skip
+        }
         meas: dict[str, FloatArray] = {}
         for c, name in enumerate(CHANNELS):
             v = true[name] + self.bias[:, c] + self.noise_sd[:, c] * noise[:, :, c]
@@ -884,10 +944,12 @@ def _payload_rows(chunk: Chunk) -> list[list[dict[str, Any] | None]]:
     return rows
 
 
-def simulate(spec: FleetSpec, days: float, chunk_steps: int = 1440) -> tuple[list[Chunk], FleetTruth]:
+def simulate(
+    spec: FleetSpec, days: float, chunk_steps: int = 1440
+) -> tuple[list[Chunk], FleetTruth]:
     """Run a whole fleet for ``days`` and return the chunks and the truth (for tests)."""
     sim = Simulator(spec)
-    total = int(round(days * 86_400.0 / spec.interval_s))
+    total = round(days * 86_400.0 / spec.interval_s)
     chunks = []
     done = 0
     while done < total:
@@ -991,7 +1053,9 @@ def random_fleet(
                 t_amb_phase_h=float(rng.uniform(13, 17)),
                 t_amb_weather_k=float(rng.uniform(0.5, 1.5) if indoor else rng.uniform(2, 4)),
                 rh_mean=float(rng.uniform(30, 60)),
-                sensor_bias=tuple(float(x) for x in rng.normal(0, [0.2, 0.2, 0.2, 0.2, 0.01, 0.01, 2.0])),
+                sensor_bias=tuple(
+                    float(x) for x in rng.normal(0, [0.2, 0.2, 0.2, 0.2, 0.01, 0.01, 2.0])
+                ),
                 off_voltage="open_circuit" if rng.random() < 0.6 else "zero",
                 volume_l=round(volume, 1),
             )

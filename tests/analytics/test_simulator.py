@@ -46,8 +46,15 @@ def quiet(device: sm.DeviceSpec, **kw: object) -> sm.DeviceSpec:
 
 def fridge(device_id: str = "unit-1", **kw: object) -> sm.DeviceSpec:
     """A 40 L single-module 12 V fridge from the standard ratings."""
-    d = sm.device_from_ratings(device_id, ua=0.45, r_hot=0.22, r_cold=0.4, c_air=900.0,
-                               c_contents=12_000.0, t_amb_mean_c=22.0)  # fmt: skip
+    d = sm.device_from_ratings(
+        device_id,
+        ua=0.45,
+        r_hot=0.22,
+        r_cold=0.4,
+        c_air=900.0,
+        c_contents=12_000.0,
+        t_amb_mean_c=22.0,
+    )
     return replace(d, **kw) if kw else d  # type: ignore[arg-type]
 
 
@@ -81,10 +88,16 @@ def test_first_law_closes_every_step() -> None:
     # every flux at the same end-of-sub-step state, so the balance is exact up to rounding:
     # stored heat is a difference of C·T terms of about 1e7 J, whose float64 rounding is
     # about 1e-9 J, hence 1e-6 J absolute against steps moving about 1e3-1e4 J.
-    spec = sm.random_fleet(12, seed=3, start_s=START, days=3,
-                           faults="wear:1,leak:1,fan:1,inner_fan:1,sag:1")  # fmt: skip
-    spec = replace(spec, events=(sm.ScheduledEvent("power_cut", "tec-0001", START + DAY, 7200.0),
-                                 sm.ScheduledEvent("load", "tec-0002", START + DAY, 0, 0.5)))  # fmt: skip
+    spec = sm.random_fleet(
+        12, seed=3, start_s=START, days=3, faults="wear:1,leak:1,fan:1,inner_fan:1,sag:1"
+    )
+    spec = replace(
+        spec,
+        events=(
+            sm.ScheduledEvent("power_cut", "tec-0001", START + DAY, 7200.0),
+            sm.ScheduledEvent("load", "tec-0002", START + DAY, 0, 0.5),
+        ),
+    )
     chunk, truth = run(spec, 3)
     e = chunk.energy
     residual = (
@@ -119,8 +132,15 @@ def test_steady_state_matches_operating_point(current: float, t_amb_c: float) ->
     # ten cabinet time constants the simulator sits at heat_paths.operating_point. The lagged
     # S, R and current vanish at steady state; what remains is the transient e^-10 and
     # rounding, hence 1e-3 K.
-    dev = quiet(fridge(), control="proportional", kp_a_per_k=0.0, i_bias_a=current,
-                v_supply=48.0, t_amb_mean_c=t_amb_c, q_internal=1.0)  # fmt: skip
+    dev = quiet(
+        fridge(),
+        control="proportional",
+        kp_a_per_k=0.0,
+        i_bias_a=current,
+        v_supply=48.0,
+        t_amb_mean_c=t_amb_c,
+        q_internal=1.0,
+    )
     spec = sm.FleetSpec((dev,), START, seed=2, sensors=False)
     chunk, _ = run(spec, 4)
     op = hp.operating_point(
@@ -206,7 +226,9 @@ def test_twins_share_their_ambient(twins: dict[str, dict[str, np.ndarray]]) -> N
         np.testing.assert_allclose(twins[name]["true_t_ambient"], twins["ok"]["true_t_ambient"])
 
 
-def test_wear_raises_v_over_i_and_leaves_the_hot_side_alone(twins: dict[str, dict[str, np.ndarray]]) -> None:
+def test_wear_raises_v_over_i_and_leaves_the_hot_side_alone(
+    twins: dict[str, dict[str, np.ndarray]],
+) -> None:
     ok, worn = twins["ok_p"], twins["wear_p"]
     ratio = [_median_on(c, c["voltage"] / np.maximum(c["current"], 1e-3)) for c in (ok, worn)]
     assert ratio[1] / ratio[0] > 1.08
@@ -233,7 +255,9 @@ def test_leak_raises_duty_cycle_not_resistance(twins: dict[str, dict[str, np.nda
 def test_inner_fan_failure_widens_cabinet_to_cold_face_gap(
     twins: dict[str, dict[str, np.ndarray]],
 ) -> None:
-    gap = [_median_on(c, c["true_t_air"] - c["true_t_cold"]) for c in (twins["ok"], twins["inner_fan"])]
+    gap = [
+        _median_on(c, c["true_t_air"] - c["true_t_cold"]) for c in (twins["ok"], twins["inner_fan"])
+    ]
     assert gap[1] > 1.8 * gap[0]
 
 
@@ -245,8 +269,15 @@ def test_supply_sag_lowers_the_drive_current(twins: dict[str, dict[str, np.ndarr
 @pytest.mark.parametrize("mode", ["drift", "stuck", "dropout"])
 def test_sensor_faults_touch_only_their_channel(mode: str) -> None:
     magnitude = {"drift": 3.0, "stuck": 1.0, "dropout": 0.1}[mode]
-    fault = sm.Fault("sensor", "unit-1", START + DAY, magnitude=magnitude,
-                     ramp_s=DAY if mode == "drift" else 0.0, channel="t_hot", mode=mode)  # fmt: skip
+    fault = sm.Fault(
+        "sensor",
+        "unit-1",
+        START + DAY,
+        magnitude=magnitude,
+        ramp_s=DAY if mode == "drift" else 0.0,
+        channel="t_hot",
+        mode=mode,
+    )
     ok, bad = _pair(fault, days=3)
     for name in sm.CHANNELS:
         if name != "t_hot":
@@ -289,8 +320,9 @@ def test_off_voltage_is_open_circuit_or_zero() -> None:
 
 
 def _fleet(seed: int) -> sm.FleetSpec:
-    return sm.random_fleet(6, seed=seed, start_s=START, days=2,
-                           faults="wear:1,leak:1,fan:1,sensor:1,offline:1")  # fmt: skip
+    return sm.random_fleet(
+        6, seed=seed, start_s=START, days=2, faults="wear:1,leak:1,fan:1,sensor:1,offline:1"
+    )
 
 
 def test_same_seed_same_data_different_seed_different_data() -> None:
@@ -320,7 +352,7 @@ def test_truth_follows_faults_and_round_trips_to_json(tmp_path: Path) -> None:
         faults=(
             sm.Fault("wear", "a", START + DAY, magnitude=1.1, ramp_s=2 * DAY),
             sm.Fault("leak", "b", START + DAY, magnitude=1.6),
-        ),  # fmt: skip
+        ),
     )
     _, truth = run(spec, 4)
     r0 = spec.devices[0].r25
@@ -370,8 +402,9 @@ def test_dropout_values_are_refused_by_design() -> None:
     fault = sm.Fault("sensor", "unit-1", START, magnitude=0.5, channel="t_cabinet", mode="dropout")
     chunk = sm.Simulator(sm.FleetSpec((dev,), START, faults=(fault,))).run(200)
     rows = [r[0] for r in chunk.payload_rows() if r[0] is not None]
-    parsed = parse_message("tecfleet/unit-1/telemetry", encode(rows), prefix="tecfleet",
-                           now_s=START + DAY)  # fmt: skip
+    parsed = parse_message(
+        "tecfleet/unit-1/telemetry", encode(rows), prefix="tecfleet", now_s=START + DAY
+    )
     assert parsed.rejects and all(r.code == "out_of_range" for r in parsed.rejects)
 
 
@@ -384,8 +417,15 @@ def test_demo_fleet_has_its_units_registrations_and_developed_faults() -> None:
     assert len(spec.devices) == 24 and set(registrations) == set(spec.device_ids)
     for body in registrations.values():
         assert set(body) == {"label", "site", "module", "cabinet"}
-        assert set(body["module"]) == {"couples", "i_max_a", "v_max_v", "dt_max_k", "q_max_w",
-                                       "t_hot_rated_c", "count"}  # fmt: skip
+        assert set(body["module"]) == {
+            "couples",
+            "i_max_a",
+            "v_max_v",
+            "dt_max_k",
+            "q_max_w",
+            "t_hot_rated_c",
+            "count",
+        }
         assert set(body["cabinet"]) == {"volume_l", "setpoint_c", "low_limit_c", "high_limit_c"}
     truth = sm.FleetTruth(spec)
     base = {d.device_id: d for d in spec.devices}

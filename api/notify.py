@@ -171,25 +171,25 @@ class Notifier(threading.Thread):
         self.group_window_ms = int(group_window_s * 1000)
         self.group_hold_ms = int(group_hold_s * 1000)
         self.allow_private = allow_private_default() if allow_private is None else allow_private
-        self._stop = threading.Event()
+        self._halt = threading.Event()
         self._mqtt: mqtt.Client | None = None
         self._http = httpx.Client(timeout=timeout_s, follow_redirects=False)
 
     # -- lifecycle -----------------------------------------------------------------------
 
     def stop(self, timeout_s: float = 10.0) -> None:
-        self._stop.set()
+        self._halt.set()
         if self.is_alive():
             self.join(timeout_s)
 
     def run(self) -> None:
         try:
-            while not self._stop.is_set():
+            while not self._halt.is_set():
                 try:
                     self.drain_once()
                 except Exception:  # keep draining after a database or broker hiccup
                     log.exception("notifier round failed")
-                self._stop.wait(self.poll_s)
+                self._halt.wait(self.poll_s)
         finally:
             self._http.close()
             if self._mqtt is not None:

@@ -236,7 +236,6 @@ def run_demo_feed(
     *,
     days_backfill: float = 14,
     interval_s: float = 60,
-    speed: float = 60.0,
     on_backfilled: Callable[[], None] | None = None,
     seed: int = 7,
     batch: int = 480,
@@ -246,12 +245,11 @@ def run_demo_feed(
     readings per message as fast as the broker takes them, then one reading per device per
     interval at the wall clock (faults go on developing) until ``stop`` is set.
 
-    ``speed`` is accepted for compatibility and not used: the live phase follows the wall
-    clock because the ingester refuses timestamps more than 5 minutes ahead. A lost broker
-    connection is retried every few seconds, resuming where the simulation stood.
+    The live phase follows the wall clock because the ingester refuses timestamps more than
+    5 minutes ahead. A lost broker connection is retried every few seconds, resuming where the
+    simulation stood.
     ``truth_out``, when given, receives ``{"spec": ..., "truth": ...}`` for tests.
     """
-    del speed
     spec, _reg = demo_fleet(seed, days_backfill=days_backfill, interval_s=interval_s)
     sim = Simulator(spec)
     if truth_out is not None:

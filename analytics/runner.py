@@ -106,7 +106,7 @@ class AnalysisSettings:
     #: +10 % on R25 as end of useful life (common practice, no source).
     wear_limit_pct: float = 10.0
     r25_flag_pct: float = 4.0
-    ua_flag_pct: float = 25.0
+    ua_flag_pct: float = 35.0
     r_hot_flag_pct: float = 50.0
     cusum_allowance: float = 0.5  # [σ], Page (1954), Montgomery (from memory)
     #: Upper ambient of climate classes SN and N, 32 °C (ISO 15502 / IEC 62552; from memory).

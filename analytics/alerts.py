@@ -183,16 +183,35 @@ class AlertPolicy:
     wear_warning_pct: float = 5.0
     wear_limit_pct: float = 10.0
     wear_days_warning: float = 30.0
-    #: Cabinet UA rise (door seal, insulation): common practice, no source.
-    heat_leak_warning_pct: float = 25.0
+    #: Cabinet UA rise (door seal, insulation): common practice, no source. The warning
+    #: level is the diagnostics' own UA change flag (35 %): below it a day's UA fit on a
+    #: healthy unit wanders that far with use and weather. The rise must also hold over
+    #: ``heat_leak_persist_s`` of consecutive estimates (two or more 6-hourly fits).
+    heat_leak_warning_pct: float = 35.0
     heat_leak_critical_pct: float = 60.0
+    heat_leak_persist_s: float = 12 * 3600.0
     #: Hot-side thermal resistance rise (fan, fins, dust): common practice, no source.
     hot_side_warning_pct: float = 50.0
     hot_side_critical_pct: float = 100.0
-    #: Capacity margin at the design ambient below which a warning goes out [W].
-    capacity_warning_w: float = 2.0
+    #: Capacity margin at the design ambient below which a warning goes out, as a fraction of
+    #: the unit's maximum cooling there: coolers are sized with 10-20 % headroom over the heat
+    #: load (common practice, no source), so under 10 % a warm day or a worn part tips it over.
+    #: A fixed watt figure would fire on small carriers that are fine (2 W is 15 % of 13 W).
+    capacity_warning_fraction: float = 0.10
+    #: Optional absolute floor [W]: also warn below this margin (0 turns it off).
+    capacity_warning_w: float = 0.0
+    #: The daily capacity figure is judged on the median of this many consecutive daily
+    #: estimates, so one day's noisy UA or sink fit does not raise it (common practice).
+    capacity_persist: int = 3
     #: Hysteresis on percentage rules [percentage points].
     trend_hysteresis_pct: float = 2.0
+    #: Estimates are judged only once the readings behind them are this old, so that the
+    #: sensor rule (a frozen channel shows only over ``stuck_window_s``) has seen them first.
+    trend_settle_s: float = 2700.0
+    #: After a sensor fault on a temperature, current or voltage channel clears, estimates
+    #: stay suspect this long: the cabinet fit spans a day and change figures take the
+    #: median of the last day (see tecfleet.analytics.runner).
+    sensor_taint_after_s: float = 2 * 86_400.0
     #: Clear for this long before auto-resolve (readings / estimates).
     clear_s: float = 1800.0
     estimate_clear_s: float = 86_400.0
@@ -612,7 +631,8 @@ def trend_observations(
         hold = (vals >= policy.wear_warning_pct - hyst) | soon
         sev = np.where(vals >= policy.wear_limit_pct, 2, np.where(active, 1, 0))
     elif kind == "heat_leak":
-        active = vals >= policy.heat_leak_warning_pct
+        above = vals >= policy.heat_leak_warning_pct
+        active = _persisting(ts, above, int(policy.heat_leak_persist_s * 1000))
         hold = vals >= policy.heat_leak_warning_pct - hyst
         sev = np.where(vals >= policy.heat_leak_critical_pct, 2, np.where(active, 1, 0))
     elif kind == "hot_side_cooling":
@@ -621,15 +641,82 @@ def trend_observations(
         sev = np.where(vals >= policy.hot_side_critical_pct, 2, np.where(active, 1, 0))
     else:
         holdable = np.array([d.get("capacity.holdable", 1.0) for d in details], np.float64)
-        active = (vals < policy.capacity_warning_w) | (holdable < 0.5)
-        hold = (vals < policy.capacity_warning_w + 0.5) | (holdable < 0.5)
-        sev = np.where((holdable < 0.5) | (vals < 0), 2, np.where(active, 1, 0))
+        q_max = np.array(
+            [d.get("capacity.max_cooling_w", math.nan) for d in details], dtype=np.float64
+        )
+        n = max(int(policy.capacity_persist), 1)
+        margin = _trailing_median(vals, n)
+        cap = _trailing_median(q_max, n)
+        can_hold = _trailing_median(holdable, n)
+        full = np.arange(len(vals)) >= n - 1  # judged once n daily figures exist
+        with np.errstate(invalid="ignore"):
+            frac = np.where(cap > 0, margin / cap, math.nan)
+        low = (frac < policy.capacity_warning_fraction) | (margin < policy.capacity_warning_w)
+        active = full & (low | (can_hold < 0.5))
+        hold = full & (
+            (frac < policy.capacity_warning_fraction + 0.02)
+            | (margin < policy.capacity_warning_w + 0.5)
+            | (can_hold < 0.5)
+        )
+        sev = np.where(active & ((can_hold < 0.5) | (margin < 0)), 2, np.where(active, 1, 0))
+        for d, m, f in zip(details, margin, frac, strict=True):
+            d["capacity.margin_median_w"] = float(m)
+            d["capacity.margin_fraction"] = float(f)
+            d["capacity.days_judged"] = n
+        vals = margin
     return Observations(ts, active, hold, sev.astype(np.int8), vals, details)
+
+
+def _persisting(ts: IntArray, cond: BoolArray, span_ms: int) -> BoolArray:
+    """True where ``cond`` has held at every sample since at least ``span_ms`` ago."""
+    out = np.zeros(len(ts), dtype=bool)
+    since: int | None = None
+    for i in range(len(ts)):
+        if not cond[i]:
+            since = None
+            continue
+        if since is None:
+            since = int(ts[i])
+        out[i] = int(ts[i]) - since >= span_ms
+    return out
+
+
+def _trailing_median(x: FloatArray, n: int) -> FloatArray:
+    """Median of each sample and the ``n - 1`` before it (fewer at the start)."""
+    return np.asarray(
+        pd.Series(x, dtype=np.float64).rolling(n, min_periods=1).median(), dtype=np.float64
+    )
 
 
 # ---------------------------------------------------------------------------
 # Summaries (pure)
 # ---------------------------------------------------------------------------
+
+
+#: Alert kinds judged on the diagnostics' estimates, which rest on every temperature channel
+#: and on the module's current and voltage (see tecfleet.analytics.runner).
+ESTIMATE_KINDS = ("module_wear", "heat_leak", "hot_side_cooling", "capacity_shortfall")
+#: Sensor-fault issues that do not falsify estimates: the diagnostics filter spikes, and a
+#: missing sample is just missing.
+_HARMLESS_ISSUES = ("spikes", "dropouts")
+
+
+def _channel_fault(issues: Sequence[str]) -> bool:
+    """Whether sensor issues put a channel's values in doubt (stuck, out of range, ...)."""
+    return any(i not in _HARMLESS_ISSUES for i in issues)
+
+
+def _recent(ev: dict[str, Any], prefix: str, base: float | None, change: float) -> float | None:
+    """The recent value a change figure was computed from: baseline·(1 + change/100).
+
+    The diagnostics compare the median of the recent values with the baseline; the newest
+    single fit may differ, so the summary shows the value behind the percentage.
+    """
+    if base is None or not math.isfinite(change):
+        return None
+    now = float(base) * (1.0 + change / 100.0)
+    ev[f"{prefix}.recent"] = now
+    return now
 
 
 def _dur(ms: float) -> str:
@@ -702,6 +789,12 @@ def describe(
     elif kind == "sensor_fault":
         issues = ev.get("issues") or ["implausible readings"]
         s = f"Sensor readings look wrong ({'; '.join(issues)}); check the probes and wiring."
+        if _channel_fault(issues):
+            ev["held_back"] = list(ESTIMATE_KINDS)
+            s += (
+                " Module wear, heat leak, hot-side cooling and capacity alerts are held back "
+                "while it lasts, as their estimates rest on these readings."
+            )
     elif kind == "module_wear":
         change = ev.get("module.resistance_25c_change_pct", float("nan"))
         base = ev.get("module.resistance_25c.baseline")
@@ -709,7 +802,8 @@ def describe(
         slope = ev.get("module.resistance_25c.slope_pct_per_30d")
         days = ev.get("module.days_to_wear_limit")
         s = f"Module resistance at 25 °C has risen {change:.1f}% since commissioning"
-        if base is not None and now is not None:
+        now = _recent(ev, "module.resistance_25c", base, change)
+        if now is not None:
             s += f" ({base:.2f} -> {now:.2f} ohm)"
         if slope is not None:
             s += f", about {slope / 30.0:.2f}%/day"
@@ -719,27 +813,33 @@ def describe(
         peak = hi
     elif kind == "heat_leak":
         change = ev.get("cabinet.ua_change_pct", float("nan"))
-        base, now = ev.get("cabinet.ua.baseline"), ev.get("cabinet.ua_w_per_k")
+        base = ev.get("cabinet.ua.baseline")
         s = f"Cabinet heat leak (UA) has risen {change:.0f}% since commissioning"
-        if base is not None and now is not None:
-            s += f" ({base:.2f} -> {now:.2f} W/K)"
+        now = _recent(ev, "cabinet.ua", base, change)
+        if now is not None:
+            s += f" ({base:.3g} -> {now:.3g} W/K)"
         s += "; check the door seal, hinges and insulation."
         peak = hi
     elif kind == "hot_side_cooling":
         change = ev.get("hot_side.resistance_change_pct", float("nan"))
-        base, now = ev.get("hot_side.resistance.baseline"), ev.get("hot_side.resistance_k_per_w")
+        base = ev.get("hot_side.resistance.baseline")
         s = f"Hot-side thermal resistance has risen {change:.0f}%"
-        if base is not None and now is not None:
+        now = _recent(ev, "hot_side.resistance", base, change)
+        if now is not None:
             s += f" ({base:.3f} -> {now:.3f} K/W)"
         s += "; clean the fins and check the hot-side fan."
         peak = hi
     else:
-        margin = ev.get("capacity.margin_w", float("nan"))
-        s = (
-            f"At the design ambient the cooler has {margin:.1f} W of cooling to spare"
-            + (" and cannot hold its setpoint" if ev.get("capacity.holdable", 1.0) < 0.5 else "")
-            + "; check module, fans and heat leak before warm weather."
-        )
+        margin = ev.get("capacity.margin_median_w", ev.get("capacity.margin_w", float("nan")))
+        frac = ev.get("capacity.margin_fraction")
+        days = ev.get("capacity.days_judged", 1)
+        s = f"At the design ambient the cooler has {margin:.1f} W of cooling to spare"
+        if frac is not None and math.isfinite(frac):
+            s += f" ({100.0 * frac:.0f}% of its maximum cooling"
+            s += f", median of {days} daily figures)" if days > 1 else ")"
+        s += (
+            " and cannot hold its setpoint" if ev.get("capacity.holdable", 1.0) < 0.5 else ""
+        ) + "; check module, fans and heat leak before warm weather."
         peak = lo
     if kind in ("excursion",) and ev.get("profile") == "medicine":
         ev["caution"] = MEDICINE_CAUTION
@@ -1128,6 +1228,29 @@ _TREND_KEYS = {
 }
 
 
+def _track_taint(state: dict[str, Any], sf: Mapping[str, Any], policy: AlertPolicy) -> None:
+    """Keep the spans [start, end] [ms] in which a sensor fault put a channel in doubt.
+
+    A span starts ``stuck_window_s`` before the fault's episode (a frozen channel shows only
+    after that window) and stays open while the episode lasts; it ends when the episode does.
+    Episodes of spikes or dropouts alone do not count.
+    """
+    spans: list[list[int | None]] = state.setdefault("sensor_taint", [])
+    ep = sf.get("ep")
+    issues = (sf.get("detail") or {}).get("issues", [])
+    is_open = bool(spans) and spans[-1][1] is None
+    if ep is not None and _channel_fault(issues):
+        if not is_open:
+            spans.append([int(ep["start"]) - int(policy.stuck_window_s * 1000), None])
+    elif ep is None and is_open:
+        spans[-1][1] = int(sf.get("last_t") or 0)
+    del spans[:-20]  # a bounded history is enough for the taint horizon
+
+
+def _tainted(t: int, spans: Sequence[tuple[Any, ...]], after_ms: int) -> bool:
+    return any(a <= t and (b is None or t <= b + after_ms) for a, b in spans)
+
+
 def _i_ref(module: Mapping[str, Any] | None) -> float | None:
     # Only the registered rating: a "largest current seen" would depend on how much history
     # a call happens to load, and evaluation has to be reproducible.
@@ -1231,8 +1354,9 @@ def _evaluate_device(
         run(
             "sensor_fault",
             sensor_fault_observations(frame, first, policy, _i_ref(dev.module)),
-            lambda _t: {},
+            lambda _t: {"suppressed": dict(state.get("suppressed", {}))},
         )
+        _track_taint(state, kinds.get("sensor_fault", {}), policy)
     if len(t_all):
         interval = usual_interval_ms(t_all)
         usual = float(interval[-1]) if np.isfinite(interval[-1]) else float("nan")
@@ -1255,10 +1379,24 @@ def _evaluate_device(
         )
     est_done = int(state.get("est_done", -1))
     newest_est = est_done
+    # judge estimates only once the sensor rule has seen the readings behind them
+    cutoff = (int(t_all[-1]) if len(t_all) else done) - int(policy.trend_settle_s * 1000)
+    taints = [tuple(x) for x in state.get("sensor_taint", [])]
+    taint_after = int(policy.sensor_taint_after_s * 1000)
     for kind, keys in _TREND_KEYS.items():
-        series = _estimates(conn, dev.device_id, keys, est_done - 2 * MS_DAY)
+        series = _estimates(conn, dev.device_id, keys, est_done - 3 * MS_DAY)
         obs = trend_observations(kind, series, policy)
-        keep = obs.t > est_done
+        keep = (obs.t > est_done) & (obs.t <= cutoff)
+        if len(obs.t) and taints:
+            bad = np.array([_tainted(int(t), taints, taint_after) for t in obs.t], dtype=bool)
+            hidden = keep & bad & obs.active
+            if hidden.any():
+                # the condition rests on a faulty channel: recorded on the sensor alert only
+                sup = state.setdefault("suppressed", {})
+                peak = float(np.max(obs.value[hidden]))
+                sup[kind] = {"at_ms": int(obs.t[hidden][-1]), "value": round(peak, 3)}
+            newest_est = max(newest_est, int(obs.t[keep][-1])) if keep.any() else newest_est
+            keep &= ~bad
         if obs.detail is not None:
             obs = Observations(
                 obs.t[keep], obs.active[keep], obs.hold[keep], obs.severity[keep], obs.value[keep],

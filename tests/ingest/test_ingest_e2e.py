@@ -24,6 +24,7 @@ def test_singles_batches_senml_and_redeliveries_store_exactly_n(
     mosquitto: Mosquitto, db_url: str
 ) -> None:
     ingester, engine, _ = start_ingester(db_url, mosquitto.url)
+    assert ingester.protocol == 5  # Debian's mosquitto 2 speaks MQTT 5
     pub = Publisher(mosquitto.url)
     try:
         n_single, n_batch, n_senml = 300, 500, 100

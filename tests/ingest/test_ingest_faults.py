@@ -10,6 +10,7 @@ import time
 from pathlib import Path
 
 import httpx
+import pytest
 import sqlalchemy as sa
 
 from tecfleet.ingest import store
@@ -77,8 +78,14 @@ def test_sigkill_mid_stream_then_restart_loses_and_doubles_nothing(
         service.wait(30)
 
 
-def test_service_stopped_cleanly_resumes_its_session(mosquitto: Mosquitto, db_url: str) -> None:
-    ingester, engine, _ = start_ingester(db_url, mosquitto.url, client_id="tecfleet-resume")
+@pytest.mark.parametrize("protocol", ["5", "3.1.1"])
+def test_service_stopped_cleanly_resumes_its_session(
+    mosquitto: Mosquitto, sqlite_url: str, protocol: str
+) -> None:
+    db_url = sqlite_url
+    ingester, engine, _ = start_ingester(
+        db_url, mosquitto.url, client_id="tecfleet-resume", mqtt_protocol=protocol
+    )
     pub = Publisher(mosquitto.url)
     try:
         for i in range(100):
@@ -90,7 +97,9 @@ def test_service_stopped_cleanly_resumes_its_session(mosquitto: Mosquitto, db_ur
         for i in range(100, 400):
             pub.publish("tecfleet/cab-q/telemetry", reading(i))
         pub.flush()
-        ingester, engine, _ = start_ingester(db_url, mosquitto.url, client_id="tecfleet-resume")
+        ingester, engine, _ = start_ingester(
+            db_url, mosquitto.url, client_id="tecfleet-resume", mqtt_protocol=protocol
+        )
         assert wait_for(lambda: count_readings(engine) == 400, 30)
         assert _seqs(engine, "cab-q") == list(range(400))
     finally:

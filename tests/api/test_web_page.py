@@ -40,6 +40,19 @@ def live_server(sqlite_url: str) -> Iterator[tuple[str, str]]:
         for i in range(300)
     ]
     store.store_batch(engine, rows)
+    with engine.begin() as c:
+        c.execute(
+            store.alerts.insert().values(
+                device_id="ward-fridge-1",
+                kind="excursion",
+                severity="warning",
+                state="open",
+                opened_ms=now_ms - 600_000,
+                updated_ms=now_ms - 600_000,
+                summary="Cabinet above its 8 °C limit for 42 min (peak 9.1 °C).",
+                evidence={"peak_c": 9.1},
+            )
+        )
     key = create_key(engine, "browser", "write")
     port = free_port()
     server = uvicorn.Server(
@@ -79,6 +92,14 @@ def test_page_shows_the_fleet_and_a_device_chart(
         page.wait_for_selector("#chart polyline", timeout=15_000)
         assert page.locator("#chart polyline").count() == 4
         assert "readings" in page.inner_text("#chart-range")
+        assert "Not analysed yet" in page.inner_text("#health")
+        # The open alert is listed and can be acknowledged from the page.
+        assert "above its 8 °C limit" in page.inner_text("#alerts")
+        page.click("button[data-ack]")
+        page.wait_for_function(
+            "document.querySelector('#alerts-note').textContent.includes('No open alerts')",
+            timeout=10_000,
+        )
         page.screenshot(path=str(tmp_path / "page.png"), full_page=True)
         # A wrong key is refused visibly, not silently.
         page.fill("#key", "tfk_wrong")

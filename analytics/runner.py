@@ -57,15 +57,19 @@ codes and licensed practice; condensation near electronics needs an electrician'
 
 from __future__ import annotations
 
+import bisect
 import math
+import multiprocessing
+import os
 import time
+from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from typing import Any
 
 import numpy as np
+import pandas as pd
 import sqlalchemy as sa
-from sqlalchemy.dialects import postgresql, sqlite
 from sqlalchemy.engine import Connection, Engine
 
 from tecfleet.ingest import store
@@ -117,6 +121,12 @@ class AnalysisSettings:
     #: Rated hot-side temperature assumed when a registration omits it, 27 °C (common
     #: practice for module datasheets, no source).
     default_t_hot_rated_c: float = 27.0
+    #: Worker processes for a run with much to catch up on (each opens its own engine from
+    #: the URL); None: min(2, CPU count). 1 analyses in this process.
+    workers: int | None = None
+    #: Fewest pending steps, summed over devices, worth starting worker processes for: a
+    #: live run (a step or two per device) stays in this process.
+    parallel_min_steps: int = 2000
 
 
 @dataclass
@@ -156,16 +166,90 @@ def analyze(
             r.device_id: (int(r.done_ms), dict(r.state))
             for r in conn.execute(sa.select(store.analysis_state))
         }
-    for dev in devs:
+    jobs = [
+        (_Device(d.device_id, d.module, d.cabinet, int(d.last_reading_ms)), states.get(d.device_id))
+        for d in devs
+    ]
+    pending = {dev.device_id: _pending_steps(engine, dev, saved, cfg) for dev, saved in jobs}
+    workers = _workers_for(engine, list(pending.values()), cfg)
+    if workers > 1:
+        # Largest first, so the processes finish together.
+        jobs.sort(key=lambda j: -pending[j[0].device_id])
+        url = engine.url.render_as_string(hide_password=False)
+        ctx = multiprocessing.get_context("spawn")  # no inherited threads or connections
+        with ProcessPoolExecutor(max_workers=workers, mp_context=ctx) as pool:
+            futures = [pool.submit(_device_job, url, dev, saved, cfg) for dev, saved in jobs]
+            results = [f.result() for f in futures]
+    else:
+        results = []
+        for dev, saved in jobs:
+            with engine.begin() as conn:
+                results.append((dev.device_id, *_analyze_device(conn, dev, saved, cfg)))
+    for dev_id, n_steps, n_est in sorted(results):
         report.devices += 1
-        with engine.begin() as conn:
-            n_steps, n_est = _analyze_device(conn, dev, states.get(dev.device_id), cfg)
         report.steps += n_steps
         report.estimates += n_est
         if n_steps == 0:
-            report.skipped[dev.device_id] = "no complete step since the last run"
+            report.skipped[dev_id] = "no complete step since the last run"
     report.seconds = time.perf_counter() - started
     return report
+
+
+@dataclass(frozen=True)
+class _Device:
+    device_id: str
+    module: Any
+    cabinet: Any
+    last_reading_ms: int
+
+
+def _first_reading_ms(conn: Connection, device_id: str) -> int | None:
+    first = conn.execute(
+        sa.select(sa.func.min(store.readings.c.ts_ms)).where(
+            store.readings.c.device_id == device_id
+        )
+    ).scalar()
+    return None if first is None else int(first)
+
+
+def _pending_steps(
+    engine: Engine, dev: _Device, saved: tuple[int, dict[str, Any]] | None, cfg: AnalysisSettings
+) -> int:
+    step = cfg.step_s * 1000
+    if saved is not None:
+        done = saved[0]
+    else:
+        with engine.connect() as conn:
+            first = _first_reading_ms(conn, dev.device_id)
+        if first is None:
+            return 0
+        done = first // step * step
+    return max(dev.last_reading_ms // step * step - done, 0) // step
+
+
+def _workers_for(engine: Engine, pending: list[int], cfg: AnalysisSettings) -> int:
+    """Worker processes for this run: 1 unless several devices have much to catch up on."""
+    workers = cfg.workers if cfg.workers is not None else min(2, os.cpu_count() or 1)
+    database = engine.url.database or ""
+    if workers <= 1 or sum(p > 0 for p in pending) < 2 or sum(pending) < cfg.parallel_min_steps:
+        return 1
+    if engine.url.get_backend_name() == "sqlite" and database in ("", ":memory:"):
+        return 1  # a private in-memory database cannot be opened by another process
+    return min(workers, len(pending))
+
+
+#: Engines of a worker process, by URL (one per process, opened on its first job).
+_WORKER_ENGINES: dict[str, Engine] = {}
+
+
+def _device_job(
+    url: str, dev: _Device, saved: tuple[int, dict[str, Any]] | None, cfg: AnalysisSettings
+) -> tuple[str, int, int]:
+    engine = _WORKER_ENGINES.get(url)
+    if engine is None:
+        engine = _WORKER_ENGINES[url] = store.make_engine(url)
+    with engine.begin() as conn:
+        return (dev.device_id, *_analyze_device(conn, dev, saved, cfg))
 
 
 def latest_health(engine: Engine, device_id: str) -> dict[str, dict[str, Any]]:
@@ -341,20 +425,16 @@ class _Rows:
 
 
 def _analyze_device(
-    conn: Connection, dev: Any, saved: tuple[int, dict[str, Any]] | None, cfg: AnalysisSettings
+    conn: Connection, dev: _Device, saved: tuple[int, dict[str, Any]] | None, cfg: AnalysisSettings
 ) -> tuple[int, int]:
     step = cfg.step_s * 1000
     window = cfg.window_s * 1000
     last = int(dev.last_reading_ms)
     if saved is None:
-        first = conn.execute(
-            sa.select(sa.func.min(store.readings.c.ts_ms)).where(
-                store.readings.c.device_id == dev.device_id
-            )
-        ).scalar()
+        first = _first_reading_ms(conn, dev.device_id)
         if first is None:
             return 0, 0
-        done = int(first) // step * step
+        done = first // step * step
         state: dict[str, Any] = {}
     else:
         done, state = saved
@@ -388,13 +468,26 @@ def _analyze_device(
     return steps, len(rows.rows)
 
 
+_ESTIMATE_COLUMNS = ("device_id", "key", "at_ms", "value", "stderr", "n", "reliable", "note")
+
+
 def _write(
     conn: Connection, device_id: str, rows: list[dict[str, Any]], done: int, state: dict[str, Any]
 ) -> None:
-    dialect = conn.dialect.name
-    ins: Any = (postgresql.insert if dialect == "postgresql" else sqlite.insert)(store.estimates)
     if rows:
-        conn.execute(ins.on_conflict_do_nothing(index_elements=["device_id", "key", "at_ms"]), rows)
+        # The driver's own executemany: SQLAlchemy's per-row parameter handling costs more
+        # than the statement itself for thousands of rows.
+        mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
+        sql = (
+            f"INSERT INTO estimates ({', '.join(_ESTIMATE_COLUMNS)}) "
+            f"VALUES ({', '.join([mark] * len(_ESTIMATE_COLUMNS))}) "
+            "ON CONFLICT (device_id, key, at_ms) DO NOTHING"
+        )
+        cursor = conn.connection.cursor()
+        try:
+            cursor.executemany(sql, [tuple(r[c] for c in _ESTIMATE_COLUMNS) for r in rows])
+        finally:
+            cursor.close()
     st = store.analysis_state
     values = {"done_ms": done, "state": state, "updated_ms": store.now_ms()}
     upd = conn.execute(st.update().where(st.c.device_id == device_id).values(**values))
@@ -619,9 +712,12 @@ def _track(
         # baseline values are no longer needed in the series beyond the trend horizon
     bl_d = bases[name]
     center, spread = float(bl_d["center"]), float(bl_d["spread"])
-    state["series"][name] = [p for p in series if p[0] >= horizon]
+    # The series is in time order: cut it by bisection rather than by scanning it every step.
+    series = series[bisect.bisect_left(series, horizon, key=_at) :]
+    state["series"][name] = series
     recent_from = b - (cfg.step_s * 1000 if name == "rhot" else MS_DAY)
-    recent = float(np.median([x for at, x in state["series"][name] if at > recent_from]))
+    tail = series[bisect.bisect_right(series, recent_from, key=_at) :]
+    recent = float(np.median([x for _, x in tail]))
     change = trends.percent_change(recent, center)
     cus = state.setdefault("cusum", {})
     c_new = trends.cusum_update(
@@ -635,6 +731,10 @@ def _track(
         # Slow-moving figures: once per window is enough, also for the hourly series.
         rows.add(f"{prefix}.baseline", b, center, spread / math.sqrt(max(n_base, 1)), n_base)
         rows.add(f"{prefix}.cusum", b, c_new, None, n_base)
+
+
+def _at(point: list[Any]) -> int:
+    return int(point[0])
 
 
 def _daily(
@@ -654,9 +754,9 @@ def _daily(
             continue
         center = float(bases[name]["center"])
         arr = np.array(series, dtype=np.float64)
-        day = np.floor(arr[:, 0] / MS_DAY)
-        days = np.unique(day)
-        med = np.array([np.median(arr[day == d, 1]) for d in days])
+        daily = pd.Series(arr[:, 1]).groupby(np.floor(arr[:, 0] / MS_DAY)).median()
+        days = daily.index.to_numpy(dtype=np.float64)
+        med = daily.to_numpy(dtype=np.float64)
         try:
             tr = trends.theil_sen_trend(days, 100.0 * (med / center - 1.0), min_points=7)
         except PhysicsError:

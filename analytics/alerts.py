@@ -201,8 +201,9 @@ class AlertPolicy:
     #: Optional absolute floor [W]: also warn below this margin (0 turns it off).
     capacity_warning_w: float = 0.0
     #: The daily capacity figure is judged on the median of this many consecutive daily
-    #: estimates, so one day's noisy UA or sink fit does not raise it (common practice).
-    capacity_persist: int = 3
+    #: estimates (a working week of use and weather), so a few days of noisy UA or sink
+    #: fits do not raise it (common practice, no source).
+    capacity_persist: int = 5
     #: Hysteresis on percentage rules [percentage points].
     trend_hysteresis_pct: float = 2.0
     #: Estimates are judged only once the readings behind them are this old, so that the

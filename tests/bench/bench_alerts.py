@@ -1,0 +1,384 @@
+"""Alerts scored against the simulator's ground truth.
+
+Run: ``python tests/bench/bench_alerts.py [--days 14] [--healthy 6] [--seed 3]``.
+Prints one row per expected alert (kind, unit, expected, fired, delay against its target)
+and one row of false positives per alert kind. Simulated data only; the test
+``tests/analytics/test_alert_scoring.py`` runs a smaller fleet through the same functions.
+
+The fleet has one unit per fault kind plus healthy units. Readings are stored a day at a time
+(``store.store_batch``), then ``runner.analyze`` and ``alerts.evaluate`` run, as the live
+service does. A fault is detected when its expected alert kind (``FleetTruth.fault_windows``)
+opens on its unit after the fault starts and within the target delay; every other alert that
+opens is a false positive, except an excursion that follows a real cause on that unit
+(a power cut, a failed fan) and an offline alert on a unit that went silent.
+
+Detection-delay targets (the diagnostics' own targets, common practice, no source): a 5 % R25
+rise flagged within 7 days of crossing 5 %, a 1.5x UA step within 2 days, a 3x hot-side
+resistance step within 2 hours. The others follow from the alert policy's delays (common
+practice, no source): a stuck probe within 3 hours (1 h window, 15 min delay, hourly
+evaluation), offline within 2 hours (5 intervals, hourly evaluation), an excursion within
+2 hours of the true cabinet air leaving its band (30 min out of band, plus the lag of the
+probe behind the air). Excursions are expected wherever the simulator's true cabinet air left
+its band (``FleetTruth.excursions``), whatever the cause. Capacity alerts are judged against
+the true spare cooling computed from the simulator's parameters.
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import sys
+import tempfile
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import sqlalchemy as sa
+
+from tecfleet.analytics import alerts, physics, runner
+from tecfleet.analytics import diagnostics as dg
+from tecfleet.analytics import simulator as sim
+from tecfleet.ingest import store
+
+START_S = 1_735_689_600.0  # 2025-01-01T00:00Z, a day boundary
+DAY_S = 86_400.0
+HOUR_S = 3_600.0
+
+#: Detection-delay targets [s] per fault label (see the module docstring).
+TARGETS_S: dict[str, float] = {
+    "wear": 7 * DAY_S,  # from the 5 % crossing
+    "leak": 2 * DAY_S,
+    "fan": 2 * HOUR_S,
+    "sensor_stuck": 3 * HOUR_S,
+    "sensor_drift": 3 * DAY_S,
+    "offline": 2 * HOUR_S,
+    "power_cut": 2 * HOUR_S,
+    "excursion": 2 * HOUR_S,
+}
+
+
+@dataclass
+class Expected:
+    """One fault (or scheduled event) and the alert it should raise."""
+
+    label: str
+    device_id: str
+    alert_kind: str
+    start_s: float
+    #: When the delay clock starts: the fault start, or the 5 % crossing of a wear ramp.
+    clock_s: float
+    target_s: float
+
+
+@dataclass
+class Score:
+    """Outcome of one run."""
+
+    expected: list[Expected]
+    fired: dict[int, float | None]  # index into expected -> opened at [s] or None
+    false_positives: list[dict[str, Any]] = field(default_factory=list)
+    opened: list[dict[str, Any]] = field(default_factory=list)
+    seconds: dict[str, float] = field(default_factory=dict)
+
+    def delay_s(self, i: int) -> float | None:
+        at = self.fired.get(i)
+        return None if at is None else at - self.expected[i].clock_s
+
+
+def scoring_fleet(
+    days: float,
+    *,
+    healthy: int = 2,
+    seed: int = 3,
+    interval_s: float = 60.0,
+    drift: bool = True,
+) -> tuple[sim.FleetSpec, list[Expected]]:
+    """One unit per fault kind plus ``healthy`` units; faults placed after the 3-day baseline.
+
+    Fault times are fractions of the run so a shorter run keeps every fault inside it.
+    ``drift`` False leaves out the drifting cabinet probe (no alert rule detects it yet).
+    """
+    n_faulty = 7 if drift else 6
+    base = sim.random_fleet(n_faulty + healthy, seed=seed, start_s=START_S, days=days, prefix="sc")
+    # no random power cuts: one is scheduled where it is wanted
+    devs = [dataclasses.replace(d, cuts_per_30d=0.0) for d in base.devices]
+    ids = [d.device_id for d in devs]
+    at = lambda frac: START_S + frac * days * DAY_S  # noqa: E731
+    wear_start = at(0.32)
+    wear_ramp = 0.45 * days * DAY_S
+    drifting = [
+        sim.Fault(
+            "sensor",
+            ids[6],
+            at(0.35),
+            magnitude=3.0,
+            ramp_s=0.4 * days * DAY_S,
+            channel="t_cabinet",
+            mode="drift",
+        )
+        for _ in range(1 if drift else 0)
+    ]
+    faults = (
+        sim.Fault("wear", ids[0], wear_start, magnitude=1.10, ramp_s=wear_ramp),
+        sim.Fault("leak", ids[1], at(0.55), magnitude=1.5),
+        sim.Fault("fan", ids[2], at(0.7), magnitude=3.0),
+        sim.Fault("sensor", ids[3], at(0.45), channel="t_hot", mode="stuck"),
+        sim.Fault("offline", ids[4], at(0.6), end_s=at(0.6) + 10 * HOUR_S),
+        *drifting,
+    )
+    events = (sim.ScheduledEvent("power_cut", ids[5], at(0.8), duration_s=10 * HOUR_S),)
+    spec = sim.FleetSpec(
+        devices=tuple(devs),
+        start_s=START_S,
+        interval_s=interval_s,
+        seed=seed,
+        faults=faults,
+        events=events,
+    )
+    truth = sim.FleetTruth(spec)
+    expected: list[Expected] = []
+    for w in truth.fault_windows():
+        label = w["kind"] if w["kind"] != "sensor" else f"sensor_{w['mode']}"
+        clock = float(w["start_s"])
+        if w["kind"] == "wear":
+            # the ramp crosses +5 % at this fraction of its length
+            clock += (0.05 / (w["magnitude"] - 1.0)) * (w["developed_s"] - w["start_s"])
+        expected.append(
+            Expected(
+                label, w["device_id"], w["alert_kind"], float(w["start_s"]), clock,
+                TARGETS_S[label],
+            )
+        )  # fmt: skip
+    return spec, expected
+
+
+def _readings(chunk: sim.Chunk) -> list[store.Reading]:
+    out = []
+    for row in chunk.payload_rows():
+        for item, device in zip(row, chunk.device_ids, strict=True):
+            if item is None:
+                continue
+            out.append(
+                store.Reading(
+                    device, round(item["ts"] * 1000), item["t_cabinet"], item["t_cold"],
+                    item["t_hot"], item["t_ambient"], item["current"], item["voltage"],
+                    seq=item["seq"], rh=item["rh"], door_open=item["door_open"],
+                )
+            )  # fmt: skip
+    return out
+
+
+def _register(engine: sa.Engine, spec: sim.FleetSpec) -> None:
+    with engine.begin() as conn:
+        for d in spec.devices:
+            reg = d.registration()
+            conn.execute(
+                store.devices.insert().values(
+                    device_id=d.device_id, module=reg["module"], cabinet=reg["cabinet"],
+                    site=None, readings=0, first_seen_ms=store.now_ms(),
+                )
+            )  # fmt: skip
+
+
+def run_fleet(
+    db_path: Path, spec: sim.FleetSpec, days: float, *, step_hours: float = 24.0
+) -> tuple[sa.Engine, sim.FleetTruth, dict[str, float]]:
+    """Simulate, store, analyse and evaluate in increments of ``step_hours``.
+
+    Returns the engine, the simulator's truth and the seconds spent per stage.
+    """
+    engine = store.make_engine(f"sqlite:///{db_path}")
+    store.migrate(engine)
+    _register(engine, spec)
+    simulator = sim.Simulator(spec)
+    per_step = round(step_hours * HOUR_S / spec.interval_s)
+    total = round(days * DAY_S / spec.interval_s)
+    spent = {"simulate": 0.0, "store": 0.0, "analyze": 0.0, "evaluate": 0.0}
+    done = 0
+    while done < total:
+        k = min(per_step, total - done)
+        t0 = time.perf_counter()
+        chunk = simulator.run(k)
+        t1 = time.perf_counter()
+        store.store_batch(engine, _readings(chunk))
+        t2 = time.perf_counter()
+        runner.analyze(engine)
+        t3 = time.perf_counter()
+        alerts.evaluate(engine)
+        t4 = time.perf_counter()
+        spent["simulate"] += t1 - t0
+        spent["store"] += t2 - t1
+        spent["analyze"] += t3 - t2
+        spent["evaluate"] += t4 - t3
+        done += k
+    truth = simulator.truth
+    # excursions still under way at the end of the run count as well
+    for dev, since in simulator.open_excursions().items():
+        truth.excursions.setdefault(dev, []).append((since, None))
+    return engine, truth, spent
+
+
+def excursions_expected(truth: sim.FleetTruth) -> list[Expected]:
+    """One expected excursion per time the true cabinet air left its band for 15 min or
+    more (``FleetTruth.excursions``), labelled by its cause when a power cut preceded it."""
+    out = []
+    for dev, windows in truth.excursions.items():
+        for start, _end in windows:
+            cut = any(c <= start for c, _ in truth.power_cuts.get(dev, []))
+            label = "power_cut" if cut else "excursion"
+            out.append(Expected(label, dev, "excursion", start, start, TARGETS_S[label]))
+    return out
+
+
+def true_capacity_fraction(truth: sim.FleetTruth, device_id: str, t_s: float) -> float:
+    """Spare cooling at the design ambient over the maximum cooling, from the true
+    parameters at ``t_s`` through the same capacity model the diagnostics use."""
+    d = truth.device(device_id)
+    p = truth.params_at(device_id, t_s)
+    cfg = runner.AnalysisSettings()
+    # the drive limits come from the registered ratings, as in the diagnostics
+    r = d.ratings
+    module = physics.parameters_from_ratings(
+        r["i_max_a"], r["v_max_v"], r["dt_max_k"], r["t_hot_rated_c"] + 273.15,
+        q_max=r["q_max_w"], n_couples=int(r["couples"]),
+    )  # fmt: skip
+    module = physics.modules_in_series(module, int(r["count"]))
+    rt = physics.ratings_from_parameters(module, cfg.default_t_hot_rated_c + 273.15)
+    cap = dg.setpoint_capacity(
+        d.setpoint_c + 273.15, cfg.design_ambient_c + 273.15, p["s25"], p["r25"], p["k"],
+        p["r_hot"], p["r_cold"], p["ua"], rt.i_max, max_voltage=rt.v_max,
+    )  # fmt: skip
+    return float(cap.margin / cap.max_cooling) if cap.max_cooling > 0 else float("-inf")
+
+
+def opened_alerts(engine: sa.Engine) -> list[dict[str, Any]]:
+    a = store.alerts
+    with engine.connect() as conn:
+        rows = conn.execute(
+            sa.select(a.c.device_id, a.c.kind, a.c.severity, a.c.opened_ms, a.c.summary)
+            .order_by(a.c.opened_ms)
+        ).fetchall()  # fmt: skip
+    return [
+        {
+            "device_id": r.device_id, "kind": r.kind, "severity": r.severity,
+            "opened_s": r.opened_ms / 1000.0, "summary": r.summary,
+        }
+        for r in rows
+    ]  # fmt: skip
+
+
+#: An alert that a fault legitimately brings along on its own unit (a failed fan can warm
+#: the cabinet; a unit that went silent may be judged offline): not a false positive.
+CONSEQUENCES: dict[str, set[str]] = {
+    "fan": {"excursion", "over_temperature", "capacity_shortfall"},
+    "leak": {"excursion", "capacity_shortfall"},
+    "wear": {"capacity_shortfall"},
+    "power_cut": {"offline"},
+}
+
+
+def score(engine: sa.Engine, faults: list[Expected], truth: sim.FleetTruth) -> Score:
+    """Match opened alerts to the faults' and the true excursions' expected alerts.
+
+    The rest are false positives, except a capacity alert on a unit whose true spare cooling
+    at that time is below the policy's fraction (the truth says it is short).
+    """
+    expected = faults + excursions_expected(truth)
+    line = alerts.AlertPolicy().capacity_warning_fraction
+    opened = opened_alerts(engine)
+    fired: dict[int, float | None] = {}
+    used: set[int] = set()
+    for i, e in enumerate(expected):
+        fired[i] = None
+        for j, a in enumerate(opened):
+            if (
+                j not in used
+                and a["device_id"] == e.device_id
+                and a["kind"] == e.alert_kind
+                and a["opened_s"] >= e.start_s
+            ):
+                fired[i] = a["opened_s"]
+                used.add(j)
+                break
+    fp = []
+    for j, a in enumerate(opened):
+        if j in used:
+            continue
+        allowed = set()
+        for e in expected:
+            if e.device_id == a["device_id"] and a["opened_s"] >= e.start_s:
+                allowed |= CONSEQUENCES.get(e.label, set())
+        if a["kind"] == "capacity_shortfall":
+            frac = true_capacity_fraction(truth, a["device_id"], a["opened_s"])
+            a["true_margin_fraction"] = frac
+            if frac < line:
+                continue
+        if a["kind"] not in allowed:
+            fp.append(a)
+    return Score(expected, fired, fp, opened)
+
+
+def table(result: Score) -> str:
+    """Kind, unit, expected alert, fired (after how long), target and the false positives."""
+    lines = [
+        f"{'fault':<14}{'unit':<10}{'expected':<20}{'fired':<7}{'delay':>10}{'target':>10}  ok",
+    ]
+    for i, e in enumerate(result.expected):
+        d = result.delay_s(i)
+        fired = "yes" if d is not None else "no"
+        delay = "-" if d is None else _human(d)
+        ok = d is not None and d <= e.target_s
+        lines.append(
+            f"{e.label:<14}{e.device_id:<10}{e.alert_kind:<20}{fired:<7}{delay:>10}"
+            f"{_human(e.target_s):>10}  {'yes' if ok else 'NO'}"
+        )
+    lines.append("")
+    lines.append(f"{'false positives by kind':<30}count  units")
+    for kind in alerts.KINDS:
+        hits = [a for a in result.false_positives if a["kind"] == kind]
+        units = ", ".join(sorted({a["device_id"] for a in hits}))
+        lines.append(f"  {kind:<28}{len(hits):>5}  {units}")
+    return "\n".join(lines)
+
+
+def _human(seconds: float) -> str:
+    if abs(seconds) < 2 * HOUR_S:
+        return f"{seconds / 60:.0f} min"
+    if abs(seconds) < 2 * DAY_S:
+        return f"{seconds / HOUR_S:.1f} h"
+    return f"{seconds / DAY_S:.1f} d"
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--days", type=float, default=14.0)
+    ap.add_argument("--healthy", type=int, default=6)
+    ap.add_argument("--seed", type=int, default=3)
+    ap.add_argument("--step-hours", type=float, default=6.0)
+    ap.add_argument("--verbose", action="store_true", help="print every alert opened")
+    ap.add_argument("--keep", type=Path, help="keep the database at this path")
+    args = ap.parse_args(argv)
+    spec, expected = scoring_fleet(args.days, healthy=args.healthy, seed=args.seed)
+    with tempfile.TemporaryDirectory() as tmp:
+        db = args.keep if args.keep is not None else Path(tmp) / "bench.db"
+        engine, truth, spent = run_fleet(db, spec, args.days, step_hours=args.step_hours)
+        result = score(engine, expected, truth)
+        engine.dispose()
+    print(
+        f"{len(spec.devices)} units ({args.healthy} healthy), {args.days:g} days, "
+        f"1-minute data, seed {args.seed}, evaluated every {args.step_hours:g} h"
+    )
+    print(table(result))
+    print("seconds: " + ", ".join(f"{k} {v:.1f}" for k, v in spent.items()))
+    if args.verbose:
+        for a in result.opened:
+            print(
+                f"  {a['device_id']} {a['kind']} {a['severity']} "
+                f"day {(a['opened_s'] - START_S) / DAY_S:.2f}: {a['summary']}"
+            )
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -39,6 +39,9 @@ from tecfleet.ingest.store import store_batch
 log = logging.getLogger(__name__)
 
 _STOP = object()
+# Label lookups cost more than the increment; resolve them once.
+_TELEMETRY_MESSAGES = metrics.MESSAGES.labels("telemetry")
+_STATUS_MESSAGES = metrics.MESSAGES.labels("status")
 
 
 @dataclass(slots=True)
@@ -251,8 +254,7 @@ class Ingester:
             future_tolerance_s=self.settings.future_tolerance_s,
             max_payload_bytes=self.settings.max_payload_bytes,
         )
-        kind = "status" if parsed.status is not None else "telemetry"
-        metrics.MESSAGES.labels(kind).inc()
+        (_STATUS_MESSAGES if parsed.status is not None else _TELEMETRY_MESSAGES).inc()
         self._queue.put(_Received(self._generation, message.mid, message.qos, parsed))
         metrics.QUEUE_DEPTH.inc()
         self.messages_received += 1

@@ -15,7 +15,7 @@ from __future__ import annotations
 import time
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, NamedTuple
 
 import sqlalchemy as sa
 from sqlalchemy import event
@@ -179,9 +179,12 @@ def migrate(engine: Engine) -> None:
         raise StoreError(f"database migration failed: {exc}") from exc
 
 
-@dataclass(frozen=True, slots=True)
-class Reading:
-    """One validated reading of one device (temperatures in °C)."""
+class Reading(NamedTuple):
+    """One validated reading of one device (temperatures in °C).
+
+    A named tuple rather than a dataclass: the ingester makes one per reading, and a tuple in
+    the insert's column order goes to the driver as it is.
+    """
 
     device_id: str
     ts_ms: int
@@ -248,15 +251,13 @@ _DEVICE_RECOUNT = (
 )
 
 
-_READING_INSERT_COLUMNS = (
-    "device_id, ts_ms, seq, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, rh,"
-    " door_open, received_ms"
-)
+# Reading's field order, then the receive time.
+_READING_INSERT_COLUMNS = ", ".join((*Reading._fields, "received_ms"))
 
 
 def _insert_readings_sql(connection: Connection) -> str:
     marker = "?" if connection.dialect.paramstyle == "qmark" else "%s"
-    values = ", ".join([marker] * 12)
+    values = ", ".join([marker] * (len(Reading._fields) + 1))
     return (
         f"INSERT INTO readings ({_READING_INSERT_COLUMNS}) VALUES ({values})"
         " ON CONFLICT (device_id, ts_ms) DO NOTHING"
@@ -294,23 +295,8 @@ def write_batch(
     if batch_readings:
         # Straight to the driver's executemany: SQLAlchemy's per-row parameter processing
         # would cost more than the insert itself.
-        rows = [
-            (
-                r.device_id,
-                r.ts_ms,
-                r.seq,
-                r.t_cabinet,
-                r.t_cold,
-                r.t_hot,
-                r.t_ambient,
-                r.current,
-                r.voltage,
-                r.rh,
-                r.door_open,
-                received,
-            )
-            for r in batch_readings
-        ]
+        tail = (received,)
+        rows = [r + tail for r in batch_readings]
         result = connection.exec_driver_sql(_insert_readings_sql(connection), rows)
         stored = result.rowcount
         if stored == len(rows):

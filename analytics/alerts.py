@@ -393,7 +393,11 @@ def usual_interval_ms(t_ms: IntArray, n: int = 60) -> FloatArray:
 
 
 def sensor_fault_observations(
-    frame: pd.DataFrame, first: int, policy: AlertPolicy, i_ref: float | None
+    frame: pd.DataFrame,
+    first: int,
+    policy: AlertPolicy,
+    i_ref: float | None,
+    interval: FloatArray | None = None,
 ) -> Observations:
     """Sensor faults on rows ``first:`` of ``frame`` (rows before are look-back only).
 
@@ -403,22 +407,18 @@ def sensor_fault_observations(
     missing in the last hour, and the cold side warmer than the cabinet by
     ``impossible_margin_k`` [K] while the module has been driven at
     ``impossible_current_fraction`` of ``i_ref`` [A] for ``impossible_on_s``.
+    ``interval`` is ``usual_interval_ms`` of the frame's times, when the caller has it.
     """
     n = len(frame)
     if n == 0 or first >= n:
         return Observations.empty()
     t = frame["ts_ms"].to_numpy(np.int64)
     idx = pd.to_datetime(t, unit="ms")
-    issues: list[list[str]] = [[] for _ in range(n)]
-
-    def mark(mask: BoolArray, label: str) -> None:
-        for i in np.flatnonzero(mask):
-            if i >= first:
-                issues[i].append(label)
-
+    # (label, mask) in the order the issues are listed in the evidence
+    checks: list[tuple[str, BoolArray]] = []
     for col, (lo, hi) in _PLAUSIBLE.items():
         x = frame[col].to_numpy(np.float64)
-        mark(np.isfinite(x) & ((x < lo) | (x > hi)), f"{col} out of range")
+        checks.append((f"{col} out of range", np.isfinite(x) & ((x < lo) | (x > hi))))
     win = f"{int(policy.stuck_window_s)}s"
     span = {}
     counts = pd.Series(1.0, index=idx).rolling(win).sum().to_numpy()
@@ -428,12 +428,16 @@ def sensor_fault_observations(
         span[col] = (s.max() - s.min()).to_numpy()
     for col in _TEMPS:
         others = np.max(np.vstack([span[c] for c in _TEMPS if c != col]), axis=0)
-        mark(
-            covered & (counts >= 10) & (span[col] <= 1e-9) & (others >= policy.stuck_other_move_k),
-            f"{col} stuck",
+        checks.append(
+            (
+                f"{col} stuck",
+                covered
+                & (counts >= 10)
+                & (span[col] <= 1e-9)
+                & (others >= policy.stuck_other_move_k),
+            )
         )
     spikes = np.zeros(n, dtype=np.float64)
-    spiky_cols = np.zeros(n, dtype=bool)
     # Only the slow channels: the module faces really do jump within a minute when the
     # drive switches on or off.
     for col in ("t_cabinet", "t_ambient"):
@@ -444,13 +448,11 @@ def sensor_fault_observations(
         down = x[1:-1] - x[2:]
         spike = (np.abs(up) > policy.spike_k) & (np.abs(down) > policy.spike_k)
         spike &= np.sign(up) == np.sign(down)
-        at = np.zeros(n, dtype=bool)
-        at[2:] = spike  # judged when the sample after the spike arrives
-        spikes += at
-        spiky_cols |= at
+        spikes[2:] += spike  # judged when the sample after the spike arrives
     spike_hour = pd.Series(spikes, index=idx).rolling("3600s").sum().to_numpy()
-    mark(spike_hour >= policy.spike_count, "spikes")
-    interval = usual_interval_ms(t)
+    checks.append(("spikes", spike_hour >= policy.spike_count))
+    if interval is None:
+        interval = usual_interval_ms(t)
     expected = 3_600_000 / interval
     present = pd.Series(1.0, index=idx).rolling("3600s").sum().to_numpy()
     hour_covered = (t - t[0]) >= 3_600_000
@@ -460,13 +462,14 @@ def sensor_fault_observations(
     longest = pd.Series(np.diff(t, prepend=t[0]).astype(np.float64), index=idx)
     longest_hour = longest.rolling("3600s").max().to_numpy()
     offline_gap = np.maximum(policy.offline_factor * interval, policy.offline_min_s * 1000)
-    mark(
-        hour_covered
-        & np.isfinite(missing)
-        & (missing > policy.dropout_fraction)
-        & ~(longest_hour > offline_gap),
-        "dropouts",
-    )
+    with np.errstate(invalid="ignore"):
+        dropped = (
+            hour_covered
+            & np.isfinite(missing)
+            & (missing > policy.dropout_fraction)
+            & ~(longest_hour > offline_gap)
+        )
+    checks.append(("dropouts", dropped))
     if i_ref is not None and i_ref > 0:
         cur = pd.Series(frame["current"].to_numpy(np.float64), index=idx)
         on_min = cur.rolling(f"{int(policy.impossible_on_s)}s").min().to_numpy()
@@ -475,16 +478,21 @@ def sensor_fault_observations(
         warm = frame["t_cold"].to_numpy(np.float64) > (
             frame["t_cabinet"].to_numpy(np.float64) + policy.impossible_margin_k
         )
-        mark(hard & warm, "cold side warmer than cabinet while cooling")
-    sl = slice(first, n)
-    active = np.array([bool(x) for x in issues[sl]], dtype=bool)
+        checks.append(("cold side warmer than cabinet while cooling", hard & warm))
+    masks = np.vstack([m[first:] for _, m in checks])
+    labels = [label for label, _ in checks]
+    count = masks.sum(axis=0)
+    active = count > 0
+    detail: list[dict[str, Any]] = [{"issues": []} for _ in range(n - first)]
+    for i in np.flatnonzero(active):
+        detail[i] = {"issues": [labels[k] for k in np.flatnonzero(masks[:, i])]}
     return Observations(
-        t[sl],
+        t[first:],
         active,
         active.copy(),
         np.where(active, 1, 0).astype(np.int8),
-        np.array([float(len(x)) for x in issues[sl]]),
-        [{"issues": x} for x in issues[sl]],
+        count.astype(np.float64),
+        detail,
     )
 
 
@@ -495,59 +503,61 @@ def offline_observations(
     status: str | None,
     status_at_ms: int | None,
     policy: AlertPolicy,
+    interval: FloatArray | None = None,
 ) -> Observations:
     """Gaps in the readings of rows ``first:`` and after the newest one, up to
     ``reference_ms`` [ms] (the newest reading of the fleet, or the wall clock live).
 
     A gap longer than ``offline_factor`` usual intervals (at least ``offline_min_s``) is
     offline from the moment the threshold passed; readings resuming clear it. A retained
-    ``offline`` status newer than the last reading counts at once.
+    ``offline`` status newer than the last reading counts at once. ``interval`` is
+    ``usual_interval_ms(t_ms)``, when the caller has it.
     """
     n = len(t_ms)
     if n == 0:
         return Observations.empty()
-    interval = usual_interval_ms(t_ms)
+    if interval is None:
+        interval = usual_interval_ms(t_ms)
     fallback = float(np.nanmedian(np.diff(t_ms))) if n > 1 else policy.offline_min_s * 1000
-    out_t: list[int] = []
-    out_a: list[bool] = []
-    out_s: list[int] = []
-    out_v: list[float] = []
-
-    def threshold(i: int) -> float:
-        usual = interval[i] if i < len(interval) and np.isfinite(interval[i]) else fallback
-        return max(policy.offline_factor * float(usual), policy.offline_min_s * 1000)
-
+    floor = policy.offline_min_s * 1000
     crit = policy.offline_critical_s * 1000
-    for i in range(max(first, 1), n):
-        gap = int(t_ms[i] - t_ms[i - 1])
-        thr = threshold(i)
-        if gap > thr:
-            out_t.append(int(t_ms[i - 1] + thr))
-            out_a.append(True)
-            out_s.append(1)
-            out_v.append(thr / 1000)
-            if gap > crit and crit > thr:
-                out_t.append(int(t_ms[i - 1] + crit))
-                out_a.append(True)
-                out_s.append(2)
-                out_v.append(crit / 1000)
-        out_t.append(int(t_ms[i]))
-        out_a.append(False)
-        out_s.append(0)
-        out_v.append(gap / 1000)
+    # Per reading i >= first: [offline at the threshold], [critical], then the reading itself.
+    i = np.arange(max(first, 1), n)
+    usual = np.where(np.isfinite(interval[i]), interval[i], fallback)
+    thr = np.maximum(policy.offline_factor * usual, floor)
+    prev = t_ms[i - 1]
+    gap = t_ms[i] - prev
+    warn = gap > thr
+    late = warn & (gap > crit) & (crit > thr)
+    m = len(i)
+    slot_t = np.zeros((m, 3), np.int64)
+    slot_t[:, 0] = (prev + thr).astype(np.int64)
+    slot_t[:, 1] = (prev + crit).astype(np.int64)
+    slot_t[:, 2] = t_ms[i]
+    slot_on = np.column_stack([warn, late, np.ones(m, bool)])
+    slot_a = np.zeros((m, 3), bool)
+    slot_a[:, 0] = True
+    slot_a[:, 1] = True
+    slot_s = np.tile(np.array([1, 2, 0], np.int8), (m, 1))
+    slot_v = np.column_stack([thr / 1000, np.full(m, crit / 1000), gap / 1000])
+    keep = slot_on.ravel()
+    out_t = list(slot_t.ravel()[keep])
+    out_a = list(slot_a.ravel()[keep])
+    out_s = list(slot_s.ravel()[keep])
+    out_v = list(slot_v.ravel()[keep])
     last = int(t_ms[-1])
-    thr = threshold(n)
+    thr_last = max(policy.offline_factor * fallback, floor)
     if status == "offline" and status_at_ms is not None and last <= status_at_ms <= reference_ms:
         out_t.append(int(status_at_ms))
         out_a.append(True)
         out_s.append(1)
         out_v.append((status_at_ms - last) / 1000)
-    elif reference_ms - last > thr:
-        out_t.append(int(last + thr))
+    elif reference_ms - last > thr_last:
+        out_t.append(int(last + thr_last))
         out_a.append(True)
         out_s.append(1)
-        out_v.append(thr / 1000)
-    if reference_ms - last > crit and crit > thr:
+        out_v.append(thr_last / 1000)
+    if reference_ms - last > crit and crit > thr_last:
         out_t.append(int(last + crit))
         out_a.append(True)
         out_s.append(2)
@@ -1202,6 +1212,36 @@ def _release_held(conn: Connection, device_id: str, reference_ms: int) -> None:
             )  # fmt: skip
 
 
+#: Reading columns the rules use, in the order ``_load_readings`` fetches them.
+_READ_COLUMNS = (
+    "ts_ms", "t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh",
+)  # fmt: skip
+
+
+def _load_readings(conn: Connection, device_id: str, after_ms: int) -> pd.DataFrame:
+    """Readings of one device newer than ``after_ms`` [ms], oldest first, as float columns
+    (``ts_ms`` int64; a missing humidity is NaN)."""
+    # Plain SQL on the driver's own cursor: building result rows costs more than the rules.
+    mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
+    sql = (
+        f"SELECT {', '.join(_READ_COLUMNS)} FROM readings "
+        f"WHERE device_id = {mark} AND ts_ms > {mark} ORDER BY ts_ms"
+    )
+    cursor = conn.connection.cursor()
+    try:
+        cursor.execute(sql, (device_id, int(after_ms)))
+        rows = cursor.fetchall()
+    finally:
+        cursor.close()
+    arr = (
+        np.array(rows, dtype=np.float64) if rows else np.zeros((0, len(_READ_COLUMNS)), np.float64)
+    )
+    data: dict[str, Any] = {c: arr[:, k] for k, c in enumerate(_READ_COLUMNS)}
+    # ms since 1970 stay below 2**53, so the float round trip is exact
+    data["ts_ms"] = arr[:, 0].astype(np.int64)
+    return pd.DataFrame(data)
+
+
 def _estimates(
     conn: Connection, device_id: str, keys: Sequence[str], after_ms: int
 ) -> dict[str, list[tuple[int, float]]]:
@@ -1273,17 +1313,9 @@ def _evaluate_device(
     lookback = int(
         max(policy.mkt_window_s, policy.stuck_window_s, policy.impossible_on_s, 3600) * 1000
     )
-    r = store.readings
-    cols = [r.c[c] for c in store.READING_COLUMNS]
-    rows = conn.execute(
-        sa.select(*cols)
-        .where(r.c.device_id == dev.device_id, r.c.ts_ms > done - lookback - 3 * MS_HOUR)
-        .order_by(r.c.ts_ms)
-    ).fetchall()
-    frame = pd.DataFrame(rows, columns=list(store.READING_COLUMNS))
-    for c in ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh"):
-        frame[c] = pd.to_numeric(frame[c], errors="coerce").astype(np.float64)
+    frame = _load_readings(conn, dev.device_id, done - lookback - 3 * MS_HOUR)
     t_all = frame["ts_ms"].to_numpy(np.int64)
+    interval_all = usual_interval_ms(t_all)
     first = int(np.searchsorted(t_all, done, side="right"))
     new = frame.iloc[first:]
     t_new = t_all[first:]
@@ -1354,13 +1386,12 @@ def _evaluate_device(
             )
         run(
             "sensor_fault",
-            sensor_fault_observations(frame, first, policy, _i_ref(dev.module)),
+            sensor_fault_observations(frame, first, policy, _i_ref(dev.module), interval_all),
             lambda _t: {"suppressed": dict(state.get("suppressed", {}))},
         )
         _track_taint(state, kinds.get("sensor_fault", {}), policy)
     if len(t_all):
-        interval = usual_interval_ms(t_all)
-        usual = float(interval[-1]) if np.isfinite(interval[-1]) else float("nan")
+        usual = float(interval_all[-1]) if np.isfinite(interval_all[-1]) else float("nan")
 
         def offline_context(t: int) -> dict[str, Any]:
             before = t_all[t_all <= t]
@@ -1374,7 +1405,13 @@ def _evaluate_device(
         run(
             "offline",
             offline_observations(
-                t_all, max(first, 1), reference_ms, dev.status, dev.status_at_ms, policy
+                t_all,
+                max(first, 1),
+                reference_ms,
+                dev.status,
+                dev.status_at_ms,
+                policy,
+                interval_all,
             ),
             offline_context,
         )
@@ -1384,8 +1421,10 @@ def _evaluate_device(
     cutoff = (int(t_all[-1]) if len(t_all) else done) - int(policy.trend_settle_s * 1000)
     taints = [tuple(x) for x in state.get("sensor_taint", [])]
     taint_after = int(policy.sensor_taint_after_s * 1000)
+    all_keys = [k for keys in _TREND_KEYS.values() for k in keys]
+    every = _estimates(conn, dev.device_id, all_keys, est_done - 3 * MS_DAY)
     for kind, keys in _TREND_KEYS.items():
-        series = _estimates(conn, dev.device_id, keys, est_done - 3 * MS_DAY)
+        series = {k: v for k, v in every.items() if k in keys}
         obs = trend_observations(kind, series, policy)
         keep = (obs.t > est_done) & (obs.t <= cutoff)
         if len(obs.t) and taints:

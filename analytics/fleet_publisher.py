@@ -76,7 +76,10 @@ class MqttSink(Sink):
     """One paho-mqtt 2.x connection publishing for every simulated device (QoS 1).
 
     At most ``max_pending`` messages wait for their PUBACK; past that, ``send`` blocks, so a
-    slow broker slows the simulator instead of filling memory.
+    slow broker slows the simulator instead of filling memory. ``before_send``, when given, is
+    called before every message and may block: a consumer in the same process uses it to hold
+    the publisher back end to end (a broker without flow control drops what its subscriber
+    does not acknowledge in time).
     """
 
     def __init__(
@@ -87,6 +90,7 @@ class MqttSink(Sink):
         client_id: str | None = None,
         max_pending: int = 200,
         connect_timeout_s: float = 15.0,
+        before_send: Callable[[], None] | None = None,
     ) -> None:
         import paho.mqtt.client as mqtt
         from paho.mqtt.enums import CallbackAPIVersion
@@ -97,6 +101,7 @@ class MqttSink(Sink):
         tls = parts.scheme in ("mqtts", "ssl")
         self.prefix = prefix
         self.max_pending = max_pending
+        self.before_send = before_send
         self.sent = 0
         self.bytes = 0
         cid = client_id or f"tecfleet-sim-{uuid.uuid4().hex[:8]}"
@@ -139,6 +144,8 @@ class MqttSink(Sink):
                     raise TimeoutError("MQTT broker did not acknowledge a QoS 1 message in 60 s")
 
     def send(self, device_id: str, readings: list[dict[str, Any]]) -> None:
+        if self.before_send is not None:
+            self.before_send()
         payload = encode(readings)
         info = self.client.publish(f"{self.prefix}/{device_id}/telemetry", payload, qos=1)
         self._pending.append(info)

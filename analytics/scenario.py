@@ -240,6 +240,7 @@ def run_demo_feed(
     seed: int = 7,
     batch: int = 480,
     truth_out: dict[str, Any] | None = None,
+    before_send: Callable[[], None] | None = None,
 ) -> None:
     """Publish the demo fleet: ``days_backfill`` of history ending now, in batches of ``batch``
     readings per message as fast as the broker takes them, then one reading per device per
@@ -248,6 +249,7 @@ def run_demo_feed(
     The live phase follows the wall clock because the ingester refuses timestamps more than
     5 minutes ahead. A lost broker connection is retried every few seconds, resuming where the
     simulation stood.
+    ``before_send`` is handed to :class:`MqttSink` (end-to-end pacing).
     ``truth_out``, when given, receives ``{"spec": ..., "truth": ...}`` for tests.
     """
     spec, _reg = demo_fleet(seed, days_backfill=days_backfill, interval_s=interval_s)
@@ -268,7 +270,9 @@ def run_demo_feed(
     while not stop.is_set():
         sink: MqttSink | None = None
         try:
-            sink = MqttSink(mqtt_url, prefix, client_id=f"tecfleet-demo-feed-{seed}")
+            sink = MqttSink(
+                mqtt_url, prefix, client_id=f"tecfleet-demo-feed-{seed}", before_send=before_send
+            )
             publish_fleet(
                 spec,
                 sink,

@@ -14,6 +14,9 @@ from tecfleet.ingest.settings import Settings, load_settings
 
 log = logging.getLogger("tecfleet")
 
+# Messages (of up to 480 readings) the demo feed lets the ingester fall behind by.
+DEMO_MAX_BACKLOG = 8
+
 # flag -> settings field; the same names as the TECFLEET_* variables.
 SETTING_FLAGS = {
     "--db": "database_url",
@@ -95,7 +98,17 @@ def cmd_demo(args: argparse.Namespace) -> int:
     register_demo_fleet(engine, seed=args.seed)
     key = create_key(engine, "demo", "admin")
     stop_feed = threading.Event()
-    service = Service(settings, engine)
+    # Analysis waits for the history: half a backfill looks like a fleet gone offline.
+    backfilled = threading.Event()
+    service = Service(settings, engine, analytics_gate=backfilled)
+
+    def pace() -> None:
+        # The embedded broker has no flow control and drops a message its subscriber has not
+        # acknowledged within 5 s, so the feed waits for the ingester to keep up.
+        ingester = service.ingester
+        while ingester is not None and ingester.backlog() > DEMO_MAX_BACKLOG:
+            if stop_feed.wait(0.02):
+                return
 
     def started() -> None:
         print(f"tecfleet demo: http://{settings.http_host}:{settings.http_port}/", flush=True)
@@ -106,7 +119,12 @@ def cmd_demo(args: argparse.Namespace) -> int:
         feed = threading.Thread(
             target=run_demo_feed,
             args=(broker.url, settings.topic_prefix, stop_feed),
-            kwargs={"days_backfill": args.days, "seed": args.seed},
+            kwargs={
+                "days_backfill": args.days,
+                "seed": args.seed,
+                "before_send": pace,
+                "on_backfilled": backfilled.set,
+            },
             name="tecfleet-demo-feed",
             daemon=True,
         )

@@ -25,8 +25,12 @@ log = logging.getLogger(__name__)
 
 
 class Service:
-    def __init__(self, settings: Settings, engine: Engine) -> None:
+    def __init__(
+        self, settings: Settings, engine: Engine, analytics_gate: threading.Event | None = None
+    ) -> None:
+        """``analytics_gate``, when given, holds the analytics loop until it is set."""
         self.settings = settings
+        self.analytics_gate = analytics_gate
         self.engine = engine
         self.stopping = threading.Event()
         self.ingester = Ingester(settings, engine) if "ingest" in settings.roles else None
@@ -40,6 +44,10 @@ class Service:
         return True, "ready"
 
     def _analytics_loop(self, analyze: Callable[[], Any]) -> None:
+        gate = self.analytics_gate
+        while gate is not None and not gate.wait(0.5):
+            if self.stopping.is_set():
+                return
         while not self.stopping.is_set():
             try:
                 analyze()

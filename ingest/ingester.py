@@ -163,6 +163,10 @@ class Ingester:
         self.ready.clear()
         metrics.CONNECTED.set(0)
 
+    def backlog(self) -> int:
+        """Messages received and not yet committed."""
+        return self._queue.qsize()
+
     # Connection ----------------------------------------------------------
 
     def _connect_loop(self) -> None:

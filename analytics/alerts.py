@@ -43,6 +43,7 @@ from numpy.typing import NDArray
 from sqlalchemy.engine import Connection, Engine
 from sqlalchemy.exc import SQLAlchemyError
 
+from tecfleet.analytics import physics
 from tecfleet.analytics.psychrometrics import dew_point
 from tecfleet.ingest import store
 from tecfleet.ingest.errors import AlertError, NotFoundError, StoreError
@@ -178,6 +179,18 @@ class AlertPolicy:
     impossible_margin_k: float = 2.0
     impossible_current_fraction: float = 0.5
     impossible_on_s: float = 1800.0
+    #: Cabinet probe against the cold side's heat balance (common practice, no source): the
+    #: offset of t_cabinet − t_cold from r_cold·Qc, fitted over the first ``drift_baseline_s``
+    #: of a unit's readings, is tracked as a median over ``drift_window_s`` of running samples
+    #: (current above ``drift_min_current_a``, at least ``drift_min_samples`` of them); a
+    #: change of ``drift_warning_k`` [K] is a sensor fault. Healthy simulated units stay within
+    #: 0.2 K of their baseline over two weeks of weather, worn modules and warm days included
+    #: (values this code produced on the simulator, tests/bench/bench_alerts.py).
+    drift_baseline_s: float = 2 * 86_400.0
+    drift_window_s: float = 12 * 3600.0
+    drift_min_current_a: float = 0.1
+    drift_min_samples: int = 60
+    drift_warning_k: float = 1.0
     #: Module wear on R25 change: +10 % as end of useful life (common practice, no source),
     #: warning from +5 % or when the limit is under wear_days_warning days away.
     wear_warning_pct: float = 5.0
@@ -375,6 +388,7 @@ def condensation_observations(
 
 
 _TEMPS = ("t_cabinet", "t_cold", "t_hot", "t_ambient")
+PROBE_DRIFT_ISSUE = "t_cabinet off the cold side's heat balance"
 _PLAUSIBLE = {
     # Plausible ranges of a cooler's sensors (common practice, no source).
     "t_cabinet": (-40.0, 60.0),
@@ -392,12 +406,97 @@ def usual_interval_ms(t_ms: IntArray, n: int = 60) -> FloatArray:
     return np.asarray(diffs.rolling(n, min_periods=5).median().shift(1), np.float64)
 
 
+def cold_side_heat_balance(
+    current: FloatArray,
+    t_cold_c: FloatArray,
+    t_hot_c: FloatArray,
+    voltage: FloatArray,
+    seebeck: float,
+    conductance: float,
+) -> FloatArray:
+    """Heat pumped at the cold face [W] from the readings.
+
+    Qc = S·I·Tc − ½·I²·R − K·(Th − Tc) (Ioffe 1957; Goldsmid 2010, ch. 2; as
+    :func:`tecfleet.analytics.physics.cold_side_heat`), with the Joule term taken from the
+    measured voltage, I·R = V − S·(Th − Tc), so a module whose resistance rises with wear does
+    not look like a drifting probe. ``seebeck`` [V/K] and ``conductance`` [W/K] of the module
+    (from its ratings), temperatures [°C], current [A], voltage [V].
+    """
+    tc = np.asarray(t_cold_c, np.float64) + T0
+    th = np.asarray(t_hot_c, np.float64) + T0
+    i = np.asarray(current, np.float64)
+    v = np.asarray(voltage, np.float64)
+    joule = 0.5 * i * (v - seebeck * (th - tc))
+    return np.asarray(seebeck * i * tc - joule - conductance * (th - tc), np.float64)
+
+
+def fit_cold_side_baseline(
+    t_cabinet: FloatArray, t_cold: FloatArray, qc: FloatArray, running: BoolArray
+) -> tuple[float, float] | None:
+    """Commissioning fit t_cabinet − t_cold = offset + r_cold·Qc over running samples.
+
+    The cabinet air gives its heat to the cold side through r_cold [K/W], so with the module
+    running the difference follows the pumped heat; ``offset`` [K] holds the probes' fixed
+    biases and what the rated module parameters miss. Returns (offset, r_cold), or None when
+    there are under 300 running samples or the fit is not physical (r_cold ≤ 0).
+    """
+    ok = running & np.isfinite(t_cabinet) & np.isfinite(t_cold) & np.isfinite(qc)
+    if int(ok.sum()) < 300 or float(np.std(qc[ok])) <= 0.0:
+        return None
+    x = np.column_stack([np.ones(int(ok.sum())), qc[ok]])
+    coef, *_ = np.linalg.lstsq(x, t_cabinet[ok] - t_cold[ok], rcond=None)
+    offset, r_cold = float(coef[0]), float(coef[1])
+    if not (math.isfinite(offset) and math.isfinite(r_cold)) or r_cold <= 0.0:
+        return None
+    return offset, r_cold
+
+
+def cabinet_probe_offset(
+    t_ms: IntArray,
+    t_cabinet: FloatArray,
+    t_cold: FloatArray,
+    qc: FloatArray,
+    running: BoolArray,
+    baseline: tuple[float, float],
+    window_s: float,
+    min_samples: int,
+) -> FloatArray:
+    """Change of the cabinet probe's reading against the cold side's heat balance [K].
+
+    Per sample: the median, over the running samples of the last ``window_s``, of
+    (t_cabinet − t_cold − r_cold·Qc) minus the commissioning ``offset``; NaN with fewer than
+    ``min_samples`` running samples, and carried over idle stretches of up to two hours.
+    A drifting cabinet probe moves it by its drift; the faces and the module equations do not.
+    """
+    n = len(t_ms)
+    out = np.full(n, np.nan)
+    offset, r_cold = baseline
+    on = np.flatnonzero(running & np.isfinite(t_cabinet) & np.isfinite(t_cold) & np.isfinite(qc))
+    if on.size == 0:
+        return out
+    resid = t_cabinet[on] - t_cold[on] - r_cold * qc[on] - offset
+    med = (
+        pd.Series(resid, index=pd.to_datetime(t_ms[on], unit="ms"))
+        .rolling(f"{int(window_s)}s", min_periods=max(int(min_samples), 1))
+        .median()
+        .to_numpy(np.float64)
+    )
+    # each sample takes the newest running sample's value at or before it, if recent
+    k = np.searchsorted(t_ms[on], t_ms, side="right") - 1
+    has = k >= 0
+    kk = np.where(has, k, 0)
+    recent = has & (t_ms - t_ms[on][kk] <= 2 * MS_HOUR)
+    out[recent] = med[kk[recent]]
+    return out
+
+
 def sensor_fault_observations(
     frame: pd.DataFrame,
     first: int,
     policy: AlertPolicy,
     i_ref: float | None,
     interval: FloatArray | None = None,
+    probe_offset: FloatArray | None = None,
 ) -> Observations:
     """Sensor faults on rows ``first:`` of ``frame`` (rows before are look-back only).
 
@@ -408,6 +507,8 @@ def sensor_fault_observations(
     ``impossible_margin_k`` [K] while the module has been driven at
     ``impossible_current_fraction`` of ``i_ref`` [A] for ``impossible_on_s``.
     ``interval`` is ``usual_interval_ms`` of the frame's times, when the caller has it.
+    ``probe_offset`` [K] per row (:func:`cabinet_probe_offset`) flags the cabinet probe when
+    it has moved by ``drift_warning_k`` against the cold side's heat balance.
     """
     n = len(frame)
     if n == 0 or first >= n:
@@ -479,6 +580,10 @@ def sensor_fault_observations(
             frame["t_cabinet"].to_numpy(np.float64) + policy.impossible_margin_k
         )
         checks.append(("cold side warmer than cabinet while cooling", hard & warm))
+    if probe_offset is not None:
+        with np.errstate(invalid="ignore"):
+            moved = np.abs(probe_offset) >= policy.drift_warning_k
+        checks.append((PROBE_DRIFT_ISSUE, moved))
     masks = np.vstack([m[first:] for _, m in checks])
     labels = [label for label, _ in checks]
     count = masks.sum(axis=0)
@@ -800,6 +905,16 @@ def describe(
     elif kind == "sensor_fault":
         issues = ev.get("issues") or ["implausible readings"]
         s = f"Sensor readings look wrong ({'; '.join(issues)}); check the probes and wiring."
+        off = ev.get("cabinet_probe_offset_k")
+        if off is not None:
+            s += (
+                f" The cabinet probe and the cold side's heat balance disagree by {off:+.1f} K"
+                " more than at commissioning"
+            )
+            if ev.get("cabinet_probe_offset_since_ms"):
+                moved = pd.Timestamp(int(ev["cabinet_probe_offset_since_ms"]), unit="ms")
+                s += f", moving since {moved:%Y-%m-%d %H:%M} UTC"
+            s += "."
         if _channel_fault(issues):
             ev["held_back"] = list(ESTIMATE_KINDS)
             s += (
@@ -1218,18 +1333,21 @@ _READ_COLUMNS = (
 )  # fmt: skip
 
 
-def _load_readings(conn: Connection, device_id: str, after_ms: int) -> pd.DataFrame:
-    """Readings of one device newer than ``after_ms`` [ms], oldest first, as float columns
-    (``ts_ms`` int64; a missing humidity is NaN)."""
+def _load_readings(
+    conn: Connection, device_id: str, after_ms: int, before_ms: int | None = None
+) -> pd.DataFrame:
+    """Readings of one device newer than ``after_ms`` [ms] (and older than ``before_ms``),
+    oldest first, as float columns (``ts_ms`` int64; a missing humidity is NaN)."""
     # Plain SQL on the driver's own cursor: building result rows costs more than the rules.
     mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
+    end = 2**62 if before_ms is None else int(before_ms)
     sql = (
         f"SELECT {', '.join(_READ_COLUMNS)} FROM readings "
-        f"WHERE device_id = {mark} AND ts_ms > {mark} ORDER BY ts_ms"
+        f"WHERE device_id = {mark} AND ts_ms > {mark} AND ts_ms < {mark} ORDER BY ts_ms"
     )
     cursor = conn.connection.cursor()
     try:
-        cursor.execute(sql, (device_id, int(after_ms)))
+        cursor.execute(sql, (device_id, int(after_ms), end))
         rows = cursor.fetchall()
     finally:
         cursor.close()
@@ -1298,6 +1416,112 @@ def _i_ref(module: Mapping[str, Any] | None) -> float | None:
     if module and module.get("i_max_a"):
         return float(module["i_max_a"])
     return None
+
+
+def _module_constants(module: Mapping[str, Any] | None) -> tuple[float, float] | None:
+    """Seebeck coefficient [V/K] and thermal conductance [W/K] of the registered module(s),
+    from the ratings (see tecfleet.analytics.physics.parameters_from_ratings)."""
+    if not module:
+        return None
+    try:
+        params = physics.parameters_from_ratings(
+            float(module["i_max_a"]),
+            float(module["v_max_v"]),
+            float(module["dt_max_k"]),
+            float(module.get("t_hot_rated_c") or 27.0) + T0,
+            q_max=None if module.get("q_max_w") is None else float(module["q_max_w"]),
+            n_couples=None if module.get("couples") is None else int(module["couples"]),
+        )
+        params = physics.modules_in_series(params, int(module.get("count") or 1))
+    except (KeyError, TypeError, ValueError):
+        return None
+    return float(params.seebeck), float(params.conductance)
+
+
+def _probe_baseline(
+    conn: Connection, dev: Any, state: dict[str, Any], policy: AlertPolicy, newest_ms: int
+) -> dict[str, Any] | None:
+    """The commissioning fit of the cabinet probe against the cold side's heat balance, made
+    once over the first ``drift_baseline_s`` of the unit's readings and kept in ``state``."""
+    if "probe_baseline" in state:
+        kept = state["probe_baseline"]
+        return kept if isinstance(kept, dict) and "r_cold" in kept else None
+    consts = _module_constants(dev.module)
+    if consts is None:
+        return None
+    r = store.readings
+    first_ms = conn.execute(
+        sa.select(sa.func.min(r.c.ts_ms)).where(r.c.device_id == dev.device_id)
+    ).scalar()
+    if first_ms is None:
+        return None
+    end_ms = int(first_ms) + int(policy.drift_baseline_s * 1000)
+    if newest_ms < end_ms:
+        return None  # not enough history yet
+    base = _load_readings(conn, dev.device_id, int(first_ms) - 1, end_ms)
+    qc = cold_side_heat_balance(
+        base["current"].to_numpy(np.float64), base["t_cold"].to_numpy(np.float64),
+        base["t_hot"].to_numpy(np.float64), base["voltage"].to_numpy(np.float64), *consts,
+    )  # fmt: skip
+    fit = fit_cold_side_baseline(
+        base["t_cabinet"].to_numpy(np.float64),
+        base["t_cold"].to_numpy(np.float64),
+        qc,
+        base["current"].to_numpy(np.float64) > policy.drift_min_current_a,
+    )
+    if fit is None:
+        state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
+        return None
+    state["probe_baseline"] = {
+        "from_ms": int(first_ms), "to_ms": end_ms, "offset_k": fit[0], "r_cold": fit[1],
+        "seebeck": consts[0], "conductance": consts[1],
+    }  # fmt: skip
+    return dict(state["probe_baseline"])
+
+
+def _probe_offsets(
+    frame: pd.DataFrame, first: int, baseline: Mapping[str, Any], policy: AlertPolicy
+) -> FloatArray:
+    """Per row of ``frame``, the cabinet probe's change against its commissioning heat
+    balance [K]; NaN before the commissioning window ended."""
+    t = frame["ts_ms"].to_numpy(np.int64)
+    cur = frame["current"].to_numpy(np.float64)
+    qc = cold_side_heat_balance(
+        cur, frame["t_cold"].to_numpy(np.float64), frame["t_hot"].to_numpy(np.float64),
+        frame["voltage"].to_numpy(np.float64), float(baseline["seebeck"]),
+        float(baseline["conductance"]),
+    )  # fmt: skip
+    off = cabinet_probe_offset(
+        t, frame["t_cabinet"].to_numpy(np.float64), frame["t_cold"].to_numpy(np.float64), qc,
+        cur > policy.drift_min_current_a, (float(baseline["offset_k"]), float(baseline["r_cold"])),
+        policy.drift_window_s, policy.drift_min_samples,
+    )  # fmt: skip
+    off[t < int(baseline["to_ms"])] = np.nan
+    return off
+
+
+def _drift_since(
+    t_new: IntArray, offset_new: FloatArray, state: dict[str, Any], quarter_k: float
+) -> IntArray:
+    """Start [ms] of the run of rows whose probe change is at least ``quarter_k`` [K] that
+    each row belongs to (0 outside one); rows without an estimate (NaN) neither start nor
+    end a run. The run open at the end is kept in ``state``."""
+    if offset_new.size == 0:
+        return np.zeros(0, np.int64)
+    carried = state.get("probe_drift_since")
+    known = np.isfinite(offset_new)
+    with np.errstate(invalid="ignore"):
+        det = np.where(known, (np.abs(offset_new) >= quarter_k).astype(np.int64), -1)
+    pos = np.maximum.accumulate(np.where(known, np.arange(det.size), -1))
+    q = np.where(pos >= 0, det[np.maximum(pos, 0)] == 1, carried is not None)
+    prev = np.concatenate([[False], q[:-1]])
+    starts = np.where(q & ~prev, t_new, 0).astype(np.int64)
+    if q[0] and carried is not None:
+        starts[0] = int(carried)
+    run = np.maximum.accumulate(starts)
+    run = np.where(q, run, 0)
+    state["probe_drift_since"] = int(run[-1]) if q[-1] else None
+    return run
 
 
 def _evaluate_device(
@@ -1384,9 +1608,21 @@ def _evaluate_device(
                 ),
                 lambda _t: {"margin_k": policy.condensation_margin_k},
             )
+        baseline = _probe_baseline(conn, dev, state, policy, int(t_all[-1]))
+        offsets = None if baseline is None else _probe_offsets(frame, first, baseline, policy)
+        sf = sensor_fault_observations(
+            frame, first, policy, _i_ref(dev.module), interval_all, offsets
+        )
+        if offsets is not None and sf.detail is not None:
+            since = _drift_since(t_new, offsets[first:], state, policy.drift_warning_k / 4)
+            for i in np.flatnonzero(sf.active):
+                if PROBE_DRIFT_ISSUE in sf.detail[i]["issues"]:
+                    sf.detail[i]["cabinet_probe_offset_k"] = round(float(offsets[first + i]), 2)
+                    sf.detail[i]["cabinet_probe_offset_since_ms"] = int(since[i]) or None
+                    sf.detail[i]["cabinet_probe_baseline"] = baseline
         run(
             "sensor_fault",
-            sensor_fault_observations(frame, first, policy, _i_ref(dev.module), interval_all),
+            sf,
             lambda _t: {"suppressed": dict(state.get("suppressed", {}))},
         )
         _track_taint(state, kinds.get("sensor_fault", {}), policy)

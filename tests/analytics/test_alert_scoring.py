@@ -33,7 +33,7 @@ DAYS = 9.0
 
 @pytest.fixture(scope="module")
 def scored(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Score]:
-    spec, faults = scoring_fleet(DAYS, healthy=2, seed=3, drift=False)
+    spec, faults = scoring_fleet(DAYS, healthy=2, seed=3)
     path: Path = tmp_path_factory.mktemp("scoring") / "t.db"
     engine, truth, _spent = run_fleet(path, spec, DAYS, step_hours=24.0)
     result = score(engine, faults, truth)
@@ -49,7 +49,7 @@ def test_every_fault_raises_its_alert_once_on_its_unit_in_time(scored: Score) ->
     labels = [e.label for e in scored.expected]
     # the simulator's truth holds every fault, and the 10-hour power cut took the cabinet
     # air out of its band (FleetTruth.excursions)
-    for label in ("wear", "leak", "fan", "sensor_stuck", "offline", "power_cut"):
+    for label in ("wear", "leak", "fan", "sensor_stuck", "sensor_drift", "offline", "power_cut"):
         assert label in labels
     for i, e in enumerate(scored.expected):
         delay = scored.delay_s(i)
@@ -96,6 +96,18 @@ def test_a_stuck_probe_does_not_raise_trend_alerts_on_its_unit(scored: Score) ->
         if a.get("device_id") == stuck.device_id and a.get("kind") == "sensor_fault"
     ]
     assert "held back" in sensor[0]["summary"]
+
+
+def test_a_drifting_cabinet_probe_is_reported_with_its_offset(scored: Score) -> None:
+    # the simulator's truth: +3 K on the cabinet probe, ramped over 40 % of the run
+    drift = next(e for e in scored.expected if e.label == "sensor_drift")
+    sensor = [
+        a
+        for a in scored.opened
+        if a.get("device_id") == drift.device_id and a.get("kind") == "sensor_fault"
+    ]
+    assert len(sensor) == 1
+    assert "heat balance disagree by +" in sensor[0]["summary"]
 
 
 def test_no_false_positive_of_the_reading_rules(scored: Score) -> None:

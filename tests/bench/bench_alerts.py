@@ -97,7 +97,7 @@ def scoring_fleet(
     """One unit per fault kind plus ``healthy`` units; faults placed after the 3-day baseline.
 
     Fault times are fractions of the run so a shorter run keeps every fault inside it.
-    ``drift`` False leaves out the drifting cabinet probe (no alert rule detects it yet).
+    ``drift`` False leaves out the drifting cabinet probe.
     """
     n_faulty = 7 if drift else 6
     base = sim.random_fleet(n_faulty + healthy, seed=seed, start_s=START_S, days=days, prefix="sc")

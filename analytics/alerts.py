@@ -1446,8 +1446,7 @@ def _probe_baseline(
     if "probe_baseline" in state:
         kept = state["probe_baseline"]
         return kept if isinstance(kept, dict) and "r_cold" in kept else None
-    consts = _module_constants(dev.module)
-    if consts is None:
+    if not dev.module:
         return None
     r = store.readings
     first_ms = conn.execute(
@@ -1458,6 +1457,10 @@ def _probe_baseline(
     end_ms = int(first_ms) + int(policy.drift_baseline_s * 1000)
     if newest_ms < end_ms:
         return None  # not enough history yet
+    consts = _module_constants(dev.module)
+    if consts is None:
+        state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
+        return None
     base = _load_readings(conn, dev.device_id, int(first_ms) - 1, end_ms)
     qc = cold_side_heat_balance(
         base["current"].to_numpy(np.float64), base["t_cold"].to_numpy(np.float64),

@@ -620,6 +620,30 @@ def _robust_weighted(
     return params / scale, cov / np.outer(scale, scale), forced
 
 
+def _strobed_blocks(
+    on: BoolArray, block: NDArray[np.int64], max_lag: int = 6, min_match: float = 0.95
+) -> BoolArray:
+    # Blocks whose on/off pattern repeats exactly every few samples while it switches: the
+    # thermostat cycle is then locked to a multiple of the sampling interval and the samples
+    # see the same few phases of every cycle, so block means of the cycling heat flows are
+    # biased (stroboscopic aliasing; C. E. Shannon, Proc. IRE 37, 10, 1949, on sampling).
+    # Per block: largest fraction of sample pairs ``lag`` apart (2..max_lag) that agree.
+    n_blk = int(block.max()) + 1 if block.size else 0
+    sw = _segment_sums(block, n_blk, (on[1:] != on[:-1]).astype(np.float64))
+    best = np.zeros(n_blk)
+    for lag in range(2, max_lag + 1):
+        if on.size <= lag:
+            break
+        same = (on[lag:] == on[:-lag]).astype(np.float64)
+        b = block[lag - 1 :]
+        frac = _segment_sums(b, n_blk, same) / np.maximum(
+            _segment_sums(b, n_blk, np.ones_like(same)), 1.0
+        )
+        best = np.maximum(best, frac)
+    # A cycle seen fewer than ~5 times in the block is not enough to call it locked.
+    return np.asarray((best >= min_match) & (sw >= 10.0), dtype=bool)
+
+
 def fit_thermal(
     time_s: FloatArray,
     t_cabinet: FloatArray,
@@ -660,7 +684,9 @@ def fit_thermal(
 
     with a prior on q_int (``q_internal_prior``). Blocks of an hour or more average over the
     thermostat cycles, so heat exchanged with slowly following contents mostly cancels; blocks
-    the model cannot explain (warm goods put in) are dropped as outliers. Lumped-capacitance
+    the model cannot explain (warm goods put in) are dropped as outliers, and so are blocks in
+    which the on/off cycle is locked to a few sampling intervals (the samples then see only
+    some phases of each cycle, which biases the block means). Lumped-capacitance
     balances: Incropera et al. (2007), ch. 5.
 
     Parameters
@@ -758,9 +784,12 @@ def fit_thermal(
     k_sd = float(np.sqrt(max(cov1[0, 0], 0.0)))
     k_from_data = not forced and k_sd < 0.5 * k_prior_rel * k_prior
 
-    # Cabinet: every usable pair counts (switching does not matter for whole-hour sums).
+    # Cabinet: every usable pair counts (switching does not matter for whole-hour sums),
+    # except in blocks where the on/off cycle is commensurate with the sampling.
     qc = pc - k * dtv
-    bsums, n_blocks, _, _ = segments(cabinet_block_s, base)
+    blk = np.floor((t[:-1] - t[0]) / cabinet_block_s).astype(np.int64)
+    strobed = _strobed_blocks(on, blk)
+    bsums, n_blocks, _, _ = segments(cabinet_block_s, base & ~strobed[blk])
     if n_blocks < 3:
         raise InsufficientDataError(
             f"{n_blocks} usable {cabinet_block_s / 3600:.1f}-hour blocks, need 3",

@@ -250,3 +250,18 @@ def test_capacity_with_true_parameters() -> None:
     )
     assert cap.holdable and cap.margin > 0.0
     assert cap.heat_load == pytest.approx(tr.ua * 20.0)
+
+
+def test_cycle_locked_to_the_sampling_is_left_out_of_the_cabinet_balance() -> None:
+    # Sampling theorem (C. E. Shannon, Proc. IRE 37, 10, 1949): a cycle whose period is a
+    # whole number of sampling intervals is seen at the same few phases every time, so the
+    # sample mean of its on fraction is biased. Three one-hour blocks of 60 samples: an on/off
+    # pattern repeating every 3 samples (locked), an irregular pattern with the same share of
+    # on samples drawn at random, and a module on throughout (no cycle to alias).
+    rng = np.random.default_rng(7)
+    locked = np.tile([False, True, False], 20)
+    irregular = rng.random(60) < 1.0 / 3.0
+    steady = np.ones(60, dtype=bool)
+    on = np.concatenate([locked, irregular, steady])
+    block = np.repeat(np.arange(3), 60)[:-1]
+    assert dg._strobed_blocks(on, block).tolist() == [True, False, False]

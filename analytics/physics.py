@@ -101,6 +101,23 @@ __all__ = [
 # ---------------------------------------------------------------------------
 
 
+def _electrical_inputs(
+    current: FloatOrArray,
+    t_cold: FloatOrArray,
+    t_hot: FloatOrArray,
+    seebeck: FloatOrArray,
+    resistance: FloatOrArray,
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray, FloatArray]:
+    """Checked current, face temperatures, S and R, in that order."""
+    return (
+        finite(current, "current"),
+        temperature(t_cold, "t_cold"),
+        temperature(t_hot, "t_hot"),
+        positive(seebeck, "seebeck"),
+        positive(resistance, "resistance"),
+    )
+
+
 def module_voltage(
     current: FloatOrArray,
     t_cold: FloatOrArray,
@@ -124,11 +141,7 @@ def module_voltage(
     -------
     Terminal voltage [V].
     """
-    i = finite(current, "current")
-    tc = temperature(t_cold, "t_cold")
-    th = temperature(t_hot, "t_hot")
-    s = positive(seebeck, "seebeck")
-    r = positive(resistance, "resistance")
+    i, tc, th, s, r = _electrical_inputs(current, t_cold, t_hot, seebeck, resistance)
     return out(s * (th - tc) + i * r)
 
 
@@ -158,11 +171,7 @@ def cold_side_heat(
     -------
     Heat absorbed at the cold face, positive when cooling [W].
     """
-    i = finite(current, "current")
-    tc = temperature(t_cold, "t_cold")
-    th = temperature(t_hot, "t_hot")
-    s = positive(seebeck, "seebeck")
-    r = positive(resistance, "resistance")
+    i, tc, th, s, r = _electrical_inputs(current, t_cold, t_hot, seebeck, resistance)
     k = positive(conductance, "conductance")
     return out(_qc(i, tc, th, s, r, k))
 
@@ -192,11 +201,7 @@ def hot_side_heat(
     -------
     Heat released at the hot face [W].
     """
-    i = finite(current, "current")
-    tc = temperature(t_cold, "t_cold")
-    th = temperature(t_hot, "t_hot")
-    s = positive(seebeck, "seebeck")
-    r = positive(resistance, "resistance")
+    i, tc, th, s, r = _electrical_inputs(current, t_cold, t_hot, seebeck, resistance)
     k = positive(conductance, "conductance")
     return out(_qh(i, tc, th, s, r, k))
 
@@ -224,11 +229,7 @@ def input_power(
     -------
     Electrical power taken by the module [W].
     """
-    i = finite(current, "current")
-    tc = temperature(t_cold, "t_cold")
-    th = temperature(t_hot, "t_hot")
-    s = positive(seebeck, "seebeck")
-    r = positive(resistance, "resistance")
+    i, tc, th, s, r = _electrical_inputs(current, t_cold, t_hot, seebeck, resistance)
     return out(_power(i, tc, th, s, r))
 
 
@@ -260,11 +261,7 @@ def cop(
     COP, heat pumped per unit electrical input [-] (negative when the module
     takes power but the load gains heat).
     """
-    i = finite(current, "current")
-    tc = temperature(t_cold, "t_cold")
-    th = temperature(t_hot, "t_hot")
-    s = positive(seebeck, "seebeck")
-    r = positive(resistance, "resistance")
+    i, tc, th, s, r = _electrical_inputs(current, t_cold, t_hot, seebeck, resistance)
     k = positive(conductance, "conductance")
     p = _power(i, tc, th, s, r)
     if np.any(p <= 0.0):

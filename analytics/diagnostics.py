@@ -798,7 +798,7 @@ def fit_thermal(
     x_cab = np.column_stack([bsums(trap(ta - tcab)), bsums(h), -bsums(np.diff(tcab))])
     q0, q_sd = q_internal_prior
     p2, cov2, _ = _robust_weighted(
-        [(x_cab, bsums(trap(qc)))], 1, q0, q_sd, (0,), hold_when_weak=False
+        [(x_cab, bsums(trap(qc)))], 1, q0, q_sd, (0, 1), hold_when_weak=False
     )
     ua, q_int, c = (float(v) for v in p2)
     if ua <= 0.0:

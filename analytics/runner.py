@@ -49,6 +49,8 @@ quality.switch_offs / quality.driver_floating  on/off cycles seen; open-circuit 
 
 ``<q>`` is ``module.resistance_25c`` (6-hourly), ``cabinet.ua`` (6-hourly) or
 ``hot_side.resistance`` (hourly). Change keys appear once the baseline period has passed.
+UA's baseline leaves out the first day (pull-down), and its flag needs the change to hold
+over two consecutive 6-hourly evaluations.
 
 Cautions: these estimates support maintenance; they do not replace temperature monitoring of
 medicines or samples. For storage of medicines follow the maker's instructions and local
@@ -111,6 +113,12 @@ class AnalysisSettings:
     wear_limit_pct: float = 10.0
     r25_flag_pct: float = 4.0
     ua_flag_pct: float = 35.0
+    #: UA baseline starts this long after the first UA fit: the first day of a unit's
+    #: history holds its pull-down, which the cabinet balance over a day does not describe.
+    ua_baseline_skip_days: float = 1.0
+    #: Consecutive 6-hourly evaluations at or above ``ua_flag_pct`` before the UA flag is
+    #: raised: one day's fit can swing that far with weather and use, a leak stays.
+    ua_flag_persist: int = 2
     r_hot_flag_pct: float = 50.0
     cusum_allowance: float = 0.5  # [σ], Page (1954), Montgomery (from memory)
     #: Upper ambient of climate classes SN and N, 32 °C (ISO 15502 / IEC 62552; from memory).
@@ -634,7 +642,10 @@ def _fit_window(
         note = None if ok else f"only {rise:.1f} K across this path: probe offsets dominate"
         rows.add(key, b, 1.0 / g, se, ns, ok, note)
     if th_fit.ua_reliable:
-        _track(rows, state, "ua", "cabinet.ua", b, th_fit.ua, cfg.ua_flag_pct, 0.03, cfg)
+        _track(
+            rows, state, "ua", "cabinet.ua", b, th_fit.ua, cfg.ua_flag_pct, 0.03, cfg,
+            skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
+        )  # fmt: skip
 
     # --- performance now ---
     pick = fl.steady & fl.on & (t >= t[-1] - 3600.0)
@@ -691,20 +702,29 @@ def _track(
     flag_pct: float,
     min_rel_spread: float,
     cfg: AnalysisSettings,
+    *,
+    skip_days: float = 0.0,
+    persist: int = 1,
 ) -> None:
-    """Append a value to its series and emit baseline, change, CUSUM and flag estimates."""
+    """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
+
+    The baseline is the median of the values from ``skip_days`` to ``skip_days +
+    baseline_days`` after the first one; the flag is raised once the change has reached
+    ``flag_pct`` on ``persist`` consecutive evaluations.
+    """
     series = state.setdefault("series", {}).setdefault(name, [])
     first = state.setdefault("first", {}).setdefault(name, b)
     series.append([b, value])
     horizon = b - int(cfg.trend_days * MS_DAY)
-    baseline_end = first + int(cfg.baseline_days * MS_DAY)
+    baseline_start = first + int(skip_days * MS_DAY)
+    baseline_end = baseline_start + int(cfg.baseline_days * MS_DAY)
     while series and series[0][0] < horizon and series[0][0] > baseline_end:
         series.pop(0)
     bases = state.setdefault("baseline", {})
     if name not in bases:
         if b < baseline_end:
             return
-        pool = np.array([x for at, x in series if at <= baseline_end])
+        pool = np.array([x for at, x in series if baseline_start <= at <= baseline_end])
         if pool.size == 0:
             return
         bl = trends.baseline(pool, min_rel_spread)
@@ -726,7 +746,9 @@ def _track(
     cus[name] = c_new
     n_base = int(bl_d["n"])
     rows.add(f"{prefix}.change_pct", b, change, 100.0 * spread / center, n_base)
-    rows.add(f"{prefix}.flag", b, 1.0 if change >= flag_pct else 0.0, None, n_base)
+    above = state.setdefault("above", {})
+    above[name] = int(above.get(name, 0)) + 1 if change >= flag_pct else 0
+    rows.add(f"{prefix}.flag", b, 1.0 if above[name] >= persist else 0.0, None, n_base)
     if b % (cfg.window_s * 1000) == 0:
         # Slow-moving figures: once per window is enough, also for the hourly series.
         rows.add(f"{prefix}.baseline", b, center, spread / math.sqrt(max(n_base, 1)), n_base)

@@ -682,8 +682,10 @@ def fit_thermal(
 
         ∫Qc = UA·∫(Ta - Tcab) + q_int·τ - C·δTcab
 
-    with a prior on q_int (``q_internal_prior``). Blocks of an hour or more average over the
-    thermostat cycles, so heat exchanged with slowly following contents mostly cancels; blocks
+    with a prior on q_int (``q_internal_prior``), held at that prior when the fit would make the
+    internal load negative (fans and electronics release heat). Blocks of an hour or more
+    average over the thermostat cycles, so heat exchanged with slowly following contents mostly
+    cancels; blocks
     the model cannot explain (warm goods put in) are dropped as outliers, and so are blocks in
     which the on/off cycle is locked to a few sampling intervals (the samples then see only
     some phases of each cycle, which biases the block means). Lumped-capacitance

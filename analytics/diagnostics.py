@@ -56,6 +56,7 @@ __all__ = [
     "flag_samples",
     "harman_steps",
     "hot_side_resistance_ratio",
+    "hot_side_resistance_ratios",
     "performance_now",
     "propagate",
     "setpoint_capacity",
@@ -897,36 +898,97 @@ def hot_side_resistance_ratio(
     ------
     InsufficientDataError : too little heat rejected to measure it.
     """
+    ests = hot_side_resistance_ratios(
+        time_s, t_hot, t_ambient, t_cold, current, seebeck, resistance, conductance, usable,
+        np.zeros(np.size(time_s), dtype=np.int64), 1, c_hot=c_hot, max_gap_s=max_gap_s,
+        min_heat_j=min_heat_j, probe_offset_k=probe_offset_k, max_rel_stderr=max_rel_stderr,
+    )  # fmt: skip
+    est = ests[0]
+    if isinstance(est, InsufficientDataError):
+        raise est
+    return est
+
+
+def hot_side_resistance_ratios(
+    time_s: FloatArray,
+    t_hot: FloatArray,
+    t_ambient: FloatArray,
+    t_cold: FloatArray,
+    current: FloatArray,
+    seebeck: FloatArray,
+    resistance: FloatArray,
+    conductance: float,
+    usable: BoolArray,
+    block: NDArray[np.int64],
+    n_blocks: int,
+    *,
+    c_hot: float = 0.0,
+    max_gap_s: float = 180.0,
+    min_heat_j: float = 3.6e4,
+    probe_offset_k: float = 0.3,
+    max_rel_stderr: float = 0.2,
+) -> list[Estimate | InsufficientDataError]:
+    """:func:`hot_side_resistance_ratio` over many stretches of readings at once.
+
+    Each sample belongs to the stretch ``block`` (0 .. ``n_blocks`` - 1, non-decreasing in
+    time); only consecutive samples of the same stretch form a pair. Per-stretch integrals are
+    ``numpy.bincount`` sums, so one call costs about as much as one stretch.
+
+    Parameters
+    ----------
+    time_s ... max_rel_stderr : As in :func:`hot_side_resistance_ratio`.
+    block : Stretch of each sample [-].
+    n_blocks : Number of stretches [-].
+
+    Returns
+    -------
+    Per stretch, r_hot [K/W], or the error saying why there is none.
+    """
     t = np.asarray(time_s, dtype=np.float64)
     th = np.asarray(t_hot, dtype=np.float64)
     i = np.asarray(current, dtype=np.float64)
+    blk = np.asarray(block, dtype=np.int64)
     qh = seebeck * i * th + 0.5 * i * i * resistance - conductance * (th - t_cold)
     rise = th - t_ambient
     h = np.diff(t)
-    pair = usable[:-1] & usable[1:] & (h <= max_gap_s) & (h > 0)
-    q_int = 0.5 * (qh[:-1] + qh[1:]) * h
-    r_int = 0.5 * (rise[:-1] + rise[1:]) * h
-    heat = float(q_int[pair].sum() - c_hot * np.diff(th)[pair].sum())
-    n = int(pair.sum())
-    if n < 10 or heat < min_heat_j:
-        raise InsufficientDataError(
-            f"{heat:.3g} J rejected over {n} sample pairs", "module hardly ran: no heat to measure"
-        )
-    value = float(r_int[pair].sum()) / heat
+    pair = usable[:-1] & usable[1:] & (h <= max_gap_s) & (h > 0) & (blk[:-1] == blk[1:])
+    seg = blk[:-1][pair]
+    q_int = (0.5 * (qh[:-1] + qh[1:]) * h)[pair]
+    r_int = (0.5 * (rise[:-1] + rise[1:]) * h)[pair]
+
+    def sums(f: FloatArray) -> FloatArray:
+        return _segment_sums(seg, n_blocks, f)
+
+    q_sum, r_sum, h_sum = sums(q_int), sums(r_int), sums(h[pair])
+    heat = q_sum - c_hot * sums(np.diff(th)[pair])
+    n = np.bincount(seg, minlength=n_blocks)
+    ok = (n >= 10) & (heat >= min_heat_j)
+    value = np.where(ok, r_sum / np.where(ok, heat, 1.0), np.nan)
     # Spread of the pair-level mismatch against the fitted ratio, summed as independent errors.
-    mismatch = r_int[pair] - value * q_int[pair]
-    se_noise = float(np.sqrt(np.sum(mismatch**2))) / heat
+    mismatch = r_int - value[seg] * q_int
+    se_noise = np.sqrt(sums(mismatch**2)) / np.where(ok, heat, 1.0)
     # A constant probe offset does not average out: it shifts the mean rise itself.
-    mean_rise = float(r_int[pair].sum()) / float(h[pair].sum())
-    se_offset = abs(value) * probe_offset_k / max(abs(mean_rise), 1e-9)
-    se = math.hypot(se_noise, se_offset)
-    reliable = se < max_rel_stderr * abs(value)
-    note = (
-        None
-        if reliable
-        else f"hot sink only {mean_rise:.1f} K above ambient: probe offsets dominate"
-    )
-    return Estimate(value, se, n, reliable, note)
+    mean_rise = r_sum / np.where(h_sum > 0.0, h_sum, 1.0)
+    se_offset = np.abs(value) * probe_offset_k / np.maximum(np.abs(mean_rise), 1e-9)
+    se = np.hypot(se_noise, se_offset)
+    out: list[Estimate | InsufficientDataError] = []
+    for j in range(n_blocks):
+        if not ok[j]:
+            out.append(
+                InsufficientDataError(
+                    f"{heat[j]:.3g} J rejected over {n[j]} sample pairs",
+                    "module hardly ran: no heat to measure",
+                )
+            )
+            continue
+        reliable = bool(se[j] < max_rel_stderr * abs(value[j]))
+        note = (
+            None
+            if reliable
+            else f"hot sink only {mean_rise[j]:.1f} K above ambient: probe offsets dominate"
+        )
+        out.append(Estimate(float(value[j]), float(se[j]), int(n[j]), reliable, note))
+    return out
 
 
 # ---------------------------------------------------------------------------

@@ -465,13 +465,18 @@ def _analyze_device(
     cabinet = dev.cabinet if isinstance(dev.cabinet, dict) else {}
     setpoint_c = float(cabinet.get("setpoint_c") or cfg.default_setpoint_c)
     steps = 0
+    hot: dict[int, dg.Estimate | None] = {}
     for b in range(done + step, end + 1, step):
         steps += 1
         if b % window == 0:
             _fit_window(data, b, rows, state, prior, cfg)
+            hot = {}
         if b % (cfg.daily_s * 1000) == 0:
             _daily(b, rows, state, prior, setpoint_c, cfg)
-        _hourly(data, b, rows, state, cfg)
+        if b not in hot:
+            # The fitted parameters hold until the next window: every hour up to it at once.
+            hot = _hot_side(data, b, min(b // window * window + window - step, end), state, cfg)
+        _hourly(b, hot.get(b), rows, state, cfg)
     _write(conn, dev.device_id, rows.rows, end, state)
     return steps, len(rows.rows)
 
@@ -667,24 +672,37 @@ def _fit_window(
             rows.est(f"performance.{name}", b, getattr(perf, name))
 
 
-def _hourly(data: _Data, b: int, rows: _Rows, state: dict[str, Any], cfg: AnalysisSettings) -> None:
+def _hot_side(
+    data: _Data, first: int, last: int, state: dict[str, Any], cfg: AnalysisSettings
+) -> dict[int, dg.Estimate | None]:
+    """Hot-side resistance of the hourly steps ending at ``first`` .. ``last`` (inclusive)."""
+    step = cfg.step_s * 1000
+    ends = range(first, last + 1, step)
     params = state.get("params")
     if not params or "k" not in params or "c_hot" not in params:
-        return
-    step = cfg.step_s * 1000
-    w = data.slice(b - step, b)
-    fl = _flags(data, w)
-    if w.stop - w.start < 10:
-        return
+        return dict.fromkeys(ends)
+    w = data.slice(first - step, last)
+    ts = data.ts[w]
+    block = (ts - (first - step)) // step
     tm = 0.5 * (data.tc[w] + data.th[w])
     s = params["s25"] * (1.0 + cfg.beta * (tm - T_25C_K))
     r = params["r25"] * (1.0 + cfg.alpha * (tm - T_25C_K))
-    try:
-        est = dg.hot_side_resistance_ratio(
-            data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r, params["k"],
-            fl.usable, c_hot=params["c_hot"], probe_offset_k=cfg.probe_offset_k,
-        )  # fmt: skip
-    except PhysicsError:
+    ests = dg.hot_side_resistance_ratios(
+        data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r, params["k"],
+        _flags(data, w).usable, block, len(ends), c_hot=params["c_hot"],
+        probe_offset_k=cfg.probe_offset_k,
+    )  # fmt: skip
+    n_samples = np.bincount(block, minlength=len(ends))
+    return {
+        b: est if isinstance(est, dg.Estimate) and n >= 10 else None
+        for b, est, n in zip(ends, ests, n_samples, strict=True)
+    }
+
+
+def _hourly(
+    b: int, est: dg.Estimate | None, rows: _Rows, state: dict[str, Any], cfg: AnalysisSettings
+) -> None:
+    if est is None:
         return
     rows.est("hot_side.resistance_k_per_w", b, est)
     if not est.reliable:

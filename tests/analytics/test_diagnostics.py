@@ -265,3 +265,33 @@ def test_cycle_locked_to_the_sampling_is_left_out_of_the_cabinet_balance() -> No
     on = np.concatenate([locked, irregular, steady])
     block = np.repeat(np.arange(3), 60)[:-1]
     assert dg._strobed_blocks(on, block).tolist() == [True, False, False]
+
+
+def test_hot_side_resistance_per_hour_matches_one_hour_at_a_time(day: dict[str, Any]) -> None:
+    # Several hours in one call: each hour's figures as from its own call (pairs never span
+    # two hours); an hour with the module off gives its reason instead.
+    tr = Truth()
+    sl = slice(540, 780)
+    tm = 0.5 * (day["t_cold"] + day["t_hot"])
+    args = (
+        day["t"], day["t_hot"], day["t_ambient"], day["t_cold"], day["i"].copy(),
+        np.asarray(ph.seebeck_at_temperature(tr.s25, tm, tr.beta)),
+        np.asarray(ph.resistance_at_temperature(tr.r25, tm, tr.alpha)),
+    )  # fmt: skip
+    args[4][720:780] = 0.0
+    usable = day["flags"].usable
+    block = (np.arange(sl.start, sl.stop) - sl.start) // 60
+    many = dg.hot_side_resistance_ratios(
+        *(a[sl] for a in args), tr.k, usable[sl], block, 4, c_hot=tr.c_hot
+    )
+    assert len(many) == 4
+    for j, got in enumerate(many[:3]):
+        one = slice(sl.start + 60 * j, sl.start + 60 * (j + 1))
+        want = dg.hot_side_resistance_ratio(
+            *(a[one] for a in args), tr.k, usable[one], c_hot=tr.c_hot
+        )
+        assert isinstance(got, dg.Estimate)
+        assert got.n == want.n and got.reliable == want.reliable
+        assert got.value == pytest.approx(want.value, rel=1e-12)
+        assert got.stderr == pytest.approx(want.stderr, rel=1e-12)
+    assert isinstance(many[3], InsufficientDataError)

@@ -63,6 +63,7 @@ import bisect
 import math
 import multiprocessing
 import os
+import statistics
 import time
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
@@ -346,6 +347,10 @@ class _Data:
         return slice(a, b)
 
 
+#: Address space SQLite may map per connection for reading (only what the file holds is mapped).
+_SQLITE_MMAP_BYTES = 1 << 30
+
+
 def _load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> _Data:
     # Plain SQL on the driver's own cursor: building result rows costs more than the analysis.
     mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
@@ -356,6 +361,10 @@ def _load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> _Data
     )
     cursor = conn.connection.cursor()
     try:
+        if conn.dialect.name == "sqlite":
+            # A device's rows lie scattered over the whole table (devices report interleaved):
+            # memory-mapped pages halve the cost of visiting them compared with read() calls.
+            cursor.execute(f"PRAGMA mmap_size = {_SQLITE_MMAP_BYTES}")
         cursor.execute(sql, (device_id, start_ms, end_ms))
         rows = cursor.fetchall()
     finally:
@@ -755,7 +764,8 @@ def _track(
     state["series"][name] = series
     recent_from = b - (cfg.step_s * 1000 if name == "rhot" else MS_DAY)
     tail = series[bisect.bisect_right(series, recent_from, key=_at) :]
-    recent = float(np.median([x for _, x in tail]))
+    # statistics.median: the same value as numpy's for these few points, without its overhead.
+    recent = float(statistics.median(x for _, x in tail))
     change = trends.percent_change(recent, center)
     cus = state.setdefault("cusum", {})
     c_new = trends.cusum_update(

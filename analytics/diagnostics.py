@@ -840,7 +840,7 @@ def fit_thermal(
         c_hot=c_hot,
         stderrs=stderrs,
         n=n_good,
-        n_samples=int(pair[np.isin(seg_all, np.flatnonzero(good))].sum()),
+        n_samples=int(pair[good[seg_all]].sum()),
         k_from_data=k_from_data,
         ua_reliable=bool(ua_ok),
         c_reliable=bool(c_ok),

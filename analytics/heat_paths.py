@@ -586,7 +586,15 @@ def capacity_at_setpoint(
             f"setpoint {tset:.2f} K needs no cooling at ambient {ta:.2f} K (heat load {load:.3g} W)"
         )
 
+    solved: dict[float, tuple[float, float]] = {}
+
     def faces(i: float) -> tuple[float, float]:
+        # The optimisers come back to currents already solved (their answers, the limits).
+        if i not in solved:
+            solved[i] = _faces(i)
+        return solved[i]
+
+    def _faces(i: float) -> tuple[float, float]:
         def residual(x: FloatArray) -> FloatArray:
             tc, th = float(x[0]), float(x[1])
             s, r = props.s_r(tc, th)

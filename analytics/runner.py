@@ -71,8 +71,8 @@ from datetime import UTC, datetime
 from typing import Any
 
 import numpy as np
-import pandas as pd
 import sqlalchemy as sa
+from scipy import ndimage
 from sqlalchemy.engine import Connection, Engine
 
 from tecfleet.ingest import store
@@ -408,7 +408,8 @@ class _Rows:
 
     def __init__(self, device_id: str) -> None:
         self.device_id = device_id
-        self.rows: list[dict[str, Any]] = []
+        #: In the order of ``_ESTIMATE_COLUMNS``.
+        self.rows: list[tuple[Any, ...]] = []
 
     def add(
         self,
@@ -424,18 +425,7 @@ class _Rows:
             return
         if stderr is not None and not math.isfinite(stderr):
             stderr = None
-        self.rows.append(
-            {
-                "device_id": self.device_id,
-                "key": key,
-                "at_ms": at_ms,
-                "value": value,
-                "stderr": stderr,
-                "n": int(n),
-                "reliable": bool(reliable),
-                "note": note,
-            }
-        )
+        self.rows.append((self.device_id, key, at_ms, value, stderr, int(n), bool(reliable), note))
 
     def est(self, key: str, at_ms: int, e: dg.Estimate) -> None:
         self.add(key, at_ms, e.value, e.stderr, e.n, e.reliable, e.note)
@@ -494,7 +484,7 @@ _ESTIMATE_COLUMNS = ("device_id", "key", "at_ms", "value", "stderr", "n", "relia
 
 
 def _write(
-    conn: Connection, device_id: str, rows: list[dict[str, Any]], done: int, state: dict[str, Any]
+    conn: Connection, device_id: str, rows: list[tuple[Any, ...]], done: int, state: dict[str, Any]
 ) -> None:
     if rows:
         # The driver's own executemany: SQLAlchemy's per-row parameter handling costs more
@@ -507,7 +497,7 @@ def _write(
         )
         cursor = conn.connection.cursor()
         try:
-            cursor.executemany(sql, [tuple(r[c] for c in _ESTIMATE_COLUMNS) for r in rows])
+            cursor.executemany(sql, rows)
         finally:
             cursor.close()
     st = store.analysis_state
@@ -804,9 +794,9 @@ def _daily(
             continue
         center = float(bases[name]["center"])
         arr = np.array(series, dtype=np.float64)
-        daily = pd.Series(arr[:, 1]).groupby(np.floor(arr[:, 0] / MS_DAY)).median()
-        days = daily.index.to_numpy(dtype=np.float64)
-        med = daily.to_numpy(dtype=np.float64)
+        # Median of each day's values, one labelled reduction over the series.
+        days, day_of = np.unique(np.floor(arr[:, 0] / MS_DAY), return_inverse=True)
+        med = np.asarray(ndimage.median(arr[:, 1], day_of, np.arange(days.size)), np.float64)
         try:
             tr = trends.theil_sen_trend(days, 100.0 * (med / center - 1.0), min_points=7)
         except PhysicsError:

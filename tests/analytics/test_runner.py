@@ -172,9 +172,10 @@ def test_ua_flag_needs_a_settled_baseline_and_a_persistent_rise() -> None:
             rows, state, "ua", "cabinet.ua", b, ua, cfg.ua_flag_pct, 0.03, cfg,
             skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
         )  # fmt: skip
-    baseline = [r["value"] for r in rows.rows if r["key"] == "cabinet.ua.baseline"]
+    recs = [dict(zip(runner._ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+    baseline = [r["value"] for r in recs if r["key"] == "cabinet.ua.baseline"]
     assert baseline and baseline[0] == pytest.approx(0.50)  # the pull-down day left out
-    flags = [(r["at_ms"] // six_h, r["value"]) for r in rows.rows if r["key"] == "cabinet.ua.flag"]
+    flags = [(r["at_ms"] // six_h, r["value"]) for r in recs if r["key"] == "cabinet.ua.flag"]
     # The lone high value never moves the one-day median to +35 %; the step does after three
     # of its evaluations (median of four: two high) and is flagged on the next one.
     raised = [j for j, f in flags if f == 1.0]

@@ -1060,8 +1060,8 @@ def performance_now(
 ) -> Performance:
     """Cooling, power, COP and the best COP at one operating point, with standard errors.
 
-    Qc, P and COP from :func:`.physics.cold_side_heat`, :func:`.physics.input_power`,
-    :func:`.physics.cop`; the best COP and its current from :func:`.physics.best_cop` and
+    Qc and P from :func:`.physics.cold_side_heat` and :func:`.physics.input_power`, COP = Qc/P
+    as in :func:`.physics.cop`; the best COP and its current from :func:`.physics.best_cop` and
     :func:`.physics.current_for_best_cop` (Ioffe 1957); the Carnot COP Tc/(Th - Tc). S and R are
     taken at the mean face temperature. Errors by :func:`propagate` from ``cov``.
 
@@ -1091,11 +1091,16 @@ def performance_now(
         s = np.asarray(physics.seebeck_at_temperature(p[:, 0], tm, beta))
         r = np.asarray(physics.resistance_at_temperature(p[:, 1], tm, alpha))
         k = p[:, 2]
+        qc = np.asarray(physics.cold_side_heat(current, t_cold, t_hot, s, r, k))
+        power = np.asarray(physics.input_power(current, t_cold, t_hot, s, r))
+        # COP = Qc/P from the two just computed, as physics.cop computes it.
+        if np.any(power <= 0.0):
+            raise EstimationError("COP is undefined where the electrical input power is <= 0")
         return np.column_stack(
             [
-                physics.cold_side_heat(current, t_cold, t_hot, s, r, k),
-                physics.input_power(current, t_cold, t_hot, s, r),
-                physics.cop(current, t_cold, t_hot, s, r, k),
+                qc,
+                power,
+                qc / power,
                 physics.best_cop(t_cold, t_hot, s, r, k),
                 physics.current_for_best_cop(t_cold, t_hot, s, r, k),
             ]

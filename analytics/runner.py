@@ -60,6 +60,7 @@ codes and licensed practice; condensation near electronics needs an electrician'
 from __future__ import annotations
 
 import bisect
+import itertools
 import math
 import multiprocessing
 import os
@@ -369,7 +370,7 @@ def _load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> _Data
         rows = cursor.fetchall()
     finally:
         cursor.close()
-    arr = np.array(rows, dtype=np.float64) if rows else np.zeros((0, 8))
+    arr = np.fromiter(itertools.chain.from_iterable(rows), np.float64, len(rows) * 8).reshape(-1, 8)
     ts = arr[:, 0].astype(np.int64)
     return _Data(
         ts=ts,

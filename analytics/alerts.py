@@ -7,7 +7,7 @@ peak matters. A small state machine per device and kind turns observations into 
 * a condition must hold for ``open_after`` before an alert opens (no alert for a door opening);
 * while open, a looser "hold" test applies (hysteresis), and the alert resolves only once the
   condition has been clear for ``clear_after``;
-* severity only rises within an episode (no flapping between warning and critical);
+* severity only rises within a spell (no flapping between warning and critical);
 * one alert per device and kind is open at a time; a condition returning within
   ``reopen_window_s`` of resolving reopens the same alert and counts the reopen.
 
@@ -143,7 +143,7 @@ class AlertPolicy:
     high_limit_c: float | None = None
     #: Out of band this long before an alert (door openings recover sooner; common practice).
     excursion_delay_s: float = 1800.0
-    #: Cumulative time out of band in one episode that makes it critical: 10 h, the WHO PQS
+    #: Cumulative time out of band in one spell that makes it critical: 10 h, the WHO PQS
     #: 30-day recorder heat alarm (+8 °C for 10 h; from memory).
     excursion_critical_s: float = 36_000.0
     #: Window of time-in-range and mean kinetic temperature in the evidence (common practice).
@@ -855,13 +855,13 @@ CONDENSATION_CAUTION = (
 
 
 def describe(
-    kind: str, episode: Mapping[str, Any], extra: Mapping[str, Any], resolved: bool
+    kind: str, spell: Mapping[str, Any], extra: Mapping[str, Any], resolved: bool
 ) -> tuple[str, dict[str, Any]]:
     """One sentence and the evidence for an alert of ``kind`` at a transition."""
     ev: dict[str, Any] = dict(extra)
-    ev["episode_start_ms"] = episode["start"]
-    ev["active_s"] = round(episode["active_ms"] / 1000.0, 1)
-    lo, hi = episode.get("min"), episode.get("max")
+    ev["spell_start_ms"] = spell["start"]
+    ev["active_s"] = round(spell["active_ms"] / 1000.0, 1)
+    lo, hi = spell.get("min"), spell.get("max")
     peak = None
     if kind == "excursion":
         above = hi is not None and hi > ev["high_limit_c"]
@@ -871,7 +871,7 @@ def describe(
         limit = ev["high_limit_c"] if above else ev["low_limit_c"]
         s = (
             f"Cabinet {ev['direction']} its {limit:g} °C limit for "
-            f"{_dur(episode['active_ms'])} in total (peak {peak:.1f} °C"
+            f"{_dur(spell['active_ms'])} in total (peak {peak:.1f} °C"
         )
         if "mkt_c" in ev:
             window = _dur(ev["window_s"] * 1000)
@@ -972,7 +972,7 @@ def describe(
     if kind == "condensation_risk":
         ev["caution"] = CONDENSATION_CAUTION
     if resolved:
-        dur = episode["end"] - episode["start"]
+        dur = spell["end"] - spell["start"]
         ev["duration_s"] = round(dur / 1000.0, 1)
         ev["peak"] = peak
         s = f"Resolved after {_dur(dur)}: " + s[0].lower() + s[1:]
@@ -1207,7 +1207,7 @@ def _run_machine(
                 st["clear"] = t
             if t - int(st["clear"]) >= timing.clear_after_ms:
                 assert ep is not None
-                # the episode ended when the condition cleared, not when the alert resolved
+                # the spell ended when the condition cleared, not when the alert resolved
                 ep["end"] = int(st["clear"])
                 summ, ev = describe(kind, ep, {**context(t), **st.get("detail", {})}, True)
                 ledger.apply(kind, "resolved", t, int(st.get("sev", 1)), st, summ, ev)
@@ -1390,9 +1390,9 @@ _TREND_KEYS = {
 def _track_taint(state: dict[str, Any], sf: Mapping[str, Any], policy: AlertPolicy) -> None:
     """Keep the spans [start, end] [ms] in which a sensor fault put a channel in doubt.
 
-    A span starts ``stuck_window_s`` before the fault's episode (a frozen channel shows only
-    after that window) and stays open while the episode lasts; it ends when the episode does.
-    Episodes of spikes or dropouts alone do not count.
+    A span starts ``stuck_window_s`` before the fault's spell (a frozen channel shows only
+    after that window) and stays open while the spell lasts; it ends when the spell does.
+    Spells of spikes or dropouts alone do not count.
     """
     spans: list[list[int | None]] = state.setdefault("sensor_taint", [])
     ep = sf.get("ep")

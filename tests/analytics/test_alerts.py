@@ -184,7 +184,7 @@ def test_live_in_chunks_equals_backfill_and_restart_adds_nothing(tmp_path: objec
         store.store_batch(live, data[start : start + 137])
         alerts.evaluate(live)
     assert _alert_rows(back) == _alert_rows(live)
-    # the second episode came back within the reopen window: same alert, reopen counted
+    # the second spell came back within the reopen window: same alert, reopen counted
     assert len(_alert_rows(back)) == 1 and _alert_rows(back)[0][6] == 1
     back.dispose()
     fresh = store.make_engine(urls[0])  # a new process state on the same database

@@ -645,6 +645,22 @@ def _strobed_blocks(
     return np.asarray((best >= min_match) & (sw >= 10.0), dtype=bool)
 
 
+def _warm_goods_runs(res: FloatArray, start: float = 3.0, settle: float = 1.0) -> BoolArray:
+    # Warm goods put in release their heat over hours: a run of blocks that starts with a
+    # residual above `start` robust scales and lasts while it stays above `settle`. Only
+    # upward runs: nothing inside the cabinet takes heat out except the module.
+    sd = 1.4826 * float(np.median(np.abs(res - np.median(res))))
+    out = np.zeros(res.size, dtype=bool)
+    if sd <= 0.0:
+        return out
+    z = (res - np.median(res)) / sd
+    running = False
+    for j, zj in enumerate(z):
+        running = zj > start or (running and zj > settle)
+        out[j] = running
+    return out
+
+
 def fit_thermal(
     time_s: FloatArray,
     t_cabinet: FloatArray,
@@ -686,10 +702,11 @@ def fit_thermal(
     with a prior on q_int (``q_internal_prior``), held at that prior when the fit would make the
     internal load negative (fans and electronics release heat). Blocks of an hour or more
     average over the thermostat cycles, so heat exchanged with slowly following contents mostly
-    cancels; blocks
-    the model cannot explain (warm goods put in) are dropped as outliers, and so are blocks in
-    which the on/off cycle is locked to a few sampling intervals (the samples then see only
-    some phases of each cycle, which biases the block means). Lumped-capacitance
+    cancels. Single blocks the model cannot explain are dropped as outliers; warm goods put in
+    release their heat over hours, so a run of blocks that starts with a large excess of heat
+    and lasts while the excess stays above one robust scale is left out as a whole; and so
+    are blocks in which the on/off cycle is locked to a few sampling intervals (the samples
+    then see only some phases of each cycle, which biases the block means). Lumped-capacitance
     balances: Incropera et al. (2007), ch. 5.
 
     Parameters
@@ -799,10 +816,18 @@ def fit_thermal(
             "too few complete hours for the cabinet balance (door openings, gaps or faults)",
         )
     x_cab = np.column_stack([bsums(trap(ta - tcab)), bsums(h), -bsums(np.diff(tcab))])
+    y_cab = bsums(trap(qc))
     q0, q_sd = q_internal_prior
-    p2, cov2, _ = _robust_weighted(
-        [(x_cab, bsums(trap(qc)))], 1, q0, q_sd, (0, 1), hold_when_weak=False
-    )
+    p2, cov2, _ = _robust_weighted([(x_cab, y_cab)], 1, q0, q_sd, (0, 1), hold_when_weak=False)
+    warm = np.zeros(y_cab.size, dtype=bool)
+    for _ in range(3):
+        found = _warm_goods_runs(y_cab - x_cab @ p2)
+        if np.array_equal(found, warm) or int((~found).sum()) < max(3, x_cab.shape[1] + 2):
+            break
+        warm = found
+        p2, cov2, _ = _robust_weighted(
+            [(x_cab[~warm], y_cab[~warm])], 1, q0, q_sd, (0, 1), hold_when_weak=False
+        )
     ua, q_int, c = (float(v) for v in p2)
     if ua <= 0.0:
         raise EstimationError(f"non-physical cabinet fit: UA={ua:.3g} W/K")

@@ -295,3 +295,41 @@ def test_hot_side_resistance_per_hour_matches_one_hour_at_a_time(day: dict[str, 
         assert got.value == pytest.approx(want.value, rel=1e-12)
         assert got.stderr == pytest.approx(want.stderr, rel=1e-12)
     assert isinstance(many[3], InsufficientDataError)
+
+
+def test_warm_goods_put_in_do_not_inflate_ua() -> None:
+    # A day of a cooler from the simulator, with half of its contents (30 kJ/K) replaced by
+    # goods at room temperature at noon: about 280 kJ released into the air over the
+    # following hours (time constant C_n/g_n = 4 h), as much heat as the walls let in over
+    # nine hours. Left in the cabinet balance it would read as UA about 40 % high (value this
+    # code produced with the run exclusion switched off); the hours that carry it are left out,
+    # so UA stays within the 15 % of the quiet day (same balance, same data quality).
+    # Lumped balances: Incropera et al. (2007), ch. 5.
+    from dataclasses import replace
+
+    from tecfleet.analytics import simulator as sm
+
+    start = 1_735_689_600.0
+    dev = sm.device_from_ratings(
+        "unit-1", ua=0.45, r_hot=0.22, r_cold=0.4, c_air=900.0, c_contents=30_000.0,
+        g_contents=2.0, t_amb_mean_c=24.0, t_amb_daily_k=1.5, t_amb_weather_k=0.0,
+        door_per_day=0.0, loads_per_day=0.0, cuts_per_30d=0.0,
+    )  # fmt: skip
+    load = sm.ScheduledEvent("load", "unit-1", start + 12 * 3600.0, 0.0, 0.5)
+    fits = {}
+    for name, events in (("quiet", ()), ("load", (load,))):
+        spec = sm.FleetSpec((dev,), start, seed=2, sensors=False, random_use=False)
+        chunks, truth = sm.simulate(replace(spec, events=events), 1.0)
+        c = sm.concat(chunks)
+        m = {k: v[:, 0] for k, v in c.measured.items()}
+        t = c.t - c.t[0]
+        temps = [m[k] + K0 for k in ("t_cabinet", "t_cold", "t_hot", "t_ambient")]
+        flags = dg.flag_samples(t, *temps, m["current"], m["voltage"])
+        p = truth.params_at("unit-1", start)
+        tm = 0.5 * (temps[1] + temps[2])
+        s = np.asarray(ph.seebeck_at_temperature(p["s25"], tm, sm.BETA_S))
+        r = np.asarray(ph.resistance_at_temperature(p["r25"], tm, sm.ALPHA_R))
+        fits[name] = dg.fit_thermal(t, *temps, m["current"], s, r, flags.usable, p["k"], 0.3)
+        assert name == "quiet" or truth.loads.get("unit-1")
+    assert fits["quiet"].ua == pytest.approx(dev.ua, rel=0.15)
+    assert fits["load"].ua == pytest.approx(dev.ua, rel=0.15)

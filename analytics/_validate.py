@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from typing import TypeAlias
 
 import numpy as np
@@ -23,13 +24,18 @@ T_25C_K = 298.15
 def finite(x: FloatOrArray, name: str) -> FloatArray:
     """Return ``x`` as a float64 array, refusing NaN and infinities."""
     a = np.asarray(x, dtype=np.float64)
-    if not np.all(np.isfinite(a)):
+    # One reduction on the usual path: a sum is finite only if every term is (or it
+    # overflows, which the exact check below then sorts out).
+    if not math.isfinite(float(a.sum())) and not np.all(np.isfinite(a)):
         raise OutOfDomainError(f"{name} must be finite, got {x!r}")
     return a
 
 
 def positive(x: FloatOrArray, name: str) -> FloatArray:
     """Return ``x`` as an array, refusing values that are not strictly positive."""
+    a = np.asarray(x, dtype=np.float64)
+    if a.size and float(a.min()) > 0.0 and math.isfinite(float(a.max())):
+        return a
     a = finite(x, name)
     if np.any(a <= 0.0):
         raise OutOfDomainError(f"{name} must be > 0, got {x!r}")
@@ -38,6 +44,9 @@ def positive(x: FloatOrArray, name: str) -> FloatArray:
 
 def non_negative(x: FloatOrArray, name: str) -> FloatArray:
     """Return ``x`` as an array, refusing negative values."""
+    a = np.asarray(x, dtype=np.float64)
+    if a.size and float(a.min()) >= 0.0 and math.isfinite(float(a.max())):
+        return a
     a = finite(x, name)
     if np.any(a < 0.0):
         raise OutOfDomainError(f"{name} must be >= 0, got {x!r}")
@@ -46,6 +55,11 @@ def non_negative(x: FloatOrArray, name: str) -> FloatArray:
 
 def temperature(x: FloatOrArray, name: str) -> FloatArray:
     """Return a temperature [K] as an array, refusing values outside -60..150 °C."""
+    a = np.asarray(x, dtype=np.float64)
+    # The usual path: two reductions (NaN fails both comparisons and goes to the checks that
+    # name the fault).
+    if a.size and float(a.min()) >= T_MIN_K and float(a.max()) <= T_MAX_K:
+        return a
     a = finite(x, name)
     if np.any(a < 0.0):
         raise OutOfDomainError(f"{name} is below absolute zero: {x!r} K")

@@ -601,14 +601,30 @@ def capacity_at_setpoint(
             qc, qh = _qc_qh(i, tc, th, s, r, k)
             return np.array([qc * r_cold - (tset - tc), qh * r_hot - (th - ta)])
 
-        # Constant-property linear solution at this current as the start.
+        # At given S and R the two balances are linear in (Tc, Th): solve them in closed form,
+        # update S and R at the new faces and repeat. S and R change by parts per thousand per
+        # kelvin, so this contracts fast; scipy's root takes over if it does not settle.
         s, r = module.seebeck, module.resistance
-        j = 0.5 * i * i * r
-        a = np.array(
-            [[(s * i + k) * r_cold + 1.0, -k * r_cold], [k * r_hot, (s * i - k) * r_hot - 1.0]]
-        )
-        b = np.array([j * r_cold + tset, -j * r_hot - ta])
-        sol = root(residual, np.linalg.solve(a, b), method="hybr")
+        tc = th = math.nan
+        for _ in range(60):
+            j = 0.5 * i * i * r
+            a11, a12 = (s * i + k) * r_cold + 1.0, -k * r_cold
+            a21, a22 = k * r_hot, (s * i - k) * r_hot - 1.0
+            b1, b2 = j * r_cold + tset, -j * r_hot - ta
+            det = a11 * a22 - a12 * a21
+            if det == 0.0:
+                break
+            tc_new, th_new = (b1 * a22 - a12 * b2) / det, (a11 * b2 - a21 * b1) / det
+            done = abs(tc_new - tc) < 1e-11 and abs(th_new - th) < 1e-11
+            tc, th = tc_new, th_new
+            if done:
+                res = residual(np.array([tc, th]))
+                if abs(float(res[0])) <= 1e-7 and abs(float(res[1])) <= 1e-7:
+                    return tc, th
+                break
+            s, r = props.s_r(tc, th)
+        start = np.array([tc, th]) if math.isfinite(tc + th) else np.array([tset, ta])
+        sol = root(residual, start, method="hybr")
         if not sol.success or np.max(np.abs(residual(sol.x))) > 1e-7:
             raise NoConvergenceError(f"face temperatures at {i:.4g} A not found: {sol.message}")
         return float(sol.x[0]), float(sol.x[1])

@@ -680,20 +680,20 @@ def offline_observations(
 
 # Estimate keys of tecfleet.analytics.runner that the trend rules read.
 WEAR_KEYS = (
-    "module.resistance_25c_change_pct",
+    "module.resistance_25c.change_pct",
     "module.resistance_25c_ohm",
     "module.resistance_25c.baseline",
     "module.resistance_25c.slope_pct_per_30d",
     "module.days_to_wear_limit",
 )
 LEAK_KEYS = (
-    "cabinet.ua_change_pct",
+    "cabinet.ua.change_pct",
     "cabinet.ua_w_per_k",
     "cabinet.ua.baseline",
     "cabinet.heat_leak_w",
 )
 HOT_KEYS = (
-    "hot_side.resistance_change_pct",
+    "hot_side.resistance.change_pct",
     "hot_side.resistance_k_per_w",
     "hot_side.resistance.baseline",
 )
@@ -703,12 +703,6 @@ CAPACITY_KEYS = (
     "capacity.heat_load_w",
     "capacity.max_cooling_w",
 )
-# The runner names change keys "<q>.change_pct"; both spellings are accepted.
-_ALIASES = {
-    "module.resistance_25c.change_pct": "module.resistance_25c_change_pct",
-    "cabinet.ua.change_pct": "cabinet.ua_change_pct",
-    "hot_side.resistance.change_pct": "hot_side.resistance_change_pct",
-}
 
 
 def trend_observations(
@@ -718,9 +712,9 @@ def trend_observations(
     order (reliable ones only). One observation per time of the rule's primary key, with the
     newest value of every other key at or before it in ``detail``."""
     primary = {
-        "module_wear": "module.resistance_25c_change_pct",
-        "heat_leak": "cabinet.ua_change_pct",
-        "hot_side_cooling": "hot_side.resistance_change_pct",
+        "module_wear": "module.resistance_25c.change_pct",
+        "heat_leak": "cabinet.ua.change_pct",
+        "hot_side_cooling": "hot_side.resistance.change_pct",
         "capacity_shortfall": "capacity.margin_w",
     }[kind]
     main = list(series.get(primary, ()))
@@ -922,7 +916,7 @@ def describe(
                 "while it lasts, as their estimates rest on these readings."
             )
     elif kind == "module_wear":
-        change = ev.get("module.resistance_25c_change_pct", float("nan"))
+        change = ev.get("module.resistance_25c.change_pct", float("nan"))
         base = ev.get("module.resistance_25c.baseline")
         now = ev.get("module.resistance_25c_ohm")
         slope = ev.get("module.resistance_25c.slope_pct_per_30d")
@@ -938,7 +932,7 @@ def describe(
         s += "; plan a module replacement."
         peak = hi
     elif kind == "heat_leak":
-        change = ev.get("cabinet.ua_change_pct", float("nan"))
+        change = ev.get("cabinet.ua.change_pct", float("nan"))
         base = ev.get("cabinet.ua.baseline")
         s = f"Cabinet heat leak (UA) has risen {change:.0f}% since commissioning"
         now = _recent(ev, "cabinet.ua", base, change)
@@ -947,7 +941,7 @@ def describe(
         s += "; check the door seal, hinges and insulation."
         peak = hi
     elif kind == "hot_side_cooling":
-        change = ev.get("hot_side.resistance_change_pct", float("nan"))
+        change = ev.get("hot_side.resistance.change_pct", float("nan"))
         base = ev.get("hot_side.resistance.baseline")
         s = f"Hot-side thermal resistance has risen {change:.0f}%"
         now = _recent(ev, "hot_side.resistance", base, change)
@@ -1364,18 +1358,17 @@ def _estimates(
     conn: Connection, device_id: str, keys: Sequence[str], after_ms: int
 ) -> dict[str, list[tuple[int, float]]]:
     e = store.estimates
-    wanted = list(keys) + [k for k, v in _ALIASES.items() if v in keys]
     rows = conn.execute(
         sa.select(e.c.key, e.c.at_ms, e.c.value)
         .where(
-            e.c.device_id == device_id, e.c.key.in_(wanted), e.c.reliable.is_(True),
+            e.c.device_id == device_id, e.c.key.in_(keys), e.c.reliable.is_(True),
             e.c.value.is_not(None), e.c.at_ms > after_ms,
         )
         .order_by(e.c.at_ms)
     ).fetchall()  # fmt: skip
     out: dict[str, list[tuple[int, float]]] = {}
     for r in rows:
-        out.setdefault(_ALIASES.get(r.key, r.key), []).append((int(r.at_ms), float(r.value)))
+        out.setdefault(r.key, []).append((int(r.at_ms), float(r.value)))
     return out
 
 

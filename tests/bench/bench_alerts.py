@@ -7,10 +7,12 @@ and one row of false positives per alert kind. Simulated data only; the test
 
 The fleet has one unit per fault kind plus healthy units. Readings are stored a day at a time
 (``store.store_batch``), then ``runner.analyze`` and ``alerts.evaluate`` run, as the live
-service does. A fault is detected when its expected alert kind (``FleetTruth.fault_windows``)
-opens on its unit after the fault starts and within the target delay; every other alert that
-opens is a false positive, except an excursion that follows a real cause on that unit
-(a power cut, a failed fan) and an offline alert on a unit that went silent.
+service does. A fault is detected when an alert of its expected kind
+(``FleetTruth.fault_windows``) opens or reopens on its unit after the fault starts and within
+the target delay: a reopened alert sends its notice again, so a second excursion of a unit
+within the reopen window is reported by the same alert. Every other alert that opens is a
+false positive, except an excursion that follows a real cause on that unit (a power cut, a
+failed fan) and an offline alert on a unit that went silent.
 
 Detection-delay targets (the diagnostics' own targets, common practice, no source): a 5 % R25
 rise flagged within 7 days of crossing 5 %, a 1.5x UA step within 2 days, a 3x hot-side
@@ -76,7 +78,7 @@ class Score:
     """Outcome of one run."""
 
     expected: list[Expected]
-    fired: dict[int, float | None]  # index into expected -> opened at [s] or None
+    fired: dict[int, float | None]  # index into expected -> opened or reopened at [s] or None
     false_positives: list[dict[str, Any]] = field(default_factory=list)
     opened: list[dict[str, Any]] = field(default_factory=list)
     seconds: dict[str, float] = field(default_factory=dict)
@@ -256,16 +258,35 @@ def opened_alerts(engine: sa.Engine) -> list[dict[str, Any]]:
     a = store.alerts
     with engine.connect() as conn:
         rows = conn.execute(
-            sa.select(a.c.device_id, a.c.kind, a.c.severity, a.c.opened_ms, a.c.summary)
+            sa.select(a.c.id, a.c.device_id, a.c.kind, a.c.severity, a.c.opened_ms, a.c.summary)
             .order_by(a.c.opened_ms)
         ).fetchall()  # fmt: skip
     return [
         {
-            "device_id": r.device_id, "kind": r.kind, "severity": r.severity,
+            "alert_id": r.id, "device_id": r.device_id, "kind": r.kind, "severity": r.severity,
             "opened_s": r.opened_ms / 1000.0, "summary": r.summary,
         }
         for r in rows
     ]  # fmt: skip
+
+
+def alert_openings(engine: sa.Engine) -> list[dict[str, Any]]:
+    """Every time an alert opened or reopened, oldest first, from the audit trail."""
+    a, au = store.alerts, store.alert_audit
+    with engine.connect() as conn:
+        rows = conn.execute(
+            sa.select(a.c.id, a.c.device_id, a.c.kind, au.c.at_ms)
+            .join(au, au.c.alert_id == a.c.id)
+            .where(
+                au.c.to_state == "open",
+                sa.or_(au.c.from_state.is_(None), au.c.from_state == "resolved"),
+            )
+            .order_by(au.c.at_ms, a.c.id)
+        ).fetchall()  # fmt: skip
+    return [
+        {"alert_id": r.id, "device_id": r.device_id, "kind": r.kind, "at_s": r.at_ms / 1000.0}
+        for r in rows
+    ]
 
 
 #: An alert that a fault legitimately brings along on its own unit (a failed fan can warm
@@ -279,31 +300,36 @@ CONSEQUENCES: dict[str, set[str]] = {
 
 
 def score(engine: sa.Engine, faults: list[Expected], truth: sim.FleetTruth) -> Score:
-    """Match opened alerts to the faults' and the true excursions' expected alerts.
+    """Match alert openings and reopenings to the faults' and the true excursions' expected
+    alerts, each opening to at most one.
 
-    The rest are false positives, except a capacity alert on a unit whose true spare cooling
-    at that time is below the policy's fraction (the truth says it is short).
+    Alerts none of whose openings matched are false positives, except a capacity alert on a
+    unit whose true spare cooling at that time is below the policy's fraction (the truth says
+    it is short).
     """
     expected = faults + excursions_expected(truth)
     line = alerts.AlertPolicy().capacity_warning_fraction
     opened = opened_alerts(engine)
+    openings = alert_openings(engine)
     fired: dict[int, float | None] = {}
     used: set[int] = set()
+    matched: set[int] = set()
     for i, e in enumerate(expected):
         fired[i] = None
-        for j, a in enumerate(opened):
+        for j, o in enumerate(openings):
             if (
                 j not in used
-                and a["device_id"] == e.device_id
-                and a["kind"] == e.alert_kind
-                and a["opened_s"] >= e.start_s
+                and o["device_id"] == e.device_id
+                and o["kind"] == e.alert_kind
+                and o["at_s"] >= e.start_s
             ):
-                fired[i] = a["opened_s"]
+                fired[i] = o["at_s"]
                 used.add(j)
+                matched.add(o["alert_id"])
                 break
     fp = []
-    for j, a in enumerate(opened):
-        if j in used:
+    for a in opened:
+        if a["alert_id"] in matched:
             continue
         allowed = set()
         for e in expected:

@@ -192,7 +192,9 @@ class AlertPolicy:
     drift_min_samples: int = 60
     drift_warning_k: float = 1.0
     #: Module wear on R25 change: +10 % as end of useful life (common practice, no source),
-    #: warning from +5 % or when the limit is under wear_days_warning days away.
+    #: warning from +5 % or when the limit is under wear_days_warning days away at a rise
+    #: whose 95 % confidence interval lies above zero: the days left extrapolate the slope,
+    #: which says nothing while the interval still holds no rise at all.
     wear_warning_pct: float = 5.0
     wear_limit_pct: float = 10.0
     wear_days_warning: float = 30.0
@@ -684,6 +686,7 @@ WEAR_KEYS = (
     "module.resistance_25c_ohm",
     "module.resistance_25c.baseline",
     "module.resistance_25c.slope_pct_per_30d",
+    "module.resistance_25c.slope_pct_per_30d_low",
     "module.days_to_wear_limit",
 )
 LEAK_KEYS = (
@@ -736,7 +739,12 @@ def trend_observations(
             [d.get("module.days_to_wear_limit", math.inf) for d in details], dtype=np.float64
         )
         days = np.where(np.isfinite(days), days, math.inf)
-        soon = (days <= policy.wear_days_warning) & (vals > 0)
+        slope_low = np.array(
+            [d.get("module.resistance_25c.slope_pct_per_30d_low", math.nan) for d in details],
+            dtype=np.float64,
+        )
+        # NaN (no slope yet) compares False: no established rise
+        soon = (days <= policy.wear_days_warning) & (vals > 0) & (slope_low > 0)
         active = (vals >= policy.wear_warning_pct) | soon
         hold = (vals >= policy.wear_warning_pct - hyst) | soon
         sev = np.where(vals >= policy.wear_limit_pct, 2, np.where(active, 1, 0))

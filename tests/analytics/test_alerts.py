@@ -357,6 +357,27 @@ def test_module_wear_summary_from_the_trend_estimates(engine: sa.Engine) -> None
     assert alerts.evaluate(engine) == []
 
 
+def test_wear_limit_days_away_warns_only_on_a_rise_whose_interval_excludes_zero() -> None:
+    # Figures the diagnostics produced on a simulated healthy unit (tests/bench/bench_alerts.py,
+    # seed 3, sc-0009, day 11): R25 up 3.8 %, Theil-Sen slope 11.7 %/30 days with a 95 %
+    # interval of -4.2 to +21.3 %/30 days, hence 29.8 days to the +10 % limit on paper.
+    # An interval that holds zero is no evidence of a rise (Sen 1968, the interval of the
+    # slope), so the days left must not open a warning.
+    at = T0 + 11 * 86_400_000
+    series = {
+        "module.resistance_25c.change_pct": [(at, 3.83)],
+        "module.resistance_25c.slope_pct_per_30d": [(at, 11.7)],
+        "module.resistance_25c.slope_pct_per_30d_low": [(at, -4.17)],
+        "module.days_to_wear_limit": [(at, 29.8)],
+    }
+    obs = alerts.trend_observations("module_wear", series, alerts.AlertPolicy())
+    assert not obs.active[0]
+    # the same figures on a rise whose interval lies above zero: under the policy's 30 days
+    series["module.resistance_25c.slope_pct_per_30d_low"] = [(at, 2.0)]
+    obs = alerts.trend_observations("module_wear", series, alerts.AlertPolicy())
+    assert obs.active[0] and obs.severity[0] == 1
+
+
 def test_maintenance_holds_notices_and_sends_the_open_alert_at_the_end(engine: sa.Engine) -> None:
     alerts.add_maintenance(engine, T0 + 1400 * MIN, T0 + 1700 * MIN, device_id="cab-1")
     store.store_batch(engine, cabinet_series(1800, hot=(1500, 1800)))

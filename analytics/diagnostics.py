@@ -681,7 +681,6 @@ def fit_thermal(
     on_current: float = 0.05,
     switch_guard_s: float = 0.0,
     q_internal_prior: tuple[float, float] = Q_INTERNAL_PRIOR,
-    min_off_fraction: float = 0.2,
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
 
@@ -694,9 +693,7 @@ def fit_thermal(
 
     solved together by weighted least squares with a prior K = ``k_prior`` ± ``k_prior_rel``.
     Two operating points (on/off, or two currents) make K identifiable; at one, it leans on the
-    prior and is reported so. When the module spends at least ``min_off_fraction`` of the time
-    off and on, each balance also gets a constant term (b_c·τ, b_h·τ) that takes up constant
-    offsets between its probes.
+    prior and is reported so.
 
     Stage 2, the cabinet, over blocks of ``cabinet_block_s`` with Qc = Pc - K·ΔT:
 
@@ -732,8 +729,6 @@ def fit_thermal(
         temperatures then change too fast for trapezoidal integration over one interval, and
         the errors would line up with the switching and bias K.
     q_internal_prior : (mean [W], standard deviation [W]) of the internal load.
-    min_off_fraction : Share of the samples the module must spend off, and on, before each
-        sink balance gets a constant term for probe offsets [-].
 
     Returns
     -------
@@ -794,24 +789,13 @@ def fit_thermal(
     i_cold, i_hot = sums(trap(tcab - tc)), sums(trap(th - ta))
     d_c, d_h = sums(np.diff(tc)), sums(np.diff(th))
     z = np.zeros_like(i_pc)
-    # Sink unknowns: k, c_cold, g_cold, g_hot, c_hot, then one constant per balance when the
-    # module both rests and runs for long enough. A constant offset between two probes (a few
-    # tenths of a kelvin) shifts the small differences Tcab - Tc and Th - Ta by a fixed amount
-    # and would move K by tens of per cent; a constant term per balance takes it up, and the
-    # change between resting and running still fixes K. Under proportional control the module
-    # never rests and the constants cannot be told from K; they are left out.
-    off_frac = float(np.mean(~on[:-1][pair])) if pair.any() else 0.0
-    if min_off_fraction <= off_frac <= 1.0 - min_off_fraction:
-        dur = sums(h)
-        x_cold = np.column_stack([i_dt, -d_c, i_cold, z, z, dur, z])
-        x_hot = np.column_stack([i_dt, z, z, i_hot, d_h, z, dur])
-    else:
-        x_cold = np.column_stack([i_dt, -d_c, i_cold, z, z])
-        x_hot = np.column_stack([i_dt, z, z, i_hot, d_h])
+    # Sink unknowns: k, c_cold, g_cold, g_hot, c_hot
+    x_cold = np.column_stack([i_dt, -d_c, i_cold, z, z])
+    x_hot = np.column_stack([i_dt, z, z, i_hot, d_h])
     p1, cov1, forced = _robust_weighted(
         [(x_cold, i_pc), (x_hot, i_ph)], 0, k_prior, k_prior_rel * k_prior, (0, 2, 3)
     )
-    k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in p1[:5])
+    k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in p1)
     if k <= 0.0 or g_cold <= 0.0 or g_hot <= 0.0:
         raise EstimationError(
             f"non-physical sink fit: K={k:.3g} W/K, 1/r_cold={g_cold:.3g} W/K, "

@@ -138,10 +138,8 @@ def test_thermal_fit_recovers_cabinet_sinks_and_module_without_noise() -> None:
     # at 5 s and the heat stored in the cold sink at hour boundaries, a few per cent; 5 % on K
     # and r_hot, 10 % on r_cold (the smallest temperature difference of the three). UA shares
     # the cabinet balance with the 1 W ± 1 W internal-load prior; with a ±2 K ambient swing the
-    # split is weak, so 10 % and three standard errors; C within 25 % (hour blocks hold little
-    # of the cabinet's stored heat). The sink balances carry a constant each for probe
-    # offsets, which widens K's error and through it UA's (to about 15 %, value this code
-    # produced): the claim is that the error stated covers the error made, not that it is small.
+    # split is weak (the fit's own standard error is ~9 %), so 10 % and three standard errors;
+    # C within 25 % (hour blocks hold little of the cabinet's stored heat).
     tr = Truth()
     f = _thermal(_arrays(simulate(tr, 1.0, seed=1, noise=QUIET)), tr)
     assert f.ua == pytest.approx(tr.ua, rel=0.10)
@@ -151,7 +149,7 @@ def test_thermal_fit_recovers_cabinet_sinks_and_module_without_noise() -> None:
     assert 1.0 / f.g_cold == pytest.approx(tr.r_cold, rel=0.10)
     assert f.c == pytest.approx(tr.c, rel=0.25)
     assert f.k_from_data
-    assert f.stderr("ua") < 0.2 * f.ua
+    assert f.ua_reliable
 
 
 def test_thermal_fit_with_noise_stays_within_its_error(day: dict[str, Any]) -> None:
@@ -335,27 +333,3 @@ def test_warm_goods_put_in_do_not_inflate_ua() -> None:
         assert name == "quiet" or truth.loads.get("unit-1")
     assert fits["quiet"].ua == pytest.approx(dev.ua, rel=0.15)
     assert fits["load"].ua == pytest.approx(dev.ua, rel=0.15)
-
-
-@pytest.mark.parametrize(
-    "offsets_k", [(0.3, -0.3, 0.0, 0.0), (0.0, 0.3, -0.3, 0.0), (-0.3, 0.3, 0.3, -0.3)]
-)
-def test_constant_probe_offsets_do_not_move_conductance(
-    offsets_k: tuple[float, float, float, float],
-) -> None:
-    # Probes that disagree by a few tenths of a kelvin are usual for uncalibrated thermistors
-    # (common practice, no source). On the noise-free thermostat day of the test above, such
-    # offsets moved K by up to 13 % and UA by up to 23 % when the sink balances had no
-    # constant term (values this code produced); with it, K stays within the 5 % and r_hot
-    # within the 5 % that integration error alone allows there, and UA within 12 %.
-    tr = Truth()
-    a = _arrays(simulate(tr, 1.0, seed=1, noise=QUIET))
-    for name, off in zip(("t_cabinet", "t_cold", "t_hot", "t_ambient"), offsets_k, strict=True):
-        a[name] = a[name] + off
-    a["flags"] = dg.flag_samples(
-        a["t"], a["t_cabinet"], a["t_cold"], a["t_hot"], a["t_ambient"], a["i"], a["v"], a["door"]
-    )
-    f = _thermal(a, tr)
-    assert f.k == pytest.approx(tr.k, rel=0.05)
-    assert 1.0 / f.g_hot == pytest.approx(tr.r_hot, rel=0.05)
-    assert f.ua == pytest.approx(tr.ua, rel=0.12)

@@ -317,6 +317,7 @@ def fit_electrical(
     prior: tuple[float, float, float] | None = None,
     min_on: int = 20,
     max_rel_stderr: float = 0.01,
+    current_offset: float = 0.01,
 ) -> ElectricalFit:
     """Fit R25 and S25 to V = R25·I·(1 + α·(Tm - 25 °C)) + S25·ΔT·(1 + β·(Tm - 25 °C)).
 
@@ -343,6 +344,11 @@ def fit_electrical(
     prior : (R25 [ohm], S25 [V/K], relative standard deviation [-]), optional.
     min_on : Fewest on samples accepted [-].
     max_rel_stderr : Largest data-only relative standard error called reliable [-].
+    current_offset : Possible constant offset of the current reading, about one step of a
+        10 mA converter (common practice, no source) [A]. R carries it as a relative error of
+        current_offset / I_rms; R is marked unreliable where that exceeds twice
+        ``max_rel_stderr`` (a few tenths of an ampere, as when a cold ambient leaves the
+        module idling).
 
     Returns
     -------
@@ -417,6 +423,15 @@ def fit_electrical(
         raise InsufficientDataError(f"R and S not identifiable: {note}", note)
     if not np.all(coef > 0.0):
         raise EstimationError(f"fitted R25/S25 not positive: {coef}")
+    # An offset of the current reading moves R by about offset/I; it does not average out.
+    i_rms = float(np.sqrt(np.mean(i[on] ** 2)))
+    rel_i = current_offset / max(i_rms, 1e-12)
+    cov = np.array(cov, dtype=np.float64)
+    cov[0, 0] += (rel_i * float(coef[0])) ** 2
+    if rel_i > 2.0 * max_rel_stderr and r_ok:
+        r_ok = False
+        low = f"current only {i_rms:.2f} A rms: its reading's offset dominates R"
+        note = low if note is None else f"{note}; {low}"
     return ElectricalFit(
         r25=float(coef[0]),
         s25=float(coef[1]),

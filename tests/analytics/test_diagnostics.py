@@ -12,6 +12,7 @@ The synthetic readings come from tests/analytics/synthetic.py (lumped balances, 
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -333,3 +334,33 @@ def test_warm_goods_put_in_do_not_inflate_ua() -> None:
         assert name == "quiet" or truth.loads.get("unit-1")
     assert fits["quiet"].ua == pytest.approx(dev.ua, rel=0.15)
     assert fits["load"].ua == pytest.approx(dev.ua, rel=0.15)
+
+
+@pytest.mark.parametrize(("i_low", "i_high", "reliable"), [(0.08, 0.25, False), (2.0, 4.0, True)])
+def test_current_reading_offset_is_carried_into_resistance(
+    i_low: float, i_high: float, reliable: bool
+) -> None:
+    # V = I·R + S·ΔT (Goldsmid 2010, ch. 2) with the current read 10 mA low, one step of a
+    # 10 mA converter (common practice, no source). At a few tenths of an ampere that offset
+    # moves R by several per cent, beyond anything the voltage noise shows: R must then be
+    # marked unreliable, with an error that covers what it got wrong; at a few amperes it is
+    # well under 1 % and R stays reliable.
+    rng = np.random.default_rng(7)
+    n = 600
+    r25, s25 = 2.0, 0.05
+    i_true = rng.uniform(i_low, i_high, n)
+    tc = np.full(n, 285.0) + rng.normal(0, 0.5, n)
+    th = tc + rng.uniform(0.5, 20.0, n)
+    tm = 0.5 * (tc + th) - 298.15
+    v = i_true * r25 * (1 + ph.BI2TE3_RESISTANCE_TEMPCO * tm) + s25 * (th - tc) * (
+        1 + ph.BI2TE3_SEEBECK_TEMPCO * tm
+    )
+    v = v + rng.normal(0, 0.002, n)
+    fit = dg.fit_electrical(
+        i_true - 0.01, v, tc, th, np.ones(n, dtype=bool), floating=False, current_offset=0.01
+    )
+    se_r = math.sqrt(fit.cov[0, 0])
+    assert fit.r_reliable is reliable
+    assert abs(fit.r25 - r25) < 3.0 * se_r
+    if not reliable:
+        assert fit.note is not None and "offset" in fit.note

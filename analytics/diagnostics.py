@@ -294,13 +294,22 @@ class ElectricalFit:
 def _trimmed_lstsq(x: FloatArray, y: FloatArray, cut: float = 4.0) -> tuple[FloatArray, BoolArray]:
     # One pass of outlier removal at `cut` robust standard deviations, then a refit: the
     # readings carry occasional glitches the model cannot explain.
-    coef = np.linalg.lstsq(x, y, rcond=None)[0]
+    coef = _lstsq(x, y)
     res = y - x @ coef
-    mad = float(np.median(np.abs(res - np.median(res)))) * 1.4826
+    mad = _median_mad(res)[1] * 1.4826
     keep = np.abs(res) <= cut * mad if mad > 0.0 else np.ones(y.size, dtype=bool)
     if keep.sum() >= x.shape[1] + 2 and not keep.all():
-        coef = np.linalg.lstsq(x[keep], y[keep], rcond=None)[0]
-    return np.asarray(coef, dtype=np.float64), keep
+        coef = _lstsq(x[keep], y[keep])
+    return coef, keep
+
+
+def _lstsq(x: FloatArray, y: FloatArray) -> FloatArray:
+    # Normal equations for these few well-scaled columns (one small solve instead of an SVD
+    # of every row); numpy's SVD-based lstsq where they are near singular.
+    xtx = x.T @ x
+    if np.linalg.cond(xtx) < 1e10:
+        return np.asarray(np.linalg.solve(xtx, x.T @ y), dtype=np.float64)
+    return np.asarray(np.linalg.lstsq(x, y, rcond=None)[0], dtype=np.float64)
 
 
 def fit_electrical(
@@ -557,6 +566,18 @@ def _segment_sums(seg: NDArray[np.int64], n_seg: int, weights: FloatArray) -> Fl
     return np.bincount(seg, weights=weights, minlength=n_seg).astype(np.float64)
 
 
+def _median_mad(x: FloatArray) -> tuple[float, float]:
+    # Median and median absolute deviation of a few dozen values from one sort each:
+    # numpy's median costs more in argument handling than in work at these sizes.
+    srt = np.sort(x)
+    n = srt.size
+    if n == 0:
+        return math.nan, math.nan
+    med = 0.5 * float(srt[(n - 1) // 2] + srt[n // 2])
+    dev = np.sort(np.abs(srt - med))
+    return med, 0.5 * float(dev[(n - 1) // 2] + dev[n // 2])
+
+
 def _solve_with_prior(
     xw: FloatArray,
     yw: FloatArray,
@@ -590,7 +611,8 @@ def _solve_with_prior(
         raise EstimationError("energy balance matrix is singular") from exc
     params = cov_i @ rhs
     dof = max(yw.size - n_par, 1)
-    chi2 = float(np.sum((yw - xw @ params) ** 2)) / dof
+    res = yw - xw @ params
+    chi2 = float(res @ res) / dof
     return np.asarray(params, dtype=np.float64), cov_i * max(chi2, 1.0)
 
 
@@ -611,14 +633,15 @@ def _robust_weighted(
     y_all = np.concatenate([b[1] for b in blocks])
     scale = np.maximum(np.abs(x_all).max(axis=0), 1e-12)
     xs = x_all / scale
-    y_scale = max(float(np.std(y_all)), 1e-12)
+    dev = y_all - y_all.mean()
+    y_scale = max(math.sqrt(float(dev @ dev) / max(dev.size, 1)), 1e-12)  # standard deviation
     coef, _ = _solve_with_prior(xs, y_all, index, p0 * scale[index], p_sd * scale[index] / y_scale)
     wts = np.empty(y_all.size)
     start = 0
     for xb, _yb in blocks:
         end = start + xb.shape[0]
         res = y_all[start:end] - xs[start:end] @ coef
-        sd = float(np.median(np.abs(res - np.median(res)))) * 1.4826
+        sd = _median_mad(res)[1] * 1.4826
         wts[start:end] = 1.0 / max(sd, 1e-9 * y_scale)
         start = end
     keep = np.abs((y_all - xs @ coef) * wts) <= 4.0
@@ -647,6 +670,8 @@ def _strobed_blocks(
     n_blk = int(block.max()) + 1 if block.size else 0
     sw = _segment_sums(block, n_blk, (on[1:] != on[:-1]).astype(np.float64))
     best = np.zeros(n_blk)
+    if not np.any(sw >= 10.0):
+        return np.zeros(n_blk, dtype=bool)
     for lag in range(2, max_lag + 1):
         if on.size <= lag:
             break
@@ -664,11 +689,14 @@ def _warm_goods_runs(res: FloatArray, start: float = 3.0, settle: float = 1.0) -
     # Warm goods put in release their heat over hours: a run of blocks that starts with a
     # residual above `start` robust scales and lasts while it stays above `settle`. Only
     # upward runs: nothing inside the cabinet takes heat out except the module.
-    sd = 1.4826 * float(np.median(np.abs(res - np.median(res))))
     out = np.zeros(res.size, dtype=bool)
+    if res.size == 0:
+        return out
+    med, mad = _median_mad(res)
+    sd = 1.4826 * mad
     if sd <= 0.0:
         return out
-    z = (res - np.median(res)) / sd
+    z = ((res - med) / sd).tolist()
     running = False
     for j, zj in enumerate(z):
         running = zj > start or (running and zj > settle)

@@ -532,7 +532,9 @@ class ThermalFit:
     q_internal : Heat released inside the cabinet [W].
     c_cold, c_hot : Heat capacities of the cold and hot sinks [J/K].
     g_cold, g_hot : Conductances cabinet air to cold face and hot face to ambient [W/K].
-    stderrs : Standard error of each parameter, by name.
+    stderrs : Standard error of each parameter, by name (K's includes what probe offsets
+        could do to it); also ``ua_probe``, the part of UA's uncertainty that constant probe
+        offsets could cause, not included in ``ua`` because it cancels in UA's changes.
     n : Segments used in the sink balances [-].
     n_samples : Samples behind them [-].
     k_from_data : True when the readings, not the prior, determine K.
@@ -704,6 +706,44 @@ def _warm_goods_runs(res: FloatArray, start: float = 3.0, settle: float = 1.0) -
     return out
 
 
+def _k_offset_sensitivity(
+    blocks: list[tuple[FloatArray, FloatArray]],
+    params: FloatArray,
+    duration: FloatArray,
+    offset_cols: tuple[int, ...],
+    held: bool,
+) -> float:
+    # Change of K [W/K] per kelvin of constant offset in each probe difference whose integral
+    # forms one of `offset_cols` (first order, each balance weighted by its residual scale):
+    # an offset adds offset·τ to that column, so the fit moves by -(XᵀWX)⁻¹XᵀW·(τ·θ_col).
+    # Root-sum-square over the differences; 0 when K was held at its prior.
+    if held:
+        return 0.0
+    x = np.vstack([b[0] for b in blocks])
+    y = np.concatenate([b[1] for b in blocks])
+    w = np.empty(y.size)
+    start = 0
+    for xb, yb in blocks:
+        end = start + xb.shape[0]
+        sd = 1.4826 * _median_mad(yb - xb @ params)[1]
+        w[start:end] = 1.0 / max(sd, 1e-12)
+        start = end
+    xw = x * w[:, None]
+    info = xw.T @ xw
+    try:
+        inv = np.linalg.inv(info)
+    except np.linalg.LinAlgError:
+        return math.inf
+    dur = np.concatenate([duration] * len(blocks))
+    total = 0.0
+    for col in offset_cols:
+        present = x[:, col] != 0.0
+        shift = np.where(present, dur * params[col], 0.0) * w
+        dk = float((inv @ (xw.T @ shift))[0])
+        total += dk * dk
+    return math.sqrt(total)
+
+
 def fit_thermal(
     time_s: FloatArray,
     t_cabinet: FloatArray,
@@ -724,6 +764,7 @@ def fit_thermal(
     on_current: float = 0.05,
     switch_guard_s: float = 0.0,
     q_internal_prior: tuple[float, float] = Q_INTERNAL_PRIOR,
+    probe_offset_k: float = 0.3,
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
 
@@ -772,6 +813,8 @@ def fit_thermal(
         temperatures then change too fast for trapezoidal integration over one interval, and
         the errors would line up with the switching and bias K.
     q_internal_prior : (mean [W], standard deviation [W]) of the internal load.
+    probe_offset_k : Standard uncertainty of a constant offset between two probes, carried
+        into K and UA to first order [K].
 
     Returns
     -------
@@ -845,6 +888,10 @@ def fit_thermal(
             f"1/r_hot={g_hot:.3g} W/K"
         )
     k_sd = float(np.sqrt(max(cov1[0, 0], 0.0)))
+    k_probe = (
+        _k_offset_sensitivity([(x_cold, i_pc), (x_hot, i_ph)], p1, sums(h), (2, 0, 3), forced)
+        * probe_offset_k
+    )
     k_from_data = not forced and k_sd < 0.5 * k_prior_rel * k_prior
 
     # Cabinet: every usable pair counts (switching does not matter for whole-hour sums),
@@ -876,16 +923,21 @@ def fit_thermal(
         raise EstimationError(f"non-physical cabinet fit: UA={ua:.3g} W/K")
     sd1 = np.sqrt(np.maximum(np.diag(cov1), 0.0))
     sd2 = np.sqrt(np.maximum(np.diag(cov2), 0.0))
-    # K's own uncertainty moves Qc, hence UA: add it in quadrature (first order).
+    # K's own uncertainty moves Qc, hence UA: add it in quadrature (first order). Probe
+    # offsets move K and, through it and Ta - Tcab, UA too: kept apart (``ua_probe``), since
+    # a constant offset cancels in UA's changes over time.
     dua_dk = float(bsums(trap(dtv)).sum()) / float(x_cab[:, 0].sum())
     ua_sd = math.hypot(float(sd2[0]), k_sd * dua_dk)
+    span = float(x_cab[:, 0].sum()) / float(x_cab[:, 1].sum())  # mean Ta - Tcab [K]
+    ua_probe = math.hypot(k_probe * dua_dk, ua * probe_offset_k / max(abs(span), 1e-9))
     stderrs = {
-        "k": k_sd,
+        "k": math.hypot(k_sd, k_probe),
         "c_cold": float(sd1[1]),
         "g_cold": float(sd1[2]),
         "g_hot": float(sd1[3]),
         "c_hot": float(sd1[4]),
         "ua": ua_sd,
+        "ua_probe": ua_probe,
         "q_internal": float(sd2[1]),
         "c": float(sd2[2]),
     }

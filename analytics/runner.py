@@ -22,10 +22,12 @@ module.resistance_25c_ohm                      R referred to 25 °C mean module 
 module.seebeck_v_per_k                         S at the window's mean module temperature [V/K]
 module.seebeck_25c_v_per_k                     S referred to 25 °C [V/K]
 module.seebeck_step_v_per_k                    S from switch-off steps (Harman), floating drivers
-module.conductance_w_per_k                     K [W/K]; unreliable when it leans on its prior
+module.conductance_w_per_k                     K [W/K]; unreliable when it leans on its prior;
+                                               stderr includes ±probe_offset_k probe offsets
 module.z_per_k / module.zt                     Z = S²/(R·K) [1/K], ZT at the mean temperature
 module.off_leak_w                              K·ΔT while off: heat the idle module lets in [W]
-cabinet.ua_w_per_k                             UA [W/K]
+cabinet.ua_w_per_k                             UA [W/K]; stderr includes probe offsets (they
+                                               cancel in its change, which is tracked)
 cabinet.heat_leak_w                            UA·(Ta - Tcab) over the window's last hour [W]
 cabinet.heat_capacity_j_per_k                  effective heat capacity [J/K]
 cabinet.internal_load_w                        heat released inside (fans, electronics) [W]
@@ -593,6 +595,7 @@ def _fit_window(
         th_fit = dg.fit_thermal(
             data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
             s_t, r_t, usable_th, k0, k_rel, on_current=cfg.on_current,
+            probe_offset_k=cfg.probe_offset_k,
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))
@@ -619,8 +622,12 @@ def _fit_window(
     rows.add("module.zt", b, z_val * tm_on, z_se * tm_on, ns, th_fit.k_from_data, k_note)
     if off.any():
         rows.add("module.off_leak_w", b, th_fit.k * float(np.mean(dt[off])), None, int(off.sum()))
+    # The value's error includes what probe offsets could do to it; its tracking (below)
+    # does not, since a constant offset cancels in its changes.
+    ua_se = math.hypot(sd["ua"], sd["ua_probe"])
+    ua_ok = th_fit.ua_reliable
     ua_note = th_fit.note if not th_fit.ua_reliable else None
-    rows.add("cabinet.ua_w_per_k", b, th_fit.ua, sd["ua"], ns, th_fit.ua_reliable, ua_note)
+    rows.add("cabinet.ua_w_per_k", b, th_fit.ua, ua_se, ns, ua_ok, ua_note)
     rows.add("cabinet.internal_load_w", b, th_fit.q_internal, sd["q_internal"], ns)
     rows.add(
         "cabinet.heat_capacity_j_per_k", b, th_fit.c, sd["c"], ns, th_fit.c_reliable,
@@ -630,8 +637,8 @@ def _fit_window(
     if last_hour.any():
         d_amb = float(np.mean(ta[last_hour] - tcab[last_hour]))
         rows.add(
-            "cabinet.heat_leak_w", b, th_fit.ua * d_amb, sd["ua"] * abs(d_amb),
-            int(last_hour.sum()), th_fit.ua_reliable, ua_note,
+            "cabinet.heat_leak_w", b, th_fit.ua * d_amb, ua_se * abs(d_amb),
+            int(last_hour.sum()), ua_ok, ua_note,
         )  # fmt: skip
     g_c, g_h = th_fit.g_cold, th_fit.g_hot
     # Probe offsets shift the small temperature differences themselves (see

@@ -364,3 +364,29 @@ def test_current_reading_offset_is_carried_into_resistance(
     assert abs(fit.r25 - r25) < 3.0 * se_r
     if not reliable:
         assert fit.note is not None and "offset" in fit.note
+
+
+@pytest.mark.parametrize(
+    "offsets_k", [(0.3, -0.3, 0.0, 0.0), (0.0, 0.3, -0.3, 0.0), (-0.3, 0.3, 0.3, -0.3)]
+)
+def test_stated_errors_cover_constant_probe_offsets(
+    offsets_k: tuple[float, float, float, float],
+) -> None:
+    # Probes that disagree by a few tenths of a kelvin are usual for uncalibrated thermistors
+    # (common practice, no source). On the noise-free thermostat day of the tests above such
+    # offsets move K by up to 13 % and UA by up to 23 % (values this code produced), far
+    # beyond the scatter of the data; the stated errors must cover that at two standard
+    # errors (a coverage factor of 2, JCGM 100:2008 6.2-6.3), UA's as the root-sum-square of
+    # its fit error and its probe-offset part.
+    tr = Truth()
+    a = _arrays(simulate(tr, 1.0, seed=1, noise=QUIET))
+    for name, off in zip(("t_cabinet", "t_cold", "t_hot", "t_ambient"), offsets_k, strict=True):
+        a[name] = a[name] + off
+    a["flags"] = dg.flag_samples(
+        a["t"], a["t_cabinet"], a["t_cold"], a["t_hot"], a["t_ambient"], a["i"], a["v"], a["door"]
+    )
+    f = _thermal(a, tr)
+    assert abs(f.k - tr.k) > 0.1 * tr.k  # the offsets matter here: the check is not vacuous
+    assert abs(f.k - tr.k) < 2.0 * f.stderr("k")
+    ua_se = math.hypot(f.stderr("ua"), f.stderr("ua_probe"))
+    assert abs(f.ua - tr.ua) < 2.0 * ua_se

@@ -327,6 +327,7 @@ def fit_electrical(
     min_on: int = 20,
     max_rel_stderr: float = 0.01,
     current_offset: float = 0.01,
+    probe_offset_k: float = 0.3,
 ) -> ElectricalFit:
     """Fit R25 and S25 to V = R25·I·(1 + α·(Tm - 25 °C)) + S25·ΔT·(1 + β·(Tm - 25 °C)).
 
@@ -353,11 +354,13 @@ def fit_electrical(
     prior : (R25 [ohm], S25 [V/K], relative standard deviation [-]), optional.
     min_on : Fewest on samples accepted [-].
     max_rel_stderr : Largest data-only relative standard error called reliable [-].
-    current_offset : Possible constant offset of the current reading, about one step of a
-        10 mA converter (common practice, no source) [A]. R carries it as a relative error of
+    current_offset : Standard uncertainty of a constant offset of the current reading, about
+        one step of a 10 mA converter (common practice, no source) [A]. It moves R by about
         current_offset / I_rms; R is marked unreliable where that exceeds twice
         ``max_rel_stderr`` (a few tenths of an ampere, as when a cold ambient leaves the
         module idling).
+    probe_offset_k : Standard uncertainty of a constant offset in the probes' ΔT [K]; it and
+        the current offset are carried into the covariance to first order.
 
     Returns
     -------
@@ -381,10 +384,12 @@ def fit_electrical(
         raise InsufficientDataError(
             f"{n_on} usable on samples, need {min_on}", "module hardly ran in this window"
         )
-    x = np.column_stack([i * (1.0 + alpha * tm), dt * (1.0 + beta * tm)])[rows]
+    f_r, f_s = (1.0 + alpha * tm)[rows], (1.0 + beta * tm)[rows]
+    x = np.column_stack([i[rows] * f_r, dt[rows] * f_s])
     y = v[rows]
     coef, keep = _trimmed_lstsq(x, y)
     x, y = x[keep], y[keep]
+    f_r, f_s = f_r[keep], f_s[keep]
     if int(np.sum(x[:, 0] != 0.0)) < min_on // 2:
         raise InsufficientDataError(
             "most on samples disagree with V = I·R + S·ΔT", "voltage readings inconsistent"
@@ -432,11 +437,25 @@ def fit_electrical(
         raise InsufficientDataError(f"R and S not identifiable: {note}", note)
     if not np.all(coef > 0.0):
         raise EstimationError(f"fitted R25/S25 not positive: {coef}")
-    # An offset of the current reading moves R by about offset/I; it does not average out.
+    # Constant offsets of the current reading and of the probes' ΔT do not average out: carry
+    # them to first order. An offset δ changes the voltage the model expects by -R·f_r·δ on
+    # the samples with current, or -S·f_s·δ on all, which moves the fitted (R, S) by
+    # (XᵀX)⁻¹Xᵀ of that (only R's column where S is held).
+    cov = np.array(cov, dtype=np.float64)
+    on_rows = x[:, 0] != 0.0
+    shifts = (
+        (np.where(on_rows, coef[0] * f_r, 0.0), current_offset),
+        (coef[1] * f_s, probe_offset_k),
+    )
+    for shift, sd in shifts:
+        if data_ok:
+            g = np.linalg.solve(x.T @ x, x.T @ shift)
+            cov += np.outer(g, g) * sd**2
+        else:
+            g0 = float(x[:, 0] @ shift) / float(x[:, 0] @ x[:, 0])
+            cov[0, 0] += (g0 * sd) ** 2
     i_rms = float(np.sqrt(np.mean(i[on] ** 2)))
     rel_i = current_offset / max(i_rms, 1e-12)
-    cov = np.array(cov, dtype=np.float64)
-    cov[0, 0] += (rel_i * float(coef[0])) ** 2
     if rel_i > 2.0 * max_rel_stderr and r_ok:
         r_ok = False
         low = f"current only {i_rms:.2f} A rms: its reading's offset dominates R"

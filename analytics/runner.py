@@ -553,7 +553,7 @@ def _fit_window(
     try:
         el = dg.fit_electrical(
             i, v, tc, th, usable, floating=floating, on_current=cfg.on_current,
-            alpha=cfg.alpha, beta=cfg.beta, prior=e_prior,
+            alpha=cfg.alpha, beta=cfg.beta, prior=e_prior, probe_offset_k=cfg.probe_offset_k,
         )  # fmt: skip
     except PhysicsError as exc:
         note = getattr(exc, "reason", str(exc))

@@ -2,6 +2,7 @@
 
 Run: ``python tests/bench/bench_diagnostics.py [--part accuracy,detect,season,speed]``.
 Prints tables; asserts nothing (targets are printed beside the figures). Simulated data only.
+"in 2 se": share of units whose error is within twice the standard error the estimate states.
 
 Targets: healthy units after 7 days of one-minute data: R25 within 2 %, S within 5 %, UA and
 r_hot within 20 %. A 5 % rise of R25 flagged within 7 days of crossing, a 1.5x UA step within
@@ -13,6 +14,7 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
+import math
 import sqlite3
 import sys
 import tempfile
@@ -95,11 +97,12 @@ def _json(x: Any) -> str:
     return json.dumps(x)
 
 
-def _latest(engine: Any, device: str, key: str) -> tuple[float, bool] | None:
+def _latest(engine: Any, device: str, key: str) -> tuple[float, bool, float] | None:
     h = runner.latest_health(engine, device)
     if key not in h:
         return None
-    return float(h[key]["value"]), bool(h[key]["reliable"])
+    se = h[key]["stderr"]
+    return float(h[key]["value"]), bool(h[key]["reliable"]), math.inf if se is None else se
 
 
 def _first_flag(engine: Any, device: str, prefix: str, after_ms: int) -> int | None:
@@ -121,7 +124,7 @@ def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
         ("r_cold", "cold_side.resistance_k_per_w", "r_cold", 0.20),
         ("K", "module.conductance_w_per_k", "k", 0.20),
     )
-    errs: dict[tuple[str, str], list[tuple[float, bool]]] = {}
+    errs: dict[tuple[str, str], list[tuple[float, bool, bool]]] = {}
     missing: dict[str, int] = {}
     for seed in seeds:
         spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
@@ -138,22 +141,25 @@ def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
                         missing[name] = missing.get(name, 0) + 1
                         continue
                     rel = got[0] / tp[tkey] - 1.0
-                    errs.setdefault((name, "all"), []).append((rel, got[1]))
-                    errs.setdefault((name, mode), []).append((rel, got[1]))
+                    covered = abs(got[0] - tp[tkey]) <= 2.0 * got[2]
+                    errs.setdefault((name, "all"), []).append((rel, got[1], covered))
+                    errs.setdefault((name, mode), []).append((rel, got[1], covered))
             engine.dispose()
     print(f"{'quantity':18} {'group':26} {'n':>3} {'median|err|':>11} {'p90|err|':>9} "
-          f"{'within':>7} {'target':>7} {'reliable':>8} {'within|rel':>10}")  # fmt: skip
+          f"{'within':>7} {'target':>7} {'reliable':>8} {'within|rel':>10} "
+          f"{'in 2 se':>7}")  # fmt: skip
     for name, _key, _t, tol in checks:
         for (q, group), vals in sorted(errs.items()):
             if q != name:
                 continue
-            e = np.abs(np.array([v for v, _ in vals]))
-            rel_ok = np.array([r for _, r in vals])
+            e = np.abs(np.array([v for v, _, _ in vals]))
+            rel_ok = np.array([r for _, r, _ in vals])
+            cover = np.array([c for _, _, c in vals])
             within_rel = float(np.mean(e[rel_ok] <= tol)) if rel_ok.any() else float("nan")
             print(f"{name:18} {group:26} {e.size:3d} {100 * np.median(e):10.1f}% "
                   f"{100 * np.percentile(e, 90):8.1f}% {100 * np.mean(e <= tol):6.0f}% "
                   f"{100 * tol:6.0f}% {100 * rel_ok.mean():7.0f}% "
-                  f"{100 * within_rel:9.0f}%")  # fmt: skip
+                  f"{100 * within_rel:9.0f}% {100 * cover.mean():6.0f}%")  # fmt: skip
     if missing:
         print("no estimate at the end:", missing)
 

@@ -228,6 +228,11 @@ class AlertPolicy:
     #: stay suspect this long: the cabinet fit spans a day and change figures take the
     #: median of the last day (see tecfleet.analytics.runner).
     sensor_taint_after_s: float = 2 * 86_400.0
+    #: While a reading condition builds up, returns inside the limit shorter than this do not
+    #: restart its clock: the delay counts cumulative time out of range, so a cabinet hovering
+    #: at its limit (probe noise, thermostat cycles) is still caught (common practice, no
+    #: source).
+    entry_bridge_s: float = 600.0
     #: Clear for this long before auto-resolve (readings / estimates).
     clear_s: float = 1800.0
     estimate_clear_s: float = 86_400.0
@@ -1005,20 +1010,23 @@ class _Timing:
     open_after_ms: int
     clear_after_ms: int
     critical_after_ms: int | None = None
+    bridge_ms: int = 0
 
 
 def _timing(kind: str, p: AlertPolicy) -> _Timing:
     s = 1000
+    bridge = int(p.entry_bridge_s * s)
     if kind == "excursion":
         return _Timing(
-            int(p.excursion_delay_s * s), int(p.clear_s * s), int(p.excursion_critical_s * s)
-        )
+            int(p.excursion_delay_s * s), int(p.clear_s * s), int(p.excursion_critical_s * s),
+            bridge,
+        )  # fmt: skip
     if kind == "over_temperature":
-        return _Timing(int(p.over_temperature_delay_s * s), int(p.clear_s * s))
+        return _Timing(int(p.over_temperature_delay_s * s), int(p.clear_s * s), None, bridge)
     if kind == "condensation_risk":
-        return _Timing(int(p.condensation_delay_s * s), int(p.clear_s * s))
+        return _Timing(int(p.condensation_delay_s * s), int(p.clear_s * s), None, bridge)
     if kind == "sensor_fault":
-        return _Timing(int(p.sensor_delay_s * s), int(2 * p.clear_s * s))
+        return _Timing(int(p.sensor_delay_s * s), int(2 * p.clear_s * s), None, bridge)
     if kind == "offline":
         return _Timing(0, 0)
     return _Timing(0, int(p.estimate_clear_s * s))
@@ -1167,7 +1175,8 @@ def _run_machine(
                 ep = st["ep"] = {"start": t, "active_ms": 0, "min": None, "max": None, "last_on": t}
                 st.pop("detail", None)
             else:
-                if prev_t is not None and ep.get("last_on") == prev_t:
+                # the interval up to a sample counts with that sample's state
+                if prev_t is not None:
                     ep["active_ms"] += min(t - prev_t, gap_cap)
                 ep["last_on"] = t
             v = float(obs.value[i])
@@ -1187,7 +1196,7 @@ def _run_machine(
                     ledger.apply(kind, "escalated", t, ep["sev"], st, summ, ev)
                 else:
                     touched = True
-            elif t - ep["start"] >= timing.open_after_ms:
+            elif ep["active_ms"] >= timing.open_after_ms:
                 st["open"] = True
                 st["sev"] = ep["sev"]
                 summ, ev = describe(kind, ep, {**context(t), **st.get("detail", {})}, False)
@@ -1203,6 +1212,8 @@ def _run_machine(
                 touched = False
         else:
             if not is_open:
+                if ep is not None and t - int(ep["last_on"]) <= timing.bridge_ms:
+                    continue  # a short return inside the limit: the spell goes on
                 st["ep"] = None
                 continue
             if st.get("clear") is None:

@@ -35,8 +35,8 @@ DAYS = 9.0
 def scored(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Score]:
     spec, faults = scoring_fleet(DAYS, healthy=2, seed=3)
     path: Path = tmp_path_factory.mktemp("scoring") / "t.db"
-    engine, truth, _spent = run_fleet(path, spec, DAYS, step_hours=24.0)
-    result = score(engine, faults, truth)
+    engine, truth, _spent, beyond = run_fleet(path, spec, DAYS, step_hours=24.0)
+    result = score(engine, faults, truth, beyond)
     touched = {f.device_id for f in spec.faults} | {e.device_id for e in spec.events}
     healthy = [d.device_id for d in spec.devices if d.device_id not in touched]
     result.opened.append({"healthy_ids": healthy})
@@ -52,6 +52,8 @@ def test_every_fault_raises_its_alert_once_on_its_unit_in_time(scored: Score) ->
     for label in ("wear", "leak", "fan", "sensor_stuck", "sensor_drift", "offline", "power_cut"):
         assert label in labels
     for i, e in enumerate(scored.expected):
+        if not e.required:
+            continue  # the true air hardly left its band: within the probe's tolerance
         delay = scored.delay_s(i)
         assert delay is not None, f"{e.label} on {e.device_id}: no {e.alert_kind} alert"
         assert delay <= e.target_s, (

@@ -134,6 +134,25 @@ def test_short_door_opening_does_not_fire(engine: sa.Engine) -> None:
     assert alerts.evaluate(engine) == []
 
 
+def test_cabinet_hovering_at_its_limit_opens_on_cumulative_time(engine: sa.Engine) -> None:
+    # From minute 300 the cabinet sits at its 8 °C limit: 8.2 °C for three minutes, 7.9 °C
+    # for two, over and over (probe noise and thermostat cycles around the limit). It is
+    # never out of range for 30 minutes on end, but it is out 60 % of the time; the delay
+    # counts cumulative time out of range (short returns inside do not restart it), so the
+    # alert opens once 30 minutes out have added up. Each minute ending in an out-of-range
+    # sample counts, the first sample of the spell starts the clock: 2 minutes in the first
+    # cycle, 3 in each after, 30 at minute 350 (common practice, no source).
+    series = cabinet_series(500)
+    for i in range(300, 500):
+        r = series[i]
+        series[i] = r._replace(t_cabinet=8.2 if (i - 300) % 5 < 3 else 7.9)
+    store.store_batch(engine, series)
+    changes = [c for c in alerts.evaluate(engine) if c.kind == "excursion"]
+    assert kinds(changes) == [("excursion", "opened")]
+    assert changes[0].at_ms == T0 + 350 * MIN
+    assert changes[0].evidence["active_s"] == 30 * 60
+
+
 def test_long_excursion_turns_critical_after_ten_hours(engine: sa.Engine) -> None:
     # 10 h above 8 °C, the WHO PQS 30-day recorder heat alarm (from memory)
     store.store_batch(engine, cabinet_series(1500, hot=(100, 1400), hot_c=9.0))

@@ -21,7 +21,8 @@ practice, no source): a stuck probe within 3 hours (1 h window, 15 min delay, ho
 evaluation), offline within 2 hours (5 intervals, hourly evaluation), an excursion within
 2 hours of the true cabinet air leaving its band (30 min out of band, plus the lag of the
 probe behind the air). Excursions are expected wherever the simulator's true cabinet air left
-its band (``FleetTruth.excursions``), whatever the cause. Capacity alerts are judged against
+its band (``FleetTruth.excursions``), whatever the cause, and required where it went more than
+a probe's tolerance (0.5 K) beyond the limit. Capacity alerts are judged against
 the true spare cooling computed from the simulator's parameters.
 """
 
@@ -36,6 +37,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import sqlalchemy as sa
 
 from tecfleet.analytics import alerts, physics, runner
@@ -71,6 +73,9 @@ class Expected:
     #: When the delay clock starts: the fault start, or the 5 % crossing of a wear ramp.
     clock_s: float
     target_s: float
+    #: False for an excursion the probe cannot be expected to see (see PROBE_TOLERANCE_K):
+    #: an alert for it is welcome, its absence is no miss.
+    required: bool = True
 
 
 @dataclass
@@ -183,12 +188,24 @@ def _register(engine: sa.Engine, spec: sim.FleetSpec) -> None:
             )  # fmt: skip
 
 
+#: Per device, per excursion: (largest distance beyond the limit [K], time it first exceeded
+#: PROBE_TOLERANCE_K [s] or None).
+Beyond = dict[str, list[tuple[float, float | None]]]
+
+#: How far beyond its limit the true air must go before the probe can be expected to show
+#: it: about the accuracy of a cabinet temperature probe, ±0.5 K (common practice, no
+#: source); the simulated probes carry offsets of that order.
+PROBE_TOLERANCE_K = 0.5
+
+
 def run_fleet(
     db_path: Path, spec: sim.FleetSpec, days: float, *, step_hours: float = 24.0
-) -> tuple[sa.Engine, sim.FleetTruth, dict[str, float]]:
+) -> tuple[sa.Engine, sim.FleetTruth, dict[str, float], Beyond]:
     """Simulate, store, analyse and evaluate in increments of ``step_hours``.
 
-    Returns the engine, the simulator's truth and the seconds spent per stage.
+    Returns the engine, the simulator's truth, the seconds spent per stage and, per device,
+    for each of its excursions (``FleetTruth.excursions`` order), how far [K] the true cabinet
+    air went beyond its limits and when [s] it first went further than PROBE_TOLERANCE_K.
     """
     engine = store.make_engine(f"sqlite:///{db_path}")
     store.migrate(engine)
@@ -198,10 +215,14 @@ def run_fleet(
     total = round(days * DAY_S / spec.interval_s)
     spent = {"simulate": 0.0, "store": 0.0, "analyze": 0.0, "evaluate": 0.0}
     done = 0
+    times: list[Any] = []
+    air: list[Any] = []
     while done < total:
         k = min(per_step, total - done)
         t0 = time.perf_counter()
         chunk = simulator.run(k)
+        times.append(chunk.t)
+        air.append(chunk.truth["t_air"])
         t1 = time.perf_counter()
         store.store_batch(engine, _readings(chunk))
         t2 = time.perf_counter()
@@ -218,18 +239,38 @@ def run_fleet(
     # excursions still under way at the end of the run count as well
     for dev, since in simulator.open_excursions().items():
         truth.excursions.setdefault(dev, []).append((since, None))
-    return engine, truth, spent
+    t_all, air_all = np.concatenate(times), np.concatenate(air)
+    low, high = simulator.limits  # per device [°C], as the true air in the chunks
+    beyond: Beyond = {}
+    for dev, windows in truth.excursions.items():
+        i = spec.device_ids.index(dev)
+        col = air_all[:, i]
+        for start, end in windows:
+            m = (t_all >= start) & (t_all <= (end if end is not None else t_all[-1]))
+            over = np.maximum(col[m] - high[i], low[i] - col[m])
+            far = np.flatnonzero(over > PROBE_TOLERANCE_K)
+            peak = float(over.max()) if over.size else 0.0
+            beyond.setdefault(dev, []).append((peak, float(t_all[m][far[0]]) if far.size else None))
+    return engine, truth, spent, beyond
 
 
-def excursions_expected(truth: sim.FleetTruth) -> list[Expected]:
+def excursions_expected(truth: sim.FleetTruth, beyond: Beyond | None = None) -> list[Expected]:
     """One expected excursion per time the true cabinet air left its band for 15 min or
-    more (``FleetTruth.excursions``), labelled by its cause when a power cut preceded it."""
+    more (``FleetTruth.excursions``), labelled by its cause when a power cut preceded it;
+    required only where the air went more than PROBE_TOLERANCE_K beyond the limit, with the
+    delay clock started when it did."""
     out = []
     for dev, windows in truth.excursions.items():
-        for start, _end in windows:
+        for k, (start, _end) in enumerate(windows):
             cut = any(c <= start for c, _ in truth.power_cuts.get(dev, []))
             label = "power_cut" if cut else "excursion"
-            out.append(Expected(label, dev, "excursion", start, start, TARGETS_S[label]))
+            far_at = start if beyond is None else beyond[dev][k][1]
+            clock = start if far_at is None else far_at
+            out.append(
+                Expected(
+                    label, dev, "excursion", start, clock, TARGETS_S[label], far_at is not None
+                )
+            )
     return out
 
 
@@ -296,10 +337,19 @@ CONSEQUENCES: dict[str, set[str]] = {
     "leak": {"excursion", "capacity_shortfall"},
     "wear": {"capacity_shortfall"},
     "power_cut": {"offline"},
+    # A cabinet probe drifting out of the band reads as an excursion. The readings are all
+    # there is to go on, and for stored medicines reporting it is the safe side; the sensor
+    # fault alert says the probe is in doubt.
+    "sensor_drift": {"excursion"},
 }
 
 
-def score(engine: sa.Engine, faults: list[Expected], truth: sim.FleetTruth) -> Score:
+def score(
+    engine: sa.Engine,
+    faults: list[Expected],
+    truth: sim.FleetTruth,
+    beyond: Beyond | None = None,
+) -> Score:
     """Match alert openings and reopenings to the faults' and the true excursions' expected
     alerts, each opening to at most one.
 
@@ -307,7 +357,7 @@ def score(engine: sa.Engine, faults: list[Expected], truth: sim.FleetTruth) -> S
     unit whose true spare cooling at that time is below the policy's fraction (the truth says
     it is short).
     """
-    expected = faults + excursions_expected(truth)
+    expected = faults + excursions_expected(truth, beyond)
     line = alerts.AlertPolicy().capacity_warning_fraction
     opened = opened_alerts(engine)
     openings = alert_openings(engine)
@@ -355,9 +405,10 @@ def table(result: Score) -> str:
         fired = "yes" if d is not None else "no"
         delay = "-" if d is None else _human(d)
         ok = d is not None and d <= e.target_s
+        verdict = ("yes" if ok else "NO") if e.required else "(within probe tolerance)"
         lines.append(
             f"{e.label:<14}{e.device_id:<10}{e.alert_kind:<20}{fired:<7}{delay:>10}"
-            f"{_human(e.target_s):>10}  {'yes' if ok else 'NO'}"
+            f"{_human(e.target_s):>10}  {verdict}"
         )
     lines.append("")
     lines.append(f"{'false positives by kind':<30}count  units")
@@ -388,8 +439,8 @@ def main(argv: list[str] | None = None) -> int:
     spec, expected = scoring_fleet(args.days, healthy=args.healthy, seed=args.seed)
     with tempfile.TemporaryDirectory() as tmp:
         db = args.keep if args.keep is not None else Path(tmp) / "bench.db"
-        engine, truth, spent = run_fleet(db, spec, args.days, step_hours=args.step_hours)
-        result = score(engine, expected, truth)
+        engine, truth, spent, beyond = run_fleet(db, spec, args.days, step_hours=args.step_hours)
+        result = score(engine, expected, truth, beyond)
         engine.dispose()
     print(
         f"{len(spec.devices)} units ({args.healthy} healthy), {args.days:g} days, "

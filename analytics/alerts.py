@@ -515,7 +515,8 @@ def sensor_fault_observations(
     ``impossible_current_fraction`` of ``i_ref`` [A] for ``impossible_on_s``.
     ``interval`` is ``usual_interval_ms`` of the frame's times, when the caller has it.
     ``probe_offset`` [K] per row (:func:`cabinet_probe_offset`) flags the cabinet probe when
-    it has moved by ``drift_warning_k`` against the cold side's heat balance.
+    it has moved by ``drift_warning_k`` against the cold side's heat balance. An open alert is
+    held while a channel found stuck stays frozen, even if the others have stopped moving.
     """
     n = len(frame)
     if n == 0 or first >= n:
@@ -534,17 +535,16 @@ def sensor_fault_observations(
     for col in _TEMPS:
         s = pd.Series(frame[col].to_numpy(np.float64), index=idx).rolling(win)
         span[col] = (s.max() - s.min()).to_numpy()
+    frozen_since_stuck = np.zeros(n, dtype=bool)
     for col in _TEMPS:
         others = np.max(np.vstack([span[c] for c in _TEMPS if c != col]), axis=0)
-        checks.append(
-            (
-                f"{col} stuck",
-                covered
-                & (counts >= 10)
-                & (span[col] <= 1e-9)
-                & (others >= policy.stuck_other_move_k),
-            )
-        )
+        frozen = covered & (counts >= 10) & (span[col] <= 1e-9)
+        stuck = frozen & (others >= policy.stuck_other_move_k)
+        checks.append((f"{col} stuck", stuck))
+        # A channel found stuck stays in doubt while it stays frozen, also when the others
+        # then rest too (a quiet night): no resolve and reopen on the same frozen probe.
+        run = np.cumsum(~frozen)
+        frozen_since_stuck |= frozen & pd.Series(stuck).groupby(run).cummax().to_numpy(dtype=bool)
     spikes = np.zeros(n, dtype=np.float64)
     # Only the slow channels: the module faces really do jump within a minute when the
     # drive switches on or off.
@@ -601,7 +601,7 @@ def sensor_fault_observations(
     return Observations(
         t[first:],
         active,
-        active.copy(),
+        active | frozen_since_stuck[first:],
         np.where(active, 1, 0).astype(np.int8),
         count.astype(np.float64),
         detail,

@@ -342,6 +342,28 @@ def test_stuck_cabinet_probe_is_a_sensor_fault(engine: sa.Engine) -> None:
     assert "t_cabinet stuck" in changes[0].evidence["issues"]
 
 
+def test_stuck_probe_stays_one_alert_through_a_quiet_spell(engine: sa.Engine) -> None:
+    # The cabinet probe freezes at minute 100 and stays frozen. From minute 300 to 500 every
+    # other channel rests too (a quiet night: module idle, room steady), so "flat while the
+    # others move" cannot be judged; after that they move again. The probe never moved, so the
+    # alert must stay open throughout: one opening, no resolve and reopen.
+    data = cabinet_series(700)
+    rows = []
+    for i, r in enumerate(data):
+        quiet = 300 <= i < 500
+        rows.append(
+            r._replace(
+                t_cabinet=4.7 if i >= 100 else r.t_cabinet,
+                t_cold=-1.0 if quiet else r.t_cold,
+                t_hot=30.0 if quiet else r.t_hot,
+                t_ambient=22.0 if quiet else r.t_ambient,
+            )
+        )
+    store.store_batch(engine, rows)
+    changes = [c for c in alerts.evaluate(engine) if c.kind == "sensor_fault"]
+    assert kinds(changes) == [("sensor_fault", "opened")]
+
+
 def _estimate(engine: sa.Engine, key: str, at_ms: int, value: float) -> None:
     with engine.begin() as conn:
         conn.execute(

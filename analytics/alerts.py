@@ -9,7 +9,8 @@ peak matters. A small state machine per device and kind turns observations into 
   condition has been clear for ``clear_after``;
 * severity only rises within a spell (no flapping between warning and critical);
 * one alert per device and kind is open at a time; a condition returning within
-  ``reopen_window_s`` of resolving reopens the same alert and counts the reopen.
+  ``reopen_window_s`` of resolving (``estimate_reopen_window_s`` for the trend kinds) reopens
+  the same alert and counts the reopen.
 
 Everything runs on the readings' own timestamps. Per device, ``alert_progress`` keeps the time
 of the last evaluated reading and each rule's timers, so each call reads only new readings
@@ -238,6 +239,10 @@ class AlertPolicy:
     estimate_clear_s: float = 86_400.0
     #: A condition back within this time reopens the resolved alert.
     reopen_window_s: float = 6 * 3600.0
+    #: The same for the alerts judged on the diagnostics' trends (wear, heat leak, hot side,
+    #: capacity): their figures move a day at a time, and a leak or a worn module that dips
+    #: under its threshold for a day is still the same fault (common practice, no source).
+    estimate_reopen_window_s: float = 7 * 86_400.0
     #: Grouped notice when at least this many devices of one site open one kind within the
     #: window (a site power cut); common practice, no source.
     group_min_devices: int = 3
@@ -1158,7 +1163,8 @@ def _run_machine(
 ) -> None:
     """Feed observations to the lifecycle of one (device, kind); ``st`` is carried JSON."""
     last_t = st.get("last_t")
-    reopen_ms = int(policy.reopen_window_s * 1000)
+    window_s = policy.estimate_reopen_window_s if kind in ESTIMATE_KINDS else policy.reopen_window_s
+    reopen_ms = int(window_s * 1000)
     gap_cap = max(timing.clear_after_ms, 10 * MS_MIN)
     touched = False
     for i in range(len(obs.t)):

@@ -763,6 +763,33 @@ def _k_offset_sensitivity(
     return math.sqrt(total)
 
 
+def _after_warm_spells(
+    t: FloatArray, tcab: FloatArray, rise_k: float, min_s: float, recovery_s: float
+) -> BoolArray:
+    # Samples from the start of a warm spell (cabinet air more than rise_k above its usual low
+    # for min_s or longer: a power cut, cooling that failed) until recovery_s after it ends:
+    # the contents warmed with the air and give that heat back for hours, a load the cabinet
+    # balance does not describe.
+    out = np.zeros(t.size, dtype=bool)
+    ok = np.isfinite(tcab)
+    if ok.sum() < 10:
+        return out
+    low, usual = np.percentile(tcab[ok], [10, 50])
+    warm = ok & (tcab > float(low) + rise_k)
+    if not warm.any():
+        return out
+    # A spell begins where the air last stood at its usual level before it (the first part
+    # of the rise already stores heat in the contents).
+    settled = np.flatnonzero(ok & (tcab <= float(usual)))
+    edges = np.diff(np.concatenate([[0], warm.astype(np.int8), [0]]))
+    for a, b in zip(np.flatnonzero(edges == 1), np.flatnonzero(edges == -1), strict=True):
+        if t[b - 1] - t[a] >= min_s:
+            before = settled[settled < a]
+            a0 = int(before[-1]) if before.size else 0
+            out |= (t >= t[a0]) & (t <= t[b - 1] + recovery_s)
+    return out
+
+
 def fit_thermal(
     time_s: FloatArray,
     t_cabinet: FloatArray,
@@ -784,6 +811,9 @@ def fit_thermal(
     switch_guard_s: float = 0.0,
     q_internal_prior: tuple[float, float] = Q_INTERNAL_PRIOR,
     probe_offset_k: float = 0.3,
+    warm_spell_k: float = 3.0,
+    warm_spell_min_s: float = 1800.0,
+    recovery_s: float = 12 * 3600.0,
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
 
@@ -809,7 +839,9 @@ def fit_thermal(
     release their heat over hours, so a run of blocks that starts with a large excess of heat
     and lasts while the excess stays above one robust scale is left out as a whole; and so
     are blocks in which the on/off cycle is locked to a few sampling intervals (the samples
-    then see only some phases of each cycle, which biases the block means). Lumped-capacitance
+    then see only some phases of each cycle, which biases the block means), and the hours
+    of a warm spell (power cut, failed cooling) and ``recovery_s`` after it, while the
+    contents give back the heat they took. Lumped-capacitance
     balances: Incropera et al. (2007), ch. 5.
 
     Parameters
@@ -834,6 +866,11 @@ def fit_thermal(
     q_internal_prior : (mean [W], standard deviation [W]) of the internal load.
     probe_offset_k : Standard uncertainty of a constant offset between two probes, carried
         into K and UA to first order [K].
+    warm_spell_k, warm_spell_min_s, recovery_s : A warm spell is the cabinet air more than
+        ``warm_spell_k`` above its usual low (10th percentile of the window) for
+        ``warm_spell_min_s`` or longer; the cabinet balance leaves it out and ``recovery_s``
+        after it, while the contents give back the heat they took (about three time
+        constants of a few hours; common practice, no source) [K], [s], [s].
 
     Returns
     -------
@@ -918,11 +955,16 @@ def fit_thermal(
     qc = pc - k * dtv
     blk = np.floor((t[:-1] - t[0]) / cabinet_block_s).astype(np.int64)
     strobed = _strobed_blocks(on, blk)
-    bsums, n_blocks, _, _ = segments(cabinet_block_s, base & ~strobed[blk])
+    recovering = _after_warm_spells(t, tcab, warm_spell_k, warm_spell_min_s, recovery_s)
+    bsums, n_blocks, _, _ = segments(cabinet_block_s, base & ~strobed[blk] & ~recovering[:-1])
     if n_blocks < 3:
+        why = (
+            "cabinet still giving up heat stored during a warm spell (power cut, failed cooling)"
+            if recovering.any()
+            else "too few complete hours for the cabinet balance (door openings, gaps or faults)"
+        )
         raise InsufficientDataError(
-            f"{n_blocks} usable {cabinet_block_s / 3600:.1f}-hour blocks, need 3",
-            "too few complete hours for the cabinet balance (door openings, gaps or faults)",
+            f"{n_blocks} usable {cabinet_block_s / 3600:.1f}-hour blocks, need 3", why
         )
     x_cab = np.column_stack([bsums(trap(ta - tcab)), bsums(h), -bsums(np.diff(tcab))])
     y_cab = bsums(trap(qc))

@@ -112,6 +112,10 @@ class AnalysisSettings:
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO  # [1/K]
     beta: float = physics.BI2TE3_SEEBECK_TEMPCO  # [1/K]
     baseline_days: float = 3.0
+    #: Fewest reliable values a baseline is made of; with fewer in ``baseline_days`` it waits
+    #: for more (a baseline of two or three fits would set every later change on chance;
+    #: common practice, no source).
+    baseline_min_n: int = 6
     trend_days: float = 30.0
     #: +10 % on R25 as end of useful life (common practice, no source).
     wear_limit_pct: float = 10.0
@@ -734,8 +738,9 @@ def _track(
     """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
 
     The baseline is the median of the values from ``skip_days`` to ``skip_days +
-    baseline_days`` after the first one; the flag is raised once the change has reached
-    ``flag_pct`` on ``persist`` consecutive evaluations.
+    baseline_days`` after the first one, or of the first ``baseline_min_n`` from
+    ``skip_days`` on when that period holds fewer; the flag is raised once the change has
+    reached ``flag_pct`` on ``persist`` consecutive evaluations.
     """
     series = state.setdefault("series", {}).setdefault(name, [])
     first = state.setdefault("first", {}).setdefault(name, b)
@@ -750,8 +755,13 @@ def _track(
         if b < baseline_end:
             return
         pool = np.array([x for at, x in series if baseline_start <= at <= baseline_end])
-        if pool.size == 0:
-            return
+        if pool.size < cfg.baseline_min_n:
+            # Too few reliable values in the baseline period: keep collecting, the first
+            # baseline_min_n from its start make the baseline.
+            later = [x for at, x in series if at >= baseline_start][: cfg.baseline_min_n]
+            if len(later) < cfg.baseline_min_n:
+                return
+            pool = np.array(later)
         bl = trends.baseline(pool, min_rel_spread)
         bases[name] = {"center": bl.center, "spread": bl.spread, "n": bl.n}
         # baseline values are no longer needed in the series beyond the trend horizon

@@ -419,6 +419,27 @@ def test_wear_limit_days_away_warns_only_on_a_rise_whose_interval_excludes_zero(
     assert obs.active[0] and obs.severity[0] == 1
 
 
+def test_heat_leak_back_after_days_reopens_the_same_alert(engine: sa.Engine) -> None:
+    # UA up 40 % for a day, back to +20 % for three days (the alert resolves after its day of
+    # clear estimates), then up 40 % again: the same leak, so the same alert is reopened
+    # and the reopen counted, within the trend kinds' reopen window of 7 days (common
+    # practice, no source), instead of a second alert for one fault.
+    six_h = 6 * 3_600_000
+    store.store_batch(engine, cabinet_series(8 * 1440))
+    for k in range(4, 26):  # days 1 to 6.25, 6-hourly
+        pct = 40.0 if k < 8 or k >= 20 else 20.0
+        _estimate(engine, "cabinet.ua.change_pct", T0 + k * six_h, pct)
+    changes = [c for c in alerts.evaluate(engine) if c.kind == "heat_leak"]
+    assert [c.change for c in changes] == ["opened", "resolved", "reopened"]
+    with engine.connect() as conn:
+        rows = conn.execute(
+            sa.select(store.alerts.c.id, store.alerts.c.reopen_count).where(
+                store.alerts.c.kind == "heat_leak"
+            )
+        ).fetchall()
+    assert [r.reopen_count for r in rows] == [1]
+
+
 def test_maintenance_holds_notices_and_sends_the_open_alert_at_the_end(engine: sa.Engine) -> None:
     alerts.add_maintenance(engine, T0 + 1400 * MIN, T0 + 1700 * MIN, device_id="cab-1")
     store.store_batch(engine, cabinet_series(1800, hot=(1500, 1800)))

@@ -62,7 +62,9 @@ codes and licensed practice; condensation near electronics needs an electrician'
 from __future__ import annotations
 
 import bisect
+import functools
 import itertools
+import json
 import math
 import multiprocessing
 import os
@@ -395,11 +397,22 @@ def _priors(module: Any, cfg: AnalysisSettings) -> physics.ModuleParameters | No
     if not isinstance(module, dict):
         return None
     try:
+        key = (json.dumps(module, sort_keys=True), cfg.default_t_hot_rated_c)
+    except (TypeError, ValueError):
+        return None
+    return _priors_from(key[0], key[1])
+
+
+@functools.lru_cache(maxsize=4096)
+def _priors_from(module_json: str, default_t_hot_rated_c: float) -> physics.ModuleParameters | None:
+    # Ratings to parameters is a least-squares solve: once per distinct registration.
+    module = json.loads(module_json)
+    try:
         params = physics.parameters_from_ratings(
             float(module["i_max_a"]),
             float(module["v_max_v"]),
             float(module["dt_max_k"]),
-            float(module.get("t_hot_rated_c") or cfg.default_t_hot_rated_c) + T0,
+            float(module.get("t_hot_rated_c") or default_t_hot_rated_c) + T0,
             q_max=None if module.get("q_max_w") is None else float(module["q_max_w"]),
             n_couples=None if module.get("couples") is None else int(module["couples"]),
         )
@@ -455,7 +468,12 @@ def _analyze_device(
     end = last // step * step
     if end <= done:
         return 0, 0
-    lookback = max(window, cfg.thermal_window_s * 1000) + cfg.margin_s * 1000
+    # The day behind a window fit is needed only when a fit is due in this run; hourly steps
+    # alone need their own hour (flags look back at most margin_s, so they come out the same).
+    fit_due = any(b % window == 0 for b in range(done + step, end + 1, step))
+    lookback = (max(window, cfg.thermal_window_s * 1000) if fit_due else step) + (
+        cfg.margin_s * 1000
+    )
     data = _load(conn, dev.device_id, done - lookback, end)
     # Flags once for everything loaded. They depend on at most door_settle_s/settle_s of
     # look-back (within margin_s) and never on a reading after the end of its own step, so

@@ -200,8 +200,10 @@ def analyze(
             results = [f.result() for f in futures]
     else:
         results = []
-        for dev, saved in jobs:
-            with engine.begin() as conn:
+        # One transaction for the run: a live run is an hour per device, and a commit each
+        # (a disk flush under synchronous=FULL) would cost more than the analysis.
+        with engine.begin() as conn:
+            for dev, saved in jobs:
                 results.append((dev.device_id, *_analyze_device(conn, dev, saved, cfg)))
     for dev_id, n_steps, n_est in sorted(results):
         report.devices += 1

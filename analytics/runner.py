@@ -788,7 +788,9 @@ def _track(
     bl_d = bases[name]
     center, spread = float(bl_d["center"]), float(bl_d["spread"])
     # The series is in time order: cut it by bisection rather than by scanning it every step.
-    series = series[bisect.bisect_left(series, horizon, key=_at) :]
+    series = _daily_medians_before(
+        series[bisect.bisect_left(series, horizon, key=_at) :], b // MS_DAY - 1
+    )
     state["series"][name] = series
     recent_from = b - (cfg.step_s * 1000 if name == "rhot" else MS_DAY)
     tail = series[bisect.bisect_right(series, recent_from, key=_at) :]
@@ -813,6 +815,26 @@ def _track(
 
 def _at(point: list[Any]) -> int:
     return int(point[0])
+
+
+def _daily_medians_before(series: list[list[Any]], day: int) -> list[list[Any]]:
+    # Days before `day` (UTC day numbers) reduced to one point each, their median at the
+    # day's last time: all that the daily trend reads of them (it takes each day's median),
+    # and the carried state stays small. Later days keep every value (recent medians).
+    out: list[list[Any]] = []
+    i = 0
+    while i < len(series) and int(series[i][0]) // MS_DAY < day:
+        d = int(series[i][0]) // MS_DAY
+        j = i
+        while j < len(series) and int(series[j][0]) // MS_DAY == d:
+            j += 1
+        if j - i == 1:
+            out.append(series[i])
+        else:
+            out.append([series[j - 1][0], statistics.median(x for _, x in series[i:j])])
+        i = j
+    out.extend(series[i:])
+    return out
 
 
 def _daily(

@@ -1014,27 +1014,28 @@ class AlertChange:
 class _Timing:
     open_after_ms: int
     clear_after_ms: int
+    reopen_within_ms: int
     critical_after_ms: int | None = None
     bridge_ms: int = 0
 
 
 def _timing(kind: str, p: AlertPolicy) -> _Timing:
     s = 1000
+    clear = int(p.clear_s * s)
+    reopen = int(p.reopen_window_s * s)
     bridge = int(p.entry_bridge_s * s)
     if kind == "excursion":
-        return _Timing(
-            int(p.excursion_delay_s * s), int(p.clear_s * s), int(p.excursion_critical_s * s),
-            bridge,
-        )  # fmt: skip
+        critical = int(p.excursion_critical_s * s)
+        return _Timing(int(p.excursion_delay_s * s), clear, reopen, critical, bridge)
     if kind == "over_temperature":
-        return _Timing(int(p.over_temperature_delay_s * s), int(p.clear_s * s), None, bridge)
+        return _Timing(int(p.over_temperature_delay_s * s), clear, reopen, None, bridge)
     if kind == "condensation_risk":
-        return _Timing(int(p.condensation_delay_s * s), int(p.clear_s * s), None, bridge)
+        return _Timing(int(p.condensation_delay_s * s), clear, reopen, None, bridge)
     if kind == "sensor_fault":
-        return _Timing(int(p.sensor_delay_s * s), int(2 * p.clear_s * s), None, bridge)
+        return _Timing(int(p.sensor_delay_s * s), 2 * clear, reopen, None, bridge)
     if kind == "offline":
-        return _Timing(0, 0)
-    return _Timing(0, int(p.estimate_clear_s * s))
+        return _Timing(0, 0, reopen)
+    return _Timing(0, int(p.estimate_clear_s * s), int(p.estimate_reopen_window_s * s))
 
 
 def _jsonable(x: Any) -> Any:
@@ -1163,8 +1164,7 @@ def _run_machine(
 ) -> None:
     """Feed observations to the lifecycle of one (device, kind); ``st`` is carried JSON."""
     last_t = st.get("last_t")
-    window_s = policy.estimate_reopen_window_s if kind in ESTIMATE_KINDS else policy.reopen_window_s
-    reopen_ms = int(window_s * 1000)
+    reopen_ms = timing.reopen_within_ms
     gap_cap = max(timing.clear_after_ms, 10 * MS_MIN)
     touched = False
     for i in range(len(obs.t)):

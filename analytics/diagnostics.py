@@ -296,8 +296,8 @@ def _trimmed_lstsq(x: FloatArray, y: FloatArray, cut: float = 4.0) -> tuple[Floa
     # readings carry occasional glitches the model cannot explain.
     coef = _lstsq(x, y)
     res = y - x @ coef
-    mad = _median_mad(res)[1] * 1.4826
-    keep = np.abs(res) <= cut * mad if mad > 0.0 else np.ones(y.size, dtype=bool)
+    sd = _robust_sd(res)
+    keep = np.abs(res) <= cut * sd if sd > 0.0 else np.ones(y.size, dtype=bool)
     if keep.sum() >= x.shape[1] + 2 and not keep.all():
         coef = _lstsq(x[keep], y[keep])
     return coef, keep
@@ -449,10 +449,10 @@ def fit_electrical(
     )
     for shift, sd in shifts:
         if data_ok:
-            g = np.linalg.solve(x.T @ x, x.T @ shift)
+            g = np.linalg.solve(xtx, x.T @ shift)
             cov += np.outer(g, g) * sd**2
         else:
-            g0 = float(x[:, 0] @ shift) / float(x[:, 0] @ x[:, 0])
+            g0 = float(x[:, 0] @ shift) / float(xtx[0, 0])
             cov[0, 0] += (g0 * sd) ** 2
     i_rms = float(np.sqrt(np.mean(i[on] ** 2)))
     rel_i = current_offset / max(i_rms, 1e-12)
@@ -587,6 +587,22 @@ def _segment_sums(seg: NDArray[np.int64], n_seg: int, weights: FloatArray) -> Fl
     return np.bincount(seg, weights=weights, minlength=n_seg).astype(np.float64)
 
 
+def _robust_sd(x: FloatArray) -> float:
+    # Standard deviation from the median absolute deviation (normal-consistent, 1.4826·MAD).
+    return 1.4826 * _median_mad(x)[1]
+
+
+def _balance_weights(
+    blocks: list[tuple[FloatArray, FloatArray]], params: FloatArray, floor: float
+) -> FloatArray:
+    # Each balance's rows weighted by one over that balance's robust residual scale.
+    w = []
+    for xb, yb in blocks:
+        sd = _robust_sd(yb - xb @ params)
+        w.append(np.full(yb.size, 1.0 / max(sd, floor)))
+    return np.concatenate(w)
+
+
 def _median_mad(x: FloatArray) -> tuple[float, float]:
     # Median and median absolute deviation of a few dozen values from one sort each:
     # numpy's median costs more in argument handling than in work at these sizes.
@@ -657,14 +673,7 @@ def _robust_weighted(
     dev = y_all - y_all.mean()
     y_scale = max(math.sqrt(float(dev @ dev) / max(dev.size, 1)), 1e-12)  # standard deviation
     coef, _ = _solve_with_prior(xs, y_all, index, p0 * scale[index], p_sd * scale[index] / y_scale)
-    wts = np.empty(y_all.size)
-    start = 0
-    for xb, _yb in blocks:
-        end = start + xb.shape[0]
-        res = y_all[start:end] - xs[start:end] @ coef
-        sd = _median_mad(res)[1] * 1.4826
-        wts[start:end] = 1.0 / max(sd, 1e-9 * y_scale)
-        start = end
+    wts = _balance_weights(blocks, coef / scale, 1e-9 * y_scale)
     keep = np.abs((y_all - xs @ coef) * wts) <= 4.0
     xw, yw = xs[keep] * wts[keep, None], y_all[keep] * wts[keep]
     params, cov = _solve_with_prior(xw, yw, index, p0 * scale[index], p_sd * scale[index])
@@ -715,7 +724,7 @@ def _warm_goods_runs(res: FloatArray, start: float = 3.0, settle: float = 1.0) -
         return out
     med, mad = _median_mad(res)
     sd = 1.4826 * mad
-    if sd <= 0.0:
+    if not sd > 0.0:
         return out
     z = ((res - med) / sd).tolist()
     running = False
@@ -739,14 +748,7 @@ def _k_offset_sensitivity(
     if held:
         return 0.0
     x = np.vstack([b[0] for b in blocks])
-    y = np.concatenate([b[1] for b in blocks])
-    w = np.empty(y.size)
-    start = 0
-    for xb, yb in blocks:
-        end = start + xb.shape[0]
-        sd = 1.4826 * _median_mad(yb - xb @ params)[1]
-        w[start:end] = 1.0 / max(sd, 1e-12)
-        start = end
+    w = _balance_weights(blocks, params, 1e-12)
     xw = x * w[:, None]
     info = xw.T @ xw
     try:

@@ -399,10 +399,10 @@ def _priors(module: Any, cfg: AnalysisSettings) -> physics.ModuleParameters | No
     if not isinstance(module, dict):
         return None
     try:
-        key = (json.dumps(module, sort_keys=True), cfg.default_t_hot_rated_c)
+        module_json = json.dumps(module, sort_keys=True)
     except (TypeError, ValueError):
         return None
-    return _priors_from(key[0], key[1])
+    return _priors_from(module_json, cfg.default_t_hot_rated_c)
 
 
 @functools.lru_cache(maxsize=4096)
@@ -649,9 +649,8 @@ def _fit_window(
     # The value's error includes what probe offsets could do to it; its tracking (below)
     # does not, since a constant offset cancels in its changes.
     ua_se = math.hypot(sd["ua"], sd["ua_probe"])
-    ua_ok = th_fit.ua_reliable
     ua_note = th_fit.note if not th_fit.ua_reliable else None
-    rows.add("cabinet.ua_w_per_k", b, th_fit.ua, ua_se, ns, ua_ok, ua_note)
+    rows.add("cabinet.ua_w_per_k", b, th_fit.ua, ua_se, ns, th_fit.ua_reliable, ua_note)
     rows.add("cabinet.internal_load_w", b, th_fit.q_internal, sd["q_internal"], ns)
     rows.add(
         "cabinet.heat_capacity_j_per_k", b, th_fit.c, sd["c"], ns, th_fit.c_reliable,
@@ -662,7 +661,7 @@ def _fit_window(
         d_amb = float(np.mean(ta[last_hour] - tcab[last_hour]))
         rows.add(
             "cabinet.heat_leak_w", b, th_fit.ua * d_amb, ua_se * abs(d_amb),
-            int(last_hour.sum()), ua_ok, ua_note,
+            int(last_hour.sum()), th_fit.ua_reliable, ua_note,
         )  # fmt: skip
     g_c, g_h = th_fit.g_cold, th_fit.g_hot
     # Probe offsets shift the small temperature differences themselves (see

@@ -22,6 +22,7 @@ import pytest
 
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics as ph
+from tecfleet.analytics import simulator as sm
 from tecfleet.analytics.errors import InsufficientDataError
 from tests.analytics.synthetic import Noise, Truth, simulate
 
@@ -299,6 +300,41 @@ def test_hot_side_resistance_per_hour_matches_one_hour_at_a_time(day: dict[str, 
     assert isinstance(many[3], InsufficientDataError)
 
 
+SIM_START = 1_735_689_600.0
+
+
+def _simulated_cooler(
+    events: tuple[Any, ...], days: float
+) -> tuple[Any, dict[str, Any], dict[str, float], Any]:
+    """One quiet cooler from the simulator (contents 30 kJ/K at 2 W/K, no sensor errors, no
+    random use), with ``events``: its spec, its readings (temperatures [K]), its true
+    parameters and the simulator's truth."""
+    dev = sm.device_from_ratings(
+        "unit-1", ua=0.45, r_hot=0.22, r_cold=0.4, c_air=900.0, c_contents=30_000.0,
+        g_contents=2.0, t_amb_mean_c=24.0, t_amb_daily_k=1.5, t_amb_weather_k=0.0,
+        door_per_day=0.0, loads_per_day=0.0, cuts_per_30d=0.0,
+    )  # fmt: skip
+    spec = sm.FleetSpec((dev,), SIM_START, seed=2, sensors=False, random_use=False, events=events)
+    chunks, truth = sm.simulate(spec, days)
+    c = sm.concat(chunks)
+    a = {k: v[:, 0] for k, v in c.measured.items()}
+    for k in ("t_cabinet", "t_cold", "t_hot", "t_ambient"):
+        a[k] = a[k] + K0
+    a["t"] = c.t - c.t[0]
+    return dev, a, truth.params_at("unit-1", SIM_START), truth
+
+
+def _fit_simulated(a: dict[str, Any], p: dict[str, float], sel: Any = slice(None)) -> dg.ThermalFit:
+    """fit_thermal on the samples ``sel`` of a simulated cooler, with its true S, R and K."""
+    t = a["t"][sel]
+    temps = [a[k][sel] for k in ("t_cabinet", "t_cold", "t_hot", "t_ambient")]
+    flags = dg.flag_samples(t, *temps, a["current"][sel], a["voltage"][sel])
+    tm = 0.5 * (temps[1] + temps[2])
+    s = np.asarray(ph.seebeck_at_temperature(p["s25"], tm, sm.BETA_S))
+    r = np.asarray(ph.resistance_at_temperature(p["r25"], tm, sm.ALPHA_R))
+    return dg.fit_thermal(t, *temps, a["current"][sel], s, r, flags.usable, p["k"], 0.3)
+
+
 def test_warm_goods_put_in_do_not_inflate_ua() -> None:
     # A day of a cooler from the simulator, with half of its contents (30 kJ/K) replaced by
     # goods at room temperature at noon: about 280 kJ released into the air over the
@@ -307,34 +343,12 @@ def test_warm_goods_put_in_do_not_inflate_ua() -> None:
     # code produced with the run exclusion switched off); the hours that carry it are left out,
     # so UA stays within the 15 % of the quiet day (same balance, same data quality).
     # Lumped balances: Incropera et al. (2007), ch. 5.
-    from dataclasses import replace
-
-    from tecfleet.analytics import simulator as sm
-
-    start = 1_735_689_600.0
-    dev = sm.device_from_ratings(
-        "unit-1", ua=0.45, r_hot=0.22, r_cold=0.4, c_air=900.0, c_contents=30_000.0,
-        g_contents=2.0, t_amb_mean_c=24.0, t_amb_daily_k=1.5, t_amb_weather_k=0.0,
-        door_per_day=0.0, loads_per_day=0.0, cuts_per_30d=0.0,
-    )  # fmt: skip
-    load = sm.ScheduledEvent("load", "unit-1", start + 12 * 3600.0, 0.0, 0.5)
-    fits = {}
-    for name, events in (("quiet", ()), ("load", (load,))):
-        spec = sm.FleetSpec((dev,), start, seed=2, sensors=False, random_use=False)
-        chunks, truth = sm.simulate(replace(spec, events=events), 1.0)
-        c = sm.concat(chunks)
-        m = {k: v[:, 0] for k, v in c.measured.items()}
-        t = c.t - c.t[0]
-        temps = [m[k] + K0 for k in ("t_cabinet", "t_cold", "t_hot", "t_ambient")]
-        flags = dg.flag_samples(t, *temps, m["current"], m["voltage"])
-        p = truth.params_at("unit-1", start)
-        tm = 0.5 * (temps[1] + temps[2])
-        s = np.asarray(ph.seebeck_at_temperature(p["s25"], tm, sm.BETA_S))
-        r = np.asarray(ph.resistance_at_temperature(p["r25"], tm, sm.ALPHA_R))
-        fits[name] = dg.fit_thermal(t, *temps, m["current"], s, r, flags.usable, p["k"], 0.3)
-        assert name == "quiet" or truth.loads.get("unit-1")
-    assert fits["quiet"].ua == pytest.approx(dev.ua, rel=0.15)
-    assert fits["load"].ua == pytest.approx(dev.ua, rel=0.15)
+    load = sm.ScheduledEvent("load", "unit-1", SIM_START + 12 * 3600.0, 0.0, 0.5)
+    dev, quiet, p, _ = _simulated_cooler((), 1.0)
+    _, loaded, _, truth = _simulated_cooler((load,), 1.0)
+    assert truth.loads.get("unit-1")
+    assert _fit_simulated(quiet, p).ua == pytest.approx(dev.ua, rel=0.15)
+    assert _fit_simulated(loaded, p).ua == pytest.approx(dev.ua, rel=0.15)
 
 
 @pytest.mark.parametrize(("i_low", "i_high", "reliable"), [(0.08, 0.25, False), (2.0, 4.0, True)])
@@ -401,31 +415,12 @@ def test_power_cut_aftermath_is_left_out_of_the_cabinet_balance() -> None:
     # out, UA is within the 10 % of a quiet day. Windows holding the cut itself keep too little
     # of the cabinet's normal behaviour: their UA must not be called reliable.
     # Lumped balances: Incropera et al. (2007), ch. 5.
-    from tecfleet.analytics import simulator as sm
-
-    start = 1_735_689_600.0
-    dev = sm.device_from_ratings(
-        "unit-1", ua=0.45, r_hot=0.22, r_cold=0.4, c_air=900.0, c_contents=30_000.0,
-        g_contents=2.0, t_amb_mean_c=24.0, t_amb_daily_k=1.5, t_amb_weather_k=0.0,
-        door_per_day=0.0, loads_per_day=0.0, cuts_per_30d=0.0,
-    )  # fmt: skip
-    cut = sm.ScheduledEvent("power_cut", "unit-1", start + 44 * 3600.0, 6 * 3600.0)
-    spec = sm.FleetSpec((dev,), start, seed=2, sensors=False, random_use=False, events=(cut,))
-    chunks, truth = sm.simulate(spec, 3.0)
-    c = sm.concat(chunks)
-    m = {k: v[:, 0] for k, v in c.measured.items()}
-    t_all = c.t - c.t[0]
-    p = truth.params_at("unit-1", start)
+    cut = sm.ScheduledEvent("power_cut", "unit-1", SIM_START + 44 * 3600.0, 6 * 3600.0)
+    dev, a, p, truth = _simulated_cooler((cut,), 3.0)
 
     def fit(from_h: float) -> dg.ThermalFit:
-        sel = (t_all >= from_h * 3600.0) & (t_all < (from_h + 24.0) * 3600.0)
-        t = t_all[sel]
-        temps = [m[k][sel] + K0 for k in ("t_cabinet", "t_cold", "t_hot", "t_ambient")]
-        flags = dg.flag_samples(t, *temps, m["current"][sel], m["voltage"][sel])
-        tm = 0.5 * (temps[1] + temps[2])
-        s = np.asarray(ph.seebeck_at_temperature(p["s25"], tm, sm.BETA_S))
-        r = np.asarray(ph.resistance_at_temperature(p["r25"], tm, sm.ALPHA_R))
-        return dg.fit_thermal(t, *temps, m["current"][sel], s, r, flags.usable, p["k"], 0.3)
+        sel = (a["t"] >= from_h * 3600.0) & (a["t"] < (from_h + 24.0) * 3600.0)
+        return _fit_simulated(a, p, sel)
 
     assert truth.power_cuts.get("unit-1")
     assert fit(48.0).ua == pytest.approx(dev.ua, rel=0.10)

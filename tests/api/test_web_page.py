@@ -92,8 +92,15 @@ def test_page_shows_the_fleet_and_a_device_chart(
         page.wait_for_selector("#chart polyline", timeout=15_000)
         assert page.locator("#chart polyline").count() == 4
         assert "readings" in page.inner_text("#chart-range")
+        # The chart is drawn before the estimates arrive; wait for them.
+        page.wait_for_function(
+            "document.querySelector('#health tbody').textContent.trim()"
+            " && !document.querySelector('#health tbody').textContent.includes('Loading')",
+            timeout=10_000,
+        )
         assert "Not analysed yet" in page.inner_text("#health")
         # The open alert is listed and can be acknowledged from the page.
+        page.wait_for_selector("button[data-ack]", timeout=10_000)
         assert "above its 8 °C limit" in page.inner_text("#alerts")
         page.click("button[data-ack]")
         page.wait_for_function(

@@ -140,6 +140,7 @@ def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
         ("K", "module.conductance_w_per_k", "k", 0.20),
     )
     errs: dict[tuple[str, str], list[tuple[float, bool, bool]]] = {}
+    misses: list[str] = []
     missing: dict[str, int] = {}
     for seed in seeds:
         spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
@@ -150,7 +151,7 @@ def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
             for d in spec.devices:
                 tp = truth.params_at(d.device_id, end)
                 mode = f"{d.control}/{d.off_voltage}"
-                for name, key, tkey, _tol in checks:
+                for name, key, tkey, tol in checks:
                     got = _latest(engine, d.device_id, key)
                     if got is None:
                         missing[name] = missing.get(name, 0) + 1
@@ -159,6 +160,12 @@ def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
                     covered = abs(got[0] - tp[tkey]) <= 2.0 * got[2]
                     errs.setdefault((name, "all"), []).append((rel, got[1], covered))
                     errs.setdefault((name, mode), []).append((rel, got[1], covered))
+                    if abs(rel) > tol:
+                        misses.append(
+                            f"seed {seed} {d.device_id} {mode:22} {name:16} "
+                            f"{100 * rel:+6.1f}% (stated se {100 * got[2] / tp[tkey]:.1f}%, "
+                            f"{'reliable' if got[1] else 'unreliable'})"
+                        )
             engine.dispose()
     print(f"{'quantity':18} {'group':26} {'n':>3} {'median|err|':>11} {'p90|err|':>9} "
           f"{'within':>7} {'target':>7} {'reliable':>8} {'within|rel':>10} "
@@ -175,6 +182,9 @@ def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
                   f"{100 * np.percentile(e, 90):8.1f}% {100 * np.mean(e <= tol):6.0f}% "
                   f"{100 * tol:6.0f}% {100 * rel_ok.mean():7.0f}% "
                   f"{100 * within_rel:9.0f}% {100 * cover.mean():6.0f}%")  # fmt: skip
+    if misses:
+        print("\nbeyond target:")
+        print("\n".join(misses))
     if missing:
         print("no estimate at the end:", missing)
 

@@ -795,7 +795,10 @@ class Simulator:
             tc_out[j] = tc
             th_out[j] = th
             cur_out[j] = cur
-            v_out[j] = s * (th - tc) + cur * r
+            # The terminals show S and R at the faces' temperatures of this instant, not of the
+            # sub-step's start: right after a switch those differ by kelvins.
+            dtm = 0.5 * (tc + th) - T25_K
+            v_out[j] = s25 * (1.0 + BETA_S * dtm) * (th - tc) + cur * r25 * (1.0 + ALPHA_R * dtm)
         tr["t_ambient"][:] = t_amb_all
         tr["on"][:] = cur_out > 0.0
         tr["door_s"][:] = door_s_all

@@ -316,6 +316,24 @@ def test_off_voltage_is_open_circuit_or_zero() -> None:
             np.testing.assert_allclose(v_off, np.round(spec.devices[0].s25 * dt, 2), atol=0.1)
 
 
+def test_terminal_voltage_follows_the_faces_of_the_same_instant() -> None:
+    # V = S(Tm)·ΔT + I·R(Tm) at every sample (Goldsmid 2010, ch. 2), also on the sample right
+    # after a switch-on, when the faces move by tens of kelvin within one interval.
+    spec = sm.FleetSpec((quiet(fridge(), t_amb_mean_c=30.0),), START, seed=8)
+    chunk, _ = run(spec, 0.5)
+    tr, d = chunk.truth, spec.devices[0]
+    tc, th, cur = (
+        tr[k][:, 0] + (T0 if k != "current" else 0.0) for k in ("t_cold", "t_hot", "current")
+    )
+    on = cur > 0.0
+    switched_on = on[1:] & ~on[:-1]
+    assert switched_on.sum() >= 3  # the check must include switch-on samples
+    s = ph.seebeck_at_temperature(d.s25, 0.5 * (tc + th))
+    r = ph.resistance_at_temperature(d.r25, 0.5 * (tc + th))
+    expected = s * (th - tc) + cur * r
+    np.testing.assert_allclose(tr["voltage"][on, 0], expected[on], rtol=1e-9)
+
+
 # --- determinism, truth, payloads -----------------------------------------------------------
 
 

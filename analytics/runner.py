@@ -27,7 +27,8 @@ module.conductance_w_per_k                     K [W/K]; unreliable when it leans
 module.z_per_k / module.zt                     Z = S²/(R·K) [1/K], ZT at the mean temperature
 module.off_leak_w                              K·ΔT while off: heat the idle module lets in [W]
 cabinet.ua_w_per_k                             UA [W/K]; stderr includes probe offsets (they
-                                               cancel in its change, which is tracked)
+                                               cancel in its change, which is tracked); not
+                                               reliable when that stderr exceeds ua_max_rel_se
 cabinet.heat_leak_w                            UA·(Ta - Tcab) over the window's last hour [W]
 cabinet.heat_capacity_j_per_k                  effective heat capacity [J/K]
 cabinet.internal_load_w                        heat released inside (fans, electronics) [W]
@@ -136,6 +137,10 @@ class AnalysisSettings:
     default_setpoint_c: float = 5.0
     #: Uncertainty of the difference of two uncalibrated probes [K] (common practice, no source).
     probe_offset_k: float = 0.3
+    #: Largest standard error of UA, probe offsets included, relative to UA, for the value to be
+    #: served as reliable: beyond a quarter, two standard errors span more than half the value
+    #: (common practice, no source). Its changes are judged on the fit's own precision.
+    ua_max_rel_se: float = 0.25
     #: Rated hot-side temperature assumed when a registration omits it, 27 °C (common
     #: practice for module datasheets, no source).
     default_t_hot_rated_c: float = 27.0
@@ -649,8 +654,16 @@ def _fit_window(
     # The value's error includes what probe offsets could do to it; its tracking (below)
     # does not, since a constant offset cancels in its changes.
     ua_se = math.hypot(sd["ua"], sd["ua_probe"])
-    ua_note = th_fit.note if not th_fit.ua_reliable else None
-    rows.add("cabinet.ua_w_per_k", b, th_fit.ua, ua_se, ns, th_fit.ua_reliable, ua_note)
+    ua_ok = th_fit.ua_reliable and ua_se <= cfg.ua_max_rel_se * th_fit.ua
+    ua_note = None
+    if not th_fit.ua_reliable:
+        ua_note = th_fit.note
+    elif not ua_ok:
+        ua_note = (
+            f"probe offsets could move UA by ±{100 * ua_se / th_fit.ua:.0f} %: "
+            "its changes are still tracked"
+        )
+    rows.add("cabinet.ua_w_per_k", b, th_fit.ua, ua_se, ns, ua_ok, ua_note)
     rows.add("cabinet.internal_load_w", b, th_fit.q_internal, sd["q_internal"], ns)
     rows.add(
         "cabinet.heat_capacity_j_per_k", b, th_fit.c, sd["c"], ns, th_fit.c_reliable,
@@ -661,7 +674,7 @@ def _fit_window(
         d_amb = float(np.mean(ta[last_hour] - tcab[last_hour]))
         rows.add(
             "cabinet.heat_leak_w", b, th_fit.ua * d_amb, ua_se * abs(d_amb),
-            int(last_hour.sum()), th_fit.ua_reliable, ua_note,
+            int(last_hour.sum()), ua_ok, ua_note,
         )  # fmt: skip
     g_c, g_h = th_fit.g_cold, th_fit.g_hot
     # Probe offsets shift the small temperature differences themselves (see

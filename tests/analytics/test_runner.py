@@ -120,6 +120,32 @@ def test_health_has_contract_keys_in_contract_shape(tmp_path: Path, frame: pd.Da
     assert "capacity.margin_w" in health
 
 
+def test_ua_value_uncertain_from_probe_offsets_is_not_reliable_but_still_tracked(
+    tmp_path: Path, frame: pd.DataFrame
+) -> None:
+    # The served UA's error includes what constant probe offsets could do to it; when that
+    # exceeds the allowed share the value is not called reliable, yet its changes (in which a
+    # constant offset cancels) are followed exactly as before.
+    quick = {"workers": 1, "baseline_days": 1.0, "ua_baseline_skip_days": 0.0}
+    change: list[list[tuple[int, float]]] = []
+    served = []
+    for name, share in (("default", 0.25), ("strict", 0.01)):
+        e = _engine(tmp_path, name)
+        _store(e, frame)
+        runner.analyze(e, settings=runner.AnalysisSettings(ua_max_rel_se=share, **quick))
+        served.append(runner.latest_health(e, DEVICE))
+        hist = runner.estimate_history(e, DEVICE, "cabinet.ua.change_pct")
+        change.append([(h["at_ms"], h["value"]) for h in hist])
+    default, strict = served
+    assert default["cabinet.ua_w_per_k"]["reliable"]
+    ua = strict["cabinet.ua_w_per_k"]
+    assert ua["value"] == default["cabinet.ua_w_per_k"]["value"]
+    assert ua["stderr"] > 0.01 * ua["value"]
+    assert not ua["reliable"] and "probe offsets" in ua["note"]
+    assert not strict["cabinet.heat_leak_w"]["reliable"]
+    assert change[0] and change[0] == change[1]
+
+
 def test_constant_current_unit_is_marked_unreliable(tmp_path: Path) -> None:
     # Constant drive, steady ambient and a driver that shorts the idle module: R and S cannot
     # be separated, and without a registration there is no rating to fall back on.

@@ -22,7 +22,8 @@ Integration scheme (per sub-step of ``interval_s / n_sub``, default 20 s at most
   whole step is implicit in the temperatures and unconditionally stable; air reacts in
   minutes (C_air / total conductance), contents in hours (C_contents / G).
 * Current (voltage drive: I = (V - S·ΔT)/R) and S, R use the faces of the previous
-  sub-step (a one-sub-step lag; it vanishes at steady state).
+  sub-step (a one-sub-step lag; it vanishes at steady state). The reported terminal
+  voltage is S·ΔT + I·R with S and R at the reported faces, as a module's terminals show.
 
 Because every flux of a sub-step is evaluated at the same end-of-step state, the discrete
 first law closes to rounding: heat through the walls + door + internal + loads + electrical

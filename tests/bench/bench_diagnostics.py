@@ -255,6 +255,11 @@ def part_season(seed: int, n_dev: int, days: float) -> None:
                 r = np.array([h["value"] for h in amb])
                 print(f"{d.device_id}: R swings {100 * (r.max() / r.min() - 1):.1f} %, "
                       f"R25 change within [{v.min():+.1f}, {v.max():+.1f}] %")  # fmt: skip
+            ua = runner.estimate_history(engine, d.device_id, "cabinet.ua.change_pct")
+            if ua:
+                u = np.array([h["value"] for h in ua])
+                print(f"{d.device_id}: UA change within [{u.min():+.1f}, {u.max():+.1f}] %, "
+                      f"5-95 % range [{np.percentile(u, 5):+.1f}, {np.percentile(u, 95):+.1f}] %")
         print(f"flags on healthy units: {flags}")
         engine.dispose()
 
@@ -295,7 +300,7 @@ def part_speed(n_dev: int, days: float) -> None:
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--part", default="accuracy,detect,speed")
-    ap.add_argument("--seeds", default="1,2,3")
+    ap.add_argument("--seeds", default="1,2,3,4,5,6,7")
     ap.add_argument("--devices", type=int, default=8)
     ap.add_argument("--speed-devices", type=int, default=100)
     ap.add_argument("--speed-days", type=float, default=30.0)

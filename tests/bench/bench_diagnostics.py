@@ -258,8 +258,10 @@ def part_season(seed: int, n_dev: int, days: float) -> None:
             ua = runner.estimate_history(engine, d.device_id, "cabinet.ua.change_pct")
             if ua:
                 u = np.array([h["value"] for h in ua])
-                print(f"{d.device_id}: UA change within [{u.min():+.1f}, {u.max():+.1f}] %, "
-                      f"5-95 % range [{np.percentile(u, 5):+.1f}, {np.percentile(u, 95):+.1f}] %")
+                print(
+                    f"{d.device_id}: UA change within [{u.min():+.1f}, {u.max():+.1f}] %, "
+                    f"5-95 % range [{np.percentile(u, 5):+.1f}, {np.percentile(u, 95):+.1f}] %"
+                )
         print(f"flags on healthy units: {flags}")
         engine.dispose()
 

@@ -16,6 +16,7 @@ import sqlalchemy as sa
 from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import runner
+from tecfleet.analytics.simulator import STANDARD_RATINGS
 from tecfleet.ingest import store
 from tests.analytics.synthetic import Truth, simulate
 
@@ -144,6 +145,28 @@ def test_ua_value_uncertain_from_probe_offsets_is_not_reliable_but_still_tracked
     assert not ua["reliable"] and "probe offsets" in ua["note"]
     assert not strict["cabinet.heat_leak_w"]["reliable"]
     assert change[0] and change[0] == change[1]
+
+
+def test_ua_of_a_module_that_never_rests_is_not_reliable(tmp_path: Path) -> None:
+    # A module driven without pause gives the cabinet balance one family of operating
+    # points; its UA is served, with a note, but not called reliable.
+    df = simulate(Truth(), 2.0, seed=5, constant_current=3.0)
+    e = _engine(tmp_path, "never-rests")
+    _store(e, df, "cab-busy")
+    # Ratings registered, so that R and S (not separable at one current) lean on them and
+    # the thermal fit runs.
+    with e.begin() as c:
+        c.execute(
+            store.devices.update()
+            .where(store.devices.c.device_id == "cab-busy")
+            .values(module=dict(STANDARD_RATINGS))
+        )
+    runner.analyze(e, settings=runner.AnalysisSettings(workers=1))
+    hist = runner.estimate_history(e, "cab-busy", "cabinet.ua_w_per_k")
+    served = [h for h in hist if h["value"] is not None]
+    assert served
+    assert not any(h["reliable"] for h in served)
+    assert any("never rested" in h["note"] for h in served)
 
 
 def test_constant_current_unit_is_marked_unreliable(tmp_path: Path) -> None:

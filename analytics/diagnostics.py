@@ -553,7 +553,8 @@ class ThermalFit:
     g_cold, g_hot : Conductances cabinet air to cold face and hot face to ambient [W/K].
     stderrs : Standard error of each parameter, by name (K's includes what probe offsets
         could do to it); also ``ua_probe``, the part of UA's uncertainty that constant probe
-        offsets could cause, not included in ``ua`` because it cancels in UA's changes.
+        offsets (and K, when held at its prior) could cause, not included in ``ua`` because
+        it cancels in UA's changes.
     n : Segments used in the sink balances [-].
     n_samples : Samples behind them [-].
     k_from_data : True when the readings, not the prior, determine K.
@@ -660,6 +661,7 @@ def _robust_weighted(
     p_sd: float,
     positive_cols: tuple[int, ...],
     hold_when_weak: bool = True,
+    hold: bool = False,
 ) -> tuple[FloatArray, FloatArray, bool]:
     # Columns scaled to unit size; each balance weighted by its own robust residual scale from a
     # first pass; rows beyond four of those scales dropped (unmodelled loads, glitches). When
@@ -681,7 +683,7 @@ def _robust_weighted(
     # Also held when the data narrow it less than halving the prior spread: a weakly identified
     # parameter moved by sensor bias is worse than the prior itself.
     weak = hold_when_weak and p_sd_post >= 0.5 * p_sd
-    forced = not all(params[j] > 0.0 for j in positive_cols) or weak
+    forced = hold or not all(params[j] > 0.0 for j in positive_cols) or weak
     if forced:
         params, cov = _solve_with_prior(
             xw, yw, index, p0 * scale[index], p_sd * scale[index], fixed=True
@@ -816,6 +818,8 @@ def fit_thermal(
     warm_spell_k: float = 3.0,
     warm_spell_min_s: float = 1800.0,
     recovery_s: float = 12 * 3600.0,
+    min_rest_share: float = 0.05,
+    min_current_spread: float = 0.5,
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
 
@@ -873,6 +877,10 @@ def fit_thermal(
         ``warm_spell_min_s`` or longer; the cabinet balance leaves it out and ``recovery_s``
         after it, while the contents give back the heat they took (about three time
         constants of a few hours; common practice, no source) [K], [s], [s].
+    min_rest_share, min_current_spread : K is held at its prior when fewer than
+        ``min_rest_share`` of the usable samples have the module at rest and the segments'
+        mean currents span less than ``min_current_spread`` of the median one: a single
+        operating point (common practice, no source) [-], [-].
 
     Returns
     -------
@@ -936,9 +944,17 @@ def fit_thermal(
     # Sink unknowns: k, c_cold, g_cold, g_hot, c_hot
     x_cold = np.column_stack([i_dt, -d_c, i_cold, z, z])
     x_hot = np.column_stack([i_dt, z, z, i_hot, d_h])
+    # K separates from the sinks only between distinct operating points. A module that never
+    # rests and whose current hardly moves offers none: what the fit would find then is the
+    # probes' resolution and offsets, so K is held at its prior.
+    seg_i = sums(trap(i)) / np.maximum(sums(h), 1e-9)
+    rests = float(np.mean(~on[usable])) >= min_rest_share if usable.any() else True
+    i_mid = float(np.median(seg_i))
+    one_point = not rests and float(np.ptp(seg_i)) < min_current_spread * max(i_mid, 1e-9)
     p1, cov1, forced = _robust_weighted(
-        [(x_cold, i_pc), (x_hot, i_ph)], 0, k_prior, k_prior_rel * k_prior, (0, 2, 3)
-    )
+        [(x_cold, i_pc), (x_hot, i_ph)], 0, k_prior, k_prior_rel * k_prior, (0, 2, 3),
+        hold=one_point,
+    )  # fmt: skip
     k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in p1)
     if k <= 0.0 or g_cold <= 0.0 or g_hot <= 0.0:
         raise EstimationError(
@@ -989,10 +1005,16 @@ def fit_thermal(
     # K's own uncertainty moves Qc, hence UA: add it in quadrature (first order). Probe
     # offsets move K and, through it and Ta - Tcab, UA too: kept apart (``ua_probe``), since
     # a constant offset cancels in UA's changes over time.
+    # K held at its prior is the same in every window, so its error, like a probe offset's,
+    # cancels in UA's changes: kept apart with those.
     dua_dk = float(bsums(trap(dtv)).sum()) / float(x_cab[:, 0].sum())
-    ua_sd = math.hypot(float(sd2[0]), k_sd * dua_dk)
+    ua_sd = math.hypot(float(sd2[0]), 0.0 if forced else k_sd * dua_dk)
     span = float(x_cab[:, 0].sum()) / float(x_cab[:, 1].sum())  # mean Ta - Tcab [K]
-    ua_probe = math.hypot(k_probe * dua_dk, ua * probe_offset_k / max(abs(span), 1e-9))
+    ua_probe = math.hypot(
+        k_probe * dua_dk,
+        k_sd * dua_dk if forced else 0.0,
+        ua * probe_offset_k / max(abs(span), 1e-9),
+    )
     stderrs = {
         "k": math.hypot(k_sd, k_probe),
         "c_cold": float(sd1[1]),

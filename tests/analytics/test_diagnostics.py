@@ -304,7 +304,7 @@ SIM_START = 1_735_689_600.0
 
 
 def _simulated_cooler(
-    events: tuple[Any, ...], days: float
+    events: tuple[Any, ...], days: float, **kw: Any
 ) -> tuple[Any, dict[str, Any], dict[str, float], Any]:
     """One quiet cooler from the simulator (contents 30 kJ/K at 2 W/K, no sensor errors, no
     random use), with ``events``: its spec, its readings (temperatures [K]), its true
@@ -312,7 +312,7 @@ def _simulated_cooler(
     dev = sm.device_from_ratings(
         "unit-1", ua=0.45, r_hot=0.22, r_cold=0.4, c_air=900.0, c_contents=30_000.0,
         g_contents=2.0, t_amb_mean_c=24.0, t_amb_daily_k=1.5, t_amb_weather_k=0.0,
-        door_per_day=0.0, loads_per_day=0.0, cuts_per_30d=0.0,
+        door_per_day=0.0, loads_per_day=0.0, cuts_per_30d=0.0, **kw,
     )  # fmt: skip
     spec = sm.FleetSpec((dev,), SIM_START, seed=2, sensors=False, random_use=False, events=events)
     chunks, truth = sm.simulate(spec, days)
@@ -349,6 +349,26 @@ def test_warm_goods_put_in_do_not_inflate_ua() -> None:
     assert truth.loads.get("unit-1")
     assert _fit_simulated(quiet, p).ua == pytest.approx(dev.ua, rel=0.15)
     assert _fit_simulated(loaded, p).ua == pytest.approx(dev.ua, rel=0.15)
+
+
+def test_module_at_one_operating_point_keeps_k_at_its_prior() -> None:
+    # A proportionally driven cooler from the simulator (probes read to 0.1 K, no noise or
+    # bias): the module never rests and its current stays within 1.9-2.3 A, so the sink
+    # balances (Goldsmid 2010, ch. 2) see a single operating point. Fitted from the data
+    # alone, K read 10 % high and the cold side's resistance 18 % high (values this code
+    # produced with the hold switched off). K is held at its prior (here the true value),
+    # and with it both sink resistances come out within 2 %.
+    dev, a, p, _ = _simulated_cooler((), 2.0, control="proportional")
+    sel = a["t"] >= 86_400.0
+    assert np.all(a["current"][sel] > 1.0)
+    fit = _fit_simulated(a, p, sel)
+    assert not fit.k_from_data
+    assert fit.k == pytest.approx(p["k"], rel=1e-9)
+    assert 1.0 / fit.g_cold == pytest.approx(dev.r_cold, rel=0.02)
+    assert 1.0 / fit.g_hot == pytest.approx(dev.r_hot, rel=0.02)
+    # K's prior error is the same in every window: it stays out of UA's own precision
+    # (which its changes are judged on) and goes with the offsets that cancel in them.
+    assert fit.stderrs["ua_probe"] > fit.stderrs["ua"]
 
 
 @pytest.mark.parametrize(("i_low", "i_high", "reliable"), [(0.08, 0.25, False), (2.0, 4.0, True)])

@@ -38,6 +38,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
+from scipy.signal import lfilter
 
 from . import heat_paths, physics
 from ._validate import T_25C_K, T_MAX_K, T_MIN_K, FloatArray
@@ -767,6 +768,21 @@ def _k_offset_sensitivity(
     return math.sqrt(total)
 
 
+def _bic_term(n: int, sd: float) -> float:
+    # n·ln(σ²) of the information criterion; a perfect fit counts as a very small σ.
+    return 2.0 * n * math.log(sd if math.isfinite(sd) and sd > 1e-12 else 1e-12)
+
+
+def _first_order_lag(t: FloatArray, x: FloatArray, tau: float) -> FloatArray:
+    # x through a first-order lag of time constant tau (contents following the air through a
+    # conductance), on the median sampling interval, started at x's mean over its first tau.
+    h = float(np.median(np.diff(t))) if t.size > 1 else tau
+    a = math.exp(-h / tau)
+    start = float(np.mean(x[t <= t[0] + tau]))
+    out, _ = lfilter([1.0 - a], [1.0, -a], x, zi=[a * start])
+    return np.asarray(out, dtype=np.float64)
+
+
 def _after_warm_spells(
     t: FloatArray, tcab: FloatArray, rise_k: float, min_s: float, recovery_s: float
 ) -> BoolArray:
@@ -820,6 +836,7 @@ def fit_thermal(
     recovery_s: float = 12 * 3600.0,
     min_rest_share: float = 0.05,
     min_current_spread: float = 0.5,
+    contents_tau_s: tuple[float, ...] = (3600.0, 7200.0, 14400.0, 28800.0, 57600.0),
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
 
@@ -841,7 +858,8 @@ def fit_thermal(
     with a prior on q_int (``q_internal_prior``), held at that prior when the fit would make the
     internal load negative (fans and electronics release heat). Blocks of an hour or more
     average over the thermostat cycles, so heat exchanged with slowly following contents mostly
-    cancels. Single blocks the model cannot explain are dropped as outliers; warm goods put in
+    cancels. Where the module never rests the air moves with the load, and a contents term
+    -Cn·δTn joins, Tn following Tcab through a first-order lag. Single blocks the model cannot explain are dropped as outliers; warm goods put in
     release their heat over hours, so a run of blocks that starts with a large excess of heat
     and lasts while the excess stays above one robust scale is left out as a whole; and so
     are blocks in which the on/off cycle is locked to a few sampling intervals (the samples
@@ -877,6 +895,8 @@ def fit_thermal(
         ``warm_spell_min_s`` or longer; the cabinet balance leaves it out and ``recovery_s``
         after it, while the contents give back the heat they took (about three time
         constants of a few hours; common practice, no source) [K], [s], [s].
+    contents_tau_s : Time constants tried for the contents node of a module that never
+        rests [s].
     min_rest_share, min_current_spread : K is held at its prior when fewer than
         ``min_rest_share`` of the usable samples have the module at rest and the segments'
         mean currents span less than ``min_current_spread`` of the median one: a single
@@ -988,6 +1008,23 @@ def fit_thermal(
     y_cab = bsums(trap(qc))
     q0, q_sd = q_internal_prior
     p2, cov2, _ = _robust_weighted([(x_cab, y_cab)], 1, q0, q_sd, (0, 1), hold_when_weak=False)
+    # Where the module never rests (proportional drive) the air moves with the load and the
+    # contents follow it hours late; the part of their stored heat in step with Ta - Tcab
+    # would pull UA low. There a contents node behind a first-order lag joins the balance,
+    # its time constant from ``contents_tau_s``, kept when it lowers the Bayesian information
+    # criterion (Schwarz, Ann. Statist. 6(2), 1978), the time constant counted as a
+    # parameter, and when both heat capacities come out positive. With a thermostat the air
+    # stays within its band and the contents with it.
+    n_cab = y_cab.size
+    best = _bic_term(n_cab, _robust_sd(y_cab - x_cab @ p2))
+    x_best = x_cab
+    for tau in () if rests else contents_tau_s:
+        x_n = np.column_stack([x_cab, -bsums(np.diff(_first_order_lag(t, tcab, tau)))])
+        p_n, cov_n, _ = _robust_weighted([(x_n, y_cab)], 1, q0, q_sd, (0, 1), hold_when_weak=False)
+        score = _bic_term(n_cab, _robust_sd(y_cab - x_n @ p_n)) + 2.0 * math.log(n_cab)
+        if p_n[2] > 0.0 and p_n[3] > 0.0 and score < best:
+            best, x_best, p2, cov2 = score, x_n, p_n, cov_n
+    x_cab = x_best
     warm = np.zeros(y_cab.size, dtype=bool)
     for _ in range(3):
         found = _warm_goods_runs(y_cab - x_cab @ p2)
@@ -997,7 +1034,7 @@ def fit_thermal(
         p2, cov2, _ = _robust_weighted(
             [(x_cab[~warm], y_cab[~warm])], 1, q0, q_sd, (0, 1), hold_when_weak=False
         )
-    ua, q_int, c = (float(v) for v in p2)
+    ua, q_int, c = (float(v) for v in p2[:3])
     if ua <= 0.0:
         raise EstimationError(f"non-physical cabinet fit: UA={ua:.3g} W/K")
     sd1 = np.sqrt(np.maximum(np.diag(cov1), 0.0))

@@ -148,9 +148,10 @@ def test_ua_value_uncertain_from_probe_offsets_is_not_reliable_but_still_tracked
 
 
 def test_ua_of_a_module_that_never_rests_is_not_reliable(tmp_path: Path) -> None:
-    # A module driven without pause gives the cabinet balance one family of operating
-    # points; its UA is served, with a note, but not called reliable.
-    df = simulate(Truth(), 2.0, seed=5, constant_current=3.0)
+    # A module driven without pause gives the balances one operating point: its K and UA
+    # are served, with a note saying why, but not called reliable.
+    # A wide ambient swing keeps UA's own precision good, so the note is about resting.
+    df = simulate(Truth(ambient_swing_k=6.0), 2.0, seed=5, constant_current=3.0)
     e = _engine(tmp_path, "never-rests")
     _store(e, df, "cab-busy")
     # Ratings registered, so that R and S (not separable at one current) lean on them and
@@ -166,7 +167,10 @@ def test_ua_of_a_module_that_never_rests_is_not_reliable(tmp_path: Path) -> None
     served = [h for h in hist if h["value"] is not None]
     assert served
     assert not any(h["reliable"] for h in served)
+    assert all(h["note"] for h in served)
     assert any("never rested" in h["note"] for h in served)
+    k = runner.estimate_history(e, "cab-busy", "module.conductance_w_per_k")
+    assert k and not any(h["reliable"] for h in k)
 
 
 def test_constant_current_unit_is_marked_unreliable(tmp_path: Path) -> None:

@@ -859,14 +859,14 @@ def fit_thermal(
     internal load negative (fans and electronics release heat). Blocks of an hour or more
     average over the thermostat cycles, so heat exchanged with slowly following contents mostly
     cancels. Where the module never rests the air moves with the load, and a contents term
-    -Cn·δTn joins, Tn following Tcab through a first-order lag. Single blocks the model cannot explain are dropped as outliers; warm goods put in
-    release their heat over hours, so a run of blocks that starts with a large excess of heat
-    and lasts while the excess stays above one robust scale is left out as a whole; and so
-    are blocks in which the on/off cycle is locked to a few sampling intervals (the samples
-    then see only some phases of each cycle, which biases the block means), and the hours
-    of a warm spell (power cut, failed cooling) and ``recovery_s`` after it, while the
-    contents give back the heat they took. Lumped-capacitance
-    balances: Incropera et al. (2007), ch. 5.
+    -Cn·δTn joins, Tn following Tcab through a first-order lag. Single blocks the model
+    cannot explain are dropped as outliers; warm goods put in release their heat over hours,
+    so a run of blocks that starts with a large excess of heat and lasts while the excess
+    stays above one robust scale is left out as a whole; and so are blocks in which the
+    on/off cycle is locked to a few sampling intervals (the samples then see only some phases
+    of each cycle, which biases the block means), and the hours of a warm spell (power cut,
+    failed cooling) and ``recovery_s`` after it, while the contents give back the heat they
+    took. Lumped-capacitance balances: Incropera et al. (2007), ch. 5.
 
     Parameters
     ----------

@@ -836,6 +836,7 @@ def fit_thermal(
     recovery_s: float = 12 * 3600.0,
     min_rest_share: float = 0.05,
     min_current_spread: float = 0.5,
+    k_hold: float | None = None,
     contents_tau_s: tuple[float, ...] = (3600.0, 7200.0, 14400.0, 28800.0, 57600.0),
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
@@ -901,6 +902,9 @@ def fit_thermal(
         ``min_rest_share`` of the usable samples have the module at rest and the segments'
         mean currents span less than ``min_current_spread`` of the median one: a single
         operating point (common practice, no source) [-], [-].
+    k_hold : Value K is held at in that case instead of ``k_prior``, e.g. the unit's own K
+        from windows that had two operating points: its error then stays the same across
+        both kinds of window and cancels in UA's changes [W/K].
 
     Returns
     -------
@@ -971,8 +975,9 @@ def fit_thermal(
     rests = float(np.mean(~on[usable])) >= min_rest_share if usable.any() else True
     i_mid = float(np.median(seg_i))
     one_point = not rests and float(np.ptp(seg_i)) < min_current_spread * max(i_mid, 1e-9)
+    k0 = k_hold if one_point and k_hold is not None else k_prior
     p1, cov1, forced = _robust_weighted(
-        [(x_cold, i_pc), (x_hot, i_ph)], 0, k_prior, k_prior_rel * k_prior, (0, 2, 3),
+        [(x_cold, i_pc), (x_hot, i_ph)], 0, k0, k_prior_rel * k_prior, (0, 2, 3),
         hold=one_point,
     )  # fmt: skip
     k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in p1)

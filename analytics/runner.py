@@ -147,6 +147,10 @@ class AnalysisSettings:
     #: Smallest share of the thermal window with the module at rest for the served K, UA and
     #: cold-side resistance to be reliable (see ``_fit_window``; common practice, no source).
     min_rest_share: float = 0.05
+    #: K held at a single operating point: the median of the unit's last ``k_hold_keep``
+    #: K values fitted from data, once there are ``k_hold_min_n`` (else the rated prior).
+    k_hold_min_n: int = 4
+    k_hold_keep: int = 28
     #: Rated hot-side temperature assumed when a registration omits it, 27 °C (common
     #: practice for module datasheets, no source).
     default_t_hot_rated_c: float = 27.0
@@ -550,6 +554,14 @@ def _flags(data: _Data, sl: slice) -> dg.SampleFlags:
     return data.flags.part(sl)
 
 
+def _k_hold(state: dict[str, Any], cfg: AnalysisSettings) -> float | None:
+    # Where a window has one operating point only, K is held: at the median of the unit's own
+    # K from earlier windows that had two, once there are enough of them, so that K's error
+    # (probe offsets, mostly) stays the same whichever kind of window UA comes from.
+    hist = state.get("k_hist", [])
+    return float(np.median(hist)) if len(hist) >= cfg.k_hold_min_n else None
+
+
 def _fit_window(
     data: _Data,
     b: int,
@@ -630,13 +642,17 @@ def _fit_window(
         th_fit = dg.fit_thermal(
             data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
             s_t, r_t, usable_th, k0, k_rel, on_current=cfg.on_current,
-            probe_offset_k=cfg.probe_offset_k,
+            probe_offset_k=cfg.probe_offset_k, k_hold=_k_hold(state, cfg),
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))
         return
     sd = th_fit.stderrs
     ns = th_fit.n_samples
+    if th_fit.k_from_data:
+        k_hist = state.setdefault("k_hist", [])
+        k_hist.append(th_fit.k)
+        del k_hist[: -cfg.k_hold_keep]
     # A module that never rests (proportional drive) works along one family of operating
     # points: K leans on small changes of it, the air drifts with the load and the contents
     # lag behind. Against simulated fleets with known truth, K then came out up to 25 % high,

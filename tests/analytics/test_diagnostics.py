@@ -372,6 +372,9 @@ def test_module_at_one_operating_point_keeps_k_at_its_prior() -> None:
     # K's prior error is the same in every window: it stays out of UA's own precision
     # (which its changes are judged on) and goes with the offsets that cancel in them.
     assert fit.stderrs["ua_probe"] > fit.stderrs["ua"]
+    # Given the unit's own K from windows with two operating points, it is held there instead.
+    own = _fit_simulated(a, p, sel, k_hold=1.05 * p["k"])
+    assert own.k == pytest.approx(1.05 * p["k"], rel=1e-9) and not own.k_from_data
 
 
 def test_contents_lag_of_a_module_that_never_rests_does_not_pull_ua_low() -> None:

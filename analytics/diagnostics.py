@@ -559,6 +559,8 @@ class ThermalFit:
     n : Segments used in the sink balances [-].
     n_samples : Samples behind them [-].
     k_from_data : True when the readings, not the prior, determine K.
+    rested : True when the module was at rest for at least ``min_rest_share`` of the usable
+        samples; False for a module that never rests (one family of operating points).
     ua_reliable : False when the cabinet balance is poorly determined.
     c_reliable : False when the heat capacity is poorly determined.
     note : Remarks on identifiability.
@@ -576,6 +578,7 @@ class ThermalFit:
     n: int
     n_samples: int
     k_from_data: bool
+    rested: bool
     ua_reliable: bool
     c_reliable: bool
     note: str | None
@@ -1045,10 +1048,8 @@ def fit_thermal(
     sd1 = np.sqrt(np.maximum(np.diag(cov1), 0.0))
     sd2 = np.sqrt(np.maximum(np.diag(cov2), 0.0))
     # K's own uncertainty moves Qc, hence UA: add it in quadrature (first order). Probe
-    # offsets move K and, through it and Ta - Tcab, UA too: kept apart (``ua_probe``), since
-    # a constant offset cancels in UA's changes over time.
-    # K held at its prior is the same in every window, so its error, like a probe offset's,
-    # cancels in UA's changes: kept apart with those.
+    # offsets move K and, through it and Ta - Tcab, UA too; so does a K held at its prior.
+    # Both are the same in every window and cancel in UA's changes: kept apart (``ua_probe``).
     dua_dk = float(bsums(trap(dtv)).sum()) / float(x_cab[:, 0].sum())
     ua_sd = math.hypot(float(sd2[0]), 0.0 if forced else k_sd * dua_dk)
     span = float(x_cab[:, 0].sum()) / float(x_cab[:, 1].sum())  # mean Ta - Tcab [K]
@@ -1089,6 +1090,7 @@ def fit_thermal(
         n=n_good,
         n_samples=int(pair[good[seg_all]].sum()),
         k_from_data=k_from_data,
+        rested=rests,
         ua_reliable=bool(ua_ok),
         c_reliable=bool(c_ok),
         note="; ".join(notes) or None,

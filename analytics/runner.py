@@ -145,7 +145,8 @@ class AnalysisSettings:
     #: (common practice, no source). Its changes are judged on the fit's own precision.
     ua_max_rel_se: float = 0.25
     #: Smallest share of the thermal window with the module at rest for the served K, UA and
-    #: cold-side resistance to be reliable (see ``_fit_window``; common practice, no source).
+    #: cold-side resistance to be reliable, and below which the thermal fit treats the window
+    #: as one operating point (see ``_fit_window``; common practice, no source).
     min_rest_share: float = 0.05
     #: K held at a single operating point: the median of the unit's last ``k_hold_keep``
     #: K values fitted from data, once there are ``k_hold_min_n`` (else the rated prior).
@@ -643,6 +644,7 @@ def _fit_window(
             data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
             s_t, r_t, usable_th, k0, k_rel, on_current=cfg.on_current,
             probe_offset_k=cfg.probe_offset_k, k_hold=_k_hold(state, cfg),
+            min_rest_share=cfg.min_rest_share,
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))
@@ -658,11 +660,10 @@ def _fit_window(
     # lag behind. Against simulated fleets with known truth, K then came out up to 25 % high,
     # the cold side's resistance up to twice its value and UA 15-55 % low, often beyond their
     # stated errors: served, but not called reliable. UA's changes are still tracked.
-    i_th = data.i[wt][usable_th]
-    rested = i_th.size > 0 and float(np.mean(i_th <= cfg.on_current)) >= cfg.min_rest_share
+    rested = th_fit.rested
     never_rested = "module never rested in this window: one operating point"
     k_ok = th_fit.k_from_data and rested
-    k_note = th_fit.note if not th_fit.k_from_data else None if rested else never_rested
+    k_note = th_fit.note if not th_fit.k_from_data else (None if rested else never_rested)
     rows.add("module.conductance_w_per_k", b, th_fit.k, sd["k"], ns, k_ok, k_note)
     state["params"].update(
         {"k": th_fit.k, "k_sd": sd["k"], "c_hot": max(th_fit.c_hot, 0.0), "ua": th_fit.ua,
@@ -868,20 +869,12 @@ def _daily_medians_before(series: list[list[Any]], day: int) -> list[list[Any]]:
     # Days before `day` (UTC day numbers) reduced to one point each, their median at the
     # day's last time: all that the daily trend reads of them (it takes each day's median),
     # and the carried state stays small. Later days keep every value (recent medians).
+    split = bisect.bisect_left(series, day * MS_DAY, key=_at)
     out: list[list[Any]] = []
-    i = 0
-    while i < len(series) and int(series[i][0]) // MS_DAY < day:
-        d = int(series[i][0]) // MS_DAY
-        j = i
-        while j < len(series) and int(series[j][0]) // MS_DAY == d:
-            j += 1
-        if j - i == 1:
-            out.append(series[i])
-        else:
-            out.append([series[j - 1][0], statistics.median(x for _, x in series[i:j])])
-        i = j
-    out.extend(series[i:])
-    return out
+    for _, group in itertools.groupby(series[:split], key=lambda p: int(p[0]) // MS_DAY):
+        pts = list(group)
+        out.append(pts[0] if len(pts) == 1 else [pts[-1][0], statistics.median(x for _, x in pts)])
+    return out + series[split:]
 
 
 def _daily(

@@ -627,6 +627,7 @@ def _solve_with_prior(
     p0: float,
     p_sd: float,
     fixed: bool = False,
+    others: dict[int, tuple[float, float]] | None = None,
 ) -> tuple[FloatArray, FloatArray]:
     # Weighted least squares with a Gaussian prior on one column, in information form; `fixed`
     # holds that column at its prior value instead. Covariance scaled by the reduced chi-square
@@ -634,7 +635,10 @@ def _solve_with_prior(
     n_par = xw.shape[1]
     if fixed:
         free = [j for j in range(n_par) if j != index]
-        sub, sub_cov = _solve_with_prior(xw[:, free], yw - xw[:, index] * p0, 0, 0.0, math.inf)
+        sub_others = {free.index(j): v for j, v in (others or {}).items()}
+        sub, sub_cov = _solve_with_prior(
+            xw[:, free], yw - xw[:, index] * p0, 0, 0.0, math.inf, others=sub_others
+        )
         params = np.zeros(n_par)
         params[free] = sub
         params[index] = p0
@@ -644,9 +648,10 @@ def _solve_with_prior(
         return params, cov
     info = xw.T @ xw
     rhs = xw.T @ yw
-    if math.isfinite(p_sd):
-        info[index, index] += 1.0 / p_sd**2
-        rhs[index] += p0 / p_sd**2
+    for j, (m, sd) in [(index, (p0, p_sd)), *(others or {}).items()]:
+        if math.isfinite(sd):
+            info[j, j] += 1.0 / sd**2
+            rhs[j] += m / sd**2
     try:
         cov_i: FloatArray = np.asarray(np.linalg.inv(info), dtype=np.float64)
     except np.linalg.LinAlgError as exc:
@@ -666,23 +671,35 @@ def _robust_weighted(
     positive_cols: tuple[int, ...],
     hold_when_weak: bool = True,
     hold: bool = False,
-) -> tuple[FloatArray, FloatArray, bool]:
+    others: dict[int, tuple[float, float]] | None = None,
+    shifts: FloatArray | None = None,
+) -> tuple[FloatArray, FloatArray, bool, FloatArray]:
     # Columns scaled to unit size; each balance weighted by its own robust residual scale from a
     # first pass; rows beyond four of those scales dropped (unmodelled loads, glitches). When
     # a parameter that must be positive is not (degenerate data: noise pushing the poorly
     # determined direction anywhere), the prior-carrying one is held at its prior; the flag
-    # returned says so.
+    # returned says so. Each row of ``shifts`` (one value per row of the stacked balances) is
+    # a change of the left-hand sides; the fourth result holds the parameters' first-order
+    # response to each, at the final weights.
     x_all = np.vstack([b[0] for b in blocks])
     y_all = np.concatenate([b[1] for b in blocks])
     scale = np.maximum(np.abs(x_all).max(axis=0), 1e-12)
     xs = x_all / scale
     dev = y_all - y_all.mean()
     y_scale = max(math.sqrt(float(dev @ dev) / max(dev.size, 1)), 1e-12)  # standard deviation
-    coef, _ = _solve_with_prior(xs, y_all, index, p0 * scale[index], p_sd * scale[index] / y_scale)
+
+    def scaled(div: float) -> dict[int, tuple[float, float]]:
+        return {j: (m * scale[j], sd * scale[j] / div) for j, (m, sd) in (others or {}).items()}
+
+    coef, _ = _solve_with_prior(
+        xs, y_all, index, p0 * scale[index], p_sd * scale[index] / y_scale, others=scaled(y_scale)
+    )
     wts = _balance_weights(blocks, coef / scale, 1e-9 * y_scale)
     keep = np.abs((y_all - xs @ coef) * wts) <= 4.0
     xw, yw = xs[keep] * wts[keep, None], y_all[keep] * wts[keep]
-    params, cov = _solve_with_prior(xw, yw, index, p0 * scale[index], p_sd * scale[index])
+    params, cov = _solve_with_prior(
+        xw, yw, index, p0 * scale[index], p_sd * scale[index], others=scaled(1.0)
+    )
     p_sd_post = math.sqrt(max(float(cov[index, index]), 0.0)) / scale[index]
     # Also held when the data narrow it less than halving the prior spread: a weakly identified
     # parameter moved by sensor bias is worse than the prior itself.
@@ -690,9 +707,19 @@ def _robust_weighted(
     forced = hold or not all(params[j] > 0.0 for j in positive_cols) or weak
     if forced:
         params, cov = _solve_with_prior(
-            xw, yw, index, p0 * scale[index], p_sd * scale[index], fixed=True
+            xw, yw, index, p0 * scale[index], p_sd * scale[index], fixed=True, others=scaled(1.0)
         )
-    return params / scale, cov / np.outer(scale, scale), forced
+    zero_mean = {j: (0.0, sd) for j, (_, sd) in scaled(1.0).items()}
+    resp = np.array(
+        [
+            _solve_with_prior(
+                xw, dy[keep] * wts[keep], index, 0.0, p_sd * scale[index], forced, zero_mean
+            )[0]
+            / scale
+            for dy in (np.zeros((0, y_all.size)) if shifts is None else shifts)
+        ]
+    ).reshape(-1, scale.size)
+    return params / scale, cov / np.outer(scale, scale), forced, resp
 
 
 def _strobed_blocks(
@@ -721,10 +748,13 @@ def _strobed_blocks(
     return np.asarray((best >= min_match) & (sw >= 10.0), dtype=bool)
 
 
-def _warm_goods_runs(res: FloatArray, start: float = 3.0, settle: float = 1.0) -> BoolArray:
+def _warm_goods_runs(res: FloatArray, start: float = 2.0, settle: float = 0.5) -> BoolArray:
     # Warm goods put in release their heat over hours: a run of blocks that starts with a
     # residual above `start` robust scales and lasts while it stays above `settle`. Only
-    # upward runs: nothing inside the cabinet takes heat out except the module.
+    # upward runs: nothing inside the cabinet takes heat out except the module. The excess
+    # is often only two or three scales at its peak and its tail lasts hours below one, so
+    # the thresholds are low; a chance run costs the fit a few ordinary hours (common
+    # practice, no source).
     out = np.zeros(res.size, dtype=bool)
     if res.size == 0:
         return out
@@ -738,37 +768,6 @@ def _warm_goods_runs(res: FloatArray, start: float = 3.0, settle: float = 1.0) -
         running = zj > start or (running and zj > settle)
         out[j] = running
     return out
-
-
-def _k_offset_sensitivity(
-    blocks: list[tuple[FloatArray, FloatArray]],
-    params: FloatArray,
-    duration: FloatArray,
-    offset_cols: tuple[int, ...],
-    held: bool,
-) -> float:
-    # Change of K [W/K] per kelvin of constant offset in each probe difference whose integral
-    # forms one of `offset_cols` (first order, each balance weighted by its residual scale):
-    # an offset adds offset·τ to that column, so the fit moves by -(XᵀWX)⁻¹XᵀW·(τ·θ_col).
-    # Root-sum-square over the differences; 0 when K was held at its prior.
-    if held:
-        return 0.0
-    x = np.vstack([b[0] for b in blocks])
-    w = _balance_weights(blocks, params, 1e-12)
-    xw = x * w[:, None]
-    info = xw.T @ xw
-    try:
-        inv = np.linalg.inv(info)
-    except np.linalg.LinAlgError:
-        return math.inf
-    dur = np.concatenate([duration] * len(blocks))
-    total = 0.0
-    for col in offset_cols:
-        present = x[:, col] != 0.0
-        shift = np.where(present, dur * params[col], 0.0) * w
-        dk = float((inv @ (xw.T @ shift))[0])
-        total += dk * dk
-    return math.sqrt(total)
 
 
 def _bic_term(n: int, sd: float) -> float:
@@ -840,6 +839,8 @@ def fit_thermal(
     min_rest_share: float = 0.05,
     min_current_spread: float = 0.5,
     k_hold: float | None = None,
+    sr_rel_cov: FloatArray | None = None,
+    k_cabinet: float | None = None,
     contents_tau_s: tuple[float, ...] = (3600.0, 7200.0, 14400.0, 28800.0, 57600.0),
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
@@ -848,12 +849,15 @@ def fit_thermal(
     usable samples at most ``max_gap_s`` apart), with Pc = S·I·Tc - ½·I²·R and
     Ph = S·I·Th + ½·I²·R (Goldsmid 2010, ch. 2):
 
-        ∫Pc = g_c·∫(Tcab - Tc) + K·∫ΔT - Cc·δTc          (cold sink)
-        ∫Ph = g_h·∫(Th - Ta)   + K·∫ΔT + Ch·δTh          (hot sink)
+        ∫Pc = g_c·∫(Tcab - Tc) + K·∫ΔT - Cc·δTc + a_c·τ   (cold sink)
+        ∫Ph = g_h·∫(Th - Ta)   + K·∫ΔT + Ch·δTh + a_h·τ   (hot sink)
 
     solved together by weighted least squares with a prior K = ``k_prior`` ± ``k_prior_rel``.
-    Two operating points (on/off, or two currents) make K identifiable; at one, it leans on the
-    prior and is reported so.
+    a_c and a_h are the constant heat flows that constant probe offsets make in each balance
+    (g·δ + K·δΔT), with priors of zero ± ``probe_offset_k`` times the path's conductance; the
+    storage terms carry no offset, so the switching transients tell them from K. Two operating
+    points (on/off, or two currents) make K identifiable; at one, it leans on the prior (and
+    the offsets are left out) and is reported so.
 
     Stage 2, the cabinet, over blocks of ``cabinet_block_s`` with Qc = Pc - K·ΔT:
 
@@ -865,12 +869,12 @@ def fit_thermal(
     cancels. Where the module never rests the air moves with the load, and a contents term
     -Cn·δTn joins, Tn following Tcab through a first-order lag. Single blocks the model
     cannot explain are dropped as outliers; warm goods put in release their heat over hours,
-    so a run of blocks that starts with a large excess of heat and lasts while the excess
-    stays above one robust scale is left out as a whole; and so are blocks in which the
-    on/off cycle is locked to a few sampling intervals (the samples then see only some phases
-    of each cycle, which biases the block means), and the hours of a warm spell (power cut,
-    failed cooling) and ``recovery_s`` after it, while the contents give back the heat they
-    took. Lumped-capacitance balances: Incropera et al. (2007), ch. 5.
+    so a run of blocks that starts with an excess of heat of two robust scales and lasts
+    while the excess stays above half of one is left out as a whole; and so are blocks in
+    which the on/off cycle is locked to a few sampling intervals (the samples then see only
+    some phases of each cycle, which biases the block means), and the hours of a warm spell
+    (power cut, failed cooling) and ``recovery_s`` after it, while the contents give back the
+    heat they took. Lumped-capacitance balances: Incropera et al. (2007), ch. 5.
 
     Parameters
     ----------
@@ -908,6 +912,11 @@ def fit_thermal(
     k_hold : Value K is held at in that case instead of ``k_prior``, e.g. the unit's own K
         from windows that had two operating points: its error then stays the same across
         both kinds of window and cancels in UA's changes [W/K].
+    k_cabinet : K used in the cabinet balance instead of this window's, e.g. the unit's own
+        settled K: K belongs to the module, and how hard the cabinet makes it work (a leak
+        keeps it running) should not move the UA found beside it [W/K].
+    sr_rel_cov : Covariance of the relative errors of ``seebeck`` and ``resistance`` (in
+        that order), carried into the errors of K and UA to first order; None: none [-].
 
     Returns
     -------
@@ -979,26 +988,54 @@ def fit_thermal(
     i_mid = float(np.median(seg_i))
     one_point = not rests and float(np.ptp(seg_i)) < min_current_spread * max(i_mid, 1e-9)
     k0 = k_hold if one_point and k_hold is not None else k_prior
-    p1, cov1, forced = _robust_weighted(
-        [(x_cold, i_pc), (x_hot, i_ph)], 0, k0, k_prior_rel * k_prior, (0, 2, 3),
-        hold=one_point,
+    blocks = [(x_cold, i_pc), (x_hot, i_ph)]
+    p1, cov1, forced, _ = _robust_weighted(
+        blocks, 0, k0, k_prior_rel * k_prior, (0, 2, 3), hold=one_point
+    )
+    k_sd = float(np.sqrt(max(cov1[0, 0], 0.0)))  # from the readings' scatter alone
+    # Constant probe offsets shift the small sink differences (a few kelvin at rest) and
+    # through them K. Each balance gets a constant heat flow for them, g·δ + K·δΔT, with a
+    # prior of zero ± ``probe_offset_k`` times that path's conductance; the switching
+    # transients, whose storage terms carry no offset, separate it from K. K's spread
+    # beyond its scatter-only one is then what the offsets leave unresolved (``k_probe``).
+    # At a single operating point they cannot be told from the sinks' conductances: left out.
+    dur = sums(h)
+    offsets = (
+        {}
+        if one_point
+        else {
+            5: (0.0, probe_offset_k * math.hypot(float(p1[2]), float(p1[0]))),
+            6: (0.0, probe_offset_k * math.hypot(float(p1[3]), float(p1[0]))),
+        }
+    )
+    offset_cols = [(dur, z), (z, dur)] if offsets else [(), ()]
+    # Relative errors of S and R move both balances' heat flows: S·I·T in each, ∓½·I²·R.
+    s_it_c, s_it_h, joule = (
+        sums(trap(s * i * tc)),
+        sums(trap(s * i * th)),
+        sums(trap(0.5 * i * i * r)),
+    )
+    p1, cov1, forced, resp = _robust_weighted(
+        [(np.column_stack([x, *c]), y) for (x, y), c in zip(blocks, offset_cols, strict=True)],
+        0, k0, k_prior_rel * k_prior, (0, 2, 3), hold=one_point or forced, others=offsets,
+        shifts=np.array([np.concatenate([s_it_c, s_it_h]), np.concatenate([-joule, joule])]),
     )  # fmt: skip
-    k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in p1)
+    dk_el = resp[:, 0]  # K's response to +1 (100 %) relative error of S, of R
+    k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in p1[:5])
     if k <= 0.0 or g_cold <= 0.0 or g_hot <= 0.0:
         raise EstimationError(
             f"non-physical sink fit: K={k:.3g} W/K, 1/r_cold={g_cold:.3g} W/K, "
             f"1/r_hot={g_hot:.3g} W/K"
         )
-    k_sd = float(np.sqrt(max(cov1[0, 0], 0.0)))
-    k_probe = (
-        _k_offset_sensitivity([(x_cold, i_pc), (x_hot, i_ph)], p1, sums(h), (2, 0, 3), forced)
-        * probe_offset_k
-    )
-    k_from_data = not forced and k_sd < 0.5 * k_prior_rel * k_prior
+    k_sd_all = float(np.sqrt(max(cov1[0, 0], 0.0)))
+    k_probe = 0.0 if forced else math.sqrt(max(k_sd_all**2 - k_sd**2, 0.0))
+    k_sd = k_sd_all if forced else min(k_sd, k_sd_all)
+    k_from_data = not forced and k_sd_all < 0.5 * k_prior_rel * k_prior
 
     # Cabinet: every usable pair counts (switching does not matter for whole-hour sums),
     # except in blocks where the on/off cycle is commensurate with the sampling.
-    qc = pc - k * dtv
+    held_cab = forced or k_cabinet is not None
+    qc = pc - (k if k_cabinet is None else k_cabinet) * dtv
     blk = np.floor((t[:-1] - t[0]) / cabinet_block_s).astype(np.int64)
     strobed = _strobed_blocks(on, blk)
     recovering = _after_warm_spells(t, tcab, warm_spell_k, warm_spell_min_s, recovery_s)
@@ -1015,7 +1052,7 @@ def fit_thermal(
     x_cab = np.column_stack([bsums(trap(ta - tcab)), bsums(h), -bsums(np.diff(tcab))])
     y_cab = bsums(trap(qc))
     q0, q_sd = q_internal_prior
-    p2, cov2, _ = _robust_weighted([(x_cab, y_cab)], 1, q0, q_sd, (0, 1), hold_when_weak=False)
+    p2, cov2, _, _ = _robust_weighted([(x_cab, y_cab)], 1, q0, q_sd, (0, 1), hold_when_weak=False)
     # Where the module never rests (proportional drive) the air moves with the load and the
     # contents follow it hours late; the part of their stored heat in step with Ta - Tcab
     # would pull UA low. There a contents node behind a first-order lag joins the balance,
@@ -1028,7 +1065,9 @@ def fit_thermal(
     x_best = x_cab
     for tau in () if rests else contents_tau_s:
         x_n = np.column_stack([x_cab, -bsums(np.diff(_first_order_lag(t, tcab, tau)))])
-        p_n, cov_n, _ = _robust_weighted([(x_n, y_cab)], 1, q0, q_sd, (0, 1), hold_when_weak=False)
+        p_n, cov_n, _, _ = _robust_weighted(
+            [(x_n, y_cab)], 1, q0, q_sd, (0, 1), hold_when_weak=False
+        )
         score = _bic_term(n_cab, _robust_sd(y_cab - x_n @ p_n)) + 2.0 * math.log(n_cab)
         if p_n[2] > 0.0 and p_n[3] > 0.0 and score < best:
             best, x_best, p2, cov2 = score, x_n, p_n, cov_n
@@ -1039,7 +1078,7 @@ def fit_thermal(
         if np.array_equal(found, warm) or int((~found).sum()) < max(3, x_cab.shape[1] + 2):
             break
         warm = found
-        p2, cov2, _ = _robust_weighted(
+        p2, cov2, _, _ = _robust_weighted(
             [(x_cab[~warm], y_cab[~warm])], 1, q0, q_sd, (0, 1), hold_when_weak=False
         )
     ua, q_int, c = (float(v) for v in p2[:3])
@@ -1047,19 +1086,32 @@ def fit_thermal(
         raise EstimationError(f"non-physical cabinet fit: UA={ua:.3g} W/K")
     sd1 = np.sqrt(np.maximum(np.diag(cov1), 0.0))
     sd2 = np.sqrt(np.maximum(np.diag(cov2), 0.0))
-    # K's own uncertainty moves Qc, hence UA: add it in quadrature (first order). Probe
-    # offsets move K and, through it and Ta - Tcab, UA too; so does a K held at its prior.
-    # Both are the same in every window and cancel in UA's changes: kept apart (``ua_probe``).
-    dua_dk = float(bsums(trap(dtv)).sum()) / float(x_cab[:, 0].sum())
-    ua_sd = math.hypot(float(sd2[0]), 0.0 if forced else k_sd * dua_dk)
-    span = float(x_cab[:, 0].sum()) / float(x_cab[:, 1].sum())  # mean Ta - Tcab [K]
+    # What moves Qc moves UA, by the cabinet fit's first-order response (part of a steady
+    # shift goes to the internal load): K's own uncertainty, added in quadrature; and, kept
+    # apart as ``ua_probe`` since they are the same in every window and cancel in UA's
+    # changes, the probe offsets (through K, and in Ta - Tcab itself), a K held at its prior
+    # or the unit's settled value, and the errors of S and R (directly and through K).
+    cab_shifts = np.array(
+        [-bsums(trap(dtv)), bsums(trap(s * i * tc)), -bsums(trap(0.5 * i * i * r)), ua * bsums(h)]
+    )
+    *_, resp_cab = _robust_weighted(
+        [(x_cab[~warm], y_cab[~warm])], 1, q0, q_sd, (0, 1), hold_when_weak=False,
+        shifts=cab_shifts[:, ~warm],
+    )  # fmt: skip
+    dua_dk, dua_offset = abs(float(resp_cab[0, 0])), abs(float(resp_cab[3, 0]))
+    dua_el = resp_cab[1:3, 0] + dk_el * float(resp_cab[0, 0])
+    cov_el = np.zeros((2, 2)) if sr_rel_cov is None else np.asarray(sr_rel_cov, dtype=np.float64)
+    k_el = math.sqrt(max(float(dk_el @ cov_el @ dk_el), 0.0))
+    ua_el = math.sqrt(max(float(dua_el @ cov_el @ dua_el), 0.0))
+    ua_sd = math.hypot(float(sd2[0]), 0.0 if held_cab else k_sd * dua_dk)
     ua_probe = math.hypot(
         k_probe * dua_dk,
-        k_sd * dua_dk if forced else 0.0,
-        ua * probe_offset_k / max(abs(span), 1e-9),
+        k_sd * dua_dk if held_cab else 0.0,
+        dua_offset * probe_offset_k,
+        ua_el,
     )
     stderrs = {
-        "k": math.hypot(k_sd, k_probe),
+        "k": math.hypot(k_sd, k_probe, k_el),
         "c_cold": float(sd1[1]),
         "g_cold": float(sd1[2]),
         "g_hot": float(sd1[3]),

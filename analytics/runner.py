@@ -637,6 +637,9 @@ def _fit_window(
     else:
         k0 = el.s25**2 * T_25C_K / (el.r25 * dg.TYPICAL_MODULE_ZT)
         k_rel = 0.5
+    # (S, R) relative errors, from the electrical fit's (R, S) covariance.
+    rel = np.array([1.0 / el.s25, 1.0 / el.r25])
+    sr_rel_cov = el.cov[::-1, ::-1] * np.outer(rel, rel)
     state["params"] = {"s25": el.s25, "r25": el.r25, "k": state.get("params", {}).get("k", k0)}
     state["params"]["cov_rs"] = el.cov.tolist()
     try:
@@ -644,7 +647,8 @@ def _fit_window(
             data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
             s_t, r_t, usable_th, k0, k_rel, on_current=cfg.on_current,
             probe_offset_k=cfg.probe_offset_k, k_hold=_k_hold(state, cfg),
-            min_rest_share=cfg.min_rest_share,
+            min_rest_share=cfg.min_rest_share, sr_rel_cov=sr_rel_cov,
+            k_cabinet=_k_hold(state, cfg),
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))
@@ -725,7 +729,12 @@ def _fit_window(
         if ok and not rested and key.startswith("cold_side"):
             ok, note = False, never_rested
         rows.add(key, b, 1.0 / g, se, ns, ok, note)
-    if th_fit.ua_reliable:
+    # While the hot side's resistance is flagged (a failed fan, a clogged sink) the module runs
+    # at a hot face and often without pause, a regime the cabinet balance was not judged in:
+    # UA's changes are not followed then, so that one fault raises one flag (common practice,
+    # no source). They resume from the same baseline once the flag clears.
+    hot_flagged = int(state.get("above", {}).get("rhot", 0)) >= 1
+    if th_fit.ua_reliable and not hot_flagged:
         _track(
             rows, state, "ua", "cabinet.ua", b, th_fit.ua, cfg.ua_flag_pct, 0.03, cfg,
             skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,

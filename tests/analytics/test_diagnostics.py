@@ -117,7 +117,7 @@ def test_too_few_on_samples_raise() -> None:
         dg.fit_electrical(a["i"], a["v"], a["t_cold"], a["t_hot"], a["flags"].usable, floating=True)
 
 
-def _thermal(a: dict[str, Any], tr: Truth, k_prior: float = 0.4) -> dg.ThermalFit:
+def _thermal(a: dict[str, Any], tr: Truth, k_prior: float = 0.4, **kw: Any) -> dg.ThermalFit:
     tm = 0.5 * (a["t_cold"] + a["t_hot"])
     s = ph.seebeck_at_temperature(tr.s25, tm, tr.beta)
     r = ph.resistance_at_temperature(tr.r25, tm, tr.alpha)
@@ -133,6 +133,7 @@ def _thermal(a: dict[str, Any], tr: Truth, k_prior: float = 0.4) -> dg.ThermalFi
         a["flags"].usable,
         k_prior,
         0.5,
+        **kw,
     )
 
 
@@ -430,10 +431,12 @@ def test_stated_errors_cover_constant_probe_offsets(
 ) -> None:
     # Probes that disagree by a few tenths of a kelvin are usual for uncalibrated thermistors
     # (common practice, no source). On the noise-free thermostat day of the tests above such
-    # offsets move K by up to 13 % and UA by up to 23 % (values this code produced), far
-    # beyond the scatter of the data; the stated errors must cover that at two standard
-    # errors (a coverage factor of 2, JCGM 100:2008 6.2-6.3), UA's as the root-sum-square of
-    # its fit error and its probe-offset part.
+    # offsets move K by 12-13 % and UA by 15-23 % when the sink balances assume none (values
+    # this code produced with ``probe_offset_k`` near zero, checked below so that the test is
+    # not vacuous). With a constant heat flow per balance for them, which the switching
+    # transients separate from K, K is within 10 %. The stated errors must cover what is
+    # left at two standard errors (a coverage factor of 2, JCGM 100:2008 6.2-6.3), UA's as the
+    # root-sum-square of its fit error and its probe-offset part.
     tr = Truth()
     a = _arrays(simulate(tr, 1.0, seed=1, noise=QUIET))
     for name, off in zip(("t_cabinet", "t_cold", "t_hot", "t_ambient"), offsets_k, strict=True):
@@ -441,8 +444,10 @@ def test_stated_errors_cover_constant_probe_offsets(
     a["flags"] = dg.flag_samples(
         a["t"], a["t_cabinet"], a["t_cold"], a["t_hot"], a["t_ambient"], a["i"], a["v"], a["door"]
     )
+    assumed_none = _thermal(a, tr, probe_offset_k=1e-6)
+    assert abs(assumed_none.k - tr.k) > 0.1 * tr.k
     f = _thermal(a, tr)
-    assert abs(f.k - tr.k) > 0.1 * tr.k  # the offsets matter here: the check is not vacuous
+    assert abs(f.k - tr.k) < 0.1 * tr.k
     assert abs(f.k - tr.k) < 2.0 * f.stderr("k")
     ua_se = math.hypot(f.stderr("ua"), f.stderr("ua_probe"))
     assert abs(f.ua - tr.ua) < 2.0 * ua_se
@@ -453,8 +458,10 @@ def test_power_cut_aftermath_is_left_out_of_the_cabinet_balance() -> None:
     # warms to about 14 °C and the contents with it; back on power they give that heat back
     # for hours. Left in, the day after the cut read UA about 19 % high (value this code
     # produced with the warm-spell rule switched off); with the spell and 12 h after it left
-    # out, UA is within the 10 % of a quiet day. Windows holding the cut itself keep too little
-    # of the cabinet's normal behaviour: their UA must not be called reliable.
+    # out, UA is within the 10 % of a quiet day. Windows holding the cut itself keep little of
+    # the cabinet's normal behaviour (with the sink balances assuming exact probes, K read
+    # 21-24 % high there and UA half its value: values this code produced): their UA must be
+    # refused, not called reliable, or within two of its stated standard errors.
     # Lumped balances: Incropera et al. (2007), ch. 5.
     cut = sm.ScheduledEvent("power_cut", "unit-1", SIM_START + 44 * 3600.0, 6 * 3600.0)
     dev, a, p, truth = _simulated_cooler((cut,), 3.0)
@@ -467,4 +474,6 @@ def test_power_cut_aftermath_is_left_out_of_the_cabinet_balance() -> None:
     assert fit(48.0).ua == pytest.approx(dev.ua, rel=0.10)
     for from_h in (30.0, 36.0):
         with contextlib.suppress(InsufficientDataError):  # refusing is as good
-            assert not fit(from_h).ua_reliable
+            f = fit(from_h)
+            se = math.hypot(f.stderr("ua"), f.stderr("ua_probe"))
+            assert not f.ua_reliable or abs(f.ua - dev.ua) < 2.0 * se

@@ -234,3 +234,24 @@ def test_ua_flag_needs_a_settled_baseline_and_a_persistent_rise() -> None:
     raised = [j for j, f in flags if f == 1.0]
     assert raised and raised[0] == len(values) - 8 + 4
     assert all(f == 0.0 for j, f in flags if j < len(values) - 8)
+
+
+def test_ua_changes_are_not_followed_while_the_hot_side_is_flagged(tmp_path: Path) -> None:
+    # A fan that fails triples the hot side's resistance: the module then works at a hot face
+    # and the cabinet balance is outside the regime its baseline was set in. One fault, one
+    # flag (common practice, no source): UA's changes stop being followed once the hot side is
+    # flagged. Readings made here: four days at 0.20 K/W, then two at 0.60 K/W.
+    day_ms = 86_400_000
+    before = simulate(Truth(), 4.0, seed=3)
+    start = int(before["ts_ms"].iloc[0]) + 4 * day_ms
+    after = simulate(Truth(r_hot=0.60), 2.0, seed=4, start_ms=start)
+    e = _engine(tmp_path, "fan")
+    _store(e, pd.concat([before, after], ignore_index=True))
+    quick = {"workers": 1, "baseline_days": 1.0, "ua_baseline_skip_days": 0.0}
+    runner.analyze(e, settings=runner.AnalysisSettings(**quick))
+    flags = runner.estimate_history(e, DEVICE, "hot_side.resistance.flag")
+    raised = [h["at_ms"] for h in flags if h["value"] == 1.0]
+    assert raised and raised[0] <= start + 2 * 3_600_000  # within 2 h of the step
+    change = [h["at_ms"] for h in runner.estimate_history(e, DEVICE, "cabinet.ua.change_pct")]
+    assert any(at < start for at in change)  # followed before the fault
+    assert not any(at > raised[0] for at in change)

@@ -19,6 +19,7 @@ import sqlite3
 import sys
 import tempfile
 import time
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -127,21 +128,50 @@ def _first_flag(engine: Any, device: str, prefix: str, after_ms: int) -> int | N
     return None
 
 
-def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
-    print(f"\n== Accuracy: healthy units, {days:g} days of one-minute data, seeds {seeds}, "
-          f"{n_dev} devices each (noise, bias, quantisation, doors, loads on) ==")  # fmt: skip
-    checks = (
-        ("R25", "module.resistance_25c_ohm", "r25", 0.02),
-        ("S25", "module.seebeck_25c_v_per_k", "s25", 0.05),
-        ("UA", "cabinet.ua_w_per_k", "ua", 0.20),
-        ("r_hot (1 h)", "hot_side.resistance_k_per_w", "r_hot", 0.20),
-        ("r_hot (24 h fit)", "hot_side.resistance_fit_k_per_w", "r_hot", 0.20),
-        ("r_cold", "cold_side.resistance_k_per_w", "r_cold", 0.20),
-        ("K", "module.conductance_w_per_k", "k", 0.20),
-    )
-    errs: dict[tuple[str, str], list[tuple[float, bool, bool]]] = {}
-    misses: list[str] = []
-    missing: dict[str, int] = {}
+#: (name, served estimate, truth parameter, target as a relative error)
+ACCURACY_CHECKS = (
+    ("R25", "module.resistance_25c_ohm", "r25", 0.02),
+    ("S25", "module.seebeck_25c_v_per_k", "s25", 0.05),
+    ("UA", "cabinet.ua_w_per_k", "ua", 0.20),
+    ("r_hot (1 h)", "hot_side.resistance_k_per_w", "r_hot", 0.20),
+    ("r_hot (24 h fit)", "hot_side.resistance_fit_k_per_w", "r_hot", 0.20),
+    ("r_cold", "cold_side.resistance_k_per_w", "r_cold", 0.20),
+    ("K", "module.conductance_w_per_k", "k", 0.20),
+)
+DETECT_PREFIX = {
+    "wear": "module.resistance_25c",
+    "leak": "cabinet.ua",
+    "fan": "hot_side.resistance",
+}
+DETECT_TARGET_H = {"wear": 7 * 24.0, "leak": 48.0, "fan": 2.0}
+
+
+@dataclass(frozen=True)
+class UnitScore:
+    """One served estimate of one healthy unit against the simulator's truth."""
+
+    seed: int
+    device_id: str
+    mode: str  # control/off-voltage kind of the unit
+    quantity: str
+    rel_err: float  # estimate / truth - 1 [-]
+    reliable: bool
+    rel_stderr: float  # stated standard error / truth [-]
+    target: float  # [-]
+
+    @property
+    def within(self) -> bool:
+        return abs(self.rel_err) <= self.target
+
+    @property
+    def covered(self) -> bool:
+        """Within two stated standard errors."""
+        return abs(self.rel_err) <= 2.0 * self.rel_stderr
+
+
+def accuracy_scores(seeds: list[int], n_dev: int, days: float) -> list[UnitScore]:
+    """Simulate each seed's healthy fleet for ``days``, analyse it, score the newest values."""
+    out: list[UnitScore] = []
     for seed in seeds:
         spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
         with tempfile.TemporaryDirectory() as tmp:
@@ -150,47 +180,77 @@ def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
             end = START_S + days * 86_400.0
             for d in spec.devices:
                 tp = truth.params_at(d.device_id, end)
-                mode = f"{d.control}/{d.off_voltage}"
-                for name, key, tkey, tol in checks:
+                for name, key, tkey, tol in ACCURACY_CHECKS:
                     got = _latest(engine, d.device_id, key)
                     if got is None:
-                        missing[name] = missing.get(name, 0) + 1
-                        continue
-                    rel = got[0] / tp[tkey] - 1.0
-                    covered = abs(got[0] - tp[tkey]) <= 2.0 * got[2]
-                    errs.setdefault((name, "all"), []).append((rel, got[1], covered))
-                    errs.setdefault((name, mode), []).append((rel, got[1], covered))
-                    if abs(rel) > tol:
-                        misses.append(
-                            f"seed {seed} {d.device_id} {mode:22} {name:16} "
-                            f"{100 * rel:+6.1f}% (stated se {100 * got[2] / tp[tkey]:.1f}%, "
-                            f"{'reliable' if got[1] else 'unreliable'})"
-                        )
+                        rel, reliable, se = math.inf, False, math.inf
+                    else:
+                        rel, reliable, se = got[0] / tp[tkey] - 1.0, got[1], got[2] / tp[tkey]
+                    mode = f"{d.control}/{d.off_voltage}"
+                    out.append(UnitScore(seed, d.device_id, mode, name, rel, reliable, se, tol))
             engine.dispose()
+    return out
+
+
+def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
+    print(f"\n== Accuracy: healthy units, {days:g} days of one-minute data, seeds {seeds}, "
+          f"{n_dev} devices each (noise, bias, quantisation, doors, loads on) ==")  # fmt: skip
+    scores = accuracy_scores(seeds, n_dev, days)
     print(f"{'quantity':18} {'group':26} {'n':>3} {'median|err|':>11} {'p90|err|':>9} "
           f"{'within':>7} {'target':>7} {'reliable':>8} {'within|rel':>10} "
           f"{'in 2 se':>7}")  # fmt: skip
-    for name, _key, _t, tol in checks:
-        for (q, group), vals in sorted(errs.items()):
-            if q != name:
-                continue
-            e = np.abs(np.array([v for v, _, _ in vals]))
-            rel_ok = np.array([r for _, r, _ in vals])
-            cover = np.array([c for _, _, c in vals])
+    for name, _key, _t, tol in ACCURACY_CHECKS:
+        mine = [u for u in scores if u.quantity == name and math.isfinite(u.rel_err)]
+        groups = [("all", mine)] + [
+            (m, [u for u in mine if u.mode == m]) for m in sorted({u.mode for u in mine})
+        ]
+        for group, vals in groups:
+            e = np.abs(np.array([u.rel_err for u in vals]))
+            rel_ok = np.array([u.reliable for u in vals])
+            cover = np.array([u.covered for u in vals])
             within_rel = float(np.mean(e[rel_ok] <= tol)) if rel_ok.any() else float("nan")
             print(f"{name:18} {group:26} {e.size:3d} {100 * np.median(e):10.1f}% "
                   f"{100 * np.percentile(e, 90):8.1f}% {100 * np.mean(e <= tol):6.0f}% "
                   f"{100 * tol:6.0f}% {100 * rel_ok.mean():7.0f}% "
                   f"{100 * within_rel:9.0f}% {100 * cover.mean():6.0f}%")  # fmt: skip
+    misses = [u for u in scores if math.isfinite(u.rel_err) and not u.within]
     if misses:
         print("\nbeyond target:")
-        print("\n".join(misses))
+        for u in misses:
+            print(f"seed {u.seed} {u.device_id} {u.mode:22} {u.quantity:16} "
+                  f"{100 * u.rel_err:+6.1f}% (stated se {100 * u.rel_stderr:.1f}%, "
+                  f"{'reliable' if u.reliable else 'unreliable'})")  # fmt: skip
+    missing: dict[str, int] = {}
+    for u in scores:
+        if not math.isfinite(u.rel_err):
+            missing[u.quantity] = missing.get(u.quantity, 0) + 1
     if missing:
         print("no estimate at the end:", missing)
 
 
-def part_detect(seed: int, n_dev: int, days: float) -> None:
-    print(f"\n== Detection: {n_dev} devices, {days:g} days, seed {seed}, faults wear/leak/fan ==")
+@dataclass(frozen=True)
+class Detection:
+    """When a fault's flag was first raised, against when the fault became detectable."""
+
+    device_id: str
+    kind: str
+    start_s: float  # when the fault reached its detectable size [s]
+    flagged_s: float | None  # first flag at or after the fault's start [s]
+
+    @property
+    def delay_h(self) -> float:
+        return math.inf if self.flagged_s is None else (self.flagged_s - self.start_s) / 3600.0
+
+    @property
+    def in_time(self) -> bool:
+        return self.delay_h <= DETECT_TARGET_H[self.kind]
+
+
+def detection_scores(
+    seed: int, n_dev: int, days: float
+) -> tuple[list[Detection], list[str], list[str]]:
+    """Fleet with two each of wear (to +10 %), a 1.5x UA step and a 3x r_hot step; returns the
+    detections, the healthy units and the flags raised on them."""
     spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days,
                             faults="wear:2,leak:2,fan:2")  # fmt: skip
     # Leak and fan as the targets state them: a 1.5x UA step and a 3x r_hot step.
@@ -198,39 +258,57 @@ def part_detect(seed: int, n_dev: int, days: float) -> None:
         dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
     )
     spec = dataclasses.replace(spec, faults=faults)
-    prefix = {"wear": "module.resistance_25c", "leak": "cabinet.ua", "fan": "hot_side.resistance"}
-    target_h = {"wear": 7 * 24.0, "leak": 48.0, "fan": 2.0}
     with tempfile.TemporaryDirectory() as tmp:
         engine, _truth, _ = build_db(Path(tmp) / "det.db", spec, days)
-        t0 = time.perf_counter()
         runner.analyze(engine)
-        print(f"(analysis {time.perf_counter() - t0:.1f} s)")
-        faulty = set()
-        print(f"{'device':10} {'fault':6} {'from (UTC h)':>12} {'flag delay':>11} {'target':>7}")
+        found = []
         for f in spec.faults:
-            faulty.add(f.device_id)
             if f.kind == "wear":
                 # R25 = r0·(1 + (m - 1)·frac): +5 % at frac = 0.05/(m - 1).
                 start = f.start_s + f.ramp_s * 0.05 / (f.magnitude - 1.0)
             else:
                 start = f.start_s
-            hit = _first_flag(engine, f.device_id, prefix[f.kind], int(f.start_s * 1000))
-            delay = "never" if hit is None else f"{(hit / 1000.0 - start) / 3600.0:9.1f} h"
-            print(f"{f.device_id:10} {f.kind:6} {(start - START_S) / 3600:12.1f} {delay:>11} "
-                  f"{target_h[f.kind]:6.0f}h")  # fmt: skip
-        false = 0
+            hit = _first_flag(engine, f.device_id, DETECT_PREFIX[f.kind], int(f.start_s * 1000))
+            found.append(Detection(f.device_id, f.kind, start, None if hit is None else hit / 1e3))
+        faulty = {f.device_id for f in spec.faults}
         healthy = [d.device_id for d in spec.devices if d.device_id not in faulty]
-        for dev in healthy:
-            for p in prefix.values():
-                if _first_flag(engine, dev, p, 0) is not None:
-                    false += 1
-                    print(f"false flag: {dev} {p}")
-        print(f"healthy devices: {len(healthy)}, false flags: {false}")
+        false = [
+            f"{dev} {p}"
+            for dev in healthy
+            for p in DETECT_PREFIX.values()
+            if _first_flag(engine, dev, p, 0) is not None
+        ]
         engine.dispose()
+    return found, healthy, false
 
 
-def part_season(seed: int, n_dev: int, days: float) -> None:
-    print(f"\n== Season: {n_dev} healthy devices, {days:g} days, ambient swinging about ±10 K ==")
+def part_detect(seed: int, n_dev: int, days: float) -> None:
+    print(f"\n== Detection: {n_dev} devices, {days:g} days, seed {seed}, faults wear/leak/fan ==")
+    t0 = time.perf_counter()
+    found, healthy, false = detection_scores(seed, n_dev, days)
+    print(f"(simulation and analysis {time.perf_counter() - t0:.1f} s)")
+    print(f"{'device':10} {'fault':6} {'from (UTC h)':>12} {'flag delay':>11} {'target':>7}")
+    for d in found:
+        delay = "never" if d.flagged_s is None else f"{d.delay_h:9.1f} h"
+        print(f"{d.device_id:10} {d.kind:6} {(d.start_s - START_S) / 3600:12.1f} {delay:>11} "
+              f"{DETECT_TARGET_H[d.kind]:6.0f}h")  # fmt: skip
+    for f in false:
+        print(f"false flag: {f}")
+    print(f"healthy devices: {len(healthy)}, false flags: {len(false)}")
+
+
+@dataclass
+class Season:
+    """Flags and change ranges of healthy units over a season [%]."""
+
+    flags: list[str] = field(default_factory=list)
+    r_swing: dict[str, float] = field(default_factory=dict)
+    r25_change: dict[str, tuple[float, float]] = field(default_factory=dict)
+    ua_change: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
+
+
+def season_scores(seed: int, n_dev: int, days: float) -> Season:
+    """Healthy units over ``days`` with the ambient swinging about ±10 K."""
     spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
     # A slow weather anomaly of 5 K s.d. with a 20-day memory plus a 4 K daily swing gives
     # excursions of about ±10 K over the season.
@@ -239,31 +317,43 @@ def part_season(seed: int, n_dev: int, days: float) -> None:
         for d in spec.devices
     )
     spec = dataclasses.replace(spec, devices=devs)
+    out = Season()
     with tempfile.TemporaryDirectory() as tmp:
         engine, _truth, _ = build_db(Path(tmp) / "season.db", spec, days)
         runner.analyze(engine)
-        flags = 0
         for d in spec.devices:
             for p in ("module.resistance_25c", "cabinet.ua", "hot_side.resistance"):
                 if _first_flag(engine, d.device_id, p, 0) is not None:
-                    flags += 1
-                    print(f"flag: {d.device_id} {p}")
+                    out.flags.append(f"{d.device_id} {p}")
             ch = runner.estimate_history(engine, d.device_id, "module.resistance_25c.change_pct")
             amb = runner.estimate_history(engine, d.device_id, "module.resistance_ohm")
             if ch and amb:
                 v = np.array([h["value"] for h in ch])
                 r = np.array([h["value"] for h in amb])
-                print(f"{d.device_id}: R swings {100 * (r.max() / r.min() - 1):.1f} %, "
-                      f"R25 change within [{v.min():+.1f}, {v.max():+.1f}] %")  # fmt: skip
+                out.r_swing[d.device_id] = 100 * (float(r.max()) / float(r.min()) - 1)
+                out.r25_change[d.device_id] = (float(v.min()), float(v.max()))
             ua = runner.estimate_history(engine, d.device_id, "cabinet.ua.change_pct")
             if ua:
                 u = np.array([h["value"] for h in ua])
-                print(
-                    f"{d.device_id}: UA change within [{u.min():+.1f}, {u.max():+.1f}] %, "
-                    f"5-95 % range [{np.percentile(u, 5):+.1f}, {np.percentile(u, 95):+.1f}] %"
-                )
-        print(f"flags on healthy units: {flags}")
+                lo, hi = (float(x) for x in np.percentile(u, [5, 95]))
+                out.ua_change[d.device_id] = (float(u.min()), float(u.max()), lo, hi)
         engine.dispose()
+    return out
+
+
+def part_season(seed: int, n_dev: int, days: float) -> None:
+    print(f"\n== Season: {n_dev} healthy devices, {days:g} days, ambient swinging about ±10 K ==")
+    sea = season_scores(seed, n_dev, days)
+    for f in sea.flags:
+        print(f"flag: {f}")
+    for dev, (lo, hi) in sea.r25_change.items():
+        print(
+            f"{dev}: R swings {sea.r_swing[dev]:.1f} %, R25 change within [{lo:+.1f}, {hi:+.1f}] %"
+        )
+    for dev, (lo, hi, p5, p95) in sea.ua_change.items():
+        print(f"{dev}: UA change within [{lo:+.1f}, {hi:+.1f}] %, "
+              f"5-95 % range [{p5:+.1f}, {p95:+.1f}] %")  # fmt: skip
+    print(f"flags on healthy units: {len(sea.flags)}")
 
 
 def part_speed(n_dev: int, days: float) -> None:

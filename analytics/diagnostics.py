@@ -553,9 +553,9 @@ class ThermalFit:
     c_cold, c_hot : Heat capacities of the cold and hot sinks [J/K].
     g_cold, g_hot : Conductances cabinet air to cold face and hot face to ambient [W/K].
     stderrs : Standard error of each parameter, by name (K's includes what probe offsets
-        could do to it); also ``ua_probe``, the part of UA's uncertainty that constant probe
-        offsets (and K, when held at its prior) could cause, not included in ``ua`` because
-        it cancels in UA's changes.
+        left unresolved and the errors of S and R could do to it); also ``ua_probe``, the
+        part of UA's uncertainty that is the same in every window (probe offsets, S and R,
+        K when held), not included in ``ua`` because it cancels in UA's changes.
     n : Segments used in the sink balances [-].
     n_samples : Samples behind them [-].
     k_from_data : True when the readings, not the prior, determine K.

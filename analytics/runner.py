@@ -148,8 +148,9 @@ class AnalysisSettings:
     #: cold-side resistance to be reliable, and below which the thermal fit treats the window
     #: as one operating point (see ``_fit_window``; common practice, no source).
     min_rest_share: float = 0.05
-    #: K held at a single operating point: the median of the unit's last ``k_hold_keep``
-    #: K values fitted from data, once there are ``k_hold_min_n`` (else the rated prior).
+    #: The unit's settled K: the median of its last ``k_hold_keep`` K values fitted from data,
+    #: once there are ``k_hold_min_n``. K is held there at a single operating point (else at
+    #: the rated prior), and the cabinet balance uses it in every window.
     k_hold_min_n: int = 4
     k_hold_keep: int = 28
     #: Rated hot-side temperature assumed when a registration omits it, 27 °C (common
@@ -555,10 +556,11 @@ def _flags(data: _Data, sl: slice) -> dg.SampleFlags:
     return data.flags.part(sl)
 
 
-def _k_hold(state: dict[str, Any], cfg: AnalysisSettings) -> float | None:
-    # Where a window has one operating point only, K is held: at the median of the unit's own
-    # K from earlier windows that had two, once there are enough of them, so that K's error
-    # (probe offsets, mostly) stays the same whichever kind of window UA comes from.
+def _k_settled(state: dict[str, Any], cfg: AnalysisSettings) -> float | None:
+    # The median of the unit's own K from earlier windows with two operating points, once
+    # there are enough of them. Held there at a single operating point and used in every
+    # cabinet balance, K's error stays the same whichever kind of window UA comes from, and
+    # how hard the cabinet makes the module work (a leak keeps it running) does not move it.
     hist = state.get("k_hist", [])
     return float(np.median(hist)) if len(hist) >= cfg.k_hold_min_n else None
 
@@ -637,6 +639,7 @@ def _fit_window(
     else:
         k0 = el.s25**2 * T_25C_K / (el.r25 * dg.TYPICAL_MODULE_ZT)
         k_rel = 0.5
+    k_settled = _k_settled(state, cfg)
     # (S, R) relative errors, from the electrical fit's (R, S) covariance.
     rel = np.array([1.0 / el.s25, 1.0 / el.r25])
     sr_rel_cov = el.cov[::-1, ::-1] * np.outer(rel, rel)
@@ -646,9 +649,8 @@ def _fit_window(
         th_fit = dg.fit_thermal(
             data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
             s_t, r_t, usable_th, k0, k_rel, on_current=cfg.on_current,
-            probe_offset_k=cfg.probe_offset_k, k_hold=_k_hold(state, cfg),
-            min_rest_share=cfg.min_rest_share, sr_rel_cov=sr_rel_cov,
-            k_cabinet=_k_hold(state, cfg),
+            probe_offset_k=cfg.probe_offset_k, k_hold=k_settled,
+            min_rest_share=cfg.min_rest_share, sr_rel_cov=sr_rel_cov, k_cabinet=k_settled,
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))
@@ -687,8 +689,8 @@ def _fit_window(
     rows.add("module.zt", b, z_val * tm_on, z_se * tm_on, ns, k_ok, k_note)
     if off.any():
         rows.add("module.off_leak_w", b, th_fit.k * float(np.mean(dt[off])), None, int(off.sum()))
-    # The value's error includes what probe offsets could do to it; its tracking (below)
-    # does not, since a constant offset cancels in its changes.
+    # The value's error includes what probe offsets and the errors of S and R could do to it;
+    # its tracking (below) does not, since a constant error cancels in its changes.
     ua_se = math.hypot(sd["ua"], sd["ua_probe"])
     ua_ok = th_fit.ua_reliable and rested and ua_se <= cfg.ua_max_rel_se * th_fit.ua
     ua_note = None
@@ -698,7 +700,8 @@ def _fit_window(
         ua_note = f"{never_rested}; its changes are still tracked"
     elif not ua_ok:
         ua_note = (
-            f"probe offsets could move UA by ±{100 * ua_se / th_fit.ua:.0f} %: "
+            f"probe offsets and the module's S and R could move UA by "
+            f"±{100 * ua_se / th_fit.ua:.0f} %: "
             "its changes are still tracked"
         )
     rows.add("cabinet.ua_w_per_k", b, th_fit.ua, ua_se, ns, ua_ok, ua_note)

@@ -279,6 +279,11 @@ class ElectricalFit:
     note : Why not, or how the values were obtained.
     r_reliable : R alone is well determined (with S held at its rated value when the
         readings cannot separate them).
+    s25_offset_free, s25_offset_free_se : S25 and its standard error fitted with a constant
+        voltage offset S·δ + b for the probes' ΔT offset δ and the voltage reading's b [V/K].
+        The module's own S; ``s25`` is the S that pairs with ΔT as the probes read it, which
+        the heat balances built on those same probes want (their errors then largely cancel
+        in the heat taken from the cabinet). Equal to ``s25`` where R and S are not separable.
     """
 
     r25: float
@@ -290,6 +295,8 @@ class ElectricalFit:
     reliable: bool
     note: str | None
     r_reliable: bool = True
+    s25_offset_free: float = math.nan
+    s25_offset_free_se: float = math.nan
 
 
 def _trimmed_lstsq(x: FloatArray, y: FloatArray, cut: float = 4.0) -> tuple[FloatArray, BoolArray]:
@@ -329,6 +336,7 @@ def fit_electrical(
     max_rel_stderr: float = 0.01,
     current_offset: float = 0.01,
     probe_offset_k: float = 0.3,
+    voltage_offset: float = 0.01,
 ) -> ElectricalFit:
     """Fit R25 and S25 to V = R25·I·(1 + α·(Tm - 25 °C)) + S25·ΔT·(1 + β·(Tm - 25 °C)).
 
@@ -362,6 +370,9 @@ def fit_electrical(
         module idling).
     probe_offset_k : Standard uncertainty of a constant offset in the probes' ΔT [K]; it and
         the current offset are carried into the covariance to first order.
+    voltage_offset : Standard uncertainty of a constant offset of the voltage reading, about
+        one step of a 10 mV converter (common practice, no source) [V]. With the ΔT offset
+        it sets the prior of the offset term of ``s25_offset_free``.
 
     Returns
     -------
@@ -448,13 +459,38 @@ def fit_electrical(
         (np.where(on_rows, coef[0] * f_r, 0.0), current_offset),
         (coef[1] * f_s, probe_offset_k),
     )
-    for shift, sd in shifts:
+    s_current = 0.0  # S's part from the current reading's offset
+    for j, (shift, sd) in enumerate(shifts):
         if data_ok:
             g = np.linalg.solve(xtx, x.T @ shift)
             cov += np.outer(g, g) * sd**2
+            if j == 0:
+                s_current = float(g[1]) * sd
         else:
             g0 = float(x[:, 0] @ shift) / float(xtx[0, 0])
             cov[0, 0] += (g0 * sd) ** 2
+    s_free, s_free_se = float(coef[1]), math.sqrt(max(float(cov[1, 1]), 0.0))
+    if data_ok:
+        # One more unknown, the constant S·δ + b, with a prior of zero ± its size (a row
+        # appended to the design, as the ratings' priors are); the spread of ΔT while the
+        # module is off, or across currents, tells it from S.
+        c_sd = math.hypot(float(coef[1]) * probe_offset_k, voltage_offset)
+        p_mean, p_sd = [0.0], [c_sd]
+        if prior is not None:
+            p_mean, p_sd = (
+                [prior[0], prior[1], 0.0],
+                [prior[2] * prior[0], prior[2] * prior[1], c_sd],
+            )
+        w = sigma / np.array(p_sd)
+        rows_p = np.zeros((len(p_sd), 3))
+        rows_p[np.arange(len(p_sd)), np.arange(3 - len(p_sd), 3)] = w
+        xa = np.vstack([np.column_stack([x, np.ones(y.size)]), rows_p])
+        ya = np.concatenate([y, w * np.array(p_mean)])
+        sol = np.linalg.lstsq(xa, ya, rcond=None)[0]
+        s_free = float(sol[1])
+        s_free_se = math.hypot(
+            sigma * math.sqrt(max(float(np.linalg.inv(xa.T @ xa)[1, 1]), 0.0)), s_current
+        )
     i_rms = float(np.sqrt(np.mean(i[on] ** 2)))
     rel_i = current_offset / max(i_rms, 1e-12)
     if rel_i > 2.0 * max_rel_stderr and r_ok:
@@ -471,6 +507,8 @@ def fit_electrical(
         reliable=data_ok,
         note=note,
         r_reliable=bool(r_ok),
+        s25_offset_free=s_free,
+        s25_offset_free_se=s_free_se,
     )
 
 

@@ -613,13 +613,16 @@ def _fit_window(
     tm_on = float(np.mean(tm[on]))
     f_r = 1.0 + cfg.alpha * (tm_on - T_25C_K)
     f_s = 1.0 + cfg.beta * (tm_on - T_25C_K)
-    se_r, se_s = (float(np.sqrt(max(x, 0.0))) for x in np.diag(el.cov))
+    se_r = float(np.sqrt(max(el.cov[0, 0], 0.0)))
     n_el = el.n_on + el.n_off
     r_note = None if el.r_reliable else el.note
     rows.add("module.resistance_25c_ohm", b, el.r25, se_r, n_el, el.r_reliable, r_note)
     rows.add("module.resistance_ohm", b, el.r25 * f_r, se_r * f_r, n_el, el.r_reliable, r_note)
-    rows.add("module.seebeck_25c_v_per_k", b, el.s25, se_s, n_el, el.reliable, el.note)
-    rows.add("module.seebeck_v_per_k", b, el.s25 * f_s, se_s * f_s, n_el, el.reliable, el.note)
+    # Served: the module's own S, its fit allowing for a constant ΔT offset. The heat
+    # balances below use el.s25, fitted to ΔT as the probes read it, like their own terms.
+    s_own, se_own = el.s25_offset_free, el.s25_offset_free_se
+    rows.add("module.seebeck_25c_v_per_k", b, s_own, se_own, n_el, el.reliable, el.note)
+    rows.add("module.seebeck_v_per_k", b, s_own * f_s, se_own * f_s, n_el, el.reliable, el.note)
     if floating:
         s_steps, _ = dg.harman_steps(t, i, v, tc, th, usable, on_current=cfg.on_current)
         if s_steps.size >= 3:

@@ -164,8 +164,8 @@ class Fault:
 @dataclass(frozen=True)
 class ScheduledEvent:
     """A use event at a known time: ``door`` (open for ``duration_s``), ``load`` (warm goods,
-    ``magnitude`` = fraction of the contents replaced at ambient temperature) or ``power_cut``
-    (``duration_s``)."""
+    ``magnitude`` = fraction of the contents replaced at ambient temperature, put in through
+    the door, which opens for at least half a minute) or ``power_cut`` (``duration_s``)."""
 
     kind: str
     device_id: str
@@ -649,6 +649,8 @@ class Simulator:
                 cut[k, i] = max(cut[k, i], e.duration_s)
             else:
                 raise ValueError(f"unknown event kind {e.kind!r}")
+        # Goods go in through the door: a load opens it for at least half a minute.
+        door = np.where(load > 0.0, np.maximum(door, 30.0 + l_door * p["door_mean_s"]), door)
         return door, load, cut
 
     # -- stepping -------------------------------------------------------------

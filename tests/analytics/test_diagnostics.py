@@ -65,6 +65,21 @@ def test_electrical_fit_recovers_r25_and_s25(day: dict[str, Any]) -> None:
     assert abs(e.r25 - tr.r25) < 6.0 * se_r
 
 
+@pytest.mark.parametrize("offset_k", [0.3, -0.3])
+def test_seebeck_coefficient_allowing_for_a_probe_offset(offset_k: float) -> None:
+    # V = I·R + S·ΔT (Goldsmid 2010, ch. 2) with the hot probe reading offset_k off: fitted to
+    # ΔT as read, S comes out 1.4-1.5 % off (values this code produced); with a constant term
+    # S·δ + b in the fit, which the spread of ΔT while the module is off tells from S, it is
+    # within 0.5 % (its stated error is about 0.2 %). The S for the heat balances stays the
+    # one fitted to ΔT as read.
+    tr = Truth()
+    a = _arrays(simulate(tr, 1.0, seed=2, noise=Noise(bias_k={"t_hot": offset_k})))
+    e = dg.fit_electrical(a["i"], a["v"], a["t_cold"], a["t_hot"], a["flags"].usable, floating=True)
+    assert abs(e.s25 / tr.s25 - 1.0) > 0.01  # the offset matters: the check is not vacuous
+    assert e.s25_offset_free == pytest.approx(tr.s25, rel=5e-3)
+    assert abs(e.s25_offset_free - tr.s25) < 3.0 * e.s25_offset_free_se
+
+
 def test_floating_driver_detected_only_when_it_floats(day: dict[str, Any]) -> None:
     # Off and floating, V = S·ΔT (Harman 1958); shorted, V = 0.
     off = ~day["flags"].on

@@ -343,6 +343,19 @@ def _fleet(seed: int) -> sm.FleetSpec:
     )
 
 
+def test_goods_go_in_through_the_door() -> None:
+    # Loading a cabinet means opening it (common practice, no source): every load the
+    # simulator records comes with the door open in that sampling interval.
+    spec = _fleet(11)
+    spec = replace(spec, devices=tuple(replace(d, loads_per_day=6.0) for d in spec.devices))
+    chunk, truth = run(spec, 2)
+    loads = [(dev, t) for dev, times in truth.loads.items() for t in times]
+    assert len(loads) > 10
+    for dev, t in loads:
+        i, k = spec.device_ids.index(dev), int(np.searchsorted(chunk.t, t))
+        assert chunk.truth["door_s"][k, i] > 0.0
+
+
 def test_same_seed_same_data_different_seed_different_data() -> None:
     a, _ = run(_fleet(11), 2)
     b, _ = run(_fleet(11), 2)

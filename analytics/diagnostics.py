@@ -1015,7 +1015,7 @@ def fit_thermal(
     i_cold, i_hot = sums(trap(tcab - tc)), sums(trap(th - ta))
     d_c, d_h = sums(np.diff(tc)), sums(np.diff(th))
     z = np.zeros_like(i_pc)
-    # Sink unknowns: k, c_cold, g_cold, g_hot, c_hot
+    # Sink unknowns: k, c_cold, g_cold, g_hot, c_hot (then a_c, a_h: see below)
     x_cold = np.column_stack([i_dt, -d_c, i_cold, z, z])
     x_hot = np.column_stack([i_dt, z, z, i_hot, d_h])
     # K separates from the sinks only between distinct operating points. A module that never
@@ -1038,7 +1038,7 @@ def fit_thermal(
     # beyond its scatter-only one is then what the offsets leave unresolved (``k_probe``).
     # At a single operating point they cannot be told from the sinks' conductances: left out.
     dur = sums(h)
-    offsets = (
+    offsets = (  # priors of a_c and a_h, columns 5 and 6
         {}
         if one_point
         else {

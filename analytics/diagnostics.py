@@ -311,6 +311,19 @@ def _trimmed_lstsq(x: FloatArray, y: FloatArray, cut: float = 4.0) -> tuple[Floa
     return coef, keep
 
 
+def _ridge(
+    x: FloatArray, y: FloatArray, sigma: float, means: list[float], sds: list[float]
+) -> tuple[FloatArray, FloatArray]:
+    # Least squares with an independent Gaussian prior on each column (Bayesian ridge: one
+    # row per prior appended to the design, weighted by sigma / sd; an infinite sd adds
+    # nothing). Returns the coefficients and their covariance.
+    w = sigma / np.array(sds, dtype=np.float64)
+    xa = np.vstack([x, np.diag(w)])
+    ya = np.concatenate([y, w * np.array(means, dtype=np.float64)])
+    coef = np.asarray(np.linalg.lstsq(xa, ya, rcond=None)[0], dtype=np.float64)
+    return coef, np.asarray(sigma**2 * np.linalg.inv(xa.T @ xa), dtype=np.float64)
+
+
 def _lstsq(x: FloatArray, y: FloatArray) -> FloatArray:
     # Normal equations for these few well-scaled columns (one small solve instead of an SVD
     # of every row); numpy's SVD-based lstsq where they are near singular.
@@ -438,11 +451,7 @@ def fit_electrical(
         note = f"{note}; S held at the registered ratings"
     elif prior is not None:
         r0, s0, rel = prior
-        w = np.array([sigma / (rel * r0), sigma / (rel * s0)])
-        xa = np.vstack([x, np.diag(w)])
-        ya = np.concatenate([y, w * np.array([r0, s0])])
-        coef = np.asarray(np.linalg.lstsq(xa, ya, rcond=None)[0], dtype=np.float64)
-        cov = np.asarray(sigma**2 * np.linalg.inv(xa.T @ xa), dtype=np.float64)
+        coef, cov = _ridge(x, y, sigma, [r0, s0], [rel * r0, rel * s0])
     elif data_ok:
         cov = np.asarray(sigma**2 * np.linalg.inv(xtx), dtype=np.float64)
     else:
@@ -471,26 +480,16 @@ def fit_electrical(
             cov[0, 0] += (g0 * sd) ** 2
     s_free, s_free_se = float(coef[1]), math.sqrt(max(float(cov[1, 1]), 0.0))
     if data_ok:
-        # One more unknown, the constant S·δ + b, with a prior of zero ± its size (a row
-        # appended to the design, as the ratings' priors are); the spread of ΔT while the
-        # module is off, or across currents, tells it from S.
+        # One more unknown, the constant S·δ + b, with a prior of zero ± its size beside the
+        # ratings' priors; the spread of ΔT while the module is off, or across currents,
+        # tells it from S.
         c_sd = math.hypot(float(coef[1]) * probe_offset_k, voltage_offset)
-        p_mean, p_sd = [0.0], [c_sd]
+        means, sds = [0.0, 0.0, 0.0], [math.inf, math.inf, c_sd]
         if prior is not None:
-            p_mean, p_sd = (
-                [prior[0], prior[1], 0.0],
-                [prior[2] * prior[0], prior[2] * prior[1], c_sd],
-            )
-        w = sigma / np.array(p_sd)
-        rows_p = np.zeros((len(p_sd), 3))
-        rows_p[np.arange(len(p_sd)), np.arange(3 - len(p_sd), 3)] = w
-        xa = np.vstack([np.column_stack([x, np.ones(y.size)]), rows_p])
-        ya = np.concatenate([y, w * np.array(p_mean)])
-        sol = np.linalg.lstsq(xa, ya, rcond=None)[0]
+            means[:2], sds[:2] = [prior[0], prior[1]], [prior[2] * prior[0], prior[2] * prior[1]]
+        sol, cov3 = _ridge(np.column_stack([x, np.ones(y.size)]), y, sigma, means, sds)
         s_free = float(sol[1])
-        s_free_se = math.hypot(
-            sigma * math.sqrt(max(float(np.linalg.inv(xa.T @ xa)[1, 1]), 0.0)), s_current
-        )
+        s_free_se = math.hypot(math.sqrt(max(float(cov3[1, 1]), 0.0)), s_current)
     i_rms = float(np.sqrt(np.mean(i[on] ** 2)))
     rel_i = current_offset / max(i_rms, 1e-12)
     if rel_i > 2.0 * max_rel_stderr and r_ok:
@@ -876,9 +875,8 @@ def fit_thermal(
     recovery_s: float = 12 * 3600.0,
     min_rest_share: float = 0.05,
     min_current_spread: float = 0.5,
-    k_hold: float | None = None,
+    k_settled: float | None = None,
     sr_rel_cov: FloatArray | None = None,
-    k_cabinet: float | None = None,
     contents_tau_s: tuple[float, ...] = (3600.0, 7200.0, 14400.0, 28800.0, 57600.0),
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
@@ -947,12 +945,12 @@ def fit_thermal(
         ``min_rest_share`` of the usable samples have the module at rest and the segments'
         mean currents span less than ``min_current_spread`` of the median one: a single
         operating point (common practice, no source) [-], [-].
-    k_hold : Value K is held at in that case instead of ``k_prior``, e.g. the unit's own K
-        from windows that had two operating points: its error then stays the same across
-        both kinds of window and cancels in UA's changes [W/K].
-    k_cabinet : K used in the cabinet balance instead of this window's, e.g. the unit's own
-        settled K: K belongs to the module, and how hard the cabinet makes it work (a leak
-        keeps it running) should not move the UA found beside it [W/K].
+    k_settled : The unit's settled K, e.g. the median of its own K from windows that had two
+        operating points. K is held there at a single operating point (instead of at
+        ``k_prior``), so that its error stays the same across both kinds of window and
+        cancels in UA's changes; and the cabinet balance uses it instead of this window's
+        K: K belongs to the module, and how hard the cabinet makes it work (a leak keeps it
+        running) should not move the UA found beside it [W/K].
     sr_rel_cov : Covariance of the relative errors of ``seebeck`` and ``resistance`` (in
         that order), carried into the errors of K and UA to first order; None: none [-].
 
@@ -1025,7 +1023,7 @@ def fit_thermal(
     rests = float(np.mean(~on[usable])) >= min_rest_share if usable.any() else True
     i_mid = float(np.median(seg_i))
     one_point = not rests and float(np.ptp(seg_i)) < min_current_spread * max(i_mid, 1e-9)
-    k0 = k_hold if one_point and k_hold is not None else k_prior
+    k0 = k_settled if one_point and k_settled is not None else k_prior
     blocks = [(x_cold, i_pc), (x_hot, i_ph)]
     p1, cov1, forced, _ = _robust_weighted(
         blocks, 0, k0, k_prior_rel * k_prior, (0, 2, 3), hold=one_point
@@ -1072,8 +1070,8 @@ def fit_thermal(
 
     # Cabinet: every usable pair counts (switching does not matter for whole-hour sums),
     # except in blocks where the on/off cycle is commensurate with the sampling.
-    held_cab = forced or k_cabinet is not None
-    qc = pc - (k if k_cabinet is None else k_cabinet) * dtv
+    held_cab = forced or k_settled is not None
+    qc = pc - (k if k_settled is None else k_settled) * dtv
     blk = np.floor((t[:-1] - t[0]) / cabinet_block_s).astype(np.int64)
     strobed = _strobed_blocks(on, blk)
     recovering = _after_warm_spells(t, tcab, warm_spell_k, warm_spell_min_s, recovery_s)

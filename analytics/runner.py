@@ -642,7 +642,6 @@ def _fit_window(
     else:
         k0 = el.s25**2 * T_25C_K / (el.r25 * dg.TYPICAL_MODULE_ZT)
         k_rel = 0.5
-    k_settled = _k_settled(state, cfg)
     # (S, R) relative errors, from the electrical fit's (R, S) covariance.
     rel = np.array([1.0 / el.s25, 1.0 / el.r25])
     sr_rel_cov = el.cov[::-1, ::-1] * np.outer(rel, rel)
@@ -652,8 +651,8 @@ def _fit_window(
         th_fit = dg.fit_thermal(
             data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
             s_t, r_t, usable_th, k0, k_rel, on_current=cfg.on_current,
-            probe_offset_k=cfg.probe_offset_k, k_hold=k_settled,
-            min_rest_share=cfg.min_rest_share, sr_rel_cov=sr_rel_cov, k_cabinet=k_settled,
+            probe_offset_k=cfg.probe_offset_k, k_settled=_k_settled(state, cfg),
+            min_rest_share=cfg.min_rest_share, sr_rel_cov=sr_rel_cov,
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))

@@ -389,7 +389,7 @@ def test_module_at_one_operating_point_keeps_k_at_its_prior() -> None:
     # (which its changes are judged on) and goes with the offsets that cancel in them.
     assert fit.stderrs["ua_probe"] > fit.stderrs["ua"]
     # Given the unit's own K from windows with two operating points, it is held there instead.
-    own = _fit_simulated(a, p, sel, k_hold=1.05 * p["k"])
+    own = _fit_simulated(a, p, sel, k_settled=1.05 * p["k"])
     assert own.k == pytest.approx(1.05 * p["k"], rel=1e-9) and not own.k_from_data
 
 

@@ -601,6 +601,9 @@ class ThermalFit:
     ua_reliable : False when the cabinet balance is poorly determined.
     c_reliable : False when the heat capacity is poorly determined.
     note : Remarks on identifiability.
+    q_internal_own : The internal load fitted with ``q_internal_prior`` alone, before a
+        settled value of the unit's own joins (see :func:`fit_thermal`): what a history of
+        the unit's internal load should be made of [W].
     """
 
     ua: float
@@ -619,6 +622,7 @@ class ThermalFit:
     ua_reliable: bool
     c_reliable: bool
     note: str | None
+    q_internal_own: float = math.nan
 
     def stderr(self, name: str) -> float:
         """Standard error of one parameter (a name from ``THERMAL_PARAMS``)."""
@@ -807,6 +811,17 @@ def _warm_goods_runs(res: FloatArray, start: float = 2.0, settle: float = 0.5) -
     return out
 
 
+def _lag_one_autocorrelation(res: FloatArray, cap: float = 0.9) -> float:
+    # Lag-one autocorrelation of residuals in time order, from 0 (none, or negative) to cap.
+    if res.size < 4:
+        return 0.0
+    r = res - float(np.mean(res))
+    den = float(r @ r)
+    if not den > 0.0:
+        return 0.0
+    return min(max(float(r[1:] @ r[:-1]) / den, 0.0), cap)
+
+
 def _bic_term(n: int, sd: float) -> float:
     # n·ln(σ²) of the information criterion; a perfect fit counts as a very small σ.
     return 2.0 * n * math.log(sd if math.isfinite(sd) and sd > 1e-12 else 1e-12)
@@ -876,6 +891,7 @@ def fit_thermal(
     min_rest_share: float = 0.05,
     min_current_spread: float = 0.5,
     k_settled: float | None = None,
+    q_settled: tuple[float, float] | None = None,
     sr_rel_cov: FloatArray | None = None,
     contents_tau_s: tuple[float, ...] = (3600.0, 7200.0, 14400.0, 28800.0, 57600.0),
 ) -> ThermalFit:
@@ -951,6 +967,12 @@ def fit_thermal(
         cancels in UA's changes; and the cabinet balance uses it instead of this window's
         K: K belongs to the module, and how hard the cabinet makes it work (a leak keeps it
         running) should not move the UA found beside it [W/K].
+    q_settled : The unit's settled internal load and its standard error, e.g. the median
+        of its own earlier ``q_internal_own`` values. Fans and electronics inside do not
+        change from day to day, while one day's balance trades UA against a constant load
+        where the ambient hardly moves: once the blocks, contents term and warm-goods runs
+        are chosen with ``q_internal_prior``, the cabinet is fitted once more with this prior
+        instead ([W], [W]).
     sr_rel_cov : Covariance of the relative errors of ``seebeck`` and ``resistance`` (in
         that order), carried into the errors of K and UA to first order; None: none [-].
 
@@ -1117,6 +1139,21 @@ def fit_thermal(
         p2, cov2, _, _ = _robust_weighted(
             [(x_cab[~warm], y_cab[~warm])], 1, q0, q_sd, (0, 1), hold_when_weak=False
         )
+    q_own = float(p2[1])
+    if q_settled is not None:
+        q0, q_sd = q_settled
+        p2, cov2, _, _ = _robust_weighted(
+            [(x_cab[~warm], y_cab[~warm])], 1, q0, q_sd, (0, 1), hold_when_weak=False
+        )
+    # Neighbouring blocks share what the model leaves out (a thermostat cycle drifting in and
+    # out of step with the sampling, the tail of a load), so their residuals run together
+    # and the blocks are worth fewer independent ones: the covariance grows by
+    # (1 + ρ)/(1 - ρ), ρ the residuals' lag-one autocorrelation, as for the effective sample
+    # size of a first-order autoregressive series (H. von Storch and F. W. Zwiers,
+    # Statistical Analysis in Climate Research, 1999; from memory).
+    res_cab = y_cab[~warm] - x_cab[~warm] @ p2
+    rho = _lag_one_autocorrelation(res_cab)
+    cov2 = cov2 * ((1.0 + rho) / (1.0 - rho))
     ua, q_int, c = (float(v) for v in p2[:3])
     if ua <= 0.0:
         raise EstimationError(f"non-physical cabinet fit: UA={ua:.3g} W/K")
@@ -1182,6 +1219,7 @@ def fit_thermal(
         ua_reliable=bool(ua_ok),
         c_reliable=bool(c_ok),
         note="; ".join(notes) or None,
+        q_internal_own=q_own,
     )
 
 

@@ -153,6 +153,13 @@ class AnalysisSettings:
     #: the rated prior), and the cabinet balance uses it in every window.
     k_hold_min_n: int = 4
     k_hold_keep: int = 28
+    #: Windows whose S the readings pinned before the heat balances use the unit's settled S
+    #: (two days of them): a module that seldom shows its S (proportional drive) keeps the
+    #: S of each window rather than one settled on the few odd windows that did.
+    s_settle_min_n: int = 8
+    #: Smallest standard error of the unit's settled internal load [W] (common practice, no
+    #: source): what a fan's or a controller's draw may wander by.
+    q_settled_min_sd: float = 0.1
     #: Rated hot-side temperature assumed when a registration omits it, 27 °C (common
     #: practice for module datasheets, no source).
     default_t_hot_rated_c: float = 27.0
@@ -565,6 +572,33 @@ def _k_settled(state: dict[str, Any], cfg: AnalysisSettings) -> float | None:
     return float(np.median(hist)) if len(hist) >= cfg.k_hold_min_n else None
 
 
+def _s_settled(state: dict[str, Any], cfg: AnalysisSettings) -> tuple[float, float] | None:
+    # The median of the unit's own S (fitted allowing for a constant ΔT offset) from earlier
+    # windows where the readings pinned it, and its standard error. S does not wear; one
+    # window's S scatters by one or two per cent, which S·I·Tc carries into the cabinet
+    # balance, and the S that pairs with ΔT as read shifts with the operating point. Half the
+    # windows' median error: some of it is shared between windows (common practice, no source).
+    hist = state.get("s_hist", [])
+    if len(hist) < cfg.s_settle_min_n:
+        return None
+    values = np.array(hist, dtype=np.float64)
+    return float(np.median(values[:, 0])), 0.5 * float(np.median(values[:, 1]))
+
+
+def _q_settled(state: dict[str, Any], cfg: AnalysisSettings) -> tuple[float, float] | None:
+    # The median of the unit's own internal load from earlier well-determined cabinet fits,
+    # and its standard error: the windows' robust scatter over the root of the number of
+    # days behind it (thermal windows overlap, four to a day).
+    hist = state.get("q_hist", [])
+    if len(hist) < cfg.k_hold_min_n:
+        return None
+    q = np.asarray(hist, dtype=np.float64)
+    med = float(np.median(q))
+    scatter = 1.4826 * float(np.median(np.abs(q - med)))
+    days = len(hist) * cfg.window_s / cfg.thermal_window_s
+    return med, max(scatter / math.sqrt(max(days, 1.0)), cfg.q_settled_min_sd)
+
+
 def _fit_window(
     data: _Data,
     b: int,
@@ -618,8 +652,8 @@ def _fit_window(
     r_note = None if el.r_reliable else el.note
     rows.add("module.resistance_25c_ohm", b, el.r25, se_r, n_el, el.r_reliable, r_note)
     rows.add("module.resistance_ohm", b, el.r25 * f_r, se_r * f_r, n_el, el.r_reliable, r_note)
-    # Served: the module's own S, its fit allowing for a constant ΔT offset. The heat
-    # balances below use el.s25, fitted to ΔT as the probes read it, like their own terms.
+    # Served: the module's own S, its fit allowing for a constant ΔT offset (the heat balances
+    # below use the median of the unit's recent ones).
     s_own, se_own = el.s25_offset_free, el.s25_offset_free_se
     rows.add("module.seebeck_25c_v_per_k", b, s_own, se_own, n_el, el.reliable, el.note)
     rows.add("module.seebeck_v_per_k", b, s_own * f_s, se_own * f_s, n_el, el.reliable, el.note)
@@ -634,8 +668,21 @@ def _fit_window(
         _track(rows, state, "r25", "module.resistance_25c", b, el.r25, cfg.r25_flag_pct, 0.003, cfg)
 
     # --- thermal ---
+    # The heat balances use the unit's settled S once there is one; till then the S that
+    # pairs with ΔT as the probes read it in this window.
+    settled_s = _s_settled(state, cfg)
+    if el.reliable:
+        s_hist = state.setdefault("s_hist", [])
+        s_hist.append([s_own, se_own])
+        del s_hist[: -cfg.k_hold_keep]
+    rs_cov = np.array(el.cov, dtype=np.float64)
+    s_bal = el.s25
+    if settled_s is not None:
+        s_bal = settled_s[0]
+        rs_cov[0, 1] = rs_cov[1, 0] = 0.0
+        rs_cov[1, 1] = settled_s[1] ** 2
     tm_th = 0.5 * (data.tc[wt] + data.th[wt])
-    s_t = el.s25 * (1.0 + cfg.beta * (tm_th - T_25C_K))
+    s_t = s_bal * (1.0 + cfg.beta * (tm_th - T_25C_K))
     r_t = el.r25 * (1.0 + cfg.alpha * (tm_th - T_25C_K))
     if prior is not None:
         k0, k_rel = prior.conductance, 0.3
@@ -643,15 +690,17 @@ def _fit_window(
         k0 = el.s25**2 * T_25C_K / (el.r25 * dg.TYPICAL_MODULE_ZT)
         k_rel = 0.5
     # (S, R) relative errors, from the electrical fit's (R, S) covariance.
-    rel = np.array([1.0 / el.s25, 1.0 / el.r25])
-    sr_rel_cov = el.cov[::-1, ::-1] * np.outer(rel, rel)
+    rel = np.array([1.0 / s_bal, 1.0 / el.r25])
+    sr_rel_cov = rs_cov[::-1, ::-1] * np.outer(rel, rel)
     state["params"] = {"s25": el.s25, "r25": el.r25, "k": state.get("params", {}).get("k", k0)}
     state["params"]["cov_rs"] = el.cov.tolist()
+    k_settled = _k_settled(state, cfg)
     try:
         th_fit = dg.fit_thermal(
             data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
             s_t, r_t, usable_th, k0, k_rel, on_current=cfg.on_current,
-            probe_offset_k=cfg.probe_offset_k, k_settled=_k_settled(state, cfg),
+            probe_offset_k=cfg.probe_offset_k, k_settled=k_settled,
+            q_settled=_q_settled(state, cfg),
             min_rest_share=cfg.min_rest_share, sr_rel_cov=sr_rel_cov,
         )  # fmt: skip
     except PhysicsError as exc:
@@ -659,6 +708,10 @@ def _fit_window(
         return
     sd = th_fit.stderrs
     ns = th_fit.n_samples
+    if th_fit.ua_reliable and math.isfinite(th_fit.q_internal_own):
+        q_hist = state.setdefault("q_hist", [])
+        q_hist.append(th_fit.q_internal_own)
+        del q_hist[: -cfg.k_hold_keep]
     if th_fit.k_from_data:
         k_hist = state.setdefault("k_hist", [])
         k_hist.append(th_fit.k)
@@ -737,9 +790,17 @@ def _fit_window(
     # While the hot side's resistance is flagged (a failed fan, a clogged sink) the module runs
     # at a hot face and often without pause, a regime the cabinet balance was not judged in:
     # UA's changes are not followed then, so that one fault raises one flag (common practice,
-    # no source). They resume from the same baseline once the flag clears.
+    # no source). They resume from the same baseline once the flag clears. A baseline made
+    # before the unit had a settled K of its own is dropped once it has one, and windows
+    # between (K from their own data, not yet settled) are not followed: the rated prior can
+    # be several per cent off and K·ΔT, the module's own leak, is a large term, so UA's
+    # changes are judged against one K throughout.
     hot_flagged = int(state.get("above", {}).get("rhot", 0)) >= 1
-    if th_fit.ua_reliable and not hot_flagged:
+    k_source = "own" if k_settled is not None else "data" if th_fit.k_from_data else "prior"
+    if state.get("ua_k_source") == "prior" and k_source == "own":
+        _restart_track(state, "ua")
+    if th_fit.ua_reliable and not hot_flagged and k_source != "data":
+        state["ua_k_source"] = k_source
         _track(
             rows, state, "ua", "cabinet.ua", b, th_fit.ua, cfg.ua_flag_pct, 0.03, cfg,
             skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
@@ -873,6 +934,12 @@ def _track(
         # Slow-moving figures: once per window is enough, also for the hourly series.
         rows.add(f"{prefix}.baseline", b, center, spread / math.sqrt(max(n_base, 1)), n_base)
         rows.add(f"{prefix}.cusum", b, c_new, None, n_base)
+
+
+def _restart_track(state: dict[str, Any], name: str) -> None:
+    # Forget a tracked series, its baseline and its statistics: the next value starts anew.
+    for part in ("series", "first", "baseline", "cusum", "above"):
+        state.get(part, {}).pop(name, None)
 
 
 def _at(point: list[Any]) -> int:

@@ -286,6 +286,26 @@ def test_cycle_locked_to_the_sampling_is_left_out_of_the_cabinet_balance() -> No
     assert dg._strobed_blocks(on, block).tolist() == [True, False, False]
 
 
+def test_lag_one_autocorrelation_of_the_cabinet_residuals() -> None:
+    # Checked against numpy.corrcoef of the series against itself one step later, on a long
+    # first-order autoregressive series x[k] = 0.6·x[k-1] + e[k] (its lag-one autocorrelation
+    # is 0.6); 0.03 is about two standard errors at n = 4000 (sqrt((1 - 0.36)/4000) = 0.013).
+    # Negative ones count as none (they would shrink the stated error) and the largest is
+    # capped, so a trend the model missed cannot blow the error up without bound.
+    rng = np.random.default_rng(3)
+    e = rng.standard_normal(4000)
+    x = np.zeros_like(e)
+    for k in range(1, e.size):
+        x[k] = 0.6 * x[k - 1] + e[k]
+    rho = dg._lag_one_autocorrelation(x)
+    assert rho == pytest.approx(float(np.corrcoef(x[1:], x[:-1])[0, 1]), abs=0.01)
+    assert rho == pytest.approx(0.6, abs=0.03)
+    alternating = np.tile([1.0, -1.0], 20)
+    assert dg._lag_one_autocorrelation(alternating) == 0.0
+    assert dg._lag_one_autocorrelation(np.arange(40.0)) == 0.9
+    assert dg._lag_one_autocorrelation(np.array([1.0, 2.0])) == 0.0
+
+
 def test_hot_side_resistance_per_hour_matches_one_hour_at_a_time(day: dict[str, Any]) -> None:
     # Several hours in one call: each hour's figures as from its own call (pairs never span
     # two hours); an hour with the module off gives its reason instead.

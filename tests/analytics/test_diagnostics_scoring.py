@@ -14,13 +14,21 @@ on healthy units over the season.
 
 from __future__ import annotations
 
+import dataclasses
 import math
+import tempfile
+from pathlib import Path
 
+import numpy as np
 import pytest
 
+from tecfleet.analytics import runner
+from tecfleet.analytics import simulator as sim
 from tests.bench.bench_diagnostics import (
+    START_S,
     UnitScore,
     accuracy_scores,
+    build_db,
     detection_scores,
     season_scores,
 )
@@ -53,9 +61,10 @@ def test_hot_side_resistance(scores: list[UnitScore]) -> None:
 
 def test_cabinet_ua(scores: list[UnitScore]) -> None:
     ua = _of(scores, "UA")
-    # Not yet every unit: on 53 of 56 (95 %) UA is within 20 %. A unit beyond it must not be
-    # served as reliable unless its stated error covers the miss (two standard errors, a
-    # coverage factor of 2: JCGM 100:2008 6.2-6.3), and the stated errors cover nearly all.
+    # Not yet every unit: on 52 of 56 (93 %) UA is within 20 % (seeds 8-14: 53 of 56). A
+    # unit beyond it must not be served as reliable unless its stated error covers the miss
+    # (two standard errors, a coverage factor of 2: JCGM 100:2008 6.2-6.3), and the stated
+    # errors cover nearly all.
     assert sum(u.within for u in ua) >= 0.9 * len(ua)
     assert all(u.within or not u.reliable or u.covered for u in ua)
     assert sum(u.covered for u in ua) >= 0.9 * len(ua)
@@ -78,3 +87,45 @@ def test_no_flag_on_healthy_units_over_a_season() -> None:
     assert len(season.r25_change) == 4
     assert all(swing > 2.0 for swing in season.r_swing.values())
     assert all(lo >= -1.0 and hi <= 1.0 for lo, hi in season.r25_change.values())
+
+
+def test_ua_over_a_season_with_an_offset_cold_probe() -> None:
+    # One big thermostat unit (seed 1's first) whose cold probe reads 0.32 K high, through 60
+    # days of ambient swinging about ±10 K: the S that pairs with ΔT as read is off by
+    # δ/ΔT, which moves with the operating point, and S·I·Tc carries that into the cabinet
+    # balance; the first days are so warm that the module never rests and K leans on its
+    # prior. Measured on the code before the unit's settled S and internal load and the rule
+    # on K: UA came out +31 % (median) where Ta - Tcab was under 12 K, up to +89 % on
+    # values served as reliable, and the UA flag was raised 50 times. Here every value
+    # served as reliable is within the 20 % target, the median error within 10 % at every
+    # ambient, and no flag is raised (targets as in the module docstring).
+    spec = sim.random_fleet(1, seed=1, start_s=START_S, days=60.0)
+    unit = dataclasses.replace(
+        spec.devices[0], t_amb_weather_k=5.0, t_amb_tau_h=480.0, t_amb_daily_k=4.0
+    )
+    assert unit.control == "thermostat" and unit.sensor_bias[1] > 0.3
+    spec = dataclasses.replace(spec, devices=(unit,))
+    with tempfile.TemporaryDirectory() as tmp:
+        engine, _truth, _ = build_db(Path(tmp) / "season.db", spec, 60.0)
+        runner.analyze(engine)
+        served = [
+            h for h in runner.estimate_history(engine, unit.device_id, "cabinet.ua_w_per_k")
+            if h["value"] is not None
+        ]  # fmt: skip
+        leak = {
+            h["at_ms"]: h["value"]
+            for h in runner.estimate_history(engine, unit.device_id, "cabinet.heat_leak_w")
+        }
+        flags = runner.estimate_history(engine, unit.device_id, "cabinet.ua.flag")
+        engine.dispose()
+    err = np.array([h["value"] / unit.ua - 1.0 for h in served])
+    reliable = np.array([bool(h["reliable"]) for h in served])
+    d_amb = np.array([leak.get(h["at_ms"], math.nan) / h["value"] for h in served])
+    assert reliable.sum() > 0.8 * len(served)
+    assert np.all(np.abs(err[reliable]) <= 0.2)
+    bands = [(0.0, 12.0), (12.0, 18.0), (18.0, 24.0)]
+    for lo, hi in bands:
+        band = (d_amb >= lo) & (d_amb < hi)
+        assert band.sum() >= 20  # the season reached every band
+        assert abs(float(np.median(err[band]))) <= 0.1
+    assert not any(h["value"] == 1.0 for h in flags)

@@ -344,8 +344,16 @@ def season_scores(seed: int, n_dev: int, days: float) -> Season:
     return out
 
 
-def part_season(seed: int, n_dev: int, days: float) -> None:
-    print(f"\n== Season: {n_dev} healthy devices, {days:g} days, ambient swinging about ±10 K ==")
+def part_season(seeds: list[int], n_dev: int, days: float) -> None:
+    flagged = 0
+    for seed in seeds:
+        flagged += _season_one(seed, n_dev, days)
+    print(f"\nseasons: {len(seeds)} seeds, units flagged: {flagged} of {len(seeds) * n_dev}")
+
+
+def _season_one(seed: int, n_dev: int, days: float) -> int:
+    print(f"\n== Season: {n_dev} healthy devices, {days:g} days, seed {seed}, "
+          "ambient swinging about ±10 K ==")  # fmt: skip
     sea = season_scores(seed, n_dev, days)
     for f in sea.flags:
         print(f"flag: {f}")
@@ -357,6 +365,7 @@ def part_season(seed: int, n_dev: int, days: float) -> None:
         print(f"{dev}: UA change within [{lo:+.1f}, {hi:+.1f}] %, "
               f"5-95 % range [{p5:+.1f}, {p95:+.1f}] %")  # fmt: skip
     print(f"flags on healthy units: {len(sea.flags)}")
+    return len({f.split()[0] for f in sea.flags})
 
 
 def part_speed(n_dev: int, days: float) -> None:
@@ -400,6 +409,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--speed-devices", type=int, default=100)
     ap.add_argument("--speed-days", type=float, default=30.0)
     ap.add_argument("--season-days", type=float, default=90.0)
+    ap.add_argument("--season-seeds", default="1,2,3,4,5,6,7,8,9")
     args = ap.parse_args(argv)
     parts = set(args.part.split(","))
     if "accuracy" in parts:
@@ -407,7 +417,7 @@ def main(argv: list[str] | None = None) -> int:
     if "detect" in parts:
         part_detect(4, 10, 26.0)
     if "season" in parts:
-        part_season(6, 4, args.season_days)
+        part_season([int(x) for x in args.season_seeds.split(",")], 4, args.season_days)
     if "speed" in parts:
         part_speed(args.speed_devices, args.speed_days)
     return 0

@@ -171,6 +171,23 @@ def test_thermal_fit_recovers_cabinet_sinks_and_module_without_noise() -> None:
     assert f.ua_reliable
 
 
+def test_settled_internal_load_tightens_ua_where_the_ambient_hardly_moves() -> None:
+    # A day with the ambient swinging only ±0.5 K: UA and a constant internal load are nearly
+    # collinear in the cabinet balance, so UA's own error is wide (about 15 % here, values
+    # the code produced). Given the unit's settled load (here the generator's 1.0 W ± 0.1 W),
+    # the error narrows and UA stays on the generator's value (5 %: the noise-free fit's
+    # integration error is a few per cent, see above). The load the history is made of is the
+    # one the generic prior gave, so a settled value cannot feed on itself.
+    tr = Truth(ambient_swing_k=0.5)
+    a = _arrays(simulate(tr, 1.0, seed=3))
+    generic = _thermal(a, tr)
+    settled = _thermal(a, tr, q_settled=(tr.q_internal, 0.1))
+    assert settled.q_internal_own == pytest.approx(generic.q_internal, rel=1e-9)
+    assert settled.q_internal == pytest.approx(tr.q_internal, abs=0.1)
+    assert settled.stderr("ua") < 0.75 * generic.stderr("ua")
+    assert settled.ua == pytest.approx(tr.ua, rel=0.05)
+
+
 def test_thermal_fit_with_noise_stays_within_its_error(day: dict[str, Any]) -> None:
     # 0.05 K temperature noise: UA within 15 % and inside four of its standard errors; the
     # prior on K is 20 % off and must not drag the estimate (cycling makes K observable).

@@ -1142,9 +1142,20 @@ def fit_thermal(
     q_own = float(p2[1])
     if q_settled is not None:
         q0, q_sd = q_settled
-        p2, cov2, _, _ = _robust_weighted(
-            [(x_cab[~warm], y_cab[~warm])], 1, q0, q_sd, (0, 1), hold_when_weak=False
-        )
+    # The final cabinet fit, on the blocks chosen above (with the unit's settled internal load
+    # when there is one), also gives its first-order response to what moves Qc (part of a
+    # steady shift goes to the internal load): K's own uncertainty, added in quadrature to
+    # UA's; and, kept apart as ``ua_probe`` since they are the same in every window and cancel
+    # in UA's changes, the probe offsets (through K, and in Ta - Tcab itself: a shift of
+    # UA·τ), a K held at its prior or the unit's settled value, and the errors of S and R
+    # (directly and through K).
+    cab_shifts = np.array(
+        [-bsums(trap(dtv)), bsums(trap(s * i * tc)), -bsums(trap(0.5 * i * i * r)), bsums(h)]
+    )
+    p2, cov2, _, resp_cab = _robust_weighted(
+        [(x_cab[~warm], y_cab[~warm])], 1, q0, q_sd, (0, 1), hold_when_weak=False,
+        shifts=cab_shifts[:, ~warm],
+    )  # fmt: skip
     # Neighbouring blocks share what the model leaves out (a thermostat cycle drifting in and
     # out of step with the sampling, the tail of a load), so their residuals run together
     # and the blocks are worth fewer independent ones: the covariance grows by
@@ -1159,19 +1170,7 @@ def fit_thermal(
         raise EstimationError(f"non-physical cabinet fit: UA={ua:.3g} W/K")
     sd1 = np.sqrt(np.maximum(np.diag(cov1), 0.0))
     sd2 = np.sqrt(np.maximum(np.diag(cov2), 0.0))
-    # What moves Qc moves UA, by the cabinet fit's first-order response (part of a steady
-    # shift goes to the internal load): K's own uncertainty, added in quadrature; and, kept
-    # apart as ``ua_probe`` since they are the same in every window and cancel in UA's
-    # changes, the probe offsets (through K, and in Ta - Tcab itself), a K held at its prior
-    # or the unit's settled value, and the errors of S and R (directly and through K).
-    cab_shifts = np.array(
-        [-bsums(trap(dtv)), bsums(trap(s * i * tc)), -bsums(trap(0.5 * i * i * r)), ua * bsums(h)]
-    )
-    *_, resp_cab = _robust_weighted(
-        [(x_cab[~warm], y_cab[~warm])], 1, q0, q_sd, (0, 1), hold_when_weak=False,
-        shifts=cab_shifts[:, ~warm],
-    )  # fmt: skip
-    dua_dk, dua_offset = abs(float(resp_cab[0, 0])), abs(float(resp_cab[3, 0]))
+    dua_dk, dua_offset = abs(float(resp_cab[0, 0])), ua * abs(float(resp_cab[3, 0]))
     dua_el = resp_cab[1:3, 0] + dk_el * float(resp_cab[0, 0])
     cov_el = np.zeros((2, 2)) if sr_rel_cov is None else np.asarray(sr_rel_cov, dtype=np.float64)
     k_el = math.sqrt(max(float(dk_el @ cov_el @ dk_el), 0.0))

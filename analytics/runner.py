@@ -572,6 +572,14 @@ def _k_settled(state: dict[str, Any], cfg: AnalysisSettings) -> float | None:
     return float(np.median(hist)) if len(hist) >= cfg.k_hold_min_n else None
 
 
+def _remember(state: dict[str, Any], key: str, value: Any, cfg: AnalysisSettings) -> None:
+    # Append to one of the unit's histories (K, S, internal load), keeping the newest
+    # ``k_hold_keep`` values that its settled value is the median of.
+    hist = state.setdefault(key, [])
+    hist.append(value)
+    del hist[: -cfg.k_hold_keep]
+
+
 def _s_settled(state: dict[str, Any], cfg: AnalysisSettings) -> tuple[float, float] | None:
     # The median of the unit's own S (fitted allowing for a constant ΔT offset) from earlier
     # windows where the readings pinned it, and its standard error. S does not wear; one
@@ -672,9 +680,7 @@ def _fit_window(
     # pairs with ΔT as the probes read it in this window.
     settled_s = _s_settled(state, cfg)
     if el.reliable:
-        s_hist = state.setdefault("s_hist", [])
-        s_hist.append([s_own, se_own])
-        del s_hist[: -cfg.k_hold_keep]
+        _remember(state, "s_hist", [s_own, se_own], cfg)
     rs_cov = np.array(el.cov, dtype=np.float64)
     s_bal = el.s25
     if settled_s is not None:
@@ -709,13 +715,9 @@ def _fit_window(
     sd = th_fit.stderrs
     ns = th_fit.n_samples
     if th_fit.ua_reliable and math.isfinite(th_fit.q_internal_own):
-        q_hist = state.setdefault("q_hist", [])
-        q_hist.append(th_fit.q_internal_own)
-        del q_hist[: -cfg.k_hold_keep]
+        _remember(state, "q_hist", th_fit.q_internal_own, cfg)
     if th_fit.k_from_data:
-        k_hist = state.setdefault("k_hist", [])
-        k_hist.append(th_fit.k)
-        del k_hist[: -cfg.k_hold_keep]
+        _remember(state, "k_hist", th_fit.k, cfg)
     # A module that never rests (proportional drive) works along one family of operating
     # points: K leans on small changes of it, the air drifts with the load and the contents
     # lag behind. Against simulated fleets with known truth, K then came out up to 25 % high,

@@ -604,6 +604,9 @@ class ThermalFit:
     q_internal_own : The internal load fitted with ``q_internal_prior`` alone, before a
         settled value of the unit's own joins (see :func:`fit_thermal`): what a history of
         the unit's internal load should be made of [W].
+    k_cabinet : The K in the cabinet balance (``k_settled`` when given, else ``k``) [W/K].
+    ua_per_k : UA's first-order response to that K, ∂UA/∂K [-]: UA for another K is
+        ``ua + ua_per_k·(K' - k_cabinet)``.
     """
 
     ua: float
@@ -623,6 +626,8 @@ class ThermalFit:
     c_reliable: bool
     note: str | None
     q_internal_own: float = math.nan
+    k_cabinet: float = math.nan
+    ua_per_k: float = 0.0
 
     def stderr(self, name: str) -> float:
         """Standard error of one parameter (a name from ``THERMAL_PARAMS``)."""
@@ -1093,7 +1098,8 @@ def fit_thermal(
     # Cabinet: every usable pair counts (switching does not matter for whole-hour sums),
     # except in blocks where the on/off cycle is commensurate with the sampling.
     held_cab = forced or k_settled is not None
-    qc = pc - (k if k_settled is None else k_settled) * dtv
+    k_cab = k if k_settled is None else k_settled
+    qc = pc - k_cab * dtv
     blk = np.floor((t[:-1] - t[0]) / cabinet_block_s).astype(np.int64)
     strobed = _strobed_blocks(on, blk)
     recovering = _after_warm_spells(t, tcab, warm_spell_k, warm_spell_min_s, recovery_s)
@@ -1219,6 +1225,8 @@ def fit_thermal(
         c_reliable=bool(c_ok),
         note="; ".join(notes) or None,
         q_internal_own=q_own,
+        k_cabinet=k_cab,
+        ua_per_k=float(resp_cab[0, 0]),
     )
 
 

@@ -792,21 +792,32 @@ def _fit_window(
     # While the hot side's resistance is flagged (a failed fan, a clogged sink) the module runs
     # at a hot face and often without pause, a regime the cabinet balance was not judged in:
     # UA's changes are not followed then, so that one fault raises one flag (common practice,
-    # no source). They resume from the same baseline once the flag clears. A baseline made
-    # before the unit had a settled K of its own is dropped once it has one, and windows
-    # between (K from their own data, not yet settled) are not followed: the rated prior can
-    # be several per cent off and K·ΔT, the module's own leak, is a large term, so UA's
-    # changes are judged against one K throughout.
+    # no source). They resume from the same baseline once the flag clears.
+    #
+    # K·ΔT, the module's own leak, is a large term in both the cabinet's and the hot sink's
+    # balance (where the module never rests, often larger than the cabinet's leak), so their
+    # changes are judged at one K, the unit's trend K: taken from the first window whose K is
+    # not this window's own (the rated prior, or the unit's settled K) and kept, since the
+    # settled K follows the unit's newest windows and drifts a little with the seasons. UA is
+    # moved there to first order; the hourly hot-side resistance uses it. A trend K taken
+    # from the rated prior (the module never rested in its first warm days) can be several
+    # per cent off: once the unit has a settled K of its own, both trends start again from
+    # it. Windows whose K is their own and not yet settled are not followed.
     hot_flagged = int(state.get("above", {}).get("rhot", 0)) >= 1
     k_source = "own" if k_settled is not None else "data" if th_fit.k_from_data else "prior"
-    if state.get("ua_k_source") == "prior" and k_source == "own":
-        _restart_track(state, "ua")
-    if th_fit.ua_reliable and not hot_flagged and k_source != "data":
-        state["ua_k_source"] = k_source
-        _track(
-            rows, state, "ua", "cabinet.ua", b, th_fit.ua, cfg.ua_flag_pct, 0.03, cfg,
-            skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
-        )  # fmt: skip
+    if k_source != "data":
+        if state.get("k_trend_source") == "prior" and k_source == "own":
+            for name in ("ua", "rhot"):
+                _restart_track(state, name)
+            state.pop("k_trend", None)
+        state["k_trend_source"] = k_source
+        k_trend = state.setdefault("k_trend", th_fit.k_cabinet)
+        if th_fit.ua_reliable and not hot_flagged:
+            ua_trend = th_fit.ua + th_fit.ua_per_k * (k_trend - th_fit.k_cabinet)
+            _track(
+                rows, state, "ua", "cabinet.ua", b, ua_trend, cfg.ua_flag_pct, 0.03, cfg,
+                skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
+            )  # fmt: skip
 
     # --- performance now ---
     pick = fl.steady & fl.on & (t >= t[-1] - 3600.0)
@@ -844,7 +855,8 @@ def _hot_side(
     s = params["s25"] * (1.0 + cfg.beta * (tm - T_25C_K))
     r = params["r25"] * (1.0 + cfg.alpha * (tm - T_25C_K))
     ests = dg.hot_side_resistance_ratios(
-        data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r, params["k"],
+        data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r,
+        state.get("k_trend", params["k"]),
         _flags(data, w).usable, block, len(ends), c_hot=params["c_hot"],
         probe_offset_k=cfg.probe_offset_k,
     )  # fmt: skip
@@ -861,7 +873,7 @@ def _hourly(
     if est is None:
         return
     rows.est("hot_side.resistance_k_per_w", b, est)
-    if not est.reliable:
+    if not est.reliable or "k_trend" not in state:
         return
     _track(rows, state, "rhot", "hot_side.resistance", b, est.value, cfg.r_hot_flag_pct, 0.03, cfg)
 

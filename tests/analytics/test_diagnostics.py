@@ -428,6 +428,14 @@ def test_module_at_one_operating_point_keeps_k_at_its_prior() -> None:
     # Given the unit's own K from windows with two operating points, it is held there instead.
     own = _fit_simulated(a, p, sel, k_settled=1.05 * p["k"])
     assert own.k == pytest.approx(1.05 * p["k"], rel=1e-9) and not own.k_from_data
+    # UA's stated response to the cabinet's K against a refit at another K: the balance is
+    # linear in K, so only the robust weights and left-out blocks may differ (1 %).
+    assert own.k_cabinet == pytest.approx(1.05 * p["k"], rel=1e-12)
+    assert own.ua_per_k < 0.0  # more of the heat taken is the module's own leak
+    other = _fit_simulated(a, p, sel, k_settled=1.10 * p["k"])
+    moved = own.ua + own.ua_per_k * (other.k_cabinet - own.k_cabinet)
+    assert moved == pytest.approx(other.ua, rel=0.01)
+    assert abs(other.ua - own.ua) > 0.05 * own.ua  # a change worth getting right
 
 
 def test_contents_lag_of_a_module_that_never_rests_does_not_pull_ua_low() -> None:

@@ -133,6 +133,12 @@ class AnalysisSettings:
     #: Consecutive 6-hourly evaluations at or above ``ua_flag_pct`` before the UA flag is
     #: raised: one day's fit can swing that far with weather and use, a leak stays.
     ua_flag_persist: int = 2
+    #: UA's baseline goes on taking in the unit's values for this long after its start (the
+    #: commissioning weeks; common practice, no source), unless its change reaches
+    #: ``ua_flag_pct`` first: a few days' values share their weather and use, and one
+    #: day's fit scatters by 10-15 %, so three days' median can sit 20 % from the unit's
+    #: usual value. Till then changes are judged against the baseline so far.
+    ua_baseline_grow_days: float = 14.0
     r_hot_flag_pct: float = 50.0
     cusum_allowance: float = 0.5  # [σ], Page (1954), Montgomery (from memory)
     #: Upper ambient of climate classes SN and N, 32 °C (ISO 15502 / IEC 62552; from memory).
@@ -817,6 +823,7 @@ def _fit_window(
             _track(
                 rows, state, "ua", "cabinet.ua", b, ua_trend, cfg.ua_flag_pct, 0.03, cfg,
                 skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
+                grow_days=cfg.ua_baseline_grow_days,
             )  # fmt: skip
 
     # --- performance now ---
@@ -891,13 +898,16 @@ def _track(
     *,
     skip_days: float = 0.0,
     persist: int = 1,
+    grow_days: float = 0.0,
 ) -> None:
     """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
 
     The baseline is the median of the values from ``skip_days`` to ``skip_days +
     baseline_days`` after the first one, or of the first ``baseline_min_n`` from
     ``skip_days`` on when that period holds fewer; the flag is raised once the change has
-    reached ``flag_pct`` on ``persist`` consecutive evaluations.
+    reached ``flag_pct`` on ``persist`` consecutive evaluations. With ``grow_days``, every
+    later value joins the baseline until ``grow_days`` after its start, and none once the
+    change has reached ``flag_pct``: a fault's values must not make its own baseline.
     """
     series = state.setdefault("series", {}).setdefault(name, [])
     first = state.setdefault("first", {}).setdefault(name, b)
@@ -921,8 +931,19 @@ def _track(
             pool = np.array(later)
         bl = trends.baseline(pool, min_rel_spread)
         bases[name] = {"center": bl.center, "spread": bl.spread, "n": bl.n}
+        if grow_days > 0.0:
+            bases[name]["pool"] = pool.tolist()
         # baseline values are no longer needed in the series beyond the trend horizon
     bl_d = bases[name]
+    if "pool" in bl_d:
+        if b > baseline_start + int(grow_days * MS_DAY) or int(
+            state.get("above", {}).get(name, 0)
+        ) >= max(persist - 1, 1):
+            del bl_d["pool"]
+        elif b > baseline_end:
+            bl_d["pool"].append(value)
+            bl = trends.baseline(np.array(bl_d["pool"]), min_rel_spread)
+            bl_d.update(center=bl.center, spread=bl.spread, n=bl.n)
     center, spread = float(bl_d["center"]), float(bl_d["spread"])
     # The series is in time order: cut it by bisection rather than by scanning it every step.
     series = _daily_medians_before(

@@ -10,6 +10,7 @@ import itertools
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 import pytest
 import sqlalchemy as sa
@@ -234,6 +235,34 @@ def test_ua_flag_needs_a_settled_baseline_and_a_persistent_rise() -> None:
     raised = [j for j, f in flags if f == 1.0]
     assert raised and raised[0] == len(values) - 8 + 4
     assert all(f == 0.0 for j, f in flags if j < len(values) - 8)
+
+
+def test_ua_baseline_grows_over_the_commissioning_weeks_until_a_change_shows() -> None:
+    # Series made here, 6-hourly: a pull-down day, three days of a cold spell reading UA at
+    # 0.40 W/K, a drift back over a week to the unit's usual 0.56 W/K (+40 % on the first
+    # days' median), then at day 20 a lasting step to 1.5x (a leak). A baseline of the first
+    # days alone would flag the drift; one that goes on taking in values through the
+    # commissioning weeks follows it, and still flags the step within two days (issue target).
+    cfg = runner.AnalysisSettings()
+    six_h = 6 * 3_600_000
+    values = [0.50] * 4 + [0.40] * 12 + list(np.linspace(0.40, 0.56, 28)) + [0.56] * 36
+    values += [0.84] * 12
+    for grow in (0.0, cfg.ua_baseline_grow_days):
+        rows = runner._Rows(DEVICE)
+        state: dict[str, Any] = {}
+        for j, ua in enumerate(values):
+            runner._track(
+                rows, state, "ua", "cabinet.ua", (j + 1) * six_h, float(ua), cfg.ua_flag_pct,
+                0.03, cfg, skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
+                grow_days=grow,
+            )  # fmt: skip
+        recs = [dict(zip(runner._ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+        raised = [r["at_ms"] // six_h for r in recs if r["key"] == "cabinet.ua.flag" and r["value"]]
+        if grow == 0.0:
+            assert raised and raised[0] < 80  # the drift back is flagged
+        else:
+            assert raised and raised[0] >= 80 and raised[0] - 80 <= 8
+            assert state["baseline"]["ua"]["center"] > 0.48  # most of the way from 0.40
 
 
 def test_ua_changes_are_not_followed_while_the_hot_side_is_flagged(tmp_path: Path) -> None:

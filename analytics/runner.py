@@ -934,16 +934,17 @@ def _track(
         if grow_days > 0.0:
             bases[name]["pool"] = pool.tolist()
         # baseline values are no longer needed in the series beyond the trend horizon
+    elif "pool" in bases[name]:
+        pool_d = bases[name]
+        # Closed at the end of the growing time, and for good once the change has reached
+        # flag_pct: a fault's values must not make its own baseline.
+        if b > baseline_start + int(grow_days * MS_DAY) or state.get("above", {}).get(name):
+            del pool_d["pool"]
+        else:
+            pool_d["pool"].append(value)
+            bl = trends.baseline(np.array(pool_d["pool"]), min_rel_spread)
+            pool_d.update(center=bl.center, spread=bl.spread, n=bl.n)
     bl_d = bases[name]
-    if "pool" in bl_d:
-        if b > baseline_start + int(grow_days * MS_DAY) or int(
-            state.get("above", {}).get(name, 0)
-        ) >= max(persist - 1, 1):
-            del bl_d["pool"]
-        elif b > baseline_end:
-            bl_d["pool"].append(value)
-            bl = trends.baseline(np.array(bl_d["pool"]), min_rel_spread)
-            bl_d.update(center=bl.center, spread=bl.spread, n=bl.n)
     center, spread = float(bl_d["center"]), float(bl_d["spread"])
     # The series is in time order: cut it by bisection rather than by scanning it every step.
     series = _daily_medians_before(

@@ -139,7 +139,7 @@ def test_trends_of_a_unit_that_never_rests_over_a_season() -> None:
     # and computed the hourly hot-side resistance with each window's K: UA's change reached
     # +88 % in a warm spell (flag raised 31 times) and the hot side's ran from -26 % to
     # +13 %, on a healthy unit. At one K for the unit's trends (values this code produced):
-    # UA's change within -3 .. +6 %, the hot side's within -9 .. +6 %, no flag. The bounds
+    # UA's change within -3 .. +5 %, the hot side's within -9 .. +6 %, no flag. The bounds
     # below are the season target's sense of "no trend": well inside the flag thresholds.
     spec = sim.random_fleet(4, seed=4, start_s=START_S, days=60.0)
     unit = dataclasses.replace(

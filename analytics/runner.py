@@ -55,8 +55,10 @@ quality.switch_offs / quality.driver_floating  on/off cycles seen; open-circuit 
 
 ``<q>`` is ``module.resistance_25c`` (6-hourly), ``cabinet.ua`` (6-hourly) or
 ``hot_side.resistance`` (hourly). Change keys appear once the baseline period has passed.
-UA's baseline leaves out the first day (pull-down), and its flag needs the change to hold
-over two consecutive 6-hourly evaluations.
+UA's baseline leaves out the first day (pull-down), goes on taking in values through the
+first two weeks unless the change reaches the flag threshold first, and its flag needs the
+change to hold over two consecutive 6-hourly evaluations. UA's and the hot side's changes
+are judged at one K per unit (the trend K).
 
 Cautions: these estimates support maintenance; they do not replace temperature monitoring of
 medicines or samples. For storage of medicines follow the maker's instructions and local

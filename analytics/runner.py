@@ -608,11 +608,9 @@ def _q_settled(state: dict[str, Any], cfg: AnalysisSettings) -> tuple[float, flo
     hist = state.get("q_hist", [])
     if len(hist) < cfg.k_hold_min_n:
         return None
-    q = np.asarray(hist, dtype=np.float64)
-    med = float(np.median(q))
-    scatter = 1.4826 * float(np.median(np.abs(q - med)))
+    bl = trends.baseline(np.asarray(hist, dtype=np.float64))  # median and scaled MAD
     days = len(hist) * cfg.window_s / cfg.thermal_window_s
-    return med, max(scatter / math.sqrt(max(days, 1.0)), cfg.q_settled_min_sd)
+    return bl.center, max(bl.spread / math.sqrt(max(days, 1.0)), cfg.q_settled_min_sd)
 
 
 def _fit_window(

@@ -242,7 +242,8 @@ def test_ua_baseline_grows_over_the_commissioning_weeks_until_a_change_shows() -
     # 0.40 W/K, a drift back over a week to the unit's usual 0.56 W/K (+40 % on the first
     # days' median), then at day 20 a lasting step to 1.5x (a leak). A baseline of the first
     # days alone would flag the drift; one that goes on taking in values through the
-    # commissioning weeks follows it, and still flags the step within two days (issue target).
+    # commissioning weeks follows it, and still flags the step within two days (the target for
+    # a 1.5x step in UA, as in the diagnostics bench).
     cfg = runner.AnalysisSettings()
     six_h = 6 * 3_600_000
     values = [0.50] * 4 + [0.40] * 12 + list(np.linspace(0.40, 0.56, 28)) + [0.56] * 36

@@ -25,6 +25,7 @@ python3 -m venv .venv
 .venv/bin/python -m pip install -q -e '.[test]'
 
 .venv/bin/ruff check ingest analytics api tests
+.venv/bin/ruff format --check ingest analytics api tests
 # mypy checks the installed names (tecfleet.*): a tree of links maps them onto the folders.
 mkdir -p .mypy-src/tecfleet
 for stage in ingest analytics api; do ln -sfn "$PWD/$stage" ".mypy-src/tecfleet/$stage"; done

@@ -847,30 +847,44 @@ def _first_order_lag(t: FloatArray, x: FloatArray, tau: float) -> FloatArray:
 
 
 def _after_warm_spells(
-    t: FloatArray, tcab: FloatArray, rise_k: float, min_s: float, recovery_s: float
-) -> BoolArray:
+    t: FloatArray,
+    tcab: FloatArray,
+    rise_k: float,
+    min_s: float,
+    recovery_s: float,
+    on: BoolArray,
+    saturated_share: float,
+) -> tuple[BoolArray, bool]:
     # Samples from the start of a warm spell (cabinet air more than rise_k above its usual low
     # for min_s or longer: a power cut, cooling that failed) until recovery_s after it ends:
     # the contents warmed with the air and give that heat back for hours, a load the cabinet
-    # balance does not describe.
+    # balance does not describe. A spell through which the module was on for at least
+    # saturated_share of the samples is the cooling at its limit, not lost: it is not left
+    # out (a hot day would otherwise leave only a few hours of the window, and a UA fitted
+    # to those hours alone came out tens of per cent high against simulated fleets with
+    # known truth); the second result says whether the window held one.
     out = np.zeros(t.size, dtype=bool)
+    sat = False
     ok = np.isfinite(tcab)
     if ok.sum() < 10:
-        return out
+        return out, sat
     low, usual = np.percentile(tcab[ok], [10, 50])
     warm = ok & (tcab > float(low) + rise_k)
     if not warm.any():
-        return out
+        return out, sat
     # A spell begins where the air last stood at its usual level before it (the first part
     # of the rise already stores heat in the contents).
     settled = np.flatnonzero(ok & (tcab <= float(usual)))
     edges = np.diff(np.concatenate([[0], warm.astype(np.int8), [0]]))
     for a, b in zip(np.flatnonzero(edges == 1), np.flatnonzero(edges == -1), strict=True):
         if t[b - 1] - t[a] >= min_s:
+            if float(np.mean(on[a:b])) >= saturated_share:
+                sat = True
+                continue
             before = settled[settled < a]
             a0 = int(before[-1]) if before.size else 0
             out |= (t >= t[a0]) & (t <= t[b - 1] + recovery_s)
-    return out
+    return out, sat
 
 
 def fit_thermal(
@@ -897,6 +911,7 @@ def fit_thermal(
     warm_spell_k: float = 3.0,
     warm_spell_min_s: float = 1800.0,
     recovery_s: float = 12 * 3600.0,
+    saturated_share: float = 0.9,
     min_rest_share: float = 0.05,
     min_current_spread: float = 0.5,
     k_settled: float | None = None,
@@ -935,7 +950,9 @@ def fit_thermal(
     which the on/off cycle is locked to a few sampling intervals (the samples then see only
     some phases of each cycle, which biases the block means), and the hours of a warm spell
     (power cut, failed cooling) and ``recovery_s`` after it, while the contents give back the
-    heat they took. Lumped-capacitance balances: Incropera et al. (2007), ch. 5.
+    heat they took; a warm spell through which the module ran flat out (the cooling at its
+    limit on a hot afternoon) stays in, with the contents node. Lumped-capacitance balances:
+    Incropera et al. (2007), ch. 5.
 
     Parameters
     ----------
@@ -964,8 +981,12 @@ def fit_thermal(
         ``warm_spell_min_s`` or longer; the cabinet balance leaves it out and ``recovery_s``
         after it, while the contents give back the heat they took (about three time
         constants of a few hours; common practice, no source) [K], [s], [s].
+    saturated_share : A warm spell through which the module ran at least this share of the
+        time is the cooling at its limit (a hot afternoon, a heavy load), not cooling lost:
+        its hours stay in the balance and the contents node is tried for them, since the
+        contents warm and cool with the air just as where the module never rests [-].
     contents_tau_s : Time constants tried for the contents node of a module that never
-        rests [s].
+        rests, or of a window with a warm spell at the cooling's limit [s].
     min_rest_share, min_current_spread : K is held at its prior when fewer than
         ``min_rest_share`` of the usable samples have the module at rest and the segments'
         mean currents span less than ``min_current_spread`` of the median one: a single
@@ -1106,7 +1127,9 @@ def fit_thermal(
     qc = pc - k_cab * dtv
     blk = np.floor((t[:-1] - t[0]) / cabinet_block_s).astype(np.int64)
     strobed = _strobed_blocks(on, blk)
-    recovering = _after_warm_spells(t, tcab, warm_spell_k, warm_spell_min_s, recovery_s)
+    recovering, saturated = _after_warm_spells(
+        t, tcab, warm_spell_k, warm_spell_min_s, recovery_s, on, saturated_share
+    )
     bsums, n_blocks, _, _ = segments(cabinet_block_s, base & ~strobed[blk] & ~recovering[:-1])
     if n_blocks < 3:
         why = (
@@ -1127,11 +1150,12 @@ def fit_thermal(
     # its time constant from ``contents_tau_s``, kept when it lowers the Bayesian information
     # criterion (Schwarz, Ann. Statist. 6(2), 1978), the time constant counted as a
     # parameter, and when both heat capacities come out positive. With a thermostat the air
-    # stays within its band and the contents with it.
+    # stays within its band and the contents with it, except while the module runs flat out
+    # and the air still warms (a saturated warm spell): then the contents node is tried too.
     n_cab = y_cab.size
     best = _bic_term(n_cab, _robust_sd(y_cab - x_cab @ p2))
     x_best = x_cab
-    for tau in () if rests else contents_tau_s:
+    for tau in () if rests and not saturated else contents_tau_s:
         x_n = np.column_stack([x_cab, -bsums(np.diff(_first_order_lag(t, tcab, tau)))])
         p_n, cov_n, _, _ = _robust_weighted(
             [(x_n, y_cab)], 1, q0, q_sd, (0, 1), hold_when_weak=False

@@ -284,6 +284,10 @@ class ElectricalFit:
         The module's own S; ``s25`` is the S that pairs with ΔT as the probes read it, which
         the heat balances built on those same probes want (their errors then largely cancel
         in the heat taken from the cabinet). Equal to ``s25`` where R and S are not separable.
+    r_at_zero_s, r_lever : R25 at a given S25 is ``r_at_zero_s - r_lever·S25``: the fit with S
+        held there (see :meth:`r25_at`) [ohm], [K/A].
+    r_sd_fixed_s : Standard error of R25 from the readings' scatter alone with S held [ohm].
+    current_ok : The current is large enough that its reading's offset does not dominate R.
     """
 
     r25: float
@@ -297,6 +301,15 @@ class ElectricalFit:
     r_reliable: bool = True
     s25_offset_free: float = math.nan
     s25_offset_free_se: float = math.nan
+    r_at_zero_s: float = math.nan
+    r_lever: float = math.nan
+    r_sd_fixed_s: float = math.nan
+    current_ok: bool = True
+
+    def r25_at(self, s25: float) -> float:
+        """R25 fitted with S25 held at ``s25`` [V/K]: least squares in R alone, so an error
+        δS of ``s25`` moves it by -``r_lever``·δS [ohm]."""
+        return self.r_at_zero_s - self.r_lever * s25
 
 
 def _trimmed_lstsq(x: FloatArray, y: FloatArray, cut: float = 4.0) -> tuple[FloatArray, BoolArray]:
@@ -423,6 +436,9 @@ def fit_electrical(
     dof = max(y.size - 2, 1)
     sigma = max(float(np.sqrt(res @ res / dof)), 1e-6)
     xtx = x.T @ x
+    # R with S held anywhere: off rows carry no current and drop out of these sums.
+    x00 = float(xtx[0, 0])
+    r_at_zero_s, r_lever = float(x[:, 0] @ y) / x00, float(xtx[0, 1]) / x00
     data_ok = np.linalg.cond(xtx) < 1e12
     rel_se = np.array([np.inf, np.inf])
     if data_ok:
@@ -492,7 +508,8 @@ def fit_electrical(
         s_free_se = math.hypot(math.sqrt(max(float(cov3[1, 1]), 0.0)), s_current)
     i_rms = float(np.sqrt(np.mean(i[on] ** 2)))
     rel_i = current_offset / max(i_rms, 1e-12)
-    if rel_i > 2.0 * max_rel_stderr and r_ok:
+    current_ok = rel_i <= 2.0 * max_rel_stderr
+    if not current_ok and r_ok:
         r_ok = False
         low = f"current only {i_rms:.2f} A rms: its reading's offset dominates R"
         note = low if note is None else f"{note}; {low}"
@@ -508,6 +525,10 @@ def fit_electrical(
         r_reliable=bool(r_ok),
         s25_offset_free=s_free,
         s25_offset_free_se=s_free_se,
+        r_at_zero_s=r_at_zero_s,
+        r_lever=r_lever,
+        r_sd_fixed_s=sigma / math.sqrt(x00),
+        current_ok=current_ok,
     )
 
 

@@ -58,7 +58,8 @@ quality.switch_offs / quality.driver_floating  on/off cycles seen; open-circuit 
 UA's baseline leaves out the first day (pull-down), goes on taking in values through the
 first two weeks unless the change reaches the flag threshold first, and its flag needs the
 change to hold over two consecutive 6-hourly evaluations. UA's and the hot side's changes
-are judged at one K per unit (the trend K).
+are judged at one K per unit (the trend K), R25's at one S per unit (the trend S: R25 is
+followed also where the readings cannot separate R from S and it is served as unreliable).
 
 Cautions: these estimates support maintenance; they do not replace temperature monitoring of
 medicines or samples. For storage of medicines follow the maker's instructions and local
@@ -128,6 +129,17 @@ class AnalysisSettings:
     #: +10 % on R25 as end of useful life (common practice, no source).
     wear_limit_pct: float = 10.0
     r25_flag_pct: float = 4.0
+    #: Largest relative standard error of R25 at the unit's trend S, from the readings'
+    #: scatter alone, for a window to be followed [-].
+    r25_max_rel_se: float = 0.01
+    #: Relative standard deviation of the registered ratings (R, S) as priors, and of the
+    #: rated S taken as the trend S till the unit has its own [-] (the spread between units
+    #: of a type; common practice, no source).
+    rating_rel_sd: float = 0.15
+    #: Largest shift of R25 [%] that the trend S's uncertainty may cause through a change of
+    #: the operating point (ΔT per ampere) since the baseline, for a window to be followed:
+    #: a quarter of ``r25_flag_pct``.
+    r25_lever_shift_pct: float = 1.0
     ua_flag_pct: float = 35.0
     #: UA baseline starts this long after the first UA fit: the first day of a unit's
     #: history holds its pull-down, which the cabinet balance over a day does not describe.
@@ -613,6 +625,53 @@ def _q_settled(state: dict[str, Any], cfg: AnalysisSettings) -> tuple[float, flo
     return bl.center, max(bl.spread / math.sqrt(max(days, 1.0)), cfg.q_settled_min_sd)
 
 
+def _track_r25(
+    rows: _Rows,
+    state: dict[str, Any],
+    b: int,
+    el: dg.ElectricalFit,
+    prior: physics.ModuleParameters | None,
+    cfg: AnalysisSettings,
+) -> None:
+    # R25's changes are judged at one S, the unit's trend S, kept from the first window whose
+    # S is the unit's own (its settled S, or failing that this window's S where the readings
+    # separate it from R); till then the rated S, and the track starts again once the unit
+    # shows its own. S does not wear, while a window's own S scatters, and where the drive
+    # never rests the readings cannot separate R from S and R is fitted with S held. An
+    # error δS of the trend S moves R25 by -lever·δS, lever = ΣI·ΔT/ΣI² (with the
+    # temperature factors): the same in every window at the same operating point, so it
+    # cancels in R25's changes. A window is followed when its R25 at the trend S is pinned by
+    # its readings, and once there is a baseline, when its lever is near enough the
+    # baseline's that S's uncertainty cannot move R25 by more than ``r25_lever_shift_pct``
+    # (a hot spell changes ΔT per ampere).
+    settled = _s_settled(state, cfg)
+    if settled is not None:
+        source, s_ref, s_sd = "own", settled[0], settled[1]
+    elif el.reliable:
+        source, s_ref, s_sd = "own", el.s25, math.sqrt(max(float(el.cov[1, 1]), 0.0))
+    elif prior is not None:
+        source, s_ref, s_sd = "prior", prior.seebeck, cfg.rating_rel_sd * prior.seebeck
+    else:
+        return
+    if state.get("s_trend_source") == "prior" and source == "own":
+        _restart_track(state, "r25")
+        state.pop("s_trend", None)
+        state.pop("r25_levers", None)
+    state["s_trend_source"] = state.get("s_trend_source") if "s_trend" in state else source
+    s_trend = state.setdefault("s_trend", [s_ref, s_sd])
+    r = el.r25_at(float(s_trend[0]))
+    if not (el.current_ok and r > 0.0 and el.r_sd_fixed_s <= cfg.r25_max_rel_se * r):
+        return
+    levers = state.setdefault("r25_levers", [])
+    if "r25" in state.get("baseline", {}):
+        shift = abs(el.r_lever - float(np.median(levers))) * float(s_trend[1])
+        if shift > 0.01 * cfg.r25_lever_shift_pct * r:
+            return
+    else:
+        levers.append(el.r_lever)
+    _track(rows, state, "r25", "module.resistance_25c", b, r, cfg.r25_flag_pct, 0.003, cfg)
+
+
 def _fit_window(
     data: _Data,
     b: int,
@@ -647,7 +706,7 @@ def _fit_window(
     rows.add("quality.driver_floating", b, 1.0 if floating else 0.0, None, n)
 
     # --- electrical ---
-    e_prior = (prior.resistance, prior.seebeck, 0.15) if prior is not None else None
+    e_prior = (prior.resistance, prior.seebeck, cfg.rating_rel_sd) if prior is not None else None
     try:
         el = dg.fit_electrical(
             i, v, tc, th, usable, floating=floating, on_current=cfg.on_current,
@@ -678,8 +737,7 @@ def _fit_window(
                 "module.seebeck_step_v_per_k", b, float(np.median(s_steps)),
                 float(np.std(s_steps, ddof=1) / math.sqrt(s_steps.size)), int(s_steps.size),
             )  # fmt: skip
-    if el.r_reliable:
-        _track(rows, state, "r25", "module.resistance_25c", b, el.r25, cfg.r25_flag_pct, 0.003, cfg)
+    _track_r25(rows, state, b, el, prior, cfg)
 
     # --- thermal ---
     # The heat balances use the unit's settled S once there is one; till then the S that

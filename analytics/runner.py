@@ -57,9 +57,10 @@ quality.switch_offs / quality.driver_floating  on/off cycles seen; open-circuit 
 ``hot_side.resistance`` (hourly). Change keys appear once the baseline period has passed.
 UA's baseline leaves out the first day (pull-down), goes on taking in values through the
 first two weeks unless the change reaches the flag threshold first, and its flag needs the
-change to hold over two consecutive 6-hourly evaluations. UA's and the hot side's changes
-are judged at one K per unit (the trend K), R25's at one S per unit (the trend S: R25 is
-followed also where the readings cannot separate R from S and it is served as unreliable).
+change to hold over two consecutive 6-hourly evaluations, the newest window's own UA with
+it. UA's and the hot side's changes are judged at one K per unit (the trend K), R25's at one
+S per unit (the trend S: R25 is followed also where the readings cannot separate R from S
+and it is served as unreliable).
 
 Cautions: these estimates support maintenance; they do not replace temperature monitoring of
 medicines or samples. For storage of medicines follow the maker's instructions and local
@@ -145,7 +146,12 @@ class AnalysisSettings:
     #: history holds its pull-down, which the cabinet balance over a day does not describe.
     ua_baseline_skip_days: float = 1.0
     #: Consecutive 6-hourly evaluations at or above ``ua_flag_pct`` before the UA flag is
-    #: raised: one day's fit can swing that far with weather and use, a leak stays.
+    #: raised: one day's fit can swing that far with weather and use, a leak stays. Each
+    #: needs the newest window's own UA there too, not only the day's median: warm goods put
+    #: in give off their heat for many hours, so a busy day inflates every window that holds
+    #: it, and with the day's other windows unreliable the median can be made of those
+    #: alone (against simulated fleets with known truth, healthy units flagged over 90-day
+    #: seasons: 1 of 72, not 3, with the same 1.5x-step delays).
     ua_flag_persist: int = 2
     #: UA's baseline goes on taking in the unit's values for this long after its start (the
     #: commissioning weeks; common practice, no source), unless its change reaches
@@ -881,7 +887,7 @@ def _fit_window(
             _track(
                 rows, state, "ua", "cabinet.ua", b, ua_trend, cfg.ua_flag_pct, 0.03, cfg,
                 skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
-                grow_days=cfg.ua_baseline_grow_days,
+                grow_days=cfg.ua_baseline_grow_days, newest_too=True,
             )  # fmt: skip
 
     # --- performance now ---
@@ -957,6 +963,7 @@ def _track(
     skip_days: float = 0.0,
     persist: int = 1,
     grow_days: float = 0.0,
+    newest_too: bool = False,
 ) -> None:
     """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
 
@@ -965,7 +972,9 @@ def _track(
     ``skip_days`` on when that period holds fewer; the flag is raised once the change has
     reached ``flag_pct`` on ``persist`` consecutive evaluations. With ``grow_days``, every
     later value joins the baseline until ``grow_days`` after its start, and none once the
-    change has reached ``flag_pct``: a fault's values must not make its own baseline.
+    change has reached ``flag_pct``: a fault's values must not make its own baseline. With
+    ``newest_too``, an evaluation counts towards ``persist`` only when the newest value's own
+    change has reached ``flag_pct`` too.
     """
     series = state.setdefault("series", {}).setdefault(name, [])
     first = state.setdefault("first", {}).setdefault(name, b)
@@ -1022,7 +1031,10 @@ def _track(
     n_base = int(bl_d["n"])
     rows.add(f"{prefix}.change_pct", b, change, 100.0 * spread / center, n_base)
     above = state.setdefault("above", {})
-    above[name] = int(above.get(name, 0)) + 1 if change >= flag_pct else 0
+    # With newest_too the newest value must show the change as well: a lasting fault shows
+    # in every later value, while the day's median can be made of two or three disturbed ones.
+    newest_ok = not newest_too or trends.percent_change(value, center) >= flag_pct
+    above[name] = int(above.get(name, 0)) + 1 if change >= flag_pct and newest_ok else 0
     rows.add(f"{prefix}.flag", b, 1.0 if above[name] >= persist else 0.0, None, n_base)
     if b % (cfg.window_s * 1000) == 0:
         # Slow-moving figures: once per window is enough, also for the hourly series.

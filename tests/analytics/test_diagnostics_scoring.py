@@ -80,8 +80,13 @@ def test_faults_are_flagged_in_time_and_healthy_units_are_not() -> None:
     assert healthy and not false
 
 
-def test_no_flag_on_healthy_units_over_a_season() -> None:
-    season = season_scores(6, 4, 90.0)
+@pytest.mark.parametrize("seed", [6, 13, 17])
+def test_no_flag_on_healthy_units_over_a_season(seed: int) -> None:
+    # Seeds 13 and 17 each had a unit flagged for UA by a day of warm goods put in (before
+    # the newest window had to show the rise too). Over seeds 1-18 (the bench's
+    # ``--season-seeds``) one unit of 72 is still flagged: seed 2's, after two loads five
+    # hours apart whose heat ran on through the newest windows of two evaluations.
+    season = season_scores(seed, 4, 90.0)
     assert not season.flags
     # The temperature correction at work: R swings several per cent with the ambient, its
     # value at 25 °C stays within 1 %.

@@ -663,8 +663,9 @@ def _track_r25(
         _restart_track(state, "r25")
         state.pop("s_trend", None)
         state.pop("r25_levers", None)
-    state["s_trend_source"] = state.get("s_trend_source") if "s_trend" in state else source
-    s_trend = state.setdefault("s_trend", [s_ref, s_sd])
+    if "s_trend" not in state:
+        state["s_trend"], state["s_trend_source"] = [s_ref, s_sd], source
+    s_trend = state["s_trend"]
     r = el.r25_at(float(s_trend[0]))
     if not (el.current_ok and r > 0.0 and el.r_sd_fixed_s <= cfg.r25_max_rel_se * r):
         return

@@ -153,6 +153,9 @@ class AnalysisSettings:
     #: alone (against simulated fleets with known truth, healthy units flagged over 90-day
     #: seasons: 1 of 72, not 3, with the same 1.5x-step delays).
     ua_flag_persist: int = 2
+    #: UA fits kept while the unit's trend K is the rated one, to follow UA again at the
+    #: unit's own K once it settles (a hundred days of 6-hourly fits) [-].
+    ua_raw_keep: int = 400
     #: UA's baseline goes on taking in the unit's values for this long after its start (the
     #: commissioning weeks; common practice, no source), unless its change reaches
     #: ``ua_flag_pct`` first: a few days' values share their weather and use, and one
@@ -872,24 +875,27 @@ def _fit_window(
     # settled K follows the unit's newest windows and drifts a little with the seasons. UA is
     # moved there to first order; the hourly hot-side resistance uses it. A trend K taken
     # from the rated prior (the module never rested in its first warm days) can be several
-    # per cent off: once the unit has a settled K of its own, both trends start again from
-    # it. Windows whose K is their own and not yet settled are not followed.
+    # per cent off: once the unit has a settled K of its own, the trend K becomes that. UA's
+    # track is then made again from the windows followed so far, each moved to the new K
+    # (see _rebase_ua); the hot side's hourly track starts again (its flag threshold is far
+    # beyond what the change of K moves it by, and it settles in three days). Windows whose
+    # K is their own and not yet settled are not followed.
     hot_flagged = int(state.get("above", {}).get("rhot", 0)) >= 1
     k_source = "own" if k_settled is not None else "data" if th_fit.k_from_data else "prior"
     if k_source != "data":
         if state.get("k_trend_source") == "prior" and k_source == "own":
-            for name in ("ua", "rhot"):
-                _restart_track(state, name)
-            state.pop("k_trend", None)
+            _restart_track(state, "rhot")
+            state["k_trend"] = th_fit.k_cabinet
+            _rebase_ua(state, th_fit.k_cabinet, cfg)
         state["k_trend_source"] = k_source
         k_trend = state.setdefault("k_trend", th_fit.k_cabinet)
         if th_fit.ua_reliable and not hot_flagged:
+            if k_source == "prior":
+                raw = state.setdefault("ua_raw", [])
+                raw.append([b, th_fit.ua, th_fit.ua_per_k, th_fit.k_cabinet])
+                del raw[: -cfg.ua_raw_keep]
             ua_trend = th_fit.ua + th_fit.ua_per_k * (k_trend - th_fit.k_cabinet)
-            _track(
-                rows, state, "ua", "cabinet.ua", b, ua_trend, cfg.ua_flag_pct, 0.03, cfg,
-                skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
-                grow_days=cfg.ua_baseline_grow_days, newest_too=True,
-            )  # fmt: skip
+            _track_ua(rows, state, b, ua_trend, cfg)
 
     # --- performance now ---
     pick = fl.steady & fl.on & (t >= t[-1] - 3600.0)
@@ -909,6 +915,25 @@ def _fit_window(
             "cooling_w", "input_power_w", "cop", "cop_max", "current_for_best_cop_a", "carnot_cop"
         ):  # fmt: skip
             rows.est(f"performance.{name}", b, getattr(perf, name))
+
+
+def _track_ua(rows: _Rows, state: dict[str, Any], b: int, ua: float, cfg: AnalysisSettings) -> None:
+    _track(
+        rows, state, "ua", "cabinet.ua", b, ua, cfg.ua_flag_pct, 0.03, cfg,
+        skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
+        grow_days=cfg.ua_baseline_grow_days, newest_too=True,
+    )  # fmt: skip
+
+
+def _rebase_ua(state: dict[str, Any], k_trend: float, cfg: AnalysisSettings) -> None:
+    # The unit's own K has settled while UA was followed at the rated K: its track is made
+    # again from the windows followed so far, each moved to the new trend K by its own
+    # first-order response, so that the baseline keeps its commissioning days (a fresh start
+    # here would take a fault of these days into the new baseline).
+    _restart_track(state, "ua")
+    scratch = _Rows("")
+    for b, ua, ua_per_k, k_cabinet in state.pop("ua_raw", []):
+        _track_ua(scratch, state, int(b), ua + ua_per_k * (k_trend - k_cabinet), cfg)
 
 
 def _hot_side(

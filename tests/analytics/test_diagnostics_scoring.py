@@ -215,3 +215,31 @@ def test_wear_of_a_module_that_never_rests_is_followed_at_the_trend_s() -> None:
     assert all(abs(h["value"] - true_pct(h["at_ms"])) <= 1.0 for h in change)
     first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
     assert 3.0 <= true_pct(first) <= 5.0
+
+
+def test_leak_before_a_never_resting_units_own_k_settles_is_flagged() -> None:
+    # Seed 10's fleet: its seventh unit is driven proportionally and never rests, so its K
+    # comes from the data only now and then, and its own K settled at about day 9. UA was
+    # followed from day 4 at the rated K. A 1.5x UA step came at day 10.4. When the settled K
+    # started UA's track afresh, its new baseline (days 9.75-12.75) took in the leak and the
+    # leak was never flagged (value this code produced). Made again from the windows
+    # followed so far, each moved to the unit's own K by its first-order response, the track
+    # keeps its commissioning baseline, and the step is flagged within the 2-day target.
+    spec = sim.random_fleet(10, seed=10, start_s=START_S, days=26.0, faults="wear:2,leak:2,fan:2")
+    faults = tuple(
+        dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
+    )
+    spec = dataclasses.replace(spec, faults=faults)
+    fault = next(f for f in faults if f.device_id == "tec-0006")
+    assert fault.kind == "leak" and spec.devices[6].control == "proportional"
+    with tempfile.TemporaryDirectory() as tmp:
+        engine, _truth, _ = build_db(Path(tmp) / "leak.db", spec, 14.0)
+        runner.analyze(engine, device_id="tec-0006", settings=runner.AnalysisSettings(workers=1))
+        change = runner.estimate_history(engine, "tec-0006", "cabinet.ua.change_pct")
+        flags = runner.estimate_history(engine, "tec-0006", "cabinet.ua.flag")
+        engine.dispose()
+    assert change and change[0]["at_ms"] < fault.start_s * 1000
+    before = [h["value"] for h in change if h["at_ms"] < fault.start_s * 1000]
+    assert max(abs(v) for v in before) < 10.0
+    first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
+    assert 0.0 < first / 1000.0 - fault.start_s <= 48 * 3600.0

@@ -153,8 +153,8 @@ class AnalysisSettings:
     #: alone (against simulated fleets with known truth, healthy units flagged over 90-day
     #: seasons: 1 of 72, not 3, with the same 1.5x-step delays).
     ua_flag_persist: int = 2
-    #: UA fits kept while the unit's trend K is the rated one, to follow UA again at the
-    #: unit's own K once it settles (a hundred days of 6-hourly fits) [-].
+    #: UA (R25) fits kept while the unit's trend K (S) is the rated one, to follow them again
+    #: at the unit's own once it shows it (a hundred days of 6-hourly fits) [-].
     ua_raw_keep: int = 400
     #: UA's baseline goes on taking in the unit's values for this long after its start (the
     #: commissioning weeks; common practice, no source), unless its change reaches
@@ -642,17 +642,16 @@ def _track_r25(
     prior: physics.ModuleParameters | None,
     cfg: AnalysisSettings,
 ) -> None:
-    # R25's changes are judged at one S, the unit's trend S, kept from the first window whose
-    # S is the unit's own (its settled S, or failing that this window's S where the readings
-    # separate it from R); till then the rated S, and the track starts again once the unit
-    # shows its own. S does not wear, while a window's own S scatters, and where the drive
-    # never rests the readings cannot separate R from S and R is fitted with S held. An
-    # error δS of the trend S moves R25 by -lever·δS, lever = ΣI·ΔT/ΣI² (with the
-    # temperature factors): the same in every window at the same operating point, so it
-    # cancels in R25's changes. A window is followed when its R25 at the trend S is pinned by
-    # its readings, and once there is a baseline, when its lever is near enough the
-    # baseline's that S's uncertainty cannot move R25 by more than ``r25_lever_shift_pct``
-    # (a hot spell changes ΔT per ampere).
+    # R25's changes are judged at one S, the unit's trend S, kept from the first window whose S is
+    # the unit's own (its settled S, or failing that this window's S where the readings separate it
+    # from R); till then the rated S, and once the unit shows its own the track is made again at it
+    # from the windows followed so far. S does not wear, while a window's own S scatters, and where
+    # the drive never rests the readings cannot separate R from S and R is fitted with S held. An
+    # error δS of the trend S moves R25 by -lever·δS, lever = ΣI·ΔT/ΣI² (with the temperature
+    # factors): the same in every window at the same operating point, so it cancels in R25's
+    # changes. A window is followed when its R25 at the trend S is pinned by its readings, and once
+    # there is a baseline, when its lever is near enough the baseline's that S's uncertainty cannot
+    # move R25 by more than ``r25_lever_shift_pct`` (a hot spell changes ΔT per ampere).
     settled = _s_settled(state, cfg)
     if settled is not None:
         source, s_ref, s_sd = "own", settled[0], settled[1]
@@ -663,22 +662,45 @@ def _track_r25(
     else:
         return
     if state.get("s_trend_source") == "prior" and source == "own":
+        # Made again from the windows followed so far, at the unit's own S (a fresh start
+        # would take wear of these days into a new baseline).
         _restart_track(state, "r25")
-        state.pop("s_trend", None)
         state.pop("r25_levers", None)
+        state["s_trend"], state["s_trend_source"] = [s_ref, s_sd], source
+        scratch = _Rows("")
+        for at, r0, lever, sd, ok in state.pop("r25_raw", []):
+            _follow_r25(scratch, state, int(at), r0, lever, sd, bool(ok), cfg)
     if "s_trend" not in state:
         state["s_trend"], state["s_trend_source"] = [s_ref, s_sd], source
-    s_trend = state["s_trend"]
-    r = el.r25_at(float(s_trend[0]))
-    if not (el.current_ok and r > 0.0 and el.r_sd_fixed_s <= cfg.r25_max_rel_se * r):
+    if state["s_trend_source"] == "prior":
+        kept = state.setdefault("r25_raw", [])
+        kept.append([b, el.r_at_zero_s, el.r_lever, el.r_sd_fixed_s, el.current_ok])
+        del kept[: -cfg.ua_raw_keep]
+    _follow_r25(rows, state, b, el.r_at_zero_s, el.r_lever, el.r_sd_fixed_s, el.current_ok, cfg)
+
+
+def _follow_r25(
+    rows: _Rows,
+    state: dict[str, Any],
+    b: int,
+    r_at_zero_s: float,
+    r_lever: float,
+    r_sd_fixed_s: float,
+    current_ok: bool,
+    cfg: AnalysisSettings,
+) -> None:
+    # One window's R25 at the trend S into R25's track, when the window passes the checks
+    # described in _track_r25.
+    s_trend, s_sd = (float(x) for x in state["s_trend"])
+    r = r_at_zero_s - r_lever * s_trend
+    if not (current_ok and r > 0.0 and r_sd_fixed_s <= cfg.r25_max_rel_se * r):
         return
     levers = state.setdefault("r25_levers", [])
     if "r25" in state.get("baseline", {}):
-        shift = abs(el.r_lever - float(np.median(levers))) * float(s_trend[1])
-        if shift > 0.01 * cfg.r25_lever_shift_pct * r:
+        if abs(r_lever - float(np.median(levers))) * s_sd > 0.01 * cfg.r25_lever_shift_pct * r:
             return
     else:
-        levers.append(el.r_lever)
+        levers.append(r_lever)
     _track(rows, state, "r25", "module.resistance_25c", b, r, cfg.r25_flag_pct, 0.003, cfg)
 
 
@@ -877,14 +899,14 @@ def _fit_window(
     # from the rated prior (the module never rested in its first warm days) can be several
     # per cent off: once the unit has a settled K of its own, the trend K becomes that. UA's
     # track is then made again from the windows followed so far, each moved to the new K
-    # (see _rebase_ua); the hot side's hourly track starts again (its flag threshold is far
-    # beyond what the change of K moves it by, and it settles in three days). Windows whose
-    # K is their own and not yet settled are not followed.
+    # (see _rebase_ua); the hot side's hourly track goes on from its baseline, since its
+    # flag threshold is far beyond the per cent or two that the change of K moves it by
+    # (starting it again would take a fan failing in the next days into a new baseline).
+    # Windows whose K is their own and not yet settled are not followed.
     hot_flagged = int(state.get("above", {}).get("rhot", 0)) >= 1
     k_source = "own" if k_settled is not None else "data" if th_fit.k_from_data else "prior"
     if k_source != "data":
         if state.get("k_trend_source") == "prior" and k_source == "own":
-            _restart_track(state, "rhot")
             state["k_trend"] = th_fit.k_cabinet
             _rebase_ua(state, th_fit.k_cabinet, cfg)
         state["k_trend_source"] = k_source

@@ -243,3 +243,23 @@ def test_leak_before_a_never_resting_units_own_k_settles_is_flagged() -> None:
     assert max(abs(v) for v in before) < 10.0
     first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
     assert 0.0 < first / 1000.0 - fault.start_s <= 48 * 3600.0
+
+
+def test_fan_failing_after_a_never_resting_units_own_k_settles_is_flagged() -> None:
+    # The same unit with its hot-side fan failing (3x resistance) at day 10, a day after its
+    # own K settled. When the settled K started the hot side's hourly track afresh, the
+    # failure fell into its new baseline and was never flagged (value this code produced);
+    # the track goes on from its commissioning baseline instead, and the failure is flagged
+    # within the 2-hour target.
+    spec = sim.random_fleet(10, seed=10, start_s=START_S, days=26.0, faults="wear:2,leak:2,fan:2")
+    fan = sim.Fault("fan", "tec-0006", START_S + 10.0 * 86_400.0, 3.0)
+    spec = dataclasses.replace(
+        spec, faults=(*(f for f in spec.faults if f.device_id != fan.device_id), fan)
+    )
+    with tempfile.TemporaryDirectory() as tmp:
+        engine, _truth, _ = build_db(Path(tmp) / "fan.db", spec, 13.0)
+        runner.analyze(engine, device_id="tec-0006", settings=runner.AnalysisSettings(workers=1))
+        flags = runner.estimate_history(engine, "tec-0006", "hot_side.resistance.flag")
+        engine.dispose()
+    first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
+    assert 0.0 < first / 1000.0 - fan.start_s <= 2 * 3600.0

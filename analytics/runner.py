@@ -794,7 +794,10 @@ def _fit_window(
     # (S, R) relative errors, from the electrical fit's (R, S) covariance.
     rel = np.array([1.0 / s_bal, 1.0 / el.r25])
     sr_rel_cov = rs_cov[::-1, ::-1] * np.outer(rel, rel)
-    state["params"] = {"s25": el.s25, "r25": el.r25, "k": state.get("params", {}).get("k", k0)}
+    # The sink and cabinet figures of the last thermal fit stay till the next one succeeds:
+    # the hourly hot-side resistance needs them, above all in the hours after a fan fails,
+    # when the day's balances often cannot be fitted.
+    state["params"] = {"k": k0, **state.get("params", {}), "s25": el.s25, "r25": el.r25}
     state["params"]["cov_rs"] = el.cov.tolist()
     k_settled = _k_settled(state, cfg)
     try:

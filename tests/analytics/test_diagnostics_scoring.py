@@ -263,3 +263,22 @@ def test_fan_failing_after_a_never_resting_units_own_k_settles_is_flagged() -> N
         engine.dispose()
     first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
     assert 0.0 < first / 1000.0 - fan.start_s <= 2 * 3600.0
+
+
+def test_fan_failing_where_the_days_balances_cannot_be_fitted_is_flagged_in_time() -> None:
+    # Seed 12's ninth unit, a thermostat whose hot-side fan fails (3x resistance) at day 10.7:
+    # the hot face jumps to 73 °C, the module runs without pause and the air warms, and the
+    # next thermal fits fail. Each failed fit used to drop the sink figures the hourly
+    # hot-side resistance is computed with, so the hours between fits had none and the flag
+    # came 7.1 h after the failure (value this code produced); kept from the last good fit,
+    # the flag comes within the 2-hour target.
+    spec = sim.random_fleet(10, seed=12, start_s=START_S, days=26.0, faults="wear:2,leak:2,fan:2")
+    fan = next(f for f in spec.faults if f.device_id == "tec-0008")
+    assert fan.kind == "fan" and fan.magnitude == 3.0
+    with tempfile.TemporaryDirectory() as tmp:
+        engine, _truth, _ = build_db(Path(tmp) / "fan.db", spec, 12.0)
+        runner.analyze(engine, device_id="tec-0008", settings=runner.AnalysisSettings(workers=1))
+        flags = runner.estimate_history(engine, "tec-0008", "hot_side.resistance.flag")
+        engine.dispose()
+    first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
+    assert 0.0 < first / 1000.0 - fan.start_s <= 2 * 3600.0

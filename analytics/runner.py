@@ -147,11 +147,13 @@ class AnalysisSettings:
     ua_baseline_skip_days: float = 1.0
     #: Consecutive 6-hourly evaluations at or above ``ua_flag_pct`` before the UA flag is
     #: raised: one day's fit can swing that far with weather and use, a leak stays. Each
-    #: needs the newest window's own UA there too, not only the day's median: warm goods put
-    #: in give off their heat for many hours, so a busy day inflates every window that holds
-    #: it, and with the day's other windows unreliable the median can be made of those
-    #: alone (against simulated fleets with known truth, healthy units flagged over 90-day
-    #: seasons: 1 of 72, not 3, with the same 1.5x-step delays).
+    #: needs the newest window's own UA there too (to within one of its standard errors),
+    #: not only the day's median: warm goods put in give off their heat for many hours, so a
+    #: busy day inflates every window that holds it, and with the day's other windows
+    #: unreliable the median can be made of those alone (against simulated fleets with
+    #: known truth, healthy units flagged over 90-day seasons: 1 of 72, not 3). Without the
+    #: standard error a leak whose windows scatter about the threshold waited 62 h for two
+    #: in a row past it.
     ua_flag_persist: int = 2
     #: Largest standard error of a window's UA from its own scatter, relative to its value,
     #: for UA's change to be followed [-]. The fit calls UA reliable below 15 %; on a unit
@@ -170,6 +172,12 @@ class AnalysisSettings:
     #: usual value. Till then changes are judged against the baseline so far.
     ua_baseline_grow_days: float = 14.0
     r_hot_flag_pct: float = 50.0
+    #: Least mean heat rejected over an hour for its hot-side resistance [W]. A cold night
+    #: keeps a proportionally driven unit at a few watts, and a fan failing then raises the
+    #: sink's rise just as much: below this the probe offsets, not the heat, set the error,
+    #: and the estimate's own standard error says whether it is reliable (common practice,
+    #: no source).
+    r_hot_min_heat_w: float = 5.0
     cusum_allowance: float = 0.5  # [σ], Page (1954), Montgomery (from memory)
     #: Upper ambient of climate classes SN and N, 32 °C (ISO 15502 / IEC 62552; from memory).
     design_ambient_c: float = 32.0
@@ -924,10 +932,10 @@ def _fit_window(
         if sd["ua"] <= cfg.ua_follow_rel_se * th_fit.ua and not hot_flagged:
             if k_source == "prior":
                 raw = state.setdefault("ua_raw", [])
-                raw.append([b, th_fit.ua, th_fit.ua_per_k, th_fit.k_cabinet])
+                raw.append([b, th_fit.ua, th_fit.ua_per_k, th_fit.k_cabinet, sd["ua"]])
                 del raw[: -cfg.ua_raw_keep]
             ua_trend = th_fit.ua + th_fit.ua_per_k * (k_trend - th_fit.k_cabinet)
-            _track_ua(rows, state, b, ua_trend, cfg)
+            _track_ua(rows, state, b, ua_trend, sd["ua"], cfg)
 
     # --- performance now ---
     pick = fl.steady & fl.on & (t >= t[-1] - 3600.0)
@@ -949,11 +957,13 @@ def _fit_window(
             rows.est(f"performance.{name}", b, getattr(perf, name))
 
 
-def _track_ua(rows: _Rows, state: dict[str, Any], b: int, ua: float, cfg: AnalysisSettings) -> None:
+def _track_ua(
+    rows: _Rows, state: dict[str, Any], b: int, ua: float, ua_sd: float, cfg: AnalysisSettings
+) -> None:
     _track(
         rows, state, "ua", "cabinet.ua", b, ua, cfg.ua_flag_pct, 0.03, cfg,
         skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
-        grow_days=cfg.ua_baseline_grow_days, newest_too=True,
+        grow_days=cfg.ua_baseline_grow_days, newest_sd=ua_sd,
     )  # fmt: skip
 
 
@@ -964,8 +974,9 @@ def _rebase_ua(state: dict[str, Any], k_trend: float, cfg: AnalysisSettings) -> 
     # here would take a fault of these days into the new baseline).
     _restart_track(state, "ua")
     scratch = _Rows("")
-    for b, ua, ua_per_k, k_cabinet in state.pop("ua_raw", []):
-        _track_ua(scratch, state, int(b), ua + ua_per_k * (k_trend - k_cabinet), cfg)
+    for b, ua, ua_per_k, k_cabinet, *sd in state.pop("ua_raw", []):
+        moved = ua + ua_per_k * (k_trend - k_cabinet)
+        _track_ua(scratch, state, int(b), moved, float(sd[0]) if sd else 0.0, cfg)
 
 
 def _hot_side(
@@ -987,7 +998,7 @@ def _hot_side(
         data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r,
         state.get("k_trend", params["k"]),
         _flags(data, w).usable, block, len(ends), c_hot=params["c_hot"],
-        probe_offset_k=cfg.probe_offset_k,
+        min_heat_j=cfg.r_hot_min_heat_w * cfg.step_s, probe_offset_k=cfg.probe_offset_k,
     )  # fmt: skip
     n_samples = np.bincount(block, minlength=len(ends))
     return {
@@ -1021,7 +1032,7 @@ def _track(
     skip_days: float = 0.0,
     persist: int = 1,
     grow_days: float = 0.0,
-    newest_too: bool = False,
+    newest_sd: float | None = None,
 ) -> None:
     """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
 
@@ -1031,8 +1042,9 @@ def _track(
     reached ``flag_pct`` on ``persist`` consecutive evaluations. With ``grow_days``, every
     later value joins the baseline until ``grow_days`` after its start, and none once the
     change has reached ``flag_pct``: a fault's values must not make its own baseline. With
-    ``newest_too``, an evaluation counts towards ``persist`` only when the newest value's own
-    change has reached ``flag_pct`` too.
+    ``newest_sd`` (the newest value's standard error), an evaluation counts towards
+    ``persist`` only when the newest value is within one standard error of a change of
+    ``flag_pct`` or beyond.
     """
     series = state.setdefault("series", {}).setdefault(name, [])
     first = state.setdefault("first", {}).setdefault(name, b)
@@ -1089,9 +1101,10 @@ def _track(
     n_base = int(bl_d["n"])
     rows.add(f"{prefix}.change_pct", b, change, 100.0 * spread / center, n_base)
     above = state.setdefault("above", {})
-    # With newest_too the newest value must show the change as well: a lasting fault shows
-    # in every later value, while the day's median can be made of two or three disturbed ones.
-    newest_ok = not newest_too or trends.percent_change(value, center) >= flag_pct
+    # With newest_sd the newest value must show the change as well, to its own precision: a
+    # lasting fault shows in every later value, while the day's median can be made of two or
+    # three disturbed ones.
+    newest_ok = newest_sd is None or trends.percent_change(value + newest_sd, center) >= flag_pct
     above[name] = int(above.get(name, 0)) + 1 if change >= flag_pct and newest_ok else 0
     rows.add(f"{prefix}.flag", b, 1.0 if above[name] >= persist else 0.0, None, n_base)
     if b % (cfg.window_s * 1000) == 0:

@@ -14,10 +14,11 @@ evaluated at the mean face temperature (:func:`.physics.seebeck_at_temperature`,
 
 Integration scheme (per sub-step of ``interval_s / n_sub``, default 20 s at most):
 
-* The module faces have no heat capacity (sinks are small next to the cabinet): at a fixed
-  current and fixed S, R the two face balances are linear in (Tc, Th) and the cabinet air
-  temperature, so Tc, Th and Qc are solved in closed form as linear functions of the air
-  temperature at the *end* of the sub-step.
+* The module faces carry their sinks' heat capacity (``c_cold_sink``, ``c_hot_sink``; 0 by
+  default, massless faces), backward Euler: at a fixed current and fixed S, R the two face
+  balances are linear in (Tc, Th) and the cabinet air temperature, so Tc, Th and Qc are
+  solved in closed form as linear functions of the air temperature at the *end* of the
+  sub-step.
 * Air and contents use backward Euler with those linear functions substituted, so the
   whole step is implicit in the temperatures and unconditionally stable; air reacts in
   minutes (C_air / total conductance), contents in hours (C_contents / G).
@@ -189,6 +190,11 @@ class DeviceSpec:
     r_hot: float = 0.25
     r_cold: float = 0.45
     c_air: float = 800.0  # air plus liner and shelves [J/K]
+    # Heat capacities of the cold and the hot sink, each with its module face [J/K]; 0 keeps
+    # the faces massless (an aluminium sink of a few hundred grams holds 100-400 J/K:
+    # about 0.9 J/(g·K), common practice, no source).
+    c_cold_sink: float = 0.0
+    c_hot_sink: float = 0.0
     c_contents: float = 15_000.0
     g_contents: float = 2.0  # air-to-contents conductance [W/K]
     q_internal: float = 1.0  # inner fan and electronics inside [W]
@@ -513,6 +519,8 @@ class Simulator:
                 "r_hot",
                 "r_cold",
                 "c_air",
+                "c_cold_sink",
+                "c_hot_sink",
                 "c_contents",
                 "g_contents",
                 "q_internal",
@@ -693,6 +701,8 @@ class Simulator:
         prop = self.proportional
         h = self.interval / self.n_sub
         ca_h, cn_h = ca / h, cn / h
+        cc_h, chs_h = p["c_cold_sink"] / h, p["c_hot_sink"] / h
+        massive = (cc_h > 0.0) | (chs_h > 0.0)
         w1 = g / (cn_h + g)
         ta, tn, tc, th, on = self.t_air, self.t_cont, self.tc, self.th, self.on
         door_left, cut_left = self.door_left, self.cut_left
@@ -741,7 +751,7 @@ class Simulator:
             inv_rc, inv_rh = inv_rc_all[j], inv_rh_all[j]
             q_int = q_int_all[j]
             pw_j = pw[j]
-            e_stored0 = ca * ta + cn * tn
+            e_stored0 = ca * ta + cn * tn + cc_h * h * tc + chs_h * h * th
             ua_tamb = ua * t_amb
             rh_tamb = t_amb * inv_rh
             den0 = ca_h + ua + g - g * w1
@@ -752,7 +762,8 @@ class Simulator:
                 r = r25 * (1.0 + ALPHA_R * dtm)
                 # drive: thermostat with hysteresis, or proportional current
                 on = (ta > sp_hi) | (on & (ta > sp_lo))
-                i_volt = np.minimum(np.maximum((vsup - s * (th - tc)) / r, 0.0), ilim)
+                i_now = np.minimum(np.maximum((vsup - s * (th - tc)) / r, 0.0), ilim)
+                i_volt = i_now
                 # predictor: faces at that current with the air as it is, then the current the
                 # supply really drives across that temperature difference (damps the lag at
                 # switch-on, when ΔT jumps by tens of kelvin)
@@ -765,17 +776,20 @@ class Simulator:
                 )
                 th_p = (b2 - k_mod * tc_p) / a22
                 i_volt = np.minimum(np.maximum((vsup - s * (th_p - tc_p)) / r, 0.0), ilim)
+                # sinks that store heat keep ΔT through a switch: the faces as they are hold
+                i_volt = np.where(massive, i_now, i_volt)
                 i_prop = np.minimum(np.maximum(ibias + kp * (ta - sp_k), 0.0), i_volt)
                 cur = (prop_f * i_prop + volt_f * on * i_volt) * pw_j
-                # faces, linear in the air temperature at the end of the sub-step
+                # faces (backward Euler on the sinks' heat), linear in the air temperature
+                # at the end of the sub-step
                 si = s * cur
                 jh = 0.5 * cur * cur * r
-                a11 = si + k_mod + inv_rc
-                a22 = si - k_mod - inv_rh
-                b2 = -jh - rh_tamb
+                a11 = si + k_mod + inv_rc + cc_h
+                a22 = si - k_mod - inv_rh - chs_h
+                b2 = -jh - rh_tamb - chs_h * th
                 det = a11 * a22 + k_mod * k_mod
                 mcoef = a22 * inv_rc / det  # dTc/dTair
-                tc0 = (jh * a22 + k_mod * b2) / det
+                tc0 = ((jh + cc_h * tc) * a22 + k_mod * b2) / det
                 # backward Euler on air and contents
                 w0 = cn_h * tn / (cn_h + g)
                 ta = (ca_h * ta + ua_tamb + g * w0 + q_int + tc0 * inv_rc) / (
@@ -792,7 +806,9 @@ class Simulator:
             e_rej_all[j] = e_rej * h
             en["internal"][j] = q_int * (h * self.n_sub)
             # the load's heat is stored in the contents too: counted as input and storage
-            en["stored"][j] = ca * ta + cn * tn - e_stored0 + en["loads"][j]
+            en["stored"][j] = (
+                ca * ta + cn * tn + cc_h * h * tc + chs_h * h * th - e_stored0 + en["loads"][j]
+            )
             t_air_out[j] = ta
             t_cont_out[j] = tn
             tc_out[j] = tc

@@ -84,15 +84,21 @@ def test_standard_module_is_plausible() -> None:
 
 def test_first_law_closes_every_step() -> None:
     # Heat in (walls + door, internal, warm loads, electrical) = heat out (hot face) + heat
-    # stored (air + contents), per device and per output step. The implicit scheme evaluates
+    # stored (air, contents and, on every other unit, sinks that store heat), per device and
+    # per output step. The implicit scheme evaluates
     # every flux at the same end-of-sub-step state, so the balance is exact up to rounding:
     # stored heat is a difference of C·T terms of about 1e7 J, whose float64 rounding is
     # about 1e-9 J, hence 1e-6 J absolute against steps moving about 1e3-1e4 J.
     spec = sm.random_fleet(
         12, seed=3, start_s=START, days=3, faults="wear:1,leak:1,fan:1,inner_fan:1,sag:1"
     )
+    devices = tuple(
+        replace(d, c_cold_sink=150.0, c_hot_sink=400.0) if j % 2 else d
+        for j, d in enumerate(spec.devices)
+    )
     spec = replace(
         spec,
+        devices=devices,
         events=(
             sm.ScheduledEvent("power_cut", "tec-0001", START + DAY, 7200.0),
             sm.ScheduledEvent("load", "tec-0002", START + DAY, 0, 0.5),
@@ -113,8 +119,14 @@ def test_first_law_closes_every_step() -> None:
 def test_integration_error_is_first_order_and_small() -> None:
     # The same cooler with 20 s, 10 s and 2 s sub-steps: air temperatures agree within 0.2 K
     # at 20 s (thermostat switching shifts by at most a sub-step), and the error shrinks with
-    # the step.
-    dev = quiet(fridge())
+    # the step. With sinks that store heat (150 J/K cold, 400 J/K hot: time constants of
+    # about a minute, three 20-s steps) within 0.2 K at both steps; where the thermostat
+    # switches there shifts by a step too, so the error need not shrink every time.
+    _converges(quiet(fridge()), shrinks=True)
+    _converges(quiet(fridge(c_cold_sink=150.0, c_hot_sink=400.0)), shrinks=False)
+
+
+def _converges(dev: sm.DeviceSpec, *, shrinks: bool) -> None:
     traces = {}
     for h in (20.0, 10.0, 2.0):
         spec = sm.FleetSpec((dev,), START, seed=1, sensors=False, max_substep_s=h)
@@ -122,8 +134,8 @@ def test_integration_error_is_first_order_and_small() -> None:
         traces[h] = chunk.truth["t_contents"][:, 0]
     err20 = np.abs(traces[20.0] - traces[2.0]).max()
     err10 = np.abs(traces[10.0] - traces[2.0]).max()
-    assert err20 < 0.2
-    assert err10 < err20
+    assert err20 < 0.2 and err10 < 0.2
+    assert err10 < err20 or not shrinks
 
 
 @pytest.mark.parametrize(("current", "t_amb_c"), [(2.0, 22.0), (3.5, 30.0), (5.0, 15.0)])

@@ -172,11 +172,21 @@ class UnitScore:
         return abs(self.rel_err) <= 2.0 * self.rel_stderr
 
 
-def accuracy_scores(seeds: list[int], n_dev: int, days: float) -> list[UnitScore]:
-    """Simulate each seed's healthy fleet for ``days``, analyse it, score the newest values."""
+def accuracy_scores(
+    seeds: list[int], n_dev: int, days: float, sinks: tuple[float, float] = (0.0, 0.0)
+) -> list[UnitScore]:
+    """Simulate each seed's healthy fleet for ``days``, analyse it, score the newest values.
+    ``sinks``: heat capacities of every unit's cold and hot sink [J/K] (0: massless faces)."""
     out: list[UnitScore] = []
     for seed in seeds:
         spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
+        spec = dataclasses.replace(
+            spec,
+            devices=tuple(
+                dataclasses.replace(d, c_cold_sink=sinks[0], c_hot_sink=sinks[1])
+                for d in spec.devices
+            ),
+        )
         with tempfile.TemporaryDirectory() as tmp:
             engine, truth, _ = build_db(Path(tmp) / "acc.db", spec, days)
             runner.analyze(engine)
@@ -195,10 +205,13 @@ def accuracy_scores(seeds: list[int], n_dev: int, days: float) -> list[UnitScore
     return out
 
 
-def part_accuracy(seeds: list[int], n_dev: int, days: float) -> None:
+def part_accuracy(
+    seeds: list[int], n_dev: int, days: float, sinks: tuple[float, float] = (0.0, 0.0)
+) -> None:
     print(f"\n== Accuracy: healthy units, {days:g} days of one-minute data, seeds {seeds}, "
-          f"{n_dev} devices each (noise, bias, quantisation, doors, loads on) ==")  # fmt: skip
-    scores = accuracy_scores(seeds, n_dev, days)
+          f"{n_dev} devices each (noise, bias, quantisation, doors, loads on), "
+          f"sinks of {sinks[0]:g}/{sinks[1]:g} J/K (cold/hot) ==")  # fmt: skip
+    scores = accuracy_scores(seeds, n_dev, days, sinks)
     print(f"{'quantity':18} {'group':26} {'n':>3} {'median|err|':>11} {'p90|err|':>9} "
           f"{'within':>7} {'target':>7} {'reliable':>8} {'within|rel':>10} "
           f"{'in 2 se':>7}")  # fmt: skip
@@ -410,10 +423,16 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--speed-days", type=float, default=30.0)
     ap.add_argument("--season-days", type=float, default=90.0)
     ap.add_argument("--season-seeds", default="1,2,3,4,5,6,7,8,9")
+    ap.add_argument(
+        "--sinks", default="0,0",
+        help="heat capacities of the cold and hot sinks for the accuracy part [J/K]; "
+        "e.g. 150,400 for small aluminium sinks (0,0: massless faces)",
+    )  # fmt: skip
     args = ap.parse_args(argv)
     parts = set(args.part.split(","))
     if "accuracy" in parts:
-        part_accuracy([int(s) for s in args.seeds.split(",")], args.devices, 7.0)
+        cc, ch = (float(x) for x in args.sinks.split(","))
+        part_accuracy([int(s) for s in args.seeds.split(",")], args.devices, 7.0, (cc, ch))
     if "detect" in parts:
         part_detect(4, 10, 26.0)
     if "season" in parts:

@@ -23,7 +23,9 @@ module.seebeck_v_per_k                         S at the window's mean module tem
 module.seebeck_25c_v_per_k                     S referred to 25 °C [V/K]
 module.seebeck_step_v_per_k                    S from switch-off steps (Harman), floating drivers
 module.conductance_w_per_k                     K [W/K]; unreliable when it leans on its prior
-                                               or the module never rested (min_rest_share);
+                                               or the module never rested (min_rest_share),
+                                               or held there because the sinks store heat
+                                               faster than the samples follow a short cycle;
                                                stderr includes ±probe_offset_k probe offsets
 module.z_per_k / module.zt                     Z = S²/(R·K) [1/K], ZT at the mean temperature
 module.off_leak_w                              K·ΔT while off: heat the idle module lets in [W]
@@ -35,8 +37,12 @@ cabinet.heat_leak_w                            UA·(Ta - Tcab) over the window's
 cabinet.heat_capacity_j_per_k                  effective heat capacity [J/K]
 cabinet.internal_load_w                        heat released inside (fans, electronics) [W]
 cold_side.resistance_k_per_w                   (Tcab - Tc)/Qc [K/W]; not reliable when the
-                                               module never rested
-hot_side.resistance_k_per_w                    (Th - Ta)/Qh over the last hour [K/W] (hourly)
+                                               module never rested or the sinks store heat
+                                               faster than the samples follow
+hot_side.resistance_k_per_w                    (Th - Ta)/Qh over the last hour [K/W] (hourly);
+                                               where the sinks store heat faster than the
+                                               samples follow: not reliable, none for hours
+                                               whose cycle is locked to the sampling
 hot_side.resistance_fit_k_per_w                the same from the 6-hour sink fit [K/W]
 performance.cooling_w / input_power_w / cop    at the window's latest steady on operating point
 performance.cop_max / current_for_best_cop_a   best COP at those temperatures and its current

@@ -1051,14 +1051,15 @@ def _hourly(
     # steady bias (see diagnostics.hot_side_resistance_ratios): not reliable, but precise
     # hours are still followed, since a steady bias cancels in the change. One hour there
     # can still read +50 % when the cycle drifts into step with the sampling (simulated
-    # units: single hours at +50 %, never two in a row), so the flag waits for a second.
+    # units: single hours up to +51 %, never two in a row), so the flag waits for a second,
+    # unless the hour reads twice the threshold (a failed fan's 3x does).
     slow = not state.get("params", {}).get("faces_followed", True)
     followed = est.reliable or (slow and est.stderr is not None and est.stderr < 0.2 * est.value)
     if not followed or "k_trend" not in state:
         return
     _track(
         rows, state, "rhot", "hot_side.resistance", b, est.value, cfg.r_hot_flag_pct, 0.03, cfg,
-        persist=2 if slow else 1,
+        persist=2 if slow else 1, at_once_pct=2.0 * cfg.r_hot_flag_pct if slow else None,
     )  # fmt: skip
 
 
@@ -1077,6 +1078,7 @@ def _track(
     persist: int = 1,
     grow_days: float = 0.0,
     newest_sd: float | None = None,
+    at_once_pct: float | None = None,
 ) -> None:
     """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
 
@@ -1088,7 +1090,8 @@ def _track(
     change has reached ``flag_pct``: a fault's values must not make its own baseline. With
     ``newest_sd`` (the newest value's standard error), an evaluation counts towards
     ``persist`` only when the newest value is within one standard error of a change of
-    ``flag_pct`` or beyond.
+    ``flag_pct`` or beyond. With ``at_once_pct``, a change that reaches it raises the flag
+    on its first evaluation.
     """
     series = state.setdefault("series", {}).setdefault(name, [])
     first = state.setdefault("first", {}).setdefault(name, b)
@@ -1150,7 +1153,10 @@ def _track(
     # three disturbed ones.
     newest_ok = newest_sd is None or trends.percent_change(value + newest_sd, center) >= flag_pct
     above[name] = int(above.get(name, 0)) + 1 if change >= flag_pct and newest_ok else 0
-    rows.add(f"{prefix}.flag", b, 1.0 if above[name] >= persist else 0.0, None, n_base)
+    raised = above[name] >= persist or (
+        at_once_pct is not None and change >= at_once_pct and newest_ok
+    )
+    rows.add(f"{prefix}.flag", b, 1.0 if raised else 0.0, None, n_base)
     if b % (cfg.window_s * 1000) == 0:
         # Slow-moving figures: once per window is enough, also for the hourly series.
         rows.add(f"{prefix}.baseline", b, center, spread / math.sqrt(max(n_base, 1)), n_base)

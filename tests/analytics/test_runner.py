@@ -319,3 +319,35 @@ def test_ua_changes_are_not_followed_while_the_hot_side_is_flagged(tmp_path: Pat
     change = [h["at_ms"] for h in runner.estimate_history(e, DEVICE, "cabinet.ua.change_pct")]
     assert any(at < start for at in change)  # followed before the fault
     assert not any(at > raised[0] for at in change)
+
+
+def test_hot_side_flag_where_sinks_store_heat_waits_for_a_second_hour_unless_it_doubles() -> None:
+    # Series made here, hourly r_hot 0.20 K/W: with persist 2 and at_once_pct 100 (the
+    # setting where the sinks store heat faster than the samples follow), a single hour at
+    # +55 % (an hour drifting into step with the sampling) raises nothing, two in a row do,
+    # and a failed fan's 3x raises the flag on its first hour.
+    cfg = runner.AnalysisSettings()
+    hour = 3_600_000
+    base = [0.20] * 80
+    cases = {
+        "single": base + [0.31] + [0.20] * 5,
+        "two": base + [0.31, 0.31] + [0.20] * 4,
+        "fan": base + [0.60] * 3,
+    }
+    first: dict[str, int | None] = {}
+    for label, values in cases.items():
+        rows = runner._Rows(DEVICE)
+        state: dict[str, Any] = {}
+        for j, v in enumerate(values):
+            runner._track(
+                rows, state, "rhot", "hot_side.resistance", (j + 1) * hour, v,
+                cfg.r_hot_flag_pct, 0.03, cfg, persist=2, at_once_pct=2.0 * cfg.r_hot_flag_pct,
+            )  # fmt: skip
+        recs = [dict(zip(runner._ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+        raised = [
+            r["at_ms"] // hour - 1
+            for r in recs
+            if r["key"] == "hot_side.resistance.flag" and r["value"] == 1.0
+        ]
+        first[label] = raised[0] if raised else None
+    assert first == {"single": None, "two": 81, "fan": 80}

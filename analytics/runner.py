@@ -10,8 +10,9 @@ each run reads only the readings since then (plus one fit window of look-back).
 Cadence (defaults of :class:`AnalysisSettings`):
 
 * every hour (``step_s``): the short-window hot-side resistance and its change statistics;
-* every 6 hours (``window_s``): the module, cabinet, sink and performance fits over the last
-  6 hours, with R25 and UA change statistics;
+* every 6 hours (``window_s``): the module and performance fits over the last 6 hours, the
+  cabinet and sink fits over the last 24 hours (``thermal_window_s``), with R25 and UA change
+  statistics;
 * every day (``daily_s``): Theil-Sen slopes, days to the wear limit, and setpoint capacity.
 
 Estimate keys (``estimates.key``; value, stderr, n, reliable, note; at_ms = step end):
@@ -43,7 +44,7 @@ hot_side.resistance_k_per_w                    (Th - Ta)/Qh over the last hour [
                                                where the sinks store heat faster than the
                                                samples follow: not reliable, none for hours
                                                whose cycle is locked to the sampling
-hot_side.resistance_fit_k_per_w                the same from the 6-hour sink fit [K/W]
+hot_side.resistance_fit_k_per_w                the same from the 24-hour sink fit (6-hourly) [K/W]
 performance.cooling_w / input_power_w / cop    at the window's latest steady on operating point
 performance.cop_max / current_for_best_cop_a   best COP at those temperatures and its current
 performance.carnot_cop                         Tc/(Th - Tc)

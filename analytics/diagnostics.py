@@ -1183,11 +1183,15 @@ def fit_thermal(
         sums(trap(s * i * th)),
         sums(trap(0.5 * i * i * r)),
     )
-    p1, cov1, forced, resp = _robust_weighted(
-        [(np.column_stack([x, *c]), y) for (x, y), c in zip(blocks, offset_cols, strict=True)],
-        0, k0, k_prior_rel * k_prior, (0, 2, 3), hold=one_point or forced, others=offsets,
-        shifts=np.array([np.concatenate([s_it_c, s_it_h]), np.concatenate([-joule, joule])]),
-    )  # fmt: skip
+
+    def fit_sinks(k_at: float, hold: bool) -> tuple[FloatArray, FloatArray, bool, FloatArray]:
+        return _robust_weighted(
+            [(np.column_stack([x, *c]), y) for (x, y), c in zip(blocks, offset_cols, strict=True)],
+            0, k_at, k_prior_rel * k_prior, (0, 2, 3), hold=hold, others=offsets,
+            shifts=np.array([np.concatenate([s_it_c, s_it_h]), np.concatenate([-joule, joule])]),
+        )  # fmt: skip
+
+    p1, cov1, forced, resp = fit_sinks(k0, one_point or forced)
     h_typ = float(np.median(h)) if h.size else 0.0
     # Only a module that switches often (a thermostat's cycle of minutes) puts K's weight on
     # the transients after each switch; where it seldom does, the sinks' heat capacities
@@ -1207,12 +1211,7 @@ def fit_thermal(
     slow_faces = tau_slow is not None and n_switch * tau_slow > max_transient_share * span
     if slow_faces and not forced:
         # Held at the prior: a settled K would come from windows whose faces seemed followed.
-        k0 = k_prior
-        p1, cov1, forced, resp = _robust_weighted(
-            [(np.column_stack([x, *c]), y) for (x, y), c in zip(blocks, offset_cols, strict=True)],
-            0, k0, k_prior_rel * k_prior, (0, 2, 3), hold=True, others=offsets,
-            shifts=np.array([np.concatenate([s_it_c, s_it_h]), np.concatenate([-joule, joule])]),
-        )  # fmt: skip
+        p1, cov1, forced, resp = fit_sinks(k_prior, True)
     dk_el = resp[:, 0]  # K's response to +1 (100 %) relative error of S, of R
     k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in p1[:5])
     if k <= 0.0 or g_cold <= 0.0 or g_hot <= 0.0:

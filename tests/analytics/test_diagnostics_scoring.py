@@ -30,6 +30,7 @@ from tests.bench.bench_diagnostics import (
     UnitScore,
     accuracy_scores,
     build_db,
+    detection_fleet,
     detection_scores,
     season_scores,
 )
@@ -217,6 +218,17 @@ def test_wear_of_a_module_that_never_rests_is_followed_at_the_trend_s() -> None:
     assert 3.0 <= true_pct(first) <= 5.0
 
 
+def _flagged_at(spec: sim.FleetSpec, device_id: str, flag_key: str, days: float) -> int:
+    """``spec`` simulated for ``days`` and one unit analysed; when its flag was first raised
+    [ms]."""
+    with tempfile.TemporaryDirectory() as tmp:
+        engine, _truth, _ = build_db(Path(tmp) / "fleet.db", spec, days)
+        runner.analyze(engine, device_id=device_id, settings=runner.AnalysisSettings(workers=1))
+        flags = runner.estimate_history(engine, device_id, flag_key)
+        engine.dispose()
+    return next(int(h["at_ms"]) for h in flags if h["value"] == 1.0)
+
+
 def test_leak_before_a_never_resting_units_own_k_settles_is_flagged() -> None:
     # Seed 10's fleet: its seventh unit is driven proportionally and never rests, so its K
     # comes from the data only now and then, and its own K settled at about day 9. UA was
@@ -225,12 +237,8 @@ def test_leak_before_a_never_resting_units_own_k_settles_is_flagged() -> None:
     # leak was never flagged (value this code produced). Made again from the windows
     # followed so far, each moved to the unit's own K by its first-order response, the track
     # keeps its commissioning baseline, and the step is flagged within the 2-day target.
-    spec = sim.random_fleet(10, seed=10, start_s=START_S, days=26.0, faults="wear:2,leak:2,fan:2")
-    faults = tuple(
-        dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
-    )
-    spec = dataclasses.replace(spec, faults=faults)
-    fault = next(f for f in faults if f.device_id == "tec-0006")
+    spec = detection_fleet(10)
+    fault = next(f for f in spec.faults if f.device_id == "tec-0006")
     assert fault.kind == "leak" and spec.devices[6].control == "proportional"
     with tempfile.TemporaryDirectory() as tmp:
         engine, _truth, _ = build_db(Path(tmp) / "leak.db", spec, 14.0)
@@ -251,17 +259,12 @@ def test_fan_failing_after_a_never_resting_units_own_k_settles_is_flagged() -> N
     # failure fell into its new baseline and was never flagged (value this code produced);
     # the track goes on from its commissioning baseline instead, and the failure is flagged
     # within the 2-hour target.
-    spec = sim.random_fleet(10, seed=10, start_s=START_S, days=26.0, faults="wear:2,leak:2,fan:2")
+    spec = detection_fleet(10)
     fan = sim.Fault("fan", "tec-0006", START_S + 10.0 * 86_400.0, 3.0)
     spec = dataclasses.replace(
         spec, faults=(*(f for f in spec.faults if f.device_id != fan.device_id), fan)
     )
-    with tempfile.TemporaryDirectory() as tmp:
-        engine, _truth, _ = build_db(Path(tmp) / "fan.db", spec, 13.0)
-        runner.analyze(engine, device_id="tec-0006", settings=runner.AnalysisSettings(workers=1))
-        flags = runner.estimate_history(engine, "tec-0006", "hot_side.resistance.flag")
-        engine.dispose()
-    first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
+    first = _flagged_at(spec, "tec-0006", "hot_side.resistance.flag", 13.0)
     assert 0.0 < first / 1000.0 - fan.start_s <= 2 * 3600.0
 
 
@@ -272,15 +275,10 @@ def test_fan_failing_where_the_days_balances_cannot_be_fitted_is_flagged_in_time
     # hot-side resistance is computed with, so the hours between fits had none and the flag
     # came 7.1 h after the failure (value this code produced); kept from the last good fit,
     # the flag comes within the 2-hour target.
-    spec = sim.random_fleet(10, seed=12, start_s=START_S, days=26.0, faults="wear:2,leak:2,fan:2")
+    spec = detection_fleet(12)
     fan = next(f for f in spec.faults if f.device_id == "tec-0008")
     assert fan.kind == "fan" and fan.magnitude == 3.0
-    with tempfile.TemporaryDirectory() as tmp:
-        engine, _truth, _ = build_db(Path(tmp) / "fan.db", spec, 12.0)
-        runner.analyze(engine, device_id="tec-0008", settings=runner.AnalysisSettings(workers=1))
-        flags = runner.estimate_history(engine, "tec-0008", "hot_side.resistance.flag")
-        engine.dispose()
-    first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
+    first = _flagged_at(spec, "tec-0008", "hot_side.resistance.flag", 12.0)
     assert 0.0 < first / 1000.0 - fan.start_s <= 2 * 3600.0
 
 
@@ -291,15 +289,10 @@ def test_fan_failing_on_a_cold_night_at_a_few_watts_is_flagged_in_time() -> None
     # to give no hot-side resistance at all, so the flag waited for the day to warm, 13.3 h
     # after the failure (value this code produced). Taken from 5 W on, with the probe
     # offsets in the hour's error, the flag comes within the 2-hour target.
-    spec = sim.random_fleet(10, seed=15, start_s=START_S, days=26.0, faults="wear:2,leak:2,fan:2")
+    spec = detection_fleet(15)
     fan = next(f for f in spec.faults if f.device_id == "tec-0004")
     assert fan.kind == "fan" and fan.magnitude == 3.0
-    with tempfile.TemporaryDirectory() as tmp:
-        engine, _truth, _ = build_db(Path(tmp) / "fan.db", spec, 11.0)
-        runner.analyze(engine, device_id="tec-0004", settings=runner.AnalysisSettings(workers=1))
-        flags = runner.estimate_history(engine, "tec-0004", "hot_side.resistance.flag")
-        engine.dispose()
-    first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
+    first = _flagged_at(spec, "tec-0004", "hot_side.resistance.flag", 11.0)
     assert 0.0 < first / 1000.0 - fan.start_s <= 2 * 3600.0
 
 
@@ -309,19 +302,10 @@ def test_leak_whose_windows_scatter_about_the_threshold_is_flagged_in_time() -> 
     # their own standard error (7-9 %) about the +35 % threshold. Each evaluation needed the
     # newest window itself past +35 %, and the flag came only after 62.1 h (value this code
     # produced); judged to that window's own precision, within the 2-day target.
-    spec = sim.random_fleet(10, seed=16, start_s=START_S, days=26.0, faults="wear:2,leak:2,fan:2")
-    faults = tuple(
-        dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
-    )
-    spec = dataclasses.replace(spec, faults=faults)
-    leak = next(f for f in faults if f.device_id == "tec-0002")
+    spec = detection_fleet(16)
+    leak = next(f for f in spec.faults if f.device_id == "tec-0002")
     assert leak.kind == "leak"
-    with tempfile.TemporaryDirectory() as tmp:
-        engine, _truth, _ = build_db(Path(tmp) / "leak.db", spec, 14.0)
-        runner.analyze(engine, device_id="tec-0002", settings=runner.AnalysisSettings(workers=1))
-        flags = runner.estimate_history(engine, "tec-0002", "cabinet.ua.flag")
-        engine.dispose()
-    first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
+    first = _flagged_at(spec, "tec-0002", "cabinet.ua.flag", 14.0)
     assert 0.0 < first / 1000.0 - leak.start_s <= 48 * 3600.0
 
 
@@ -332,19 +316,10 @@ def test_leak_on_a_unit_whose_ua_windows_are_seldom_reliable_is_flagged() -> Non
     # high, the step showed as +29 % at first, the growing baseline took it in, and the leak
     # was never flagged (value this code produced). Followed up to 25 %, the baseline holds
     # the unit's usual windows and the step is flagged within the 2-day target.
-    spec = sim.random_fleet(10, seed=17, start_s=START_S, days=26.0, faults="wear:2,leak:2,fan:2")
-    faults = tuple(
-        dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
-    )
-    spec = dataclasses.replace(spec, faults=faults)
-    leak = next(f for f in faults if f.device_id == "tec-0003")
+    spec = detection_fleet(17)
+    leak = next(f for f in spec.faults if f.device_id == "tec-0003")
     assert leak.kind == "leak" and spec.devices[3].off_voltage == "zero"
-    with tempfile.TemporaryDirectory() as tmp:
-        engine, _truth, _ = build_db(Path(tmp) / "leak.db", spec, 11.0)
-        runner.analyze(engine, device_id="tec-0003", settings=runner.AnalysisSettings(workers=1))
-        flags = runner.estimate_history(engine, "tec-0003", "cabinet.ua.flag")
-        engine.dispose()
-    first = next(h["at_ms"] for h in flags if h["value"] == 1.0)
+    first = _flagged_at(spec, "tec-0003", "cabinet.ua.flag", 11.0)
     assert 0.0 < first / 1000.0 - leak.start_s <= 48 * 3600.0
 
 

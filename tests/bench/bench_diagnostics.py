@@ -262,18 +262,23 @@ class Detection:
         return self.delay_h <= DETECT_TARGET_H[self.kind]
 
 
-def detection_scores(
-    seed: int, n_dev: int, days: float
-) -> tuple[list[Detection], list[str], list[str]]:
-    """Fleet with two each of wear (to +10 %), a 1.5x UA step and a 3x r_hot step; returns the
-    detections, the healthy units and the flags raised on them."""
+def detection_fleet(seed: int, n_dev: int = 10, days: float = 26.0) -> sim.FleetSpec:
+    """Fleet with two each of wear (to +10 %), a 1.5x UA step and a 3x r_hot step."""
     spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days,
                             faults="wear:2,leak:2,fan:2")  # fmt: skip
     # Leak and fan as the targets state them: a 1.5x UA step and a 3x r_hot step.
     faults = tuple(
         dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
     )
-    spec = dataclasses.replace(spec, faults=faults)
+    return dataclasses.replace(spec, faults=faults)
+
+
+def detection_scores(
+    seed: int, n_dev: int, days: float
+) -> tuple[list[Detection], list[str], list[str]]:
+    """:func:`detection_fleet` analysed; returns the detections, the healthy units and the
+    flags raised on them."""
+    spec = detection_fleet(seed, n_dev, days)
     with tempfile.TemporaryDirectory() as tmp:
         engine, _truth, _ = build_db(Path(tmp) / "det.db", spec, days)
         runner.analyze(engine)

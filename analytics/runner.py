@@ -91,6 +91,7 @@ from datetime import UTC, datetime
 from typing import Any
 
 import numpy as np
+import orjson
 import sqlalchemy as sa
 from scipy import ndimage
 from sqlalchemy.engine import Connection, Engine
@@ -255,12 +256,30 @@ def analyze(
         dev_q = dev_q.where(store.devices.c.device_id == device_id)
     with engine.connect() as conn:
         devs = conn.execute(dev_q.order_by(store.devices.c.device_id)).all()
-        states = {
-            r.device_id: (int(r.done_ms), dict(r.state))
-            for r in conn.execute(sa.select(store.analysis_state))
+        st = store.analysis_state
+        done = {
+            r.device_id: int(r.done_ms)
+            for r in conn.execute(sa.select(st.c.device_id, st.c.done_ms))
         }
+        # Only the states of devices with a complete step to analyse are read: the service
+        # runs far more often than a step completes.
+        step = cfg.step_s * 1000
+        due = [
+            d.device_id
+            for d in devs
+            if d.device_id in done and int(d.last_reading_ms) // step * step > done[d.device_id]
+        ]
+        states: dict[str, dict[str, Any]] = {}
+        for k in range(0, len(due), _STATES_PER_QUERY):
+            q = sa.select(st.c.device_id, sa.cast(st.c.state, sa.Text).label("state")).where(
+                st.c.device_id.in_(due[k : k + _STATES_PER_QUERY])
+            )
+            states.update((r.device_id, _state_from(r.state)) for r in conn.execute(q))
     jobs = [
-        (_Device(d.device_id, d.module, d.cabinet, int(d.last_reading_ms)), states.get(d.device_id))
+        (
+            _Device(d.device_id, d.module, d.cabinet, int(d.last_reading_ms)),
+            (done[d.device_id], states.get(d.device_id, {})) if d.device_id in done else None,
+        )
         for d in devs
     ]
     pending = {dev.device_id: _pending_steps(engine, dev, saved, cfg) for dev, saved in jobs}
@@ -332,6 +351,9 @@ def _workers_for(engine: Engine, pending: list[int], cfg: AnalysisSettings) -> i
         return 1  # a private in-memory database cannot be opened by another process
     return min(workers, len(pending))
 
+
+#: Device states read per query (well under the bound parameters SQLite allows).
+_STATES_PER_QUERY = 500
 
 #: Engines of a worker process, by URL (one per process, opened on its first job).
 _WORKER_ENGINES: dict[str, Engine] = {}
@@ -474,8 +496,8 @@ def _priors(module: Any, cfg: AnalysisSettings) -> physics.ModuleParameters | No
     if not isinstance(module, dict):
         return None
     try:
-        module_json = json.dumps(module, sort_keys=True)
-    except (TypeError, ValueError):
+        module_json = orjson.dumps(module, option=orjson.OPT_SORT_KEYS).decode()
+    except TypeError:  # orjson.JSONEncodeError
         return None
     return _priors_from(module_json, cfg.default_t_hot_rated_c)
 
@@ -602,11 +624,37 @@ def _write(
             cursor.executemany(sql, rows)
         finally:
             cursor.close()
-    st = store.analysis_state
-    values = {"done_ms": done, "state": state, "updated_ms": store.now_ms()}
-    upd = conn.execute(st.update().where(st.c.device_id == device_id).values(**values))
-    if upd.rowcount == 0:
-        conn.execute(st.insert().values(device_id=device_id, **values))
+    # The driver's own cursor and orjson: through SQLAlchemy's JSON type, the state's
+    # statement and encoding cost more than an hour's analysis of the device.
+    mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
+    as_json = f"CAST({mark} AS JSON)" if conn.dialect.name == "postgresql" else mark
+    sql = (
+        "INSERT INTO analysis_state (device_id, done_ms, state, updated_ms) "
+        f"VALUES ({mark}, {mark}, {as_json}, {mark}) ON CONFLICT (device_id) DO UPDATE SET "
+        "done_ms = excluded.done_ms, state = excluded.state, updated_ms = excluded.updated_ms"
+    )
+    cursor = conn.connection.cursor()
+    try:
+        cursor.execute(sql, (device_id, done, _state_text(state), store.now_ms()))
+    finally:
+        cursor.close()
+
+
+def _state_text(state: dict[str, Any]) -> str:
+    # orjson writes NaN as null where the standard library writes NaN: a state holding either
+    # goes through the standard library, so that loading it gives back what was stored.
+    out = orjson.dumps(state, option=orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS)
+    return json.dumps(state) if b"null" in out else out.decode()
+
+
+def _state_from(text: str) -> dict[str, Any]:
+    try:
+        state = orjson.loads(text)
+    except orjson.JSONDecodeError:
+        state = json.loads(text)  # NaN, as the standard library writes it
+    if not isinstance(state, dict):
+        raise TypeError(f"analysis state is {type(state).__name__}, not an object")
+    return state
 
 
 def _flags(data: _Data, sl: slice) -> dg.SampleFlags:

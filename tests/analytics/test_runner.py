@@ -7,6 +7,7 @@ the reference is the generator's known parameters with the tolerance given at th
 from __future__ import annotations
 
 import itertools
+import math
 from pathlib import Path
 from typing import Any
 
@@ -69,7 +70,7 @@ def _all(e: Engine) -> list[tuple[object, ...]]:
 
 
 def test_incremental_live_equals_backfill_and_rerun_is_idempotent(
-    tmp_path: Path, frame: pd.DataFrame
+    tmp_path: Path, frame: pd.DataFrame, db_url: str
 ) -> None:
     scratch = _engine(tmp_path, "scratch")
     _store(scratch, frame)
@@ -83,12 +84,15 @@ def test_incremental_live_equals_backfill_and_rerun_is_idempotent(
 
     # Live: the same readings arriving in uneven pieces (cuts mid-hour and mid-window), with
     # an analysis after each piece, must give the very same estimates.
-    live = _engine(tmp_path, "live")
+    # On PostgreSQL too: the device state goes there as JSON text and must come back exact.
+    live = store.make_engine(db_url)
+    store.migrate(live)
     cuts = [0, 1000, 1001, 2222, 4100, 5000, len(frame)]
     for a, b in itertools.pairwise(cuts):
         _store(live, frame.iloc[a:b])
         runner.analyze(live, device_id=DEVICE)
     assert _all(live) == rows
+    live.dispose()
 
 
 def test_health_has_contract_keys_in_contract_shape(tmp_path: Path, frame: pd.DataFrame) -> None:
@@ -351,3 +355,22 @@ def test_hot_side_flag_where_sinks_store_heat_waits_for_a_second_hour_unless_it_
         ]
         first[label] = raised[0] if raised else None
     assert first == {"single": None, "two": 81, "fan": 80}
+
+
+def test_device_state_comes_back_exactly_as_stored() -> None:
+    # Floats round-trip through their shortest repr; NaN, which JSON has no word for, is kept
+    # as the standard library writes it (the fast encoder would turn it into null).
+    state = {
+        "series": [[1_700_000_000_000, 0.1], [1_700_000_003_600, 1.0 / 3.0]],
+        "params": {"k": np.float64(0.512345678901234), "tiny": 1e-300, "sd": math.nan},
+        "hist": [2.5, -0.0],
+    }
+    back = runner._state_from(runner._state_text(state))
+    assert back["series"] == [[1_700_000_000_000, 0.1], [1_700_000_003_600, 1.0 / 3.0]]
+    assert back["params"]["k"] == 0.512345678901234 and back["params"]["tiny"] == 1e-300
+    assert math.isnan(back["params"]["sd"])
+    assert back["hist"] == [2.5, -0.0]
+    clean = {k: v for k, v in state.items() if k != "params"}
+    assert runner._state_from(runner._state_text(clean)) == clean
+    with pytest.raises(TypeError, match="not an object"):
+        runner._state_from("[1, 2]")

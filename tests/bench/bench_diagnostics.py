@@ -1,6 +1,6 @@
 """Accuracy, detection and speed of the diagnostics against simulated fleets with known truth.
 
-Run: ``python tests/bench/bench_diagnostics.py [--part accuracy,detect,season,speed]``.
+Run: ``python tests/bench/bench_diagnostics.py [--part accuracy,detect,season,speed,live-pg]``.
 Prints tables; asserts nothing (targets are printed beside the figures; the test
 ``tests/analytics/test_diagnostics_scoring.py`` asserts them on the same functions). Simulated
 data only. Accuracy runs seeds 1-14 by default: 1-7 have informed several changes, 8-14 far
@@ -419,6 +419,70 @@ def part_speed(n_dev: int, days: float) -> None:
         engine.dispose()
 
 
+def _chunk_readings(spec: sim.FleetSpec, c: Any) -> list[store.Reading]:
+    """What one simulator chunk reports, as the ingester's readings."""
+    m = c.measured
+    door = c.truth["door_s"] > 0
+    j, i = np.nonzero(c.present)
+    ts = np.round(c.ts[j, i] * 1000.0).astype(np.int64).tolist()
+    names = ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage")
+    cols = [m[n][j, i].tolist() for n in names]
+    dev = np.array(spec.device_ids)[i].tolist()
+    return [
+        store.Reading(d, t, *vals, rh=rh, door_open=dr)
+        for d, t, *vals, rh, dr in zip(
+            dev, ts, *cols, m["rh"][j, i].tolist(), door[j, i].tolist(), strict=True
+        )
+    ]
+
+
+def part_live_postgres(n_dev: int, days: float) -> None:
+    """The live step on PostgreSQL: readings go in through the ingester's own write path."""
+    sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+    from tests.services import Postgres
+
+    print(f"\n== Live step on PostgreSQL: {n_dev} devices, {days:g} days of history ==")
+    spec = sim.random_fleet(n_dev, seed=5, start_s=START_S, days=days + 1.0)
+    simulator = sim.Simulator(spec)
+    pg = Postgres()
+    pg.start()
+    try:
+        engine = store.make_engine(pg.create_database("bench_live"))
+        store.migrate(engine)
+        with engine.begin() as conn:
+            conn.execute(
+                store.devices.insert(),
+                [
+                    {"device_id": d.device_id, "module": d.registration()["module"],
+                     "cabinet": d.registration()["cabinet"], "readings": 0,
+                     "first_seen_ms": store.now_ms()}
+                    for d in spec.devices
+                ],
+            )  # fmt: skip
+        t0 = time.perf_counter()
+        total = round(days * 86_400.0 / spec.interval_s)
+        for _ in range(0, total, 360):
+            store.store_batch(engine, _chunk_readings(spec, simulator.run(360)))
+        print(f"simulated and stored {days:g} days in {time.perf_counter() - t0:.1f} s (not timed)")
+        t0 = time.perf_counter()
+        runner.analyze(engine)
+        print(f"analyze from scratch: {time.perf_counter() - t0:.1f} s")
+        hour = round(3600.0 / spec.interval_s)
+        per_reading = []
+        for _ in range(6):
+            rows = _chunk_readings(spec, simulator.run(hour))
+            store.store_batch(engine, rows)
+            t0 = time.perf_counter()
+            runner.analyze(engine)
+            per_reading.append((time.perf_counter() - t0) / max(len(rows), 1))
+        lo, hi = 1e6 * min(per_reading), 1e6 * max(per_reading)
+        print(f"incremental: median over 6 hours {1e6 * float(np.median(per_reading)):.0f} µs "
+              f"per reading (range {lo:.0f}-{hi:.0f})")  # fmt: skip
+        engine.dispose()
+    finally:
+        pg.destroy()
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--part", default="accuracy,detect,speed")
@@ -444,6 +508,8 @@ def main(argv: list[str] | None = None) -> int:
         part_season([int(x) for x in args.season_seeds.split(",")], 4, args.season_days)
     if "speed" in parts:
         part_speed(args.speed_devices, args.speed_days)
+    if "live-pg" in parts:
+        part_live_postgres(args.speed_devices, 3.0)
     return 0
 
 

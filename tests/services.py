@@ -81,10 +81,11 @@ class Mosquitto:
         return f"mqtt://127.0.0.1:{self.port}"
 
     def start(self) -> None:
-        log = open(self.workdir / "mosquitto.log", "ab")  # noqa: SIM115 - closed with the process
-        self.process = subprocess.Popen(
-            [self.binary, "-c", str(self.config)], stdout=log, stderr=log
-        )
+        # The broker holds its own copy of the log's descriptor; ours is closed at once.
+        with open(self.workdir / "mosquitto.log", "ab") as log:
+            self.process = subprocess.Popen(
+                [self.binary, "-c", str(self.config)], stdout=log, stderr=log
+            )
         wait_port(self.port)
 
     def stop(self) -> None:

@@ -18,14 +18,15 @@ from tests.services import free_port
 def test_demo_prints_url_and_key_fills_the_fleet_and_stops_cleanly(tmp_path: Path) -> None:
     port = free_port()
     log = tmp_path / "demo.log"
-    process = subprocess.Popen(
-        [sys.executable, "-m", "tecfleet.api.cli", "demo", "--port", str(port),
-         "--data-dir", str(tmp_path / "data"), "--days", "1", "--analyze-every", "5"],
-        stdout=subprocess.PIPE,
-        stderr=log.open("wb"),
-        text=True,
-        env=dict(os.environ),
-    )  # fmt: skip
+    with log.open("wb") as err:
+        process = subprocess.Popen(
+            [sys.executable, "-m", "tecfleet.api.cli", "demo", "--port", str(port),
+             "--data-dir", str(tmp_path / "data"), "--days", "1", "--analyze-every", "5"],
+            stdout=subprocess.PIPE,
+            stderr=err,
+            text=True,
+            env=dict(os.environ),
+        )  # fmt: skip
     try:
         assert process.stdout is not None
         lines = [process.stdout.readline() for _ in range(2)]
@@ -61,5 +62,8 @@ def test_demo_prints_url_and_key_fills_the_fleet_and_stops_cleanly(tmp_path: Pat
         except subprocess.TimeoutExpired:
             process.kill()
             raise
+        finally:
+            if process.stdout is not None:
+                process.stdout.close()
     assert code == 0, log.read_text()[-3000:]
     assert "Traceback" not in log.read_text()

@@ -35,13 +35,14 @@ def test_serve_all_roles_on_postgres(
         TECFLEET_MQTT_CLIENT_ID="tecfleet-serve-test",
     )
     log = tmp_path / "serve.log"
-    process = subprocess.Popen(
-        [sys.executable, "-m", "tecfleet.api.cli", "serve"],
-        env=env,
-        stdout=subprocess.PIPE,
-        stderr=log.open("wb"),
-        text=True,
-    )
+    with log.open("wb") as err:
+        process = subprocess.Popen(
+            [sys.executable, "-m", "tecfleet.api.cli", "serve"],
+            env=env,
+            stdout=subprocess.PIPE,
+            stderr=err,
+            text=True,
+        )
     base = f"http://127.0.0.1:{port}"
     headers = {"Authorization": f"Bearer {key}"}
     try:
@@ -80,6 +81,8 @@ def test_serve_all_roles_on_postgres(
     finally:
         process.send_signal(signal.SIGTERM)
         code = process.wait(60)
+        if process.stdout is not None:
+            process.stdout.close()
     assert code == 0, log.read_text()[-3000:]
     assert "Traceback" not in log.read_text()
     # Everything is analysed already: a one-off run finds nothing new to do.

@@ -22,12 +22,13 @@ def _spawn_service(db_url: str, mqtt_url: str, port: int, log: Path) -> subproce
     env = dict(os.environ, TECFLEET_DATABASE_URL=db_url, TECFLEET_MQTT_URL=mqtt_url)
     env.update(TECFLEET_MQTT_CLIENT_ID="tecfleet-kill-test", TECFLEET_ROLES="ingest,api")
     env.update(TECFLEET_HTTP_PORT=str(port))
-    process = subprocess.Popen(
-        [sys.executable, "-m", "tecfleet.api.cli", "serve"],
-        env=env,
-        stdout=log.open("ab"),
-        stderr=subprocess.STDOUT,
-    )
+    with log.open("ab") as out:
+        process = subprocess.Popen(
+            [sys.executable, "-m", "tecfleet.api.cli", "serve"],
+            env=env,
+            stdout=out,
+            stderr=subprocess.STDOUT,
+        )
 
     def ready() -> bool:
         try:

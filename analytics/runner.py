@@ -170,6 +170,16 @@ class AnalysisSettings:
     #: of the detection bench; every fault of seeds 4-14 and 18-22 still flagged in time, no
     #: more season flags).
     ua_follow_rel_se: float = 0.25
+    #: Smallest lead of the ambient over the cabinet (Ta - Tcab, the window's mean), as a
+    #: share of its median over the commissioning weeks, for UA's change to be followed once
+    #: those weeks are over [-]. A heat flow the balance gets wrong by a constant (the
+    #: internal load held at the unit's settled value, a sink's transients) moves UA by that
+    #: flow over Ta - Tcab, and warm goods weigh more beside the little heat the walls let
+    #: in: on simulated fleets with known truth, UA's change drifted 10 % on a unit in a cold
+    #: spell at half its usual lead and 30-50 % on one whose sinks store heat at a third of
+    #: it, and with warm goods put in they raised leak flags on healthy units. A leak lets in
+    #: little heat then; one that begins in a cold spell is flagged once the ambient is back.
+    ua_follow_min_lead_share: float = 0.6
     #: UA (R25) fits kept while the unit's trend K (S) is the rated one, to follow them again
     #: at the unit's own once it shows it (a hundred days of 6-hourly fits) [-].
     ua_raw_keep: int = 400
@@ -979,6 +989,7 @@ def _fit_window(
     # larger) on all of them, as the hourly figure's does: there it stays out.
     rise_c = float(np.mean((data.tcab[wt] - data.tc[wt])[usable_th]))
     rise_h = float(np.mean((data.th[wt] - data.ta[wt])[usable_th]))
+    rise_amb = float(np.mean((data.ta[wt] - data.tcab[wt])[usable_th]))
     dt_th = float(np.mean((data.th[wt] - data.tc[wt])[usable_th]))
     k_held_sd = 0.0 if th_fit.k_from_data else sd["k"]
     for key, g, sd_g, rise in (
@@ -1028,7 +1039,8 @@ def _fit_window(
             _rebase_ua(state, th_fit.k_cabinet, cfg)
         state["k_trend_source"] = k_source
         k_trend = state.setdefault("k_trend", th_fit.k_cabinet)
-        if sd["ua"] <= cfg.ua_follow_rel_se * th_fit.ua and not hot_flagged:
+        followable = sd["ua"] <= cfg.ua_follow_rel_se * th_fit.ua and not hot_flagged
+        if followable and _ambient_lead_usual(state, b, rise_amb, cfg):
             if k_source == "prior":
                 raw = state.setdefault("ua_raw", [])
                 raw.append([b, th_fit.ua, th_fit.ua_per_k, th_fit.k_cabinet, sd["ua"]])
@@ -1054,6 +1066,19 @@ def _fit_window(
             "cooling_w", "input_power_w", "cop", "cop_max", "current_for_best_cop_a", "carnot_cop"
         ):  # fmt: skip
             rows.est(f"performance.{name}", b, getattr(perf, name))
+
+
+def _ambient_lead_usual(
+    state: dict[str, Any], b: int, rise_amb: float, cfg: AnalysisSettings
+) -> bool:
+    # Whether the ambient leads the cabinet by at least ``ua_follow_min_lead_share`` of its
+    # usual lead: the median over the commissioning weeks (``ua_baseline_grow_days`` from the
+    # first window that could be followed). Within those weeks every window counts.
+    ref = state.setdefault("ua_lead", {"from": b, "values": []})
+    if b <= ref["from"] + int(cfg.ua_baseline_grow_days * MS_DAY):
+        ref["values"].append(rise_amb)
+        return True
+    return rise_amb >= cfg.ua_follow_min_lead_share * float(statistics.median(ref["values"]))
 
 
 def _track_ua(

@@ -328,13 +328,23 @@ class Season:
     ua_change: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
 
 
-def season_scores(seed: int, n_dev: int, days: float) -> Season:
-    """Healthy units over ``days`` with the ambient swinging about ±10 K."""
+def season_scores(
+    seed: int, n_dev: int, days: float, sinks: tuple[float, float] = (0.0, 0.0)
+) -> Season:
+    """Healthy units over ``days`` with the ambient swinging about ±10 K. ``sinks``: heat
+    capacities of every unit's cold and hot sink [J/K] (0: massless faces)."""
     spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
     # A slow weather anomaly of 5 K s.d. with a 20-day memory plus a 4 K daily swing gives
     # excursions of about ±10 K over the season.
     devs = tuple(
-        dataclasses.replace(d, t_amb_weather_k=5.0, t_amb_tau_h=480.0, t_amb_daily_k=4.0)
+        dataclasses.replace(
+            d,
+            t_amb_weather_k=5.0,
+            t_amb_tau_h=480.0,
+            t_amb_daily_k=4.0,
+            c_cold_sink=sinks[0],
+            c_hot_sink=sinks[1],
+        )
         for d in spec.devices
     )
     spec = dataclasses.replace(spec, devices=devs)

@@ -65,7 +65,9 @@ quality.switch_offs / quality.driver_floating  on/off cycles seen; open-circuit 
 UA's baseline leaves out the first day (pull-down), goes on taking in values through the
 first two weeks unless the change reaches the flag threshold first, and its flag needs the
 change to hold over two consecutive 6-hourly evaluations, the newest window's own UA with
-it. UA's and the hot side's changes are judged at one K per unit (the trend K), R25's at one
+it. After those two weeks UA is followed only where the ambient leads the cabinet by at least
+0.6 of its usual lead then (in cold spells a leak is flagged once the ambient is back).
+UA's and the hot side's changes are judged at one K per unit (the trend K), R25's at one
 S per unit (the trend S: R25 is followed also where the readings cannot separate R from S
 and it is served as unreliable).
 

@@ -987,8 +987,8 @@ def _fit_window(
     # the cold path's balance, g·rise = Qc - K·ΔT, it moves g by -ΔT/rise per W/K (first
     # order), several times over since the rise is a few kelvin. Against simulated fleets with
     # known truth, without it the cold side's stated error covered its true one on 70 % of
-    # units whose sinks store heat (K held), and its hot side's (rise three to five times
-    # larger) on all of them, as the hourly figure's does: there it stays out.
+    # units whose sinks store heat (K held), and the hot side's (rise three to five times
+    # larger) on 97 %, as did the hourly figure's: there it stays out.
     rise_c = float(np.mean((data.tcab[wt] - data.tc[wt])[usable_th]))
     rise_h = float(np.mean((data.th[wt] - data.ta[wt])[usable_th]))
     rise_amb = float(np.mean((data.ta[wt] - data.tcab[wt])[usable_th]))

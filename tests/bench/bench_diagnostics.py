@@ -70,7 +70,6 @@ def build_db(
 def append_steps(path: Path, spec: sim.FleetSpec, simulator: sim.Simulator, steps: int) -> int:
     """Run the simulator on by ``steps`` sampling intervals and bulk-load what it reports;
     returns the readings stored."""
-    ids = spec.device_ids
     now = store.now_ms()
     raw = sqlite3.connect(path)
     done = stored = 0
@@ -79,17 +78,9 @@ def append_steps(path: Path, spec: sim.FleetSpec, simulator: sim.Simulator, step
         k = min(1440, steps - done)
         c = simulator.run(k)
         done += k
-        m = c.measured
-        door = c.truth["door_s"] > 0
-        j, i = np.nonzero(c.present)
-        ts = np.round(c.ts[j, i] * 1000.0).astype(np.int64)
-        cols = [m[n][j, i] for n in ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current",
-                                     "voltage", "rh")]  # fmt: skip
-        dev = np.array(ids)[i]
-        rows = zip(
-            dev.tolist(), ts.tolist(), *(col.tolist() for col in cols), door[j, i].tolist(),
-            [now] * len(ts), strict=True,
-        )  # fmt: skip
+        cols = _chunk_columns(spec, c)
+        dev, ts = cols[0], cols[1]
+        rows = zip(*cols, [now] * len(ts), strict=True)
         raw.executemany(
             "INSERT OR IGNORE INTO readings (device_id, ts_ms, t_cabinet, t_cold, t_hot, "
             "t_ambient, current, voltage, rh, door_open, received_ms) "
@@ -97,7 +88,7 @@ def append_steps(path: Path, spec: sim.FleetSpec, simulator: sim.Simulator, step
             rows,
         )
         stored += len(ts)
-        for d, t in zip(dev.tolist(), ts.tolist(), strict=True):
+        for d, t in zip(dev, ts, strict=True):
             last[d] = max(last.get(d, 0), t)
     raw.executemany(
         "UPDATE devices SET last_reading_ms = ?, readings = "
@@ -429,20 +420,25 @@ def part_speed(n_dev: int, days: float) -> None:
         engine.dispose()
 
 
+def _chunk_columns(spec: sim.FleetSpec, c: Any) -> list[list[Any]]:
+    """What one simulator chunk reports, as columns in the readings table's order: device_id,
+    ts_ms, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, rh, door_open."""
+    m = c.measured
+    j, i = np.nonzero(c.present)
+    names = ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh")
+    return [
+        np.array(spec.device_ids)[i].tolist(),
+        np.round(c.ts[j, i] * 1000.0).astype(np.int64).tolist(),
+        *(m[n][j, i].tolist() for n in names),
+        (c.truth["door_s"] > 0)[j, i].tolist(),
+    ]
+
+
 def _chunk_readings(spec: sim.FleetSpec, c: Any) -> list[store.Reading]:
     """What one simulator chunk reports, as the ingester's readings."""
-    m = c.measured
-    door = c.truth["door_s"] > 0
-    j, i = np.nonzero(c.present)
-    ts = np.round(c.ts[j, i] * 1000.0).astype(np.int64).tolist()
-    names = ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage")
-    cols = [m[n][j, i].tolist() for n in names]
-    dev = np.array(spec.device_ids)[i].tolist()
     return [
         store.Reading(d, t, *vals, rh=rh, door_open=dr)
-        for d, t, *vals, rh, dr in zip(
-            dev, ts, *cols, m["rh"][j, i].tolist(), door[j, i].tolist(), strict=True
-        )
+        for d, t, *vals, rh, dr in zip(*_chunk_columns(spec, c), strict=True)
     ]
 
 

@@ -273,15 +273,15 @@ def analyze(
             r.device_id: int(r.done_ms)
             for r in conn.execute(sa.select(st.c.device_id, st.c.done_ms))
         }
-        # Only the states of devices with a complete step to analyse are read: the service
-        # runs far more often than a step completes.
-        step = cfg.step_s * 1000
-        due = [
-            d.device_id
-            for d in devs
-            if d.device_id in done and int(d.last_reading_ms) // step * step > done[d.device_id]
-        ]
-        states: dict[str, dict[str, Any]] = {}
+    devices = [_Device(d.device_id, d.module, d.cabinet, int(d.last_reading_ms)) for d in devs]
+    pending = {
+        dev.device_id: _pending_steps(engine, dev, done.get(dev.device_id), cfg) for dev in devices
+    }
+    # Only the states of devices with a complete step to analyse are read: the service runs
+    # far more often than a step completes.
+    due = [dev.device_id for dev in devices if dev.device_id in done and pending[dev.device_id]]
+    states: dict[str, dict[str, Any]] = {}
+    with engine.connect() as conn:
         for k in range(0, len(due), _STATES_PER_QUERY):
             q = sa.select(st.c.device_id, sa.cast(st.c.state, sa.Text).label("state")).where(
                 st.c.device_id.in_(due[k : k + _STATES_PER_QUERY])
@@ -289,12 +289,11 @@ def analyze(
             states.update((r.device_id, _state_from(r.state)) for r in conn.execute(q))
     jobs = [
         (
-            _Device(d.device_id, d.module, d.cabinet, int(d.last_reading_ms)),
-            (done[d.device_id], states.get(d.device_id, {})) if d.device_id in done else None,
+            dev,
+            (done[dev.device_id], states.get(dev.device_id, {})) if dev.device_id in done else None,
         )
-        for d in devs
+        for dev in devices
     ]
-    pending = {dev.device_id: _pending_steps(engine, dev, saved, cfg) for dev, saved in jobs}
     workers = _workers_for(engine, list(pending.values()), cfg)
     if workers > 1:
         # Largest first, so the processes finish together.
@@ -338,12 +337,10 @@ def _first_reading_ms(conn: Connection, device_id: str) -> int | None:
     return None if first is None else int(first)
 
 
-def _pending_steps(
-    engine: Engine, dev: _Device, saved: tuple[int, dict[str, Any]] | None, cfg: AnalysisSettings
-) -> int:
+def _pending_steps(engine: Engine, dev: _Device, done_ms: int | None, cfg: AnalysisSettings) -> int:
     step = cfg.step_s * 1000
-    if saved is not None:
-        done = saved[0]
+    if done_ms is not None:
+        done = done_ms
     else:
         with engine.connect() as conn:
             first = _first_reading_ms(conn, dev.device_id)

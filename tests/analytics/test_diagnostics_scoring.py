@@ -230,15 +230,22 @@ def test_wear_of_a_module_that_never_rests_is_followed_at_the_trend_s() -> None:
     assert 3.0 <= true_pct(first) <= 5.0
 
 
-def _flagged_at(spec: sim.FleetSpec, device_id: str, flag_key: str, days: float) -> int:
-    """``spec`` simulated for ``days`` and one unit analysed; when its flag was first raised
-    [ms]."""
+def _flag_delay_s(spec: sim.FleetSpec, fault: sim.Fault, flag_key: str, days: float) -> float:
+    """``spec`` simulated for ``days`` and the fault's unit analysed; how long after the
+    fault's start its flag was first raised [s]."""
     with tempfile.TemporaryDirectory() as tmp:
         engine, _truth, _ = build_db(Path(tmp) / "fleet.db", spec, days)
-        runner.analyze(engine, device_id=device_id, settings=runner.AnalysisSettings(workers=1))
-        flags = runner.estimate_history(engine, device_id, flag_key)
+        runner.analyze(
+            engine, device_id=fault.device_id, settings=runner.AnalysisSettings(workers=1)
+        )
+        flags = runner.estimate_history(engine, fault.device_id, flag_key)
         engine.dispose()
-    return next(int(h["at_ms"]) for h in flags if h["value"] == 1.0)
+    first = next(int(h["at_ms"]) for h in flags if h["value"] == 1.0)
+    return first / 1000.0 - fault.start_s
+
+
+def _fault_of(spec: sim.FleetSpec, device_id: str) -> sim.Fault:
+    return next(f for f in spec.faults if f.device_id == device_id)
 
 
 def test_leak_before_a_never_resting_units_own_k_settles_is_flagged() -> None:
@@ -250,7 +257,7 @@ def test_leak_before_a_never_resting_units_own_k_settles_is_flagged() -> None:
     # followed so far, each moved to the unit's own K by its first-order response, the track
     # keeps its commissioning baseline, and the step is flagged within the 2-day target.
     spec = detection_fleet(10)
-    fault = next(f for f in spec.faults if f.device_id == "tec-0006")
+    fault = _fault_of(spec, "tec-0006")
     assert fault.kind == "leak" and spec.devices[6].control == "proportional"
     with tempfile.TemporaryDirectory() as tmp:
         engine, _truth, _ = build_db(Path(tmp) / "leak.db", spec, 14.0)
@@ -276,8 +283,7 @@ def test_fan_failing_after_a_never_resting_units_own_k_settles_is_flagged() -> N
     spec = dataclasses.replace(
         spec, faults=(*(f for f in spec.faults if f.device_id != fan.device_id), fan)
     )
-    first = _flagged_at(spec, "tec-0006", "hot_side.resistance.flag", 13.0)
-    assert 0.0 < first / 1000.0 - fan.start_s <= 2 * 3600.0
+    assert 0.0 < _flag_delay_s(spec, fan, "hot_side.resistance.flag", 13.0) <= 2 * 3600.0
 
 
 def test_fan_failing_where_the_days_balances_cannot_be_fitted_is_flagged_in_time() -> None:
@@ -288,10 +294,9 @@ def test_fan_failing_where_the_days_balances_cannot_be_fitted_is_flagged_in_time
     # came 7.1 h after the failure (value this code produced); kept from the last good fit,
     # the flag comes within the 2-hour target.
     spec = detection_fleet(12)
-    fan = next(f for f in spec.faults if f.device_id == "tec-0008")
+    fan = _fault_of(spec, "tec-0008")
     assert fan.kind == "fan" and fan.magnitude == 3.0
-    first = _flagged_at(spec, "tec-0008", "hot_side.resistance.flag", 12.0)
-    assert 0.0 < first / 1000.0 - fan.start_s <= 2 * 3600.0
+    assert 0.0 < _flag_delay_s(spec, fan, "hot_side.resistance.flag", 12.0) <= 2 * 3600.0
 
 
 def test_fan_failing_on_a_cold_night_at_a_few_watts_is_flagged_in_time() -> None:
@@ -302,10 +307,9 @@ def test_fan_failing_on_a_cold_night_at_a_few_watts_is_flagged_in_time() -> None
     # after the failure (value this code produced). Taken from 5 W on, with the probe
     # offsets in the hour's error, the flag comes within the 2-hour target.
     spec = detection_fleet(15)
-    fan = next(f for f in spec.faults if f.device_id == "tec-0004")
+    fan = _fault_of(spec, "tec-0004")
     assert fan.kind == "fan" and fan.magnitude == 3.0
-    first = _flagged_at(spec, "tec-0004", "hot_side.resistance.flag", 11.0)
-    assert 0.0 < first / 1000.0 - fan.start_s <= 2 * 3600.0
+    assert 0.0 < _flag_delay_s(spec, fan, "hot_side.resistance.flag", 11.0) <= 2 * 3600.0
 
 
 def test_leak_whose_windows_scatter_about_the_threshold_is_flagged_in_time() -> None:
@@ -315,10 +319,9 @@ def test_leak_whose_windows_scatter_about_the_threshold_is_flagged_in_time() -> 
     # newest window itself past +35 %, and the flag came only after 62.1 h (value this code
     # produced); judged to that window's own precision, within the 2-day target.
     spec = detection_fleet(16)
-    leak = next(f for f in spec.faults if f.device_id == "tec-0002")
+    leak = _fault_of(spec, "tec-0002")
     assert leak.kind == "leak"
-    first = _flagged_at(spec, "tec-0002", "cabinet.ua.flag", 14.0)
-    assert 0.0 < first / 1000.0 - leak.start_s <= 48 * 3600.0
+    assert 0.0 < _flag_delay_s(spec, leak, "cabinet.ua.flag", 14.0) <= 48 * 3600.0
 
 
 def test_leak_on_a_unit_whose_ua_windows_are_seldom_reliable_is_flagged() -> None:
@@ -329,10 +332,9 @@ def test_leak_on_a_unit_whose_ua_windows_are_seldom_reliable_is_flagged() -> Non
     # was never flagged (value this code produced). Followed up to 25 %, the baseline holds
     # the unit's usual windows and the step is flagged within the 2-day target.
     spec = detection_fleet(17)
-    leak = next(f for f in spec.faults if f.device_id == "tec-0003")
+    leak = _fault_of(spec, "tec-0003")
     assert leak.kind == "leak" and spec.devices[3].off_voltage == "zero"
-    first = _flagged_at(spec, "tec-0003", "cabinet.ua.flag", 11.0)
-    assert 0.0 < first / 1000.0 - leak.start_s <= 48 * 3600.0
+    assert 0.0 < _flag_delay_s(spec, leak, "cabinet.ua.flag", 11.0) <= 48 * 3600.0
 
 
 def test_sinks_that_store_heat_hold_k_and_nothing_wrong_is_called_reliable() -> None:

@@ -45,9 +45,10 @@ from sqlalchemy.engine import Connection, Engine
 from sqlalchemy.exc import SQLAlchemyError
 
 from tecfleet.analytics import physics
+from tecfleet.analytics.errors import AlertError
 from tecfleet.analytics.psychrometrics import dew_point
-from tecfleet.ingest import store
-from tecfleet.ingest.errors import AlertError, NotFoundError, StoreError
+from tecfleet.ingest import db
+from tecfleet.ingest.errors import NotFoundError, StoreError
 
 __all__ = [
     "KINDS",
@@ -1071,11 +1072,11 @@ class _Ledger:
         return max(ends) if ends else None
 
     def _notify(self, alert_id: int, event: str, at_ms: int) -> None:
-        row = self.conn.execute(sa.select(store.alerts).where(store.alerts.c.id == alert_id)).one()
+        row = self.conn.execute(sa.select(db.alerts).where(db.alerts.c.id == alert_id)).one()
         hold = self._held_until(at_ms)
         self.conn.execute(
-            store.notifications.insert().values(
-                created_ms=store.now_ms(),
+            db.notifications.insert().values(
+                created_ms=db.now_ms(),
                 event_ms=at_ms,
                 event=event,
                 alert_id=alert_id,
@@ -1093,7 +1094,7 @@ class _Ledger:
         self, alert_id: int, at: int, old: str | None, new: str, sev: str, note: str
     ) -> None:
         self.conn.execute(
-            store.alert_audit.insert().values(
+            db.alert_audit.insert().values(
                 alert_id=alert_id, at_ms=at, from_state=old, to_state=new, severity=sev,
                 actor="system", note=note,
             )
@@ -1109,7 +1110,7 @@ class _Ledger:
         summary: str,
         ev: dict[str, Any],
     ) -> None:
-        a = store.alerts
+        a = db.alerts
         severity = SEVERITIES[sev]
         ev = _jsonable(ev)
         if change == "opened":
@@ -1264,7 +1265,7 @@ def alert_row_dict(row: Any) -> dict[str, Any]:
 
 
 def load_overrides(conn: Connection) -> dict[tuple[str, str], dict[str, Any]]:
-    rows = conn.execute(sa.select(store.alert_policies)).fetchall()
+    rows = conn.execute(sa.select(db.alert_policies)).fetchall()
     return {(r.scope, r.name): dict(r.thresholds or {}) for r in rows}
 
 
@@ -1288,19 +1289,19 @@ def set_policy(engine: Engine, scope: str, name: str, thresholds: Mapping[str, A
     if scope not in ("device", "site"):
         raise AlertError("scope must be 'device' or 'site'")
     AlertPolicy().with_overrides(thresholds)
-    t = store.alert_policies
+    t = db.alert_policies
     with engine.begin() as conn:
         conn.execute(t.delete().where(t.c.scope == scope, t.c.name == name))
         conn.execute(
             t.insert().values(
-                scope=scope, name=name, thresholds=dict(thresholds), updated_ms=store.now_ms()
+                scope=scope, name=name, thresholds=dict(thresholds), updated_ms=db.now_ms()
             )
         )
 
 
 def active_maintenance(conn: Connection, device_id: str, site: str | None) -> list[tuple[int, int]]:
     """Maintenance windows (start, end) [ms] that cover this device or its site."""
-    m = store.maintenance_windows
+    m = db.maintenance_windows
     cond = m.c.device_id == device_id
     if site is not None:
         cond = sa.or_(cond, sa.and_(m.c.device_id.is_(None), m.c.site == site))
@@ -1310,7 +1311,7 @@ def active_maintenance(conn: Connection, device_id: str, site: str | None) -> li
 
 def _release_held(conn: Connection, device_id: str, reference_ms: int) -> None:
     """Maintenance over: held notices of alerts still open go out once, the rest are dropped."""
-    n = store.notifications
+    n = db.notifications
     held = conn.execute(
         sa.select(n.c.id, n.c.alert_id, n.c.hold_until_ms, n.c.site, n.c.kind)
         .where(n.c.device_id == device_id, n.c.state == "held", n.c.hold_until_ms <= reference_ms)
@@ -1327,12 +1328,12 @@ def _release_held(conn: Connection, device_id: str, reference_ms: int) -> None:
             .where(n.c.id.in_([r.id for r in rs]))
             .values(state="suppressed", mqtt_state="suppressed")
         )
-        row = conn.execute(sa.select(store.alerts).where(store.alerts.c.id == alert_id)).one()
+        row = conn.execute(sa.select(db.alerts).where(db.alerts.c.id == alert_id)).one()
         if row.state in OPEN_STATES:
             at = max(int(r.hold_until_ms) for r in rs)
             conn.execute(
                 n.insert().values(
-                    created_ms=store.now_ms(), event_ms=at, event="alert.opened",
+                    created_ms=db.now_ms(), event_ms=at, event="alert.opened",
                     alert_id=alert_id, device_id=device_id, site=rs[0].site, kind=rs[0].kind,
                     payload=_jsonable(
                         {
@@ -1357,24 +1358,9 @@ def _load_readings(
 ) -> pd.DataFrame:
     """Readings of one device newer than ``after_ms`` [ms] (and older than ``before_ms``),
     oldest first, as float columns (``ts_ms`` int64; a missing humidity is NaN)."""
-    # Plain SQL on the driver's own cursor: building result rows costs more than the rules.
-    mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
     end = 2**62 if before_ms is None else int(before_ms)
-    sql = (
-        f"SELECT {', '.join(_READ_COLUMNS)} FROM readings "
-        f"WHERE device_id = {mark} AND ts_ms > {mark} AND ts_ms < {mark} ORDER BY ts_ms"
-    )
-    cursor = conn.connection.cursor()
-    try:
-        cursor.execute(sql, (device_id, int(after_ms), end))
-        rows = cursor.fetchall()
-    finally:
-        cursor.close()
-    arr = (
-        np.array(rows, dtype=np.float64) if rows else np.zeros((0, len(_READ_COLUMNS)), np.float64)
-    )
+    arr = db.read_arrays(conn, device_id, _READ_COLUMNS, int(after_ms) + 1, end)
     data: dict[str, Any] = {c: arr[:, k] for k, c in enumerate(_READ_COLUMNS)}
-    # ms since 1970 stay below 2**53, so the float round trip is exact
     data["ts_ms"] = arr[:, 0].astype(np.int64)
     return pd.DataFrame(data)
 
@@ -1382,7 +1368,7 @@ def _load_readings(
 def _estimates(
     conn: Connection, device_id: str, keys: Sequence[str], after_ms: int
 ) -> dict[str, list[tuple[int, float]]]:
-    e = store.estimates
+    e = db.estimates
     rows = conn.execute(
         sa.select(e.c.key, e.c.at_ms, e.c.value)
         .where(
@@ -1466,7 +1452,7 @@ def _probe_baseline(
         return kept if isinstance(kept, dict) and "r_cold" in kept else None
     if not dev.module:
         return None
-    r = store.readings
+    r = db.readings
     first_ms = conn.execute(
         sa.select(sa.func.min(r.c.ts_ms)).where(r.c.device_id == dev.device_id)
     ).scalar()
@@ -1549,8 +1535,8 @@ def _evaluate_device(
     conn: Connection, dev: Any, policy: AlertPolicy, reference_ms: int
 ) -> list[AlertChange]:
     prog = conn.execute(
-        sa.select(store.alert_progress.c.done_ms, store.alert_progress.c.state).where(
-            store.alert_progress.c.device_id == dev.device_id
+        sa.select(db.alert_progress.c.done_ms, db.alert_progress.c.state).where(
+            db.alert_progress.c.device_id == dev.device_id
         )
     ).first()
     done = int(prog.done_ms) if prog is not None else -1
@@ -1705,14 +1691,14 @@ def _evaluate_device(
     state["est_done"] = newest_est
     _release_held(conn, dev.device_id, reference_ms)
     new_done = int(t_all[-1]) if len(t_all) else done
-    p = store.alert_progress
+    p = db.alert_progress
     conn.execute(p.delete().where(p.c.device_id == dev.device_id))
     conn.execute(
         p.insert().values(
             device_id=dev.device_id,
             done_ms=new_done,
             state=_jsonable(state),
-            updated_ms=store.now_ms(),
+            updated_ms=db.now_ms(),
         )
     )
     return ledger.changes
@@ -1734,7 +1720,7 @@ def evaluate(
     Returns the changes made, in time order per device.
     """
     base = policy or AlertPolicy()
-    d = store.devices
+    d = db.devices
     try:
         with engine.connect() as conn:
             fleet_newest = conn.execute(sa.select(sa.func.max(d.c.last_reading_ms))).scalar()
@@ -1765,8 +1751,8 @@ def acknowledge(
     engine: Engine, alert_id: int, actor: str, note: str | None = None
 ) -> dict[str, Any]:
     """Mark an open alert acknowledged by ``actor`` (audited, notified); idempotent."""
-    a = store.alerts
-    now = store.now_ms()
+    a = db.alerts
+    now = db.now_ms()
     try:
         with engine.begin() as conn:
             row = conn.execute(sa.select(a).where(a.c.id == alert_id)).first()
@@ -1779,19 +1765,17 @@ def acknowledge(
                     .values(state="acknowledged", updated_ms=now)
                 )
                 conn.execute(
-                    store.alert_audit.insert().values(
+                    db.alert_audit.insert().values(
                         alert_id=alert_id, at_ms=now, from_state="open", to_state="acknowledged",
                         severity=row.severity, actor=actor[:200], note=note,
                     )
                 )  # fmt: skip
                 row = conn.execute(sa.select(a).where(a.c.id == alert_id)).one()
                 site = conn.execute(
-                    sa.select(store.devices.c.site).where(
-                        store.devices.c.device_id == row.device_id
-                    )
+                    sa.select(db.devices.c.site).where(db.devices.c.device_id == row.device_id)
                 ).scalar()
                 conn.execute(
-                    store.notifications.insert().values(
+                    db.notifications.insert().values(
                         created_ms=now, event_ms=now, event="alert.acknowledged", alert_id=alert_id,
                         device_id=row.device_id, site=site, kind=row.kind,
                         payload=_jsonable(
@@ -1811,7 +1795,7 @@ def acknowledge(
 
 def audit_trail(engine: Engine, alert_id: int) -> list[dict[str, Any]]:
     """State changes of one alert, oldest first."""
-    t = store.alert_audit
+    t = db.alert_audit
     with engine.connect() as conn:
         rows = conn.execute(
             sa.select(t).where(t.c.alert_id == alert_id).order_by(t.c.id)
@@ -1843,11 +1827,11 @@ def add_maintenance(
     with engine.begin() as conn:
         return int(
             conn.execute(
-                store.maintenance_windows.insert()
+                db.maintenance_windows.insert()
                 .values(
                     device_id=device_id, site=site, start_ms=start_ms, end_ms=end_ms,
-                    reason=reason, created_ms=store.now_ms(), created_by=created_by,
+                    reason=reason, created_ms=db.now_ms(), created_by=created_by,
                 )
-                .returning(store.maintenance_windows.c.id)
+                .returning(db.maintenance_windows.c.id)
             ).scalar_one()
         )  # fmt: skip

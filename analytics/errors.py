@@ -1,13 +1,26 @@
-"""Exceptions raised by the thermoelectric physics functions.
+"""Exceptions of the analytics stage: physics, fits and alert rules.
 
-Every one derives from :class:`PhysicsError`, itself a :class:`ValueError`, so a
-caller that only wants to know "the numbers were unusable" can catch one class.
+Every physics error derives from :class:`PhysicsError`, which is both a
+:class:`~tecfleet.ingest.errors.TecfleetError` (the project's one root) and a :class:`ValueError`,
+so a caller that only wants to know "the numbers were unusable" can catch one class.
 """
 
 from __future__ import annotations
 
+from tecfleet.ingest.errors import TecfleetError
 
-class PhysicsError(ValueError):
+__all__ = [
+    "AlertError",
+    "EstimationError",
+    "InconsistentRatingsError",
+    "InsufficientDataError",
+    "NoConvergenceError",
+    "OutOfDomainError",
+    "PhysicsError",
+]
+
+
+class PhysicsError(TecfleetError, ValueError):
     """Base class: the inputs or the result lie outside what the physics can answer."""
 
 
@@ -48,3 +61,7 @@ class InsufficientDataError(EstimationError):
     def __init__(self, message: str, reason: str | None = None) -> None:
         super().__init__(message)
         self.reason = reason or message
+
+
+class AlertError(TecfleetError):
+    """An alert rule, threshold override or maintenance window is invalid."""

@@ -98,7 +98,7 @@ import sqlalchemy as sa
 from scipy import ndimage
 from sqlalchemy.engine import Connection, Engine
 
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 
 from . import diagnostics as dg
 from . import physics, trends
@@ -259,16 +259,16 @@ def analyze(
     started = time.perf_counter()
     report = AnalysisReport()
     dev_q = sa.select(
-        store.devices.c.device_id,
-        store.devices.c.module,
-        store.devices.c.cabinet,
-        store.devices.c.last_reading_ms,
-    ).where(store.devices.c.last_reading_ms.is_not(None))
+        db.devices.c.device_id,
+        db.devices.c.module,
+        db.devices.c.cabinet,
+        db.devices.c.last_reading_ms,
+    ).where(db.devices.c.last_reading_ms.is_not(None))
     if device_id is not None:
-        dev_q = dev_q.where(store.devices.c.device_id == device_id)
+        dev_q = dev_q.where(db.devices.c.device_id == device_id)
     with engine.connect() as conn:
-        devs = conn.execute(dev_q.order_by(store.devices.c.device_id)).all()
-        st = store.analysis_state
+        devs = conn.execute(dev_q.order_by(db.devices.c.device_id)).all()
+        st = db.analysis_state
         done = {
             r.device_id: int(r.done_ms)
             for r in conn.execute(sa.select(st.c.device_id, st.c.done_ms))
@@ -330,9 +330,7 @@ class _Device:
 
 def _first_reading_ms(conn: Connection, device_id: str) -> int | None:
     first = conn.execute(
-        sa.select(sa.func.min(store.readings.c.ts_ms)).where(
-            store.readings.c.device_id == device_id
-        )
+        sa.select(sa.func.min(db.readings.c.ts_ms)).where(db.readings.c.device_id == device_id)
     ).scalar()
     return None if first is None else int(first)
 
@@ -373,7 +371,7 @@ def _device_job(
 ) -> tuple[str, int, int]:
     engine = _WORKER_ENGINES.get(url)
     if engine is None:
-        engine = _WORKER_ENGINES[url] = store.make_engine(url)
+        engine = _WORKER_ENGINES[url] = db.make_engine(url)
     with engine.begin() as conn:
         return (dev.device_id, *_analyze_device(conn, dev, saved, cfg))
 
@@ -384,7 +382,7 @@ def latest_health(engine: Engine, device_id: str) -> dict[str, dict[str, Any]]:
     Each value is ``{"value", "stderr", "n", "reliable", "at", "note"}``; keys whose newest
     rows hold no value (the data could not support one) fall back to their newest valued row.
     """
-    e = store.estimates
+    e = db.estimates
     newest = (
         sa.select(e.c.key, sa.func.max(e.c.at_ms).label("at_ms"))
         .where(e.c.device_id == device_id, e.c.value.is_not(None))
@@ -412,7 +410,7 @@ def estimate_history(
     end_ms: int | None = None,
 ) -> list[dict[str, Any]]:
     """Stored estimates of one key, oldest first (``start_ms`` inclusive, ``end_ms`` exclusive)."""
-    e = store.estimates
+    e = db.estimates
     q = sa.select(e.c.key, e.c.at_ms, e.c.value, e.c.stderr, e.c.n, e.c.reliable, e.c.note).where(
         e.c.device_id == device_id, e.c.key == key
     )
@@ -464,29 +462,12 @@ class _Data:
         return slice(a, b)
 
 
-#: Address space SQLite may map per connection for reading (only what the file holds is mapped).
-_SQLITE_MMAP_BYTES = 1 << 30
+#: Reading columns the fits use, in the order of ``_Data``'s arrays.
+_COLUMNS = ("ts_ms", "t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "door_open")
 
 
 def _load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> _Data:
-    # Plain SQL on the driver's own cursor: building result rows costs more than the analysis.
-    mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
-    sql = (
-        "SELECT ts_ms, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, "
-        "CASE WHEN door_open THEN 1 ELSE 0 END FROM readings "
-        f"WHERE device_id = {mark} AND ts_ms >= {mark} AND ts_ms < {mark} ORDER BY ts_ms"
-    )
-    cursor = conn.connection.cursor()
-    try:
-        if conn.dialect.name == "sqlite":
-            # A device's rows lie scattered over the whole table (devices report interleaved):
-            # memory-mapped pages halve the cost of visiting them compared with read() calls.
-            cursor.execute(f"PRAGMA mmap_size = {_SQLITE_MMAP_BYTES}")
-        cursor.execute(sql, (device_id, start_ms, end_ms))
-        rows = cursor.fetchall()
-    finally:
-        cursor.close()
-    arr = np.fromiter(itertools.chain.from_iterable(rows), np.float64, len(rows) * 8).reshape(-1, 8)
+    arr = db.read_arrays(conn, device_id, _COLUMNS, start_ms, end_ms)
     ts = arr[:, 0].astype(np.int64)
     return _Data(
         ts=ts,
@@ -622,7 +603,7 @@ def _write(
     if rows:
         # The driver's own executemany: SQLAlchemy's per-row parameter handling costs more
         # than the statement itself for thousands of rows.
-        mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
+        mark = db.marker(conn)
         sql = (
             f"INSERT INTO estimates ({', '.join(_ESTIMATE_COLUMNS)}) "
             f"VALUES ({', '.join([mark] * len(_ESTIMATE_COLUMNS))}) "
@@ -635,7 +616,7 @@ def _write(
             cursor.close()
     # The driver's own cursor and orjson: through SQLAlchemy's JSON type, the state's
     # statement and encoding cost more than an hour's analysis of the device.
-    mark = "?" if conn.dialect.paramstyle == "qmark" else "%s"
+    mark = db.marker(conn)
     as_json = f"CAST({mark} AS JSON)" if conn.dialect.name == "postgresql" else mark
     sql = (
         "INSERT INTO analysis_state (device_id, done_ms, state, updated_ms) "
@@ -644,7 +625,7 @@ def _write(
     )
     cursor = conn.connection.cursor()
     try:
-        cursor.execute(sql, (device_id, done, _state_text(state), store.now_ms()))
+        cursor.execute(sql, (device_id, done, _state_text(state), db.now_ms()))
     finally:
         cursor.close()
 

@@ -41,7 +41,7 @@ from .simulator import (
 
 log = logging.getLogger(__name__)
 
-__all__ = ["COMPANY", "SITES", "demo_fleet", "register_demo_fleet", "run_demo_feed"]
+__all__ = ["COMPANY", "SITES", "demo_fleet", "run_demo_feed"]
 
 COMPANY = "Kestrel Valley Health Cooperative"
 
@@ -216,17 +216,6 @@ def demo_fleet(
         events=events,
     )
     return spec, {d.device_id: d.registration() for d in devices}
-
-
-def register_demo_fleet(engine: Any, seed: int = 7) -> dict[str, dict[str, Any]]:
-    """Register the demo devices in a tecfleet database (labels, sites, ratings, cabinets)."""
-    from tecfleet.api.queries import register_device
-    from tecfleet.api.schemas import DeviceIn
-
-    _spec, registrations = demo_fleet(seed)
-    for device_id, body in registrations.items():
-        register_device(engine, device_id, DeviceIn.model_validate(body))
-    return registrations
 
 
 def run_demo_feed(

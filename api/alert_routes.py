@@ -10,12 +10,14 @@ from fastapi import Path as PathParam
 from pydantic import BaseModel, ConfigDict, Field
 
 from tecfleet.analytics import alerts as rules
+from tecfleet.analytics.errors import AlertError
 from tecfleet.api import notify
 from tecfleet.api.auth import Principal, require
-from tecfleet.api.queries import CursorError, decode_cursor, encode_cursor
+from tecfleet.api.errors import CursorError, WebhookError
+from tecfleet.api.queries import decode_cursor, encode_cursor
 from tecfleet.api.timefmt import ms_to_rfc3339, rfc3339_to_ms
-from tecfleet.ingest import store
-from tecfleet.ingest.errors import AlertError, NotFoundError, WebhookError
+from tecfleet.ingest import db
+from tecfleet.ingest.errors import NotFoundError
 
 router = APIRouter()
 WRITE = require("write")
@@ -49,7 +51,7 @@ def alerts_list(
         raise HTTPException(
             422, [{"loc": ["query", "kind"], "msg": "unknown kind", "type": "value_error"}]
         )
-    a = store.alerts
+    a = db.alerts
     stmt = sa.select(a).order_by(a.c.id.desc()).limit(limit + 1)
     before = _page_cursor(cursor)
     if before is not None:
@@ -72,7 +74,7 @@ def alert_get(request: Request, alert_id: int) -> dict[str, Any]:
     """One alert with its audit trail (state changes, who acknowledged and when)."""
     engine = request.app.state.engine
     with engine.connect() as conn:
-        row = conn.execute(sa.select(store.alerts).where(store.alerts.c.id == alert_id)).first()
+        row = conn.execute(sa.select(db.alerts).where(db.alerts.c.id == alert_id)).first()
     if row is None:
         raise NotFoundError(f"unknown alert {alert_id}")
     out: dict[str, Any] = notify.alert_object(rules.alert_row_dict(row))
@@ -148,14 +150,14 @@ def maintenance_add(
         )
     except AlertError as exc:
         raise _unprocessable("device_id", str(exc)) from exc
-    m = store.maintenance_windows
+    m = db.maintenance_windows
     with engine.connect() as conn:
         return _maintenance_out(conn.execute(sa.select(m).where(m.c.id == window_id)).one())
 
 
 @router.get("/v1/maintenance", dependencies=[reader], tags=["alerts"])
 def maintenance_list(request: Request) -> dict[str, Any]:
-    m = store.maintenance_windows
+    m = db.maintenance_windows
     with request.app.state.engine.connect() as conn:
         rows = conn.execute(sa.select(m).order_by(m.c.id.desc()).limit(1000)).fetchall()
     return {"items": [_maintenance_out(r) for r in rows], "next_cursor": None}
@@ -225,7 +227,7 @@ def webhook_add(
 
 @router.get("/v1/webhooks", dependencies=[admin], tags=["webhooks"])
 def webhook_list(request: Request) -> dict[str, Any]:
-    w = store.webhooks
+    w = db.webhooks
     with request.app.state.engine.connect() as conn:
         rows = conn.execute(
             sa.select(w).where(w.c.deleted_ms.is_(None)).order_by(w.c.id)
@@ -234,7 +236,7 @@ def webhook_list(request: Request) -> dict[str, Any]:
 
 
 def _live_hook(request: Request, webhook_id: int) -> Any:
-    w = store.webhooks
+    w = db.webhooks
     with request.app.state.engine.connect() as conn:
         row = conn.execute(
             sa.select(w).where(w.c.id == webhook_id, w.c.deleted_ms.is_(None))
@@ -251,9 +253,9 @@ def webhook_delete(request: Request, webhook_id: int) -> Response:
     _live_hook(request, webhook_id)
     with request.app.state.engine.begin() as conn:
         conn.execute(
-            store.webhooks.update()
-            .where(store.webhooks.c.id == webhook_id)
-            .values(deleted_ms=store.now_ms())
+            db.webhooks.update()
+            .where(db.webhooks.c.id == webhook_id)
+            .values(deleted_ms=db.now_ms())
         )
     return Response(status_code=204)
 
@@ -264,7 +266,7 @@ def webhook_deliveries(
 ) -> dict[str, Any]:
     """Delivery log of one hook, newest first: state, attempts, last answer."""
     _live_hook(request, webhook_id)
-    d, n = store.webhook_deliveries, store.notifications
+    d, n = db.webhook_deliveries, db.notifications
     stmt = (
         sa.select(d, n.c.event, n.c.alert_id)
         .join(n, n.c.id == d.c.notification_id)

@@ -15,12 +15,13 @@ from sqlalchemy.engine import Engine
 from tecfleet.analytics import runner
 from tecfleet.api import queries
 from tecfleet.api.auth import require
+from tecfleet.api.errors import CursorError
 from tecfleet.api.schemas import DeviceDetail, DeviceIn, DeviceOut, Page, ReadingOut, RejectOut
 from tecfleet.api.timefmt import rfc3339_to_ms
 from tecfleet.ingest import metrics as _ingest_metrics  # noqa: F401 - registers the counters
+from tecfleet.ingest.db import ping
 from tecfleet.ingest.errors import NotFoundError, StoreError
 from tecfleet.ingest.settings import Settings
-from tecfleet.ingest.store import ping
 
 STATIC = Path(__file__).parent / "static"
 DEVICE_ID = PathParam(pattern=r"^[A-Za-z0-9_.\-]{1,64}$")
@@ -66,8 +67,8 @@ def create_app(
     async def _not_found(_request: Request, exc: NotFoundError) -> JSONResponse:
         return JSONResponse({"detail": str(exc)}, status_code=404)
 
-    @app.exception_handler(queries.CursorError)
-    async def _bad_cursor(_request: Request, exc: queries.CursorError) -> JSONResponse:
+    @app.exception_handler(CursorError)
+    async def _bad_cursor(_request: Request, exc: CursorError) -> JSONResponse:
         return JSONResponse(
             {"detail": [{"loc": ["query", "cursor"], "msg": str(exc), "type": "value_error"}]},
             status_code=422,

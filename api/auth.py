@@ -16,8 +16,8 @@ from fastapi import Depends, HTTPException, Request
 from sqlalchemy.engine import Engine
 from sqlalchemy.exc import SQLAlchemyError
 
+from tecfleet.ingest.db import api_keys, now_ms
 from tecfleet.ingest.errors import StoreError
-from tecfleet.ingest.store import api_keys, now_ms
 
 SCOPES = ("read", "write", "admin")
 KEY_PREFIX = "tfk_"

@@ -47,7 +47,7 @@ def _settings(args: argparse.Namespace) -> Settings:
 
 
 def _engine(settings: Settings) -> Any:
-    from tecfleet.ingest.store import make_engine, migrate
+    from tecfleet.ingest.db import make_engine, migrate
 
     engine = make_engine(settings.database_url)
     migrate(engine)
@@ -74,8 +74,10 @@ def cmd_serve(args: argparse.Namespace) -> int:
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
-    from tecfleet.analytics.scenario import register_demo_fleet, run_demo_feed
+    from tecfleet.analytics.scenario import demo_fleet, run_demo_feed
     from tecfleet.api.auth import create_key
+    from tecfleet.api.queries import register_device
+    from tecfleet.api.schemas import DeviceIn
     from tecfleet.api.service import Service
     from tecfleet.ingest.embedded_broker import EmbeddedBroker
 
@@ -95,7 +97,9 @@ def cmd_demo(args: argparse.Namespace) -> int:
         env={},
     )
     engine = _engine(settings)
-    register_demo_fleet(engine, seed=args.seed)
+    _spec, registrations = demo_fleet(args.seed)
+    for device_id, body in registrations.items():
+        register_device(engine, device_id, DeviceIn.model_validate(body))
     key = create_key(engine, "demo", "admin")
     stop_feed = threading.Event()
     # Analysis waits for the history: half a backfill looks like a fleet gone offline.

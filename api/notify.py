@@ -42,9 +42,9 @@ from paho.mqtt import client as mqtt
 from paho.mqtt.enums import CallbackAPIVersion
 from sqlalchemy.engine import Engine
 
+from tecfleet.api.errors import WebhookError
 from tecfleet.api.timefmt import ms_to_rfc3339
-from tecfleet.ingest import store
-from tecfleet.ingest.errors import WebhookError
+from tecfleet.ingest import db
 from tecfleet.ingest.settings import Settings
 
 log = logging.getLogger(__name__)
@@ -198,7 +198,7 @@ class Notifier(threading.Thread):
 
     def drain_once(self) -> None:
         """One round: fan out new notices, publish to MQTT, attempt due webhook deliveries."""
-        now = store.now_ms()
+        now = db.now_ms()
         self.fan_out(now)
         self.fan_out(now)  # group notices made by the first pass go out in this round too
         if self.settings is not None:
@@ -208,7 +208,7 @@ class Notifier(threading.Thread):
     # -- fan-out and grouping ------------------------------------------------------------
 
     def fan_out(self, now: int) -> None:
-        n, w, d = store.notifications, store.webhooks, store.webhook_deliveries
+        n, w, d = db.notifications, db.webhooks, db.webhook_deliveries
         with self.engine.begin() as conn:
             pending = conn.execute(
                 sa.select(n).where(n.c.state == "pending").order_by(n.c.id)
@@ -319,7 +319,7 @@ class Notifier(threading.Thread):
 
     def publish_mqtt(self) -> None:
         assert self.settings is not None
-        n = store.notifications
+        n = db.notifications
         with self.engine.connect() as conn:
             rows = conn.execute(
                 sa.select(n.c.id, n.c.device_id, n.c.payload)
@@ -343,7 +343,7 @@ class Notifier(threading.Thread):
     # -- webhooks ------------------------------------------------------------------------
 
     def deliver_due(self, now: int) -> None:
-        d, w, n = store.webhook_deliveries, store.webhooks, store.notifications
+        d, w, n = db.webhook_deliveries, db.webhooks, db.notifications
         with self.engine.connect() as conn:
             due = conn.execute(
                 sa.select(d, w.c.url, w.c.secret, w.c.deleted_ms)
@@ -397,25 +397,25 @@ class Notifier(threading.Thread):
         delay = min(self.backoff_s * 2 ** (attempts - 1), self.backoff_max_s)
         with self.engine.begin() as conn:
             conn.execute(
-                store.webhook_deliveries.update()
-                .where(store.webhook_deliveries.c.id == row.id)
+                db.webhook_deliveries.update()
+                .where(db.webhook_deliveries.c.id == row.id)
                 .values(
                     attempts=attempts,
-                    last_attempt_ms=store.now_ms(),
+                    last_attempt_ms=db.now_ms(),
                     last_status=status,
                     last_error=error,
-                    next_attempt_ms=store.now_ms() + int(delay * 1000),
+                    next_attempt_ms=db.now_ms() + int(delay * 1000),
                 )
             )
 
     def _finish(
         self, delivery_id: int, state: str, attempts: int, status: int | None, error: str | None
     ) -> None:
-        now = store.now_ms()
+        now = db.now_ms()
         with self.engine.begin() as conn:
             conn.execute(
-                store.webhook_deliveries.update()
-                .where(store.webhook_deliveries.c.id == delivery_id)
+                db.webhook_deliveries.update()
+                .where(db.webhook_deliveries.c.id == delivery_id)
                 .values(
                     state=state,
                     attempts=attempts,
@@ -441,8 +441,8 @@ def create_webhook(
     """Register a hook; the answer carries the secret, the only time it is shown."""
     clean = check_url(url, allow_private=allow_private)
     secret = new_secret()
-    now = store.now_ms()
-    w = store.webhooks
+    now = db.now_ms()
+    w = db.webhooks
     with engine.begin() as conn:
         hook_id = conn.execute(
             w.insert()

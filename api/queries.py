@@ -11,18 +11,15 @@ import orjson
 import sqlalchemy as sa
 from sqlalchemy.engine import Engine, Row
 
+from tecfleet.api.errors import CursorError
 from tecfleet.api.schemas import DeviceDetail, DeviceIn, DeviceOut, ReadingOut, RejectOut
 from tecfleet.api.timefmt import ms_to_rfc3339
+from tecfleet.ingest.db import alerts, devices, now_ms, readings, rejects
 from tecfleet.ingest.errors import NotFoundError
-from tecfleet.ingest.store import alerts, devices, now_ms, readings, rejects
 
 OPEN_STATES = ("open", "acknowledged")
 # A device is shown offline when its newest reading is older than this (wall clock).
 STALE_AFTER_MS = 15 * 60 * 1000
-
-
-class CursorError(ValueError):
-    """A pagination cursor that this API did not hand out."""
 
 
 def encode_cursor(value: Any) -> str:

@@ -17,9 +17,9 @@ from sqlalchemy.engine import Engine
 
 from tecfleet.api.app import create_app
 from tecfleet.api.notify import Notifier
+from tecfleet.ingest.db import now_ms
 from tecfleet.ingest.ingester import Ingester
 from tecfleet.ingest.settings import Settings
-from tecfleet.ingest.store import now_ms
 
 log = logging.getLogger(__name__)
 

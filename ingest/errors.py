@@ -1,7 +1,10 @@
-"""The one small exception hierarchy shared by every stage of tecfleet.
+"""The root of tecfleet's one exception tree, and the ingest stage's errors.
 
-Third-party errors (SQLAlchemy, paho-mqtt, pydantic ...) are translated into these at the
-boundary where they occur, with ``raise ... from exc`` so the original stays attached.
+Every error tecfleet raises on purpose derives from :class:`TecfleetError`. Each stage keeps its
+own errors beside it: ``tecfleet.analytics.errors`` (physics, fits, alert rules) and
+``tecfleet.api.errors`` (requests, delivery) derive from this root. Third-party errors
+(SQLAlchemy, paho-mqtt, pydantic ...) are translated into these at the boundary where they
+occur, with ``raise ... from exc`` so the original stays attached.
 """
 
 from __future__ import annotations
@@ -40,9 +43,11 @@ class BrokerError(TecfleetError):
     """The MQTT broker could not be reached or refused us."""
 
 
-class AlertError(TecfleetError):
-    """An alert rule, threshold override or maintenance window is invalid."""
-
-
-class WebhookError(TecfleetError):
-    """A webhook cannot be registered or delivered (bad URL, refused address, HTTP failure)."""
+__all__ = [
+    "BrokerError",
+    "NotFoundError",
+    "PayloadError",
+    "SettingsError",
+    "StoreError",
+    "TecfleetError",
+]

@@ -31,10 +31,10 @@ from paho.mqtt.reasoncodes import ReasonCode
 from sqlalchemy.engine import Engine
 
 from tecfleet.ingest import metrics
+from tecfleet.ingest.db import store_batch
 from tecfleet.ingest.errors import StoreError
 from tecfleet.ingest.payload import Parsed, parse_message
 from tecfleet.ingest.settings import Settings
-from tecfleet.ingest.store import store_batch
 
 log = logging.getLogger(__name__)
 

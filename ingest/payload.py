@@ -27,7 +27,7 @@ from typing import Annotated, Any
 import orjson
 from pydantic import BaseModel, ConfigDict, Field, Strict, ValidationError, field_validator
 
-from tecfleet.ingest.store import Reading, Reject, StatusUpdate
+from tecfleet.ingest.db import Reading, Reject, StatusUpdate
 
 DEVICE_ID_RE = re.compile(r"^[A-Za-z0-9_.\-]{1,64}$")
 EPOCH_2000_S = 946_684_800.0

@@ -1,10 +1,10 @@
-"""Alembic environment: runs on the connection handed over by ``store.migrate``."""
+"""Alembic environment: runs on the connection handed over by ``db.migrate``."""
 
 from __future__ import annotations
 
 from alembic import context
 
-from tecfleet.ingest.store import metadata
+from tecfleet.ingest.db import metadata
 
 connection = context.config.attributes.get("connection")
 if connection is None:

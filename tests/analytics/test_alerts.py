@@ -15,8 +15,8 @@ from scipy.special import logsumexp
 
 from tecfleet.analytics import alerts
 from tecfleet.analytics.simulator import DeviceSpec, FleetSpec, simulate
-from tecfleet.ingest import store
-from tecfleet.ingest.store import Reading
+from tecfleet.ingest import db
+from tecfleet.ingest.db import Reading
 
 T0 = 1_790_000_000_000  # an arbitrary start, epoch ms
 MIN = 60_000
@@ -24,8 +24,8 @@ MIN = 60_000
 
 @pytest.fixture
 def engine(sqlite_url: str) -> Iterator[sa.Engine]:
-    e = store.make_engine(sqlite_url)
-    store.migrate(e)
+    e = db.make_engine(sqlite_url)
+    db.migrate(e)
     yield e
     e.dispose()
 
@@ -91,10 +91,10 @@ def test_mkt_of_a_constant_is_that_constant_and_never_below_the_mean() -> None:
 
 
 def test_excursion_opens_after_the_delay_and_resolves_with_duration_and_peak(db_url: str) -> None:
-    engine = store.make_engine(db_url)
-    store.migrate(engine)
+    engine = db.make_engine(db_url)
+    db.migrate(engine)
     # cabinet at 10 °C for 100 minutes from minute 1500 (medicine band 2-8 °C, WHO; from memory)
-    store.store_batch(engine, cabinet_series(2000, hot=(1500, 1600)))
+    db.store_batch(engine, cabinet_series(2000, hot=(1500, 1600)))
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [("excursion", "opened"), ("excursion", "resolved")]
     opened, resolved = changes
@@ -106,9 +106,7 @@ def test_excursion_opens_after_the_delay_and_resolves_with_duration_and_peak(db_
     assert opened.evidence["active_s"] == 30 * 60
     assert "maker's storage instructions" in opened.evidence["caution"]
     # MKT evidence over the trailing 24 h equals the formula on the same stored samples
-    frame = store.load_readings(
-        engine, "cab-1", T0 + 1530 * MIN - 86_400_000 + 1, T0 + 1530 * MIN + 1
-    )
+    frame = db.load_readings(engine, "cab-1", T0 + 1530 * MIN - 86_400_000 + 1, T0 + 1530 * MIN + 1)
     assert opened.evidence["mkt_c"] == pytest.approx(
         alerts.mean_kinetic_temperature(frame["t_cabinet"].to_numpy()), abs=1e-3
     )
@@ -120,17 +118,15 @@ def test_excursion_opens_after_the_delay_and_resolves_with_duration_and_peak(db_
     assert resolved.evidence["peak"] == 10.1
     assert resolved.summary.startswith("Resolved after 1.7 h")
     with engine.connect() as conn:
-        row = conn.execute(sa.select(store.alerts)).one()
-        trail = conn.execute(
-            sa.select(store.alert_audit.c.to_state).order_by(store.alert_audit.c.id)
-        )
+        row = conn.execute(sa.select(db.alerts)).one()
+        trail = conn.execute(sa.select(db.alert_audit.c.to_state).order_by(db.alert_audit.c.id))
         assert [r.to_state for r in trail] == ["open", "resolved"]
     assert row.state == "resolved" and row.resolved_ms == T0 + 1630 * MIN
     engine.dispose()
 
 
 def test_short_door_opening_does_not_fire(engine: sa.Engine) -> None:
-    store.store_batch(engine, cabinet_series(600, hot=(300, 320)))  # 20 min < 30 min delay
+    db.store_batch(engine, cabinet_series(600, hot=(300, 320)))  # 20 min < 30 min delay
     assert alerts.evaluate(engine) == []
 
 
@@ -146,7 +142,7 @@ def test_cabinet_hovering_at_its_limit_opens_on_cumulative_time(engine: sa.Engin
     for i in range(300, 500):
         r = series[i]
         series[i] = r._replace(t_cabinet=8.2 if (i - 300) % 5 < 3 else 7.9)
-    store.store_batch(engine, series)
+    db.store_batch(engine, series)
     changes = [c for c in alerts.evaluate(engine) if c.kind == "excursion"]
     assert kinds(changes) == [("excursion", "opened")]
     assert changes[0].at_ms == T0 + 350 * MIN
@@ -155,7 +151,7 @@ def test_cabinet_hovering_at_its_limit_opens_on_cumulative_time(engine: sa.Engin
 
 def test_long_excursion_turns_critical_after_ten_hours(engine: sa.Engine) -> None:
     # 10 h above 8 °C, the WHO PQS 30-day recorder heat alarm (from memory)
-    store.store_batch(engine, cabinet_series(1500, hot=(100, 1400), hot_c=9.0))
+    db.store_batch(engine, cabinet_series(1500, hot=(100, 1400), hot_c=9.0))
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [
         ("excursion", "opened"),
@@ -169,7 +165,7 @@ def test_long_excursion_turns_critical_after_ten_hours(engine: sa.Engine) -> Non
 def test_food_profile_uses_five_and_eight_degrees(engine: sa.Engine) -> None:
     # UK FSA advice ≤ 5 °C, 8 °C legal ceiling in England (from memory)
     alerts.set_policy(engine, "device", "cab-1", {"profile": "food"})
-    store.store_batch(engine, cabinet_series(400, hot=(100, 300), hot_c=6.5))
+    db.store_batch(engine, cabinet_series(400, hot=(100, 300), hot_c=6.5))
     changes = alerts.evaluate(engine)
     assert kinds(changes)[0] == ("excursion", "opened")
     assert changes[0].evidence["high_limit_c"] == 5.0
@@ -183,7 +179,7 @@ def test_food_profile_uses_five_and_eight_degrees(engine: sa.Engine) -> None:
 
 def _alert_rows(engine: sa.Engine) -> list[tuple[object, ...]]:
     with engine.connect() as conn:
-        rows = conn.execute(sa.select(store.alerts).order_by(store.alerts.c.id)).fetchall()
+        rows = conn.execute(sa.select(db.alerts).order_by(db.alerts.c.id)).fetchall()
     return [
         (r.kind, r.severity, r.state, r.opened_ms, r.resolved_ms, r.summary, r.reopen_count)
         for r in rows
@@ -194,28 +190,28 @@ def test_live_in_chunks_equals_backfill_and_restart_adds_nothing(tmp_path: objec
     first, second = cabinet_series(2400, hot=(1500, 1600)), cabinet_series(2400, hot=(1800, 1900))
     data = first[:1700] + second[1700:]
     urls = [f"sqlite:///{tmp_path}/{name}.db" for name in ("backfill", "live")]
-    back, live = (store.make_engine(u) for u in urls)
+    back, live = (db.make_engine(u) for u in urls)
     for e in (back, live):
-        store.migrate(e)
-    store.store_batch(back, data)
+        db.migrate(e)
+    db.store_batch(back, data)
     alerts.evaluate(back)
     for start in range(0, len(data), 137):
-        store.store_batch(live, data[start : start + 137])
+        db.store_batch(live, data[start : start + 137])
         alerts.evaluate(live)
     assert _alert_rows(back) == _alert_rows(live)
     # the second spell came back within the reopen window: same alert, reopen counted
     assert len(_alert_rows(back)) == 1 and _alert_rows(back)[0][6] == 1
     back.dispose()
-    fresh = store.make_engine(urls[0])  # a new process state on the same database
+    fresh = db.make_engine(urls[0])  # a new process state on the same database
     assert alerts.evaluate(fresh) == []
     with fresh.connect() as conn:
-        assert conn.execute(sa.select(sa.func.count()).select_from(store.alerts)).scalar() == 1
+        assert conn.execute(sa.select(sa.func.count()).select_from(db.alerts)).scalar() == 1
     fresh.dispose()
     live.dispose()
 
 
 def test_acknowledge_records_who_and_when(engine: sa.Engine) -> None:
-    store.store_batch(engine, cabinet_series(1560, hot=(1500, 1560)))
+    db.store_batch(engine, cabinet_series(1560, hot=(1500, 1560)))
     (change,) = alerts.evaluate(engine)
     row = alerts.acknowledge(engine, change.alert_id, "night-shift", "door left ajar")
     assert row["state"] == "acknowledged"
@@ -225,7 +221,7 @@ def test_acknowledge_records_who_and_when(engine: sa.Engine) -> None:
         ("acknowledged", "night-shift"),
     ]
     # still one alert per device and kind as the excursion goes on
-    store.store_batch(engine, cabinet_series(1700, hot=(1500, 1600))[1560:])
+    db.store_batch(engine, cabinet_series(1700, hot=(1500, 1600))[1560:])
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [("excursion", "resolved")]
     assert changes[0].alert_id == change.alert_id
@@ -238,7 +234,7 @@ def test_acknowledge_records_who_and_when(engine: sa.Engine) -> None:
 
 def test_offline_gap_opens_at_five_intervals_and_resolves_on_return(engine: sa.Engine) -> None:
     data = cabinet_series(600)
-    store.store_batch(engine, data[:300] + data[400:])  # 100 minutes silent after minute 299
+    db.store_batch(engine, data[:300] + data[400:])  # 100 minutes silent after minute 299
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [("offline", "opened"), ("offline", "resolved")]
     # usual interval 1 min; 5 × 1 min = 5 min is below the 10-minute floor (common practice)
@@ -247,11 +243,11 @@ def test_offline_gap_opens_at_five_intervals_and_resolves_on_return(engine: sa.E
 
 
 def test_offline_judged_against_the_fleet_and_the_wall_clock(engine: sa.Engine) -> None:
-    store.store_batch(engine, cabinet_series(200))
+    db.store_batch(engine, cabinet_series(200))
     other = [
         Reading("cab-2", r.ts_ms, 5.0, -1.0, 30.0, 22.0, 3.0, 8.0) for r in cabinet_series(300)
     ]
-    store.store_batch(engine, other)
+    db.store_batch(engine, other)
     changes = alerts.evaluate(engine)  # event time: cab-2 runs 100 min past cab-1's last
     assert [(c.device_id, c.kind, c.change) for c in changes] == [("cab-1", "offline", "opened")]
     assert changes[0].at_ms == T0 + 199 * MIN + 10 * MIN
@@ -279,7 +275,7 @@ def test_over_temperature_with_hysteresis(engine: sa.Engine) -> None:
         )
         for i, r in enumerate(data)
     ]
-    store.store_batch(engine, rows)
+    db.store_batch(engine, rows)
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [("over_temperature", "opened"), ("over_temperature", "resolved")]
     # 70 °C warning (common practice, no source) sustained 5 min
@@ -307,7 +303,7 @@ def test_condensation_against_psychrolib_dew_point(engine: sa.Engine) -> None:
         )
         for i, r in enumerate(data)
     ]
-    store.store_batch(engine, rows)
+    db.store_batch(engine, rows)
     changes = [c for c in alerts.evaluate(engine) if c.kind == "condensation_risk"]
     assert [c.change for c in changes] == ["opened"]
     psychrolib.SetUnitSystem(psychrolib.SI)
@@ -334,7 +330,7 @@ def test_stuck_cabinet_probe_is_a_sensor_fault(engine: sa.Engine) -> None:
         )
         for i, r in enumerate(data)
     ]
-    store.store_batch(engine, rows)
+    db.store_batch(engine, rows)
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [("sensor_fault", "opened")]
     # flat over the 60-minute window (samples 100..159), then the 15-minute delay
@@ -359,7 +355,7 @@ def test_stuck_probe_stays_one_alert_through_a_quiet_spell(engine: sa.Engine) ->
                 t_ambient=22.0 if quiet else r.t_ambient,
             )
         )
-    store.store_batch(engine, rows)
+    db.store_batch(engine, rows)
     changes = [c for c in alerts.evaluate(engine) if c.kind == "sensor_fault"]
     assert kinds(changes) == [("sensor_fault", "opened")]
 
@@ -367,7 +363,7 @@ def test_stuck_probe_stays_one_alert_through_a_quiet_spell(engine: sa.Engine) ->
 def _estimate(engine: sa.Engine, key: str, at_ms: int, value: float) -> None:
     with engine.begin() as conn:
         conn.execute(
-            store.estimates.insert().values(
+            db.estimates.insert().values(
                 device_id="cab-1", key=key, at_ms=at_ms, value=value, n=10, reliable=True
             )
         )
@@ -377,7 +373,7 @@ def test_module_wear_summary_from_the_trend_estimates(engine: sa.Engine) -> None
     day = 86_400_000
     series = cabinet_series(2 * 1440 + 60)
     # readings only up to the last estimate: it waits for the sensor rule to see them
-    store.store_batch(engine, series[: 2 * 1440 + 1])
+    db.store_batch(engine, series[: 2 * 1440 + 1])
     for d, pct in enumerate([1.0, 3.0, 6.1]):
         _estimate(engine, "module.resistance_25c.change_pct", T0 + d * day, pct)
     _estimate(engine, "module.resistance_25c.baseline", T0, 2.04)
@@ -385,7 +381,7 @@ def test_module_wear_summary_from_the_trend_estimates(engine: sa.Engine) -> None
     _estimate(engine, "module.resistance_25c.slope_pct_per_30d", T0 + 2 * day, 4.5)
     _estimate(engine, "module.days_to_wear_limit", T0 + 2 * day, 26.0)
     assert [c for c in alerts.evaluate(engine) if c.kind == "module_wear"] == []
-    store.store_batch(engine, series[2 * 1440 + 1 :])
+    db.store_batch(engine, series[2 * 1440 + 1 :])
     changes = [c for c in alerts.evaluate(engine) if c.kind == "module_wear"]
     assert [c.change for c in changes] == ["opened"]
     # +5 % warning (common practice, no source), opened at the first estimate over it
@@ -425,7 +421,7 @@ def test_heat_leak_back_after_days_reopens_the_same_alert(engine: sa.Engine) -> 
     # and the reopen counted, within the trend kinds' reopen window of 7 days (common
     # practice, no source), instead of a second alert for one fault.
     six_h = 6 * 3_600_000
-    store.store_batch(engine, cabinet_series(8 * 1440))
+    db.store_batch(engine, cabinet_series(8 * 1440))
     for k in range(4, 26):  # days 1 to 6.25, 6-hourly
         pct = 40.0 if k < 8 or k >= 20 else 20.0
         _estimate(engine, "cabinet.ua.change_pct", T0 + k * six_h, pct)
@@ -433,8 +429,8 @@ def test_heat_leak_back_after_days_reopens_the_same_alert(engine: sa.Engine) -> 
     assert [c.change for c in changes] == ["opened", "resolved", "reopened"]
     with engine.connect() as conn:
         rows = conn.execute(
-            sa.select(store.alerts.c.id, store.alerts.c.reopen_count).where(
-                store.alerts.c.kind == "heat_leak"
+            sa.select(db.alerts.c.id, db.alerts.c.reopen_count).where(
+                db.alerts.c.kind == "heat_leak"
             )
         ).fetchall()
     assert [r.reopen_count for r in rows] == [1]
@@ -442,10 +438,10 @@ def test_heat_leak_back_after_days_reopens_the_same_alert(engine: sa.Engine) -> 
 
 def test_maintenance_holds_notices_and_sends_the_open_alert_at_the_end(engine: sa.Engine) -> None:
     alerts.add_maintenance(engine, T0 + 1400 * MIN, T0 + 1700 * MIN, device_id="cab-1")
-    store.store_batch(engine, cabinet_series(1800, hot=(1500, 1800)))
+    db.store_batch(engine, cabinet_series(1800, hot=(1500, 1800)))
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [("excursion", "opened")]
-    n = store.notifications
+    n = db.notifications
     with engine.connect() as conn:
         rows = conn.execute(sa.select(n.c.event, n.c.state).order_by(n.c.id)).fetchall()
     # the held notice is replaced by one sent after the window, as the excursion continues
@@ -492,7 +488,7 @@ def test_healthy_simulated_fleet_raises_nothing_over_ten_days(engine: sa.Engine)
                         door_open=item.get("door_open"),
                     )
                 )
-        store.store_batch(engine, batch)
+        db.store_batch(engine, batch)
         found = alerts.evaluate(engine)
         assert [(c.device_id, c.kind, c.evidence) for c in found] == []
 

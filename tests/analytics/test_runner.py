@@ -19,7 +19,7 @@ from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import runner
 from tecfleet.analytics.simulator import STANDARD_RATINGS
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 from tests.analytics.synthetic import Truth, simulate
 
 DEVICE = "cab-demo-1"
@@ -44,23 +44,23 @@ def frame() -> pd.DataFrame:
 
 
 def _engine(tmp_path: Path, name: str) -> Engine:
-    e: Engine = store.make_engine(f"sqlite:///{tmp_path}/{name}.db")
-    store.migrate(e)
+    e: Engine = db.make_engine(f"sqlite:///{tmp_path}/{name}.db")
+    db.migrate(e)
     return e
 
 
 def _store(e: Engine, df: pd.DataFrame, device: str = DEVICE) -> None:
     rows = [
-        store.Reading(device, int(r.ts_ms), float(r.t_cabinet), float(r.t_cold), float(r.t_hot),
+        db.Reading(device, int(r.ts_ms), float(r.t_cabinet), float(r.t_cold), float(r.t_hot),
                       float(r.t_ambient), float(r.current), float(r.voltage),
                       door_open=bool(r.door_open))
         for r in df.itertuples()
     ]  # fmt: skip
-    store.store_batch(e, rows)
+    db.store_batch(e, rows)
 
 
 def _all(e: Engine) -> list[tuple[object, ...]]:
-    t = store.estimates
+    t = db.estimates
     cols = (t.c.device_id, t.c.key, t.c.at_ms, t.c.value, t.c.stderr, t.c.n, t.c.reliable, t.c.note)
     with e.connect() as c:
         return [
@@ -85,8 +85,8 @@ def test_incremental_live_equals_backfill_and_rerun_is_idempotent(
     # Live: the same readings arriving in uneven pieces (cuts mid-hour and mid-window), with
     # an analysis after each piece, must give the very same estimates.
     # On PostgreSQL too: the device state goes there as JSON text and must come back exact.
-    live = store.make_engine(db_url)
-    store.migrate(live)
+    live = db.make_engine(db_url)
+    db.migrate(live)
     cuts = [0, 1000, 1001, 2222, 4100, 5000, len(frame)]
     for a, b in itertools.pairwise(cuts):
         _store(live, frame.iloc[a:b])
@@ -163,8 +163,8 @@ def test_ua_of_a_module_that_never_rests_is_not_reliable(tmp_path: Path) -> None
     # the thermal fit runs.
     with e.begin() as c:
         c.execute(
-            store.devices.update()
-            .where(store.devices.c.device_id == "cab-busy")
+            db.devices.update()
+            .where(db.devices.c.device_id == "cab-busy")
             .values(module=dict(STANDARD_RATINGS))
         )
     runner.analyze(e, settings=runner.AnalysisSettings(workers=1))
@@ -208,7 +208,7 @@ def test_worker_processes_give_the_same_estimates_as_one_process(
     assert one.steps == two.steps > 0
     assert one.estimates == two.estimates > 0
     assert _all(serial) == _all(pooled)
-    st = store.analysis_state
+    st = db.analysis_state
     with serial.connect() as a, pooled.connect() as b:
         q = sa.select(st.c.device_id, st.c.done_ms, st.c.state).order_by(st.c.device_id)
         assert [tuple(r) for r in a.execute(q)] == [tuple(r) for r in b.execute(q)]

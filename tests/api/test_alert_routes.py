@@ -13,8 +13,8 @@ from fastapi.testclient import TestClient
 from tecfleet.analytics import alerts
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
-from tecfleet.ingest import store
-from tecfleet.ingest.store import Reading
+from tecfleet.ingest import db
+from tecfleet.ingest.db import Reading
 
 T0 = 1_790_000_000_000
 MIN = 60_000
@@ -22,8 +22,8 @@ MIN = 60_000
 
 @pytest.fixture
 def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = store.make_engine(db_url)
-    store.migrate(e)
+    e = db.make_engine(db_url)
+    db.migrate(e)
     yield e
     e.dispose()
 
@@ -46,7 +46,7 @@ def warm_cabinet(engine: sa.Engine, device: str) -> None:
         )
         for i in range(90)
     ]
-    store.store_batch(engine, rows)
+    db.store_batch(engine, rows)
 
 
 def test_list_filter_paginate_and_acknowledge(engine: sa.Engine) -> None:

@@ -10,14 +10,14 @@ from fastapi.testclient import TestClient
 
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
-from tecfleet.ingest import store
-from tecfleet.ingest.store import Reading, Reject
+from tecfleet.ingest import db
+from tecfleet.ingest.db import Reading, Reject
 
 
 @pytest.fixture
 def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = store.make_engine(db_url)
-    store.migrate(e)
+    e = db.make_engine(db_url)
+    db.migrate(e)
     yield e
     e.dispose()
 
@@ -67,14 +67,14 @@ def test_missing_key_401_unknown_key_401_small_scope_403(
 def test_keys_are_stored_only_as_hashes(engine: sa.Engine) -> None:
     key = create_key(engine, "ops", "admin")
     with engine.connect() as c:
-        stored = c.execute(sa.select(store.api_keys)).one()
+        stored = c.execute(sa.select(db.api_keys)).one()
     assert key not in str(tuple(stored))
     assert len(stored.key_hash) == 64
 
 
 def test_devices_list_and_cursor_pagination(client: TestClient, engine: sa.Engine) -> None:
     for d in range(7):
-        store.store_batch(engine, _readings(f"cab-{d}", 3))
+        db.store_batch(engine, _readings(f"cab-{d}", 3))
     headers = auth(engine, "read")
     seen, cursor = [], None
     while True:
@@ -95,7 +95,7 @@ def test_devices_list_and_cursor_pagination(client: TestClient, engine: sa.Engin
 def test_readings_oldest_first_with_time_window_and_cursor(
     client: TestClient, engine: sa.Engine
 ) -> None:
-    store.store_batch(engine, _readings("cab-r", 25))
+    db.store_batch(engine, _readings("cab-r", 25))
     headers = auth(engine, "read")
     got, cursor = [], None
     while True:
@@ -153,7 +153,7 @@ def test_register_device_validates_and_merges(client: TestClient, engine: sa.Eng
 
 
 def test_rejects_newest_first(client: TestClient, engine: sa.Engine) -> None:
-    store.store_batch(
+    db.store_batch(
         engine,
         [],
         [

@@ -9,7 +9,7 @@ import sys
 import sqlalchemy as sa
 
 from tecfleet.api.auth import authenticate
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 
 
 def test_keys_create_prints_the_key_alone_on_the_first_line(sqlite_url: str) -> None:
@@ -32,11 +32,11 @@ def test_keys_create_prints_the_key_alone_on_the_first_line(sqlite_url: str) -> 
     )
     key = result.stdout.splitlines()[0]
     assert key == key.strip() and " " not in key and len(key) > 30
-    engine = store.make_engine(sqlite_url)
+    engine = db.make_engine(sqlite_url)
     who = authenticate(engine, key)
     assert who is not None and who.scope == "write" and who.name == "ops"
     with engine.connect() as c:
-        assert c.execute(sa.select(sa.func.count()).select_from(store.api_keys)).scalar_one() == 1
+        assert c.execute(sa.select(sa.func.count()).select_from(db.api_keys)).scalar_one() == 1
 
 
 def test_bad_settings_give_a_clear_error(sqlite_url: str) -> None:

@@ -10,19 +10,19 @@ from fastapi.testclient import TestClient
 from tecfleet.analytics import runner
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 from tests.analytics.synthetic import Truth, simulate
 from tests.analytics.test_runner import CONTRACT_KEYS
 
 
 def test_health_has_every_contract_key_after_analysis(sqlite_url: str) -> None:
-    engine = store.make_engine(sqlite_url)
-    store.migrate(engine)
+    engine = db.make_engine(sqlite_url)
+    db.migrate(engine)
     frame = simulate(Truth(), 2.0, seed=3, door_every_h=8.0)
-    store.store_batch(
+    db.store_batch(
         engine,
         [
-            store.Reading("unit-h", int(r.ts_ms), float(r.t_cabinet), float(r.t_cold),
+            db.Reading("unit-h", int(r.ts_ms), float(r.t_cabinet), float(r.t_cold),
                           float(r.t_hot), float(r.t_ambient), float(r.current), float(r.voltage))
             for r in frame.itertuples()
         ],
@@ -43,8 +43,8 @@ def test_health_has_every_contract_key_after_analysis(sqlite_url: str) -> None:
     with engine.connect() as c:
         stored = c.execute(
             sa.select(sa.func.count())
-            .select_from(store.estimates)
-            .where(store.estimates.c.key == "module.resistance_25c_ohm")
+            .select_from(db.estimates)
+            .where(db.estimates.c.key == "module.resistance_25c_ohm")
         ).scalar_one()
     assert len(history) == stored > 1
     assert client.get("/v1/devices/ghost/health", headers=headers).status_code == 404

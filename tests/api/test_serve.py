@@ -12,7 +12,7 @@ from pathlib import Path
 import httpx
 
 from tecfleet.api.auth import create_key
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 from tests.analytics.synthetic import Truth, simulate
 from tests.ingest.mqtt_helpers import Publisher, count_readings, wait_for
 from tests.services import Mosquitto, Postgres, free_port
@@ -22,8 +22,8 @@ def test_serve_all_roles_on_postgres(
     mosquitto: Mosquitto, postgres: Postgres, tmp_path: Path
 ) -> None:
     db_url = postgres.create_database(f"t_serve_{os.getpid()}")
-    engine = store.make_engine(db_url)
-    store.migrate(engine)
+    engine = db.make_engine(db_url)
+    db.migrate(engine)
     key = create_key(engine, "ops", "read")
     port = free_port()
     env = dict(

@@ -13,8 +13,8 @@ import uvicorn
 
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
-from tecfleet.ingest import store
-from tecfleet.ingest.store import Reading
+from tecfleet.ingest import db
+from tecfleet.ingest.db import Reading
 from tests.services import free_port, unavailable, wait_port
 
 CHROMIUM_ARGS = [
@@ -31,18 +31,18 @@ CHROMIUM_ARGS = [
 
 @pytest.fixture
 def live_server(sqlite_url: str) -> Iterator[tuple[str, str]]:
-    engine = store.make_engine(sqlite_url)
-    store.migrate(engine)
+    engine = db.make_engine(sqlite_url)
+    db.migrate(engine)
     now_ms = int(time.time() * 1000)
     rows = [
         Reading(device, now_ms - 60_000 * (300 - i), 4.0 + 0.01 * i, -3.0, 31.0, 22.0, 3.0, 8.0)
         for device in ("ward-fridge-1", "lab-carrier-2")
         for i in range(300)
     ]
-    store.store_batch(engine, rows)
+    db.store_batch(engine, rows)
     with engine.begin() as c:
         c.execute(
-            store.alerts.insert().values(
+            db.alerts.insert().values(
                 device_id="ward-fridge-1",
                 kind="excursion",
                 severity="warning",

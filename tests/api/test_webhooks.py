@@ -24,10 +24,10 @@ from tecfleet.analytics import alerts
 from tecfleet.api import notify
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
-from tecfleet.ingest import store
-from tecfleet.ingest.errors import WebhookError
+from tecfleet.api.errors import WebhookError
+from tecfleet.ingest import db
+from tecfleet.ingest.db import Reading
 from tecfleet.ingest.settings import Settings
-from tecfleet.ingest.store import Reading
 from tests.services import Mosquitto, free_port
 
 T0 = 1_790_000_000_000
@@ -72,8 +72,8 @@ class Receiver:
 
 @pytest.fixture
 def engine(sqlite_url: str) -> Iterator[sa.Engine]:
-    e = store.make_engine(sqlite_url)
-    store.migrate(e)
+    e = db.make_engine(sqlite_url)
+    db.migrate(e)
     yield e
     e.dispose()
 
@@ -89,7 +89,7 @@ def excursion(engine: sa.Engine, device: str, site: str | None = None) -> None:
     """Store two hours of a cabinet at 10 °C (out of the 2-8 °C band) and evaluate."""
     if site is not None:
         with engine.begin() as conn:
-            conn.execute(store.devices.insert().values(device_id=device, site=site, readings=0))
+            conn.execute(db.devices.insert().values(device_id=device, site=site, readings=0))
     rows = [
         Reading(
             device,
@@ -103,7 +103,7 @@ def excursion(engine: sa.Engine, device: str, site: str | None = None) -> None:
         )
         for i in range(120)
     ]
-    store.store_batch(engine, rows)
+    db.store_batch(engine, rows)
 
 
 def verify(secret: str, headers: dict[str, str], body: bytes) -> bool:
@@ -173,7 +173,7 @@ def test_dead_letter_after_the_last_attempt(engine: sa.Engine, receiver: Receive
         notifier.drain_once()
         time.sleep(0.2)
     with engine.connect() as conn:
-        row = conn.execute(sa.select(store.webhook_deliveries)).one()
+        row = conn.execute(sa.select(db.webhook_deliveries)).one()
     assert (row.state, row.attempts, row.last_status) == ("dead", 3, 503)
 
 
@@ -247,5 +247,5 @@ def test_alerts_published_qos1_on_the_device_alert_topic(
     }
     assert (alert["device_id"], alert["kind"], alert["state"]) == ("fr-9", "excursion", "open")
     with engine.connect() as conn:
-        states = conn.execute(sa.select(store.notifications.c.mqtt_state)).scalars().all()
+        states = conn.execute(sa.select(db.notifications.c.mqtt_state)).scalars().all()
     assert states == ["sent"]

@@ -6,7 +6,7 @@ and one row of false positives per alert kind. Simulated data only; the test
 ``tests/analytics/test_alert_scoring.py`` runs a smaller fleet through the same functions.
 
 The fleet has one unit per fault kind plus healthy units. Readings are stored a day at a time
-(``store.store_batch``), then ``runner.analyze`` and ``alerts.evaluate`` run, as the live
+(``db.store_batch``), then ``runner.analyze`` and ``alerts.evaluate`` run, as the live
 service does. A fault is detected when an alert of its expected kind
 (``FleetTruth.fault_windows``) opens or reopens on its unit after the fault starts and within
 the target delay: a reopened alert sends its notice again, so a second excursion of a unit
@@ -46,7 +46,7 @@ import sqlalchemy as sa
 from tecfleet.analytics import alerts, physics, runner
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import simulator as sim
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 
 START_S = 1_735_689_600.0  # 2025-01-01T00:00Z, a day boundary
 DAY_S = 86_400.0
@@ -164,14 +164,14 @@ def scoring_fleet(
     return spec, expected
 
 
-def _readings(chunk: sim.Chunk) -> list[store.Reading]:
+def _readings(chunk: sim.Chunk) -> list[db.Reading]:
     out = []
     for row in chunk.payload_rows():
         for item, device in zip(row, chunk.device_ids, strict=True):
             if item is None:
                 continue
             out.append(
-                store.Reading(
+                db.Reading(
                     device, round(item["ts"] * 1000), item["t_cabinet"], item["t_cold"],
                     item["t_hot"], item["t_ambient"], item["current"], item["voltage"],
                     seq=item["seq"], rh=item["rh"], door_open=item["door_open"],
@@ -185,9 +185,9 @@ def _register(engine: sa.Engine, spec: sim.FleetSpec) -> None:
         for d in spec.devices:
             reg = d.registration()
             conn.execute(
-                store.devices.insert().values(
+                db.devices.insert().values(
                     device_id=d.device_id, module=reg["module"], cabinet=reg["cabinet"],
-                    site=None, readings=0, first_seen_ms=store.now_ms(),
+                    site=None, readings=0, first_seen_ms=db.now_ms(),
                 )
             )  # fmt: skip
 
@@ -215,8 +215,8 @@ def run_fleet(
     for each of its excursions (``FleetTruth.excursions`` order), how far [K] the true cabinet
     air went beyond its limits and when [s] it first went further than PROBE_TOLERANCE_K.
     """
-    engine = store.make_engine(f"sqlite:///{db_path}")
-    store.migrate(engine)
+    engine = db.make_engine(f"sqlite:///{db_path}")
+    db.migrate(engine)
     _register(engine, spec)
     simulator = sim.Simulator(spec)
     per_step = round(step_hours * HOUR_S / spec.interval_s)
@@ -232,7 +232,7 @@ def run_fleet(
         times.append(chunk.t)
         air.append(chunk.truth["t_air"])
         t1 = time.perf_counter()
-        store.store_batch(engine, _readings(chunk))
+        db.store_batch(engine, _readings(chunk))
         t2 = time.perf_counter()
         runner.analyze(engine)
         t3 = time.perf_counter()
@@ -304,7 +304,7 @@ def true_capacity_fraction(truth: sim.FleetTruth, device_id: str, t_s: float) ->
 
 
 def opened_alerts(engine: sa.Engine) -> list[dict[str, Any]]:
-    a = store.alerts
+    a = db.alerts
     with engine.connect() as conn:
         rows = conn.execute(
             sa.select(a.c.id, a.c.device_id, a.c.kind, a.c.severity, a.c.opened_ms, a.c.summary)
@@ -321,7 +321,7 @@ def opened_alerts(engine: sa.Engine) -> list[dict[str, Any]]:
 
 def alert_openings(engine: sa.Engine) -> list[dict[str, Any]]:
     """Every time an alert opened or reopened, oldest first, from the audit trail."""
-    a, au = store.alerts, store.alert_audit
+    a, au = db.alerts, db.alert_audit
     with engine.connect() as conn:
         rows = conn.execute(
             sa.select(a.c.id, a.c.device_id, a.c.kind, au.c.at_ms)
@@ -447,8 +447,10 @@ def main(argv: list[str] | None = None) -> int:
     args = ap.parse_args(argv)
     spec, expected = scoring_fleet(args.days, healthy=args.healthy, seed=args.seed)
     with tempfile.TemporaryDirectory() as tmp:
-        db = args.keep if args.keep is not None else Path(tmp) / "bench.db"
-        engine, truth, spent, beyond = run_fleet(db, spec, args.days, step_hours=args.step_hours)
+        db_path = args.keep if args.keep is not None else Path(tmp) / "bench.db"
+        engine, truth, spent, beyond = run_fleet(
+            db_path, spec, args.days, step_hours=args.step_hours
+        )
         result = score(engine, expected, truth, beyond)
         engine.dispose()
     print(

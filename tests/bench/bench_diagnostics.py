@@ -31,7 +31,7 @@ import sqlalchemy as sa
 
 from tecfleet.analytics import runner
 from tecfleet.analytics import simulator as sim
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 
 START_S = 1_735_689_600.0  # 2025-01-01T00:00Z, a day boundary
 
@@ -41,12 +41,12 @@ def build_db(
 ) -> tuple[Any, sim.FleetTruth, float]:
     """Simulate ``spec`` for ``days`` and bulk-load the readings; returns (engine, truth, s).
     With ``simulator`` given, that one runs (and can be run on afterwards)."""
-    engine = store.make_engine(f"sqlite:///{path}")
-    store.migrate(engine)
+    engine = db.make_engine(f"sqlite:///{path}")
+    db.migrate(engine)
     t0 = time.perf_counter()
     simulator = simulator or sim.Simulator(spec)
     total = round(days * 86_400.0 / spec.interval_s)
-    now = store.now_ms()
+    now = db.now_ms()
     raw = sqlite3.connect(path)
     raw.executemany(
         "INSERT INTO devices (device_id, module, cabinet, readings, first_seen_ms) "
@@ -70,7 +70,7 @@ def build_db(
 def append_steps(path: Path, spec: sim.FleetSpec, simulator: sim.Simulator, steps: int) -> int:
     """Run the simulator on by ``steps`` sampling intervals and bulk-load what it reports;
     returns the readings stored."""
-    now = store.now_ms()
+    now = db.now_ms()
     raw = sqlite3.connect(path)
     done = stored = 0
     last: dict[str, int] = {}
@@ -395,7 +395,7 @@ def part_speed(n_dev: int, days: float) -> None:
         path = Path(tmp) / "speed.db"
         engine, _truth, build_s = build_db(path, spec, days, simulator)
         with engine.connect() as c:
-            n = c.execute(sa.select(sa.func.count()).select_from(store.readings)).scalar()
+            n = c.execute(sa.select(sa.func.count()).select_from(db.readings)).scalar()
         print(f"simulated and stored {n} readings in {build_s:.1f} s (not timed below)")
         t0 = time.perf_counter()
         rep = runner.analyze(engine)
@@ -434,10 +434,10 @@ def _chunk_columns(spec: sim.FleetSpec, c: Any) -> list[list[Any]]:
     ]
 
 
-def _chunk_readings(spec: sim.FleetSpec, c: Any) -> list[store.Reading]:
+def _chunk_readings(spec: sim.FleetSpec, c: Any) -> list[db.Reading]:
     """What one simulator chunk reports, as the ingester's readings."""
     return [
-        store.Reading(d, t, *vals, rh=rh, door_open=dr)
+        db.Reading(d, t, *vals, rh=rh, door_open=dr)
         for d, t, *vals, rh, dr in zip(*_chunk_columns(spec, c), strict=True)
     ]
 
@@ -453,22 +453,22 @@ def part_live_postgres(n_dev: int, days: float) -> None:
     pg = Postgres()
     pg.start()
     try:
-        engine = store.make_engine(pg.create_database("bench_live"))
-        store.migrate(engine)
+        engine = db.make_engine(pg.create_database("bench_live"))
+        db.migrate(engine)
         with engine.begin() as conn:
             conn.execute(
-                store.devices.insert(),
+                db.devices.insert(),
                 [
                     {"device_id": d.device_id, "module": d.registration()["module"],
                      "cabinet": d.registration()["cabinet"], "readings": 0,
-                     "first_seen_ms": store.now_ms()}
+                     "first_seen_ms": db.now_ms()}
                     for d in spec.devices
                 ],
             )  # fmt: skip
         t0 = time.perf_counter()
         total = round(days * 86_400.0 / spec.interval_s)
         for _ in range(0, total, 360):
-            store.store_batch(engine, _chunk_readings(spec, simulator.run(360)))
+            db.store_batch(engine, _chunk_readings(spec, simulator.run(360)))
         print(f"simulated and stored {days:g} days in {time.perf_counter() - t0:.1f} s (not timed)")
         t0 = time.perf_counter()
         runner.analyze(engine)
@@ -477,7 +477,7 @@ def part_live_postgres(n_dev: int, days: float) -> None:
         per_reading = []
         for _ in range(6):
             rows = _chunk_readings(spec, simulator.run(hour))
-            store.store_batch(engine, rows)
+            db.store_batch(engine, rows)
             t0 = time.perf_counter()
             runner.analyze(engine)
             per_reading.append((time.perf_counter() - t0) / max(len(rows), 1))

@@ -26,7 +26,7 @@ from paho.mqtt.enums import CallbackAPIVersion
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 from tecfleet.ingest.ingester import Ingester
 from tecfleet.ingest.settings import load_settings
 from tests.services import Mosquitto, Postgres
@@ -108,8 +108,8 @@ def bare_rate(port: int, messages: list[tuple[str, bytes]]) -> float:
 
 
 def ingester_rate(port: int, db_url: str, messages: list[tuple[str, bytes]], n_rows: int) -> float:
-    engine = store.make_engine(db_url)
-    store.migrate(engine)
+    engine = db.make_engine(db_url)
+    db.migrate(engine)
     settings = load_settings(
         {
             "database_url": db_url,
@@ -127,7 +127,7 @@ def ingester_rate(port: int, db_url: str, messages: list[tuple[str, bytes]], n_r
 
     while True:
         with engine.connect() as c:
-            stored = c.execute(sa.select(sa.func.count()).select_from(store.readings)).scalar_one()
+            stored = c.execute(sa.select(sa.func.count()).select_from(db.readings)).scalar_one()
         if stored >= n_rows or time.perf_counter() - start > 600:
             break
         time.sleep(0.02)
@@ -139,11 +139,11 @@ def ingester_rate(port: int, db_url: str, messages: list[tuple[str, bytes]], n_r
 
 def _prepare(url: str, data: list[dict[str, Any]]) -> list[tuple[Any, ...]]:
     """Create the schema and the devices, and return the rows as driver tuples."""
-    engine = store.make_engine(url)
-    store.migrate(engine)
+    engine = db.make_engine(url)
+    db.migrate(engine)
     with engine.begin() as c:
         c.execute(
-            store.devices.insert(),
+            db.devices.insert(),
             [{"device_id": d, "readings": 0} for d in sorted({r["device"] for r in data})],
         )
     engine.dispose()

@@ -13,7 +13,7 @@ import sqlalchemy as sa
 from paho.mqtt.enums import CallbackAPIVersion
 from sqlalchemy.engine import Engine
 
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 from tecfleet.ingest.ingester import Ingester
 from tecfleet.ingest.settings import Settings, load_settings
 
@@ -87,8 +87,8 @@ def start_ingester(
     settings = load_settings(
         {"database_url": db_url, "mqtt_url": mqtt_url, "mqtt_client_id": client_id, **extra}, env={}
     )
-    engine = store.make_engine(db_url)
-    store.migrate(engine)
+    engine = db.make_engine(db_url)
+    db.migrate(engine)
     ingester = Ingester(settings, engine)
     ingester.start()
     assert ingester.ready.wait(20), "ingester did not subscribe"
@@ -96,9 +96,9 @@ def start_ingester(
 
 
 def count_readings(engine: Engine, device_id: str | None = None) -> int:
-    stmt = sa.select(sa.func.count()).select_from(store.readings)
+    stmt = sa.select(sa.func.count()).select_from(db.readings)
     if device_id:
-        stmt = stmt.where(store.readings.c.device_id == device_id)
+        stmt = stmt.where(db.readings.c.device_id == device_id)
     with engine.connect() as connection:
         return int(connection.execute(stmt).scalar_one())
 
@@ -114,7 +114,7 @@ def wait_for(predicate: Callable[[], bool], timeout_s: float = 60.0, every_s: fl
 
 def table_snapshot(engine: Engine) -> list[tuple[Any, ...]]:
     """Readings as stored, without the columns that depend on arrival (id, received time)."""
-    columns = [c for c in store.readings.c if c.name not in ("id", "received_ms")]
-    stmt = sa.select(*columns).order_by(store.readings.c.device_id, store.readings.c.ts_ms)
+    columns = [c for c in db.readings.c if c.name not in ("id", "received_ms")]
+    stmt = sa.select(*columns).order_by(db.readings.c.device_id, db.readings.c.ts_ms)
     with engine.connect() as connection:
         return [tuple(row) for row in connection.execute(stmt)]

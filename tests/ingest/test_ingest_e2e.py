@@ -6,7 +6,7 @@ import random
 
 import sqlalchemy as sa
 
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 from tecfleet.ingest.embedded_broker import EmbeddedBroker
 from tests.ingest.mqtt_helpers import (
     Publisher,
@@ -47,7 +47,7 @@ def test_singles_batches_senml_and_redeliveries_store_exactly_n(
         assert count_readings(engine, "cab-b") == n_batch
         assert count_readings(engine, "cab-c") == n_senml
         with engine.connect() as c:
-            rows = {r.device_id: r for r in c.execute(sa.select(store.devices))}
+            rows = {r.device_id: r for r in c.execute(sa.select(db.devices))}
         assert rows["cab-b"].readings == n_batch
         assert rows["cab-a"].last_reading_ms == round(reading(n_single - 1)["ts"] * 1000)
     finally:
@@ -68,7 +68,7 @@ def test_bad_input_lands_in_rejects_beside_good_readings(mosquitto: Mosquitto, d
         assert wait_for(lambda: _reject_codes(engine) >= 5, 30)
         assert count_readings(engine, "cab-r") == 2
         with engine.connect() as c:
-            codes = sorted(r.code for r in c.execute(sa.select(store.rejects)))
+            codes = sorted(r.code for r in c.execute(sa.select(db.rejects)))
         assert codes == sorted(
             ["out_of_range", "not_utf8", "missing_field", "bad_device_id", "future_timestamp"]
         )
@@ -79,7 +79,7 @@ def test_bad_input_lands_in_rejects_beside_good_readings(mosquitto: Mosquitto, d
 
 def _reject_codes(engine: sa.Engine) -> int:
     with engine.connect() as c:
-        return int(c.execute(sa.select(sa.func.count()).select_from(store.rejects)).scalar_one())
+        return int(c.execute(sa.select(sa.func.count()).select_from(db.rejects)).scalar_one())
 
 
 def test_replayed_twice_and_shuffled_gives_the_identical_table(
@@ -125,7 +125,7 @@ def test_embedded_broker_end_to_end(sqlite_url: str) -> None:
         pub.close()
         assert wait_for(lambda: count_readings(engine) == 300, 30)
         with engine.connect() as c:
-            status = c.execute(sa.select(store.devices.c.status)).scalar_one()
+            status = c.execute(sa.select(db.devices.c.status)).scalar_one()
         assert wait_for(lambda: status == "online" or _status(engine) == "online", 10)
         ingester.stop()
     finally:
@@ -134,4 +134,4 @@ def test_embedded_broker_end_to_end(sqlite_url: str) -> None:
 
 def _status(engine: sa.Engine) -> str | None:
     with engine.connect() as c:
-        return c.execute(sa.select(store.devices.c.status)).scalar_one()
+        return c.execute(sa.select(db.devices.c.status)).scalar_one()

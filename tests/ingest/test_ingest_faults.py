@@ -13,7 +13,7 @@ import httpx
 import pytest
 import sqlalchemy as sa
 
-from tecfleet.ingest import store
+from tecfleet.ingest import db
 from tests.ingest.mqtt_helpers import Publisher, count_readings, reading, start_ingester, wait_for
 from tests.services import Mosquitto, Postgres, free_port
 
@@ -41,7 +41,7 @@ def _spawn_service(db_url: str, mqtt_url: str, port: int, log: Path) -> subproce
 
 
 def _seqs(engine: sa.Engine, device_id: str) -> list[int]:
-    stmt = sa.select(store.readings.c.seq).where(store.readings.c.device_id == device_id)
+    stmt = sa.select(db.readings.c.seq).where(db.readings.c.device_id == device_id)
     with engine.connect() as c:
         return sorted(int(s) for s in c.execute(stmt).scalars())
 
@@ -51,8 +51,8 @@ def test_sigkill_mid_stream_then_restart_loses_and_doubles_nothing(
 ) -> None:
     port = free_port()
     log = tmp_path / "service.log"
-    engine = store.make_engine(db_url)
-    store.migrate(engine)
+    engine = db.make_engine(db_url)
+    db.migrate(engine)
     service = _spawn_service(db_url, mosquitto.url, port, log)
     pub = Publisher(mosquitto.url)
     n = 3000

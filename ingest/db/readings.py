@@ -1,0 +1,292 @@
+"""Readings in and out: the ingester's idempotent batch write and the one reading loader."""
+
+from __future__ import annotations
+
+import itertools
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any, NamedTuple
+
+import numpy as np
+import sqlalchemy as sa
+from numpy.typing import NDArray
+from sqlalchemy.dialects import postgresql, sqlite
+from sqlalchemy.engine import Connection, Engine
+from sqlalchemy.exc import SQLAlchemyError
+
+from tecfleet.ingest.db.engine import marker, now_ms
+from tecfleet.ingest.db.tables import devices, readings, rejects
+from tecfleet.ingest.errors import StoreError
+
+
+class Reading(NamedTuple):
+    """One validated reading of one device (temperatures in °C).
+
+    A named tuple rather than a dataclass: the ingester makes one per reading, and a tuple in
+    the insert's column order goes to the driver as it is.
+    """
+
+    device_id: str
+    ts_ms: int
+    t_cabinet: float
+    t_cold: float
+    t_hot: float
+    t_ambient: float
+    current: float
+    voltage: float
+    seq: int | None = None
+    rh: float | None = None
+    door_open: bool | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class Reject:
+    """One payload (or one item of a batch) that cannot be stored, and why."""
+
+    topic: str
+    payload: bytes
+    code: str
+    reason: str
+    device_id: str | None = None
+    item: int | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class StatusUpdate:
+    device_id: str
+    status: str
+    at_ms: int
+
+
+_DEVICE_BUMP = (
+    devices.update()
+    .where(devices.c.device_id == sa.bindparam("b_device"))
+    .values(
+        readings=devices.c.readings + sa.bindparam("b_count"),
+        last_reading_ms=sa.case(
+            (
+                sa.or_(
+                    devices.c.last_reading_ms.is_(None),
+                    devices.c.last_reading_ms < sa.bindparam("b_newest"),
+                ),
+                sa.bindparam("b_newest"),
+            ),
+            else_=devices.c.last_reading_ms,
+        ),
+    )
+)
+
+_DEVICE_RECOUNT = (
+    devices.update()
+    .where(devices.c.device_id == sa.bindparam("b_device"))
+    .values(
+        readings=sa.select(sa.func.count())
+        .select_from(readings)
+        .where(readings.c.device_id == sa.bindparam("b_device"))
+        .scalar_subquery(),
+        last_reading_ms=sa.select(sa.func.max(readings.c.ts_ms))
+        .where(readings.c.device_id == sa.bindparam("b_device"))
+        .scalar_subquery(),
+    )
+)
+
+
+# Reading's field order, then the receive time.
+_READING_INSERT_COLUMNS = ", ".join((*Reading._fields, "received_ms"))
+
+
+def _insert_readings_sql(connection: Connection) -> str:
+    values = ", ".join([marker(connection)] * (len(Reading._fields) + 1))
+    return (
+        f"INSERT INTO readings ({_READING_INSERT_COLUMNS}) VALUES ({values})"
+        " ON CONFLICT (device_id, ts_ms) DO NOTHING"
+    )
+
+
+def _insert(dialect_name: str, table: sa.Table) -> Any:
+    if dialect_name == "postgresql":
+        return postgresql.insert(table)
+    return sqlite.insert(table)
+
+
+def write_batch(
+    connection: Connection,
+    batch_readings: Sequence[Reading],
+    batch_rejects: Sequence[Reject],
+    statuses: Sequence[StatusUpdate] = (),
+    *,
+    payload_cap: int = 4096,
+) -> int:
+    """Store readings idempotently, plus rejects and status changes, in the caller's transaction.
+
+    Returns the number of readings newly stored; a reading whose (device, timestamp) is already
+    stored is skipped, so a redelivered message stores nothing twice.
+    """
+    dialect = connection.dialect.name
+    received = now_ms()
+    stored = 0
+    device_ids = sorted({r.device_id for r in batch_readings} | {s.device_id for s in statuses})
+    if device_ids:
+        upsert = _insert(dialect, devices).on_conflict_do_nothing(index_elements=["device_id"])
+        connection.execute(
+            upsert, [{"device_id": d, "first_seen_ms": received, "readings": 0} for d in device_ids]
+        )
+    if batch_readings:
+        # Straight to the driver's executemany: SQLAlchemy's per-row parameter processing
+        # would cost more than the insert itself.
+        tail = (received,)
+        rows = [r + tail for r in batch_readings]
+        result = connection.exec_driver_sql(_insert_readings_sql(connection), rows)
+        stored = result.rowcount
+        if stored == len(rows):
+            # Every row was new: the batch itself says what each device gained.
+            per_device: dict[str, list[int]] = {}
+            for r in batch_readings:
+                entry = per_device.setdefault(r.device_id, [0, r.ts_ms])
+                entry[0] += 1
+                entry[1] = max(entry[1], r.ts_ms)
+            connection.execute(
+                _DEVICE_BUMP,
+                [{"b_device": d, "b_count": c, "b_newest": t} for d, (c, t) in per_device.items()],
+            )
+        else:
+            # Some rows were already stored (a redelivery or replay): recount those devices
+            # from the index rather than guess which rows were new.
+            touched = sorted({r.device_id for r in batch_readings})
+            connection.execute(_DEVICE_RECOUNT, [{"b_device": d} for d in touched])
+            stored = max(stored, 0)
+    for status in statuses:
+        connection.execute(
+            devices.update()
+            .where(devices.c.device_id == status.device_id)
+            .where(sa.or_(devices.c.status_at_ms.is_(None), devices.c.status_at_ms <= status.at_ms))
+            .values(status=status.status, status_at_ms=status.at_ms)
+        )
+    if batch_rejects:
+        connection.execute(
+            rejects.insert(),
+            [
+                {
+                    "received_ms": received,
+                    "topic": rej.topic[:1024],
+                    "device_id": rej.device_id,
+                    "item": rej.item,
+                    "code": rej.code,
+                    "reason": rej.reason[:2000],
+                    "payload": bytes(rej.payload[:payload_cap]),
+                    "payload_size": len(rej.payload),
+                }
+                for rej in batch_rejects
+            ],
+        )
+    return stored
+
+
+def store_batch(
+    engine: Engine,
+    batch_readings: Sequence[Reading],
+    batch_rejects: Sequence[Reject] = (),
+    statuses: Sequence[StatusUpdate] = (),
+    *,
+    payload_cap: int = 4096,
+) -> int:
+    """``write_batch`` in a transaction of its own; database failures become ``StoreError``."""
+    try:
+        with engine.begin() as connection:
+            return write_batch(
+                connection, batch_readings, batch_rejects, statuses, payload_cap=payload_cap
+            )
+    except SQLAlchemyError as exc:
+        raise StoreError(f"could not store batch: {exc.__class__.__name__}: {exc}") from exc
+
+
+READING_COLUMNS = (
+    "ts_ms",
+    "seq",
+    "t_cabinet",
+    "t_cold",
+    "t_hot",
+    "t_ambient",
+    "current",
+    "voltage",
+    "rh",
+    "door_open",
+)
+
+#: Columns that may be NULL; they come back as NaN.
+_NULLABLE = frozenset({"seq", "rh"})
+#: A missing door flag reads as closed (0), an open door as 1.
+_SELECT_AS = {"door_open": "CASE WHEN door_open THEN 1 ELSE 0 END"}
+#: Address space SQLite may map per connection for reading (only what the file holds is mapped).
+_SQLITE_MMAP_BYTES = 1 << 30
+
+
+def read_arrays(
+    connection: Connection,
+    device_id: str,
+    columns: Sequence[str],
+    start_ms: int,
+    end_ms: int,
+) -> NDArray[np.float64]:
+    """Readings of one device with ``start_ms <= ts_ms < end_ms`` (epoch ms UTC), oldest first,
+    as a float array with one column per name in ``columns`` (temperatures in °C as stored;
+    NULL as NaN; ``door_open`` as 1/0). Every analysis reads readings through here.
+
+    Plain SQL on the driver's own cursor: building SQLAlchemy result rows costs more than the
+    analysis of them. Milliseconds since 1970 stay below 2**53, so ``ts_ms`` is exact in float.
+    """
+    unknown = [c for c in columns if c not in READING_COLUMNS]
+    if unknown:
+        raise StoreError(f"unknown reading columns {unknown}; known: {list(READING_COLUMNS)}")
+    m = marker(connection)
+    select = ", ".join(_SELECT_AS.get(c, c) for c in columns)
+    sql = (
+        f"SELECT {select} FROM readings "
+        f"WHERE device_id = {m} AND ts_ms >= {m} AND ts_ms < {m} ORDER BY ts_ms"
+    )
+    cursor = connection.connection.cursor()
+    try:
+        if connection.dialect.name == "sqlite":
+            # A device's rows lie scattered over the whole table (devices report interleaved):
+            # memory-mapped pages halve the cost of visiting them compared with read() calls.
+            cursor.execute(f"PRAGMA mmap_size = {_SQLITE_MMAP_BYTES}")
+        cursor.execute(sql, (device_id, int(start_ms), int(end_ms)))
+        rows = cursor.fetchall()
+    finally:
+        cursor.close()
+    k = len(columns)
+    if not rows:
+        return np.zeros((0, k), np.float64)
+    if _NULLABLE.isdisjoint(columns):
+        # fromiter over the flattened rows is the fastest way in; it cannot take None.
+        flat = itertools.chain.from_iterable(rows)
+        return np.fromiter(flat, np.float64, len(rows) * k).reshape(-1, k)
+    return np.array(rows, dtype=np.float64)
+
+
+def load_readings(
+    engine: Engine,
+    device_id: str,
+    start_ms: int | None = None,
+    end_ms: int | None = None,
+    columns: Sequence[str] = READING_COLUMNS,
+) -> Any:
+    """:func:`read_arrays` in a connection of its own, as a pandas DataFrame (``ts_ms`` int64);
+    ``start_ms`` is inclusive and ``end_ms`` exclusive, either open when None."""
+    import pandas as pd
+
+    try:
+        with engine.connect() as connection:
+            arr = read_arrays(
+                connection,
+                device_id,
+                columns,
+                -(2**62) if start_ms is None else start_ms,
+                2**62 if end_ms is None else end_ms,
+            )
+    except SQLAlchemyError as exc:
+        raise StoreError(f"could not load readings of {device_id}: {exc}") from exc
+    frame = pd.DataFrame({c: arr[:, j] for j, c in enumerate(columns)})
+    if "ts_ms" in frame:
+        frame["ts_ms"] = frame["ts_ms"].astype(np.int64)
+    return frame

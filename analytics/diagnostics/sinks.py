@@ -141,6 +141,26 @@ def _faces(
     return taus_own, tau_slow, slow_faces, h_typ
 
 
+def _balances(
+    grid: SampleGrid,
+    segs: Segments,
+    heat: tuple[FloatArray, FloatArray, FloatArray],
+    temps: tuple[FloatArray, FloatArray, FloatArray, FloatArray],
+) -> list[tuple[FloatArray, FloatArray]]:
+    # The two balances' designs (columns k, c_cold, g_cold, g_hot, c_hot) and left-hand
+    # sides ∫Pc, ∫Ph per segment.
+    pc, ph, dtv = heat
+    tcab, tc, th, ta = temps
+    sums, trap = segs.sums, grid.trap
+    i_pc, i_ph, i_dt = sums(trap(pc)), sums(trap(ph)), sums(trap(dtv))
+    i_cold, i_hot = sums(trap(tcab - tc)), sums(trap(th - ta))
+    d_c, d_h = sums(np.diff(tc)), sums(np.diff(th))
+    z = np.zeros_like(i_pc)
+    x_cold = np.column_stack([i_dt, -d_c, i_cold, z, z])
+    x_hot = np.column_stack([i_dt, z, z, i_hot, d_h])
+    return [(x_cold, i_pc), (x_hot, i_ph)]
+
+
 def fit_sinks(
     grid: SampleGrid,
     pair: BoolArray,
@@ -181,8 +201,7 @@ def fit_sinks(
     InsufficientDataError : too few complete segments.
     EstimationError : K or a sink conductance not positive.
     """
-    pc, ph, dtv = heat
-    tcab, tc, th, ta = temps
+    tc, th = temps[1], temps[2]
     segment_s, min_segments = options.segment_s, options.min_segments
     segs = grid.segments(segment_s, pair)
     if segs.n_good < min_segments:
@@ -191,16 +210,11 @@ def fit_sinks(
             "too few complete stretches of readings (door openings, gaps or faults)",
         )
     sums, trap = segs.sums, grid.trap
-    i_pc, i_ph, i_dt = sums(trap(pc)), sums(trap(ph)), sums(trap(dtv))
-    i_cold, i_hot = sums(trap(tcab - tc)), sums(trap(th - ta))
-    d_c, d_h = sums(np.diff(tc)), sums(np.diff(th))
-    z = np.zeros_like(i_pc)
-    x_cold = np.column_stack([i_dt, -d_c, i_cold, z, z])
-    x_hot = np.column_stack([i_dt, z, z, i_hot, d_h])
+    blocks = _balances(grid, segs, heat, temps)
+    z = np.zeros_like(blocks[0][1])
     on = i > options.on_current
     rests, one_point = _one_operating_point(grid, segs, i, on, usable, options)
     k0 = k_settled if one_point and k_settled is not None else k_prior
-    blocks = [(x_cold, i_pc), (x_hot, i_ph)]
     p1, cov1, forced, _ = robust_weighted(
         blocks, 0, k0, k_prior_rel * k_prior, _POSITIVE, hold=one_point
     )

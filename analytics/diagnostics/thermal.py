@@ -26,12 +26,12 @@ import numpy as np
 
 from .._validate import FloatArray
 from ..errors import InsufficientDataError
-from .cabinet import fit_cabinet
+from .cabinet import CabinetFit, fit_cabinet
 from .error_budget import cabinet_stderrs, sink_k_errors
 from .estimates import BoolArray
 from .integrals import SampleGrid
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
-from .sinks import fit_sinks
+from .sinks import SinkFit, fit_sinks
 
 __all__ = ["THERMAL_PARAMS", "ThermalFit", "fit_thermal"]
 
@@ -143,24 +143,12 @@ def fit_thermal(
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
 
-    Stage 1, the sinks (:func:`.sinks.fit_sinks`), over segments of ``segment_s``::
-
-        ∫Pc = g_c·∫(Tcab - Tc) + K·∫ΔT - Cc·δTc + a_c·τ   (cold sink)
-        ∫Ph = g_h·∫(Th - Ta)   + K·∫ΔT + Ch·δTh + a_h·τ   (hot sink)
-
-    with Pc = S·I·Tc - ½·I²·R and Ph = S·I·Th + ½·I²·R (Goldsmid 2010, ch. 2), a prior
-    K = ``k_prior`` ± ``k_prior_rel`` and constant heat flows a_c, a_h for the probe offsets.
-    K is held (at ``k_settled``, else the prior) at a single operating point, and at its prior
-    where the sinks store heat over a good part of a sampling interval while the module
-    switches often (``max_sink_tau_share``, ``max_transient_share``).
-
-    Stage 2, the cabinet (:func:`.cabinet.fit_cabinet`), over blocks of ``cabinet_block_s``
-    with Qc = Pc - K·ΔT::
-
-        ∫Qc = UA·∫(Ta - Tcab) + q_int·τ - C·δTcab
-
-    with a prior on q_int, a contents node where the module never rests, and blocks with warm
-    goods, a locked cycle or a warm spell's aftermath left out. Lumped-capacitance balances:
+    Stage 1, :func:`.sinks.fit_sinks`: the cold and hot sink balances over segments of
+    ``segment_s``, with a prior K = ``k_prior`` ± ``k_prior_rel`` and constant heat flows for
+    the probe offsets; K held at a single operating point and where the sinks store heat
+    faster than the samples follow. Stage 2, :func:`.cabinet.fit_cabinet`: the cabinet
+    balance over blocks of ``cabinet_block_s``, ∫Qc = UA·∫(Ta - Tcab) + q_int·τ - C·δTcab
+    with Qc = S·I·Tc - ½·I²·R - K·ΔT (Goldsmid 2010, ch. 2). Lumped-capacitance balances:
     Incropera et al. (2007), ch. 5. Stated errors: :mod:`.error_budget`.
 
     Parameters
@@ -222,7 +210,7 @@ def fit_thermal(
         grid, pair, (pc, ph, dtv), (tcab, tc, th, ta), i, s, r, usable, k_prior, k_prior_rel,
         k_settled, sink_taus_settled, options,
     )  # fmt: skip
-    k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in sk.params[:5])
+    k = float(sk.params[0])
     k_sd, k_probe, k_from_data = sink_k_errors(
         sk.k_sd_scatter, sk.cov, sk.forced, k_prior, k_prior_rel
     )
@@ -230,11 +218,24 @@ def fit_thermal(
         grid, base, (tcab, tc, ta), (pc, dtv), (i, s, r, on),
         (k, sk.forced, sk.slow_faces, sk.rests), k_settled, q_settled, options,
     )  # fmt: skip
-    ua, q_int, c = (float(v) for v in cab.params[:3])
     stderrs = cabinet_stderrs(
-        sk.cov, cab.cov, cab.resp, sk.resp[:, 0], ua, k_sd, k_probe, cab.held_cab, sr_rel_cov,
-        options.probe_offset_k,
+        sk.cov, cab.cov, cab.resp, sk.resp[:, 0], float(cab.params[0]), k_sd, k_probe,
+        cab.held_cab, sr_rel_cov, options.probe_offset_k,
     )  # fmt: skip
+    return _result(sk, cab, stderrs, pair, k_from_data, options)
+
+
+def _result(
+    sk: SinkFit,
+    cab: CabinetFit,
+    stderrs: dict[str, float],
+    pair: BoolArray,
+    k_from_data: bool,
+    options: DiagnosticsOptions,
+) -> ThermalFit:
+    # The fit as served: parameters, their errors, reliability and remarks.
+    k, c_cold, g_cold, g_hot, c_hot = (float(v) for v in sk.params[:5])
+    ua, q_int, c = (float(v) for v in cab.params[:3])
     ua_rel = stderrs["ua"] / ua
     ua_ok = ua_rel < options.ua_max_rel_stderr
     c_ok = c > 0.0 and stderrs["c"] < options.c_max_rel_stderr * c

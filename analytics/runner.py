@@ -88,7 +88,7 @@ import os
 import statistics
 import time
 from concurrent.futures import ProcessPoolExecutor
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime
 from typing import Any
 
@@ -233,6 +233,15 @@ class AnalysisSettings:
     #: Fewest pending steps, summed over devices, worth starting worker processes for: a
     #: live run (a step or two per device) stays in this process.
     parallel_min_steps: int = 2000
+
+
+def _dg_options(cfg: AnalysisSettings) -> dg.DiagnosticsOptions:
+    # The diagnostics' options with the settings this runner exposes.
+    return dg.DiagnosticsOptions(
+        on_current=cfg.on_current,
+        probe_offset_k=cfg.probe_offset_k,
+        min_rest_share=cfg.min_rest_share,
+    )
 
 
 @dataclass
@@ -571,7 +580,7 @@ def _analyze_device(
     breaks = np.append(stp[1:] != stp[:-1], True) if data.ts.size else np.zeros(0, dtype=bool)
     data.flags = dg.flag_samples(
         data.t, data.tcab, data.tc, data.th, data.ta, data.i, data.v, data.door,
-        on_current=cfg.on_current, breaks=breaks,
+        breaks=breaks, options=_dg_options(cfg),
     )  # fmt: skip
     rows = _Rows(dev.device_id)
     prior = _priors(dev.module, cfg)
@@ -818,8 +827,8 @@ def _fit_window(
     e_prior = (prior.resistance, prior.seebeck, cfg.rating_rel_sd) if prior is not None else None
     try:
         el = dg.fit_electrical(
-            i, v, tc, th, usable, floating=floating, on_current=cfg.on_current,
-            alpha=cfg.alpha, beta=cfg.beta, prior=e_prior, probe_offset_k=cfg.probe_offset_k,
+            i, v, tc, th, usable, floating=floating, alpha=cfg.alpha, beta=cfg.beta,
+            prior=e_prior, options=_dg_options(cfg),
         )  # fmt: skip
     except PhysicsError as exc:
         note = getattr(exc, "reason", str(exc))
@@ -840,7 +849,7 @@ def _fit_window(
     rows.add("module.seebeck_25c_v_per_k", b, s_own, se_own, n_el, el.reliable, el.note)
     rows.add("module.seebeck_v_per_k", b, s_own * f_s, se_own * f_s, n_el, el.reliable, el.note)
     if floating:
-        s_steps, _ = dg.harman_steps(t, i, v, tc, th, usable, on_current=cfg.on_current)
+        s_steps, _ = dg.harman_steps(t, i, v, tc, th, usable, options=_dg_options(cfg))
         if s_steps.size >= 3:
             rows.add(
                 "module.seebeck_step_v_per_k", b, float(np.median(s_steps)),
@@ -880,11 +889,9 @@ def _fit_window(
     try:
         th_fit = dg.fit_thermal(
             data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
-            s_t, r_t, usable_th, k0, k_rel, on_current=cfg.on_current,
-            probe_offset_k=cfg.probe_offset_k, k_settled=k_settled,
-            q_settled=_q_settled(state, cfg),
-            min_rest_share=cfg.min_rest_share, sr_rel_cov=sr_rel_cov,
-            sink_taus_settled=_taus_settled(state, cfg),
+            s_t, r_t, usable_th, k0, k_rel, k_settled=k_settled,
+            q_settled=_q_settled(state, cfg), sr_rel_cov=sr_rel_cov,
+            sink_taus_settled=_taus_settled(state, cfg), options=_dg_options(cfg),
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))
@@ -1102,8 +1109,10 @@ def _hot_side(
         data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r,
         state.get("k_trend", params["k"]),
         _flags(data, w).usable, block, len(ends), c_hot=params["c_hot"],
-        min_heat_j=cfg.r_hot_min_heat_w * cfg.step_s, probe_offset_k=cfg.probe_offset_k,
-        faces_followed=bool(params.get("faces_followed", True)), on_current=cfg.on_current,
+        faces_followed=bool(params.get("faces_followed", True)),
+        options=replace(
+            _dg_options(cfg), hot_side_min_heat_j=cfg.r_hot_min_heat_w * cfg.step_s
+        ),
     )  # fmt: skip
     n_samples = np.bincount(block, minlength=len(ends))
     return {

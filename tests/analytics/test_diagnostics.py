@@ -24,6 +24,7 @@ import pytest
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics as ph
 from tecfleet.analytics import simulator as sm
+from tecfleet.analytics.diagnostics import cabinet
 from tecfleet.analytics.errors import InsufficientDataError
 from tests.analytics.synthetic import Noise, Truth, simulate
 
@@ -301,7 +302,7 @@ def test_cycle_locked_to_the_sampling_is_left_out_of_the_cabinet_balance() -> No
     steady = np.ones(60, dtype=bool)
     on = np.concatenate([locked, irregular, steady])
     block = np.repeat(np.arange(3), 60)[:-1]
-    assert dg._strobed_blocks(on, block).tolist() == [True, False, False]
+    assert cabinet.strobed_blocks(on, block).tolist() == [True, False, False]
 
 
 def test_lag_one_autocorrelation_of_the_cabinet_residuals() -> None:
@@ -315,13 +316,13 @@ def test_lag_one_autocorrelation_of_the_cabinet_residuals() -> None:
     x = np.zeros_like(e)
     for k in range(1, e.size):
         x[k] = 0.6 * x[k - 1] + e[k]
-    rho = dg._lag_one_autocorrelation(x)
+    rho = cabinet.lag_one_autocorrelation(x)
     assert rho == pytest.approx(float(np.corrcoef(x[1:], x[:-1])[0, 1]), abs=0.01)
     assert rho == pytest.approx(0.6, abs=0.03)
     alternating = np.tile([1.0, -1.0], 20)
-    assert dg._lag_one_autocorrelation(alternating) == 0.0
-    assert dg._lag_one_autocorrelation(np.arange(40.0)) == 0.9
-    assert dg._lag_one_autocorrelation(np.array([1.0, 2.0])) == 0.0
+    assert cabinet.lag_one_autocorrelation(alternating) == 0.0
+    assert cabinet.lag_one_autocorrelation(np.arange(40.0)) == 0.9
+    assert cabinet.lag_one_autocorrelation(np.array([1.0, 2.0])) == 0.0
 
 
 def test_hot_side_resistance_per_hour_matches_one_hour_at_a_time(day: dict[str, Any]) -> None:
@@ -426,7 +427,7 @@ def test_two_smaller_loads_of_warm_goods_do_not_inflate_ua(monkeypatch: Any) -> 
         assert len(truth.loads["unit-1"]) == 2
         assert _fit_simulated(loaded, p).ua == pytest.approx(dev.ua, rel=0.10)
         with monkeypatch.context() as m:
-            m.setattr(dg, "_warm_goods_runs", lambda res: np.zeros(res.size, dtype=bool))
+            m.setattr(cabinet, "warm_goods_runs", lambda res: np.zeros(res.size, dtype=bool))
             assert _fit_simulated(loaded, p).ua > 1.25 * dev.ua
 
 
@@ -497,7 +498,13 @@ def test_current_reading_offset_is_carried_into_resistance(
     )
     v = v + rng.normal(0, 0.002, n)
     fit = dg.fit_electrical(
-        i_true - 0.01, v, tc, th, np.ones(n, dtype=bool), floating=False, current_offset=0.01
+        i_true - 0.01,
+        v,
+        tc,
+        th,
+        np.ones(n, dtype=bool),
+        floating=False,
+        options=dg.DiagnosticsOptions(current_offset=0.01),
     )
     se_r = math.sqrt(fit.cov[0, 0])
     assert fit.r_reliable is reliable
@@ -527,7 +534,7 @@ def test_stated_errors_cover_constant_probe_offsets(
     a["flags"] = dg.flag_samples(
         a["t"], a["t_cabinet"], a["t_cold"], a["t_hot"], a["t_ambient"], a["i"], a["v"], a["door"]
     )
-    assumed_none = _thermal(a, tr, probe_offset_k=1e-6)
+    assumed_none = _thermal(a, tr, options=dg.DiagnosticsOptions(probe_offset_k=1e-6))
     assert abs(assumed_none.k - tr.k) > 0.1 * tr.k
     f = _thermal(a, tr)
     assert abs(f.k - tr.k) < 0.1 * tr.k
@@ -592,7 +599,7 @@ def test_hot_spell_with_the_cooling_at_its_limit_stays_in_the_cabinet_balance() 
         assert np.ptp(a["t_cabinet"][sel]) > 4.0  # and the air still warms
         assert _fit_simulated(a, p, sel).ua == pytest.approx(dev.ua, rel=0.10)
         try:
-            old = _fit_simulated(a, p, sel, saturated_share=2.0)
+            old = _fit_simulated(a, p, sel, options=dg.DiagnosticsOptions(saturated_share=2.0))
         except InsufficientDataError:
             refused += 1
         else:
@@ -628,7 +635,7 @@ def test_sinks_that_store_heat_are_seen_and_k_is_held_at_its_prior() -> None:
     tau_c, _, tau_h, sd_h = held.sink_taus
     assert 20.0 < max(tau_c, tau_h) < 120.0 and tau_h > 3.0 * sd_h
     assert held.note is not None and "sinks store heat" in held.note
-    free = fit(massive, max_sink_tau_share=math.inf)
+    free = fit(massive, options=dg.DiagnosticsOptions(max_sink_tau_share=math.inf))
     assert free.faces_followed and free.k < 0.5 * p["k"]  # the bias the check avoids
     quiet = fit(massless)
     assert quiet.faces_followed and quiet.k_from_data

@@ -1,0 +1,47 @@
+"""Estimate the physical state of a cooler from its readings: module, cabinet, sinks.
+
+Pure functions on numpy arrays, SI units, temperatures in kelvin, times in seconds. No I/O:
+the runner loads readings, calls these and stores what they return. How the diagnosis is
+made, with its equations and sources: ``README.md`` beside this file.
+
+Modules, in the order the diagnosis runs:
+
+- :mod:`.quality` - which samples are usable (:func:`flag_samples`);
+- :mod:`.electrical` - R and S from V = I·R + S·ΔT (:func:`fit_electrical`, :func:`harman_steps`);
+- :mod:`.thermal` - K, the sinks, UA, C and the internal load (:func:`fit_thermal`), built on
+  :mod:`.sinks`, :mod:`.cabinet`, :mod:`.error_budget` and :mod:`.integrals`;
+- :mod:`.hot_side` - the hot side's resistance hour by hour;
+- :mod:`.performance` - cooling, COP and capacity at the setpoint;
+- :mod:`.options` - every threshold, prior and window share (:class:`DiagnosticsOptions`);
+- :mod:`.estimates`, :mod:`.least_squares` - the estimate type, error propagation, fitting.
+"""
+
+from .electrical import ElectricalFit, detect_floating_driver, fit_electrical, harman_steps
+from .estimates import Estimate, propagate
+from .hot_side import hot_side_resistance_ratio, hot_side_resistance_ratios
+from .options import DEFAULT_OPTIONS, TYPICAL_MODULE_ZT, DiagnosticsOptions
+from .performance import Performance, performance_now, setpoint_capacity
+from .quality import SampleFlags, flag_samples
+from .thermal import THERMAL_PARAMS, ThermalFit, fit_thermal
+
+__all__ = [
+    "DEFAULT_OPTIONS",
+    "THERMAL_PARAMS",
+    "TYPICAL_MODULE_ZT",
+    "DiagnosticsOptions",
+    "ElectricalFit",
+    "Estimate",
+    "Performance",
+    "SampleFlags",
+    "ThermalFit",
+    "detect_floating_driver",
+    "fit_electrical",
+    "fit_thermal",
+    "flag_samples",
+    "harman_steps",
+    "hot_side_resistance_ratio",
+    "hot_side_resistance_ratios",
+    "performance_now",
+    "propagate",
+    "setpoint_capacity",
+]

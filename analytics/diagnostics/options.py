@@ -1,0 +1,153 @@
+"""The tunables of the diagnostics: thresholds, priors and window shares, in one frozen object.
+
+Every number has its unit and where it comes from: a published source, a measurement on
+simulated fleets with known truth (the reasons are given beside the number), or "common
+practice, no source". Change one with :func:`dataclasses.replace` on :data:`DEFAULT_OPTIONS`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+__all__ = ["DEFAULT_OPTIONS", "TYPICAL_MODULE_ZT", "DiagnosticsOptions"]
+
+#: Effective ZT of commercial bismuth-telluride cooling modules near room temperature, used
+#: only as a weak prior on K when a device has no registered ratings [-]. About 0.6-0.8
+#: (from memory); 0.7 with a wide (50 %) prior spread.
+TYPICAL_MODULE_ZT = 0.7
+
+
+@dataclass(frozen=True)
+class DiagnosticsOptions:
+    """Thresholds, priors and window shares of the estimators (pure declarations).
+
+    Shared by :func:`.flag_samples`, :func:`.detect_floating_driver`, :func:`.fit_electrical`,
+    :func:`.harman_steps`, :func:`.fit_thermal` and :func:`.hot_side_resistance_ratios`; each
+    reads the fields of its own topic and the shared ones (``on_current``, ``max_gap_s``,
+    ``probe_offset_k``).
+    """
+
+    # --- shared -------------------------------------------------------------------------
+    #: Current above which the module counts as on [A] (common practice, no source).
+    on_current: float = 0.05
+    #: Largest gap between two samples integrated across, or forming a switch-off step [s]:
+    #: three one-minute samples (common practice, no source).
+    max_gap_s: float = 180.0
+    #: Standard uncertainty of a constant offset between two uncalibrated probes, carried
+    #: into R, S, K, UA and the hot side's resistance [K]: about 0.2-0.5 K (common practice,
+    #: no source).
+    probe_offset_k: float = 0.3
+
+    # --- data quality (quality.py) ------------------------------------------------------
+    #: Time after a switch before a sample counts as steady [s] (common practice, no source).
+    settle_s: float = 600.0
+    #: Time after a door opening still left out: the air exchange is a load the model does
+    #: not describe [s] (common practice, no source).
+    door_settle_s: float = 900.0
+    #: Deviation from both neighbours that marks a spike [K] (common practice, no source).
+    spike_k: float = 3.0
+
+    # --- electrical fit (electrical.py) -------------------------------------------------
+    #: Smallest |ΔT| that gives a usable ratio V/ΔT, for the floating-driver check and the
+    #: switch-off steps [K] (common practice, no source).
+    min_ratio_delta_t_k: float = 2.0
+    #: Fewest on samples accepted by the electrical fit [-] (common practice, no source).
+    min_on: int = 20
+    #: Largest data-only relative standard error of R25 and S25 called reliable [-] (common
+    #: practice, no source).
+    electrical_max_rel_stderr: float = 0.01
+    #: Standard uncertainty of a constant offset of the current reading, about one step of a
+    #: 10 mA converter [A] (common practice, no source). It moves R by about
+    #: current_offset / I_rms; R is marked unreliable where that exceeds twice
+    #: ``electrical_max_rel_stderr`` (a few tenths of an ampere, as when a cold ambient leaves
+    #: the module idling).
+    current_offset: float = 0.01
+    #: Standard uncertainty of a constant offset of the voltage reading, about one step of a
+    #: 10 mV converter [V] (common practice, no source). With the ΔT offset it sets the prior
+    #: of the offset term of the offset-free S.
+    voltage_offset: float = 0.01
+
+    # --- sink balances (sinks.py) -------------------------------------------------------
+    #: Segment length of the sink balances [s] (common practice, no source).
+    segment_s: float = 900.0
+    #: Fewest complete sink segments accepted [-] (common practice, no source).
+    min_segments: int = 8
+    #: Sample pairs closer than this after a switch are left out of the sink balances [s]; 0
+    #: keeps all. Worth setting (to a few sink time constants) when the sinks store heat
+    #: (common practice, no source).
+    switch_guard_s: float = 0.0
+    #: K is held at its prior when fewer than this share of the usable samples have the
+    #: module at rest and the segments' mean currents span less than
+    #: ``min_current_spread``: a single operating point [-] (common practice, no source).
+    min_rest_share: float = 0.05
+    #: Span of the segments' mean currents, as a share of the median one, below which a
+    #: module that never rests is at one operating point [-] (common practice, no source).
+    min_current_spread: float = 0.5
+    #: Largest sink time constant (heat capacity over conductance), as a share of the median
+    #: sampling interval, for the faces to count as followed where the module switches
+    #: often [-]. Against simulated fleets with known truth (150-4000 J/K sinks, cycles of a
+    #: few minutes) K fitted beyond it came out 20-80 % low and UA up to 2.7x; massless faces
+    #: fit to under a second.
+    max_sink_tau_share: float = 1.0 / 6.0
+    #: A sink's time constant counts where it exceeds this many of its standard errors [-]
+    #: (common practice, no source).
+    sink_c_sigmas: float = 3.0
+    #: Fewest on/off switches per hour, on average over the window, for the sinks' time
+    #: constants to be judged [1/h]: on simulated fleets with known truth a thermostat
+    #: switched over 5/h, a proportional drive that rests now and then under 1.5/h.
+    min_switches_per_h: float = 2.0
+    #: K is held only where the number of switches times the slow sink's time constant also
+    #: exceeds this share of the window [-]: on simulated coolers with 150/300 J/K sinks K
+    #: came within 1 % up to 0.15 (runs of four samples between switches) and 15-35 % off
+    #: from 0.20 (runs of three).
+    max_transient_share: float = 0.15
+
+    # --- cabinet balance (cabinet.py) ---------------------------------------------------
+    #: Block length of the cabinet balance [s]: an hour averages over the thermostat cycles
+    #: (common practice, no source).
+    cabinet_block_s: float = 3600.0
+    #: Prior (mean [W], standard deviation [W]) of the heat released inside the cabinet by
+    #: its inner fan and electronics: about 1 W ± 1 W for small thermoelectric cabinets
+    #: (common practice, no source). Without it UA and a constant internal load cannot be
+    #: told apart while the ambient hardly changes.
+    q_internal_prior: tuple[float, float] = (1.0, 1.0)
+    #: A warm spell is the cabinet air more than this above its usual low (10th percentile of
+    #: the window) [K] (common practice, no source).
+    warm_spell_k: float = 3.0
+    #: ... for at least this long [s] (common practice, no source).
+    warm_spell_min_s: float = 1800.0
+    #: Time after a warm spell still left out of the cabinet balance, while the contents give
+    #: back the heat they took: about three time constants of a few hours [s] (common
+    #: practice, no source).
+    recovery_s: float = 12 * 3600.0
+    #: A warm spell through which the module ran at least this share of the time is the
+    #: cooling at its limit, not cooling lost: it stays in, with the contents node [-]. Left
+    #: out, a UA fitted to the remaining hours came out tens of per cent high against
+    #: simulated fleets with known truth.
+    saturated_share: float = 0.9
+    #: Time constants tried for the contents node of a module that never rests, or of a
+    #: window with a warm spell at the cooling's limit [s] (common practice, no source).
+    contents_tau_s: tuple[float, ...] = (3600.0, 7200.0, 14400.0, 28800.0, 57600.0)
+    #: Largest relative standard error of UA (from the fit's scatter) called reliable [-]
+    #: (common practice, no source).
+    ua_max_rel_stderr: float = 0.15
+    #: Largest relative standard error of the cabinet's heat capacity called reliable [-]
+    #: (common practice, no source).
+    c_max_rel_stderr: float = 0.3
+
+    # --- hot side's hourly resistance (hot_side.py) -------------------------------------
+    #: Least heat rejected over a stretch for a usable ratio [J]: 10 W over an hour (common
+    #: practice, no source).
+    hot_side_min_heat_j: float = 3.6e4
+    #: Largest relative standard error of a stretch's resistance called reliable [-] (common
+    #: practice, no source).
+    hot_side_max_rel_stderr: float = 0.2
+    #: Where the faces are not followed, a stretch counts as locked to the sampling when this
+    #: share of its sample pairs a few intervals apart (2-6) agree on the module's state [-]:
+    #: lower than the cabinet balance's 0.95, since partly locked hours bias it too (one
+    #: simulated hour at 0.9 read +51 %).
+    locked_match: float = 0.9
+
+
+#: The options as measured and documented; the default of every estimator.
+DEFAULT_OPTIONS = DiagnosticsOptions()

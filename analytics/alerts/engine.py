@@ -75,7 +75,7 @@ def evaluate_device(
     frame = load_readings(conn, dev.device_id, done - lookback - 3 * MS_HOUR)
     t_all = frame["ts_ms"].to_numpy(np.int64)
     first = int(np.searchsorted(t_all, done, side="right"))
-    ledger = Ledger(conn, dev, policy, records.active_maintenance(conn, dev.device_id, dev.site))
+    ledger = Ledger(conn, dev, records.active_maintenance(conn, dev.device_id, dev.site))
     band = policy.band(dev.cabinet)
     kinds: dict[str, dict[str, Any]] = state.setdefault("kinds", {})
     scope = DeviceScope(conn, dev, policy, reference_ms, done, state, frame, first, band)
@@ -85,7 +85,7 @@ def evaluate_device(
             continue  # nothing for this rule to judge in this call
         timing = timing_for(rule.kind, policy)
         st = kinds.setdefault(rule.kind, {})
-        run_machine(rule.kind, obs, st, timing, policy, ledger, rule.evidence(scope))
+        run_machine(rule.kind, obs, st, timing, ledger, rule.evidence(scope))
         if rule.after is not None:
             rule.after(scope)
     scope.finish()

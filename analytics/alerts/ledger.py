@@ -9,7 +9,6 @@ from typing import Any
 from sqlalchemy.engine import Connection
 
 from tecfleet.analytics.alerts.kinds import SEVERITIES
-from tecfleet.analytics.alerts.policy import AlertPolicy
 from tecfleet.ingest.db import alert_records as records
 
 __all__ = ["AlertChange", "Ledger"]
@@ -39,12 +38,10 @@ class Ledger:
         self,
         conn: Connection,
         device: Any,
-        policy: AlertPolicy,
         windows: list[tuple[int, int]],
     ) -> None:
         self.conn = conn
         self.device = device
-        self.policy = policy
         self.windows = windows
         self.changes: list[AlertChange] = []
 

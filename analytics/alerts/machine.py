@@ -65,7 +65,6 @@ def run_machine(
     obs: Observations,
     st: dict[str, Any],
     timing: Timing,
-    policy: AlertPolicy,
     ledger: Ledger,
     context: Callable[[int], dict[str, Any]],
 ) -> None:

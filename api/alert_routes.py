@@ -17,6 +17,7 @@ from tecfleet.api.errors import CursorError, WebhookError
 from tecfleet.api.queries import decode_cursor, encode_cursor
 from tecfleet.api.timefmt import ms_to_rfc3339, rfc3339_to_ms
 from tecfleet.ingest import db
+from tecfleet.ingest.db import alert_records as records
 from tecfleet.ingest.errors import NotFoundError
 
 router = APIRouter()
@@ -64,7 +65,7 @@ def alerts_list(
         stmt = stmt.where(a.c.kind == kind)
     with request.app.state.engine.connect() as conn:
         rows = conn.execute(stmt).fetchall()
-    items = [notify.alert_object(rules.alert_row_dict(r)) for r in rows[:limit]]
+    items = [notify.alert_object(records.alert_row_dict(r)) for r in rows[:limit]]
     next_cursor = encode_cursor(int(rows[limit - 1].id)) if len(rows) > limit else None
     return {"items": items, "next_cursor": next_cursor}
 
@@ -77,7 +78,7 @@ def alert_get(request: Request, alert_id: int) -> dict[str, Any]:
         row = conn.execute(sa.select(db.alerts).where(db.alerts.c.id == alert_id)).first()
     if row is None:
         raise NotFoundError(f"unknown alert {alert_id}")
-    out: dict[str, Any] = notify.alert_object(rules.alert_row_dict(row))
+    out: dict[str, Any] = notify.alert_object(records.alert_row_dict(row))
     out["history"] = [
         {**{k: v for k, v in h.items() if k != "at_ms"}, "at": ms_to_rfc3339(h["at_ms"])}
         for h in rules.audit_trail(engine, alert_id)

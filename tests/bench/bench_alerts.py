@@ -3,7 +3,7 @@
 Run: ``python tests/bench/bench_alerts.py [--days 14] [--healthy 6] [--seed 3]``.
 Prints one row per expected alert (kind, unit, expected, fired, delay against its target)
 and one row of false positives per alert kind. Simulated data only; the test
-``tests/analytics/test_alert_scoring.py`` runs a smaller fleet through the same functions.
+``tests/analytics/alerts/test_scoring.py`` runs a smaller fleet through the same functions.
 
 The fleet has one unit per fault kind plus healthy units. Readings are stored a day at a time
 (``db.store_batch``), then ``runner.analyze`` and ``alerts.evaluate`` run, as the live

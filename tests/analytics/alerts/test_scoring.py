@@ -19,8 +19,6 @@ import pytest
 
 from tecfleet.analytics import alerts
 from tests.bench.bench_alerts import (
-    DAY_S,
-    TARGETS_S,
     Score,
     run_fleet,
     score,
@@ -70,11 +68,17 @@ def test_every_fault_raises_its_alert_once_on_its_unit_in_time(scored: Score) ->
         assert same[0]["opened_s"] >= e.start_s
 
 
-def test_targets_are_the_stated_ones() -> None:
-    # the delays named in the module docstring (common practice, no source)
-    assert TARGETS_S["wear"] == 7 * DAY_S
-    assert TARGETS_S["leak"] == 2 * DAY_S
-    assert TARGETS_S["fan"] == 2 * 3600.0
+def test_trend_faults_are_flagged_within_the_diagnostics_stated_targets(scored: Score) -> None:
+    # The diagnostics' detection-delay targets (common practice, no source), written here from
+    # their statement rather than read from the bench's own table, so that loosening that
+    # table cannot make the scoring pass: a 5 % R25 rise flagged within 7 days of crossing
+    # 5 %, a 1.5x UA step within 2 days, a 3x hot-side resistance step within 2 hours.
+    stated_s = {"wear": 7 * 86_400.0, "leak": 2 * 86_400.0, "fan": 2 * 3_600.0}
+    for label, target_s in stated_s.items():
+        i = next(k for k, e in enumerate(scored.expected) if e.label == label)
+        delay = scored.delay_s(i)
+        assert delay is not None, f"{label}: no {scored.expected[i].alert_kind} alert"
+        assert delay <= target_s, f"{label}: flagged after {delay / 3600:.1f} h"
 
 
 def test_healthy_units_raise_nothing(scored: Score) -> None:

@@ -1,0 +1,100 @@
+"""The record of alert changes: alert rows, their audit trail and the outbox notices, written
+on the caller's connection so that a change and its notice commit together."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+from sqlalchemy.engine import Connection
+
+from tecfleet.analytics.alerts.kinds import SEVERITIES
+from tecfleet.ingest.db import alert_records as records
+
+__all__ = ["AlertChange", "Ledger"]
+
+
+@dataclass(frozen=True)
+class AlertChange:
+    """One lifecycle change: ``change`` is opened, reopened, escalated or resolved."""
+
+    alert_id: int
+    device_id: str
+    kind: str
+    change: str
+    severity: str
+    at_ms: int
+    summary: str
+    evidence: dict[str, Any] = field(default_factory=dict)
+
+
+class Ledger:
+    """Writes lifecycle changes, audit rows and outbox entries on one connection.
+
+    Notices of changes inside a maintenance window (``windows``, (start, end) [ms]) are held
+    until the window ends."""
+
+    def __init__(
+        self,
+        conn: Connection,
+        device: Any,
+        windows: list[tuple[int, int]],
+    ) -> None:
+        self.conn = conn
+        self.device = device
+        self.windows = windows
+        self.changes: list[AlertChange] = []
+
+    def _held_until(self, at_ms: int) -> int | None:
+        ends = [end for start, end in self.windows if start <= at_ms < end]
+        return max(ends) if ends else None
+
+    def _audit(
+        self, alert_id: int, at: int, old: str | None, new: str, sev: str, note: str
+    ) -> None:
+        records.insert_audit(self.conn, alert_id, at, old, new, sev, "system", note)
+
+    def apply(
+        self,
+        kind: str,
+        change: str,
+        at: int,
+        sev: int,
+        st: dict[str, Any],
+        summary: str,
+        ev: dict[str, Any],
+    ) -> None:
+        """Record ``change`` (opened, reopened, escalated, resolved, or ``updated``: the
+        evidence only) of the alert of ``kind`` whose lifecycle state is ``st``."""
+        severity = SEVERITIES[sev]
+        ev = records.jsonable(ev)
+        if change == "opened":
+            alert_id = records.insert_alert(
+                self.conn, self.device.device_id, kind, severity, at, summary, ev
+            )
+            st["alert_id"] = alert_id
+            self._audit(alert_id, at, None, "open", severity, "condition present")
+        else:
+            alert_id = int(st["alert_id"])
+            old = records.alert_state(self.conn, alert_id)
+            values: dict[str, Any] = {"updated_ms": at, "summary": summary, "evidence": ev}
+            if change == "reopened":
+                values.update(state="open", resolved_ms=None, severity=severity)
+                new = "open"
+            elif change == "resolved":
+                values.update(state="resolved", resolved_ms=at)
+                new = "resolved"
+            elif change == "escalated":
+                values.update(severity=severity)
+                new = old
+            else:  # evidence update only
+                records.update_alert(self.conn, alert_id, change, values)
+                return
+            records.update_alert(self.conn, alert_id, change, values)
+            self._audit(alert_id, at, old, new, severity, change)
+        records.insert_notice(
+            self.conn, alert_id, f"alert.{change}", at, self.device.site, self._held_until(at)
+        )
+        self.changes.append(
+            AlertChange(alert_id, self.device.device_id, kind, change, severity, at, summary, ev)
+        )

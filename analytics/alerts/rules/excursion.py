@@ -1,0 +1,84 @@
+"""Cabinet out of its band, with the mean kinetic temperature in the evidence."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from typing import Any
+
+import numpy as np
+
+from tecfleet.analytics.alerts.constants import MKT_ACTIVATION_J_PER_MOL, MKT_GAS_CONSTANT, T0
+from tecfleet.analytics.alerts.observations import FloatArray, IntArray, Observations
+from tecfleet.analytics.alerts.policy import Band
+from tecfleet.analytics.alerts.scope import DeviceScope
+from tecfleet.analytics.errors import AlertError
+
+__all__ = ["evidence", "excursion_observations", "mean_kinetic_temperature", "observe"]
+
+
+def mean_kinetic_temperature(
+    t_c: Sequence[float] | FloatArray, activation_j_per_mol: float = MKT_ACTIVATION_J_PER_MOL
+) -> float:
+    """Mean kinetic temperature of equally spaced samples [°C].
+
+    MKT = (ΔH/R) / (−ln(mean(exp(−ΔH/(R·T_i))))) with T_i in kelvin (Haynes 1971; USP <1079>),
+    ΔH the activation energy [J/mol] and R = 8.3144 J/(mol·K) as USP states it.
+    """
+    t_k = np.asarray(t_c, dtype=np.float64) + T0
+    if t_k.size == 0 or not np.all(np.isfinite(t_k)):
+        raise AlertError("mean kinetic temperature needs finite samples")
+    a = activation_j_per_mol / MKT_GAS_CONSTANT
+    x = -a / t_k
+    # log-mean-exp, shifted by the largest term so exp() cannot underflow
+    m = float(np.max(x))
+    log_mean = m + math.log(float(np.mean(np.exp(x - m))))
+    return a / -log_mean - T0
+
+
+def excursion_observations(t_ms: IntArray, t_cabinet: FloatArray, band: Band) -> Observations:
+    """Cabinet out of band. ``t_cabinet`` [°C], band limits [°C]; critical beyond the critical
+    limits (freezing for medicines, the legal ceiling for food)."""
+    low = t_cabinet < band.low_c
+    high = t_cabinet > band.high_c
+    active = low | high
+    sev = np.where(active, 1, 0).astype(np.int8)
+    if band.critical_low_c is not None:
+        sev[t_cabinet <= band.critical_low_c] = 2
+    if band.critical_high_c is not None:
+        sev[t_cabinet >= band.critical_high_c] = 2
+    return Observations(t_ms, active, active.copy(), sev, np.asarray(t_cabinet, np.float64))
+
+
+def observe(scope: DeviceScope) -> Observations | None:
+    """The rule on the new readings (None without any)."""
+    if not len(scope.t_new):
+        return None
+    return excursion_observations(scope.t_new, scope.new_column("t_cabinet"), scope.band)
+
+
+def evidence(scope: DeviceScope) -> Callable[[int], dict[str, Any]]:
+    """Evidence at time t [ms]: the band and its source, and over the trailing MKT window the
+    time in range, the mean kinetic temperature and the mean."""
+    policy, band, t_all, frame = scope.policy, scope.band, scope.t_all, scope.frame
+
+    def context(t: int) -> dict[str, Any]:
+        w0 = t - int(policy.mkt_window_s * 1000)
+        m = (t_all > w0) & (t_all <= t)
+        tc = frame["t_cabinet"].to_numpy(np.float64)[m]
+        ctx: dict[str, Any] = {
+            "profile": policy.profile, "low_limit_c": band.low_c, "high_limit_c": band.high_c,
+            "critical_low_c": band.critical_low_c, "critical_high_c": band.critical_high_c,
+            "limits_source": band.source, "window_s": policy.mkt_window_s,
+            "window_start_ms": w0, "window_end_ms": t,
+        }  # fmt: skip
+        if tc.size:
+            inside = (tc >= band.low_c) & (tc <= band.high_c)
+            ctx["time_in_range_pct"] = round(100.0 * float(np.mean(inside)), 2)
+            ctx["mkt_c"] = round(mean_kinetic_temperature(tc, policy.mkt_activation_j_per_mol), 3)
+            ctx["mkt_activation_kj_per_mol"] = policy.mkt_activation_j_per_mol / 1000.0
+            ctx["mean_c"] = round(float(np.mean(tc)), 3)
+            ctx["samples"] = int(tc.size)
+        return ctx
+
+    return context

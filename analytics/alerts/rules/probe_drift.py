@@ -1,0 +1,221 @@
+"""The cabinet probe against the cold side's heat balance: a commissioning fit per unit, and
+the probe's change since then, which a drifting probe moves and a healthy unit does not."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from tecfleet.analytics import physics
+from tecfleet.analytics.alerts.constants import MS_HOUR, T0
+from tecfleet.analytics.alerts.observations import BoolArray, FloatArray, IntArray
+from tecfleet.analytics.alerts.policy import AlertPolicy
+from tecfleet.analytics.alerts.scope import DeviceScope, load_readings
+from tecfleet.ingest.db import alert_records as records
+
+__all__ = [
+    "PROBE_DRIFT_ISSUE",
+    "cabinet_probe_offset",
+    "cold_side_heat_balance",
+    "drift_since",
+    "fit_cold_side_baseline",
+    "probe_baseline",
+    "probe_offsets",
+]
+
+#: The sensor-fault issue a moved cabinet probe raises.
+PROBE_DRIFT_ISSUE = "t_cabinet off the cold side's heat balance"
+
+
+def cold_side_heat_balance(
+    current: FloatArray,
+    t_cold_c: FloatArray,
+    t_hot_c: FloatArray,
+    voltage: FloatArray,
+    seebeck: float,
+    conductance: float,
+) -> FloatArray:
+    """Heat pumped at the cold face [W] from the readings.
+
+    Qc = S·I·Tc − ½·I²·R − K·(Th − Tc) (Ioffe 1957; Goldsmid 2010, ch. 2; as
+    :func:`tecfleet.analytics.physics.cold_side_heat`), with the Joule term taken from the
+    measured voltage, I·R = V − S·(Th − Tc), so a module whose resistance rises with wear does
+    not look like a drifting probe. ``seebeck`` [V/K] and ``conductance`` [W/K] of the module
+    (from its ratings), temperatures [°C], current [A], voltage [V].
+    """
+    tc = np.asarray(t_cold_c, np.float64) + T0
+    th = np.asarray(t_hot_c, np.float64) + T0
+    i = np.asarray(current, np.float64)
+    v = np.asarray(voltage, np.float64)
+    joule = 0.5 * i * (v - seebeck * (th - tc))
+    return np.asarray(seebeck * i * tc - joule - conductance * (th - tc), np.float64)
+
+
+def fit_cold_side_baseline(
+    t_cabinet: FloatArray, t_cold: FloatArray, qc: FloatArray, running: BoolArray
+) -> tuple[float, float] | None:
+    """Commissioning fit t_cabinet − t_cold = offset + r_cold·Qc over running samples.
+
+    The cabinet air gives its heat to the cold side through r_cold [K/W], so with the module
+    running the difference follows the pumped heat; ``offset`` [K] holds the probes' fixed
+    biases and what the rated module parameters miss. Returns (offset, r_cold), or None when
+    there are under 300 running samples or the fit is not physical (r_cold ≤ 0).
+    """
+    ok = running & np.isfinite(t_cabinet) & np.isfinite(t_cold) & np.isfinite(qc)
+    if int(ok.sum()) < 300 or float(np.std(qc[ok])) <= 0.0:
+        return None
+    x = np.column_stack([np.ones(int(ok.sum())), qc[ok]])
+    coef, *_ = np.linalg.lstsq(x, t_cabinet[ok] - t_cold[ok], rcond=None)
+    offset, r_cold = float(coef[0]), float(coef[1])
+    if not (math.isfinite(offset) and math.isfinite(r_cold)) or r_cold <= 0.0:
+        return None
+    return offset, r_cold
+
+
+def cabinet_probe_offset(
+    t_ms: IntArray,
+    t_cabinet: FloatArray,
+    t_cold: FloatArray,
+    qc: FloatArray,
+    running: BoolArray,
+    baseline: tuple[float, float],
+    window_s: float,
+    min_samples: int,
+) -> FloatArray:
+    """Change of the cabinet probe's reading against the cold side's heat balance [K].
+
+    Per sample: the median, over the running samples of the last ``window_s``, of
+    (t_cabinet − t_cold − r_cold·Qc) minus the commissioning ``offset``; NaN with fewer than
+    ``min_samples`` running samples, and carried over idle stretches of up to two hours.
+    A drifting cabinet probe moves it by its drift; the faces and the module equations do not.
+    """
+    n = len(t_ms)
+    out = np.full(n, np.nan)
+    offset, r_cold = baseline
+    on = np.flatnonzero(running & np.isfinite(t_cabinet) & np.isfinite(t_cold) & np.isfinite(qc))
+    if on.size == 0:
+        return out
+    resid = t_cabinet[on] - t_cold[on] - r_cold * qc[on] - offset
+    med = (
+        pd.Series(resid, index=pd.to_datetime(t_ms[on], unit="ms"))
+        .rolling(f"{int(window_s)}s", min_periods=max(int(min_samples), 1))
+        .median()
+        .to_numpy(np.float64)
+    )
+    # each sample takes the newest running sample's value at or before it, if recent
+    k = np.searchsorted(t_ms[on], t_ms, side="right") - 1
+    has = k >= 0
+    kk = np.where(has, k, 0)
+    recent = has & (t_ms - t_ms[on][kk] <= 2 * MS_HOUR)
+    out[recent] = med[kk[recent]]
+    return out
+
+
+def _module_constants(module: Mapping[str, Any] | None) -> tuple[float, float] | None:
+    """Seebeck coefficient [V/K] and thermal conductance [W/K] of the registered module(s),
+    from the ratings (see tecfleet.analytics.physics.parameters_from_ratings)."""
+    if not module:
+        return None
+    try:
+        params = physics.parameters_from_ratings(
+            float(module["i_max_a"]),
+            float(module["v_max_v"]),
+            float(module["dt_max_k"]),
+            float(module.get("t_hot_rated_c") or 27.0) + T0,
+            q_max=None if module.get("q_max_w") is None else float(module["q_max_w"]),
+            n_couples=None if module.get("couples") is None else int(module["couples"]),
+        )
+        params = physics.modules_in_series(params, int(module.get("count") or 1))
+    except (KeyError, TypeError, ValueError):
+        return None
+    return float(params.seebeck), float(params.conductance)
+
+
+def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
+    """The commissioning fit of the cabinet probe against the cold side's heat balance, made
+    once over the first ``drift_baseline_s`` of the unit's readings and kept in the state."""
+    conn, dev, state, policy = scope.conn, scope.dev, scope.state, scope.policy
+    newest_ms = int(scope.t_all[-1])
+    if "probe_baseline" in state:
+        kept = state["probe_baseline"]
+        return kept if isinstance(kept, dict) and "r_cold" in kept else None
+    if not dev.module:
+        return None
+    first_ms = records.first_reading_ms(conn, dev.device_id)
+    if first_ms is None:
+        return None
+    end_ms = int(first_ms) + int(policy.drift_baseline_s * 1000)
+    if newest_ms < end_ms:
+        return None  # not enough history yet
+    consts = _module_constants(dev.module)
+    if consts is None:
+        state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
+        return None
+    base = load_readings(conn, dev.device_id, int(first_ms) - 1, end_ms)
+    qc = cold_side_heat_balance(
+        base["current"].to_numpy(np.float64), base["t_cold"].to_numpy(np.float64),
+        base["t_hot"].to_numpy(np.float64), base["voltage"].to_numpy(np.float64), *consts,
+    )  # fmt: skip
+    fit = fit_cold_side_baseline(
+        base["t_cabinet"].to_numpy(np.float64),
+        base["t_cold"].to_numpy(np.float64),
+        qc,
+        base["current"].to_numpy(np.float64) > policy.drift_min_current_a,
+    )
+    if fit is None:
+        state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
+        return None
+    state["probe_baseline"] = {
+        "from_ms": int(first_ms), "to_ms": end_ms, "offset_k": fit[0], "r_cold": fit[1],
+        "seebeck": consts[0], "conductance": consts[1],
+    }  # fmt: skip
+    return dict(state["probe_baseline"])
+
+
+def probe_offsets(
+    frame: pd.DataFrame, first: int, baseline: Mapping[str, Any], policy: AlertPolicy
+) -> FloatArray:
+    """Per row of ``frame``, the cabinet probe's change against its commissioning heat
+    balance [K]; NaN before the commissioning window ended."""
+    t = frame["ts_ms"].to_numpy(np.int64)
+    cur = frame["current"].to_numpy(np.float64)
+    qc = cold_side_heat_balance(
+        cur, frame["t_cold"].to_numpy(np.float64), frame["t_hot"].to_numpy(np.float64),
+        frame["voltage"].to_numpy(np.float64), float(baseline["seebeck"]),
+        float(baseline["conductance"]),
+    )  # fmt: skip
+    off = cabinet_probe_offset(
+        t, frame["t_cabinet"].to_numpy(np.float64), frame["t_cold"].to_numpy(np.float64), qc,
+        cur > policy.drift_min_current_a, (float(baseline["offset_k"]), float(baseline["r_cold"])),
+        policy.drift_window_s, policy.drift_min_samples,
+    )  # fmt: skip
+    off[t < int(baseline["to_ms"])] = np.nan
+    return off
+
+
+def drift_since(
+    t_new: IntArray, offset_new: FloatArray, state: dict[str, Any], quarter_k: float
+) -> IntArray:
+    """Start [ms] of the run of rows whose probe change is at least ``quarter_k`` [K] that
+    each row belongs to (0 outside one); rows without an estimate (NaN) neither start nor
+    end a run. The run open at the end is kept in ``state``."""
+    if offset_new.size == 0:
+        return np.zeros(0, np.int64)
+    carried = state.get("probe_drift_since")
+    known = np.isfinite(offset_new)
+    with np.errstate(invalid="ignore"):
+        det = np.where(known, (np.abs(offset_new) >= quarter_k).astype(np.int64), -1)
+    pos = np.maximum.accumulate(np.where(known, np.arange(det.size), -1))
+    q = np.where(pos >= 0, det[np.maximum(pos, 0)] == 1, carried is not None)
+    prev = np.concatenate([[False], q[:-1]])
+    starts = np.where(q & ~prev, t_new, 0).astype(np.int64)
+    if q[0] and carried is not None:
+        starts[0] = int(carried)
+    run = np.maximum.accumulate(starts)
+    run = np.where(q, run, 0)
+    state["probe_drift_since"] = int(run[-1]) if q[-1] else None
+    return run

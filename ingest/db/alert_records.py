@@ -1,0 +1,414 @@
+"""Stored alerts: the alert rows, their audit trail, the notifications outbox, per-device
+evaluation progress, threshold overrides, maintenance windows, and the estimates the alert
+rules read.
+
+Functions that take a ``Connection`` run inside the caller's transaction, so an alert change,
+its audit row and its outbox notice commit together; those that take an ``Engine`` open their
+own transaction.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+import sqlalchemy as sa
+from sqlalchemy.engine import Connection, Engine, Row
+from sqlalchemy.exc import SQLAlchemyError
+
+from tecfleet.ingest.db.engine import now_ms
+from tecfleet.ingest.db.tables import (
+    alert_audit,
+    alert_policies,
+    alert_progress,
+    alerts,
+    devices,
+    estimates,
+    maintenance_windows,
+    notifications,
+    readings,
+)
+from tecfleet.ingest.errors import NotFoundError, StoreError
+
+__all__ = [
+    "OPEN_STATES",
+    "acknowledge_alert",
+    "active_maintenance",
+    "alert_row_dict",
+    "alert_state",
+    "audit_rows",
+    "devices_to_evaluate",
+    "first_reading_ms",
+    "insert_alert",
+    "insert_audit",
+    "insert_maintenance",
+    "insert_notice",
+    "jsonable",
+    "load_overrides",
+    "read_estimates",
+    "read_progress",
+    "release_held",
+    "store_policy",
+    "update_alert",
+    "write_progress",
+]
+
+#: Alert states in which an alert is still live.
+OPEN_STATES = ("open", "acknowledged")
+
+
+def jsonable(x: Any) -> Any:
+    """``x`` with numpy scalars made plain and non-finite floats made None (JSON columns)."""
+    if isinstance(x, dict):
+        return {str(k): jsonable(v) for k, v in x.items()}
+    if isinstance(x, list | tuple):
+        return [jsonable(v) for v in x]
+    if isinstance(x, np.generic):
+        x = x.item()
+    if isinstance(x, float) and not math.isfinite(x):
+        return None
+    return x
+
+
+def alert_row_dict(row: Any) -> dict[str, Any]:
+    """An ``alerts`` row as a dict with millisecond times (the API formats them)."""
+    return {
+        "id": int(row.id),
+        "device_id": row.device_id,
+        "kind": row.kind,
+        "severity": row.severity,
+        "state": row.state,
+        "opened_ms": int(row.opened_ms),
+        "updated_ms": int(row.updated_ms),
+        "resolved_ms": None if row.resolved_ms is None else int(row.resolved_ms),
+        "summary": row.summary,
+        "evidence": row.evidence,
+        "reopen_count": int(row.reopen_count or 0),
+    }
+
+
+# ---------------------------------------------------------------------------
+# Evaluation inputs
+# ---------------------------------------------------------------------------
+
+
+def devices_to_evaluate(conn: Connection, device_id: str | None) -> tuple[int | None, list[Any]]:
+    """The newest reading time of the whole fleet [ms] (None without readings), and the
+    devices to evaluate (every one, or only ``device_id``) ordered by id."""
+    d = devices
+    fleet_newest = conn.execute(sa.select(sa.func.max(d.c.last_reading_ms))).scalar()
+    q = sa.select(
+        d.c.device_id, d.c.site, d.c.module, d.c.cabinet, d.c.status, d.c.status_at_ms,
+        d.c.last_reading_ms,
+    ).order_by(d.c.device_id)  # fmt: skip
+    if device_id is not None:
+        q = q.where(d.c.device_id == device_id)
+    return fleet_newest, list(conn.execute(q).fetchall())
+
+
+def load_overrides(conn: Connection) -> dict[tuple[str, str], dict[str, Any]]:
+    """Threshold overrides per (scope, name)."""
+    rows = conn.execute(sa.select(alert_policies)).fetchall()
+    return {(r.scope, r.name): dict(r.thresholds or {}) for r in rows}
+
+
+def read_progress(conn: Connection, device_id: str) -> tuple[int, dict[str, Any]]:
+    """Time of the last evaluated reading [ms] (-1 for none) and the carried rule state."""
+    p = alert_progress
+    prog = conn.execute(sa.select(p.c.done_ms, p.c.state).where(p.c.device_id == device_id)).first()
+    if prog is None:
+        return -1, {}
+    return int(prog.done_ms), dict(prog.state)
+
+
+def write_progress(conn: Connection, device_id: str, done_ms: int, state: Any) -> None:
+    """Replace the device's evaluation progress."""
+    p = alert_progress
+    conn.execute(p.delete().where(p.c.device_id == device_id))
+    conn.execute(
+        p.insert().values(
+            device_id=device_id,
+            done_ms=done_ms,
+            state=state,
+            updated_ms=now_ms(),
+        )
+    )
+
+
+def first_reading_ms(conn: Connection, device_id: str) -> int | None:
+    """Time of the device's oldest stored reading [ms], None without readings."""
+    r = readings
+    first = conn.execute(
+        sa.select(sa.func.min(r.c.ts_ms)).where(r.c.device_id == device_id)
+    ).scalar()
+    return None if first is None else int(first)
+
+
+def read_estimates(
+    conn: Connection, device_id: str, keys: Sequence[str], after_ms: int
+) -> dict[str, list[tuple[int, float]]]:
+    """Reliable estimates of ``keys`` newer than ``after_ms`` [ms]: key -> [(at_ms, value)],
+    oldest first."""
+    e = estimates
+    rows = conn.execute(
+        sa.select(e.c.key, e.c.at_ms, e.c.value)
+        .where(
+            e.c.device_id == device_id, e.c.key.in_(keys), e.c.reliable.is_(True),
+            e.c.value.is_not(None), e.c.at_ms > after_ms,
+        )
+        .order_by(e.c.at_ms)
+    ).fetchall()  # fmt: skip
+    out: dict[str, list[tuple[int, float]]] = {}
+    for r in rows:
+        out.setdefault(r.key, []).append((int(r.at_ms), float(r.value)))
+    return out
+
+
+# ---------------------------------------------------------------------------
+# Alert rows, audit and outbox (inside the caller's transaction)
+# ---------------------------------------------------------------------------
+
+
+def insert_alert(
+    conn: Connection,
+    device_id: str,
+    kind: str,
+    severity: str,
+    at_ms: int,
+    summary: str,
+    evidence: Any,
+) -> int:
+    """A new open alert; returns its id."""
+    a = alerts
+    return int(
+        conn.execute(
+            a.insert()
+            .values(
+                device_id=device_id, kind=kind, severity=severity,
+                state="open", opened_ms=at_ms, updated_ms=at_ms, resolved_ms=None,
+                summary=summary, evidence=evidence, reopen_count=0,
+            )
+            .returning(a.c.id)
+        ).scalar_one()
+    )  # fmt: skip
+
+
+def alert_state(conn: Connection, alert_id: int) -> str:
+    """The stored state of one alert."""
+    a = alerts
+    return str(conn.execute(sa.select(a.c.state).where(a.c.id == alert_id)).scalar_one())
+
+
+def update_alert(conn: Connection, alert_id: int, change: str, values: Mapping[str, Any]) -> None:
+    """Write ``values`` to one alert; a ``reopened`` change also counts the reopen."""
+    a = alerts
+    extra: dict[str, Any] = {}
+    if change == "reopened":
+        extra["reopen_count"] = a.c.reopen_count + 1
+    conn.execute(a.update().where(a.c.id == alert_id).values(**values, **extra))
+
+
+def insert_audit(
+    conn: Connection,
+    alert_id: int,
+    at_ms: int,
+    from_state: str | None,
+    to_state: str,
+    severity: str,
+    actor: str,
+    note: str | None,
+) -> None:
+    """One row of an alert's audit trail."""
+    conn.execute(
+        alert_audit.insert().values(
+            alert_id=alert_id, at_ms=at_ms, from_state=from_state, to_state=to_state,
+            severity=severity, actor=actor, note=note,
+        )
+    )  # fmt: skip
+
+
+def insert_notice(
+    conn: Connection, alert_id: int, event: str, at_ms: int, site: str | None, hold: int | None
+) -> None:
+    """An outbox notice of ``event`` carrying the alert as stored now; ``hold`` [ms] holds
+    it until a maintenance window ends."""
+    row = conn.execute(sa.select(alerts).where(alerts.c.id == alert_id)).one()
+    conn.execute(
+        notifications.insert().values(
+            created_ms=now_ms(),
+            event_ms=at_ms,
+            event=event,
+            alert_id=alert_id,
+            device_id=row.device_id,
+            site=site,
+            kind=row.kind,
+            payload=jsonable({"alert": alert_row_dict(row), "change": event}),
+            state="held" if hold is not None else "pending",
+            hold_until_ms=hold,
+            mqtt_state="held" if hold is not None else "pending",
+        )
+    )
+
+
+def active_maintenance(conn: Connection, device_id: str, site: str | None) -> list[tuple[int, int]]:
+    """Maintenance windows (start, end) [ms] that cover this device or its site."""
+    m = maintenance_windows
+    cond = m.c.device_id == device_id
+    if site is not None:
+        cond = sa.or_(cond, sa.and_(m.c.device_id.is_(None), m.c.site == site))
+    rows = conn.execute(sa.select(m.c.start_ms, m.c.end_ms).where(cond)).fetchall()
+    return [(int(r.start_ms), int(r.end_ms)) for r in rows]
+
+
+def release_held(conn: Connection, device_id: str, reference_ms: int) -> None:
+    """Maintenance over: held notices of alerts still open go out once, the rest are dropped."""
+    n = notifications
+    held = conn.execute(
+        sa.select(n.c.id, n.c.alert_id, n.c.hold_until_ms, n.c.site, n.c.kind)
+        .where(n.c.device_id == device_id, n.c.state == "held", n.c.hold_until_ms <= reference_ms)
+        .order_by(n.c.id)
+    ).fetchall()
+    if not held:
+        return
+    by_alert: dict[int, list[Any]] = {}
+    for r in held:
+        by_alert.setdefault(int(r.alert_id), []).append(r)
+    for alert_id, rs in by_alert.items():
+        conn.execute(
+            n.update()
+            .where(n.c.id.in_([r.id for r in rs]))
+            .values(state="suppressed", mqtt_state="suppressed")
+        )
+        row = conn.execute(sa.select(alerts).where(alerts.c.id == alert_id)).one()
+        if row.state in OPEN_STATES:
+            _release_one(conn, row, device_id, rs)
+
+
+def _release_one(conn: Connection, row: Row[Any], device_id: str, held: list[Any]) -> None:
+    """The one notice of a still-open alert whose notices maintenance held back."""
+    at = max(int(r.hold_until_ms) for r in held)
+    conn.execute(
+        notifications.insert().values(
+            created_ms=now_ms(), event_ms=at, event="alert.opened",
+            alert_id=int(row.id), device_id=device_id, site=held[0].site, kind=held[0].kind,
+            payload=jsonable(
+                {
+                    "alert": alert_row_dict(row),
+                    "change": "alert.opened",
+                    "after_maintenance": True,
+                }
+            ),
+            state="pending", hold_until_ms=None, mqtt_state="pending",
+        )
+    )  # fmt: skip
+
+
+# ---------------------------------------------------------------------------
+# Operators' actions (own transactions)
+# ---------------------------------------------------------------------------
+
+
+def acknowledge_alert(
+    engine: Engine, alert_id: int, actor: str, note: str | None = None
+) -> dict[str, Any]:
+    """Mark an open alert acknowledged by ``actor``, with its audit row and outbox notice in
+    the same transaction; an alert in any other state is returned unchanged."""
+    a = alerts
+    now = now_ms()
+    try:
+        with engine.begin() as conn:
+            row = conn.execute(sa.select(a).where(a.c.id == alert_id)).first()
+            if row is None:
+                raise NotFoundError(f"unknown alert {alert_id}")
+            if row.state == "open":
+                row = _acknowledge_open(conn, row, actor, note, now)
+            return alert_row_dict(row)
+    except SQLAlchemyError as exc:
+        raise StoreError(f"could not acknowledge alert {alert_id}: {exc}") from exc
+
+
+def _acknowledge_open(
+    conn: Connection, row: Row[Any], actor: str, note: str | None, now: int
+) -> Row[Any]:
+    a = alerts
+    alert_id = int(row.id)
+    conn.execute(a.update().where(a.c.id == alert_id).values(state="acknowledged", updated_ms=now))
+    conn.execute(
+        alert_audit.insert().values(
+            alert_id=alert_id, at_ms=now, from_state="open", to_state="acknowledged",
+            severity=row.severity, actor=actor[:200], note=note,
+        )
+    )  # fmt: skip
+    row = conn.execute(sa.select(a).where(a.c.id == alert_id)).one()
+    site = conn.execute(
+        sa.select(devices.c.site).where(devices.c.device_id == row.device_id)
+    ).scalar()
+    conn.execute(
+        notifications.insert().values(
+            created_ms=now, event_ms=now, event="alert.acknowledged", alert_id=alert_id,
+            device_id=row.device_id, site=site, kind=row.kind,
+            payload=jsonable(
+                {
+                    "alert": alert_row_dict(row),
+                    "change": "alert.acknowledged",
+                    "by": actor,
+                }
+            ),
+            state="pending", mqtt_state="pending",
+        )
+    )  # fmt: skip
+    return row
+
+
+def audit_rows(engine: Engine, alert_id: int) -> list[dict[str, Any]]:
+    """State changes of one alert, oldest first."""
+    t = alert_audit
+    with engine.connect() as conn:
+        rows = conn.execute(
+            sa.select(t).where(t.c.alert_id == alert_id).order_by(t.c.id)
+        ).fetchall()
+    return [
+        {
+            "at_ms": int(r.at_ms), "from_state": r.from_state, "to_state": r.to_state,
+            "severity": r.severity, "actor": r.actor, "note": r.note,
+        }
+        for r in rows
+    ]  # fmt: skip
+
+
+def store_policy(engine: Engine, scope: str, name: str, thresholds: Mapping[str, Any]) -> None:
+    """Replace the threshold overrides of one ``device`` or ``site``."""
+    t = alert_policies
+    with engine.begin() as conn:
+        conn.execute(t.delete().where(t.c.scope == scope, t.c.name == name))
+        conn.execute(
+            t.insert().values(
+                scope=scope, name=name, thresholds=dict(thresholds), updated_ms=now_ms()
+            )
+        )
+
+
+def insert_maintenance(
+    engine: Engine,
+    start_ms: int,
+    end_ms: int,
+    *,
+    device_id: str | None,
+    site: str | None,
+    reason: str | None,
+    created_by: str | None,
+) -> int:
+    """Store a maintenance window; returns its id."""
+    with engine.begin() as conn:
+        return int(
+            conn.execute(
+                maintenance_windows.insert()
+                .values(
+                    device_id=device_id, site=site, start_ms=start_ms, end_ms=end_ms,
+                    reason=reason, created_ms=now_ms(), created_by=created_by,
+                )
+                .returning(maintenance_windows.c.id)
+            ).scalar_one()
+        )  # fmt: skip

@@ -1,0 +1,100 @@
+"""Sensor faults: stuck probes, and the cabinet probe against the cold side's heat balance."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import sqlalchemy as sa
+
+from tecfleet.analytics import alerts
+from tecfleet.ingest import db
+from tecfleet.ingest.db import Reading
+from tests.analytics.alerts.cabinet import MIN, T0, cabinet_series, kinds
+
+
+def test_stuck_cabinet_probe_is_a_sensor_fault(engine: sa.Engine) -> None:
+    data = cabinet_series(400)
+    rows = [
+        Reading(
+            r.device_id,
+            r.ts_ms,
+            4.7 if i >= 100 else r.t_cabinet,
+            r.t_cold,
+            r.t_hot,
+            r.t_ambient,
+            r.current,
+            r.voltage,
+            seq=r.seq,
+        )
+        for i, r in enumerate(data)
+    ]
+    db.store_batch(engine, rows)
+    changes = alerts.evaluate(engine)
+    assert kinds(changes) == [("sensor_fault", "opened")]
+    # flat over the 60-minute window (samples 100..159), then the 15-minute delay
+    assert changes[0].at_ms == T0 + (159 + 15) * MIN
+    assert "t_cabinet stuck" in changes[0].evidence["issues"]
+
+
+def test_stuck_probe_stays_one_alert_through_a_quiet_spell(engine: sa.Engine) -> None:
+    # The cabinet probe freezes at minute 100 and stays frozen. From minute 300 to 500 every
+    # other channel rests too (a quiet night: module idle, room steady), so "flat while the
+    # others move" cannot be judged; after that they move again. The probe never moved, so the
+    # alert must stay open throughout: one opening, no resolve and reopen.
+    data = cabinet_series(700)
+    rows = []
+    for i, r in enumerate(data):
+        quiet = 300 <= i < 500
+        rows.append(
+            r._replace(
+                t_cabinet=4.7 if i >= 100 else r.t_cabinet,
+                t_cold=-1.0 if quiet else r.t_cold,
+                t_hot=30.0 if quiet else r.t_hot,
+                t_ambient=22.0 if quiet else r.t_ambient,
+            )
+        )
+    db.store_batch(engine, rows)
+    changes = [c for c in alerts.evaluate(engine) if c.kind == "sensor_fault"]
+    assert kinds(changes) == [("sensor_fault", "opened")]
+
+
+def test_cold_side_heat_from_the_measured_voltage_matches_the_module_equations() -> None:
+    # Qc = S·I·Tc − ½·I²·R − K·ΔT and V = S·ΔT + I·R (Ioffe 1957; Goldsmid 2010, ch. 2):
+    # with the voltage those equations give, the Joule term from V must give the same Qc.
+    # Module constants of a 127-couple module, S 0.053 V/K, R 2.0 ohm, K 0.5 W/K (from memory).
+    from tecfleet.analytics import physics
+
+    s, r, k = 0.053, 2.0, 0.5
+    i = np.array([0.5, 2.0, 4.0, 6.0])
+    tc = np.array([-5.0, 0.0, 2.0, 10.0])
+    th = np.array([25.0, 30.0, 40.0, 60.0])
+    v = np.asarray(physics.module_voltage(i, tc + 273.15, th + 273.15, s, r))
+    want = np.asarray(physics.cold_side_heat(i, tc + 273.15, th + 273.15, s, r, k))
+    got = alerts.cold_side_heat_balance(i, tc, th, v, s, k)
+    np.testing.assert_allclose(got, want, rtol=1e-12)
+
+
+def test_a_drifting_cabinet_probe_moves_the_offset_and_a_healthy_one_does_not() -> None:
+    # The air gives its heat to the cold side through r_cold: t_cab − t_cold = r_cold·Qc
+    # (a steady heat path, common practice, no source). A probe drifting by +2.5 K over five
+    # days adds exactly its drift to the difference; the pumped heat does not change.
+    rng = np.random.default_rng(1)
+    n = 10 * 1440
+    t = T0 + MIN * np.arange(n, dtype=np.int64)
+    qc = 15.0 + 5.0 * np.sin(np.arange(n) / 1440.0 * 2 * np.pi)  # daily swing of the load
+    t_cold = -8.0 + 0.2 * rng.standard_normal(n)
+    r_cold = 0.6
+    t_cab = t_cold + r_cold * qc + 0.4 + 0.05 * rng.standard_normal(n)
+    running = np.ones(n, dtype=bool)
+    base = slice(0, 2 * 1440)
+    fit = alerts.fit_cold_side_baseline(t_cab[base], t_cold[base], qc[base], running[base])
+    assert fit is not None
+    assert fit[0] == pytest.approx(0.4, abs=0.02)
+    assert fit[1] == pytest.approx(r_cold, rel=0.01)
+    healthy = alerts.cabinet_probe_offset(t, t_cab, t_cold, qc, running, fit, 12 * 3600, 60)
+    assert np.nanmax(np.abs(healthy)) < 0.1
+    drift = 2.5 * np.clip((np.arange(n) - 4 * 1440) / (5 * 1440), 0.0, 1.0)
+    moved = alerts.cabinet_probe_offset(t, t_cab + drift, t_cold, qc, running, fit, 12 * 3600, 60)
+    # a 12-hour median lags a ramp by about 6 hours: the offset there is the drift 6 h earlier
+    lagged = 2.5 * np.clip((np.arange(n) - 4 * 1440 - 360) / (5 * 1440), 0.0, 1.0)
+    np.testing.assert_allclose(moved[3 * 1440 :], lagged[3 * 1440 :], atol=0.05)

@@ -9,7 +9,7 @@ from fastapi.responses import FileResponse, JSONResponse, PlainTextResponse, Res
 from prometheus_client import CONTENT_TYPE_LATEST, REGISTRY, generate_latest
 
 from tecfleet.api.deps import READ, EngineDep, ReadyDep
-from tecfleet.api.schemas import KEYED, HealthzOut, ReadyOut
+from tecfleet.api.schemas import HealthzOut, ReadyOut, json_error_responses
 from tecfleet.ingest import metrics as _ingest_metrics  # noqa: F401 - registers the counters
 from tecfleet.ingest.db import ping
 
@@ -52,7 +52,7 @@ def readyz(engine: EngineDep, ready: ReadyDep) -> JSONResponse:
             "description": "Prometheus text exposition format.",
             "content": {"text/plain": {"schema": {"type": "string"}}},
         },
-        **KEYED,
+        **json_error_responses(401, 403, 503),
     },
 )
 def metrics() -> Response:

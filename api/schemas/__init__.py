@@ -7,7 +7,14 @@ from tecfleet.api.schemas.alerts import (
     AuditEntryOut,
     alert_object,
 )
-from tecfleet.api.schemas.common import KEYED, KEYED_LOOKUP, ErrorOut, Page, error_responses
+from tecfleet.api.schemas.common import (
+    KEYED,
+    KEYED_LOOKUP,
+    ErrorOut,
+    Page,
+    error_responses,
+    json_error_responses,
+)
 from tecfleet.api.schemas.devices import CabinetIn, DeviceDetail, DeviceIn, DeviceOut, ModuleIn
 from tecfleet.api.schemas.health import EstimateOut, EstimatePointOut, HealthOut
 from tecfleet.api.schemas.maintenance import MaintenanceIn, MaintenanceOut
@@ -47,4 +54,5 @@ __all__ = [
     "WebhookOut",
     "alert_object",
     "error_responses",
+    "json_error_responses",
 ]

@@ -39,6 +39,22 @@ def error_responses(*codes: int) -> dict[int | str, dict[str, Any]]:
     return {code: _ERRORS[code] for code in codes}
 
 
+def json_error_responses(*codes: int) -> dict[int | str, dict[str, Any]]:
+    """``error_responses`` for a route whose success is not JSON: the errors still are.
+
+    Named by reference, since FastAPI files a ``model`` under the route's own media type;
+    ``ErrorOut`` is in the document through the routes that use ``error_responses``.
+    """
+    ref = {"$ref": "#/components/schemas/ErrorOut"}
+    return {
+        code: {
+            "description": _ERRORS[code]["description"],
+            "content": {"application/json": {"schema": ref}},
+        }
+        for code in codes
+    }
+
+
 #: Errors of a route behind a key, and of one that also names a device, alert or webhook.
 KEYED = error_responses(401, 403, 503)
 KEYED_LOOKUP = error_responses(401, 403, 404, 503)

@@ -13,7 +13,7 @@ from tecfleet.api.schemas import HealthzOut, ReadyOut, json_error_responses
 from tecfleet.ingest import metrics as _ingest_metrics  # noqa: F401 - registers the counters
 from tecfleet.ingest.db import ping
 
-STATIC = Path(__file__).resolve().parent.parent / "static"
+STATIC = Path(__file__).parent.parent / "static"
 
 router = APIRouter()
 

@@ -76,9 +76,9 @@ def cmd_serve(args: argparse.Namespace) -> int:
 def cmd_demo(args: argparse.Namespace) -> int:
     from tecfleet.analytics.scenario import demo_fleet, run_demo_feed
     from tecfleet.api.auth import create_key
-    from tecfleet.api.queries import register_device
     from tecfleet.api.schemas import DeviceIn
     from tecfleet.api.service import Service
+    from tecfleet.api.services.devices import register_device
     from tecfleet.ingest.embedded_broker import EmbeddedBroker
 
     data_dir = Path(args.data_dir).expanduser().resolve()

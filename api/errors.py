@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+from fastapi import HTTPException
+
 from tecfleet.ingest.errors import TecfleetError
 
-__all__ = ["CursorError", "WebhookError"]
+__all__ = ["CursorError", "WebhookError", "unprocessable"]
 
 
 class WebhookError(TecfleetError):
@@ -13,3 +15,8 @@ class WebhookError(TecfleetError):
 
 class CursorError(TecfleetError, ValueError):
     """A page cursor that this service did not hand out, or that no longer decodes."""
+
+
+def unprocessable(where: str, field: str, msg: str) -> HTTPException:
+    """A 422 answer naming the field, in the shape of FastAPI's own validation errors."""
+    return HTTPException(422, [{"loc": [where, field], "msg": msg, "type": "value_error"}])

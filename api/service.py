@@ -13,10 +13,11 @@ from collections.abc import Callable
 from typing import Any
 
 import uvicorn
+from fastapi import FastAPI
 from sqlalchemy.engine import Engine
 
 from tecfleet.api.app import create_app
-from tecfleet.api.notify import Notifier
+from tecfleet.api.delivery import Notifier
 from tecfleet.ingest.db import now_ms
 from tecfleet.ingest.ingester import Ingester
 from tecfleet.ingest.settings import Settings
@@ -43,18 +44,6 @@ class Service:
             return False, "MQTT subscription not yet in place"
         return True, "ready"
 
-    def _analytics_loop(self, analyze: Callable[[], Any]) -> None:
-        gate = self.analytics_gate
-        while gate is not None and not gate.wait(0.5):
-            if self.stopping.is_set():
-                return
-        while not self.stopping.is_set():
-            try:
-                analyze()
-            except Exception:  # keep the loop alive; the next round retries
-                log.exception("analysis round failed")
-            self.stopping.wait(self.settings.analyze_every_s)
-
     def run(self, on_started: Callable[[], None] | None = None) -> None:
         """Run until a signal (or ``stop``), then shut down in order."""
         if self.ingester is not None:
@@ -65,20 +54,16 @@ class Service:
         if "analytics" in self.settings.roles:
             analyze = analysis_round(self.settings, self.engine)
             self._analytics = threading.Thread(
-                target=self._analytics_loop, args=(analyze,), name="tecfleet-analytics", daemon=True
+                target=analytics_loop,
+                args=(analyze, self.stopping, self.analytics_gate, self.settings.analyze_every_s),
+                name="tecfleet-analytics",
+                daemon=True,
             )
             self._analytics.start()
         try:
             if "api" in self.settings.roles:
                 app = create_app(self.engine, ready=self.ready, settings=self.settings)
-                config = uvicorn.Config(
-                    app,
-                    host=self.settings.http_host,
-                    port=self.settings.http_port,
-                    log_level="warning",
-                    lifespan="on",
-                )
-                self.server = uvicorn.Server(config)
+                self.server = http_server(app, self.settings)
                 # uvicorn re-raises the signal that stopped it once it is done; with our own
                 # handlers in place that lands here instead of killing the process before
                 # the ingester has drained.
@@ -129,6 +114,35 @@ class Service:
             self.ingester.stop()
         self.engine.dispose()
         log.info("tecfleet stopped")
+
+
+def analytics_loop(
+    analyze: Callable[[], Any],
+    stopping: threading.Event,
+    gate: threading.Event | None,
+    every_s: float,
+) -> None:
+    """Run ``analyze`` every ``every_s`` seconds until ``stopping``; wait for ``gate`` first."""
+    while gate is not None and not gate.wait(0.5):
+        if stopping.is_set():
+            return
+    while not stopping.is_set():
+        try:
+            analyze()
+        except Exception:  # keep the loop alive; the next round retries
+            log.exception("analysis round failed")
+        stopping.wait(every_s)
+
+
+def http_server(app: FastAPI, settings: Settings) -> uvicorn.Server:
+    config = uvicorn.Config(
+        app,
+        host=settings.http_host,
+        port=settings.http_port,
+        log_level="warning",
+        lifespan="on",
+    )
+    return uvicorn.Server(config)
 
 
 def analysis_round(settings: Settings, engine: Engine) -> Callable[[], Any]:

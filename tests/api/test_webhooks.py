@@ -21,10 +21,11 @@ from paho.mqtt import client as mqtt
 from paho.mqtt.enums import CallbackAPIVersion
 
 from tecfleet.analytics import alerts
-from tecfleet.api import notify
+from tecfleet.api import delivery
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
 from tecfleet.api.errors import WebhookError
+from tecfleet.api.services.webhooks import create_webhook
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
 from tecfleet.ingest.settings import Settings
@@ -134,7 +135,7 @@ def test_signed_delivery_retried_while_down_then_delivered_once(
     excursion(engine, "fr-1")
     assert [c.change for c in alerts.evaluate(engine)] == ["opened"]
     receiver.down = True
-    notifier = notify.Notifier(engine, None, backoff_s=0.2, allow_private=True, group_hold_s=0)
+    notifier = delivery.Notifier(engine, None, backoff_s=0.2, allow_private=True, group_hold_s=0)
     for _ in range(3):
         notifier.drain_once()
         time.sleep(0.5)
@@ -157,16 +158,16 @@ def test_signed_delivery_retried_while_down_then_delivered_once(
     log = client.get(f"/v1/webhooks/{hook['id']}/deliveries", headers=admin).json()["items"]
     assert log[0]["state"] == "delivered" and log[0]["msg_id"] == headers["webhook-id"]
     # a fresh notifier (a restart) sends nothing again
-    notify.Notifier(engine, None, allow_private=True, group_hold_s=0).drain_once()
+    delivery.Notifier(engine, None, allow_private=True, group_hold_s=0).drain_once()
     assert len(receiver.got) == 1
 
 
 def test_dead_letter_after_the_last_attempt(engine: sa.Engine, receiver: Receiver) -> None:
-    notify.create_webhook(engine, receiver.url, allow_private=True)
+    create_webhook(engine, receiver.url, allow_private=True)
     excursion(engine, "fr-1")
     alerts.evaluate(engine)
     receiver.down = True
-    notifier = notify.Notifier(
+    notifier = delivery.Notifier(
         engine, None, backoff_s=0.05, max_attempts=3, allow_private=True, group_hold_s=0
     )
     for _ in range(6):
@@ -186,8 +187,8 @@ def test_private_and_loopback_targets_refused_by_default(engine: sa.Engine) -> N
         "ftp://example.com/x",
     ):
         with pytest.raises(WebhookError):
-            notify.check_url(url, allow_private=False)
-    assert notify.check_url("http://127.0.0.1:9/x", allow_private=True)
+            delivery.check_url(url, allow_private=False)
+    assert delivery.check_url("http://127.0.0.1:9/x", allow_private=True)
     client = TestClient(create_app(engine))
     admin = {"Authorization": f"Bearer {create_key(engine, 'ops', 'admin')}"}
     refused = client.post("/v1/webhooks", json={"url": "http://127.0.0.1:9/x"}, headers=admin)
@@ -197,11 +198,11 @@ def test_private_and_loopback_targets_refused_by_default(engine: sa.Engine) -> N
 
 
 def test_site_wide_event_gives_one_grouped_notice(engine: sa.Engine, receiver: Receiver) -> None:
-    notify.create_webhook(engine, receiver.url, allow_private=True)
+    create_webhook(engine, receiver.url, allow_private=True)
     for i in range(4):
         excursion(engine, f"st-{i}", site="north")
     assert len(alerts.evaluate(engine)) == 4
-    notifier = notify.Notifier(engine, None, allow_private=True, group_hold_s=0)
+    notifier = delivery.Notifier(engine, None, allow_private=True, group_hold_s=0)
     notifier.drain_once()
     assert len(receiver.got) == 1
     payload = json.loads(receiver.got[0][1])
@@ -224,7 +225,7 @@ def test_alerts_published_qos1_on_the_device_alert_topic(
     excursion(engine, "fr-9")
     alerts.evaluate(engine)
     settings = Settings(mqtt_url=mosquitto.url, mqtt_client_id="alerts-test")
-    notifier = notify.Notifier(engine, settings, group_hold_s=0)
+    notifier = delivery.Notifier(engine, settings, group_hold_s=0)
     notifier.drain_once()
     deadline = time.monotonic() + 10
     while not got and time.monotonic() < deadline:

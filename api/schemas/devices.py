@@ -1,17 +1,12 @@
-"""Request and response bodies of the REST API (separate from the tables)."""
+"""Device registration in, devices out."""
 
 from __future__ import annotations
 
-from typing import Any, Generic, TypeVar
+from typing import Any
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
-T = TypeVar("T")
-
-
-class Page(BaseModel, Generic[T]):
-    items: list[T]
-    next_cursor: str | None
+from tecfleet.api.schemas.readings import ReadingOut
 
 
 class ModuleIn(BaseModel):
@@ -60,19 +55,6 @@ class DeviceIn(BaseModel):
     cabinet: CabinetIn | None = None
 
 
-class ReadingOut(BaseModel):
-    ts: str
-    seq: int | None
-    t_cabinet: float
-    t_cold: float
-    t_hot: float
-    t_ambient: float
-    current: float
-    voltage: float
-    rh: float | None
-    door_open: bool | None
-
-
 class DeviceOut(BaseModel):
     device_id: str
     label: str | None
@@ -90,16 +72,3 @@ class DeviceOut(BaseModel):
 
 class DeviceDetail(DeviceOut):
     latest_reading: ReadingOut | None
-
-
-class RejectOut(BaseModel):
-    id: int
-    received_at: str
-    topic: str
-    device_id: str | None
-    item: int | None
-    code: str
-    reason: str
-    payload: str
-    payload_encoding: str
-    payload_size: int

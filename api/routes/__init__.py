@@ -1,0 +1,41 @@
+"""HTTP routes, one router per resource; each handler is a thin call of a service function."""
+
+from fastapi import APIRouter
+
+from tecfleet.api.routes import (
+    alerts,
+    devices,
+    health,
+    maintenance,
+    policies,
+    readings,
+    rejects,
+    system,
+    webhooks,
+)
+
+#: Every router, in the order the app includes them.
+ROUTERS: tuple[APIRouter, ...] = (
+    alerts.router,
+    maintenance.router,
+    policies.router,
+    webhooks.router,
+    system.router,
+    devices.router,
+    readings.router,
+    health.router,
+    rejects.router,
+)
+
+__all__ = [
+    "ROUTERS",
+    "alerts",
+    "devices",
+    "health",
+    "maintenance",
+    "policies",
+    "readings",
+    "rejects",
+    "system",
+    "webhooks",
+]

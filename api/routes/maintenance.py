@@ -1,0 +1,49 @@
+"""Maintenance routes: silence a device or a site, and list the windows."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import APIRouter
+
+from tecfleet.analytics.errors import AlertError
+from tecfleet.api.deps import READ, EngineDep, Writer
+from tecfleet.api.errors import unprocessable
+from tecfleet.api.schemas import KEYED, MaintenanceIn, MaintenanceOut, Page
+from tecfleet.api.services import maintenance
+from tecfleet.api.timefmt import rfc3339_to_ms
+
+router = APIRouter(tags=["alerts"])
+
+
+@router.post("/v1/maintenance", status_code=201, response_model=MaintenanceOut, responses=KEYED)
+def maintenance_add(engine: EngineDep, body: MaintenanceIn, who: Writer) -> MaintenanceOut:
+    """Silence a device or a site: notices are held and sent at the end if still relevant."""
+    times = {}
+    for name in ("start", "end"):
+        try:
+            times[name] = rfc3339_to_ms(getattr(body, name))
+        except ValueError as exc:
+            raise unprocessable("body", name, str(exc)) from exc
+    try:
+        return maintenance.add_window(
+            engine,
+            times["start"],
+            times["end"],
+            device_id=body.device_id,
+            site=body.site,
+            reason=body.reason,
+            created_by=who.name,
+        )
+    except AlertError as exc:
+        raise unprocessable("body", "device_id", str(exc)) from exc
+
+
+@router.get(
+    "/v1/maintenance",
+    response_model=Page[MaintenanceOut],
+    dependencies=[READ],
+    responses=KEYED,
+)
+def maintenance_list(engine: EngineDep) -> dict[str, Any]:
+    return {"items": maintenance.list_windows(engine), "next_cursor": None}

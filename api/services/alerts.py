@@ -1,0 +1,53 @@
+"""Alerts as the API shows them: the filtered list, one alert with its audit trail, and the
+acknowledgement."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from sqlalchemy.engine import Engine
+
+from tecfleet.analytics import alerts as rules
+from tecfleet.api.pagination import int_cursor, next_cursor
+from tecfleet.api.schemas.alerts import AlertDetailOut, AlertOut, alert_object
+from tecfleet.api.timefmt import ms_to_rfc3339
+from tecfleet.ingest.db import alert_reads, alert_records
+from tecfleet.ingest.errors import NotFoundError
+
+
+def known_kind(kind: str) -> bool:
+    return kind in rules.KINDS
+
+
+def list_alerts(
+    engine: Engine,
+    limit: int,
+    cursor: str | None,
+    *,
+    device: str | None = None,
+    state: str | None = None,
+    kind: str | None = None,
+) -> tuple[list[AlertOut], str | None]:
+    """Alerts newest first, filtered by device, state and kind."""
+    before = int_cursor(cursor)
+    rows = alert_reads.alert_page(engine, limit, before, device=device, state=state, kind=kind)
+    items = [AlertOut(**alert_object(alert_records.alert_row_dict(r))) for r in rows[:limit]]
+    return items, next_cursor(rows, limit, "id")
+
+
+def get_alert(engine: Engine, alert_id: int) -> AlertDetailOut:
+    """One alert with its audit trail (state changes, who acknowledged and when)."""
+    row = alert_reads.alert_by_id(engine, alert_id)
+    if row is None:
+        raise NotFoundError(f"unknown alert {alert_id}")
+    out: dict[str, Any] = alert_object(alert_records.alert_row_dict(row))
+    out["history"] = [
+        {**{k: v for k, v in h.items() if k != "at_ms"}, "at": ms_to_rfc3339(h["at_ms"])}
+        for h in rules.audit_trail(engine, alert_id)
+    ]
+    return AlertDetailOut(**out)
+
+
+def acknowledge(engine: Engine, alert_id: int, actor: str, note: str | None) -> AlertOut:
+    """Acknowledge an open alert in the name of ``actor`` (idempotent)."""
+    return AlertOut(**alert_object(rules.acknowledge(engine, alert_id, actor, note)))

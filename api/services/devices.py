@@ -1,0 +1,72 @@
+"""Devices: the list, one device with its newest reading, and registration."""
+
+from __future__ import annotations
+
+import time
+from typing import Any
+
+from sqlalchemy.engine import Engine, Row
+
+from tecfleet.api.pagination import next_cursor, str_cursor
+from tecfleet.api.schemas.devices import DeviceDetail, DeviceIn, DeviceOut
+from tecfleet.api.services.readings import reading_out
+from tecfleet.api.timefmt import ms_to_rfc3339
+from tecfleet.ingest.db import fleet as fleet_db
+from tecfleet.ingest.errors import NotFoundError
+
+#: A device is shown offline when its newest reading is older than this (wall clock) [ms].
+STALE_AFTER_MS = 15 * 60 * 1000
+
+
+def not_found(device_id: str) -> NotFoundError:
+    return NotFoundError(f"device {device_id!r} is not known")
+
+
+def require_device(engine: Engine, device_id: str) -> None:
+    """NotFoundError unless the device is known."""
+    if not fleet_db.device_exists(engine, device_id):
+        raise not_found(device_id)
+
+
+def _device_out(row: Row[Any], open_alerts: int, wall_ms: int) -> DeviceOut:
+    fresh = row.last_reading_ms is not None and wall_ms - row.last_reading_ms <= STALE_AFTER_MS
+    return DeviceOut(
+        device_id=row.device_id,
+        label=row.label,
+        site=row.site,
+        module=row.module,
+        cabinet=row.cabinet,
+        registered_at=ms_to_rfc3339(row.registered_at_ms),
+        first_seen_at=ms_to_rfc3339(row.first_seen_ms),
+        last_reading_at=ms_to_rfc3339(row.last_reading_ms),
+        readings=int(row.readings or 0),
+        online=bool(fresh and row.status != "offline"),
+        status=row.status,
+        open_alerts=open_alerts,
+    )
+
+
+def list_devices(
+    engine: Engine, limit: int, cursor: str | None
+) -> tuple[list[DeviceOut], str | None]:
+    after = str_cursor(cursor)
+    rows, counts = fleet_db.device_page(engine, limit, after)
+    page = rows[:limit]
+    wall = int(time.time() * 1000)
+    items = [_device_out(r, counts.get(r.device_id, 0), wall) for r in page]
+    return items, next_cursor(rows, limit, "device_id")
+
+
+def get_device(engine: Engine, device_id: str) -> DeviceDetail:
+    found = fleet_db.device_detail(engine, device_id)
+    if found is None:
+        raise not_found(device_id)
+    row, open_alerts, latest = found
+    base = _device_out(row, open_alerts, int(time.time() * 1000))
+    return DeviceDetail(**base.model_dump(), latest_reading=reading_out(latest) if latest else None)
+
+
+def register_device(engine: Engine, device_id: str, body: DeviceIn) -> DeviceDetail:
+    """Create or update a device's registration; only the fields given change."""
+    fleet_db.register(engine, device_id, body.model_dump(exclude_unset=True))
+    return get_device(engine, device_id)

@@ -71,4 +71,3 @@ def hourly(
         rows, state, "rhot", "hot_side.resistance", b, est.value, cfg.r_hot_flag_pct, 0.03, cfg,
         persist=2 if slow else 1, at_once_pct=2.0 * cfg.r_hot_flag_pct if slow else None,
     )  # fmt: skip
-

@@ -11,7 +11,6 @@ code does not know are kept, in their place, as they came.
 from __future__ import annotations
 
 import dataclasses
-import functools
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any, ClassVar, Self, TypeVar
@@ -31,6 +30,10 @@ class _Stored:
     _STORED_AS: ClassVar[dict[str, str]] = {}
     #: How a field's stored value becomes its value, where it is not the JSON value itself.
     _DECODE: ClassVar[dict[str, Callable[[Any], Any]]] = {}
+    #: Stored keys present, in their stored order.
+    _order: list[str]
+    #: Stored keys this code does not know (or null), with their values as they came.
+    _unknown: dict[str, Any]
 
     def __setattr__(self, name: str, value: Any) -> None:
         key = _keys(type(self)).get(name)
@@ -52,8 +55,8 @@ class _Stored:
         object.__setattr__(self, "_order", [])
         object.__setattr__(self, "_unknown", {})
         names = {key: name for name, key in _keys(cls).items()}
-        for name in names.values():
-            object.__setattr__(self, name, None)
+        for field_name in names.values():
+            object.__setattr__(self, field_name, None)
         for key, value in obj.items():
             name = names.get(key)
             if name is None or value is None:
@@ -75,10 +78,16 @@ class _Stored:
         return out
 
 
-@functools.cache
+_KEYS: dict[type[_Stored], dict[str, str]] = {}
+
+
 def _keys(cls: type[_Stored]) -> dict[str, str]:
-    # Field name -> stored key, for the dataclass fields of ``cls``.
-    return {f.name: cls._STORED_AS.get(f.name, f.name) for f in dataclasses.fields(cls)}  # type: ignore[arg-type]
+    # Field name -> stored key, for the dataclass fields of ``cls`` (worked out once).
+    keys = _KEYS.get(cls)
+    if keys is None:
+        fields = dataclasses.fields(cls)  # type: ignore[arg-type]
+        keys = _KEYS[cls] = {f.name: cls._STORED_AS.get(f.name, f.name) for f in fields}
+    return keys
 
 
 def _encode(value: Any) -> Any:

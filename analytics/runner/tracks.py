@@ -21,7 +21,14 @@ from tecfleet.analytics.runner.settings import MS_DAY, AnalysisSettings
 from tecfleet.analytics.runner.settled import s_settled
 from tecfleet.analytics.runner.state import Baseline, DeviceState, Point, UaLead
 
-__all__ = ["ambient_lead_usual", "daily_medians_before", "rebase_ua", "track", "track_r25", "track_ua"]
+__all__ = [
+    "ambient_lead_usual",
+    "daily_medians_before",
+    "rebase_ua",
+    "track",
+    "track_r25",
+    "track_ua",
+]
 
 
 def track(

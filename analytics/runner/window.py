@@ -17,10 +17,10 @@ from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics
 from tecfleet.analytics._validate import T_25C_K, FloatArray
 from tecfleet.analytics.errors import PhysicsError
+from tecfleet.analytics.runner import settled
 from tecfleet.analytics.runner.data import Readings, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings
-from tecfleet.analytics.runner import settled
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
 from tecfleet.analytics.runner.tracks import ambient_lead_usual, rebase_ua, track_r25, track_ua
 

@@ -87,13 +87,13 @@ def fit_window(
     fitted = _thermal(data, win, ele, rows, state, prior, cfg)
     if fitted is None:
         return
-    th_fit, k_held = fitted
+    th_fit, k_settled = fitted
     _remember_fit(win, th_fit, state, cfg)
     cov3 = _cov3(ele.el, th_fit.stderrs["k"])
     _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
     rises = _rises(data, win)
     _path_rows(win, th_fit, rises, rows, cfg)
-    _follow_ua(b, th_fit, k_held, rises[2], rows, state, cfg)
+    _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg)
     _performance(win, ele, th_fit, cov3, rows, cfg)
 
 

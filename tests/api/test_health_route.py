@@ -11,8 +11,8 @@ from tecfleet.analytics import runner
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
 from tecfleet.ingest import db
+from tests.analytics.runner.test_runner import CONTRACT_KEYS
 from tests.analytics.synthetic import Truth, simulate
-from tests.analytics.test_runner import CONTRACT_KEYS
 
 
 def test_health_has_every_contract_key_after_analysis(sqlite_url: str) -> None:

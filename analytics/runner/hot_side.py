@@ -1,0 +1,72 @@
+"""The hourly hot-side resistance, from the newest fitted parameters, and its tracking."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from tecfleet.analytics import diagnostics as dg
+from tecfleet.analytics._validate import T_25C_K
+from tecfleet.analytics.runner.data import Readings, flags_of
+from tecfleet.analytics.runner.rows import EstimateRows
+from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
+from tecfleet.analytics.runner.state import DeviceState
+from tecfleet.analytics.runner.tracks import track
+
+__all__ = ["hot_side", "hourly"]
+
+
+def hot_side(
+    data: Readings, first: int, last: int, state: DeviceState, cfg: AnalysisSettings
+) -> dict[int, dg.Estimate | None]:
+    """Hot-side resistance of the hourly steps ending at ``first`` .. ``last`` (inclusive)."""
+    step = cfg.step_s * 1000
+    ends = range(first, last + 1, step)
+    params = state.params
+    if params is None or params.c_hot is None:
+        return dict.fromkeys(ends)
+    w = data.slice(first - step, last)
+    ts = data.ts[w]
+    block = (ts - (first - step)) // step
+    tm = 0.5 * (data.tc[w] + data.th[w])
+    s = params.s25 * (1.0 + cfg.beta * (tm - T_25C_K))
+    r = params.r25 * (1.0 + cfg.alpha * (tm - T_25C_K))
+    ests = dg.hot_side_resistance_ratios(
+        data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r,
+        state.k_trend if state.k_trend is not None else params.k,
+        flags_of(data, w).usable, block, len(ends), c_hot=params.c_hot,
+        faces_followed=bool(_faces_followed(state)), options=diagnostics_options(cfg),
+    )  # fmt: skip
+    n_samples = np.bincount(block, minlength=len(ends))
+    return {
+        b: est if isinstance(est, dg.Estimate) and n >= 10 else None
+        for b, est, n in zip(ends, ests, n_samples, strict=True)
+    }
+
+
+def _faces_followed(state: DeviceState) -> bool:
+    # Whether the samples follow the sinks, as the last thermal fit found (yes till one did).
+    p = state.params
+    return True if p is None or p.faces_followed is None else p.faces_followed
+
+
+def hourly(
+    b: int, est: dg.Estimate | None, rows: EstimateRows, state: DeviceState, cfg: AnalysisSettings
+) -> None:
+    """Store the hour's hot-side resistance ending at ``b`` and follow its changes."""
+    if est is None:
+        return
+    rows.est("hot_side.resistance_k_per_w", b, est)
+    # Where the sinks store heat faster than the samples follow, the hour's figure carries a
+    # steady bias (see diagnostics.hot_side_resistance_ratios): not reliable, but precise
+    # hours are still followed, since a steady bias cancels in the change. One hour there
+    # can still read +50 % when the cycle drifts into step with the sampling (simulated
+    # units: single hours up to +51 %, never two in a row), so the flag waits for a second,
+    # unless the hour reads twice the threshold (a failed fan's 3x does).
+    slow = not _faces_followed(state)
+    followed = est.reliable or (slow and est.stderr is not None and est.stderr < 0.2 * est.value)
+    if not followed or state.k_trend is None:
+        return
+    track(
+        rows, state, "rhot", "hot_side.resistance", b, est.value, cfg.r_hot_flag_pct, 0.03, cfg,
+        persist=2 if slow else 1, at_once_pct=2.0 * cfg.r_hot_flag_pct if slow else None,
+    )  # fmt: skip

@@ -1,0 +1,158 @@
+"""Cadence, thresholds and priors of the analysis runner, and the unit constants it uses."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from tecfleet.analytics import diagnostics as dg
+from tecfleet.analytics import physics
+
+__all__ = ["MS_DAY", "T0", "AnalysisSettings"]
+
+#: 0 °C in kelvin [K].
+T0 = 273.15
+#: Milliseconds in a day [ms].
+MS_DAY = 86_400_000
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """Cadence, thresholds and priors of the diagnostics (times in seconds)."""
+
+    #: Hourly step: the hot-side resistance and its change [s] (common practice, no source).
+    step_s: int = 3600
+    #: Module and performance fits every 6 hours [s] (common practice, no source).
+    window_s: int = 6 * 3600
+    #: Readings behind the thermal fit (K, sinks, cabinet), ending with each window: a day
+    #: averages over use and ambient cycles, which the cabinet balance needs [s].
+    thermal_window_s: int = 24 * 3600
+    #: Slopes, wear and capacity once a day [s] (common practice, no source).
+    daily_s: int = 86_400
+    margin_s: int = 1800  # look-back for door settling and spike filtering [s]
+    #: Current above which the module counts as on [A] (common practice, no source).
+    on_current: float = 0.05
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO  # [1/K]
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO  # [1/K]
+    #: Commissioning baseline: the median of the first days' values [d] (common practice,
+    #: no source).
+    baseline_days: float = 3.0
+    #: Fewest reliable values a baseline is made of; with fewer in ``baseline_days`` it waits
+    #: for more (a baseline of two or three fits would set every later change on chance;
+    #: common practice, no source).
+    baseline_min_n: int = 6
+    #: Span of the daily medians behind the Theil-Sen slopes [d] (common practice, no source).
+    trend_days: float = 30.0
+    #: +10 % on R25 as end of useful life [%] (common practice, no source).
+    wear_limit_pct: float = 10.0
+    #: Change of R25 against its baseline that raises its flag [%] (common practice, no
+    #: source).
+    r25_flag_pct: float = 4.0
+    #: Largest relative standard error of R25 at the unit's trend S, from the readings'
+    #: scatter alone, for a window to be followed [-] (common practice, no source).
+    r25_max_rel_se: float = 0.01
+    #: Relative standard deviation of the registered ratings (R, S) as priors, and of the
+    #: rated S taken as the trend S till the unit has its own [-] (the spread between units
+    #: of a type; common practice, no source).
+    rating_rel_sd: float = 0.15
+    #: Largest shift of R25 [%] that the trend S's uncertainty may cause through a change of
+    #: the operating point (ΔT per ampere) since the baseline, for a window to be followed:
+    #: a quarter of ``r25_flag_pct``.
+    r25_lever_shift_pct: float = 1.0
+    #: Change of UA against its baseline that raises its flag [%] (common practice, no
+    #: source).
+    ua_flag_pct: float = 35.0
+    #: UA baseline starts this long after the first UA fit [d]: the first day of a unit's
+    #: history holds its pull-down, which the cabinet balance over a day does not describe.
+    ua_baseline_skip_days: float = 1.0
+    #: Consecutive 6-hourly evaluations at or above ``ua_flag_pct`` before the UA flag is
+    #: raised [-]: one day's fit can swing that far with weather and use, a leak stays. Each
+    #: needs the newest window's own UA there too (to within one of its standard errors),
+    #: not only the day's median: warm goods put in give off their heat for many hours, so a
+    #: busy day inflates every window that holds it, and with the day's other windows
+    #: unreliable the median can be made of those alone (against simulated fleets with
+    #: known truth, healthy units flagged over 90-day seasons: 1 of 72, not 3). Without the
+    #: standard error a leak whose windows scatter about the threshold waited 62 h for two
+    #: in a row past it.
+    ua_flag_persist: int = 2
+    #: Largest standard error of a window's UA from its own scatter, relative to its value,
+    #: for UA's change to be followed [-]. The fit calls UA reliable below 15 %; on a unit
+    #: with a small UA that passes mostly the windows that happen to read high, and a
+    #: baseline made of them hid a 1.5x leak on a simulated fleet with known truth (seed 17
+    #: of the detection bench; every fault of seeds 4-14 and 18-22 still flagged in time, no
+    #: more season flags).
+    ua_follow_rel_se: float = 0.25
+    #: Smallest lead of the ambient over the cabinet (Ta - Tcab, the window's mean), as a
+    #: share of its median over the commissioning weeks, for UA's change to be followed once
+    #: those weeks are over [-]. A heat flow the balance gets wrong by a constant (the
+    #: internal load held at the unit's settled value, a sink's transients) moves UA by that
+    #: flow over Ta - Tcab, and warm goods weigh more beside the little heat the walls let
+    #: in: on simulated fleets with known truth, UA's change drifted 10 % on a unit in a cold
+    #: spell at half its usual lead and 30-50 % on one whose sinks store heat at a third of
+    #: it, and with warm goods put in they raised leak flags on healthy units. A leak lets in
+    #: little heat then; one that begins in a cold spell is flagged once the ambient is back.
+    ua_follow_min_lead_share: float = 0.6
+    #: UA (R25) fits kept while the unit's trend K (S) is the rated one, to follow them again
+    #: at the unit's own once it shows it (a hundred days of 6-hourly fits) [-].
+    ua_raw_keep: int = 400
+    #: UA's baseline goes on taking in the unit's values for this long after its start [d]
+    #: (the commissioning weeks; common practice, no source), unless its change reaches
+    #: ``ua_flag_pct`` first: a few days' values share their weather and use, and one
+    #: day's fit scatters by 10-15 %, so three days' median can sit 20 % from the unit's
+    #: usual value. Till then changes are judged against the baseline so far.
+    ua_baseline_grow_days: float = 14.0
+    #: Change of the hot side's resistance against its baseline that raises its flag [%]
+    #: (common practice, no source).
+    r_hot_flag_pct: float = 50.0
+    #: Least mean heat rejected over an hour for its hot-side resistance [W]. A cold night
+    #: keeps a proportionally driven unit at a few watts, and a fan failing then raises the
+    #: sink's rise just as much: below this the probe offsets, not the heat, set the error,
+    #: and the estimate's own standard error says whether it is reliable (common practice,
+    #: no source).
+    r_hot_min_heat_w: float = 5.0
+    cusum_allowance: float = 0.5  # [σ], Page (1954), Montgomery (from memory)
+    #: Upper ambient of climate classes SN and N, 32 °C (ISO 15502 / IEC 62552; from memory).
+    design_ambient_c: float = 32.0
+    #: Setpoint assumed when a registration omits it [°C] (common practice, no source).
+    default_setpoint_c: float = 5.0
+    #: Uncertainty of the difference of two uncalibrated probes [K] (common practice, no source).
+    probe_offset_k: float = 0.3
+    #: Largest standard error of UA, probe offsets included, relative to UA, for the value to be
+    #: served as reliable [-]: beyond a quarter, two standard errors span more than half the
+    #: value (common practice, no source). Its changes are judged on the fit's own precision.
+    ua_max_rel_se: float = 0.25
+    #: Smallest share of the thermal window with the module at rest for the served K, UA and
+    #: cold-side resistance to be reliable, and below which the thermal fit treats the window
+    #: as one operating point [-] (see ``window.fit_window``; common practice, no source).
+    min_rest_share: float = 0.05
+    #: The unit's settled K: the median of its last ``k_hold_keep`` K values fitted from data,
+    #: once there are ``k_hold_min_n`` [-]. K is held there at a single operating point (else
+    #: at the rated prior), and the cabinet balance uses it in every window (common practice,
+    #: no source).
+    k_hold_min_n: int = 4
+    k_hold_keep: int = 28
+    #: Windows whose S the readings pinned before the heat balances use the unit's settled S
+    #: (two days of them) [-]: a module that seldom shows its S (proportional drive) keeps the
+    #: S of each window rather than one settled on the few odd windows that did.
+    s_settle_min_n: int = 8
+    #: Smallest standard error of the unit's settled internal load [W] (common practice, no
+    #: source): what a fan's or a controller's draw may wander by.
+    q_settled_min_sd: float = 0.1
+    #: Rated hot-side temperature assumed when a registration omits it, 27 °C (common
+    #: practice for module datasheets, no source).
+    default_t_hot_rated_c: float = 27.0
+    #: Worker processes for a run with much to catch up on (each opens its own engine from
+    #: the URL); None: min(2, CPU count). 1 analyses in this process.
+    workers: int | None = None
+    #: Fewest pending steps, summed over devices, worth starting worker processes for: a
+    #: live run (a step or two per device) stays in this process.
+    parallel_min_steps: int = 2000
+
+
+def diagnostics_options(cfg: AnalysisSettings) -> dg.DiagnosticsOptions:
+    """The diagnostics' options, with the ones this runner's settings expose taken from ``cfg``."""
+    return dg.DiagnosticsOptions(
+        on_current=cfg.on_current,
+        probe_offset_k=cfg.probe_offset_k,
+        min_rest_share=cfg.min_rest_share,
+        hot_side_min_heat_j=cfg.r_hot_min_heat_w * cfg.step_s,
+    )

@@ -1,0 +1,285 @@
+"""Tracked quantities: baselines, changes, CUSUM, flags, and the daily medians they keep.
+
+R25's changes are judged at one S (the trend S), UA's at one K (the trend K); the hot side's
+hourly resistance is tracked by :mod:`.hot_side` through :func:`track` as well.
+"""
+
+from __future__ import annotations
+
+import bisect
+import itertools
+import math
+import statistics
+from typing import Any
+
+import numpy as np
+
+from tecfleet.analytics import diagnostics as dg
+from tecfleet.analytics import physics, trends
+from tecfleet.analytics.runner.rows import EstimateRows
+from tecfleet.analytics.runner.settings import MS_DAY, AnalysisSettings
+from tecfleet.analytics.runner.settled import s_settled
+from tecfleet.analytics.runner.state import Baseline, DeviceState, Point, UaLead
+
+__all__ = [
+    "ambient_lead_usual",
+    "daily_medians_before",
+    "rebase_ua",
+    "track",
+    "track_r25",
+    "track_ua",
+]
+
+
+def track(
+    rows: EstimateRows,
+    state: DeviceState,
+    name: str,
+    prefix: str,
+    b: int,
+    value: float,
+    flag_pct: float,
+    min_rel_spread: float,
+    cfg: AnalysisSettings,
+    *,
+    skip_days: float = 0.0,
+    persist: int = 1,
+    grow_days: float = 0.0,
+    newest_sd: float | None = None,
+    at_once_pct: float | None = None,
+) -> None:
+    """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
+
+    The baseline is the median of the values from ``skip_days`` to ``skip_days +
+    baseline_days`` after the first one, or of the first ``baseline_min_n`` from
+    ``skip_days`` on when that period holds fewer; the flag is raised once the change has
+    reached ``flag_pct`` on ``persist`` consecutive evaluations. With ``grow_days``, every
+    later value joins the baseline until ``grow_days`` after its start, and none once the
+    change has reached ``flag_pct``: a fault's values must not make its own baseline. With
+    ``newest_sd`` (the newest value's standard error), an evaluation counts towards
+    ``persist`` only when the newest value is within one standard error of a change of
+    ``flag_pct`` or beyond. With ``at_once_pct``, a change that reaches it raises the flag
+    on its first evaluation.
+    """
+    series = state.series_by_name().setdefault(name, [])
+    first = state.first_by_name().setdefault(name, b)
+    series.append([b, value])
+    horizon = b - int(cfg.trend_days * MS_DAY)
+    baseline_start = first + int(skip_days * MS_DAY)
+    baseline_end = baseline_start + int(cfg.baseline_days * MS_DAY)
+    while series and series[0][0] < horizon and series[0][0] > baseline_end:
+        series.pop(0)
+    bl_d = _baseline(state, name, b, value, series, baseline_start, baseline_end, grow_days,
+                     min_rel_spread, cfg)  # fmt: skip
+    if bl_d is None:
+        return
+    center, spread = float(bl_d.center), float(bl_d.spread)
+    # The series is in time order: cut it by bisection rather than by scanning it every step.
+    series = daily_medians_before(
+        series[bisect.bisect_left(series, horizon, key=_at) :], b // MS_DAY - 1
+    )
+    state.series_by_name()[name] = series
+    recent_from = b - (cfg.step_s * 1000 if name == "rhot" else MS_DAY)
+    tail = series[bisect.bisect_right(series, recent_from, key=_at) :]
+    # statistics.median: the same value as numpy's for these few points, without its overhead.
+    recent = float(statistics.median(x for _, x in tail))
+    change = trends.percent_change(recent, center)
+    cus = state.cusum_by_name()
+    c_new = trends.cusum_update(
+        float(cus.get(name, 0.0)), value, center, spread, cfg.cusum_allowance
+    )
+    cus[name] = c_new
+    n_base = int(bl_d.n)
+    rows.add(f"{prefix}.change_pct", b, change, 100.0 * spread / center, n_base)
+    above = state.above_by_name()
+    # With newest_sd the newest value must show the change as well, to its own precision: a
+    # lasting fault shows in every later value, while the day's median can be made of two or
+    # three disturbed ones.
+    newest_ok = newest_sd is None or trends.percent_change(value + newest_sd, center) >= flag_pct
+    above[name] = int(above.get(name, 0)) + 1 if change >= flag_pct and newest_ok else 0
+    raised = above[name] >= persist or (
+        at_once_pct is not None and change >= at_once_pct and newest_ok
+    )
+    rows.add(f"{prefix}.flag", b, 1.0 if raised else 0.0, None, n_base)
+    if b % (cfg.window_s * 1000) == 0:
+        # Slow-moving figures: once per window is enough, also for the hourly series.
+        rows.add(f"{prefix}.baseline", b, center, spread / math.sqrt(max(n_base, 1)), n_base)
+        rows.add(f"{prefix}.cusum", b, c_new, None, n_base)
+
+
+def _baseline(
+    state: DeviceState,
+    name: str,
+    b: int,
+    value: float,
+    series: list[Point],
+    baseline_start: int,
+    baseline_end: int,
+    grow_days: float,
+    min_rel_spread: float,
+    cfg: AnalysisSettings,
+) -> Baseline | None:
+    # The quantity's baseline once its period has passed (see track), grown by ``value``
+    # while it still grows; None while there is none yet.
+    bases = state.baseline_by_name()
+    if name not in bases:
+        if b < baseline_end:
+            return None
+        pool = np.array([x for at, x in series if baseline_start <= at <= baseline_end])
+        if pool.size < cfg.baseline_min_n:
+            # Too few reliable values in the baseline period: keep collecting, the first
+            # baseline_min_n from its start make the baseline.
+            later = [x for at, x in series if at >= baseline_start][: cfg.baseline_min_n]
+            if len(later) < cfg.baseline_min_n:
+                return None
+            pool = np.array(later)
+        bl = trends.baseline(pool, min_rel_spread)
+        bases[name] = Baseline(center=bl.center, spread=bl.spread, n=bl.n)
+        if grow_days > 0.0:
+            bases[name].pool = pool.tolist()
+        # baseline values are no longer needed in the series beyond the trend horizon
+    elif bases[name].pool is not None:
+        pool_d = bases[name]
+        # Closed at the end of the growing time, and for good once the change has reached
+        # flag_pct: a fault's values must not make its own baseline.
+        if b > baseline_start + int(grow_days * MS_DAY) or (state.above or {}).get(name):
+            pool_d.pool = None
+        else:
+            assert pool_d.pool is not None
+            pool_d.pool.append(value)
+            bl = trends.baseline(np.array(pool_d.pool), min_rel_spread)
+            pool_d.center, pool_d.spread, pool_d.n = bl.center, bl.spread, bl.n
+    return bases[name]
+
+
+def _at(point: list[Any]) -> int:
+    return int(point[0])
+
+
+def daily_medians_before(series: list[Point], day: int) -> list[Point]:
+    """Days before ``day`` (UTC day numbers) reduced to one point each, their median at the
+    day's last time; later days keep every value."""
+    # All that the daily trend reads of earlier days (it takes each day's median), and the
+    # carried state stays small. Later days keep every value (recent medians).
+    split = bisect.bisect_left(series, day * MS_DAY, key=_at)
+    out: list[Point] = []
+    for _, group in itertools.groupby(series[:split], key=lambda p: int(p[0]) // MS_DAY):
+        pts = list(group)
+        out.append(pts[0] if len(pts) == 1 else [pts[-1][0], statistics.median(x for _, x in pts)])
+    return out + series[split:]
+
+
+def track_r25(
+    rows: EstimateRows,
+    state: DeviceState,
+    b: int,
+    el: dg.ElectricalFit,
+    prior: physics.ModuleParameters | None,
+    cfg: AnalysisSettings,
+) -> None:
+    """Follow one window's R25 at the unit's trend S (see the comment below)."""
+    # R25's changes are judged at one S, the unit's trend S, kept from the first window whose S is
+    # the unit's own (its settled S, or failing that this window's S where the readings separate it
+    # from R); till then the rated S, and once the unit shows its own the track is made again at it
+    # from the windows followed so far. S does not wear, while a window's own S scatters, and where
+    # the drive never rests the readings cannot separate R from S and R is fitted with S held. An
+    # error δS of the trend S moves R25 by -lever·δS, lever = ΣI·ΔT/ΣI² (with the temperature
+    # factors): the same in every window at the same operating point, so it cancels in R25's
+    # changes. A window is followed when its R25 at the trend S is pinned by its readings, and once
+    # there is a baseline, when its lever is near enough the baseline's that S's uncertainty cannot
+    # move R25 by more than ``r25_lever_shift_pct`` (a hot spell changes ΔT per ampere).
+    settled = s_settled(state, cfg)
+    if settled is not None:
+        source, s_ref, s_sd = "own", settled[0], settled[1]
+    elif el.reliable:
+        source, s_ref, s_sd = "own", el.s25, math.sqrt(max(float(el.cov[1, 1]), 0.0))
+    elif prior is not None:
+        source, s_ref, s_sd = "prior", prior.seebeck, cfg.rating_rel_sd * prior.seebeck
+    else:
+        return
+    if state.s_trend_source == "prior" and source == "own":
+        # Made again from the windows followed so far, at the unit's own S (a fresh start
+        # would take wear of these days into a new baseline).
+        state.restart_track("r25")
+        state.r25_levers = None
+        state.s_trend, state.s_trend_source = [s_ref, s_sd], source
+        scratch = EstimateRows("")
+        kept_raw, state.r25_raw = state.r25_raw or [], None
+        for at, r0, lever, sd, ok in kept_raw:
+            _follow_r25(scratch, state, int(at), r0, lever, sd, bool(ok), cfg)
+    if state.s_trend is None:
+        state.s_trend, state.s_trend_source = [s_ref, s_sd], source
+    if state.s_trend_source == "prior":
+        kept = state.r25_raw = state.r25_raw if state.r25_raw is not None else []
+        kept.append([b, el.r_at_zero_s, el.r_lever, el.r_sd_fixed_s, el.current_ok])
+        del kept[: -cfg.ua_raw_keep]
+    _follow_r25(rows, state, b, el.r_at_zero_s, el.r_lever, el.r_sd_fixed_s, el.current_ok, cfg)
+
+
+def _follow_r25(
+    rows: EstimateRows,
+    state: DeviceState,
+    b: int,
+    r_at_zero_s: float,
+    r_lever: float,
+    r_sd_fixed_s: float,
+    current_ok: bool,
+    cfg: AnalysisSettings,
+) -> None:
+    # One window's R25 at the trend S into R25's track, when the window passes the checks
+    # described in track_r25.
+    assert state.s_trend is not None
+    s_trend, s_sd = (float(x) for x in state.s_trend)
+    r = r_at_zero_s - r_lever * s_trend
+    if not (current_ok and r > 0.0 and r_sd_fixed_s <= cfg.r25_max_rel_se * r):
+        return
+    levers = state.r25_levers = state.r25_levers if state.r25_levers is not None else []
+    if "r25" in (state.baseline or {}):
+        if abs(r_lever - float(np.median(levers))) * s_sd > 0.01 * cfg.r25_lever_shift_pct * r:
+            return
+    else:
+        levers.append(r_lever)
+    track(rows, state, "r25", "module.resistance_25c", b, r, cfg.r25_flag_pct, 0.003, cfg)
+
+
+def ambient_lead_usual(state: DeviceState, b: int, rise_amb: float, cfg: AnalysisSettings) -> bool:
+    """Whether the ambient leads the cabinet by at least ``ua_follow_min_lead_share`` of its
+    usual lead: the median over the commissioning weeks (``ua_baseline_grow_days`` from the
+    first window that could be followed). Within those weeks every window counts."""
+    if state.ua_lead is None:
+        state.ua_lead = UaLead(start=b, values=[])
+    ref = state.ua_lead
+    if b <= ref.start + int(cfg.ua_baseline_grow_days * MS_DAY):
+        ref.values.append(rise_amb)
+        return True
+    return rise_amb >= cfg.ua_follow_min_lead_share * float(statistics.median(ref.values))
+
+
+def track_ua(
+    rows: EstimateRows,
+    state: DeviceState,
+    b: int,
+    ua: float,
+    ua_sd: float,
+    cfg: AnalysisSettings,
+) -> None:
+    """Follow one window's UA at the trend K [W/K] with its standard error [W/K]."""
+    track(
+        rows, state, "ua", "cabinet.ua", b, ua, cfg.ua_flag_pct, 0.03, cfg,
+        skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
+        grow_days=cfg.ua_baseline_grow_days, newest_sd=ua_sd,
+    )  # fmt: skip
+
+
+def rebase_ua(state: DeviceState, k_trend: float, cfg: AnalysisSettings) -> None:
+    """Make UA's track again at a new trend K [W/K] from the windows kept (``ua_raw``)."""
+    # The unit's own K has settled while UA was followed at the rated K: its track is made
+    # again from the windows followed so far, each moved to the new trend K by its own
+    # first-order response, so that the baseline keeps its commissioning days (a fresh start
+    # here would take a fault of these days into the new baseline).
+    state.restart_track("ua")
+    scratch = EstimateRows("")
+    kept_raw, state.ua_raw = state.ua_raw or [], None
+    for b, ua, ua_per_k, k_cabinet, *sd in kept_raw:
+        moved = ua + ua_per_k * (k_trend - k_cabinet)
+        track_ua(scratch, state, int(b), moved, float(sd[0]) if sd else 0.0, cfg)

@@ -1,0 +1,68 @@
+"""The typed device state: every state the runner stored loads, and is written back as the
+very text it was stored as."""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import pytest
+
+from tecfleet.analytics.runner.state import Baseline, DeviceState, ModuleParams, UaLead
+from tecfleet.ingest.db import analysis as analysis_db
+
+#: States stored by the runner before its state was typed (one JSON text a line; values the
+#: code produced itself): the final and intermediate states of simulated coolers analysed at
+#: once and in pieces, with and without registered ratings, a unit whose module never rests
+#: (rated S and K, kept windows), a fan failure (hot side flagged) and twelve days (a growing
+#: UA baseline).
+STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
+
+
+def _stored_texts() -> list[str]:
+    return STORED.read_text().splitlines()
+
+
+@pytest.mark.parametrize("text", _stored_texts(), ids=lambda t: f"{len(t)}-chars")
+def test_stored_state_loads_typed_and_is_written_back_as_the_same_text(text: str) -> None:
+    state = DeviceState.from_json(analysis_db.state_from_text(text))
+    assert analysis_db.state_text(state.to_json()) == text
+    assert isinstance(state.params, ModuleParams)
+    assert all(isinstance(b, Baseline) for b in (state.baseline or {}).values())
+    assert state.ua_lead is None or isinstance(state.ua_lead, UaLead)
+
+
+def test_the_stored_states_cover_every_key_of_the_state() -> None:
+    seen: set[str] = set()
+    for text in _stored_texts():
+        seen |= set(analysis_db.state_from_text(text))
+    assert seen == {f.name for f in dataclasses.fields(DeviceState)}
+
+
+def test_keys_keep_the_order_they_were_first_set_in_as_a_dict_would() -> None:
+    # The stored text lists keys in the order they were first set; a key removed and set
+    # again goes to the end, and one set again in place stays where it is.
+    state = DeviceState()
+    state.k_hist = [0.5]
+    state.k_trend = 0.5
+    state.params = ModuleParams(k=0.5, s25=0.05, r25=2.0)
+    state.k_trend = 0.6
+    assert list(state.to_json()) == ["k_hist", "k_trend", "params"]
+    state.k_hist = None
+    state.k_hist = [0.7]
+    assert list(state.to_json()) == ["k_trend", "params", "k_hist"]
+    assert list(state.to_json()["params"]) == ["k", "s25", "r25"]
+    state.params.c_hot = 0.0
+    state.params.k = 0.4
+    assert state.to_json()["params"] == {"k": 0.4, "s25": 0.05, "r25": 2.0, "c_hot": 0.0}
+
+
+def test_keys_this_code_does_not_know_are_kept_in_their_place() -> None:
+    text = '{"k_trend":0.5,"older_key":[1,2],"params":{"k":0.5,"s25":0.05,"r25":2.0,"x":1}}'
+    state = DeviceState.from_json(analysis_db.state_from_text(text))
+    assert analysis_db.state_text(state.to_json()) == text
+    state.k_trend = None
+    assert list(state.to_json()) == ["older_key", "params"]
+    # A null, which the runner never stores, comes back as it came too.
+    obj = {"k_trend": None, "k_hist": [0.5]}
+    assert DeviceState.from_json(obj).to_json() == obj

@@ -71,42 +71,11 @@ class BatchWriter:
             first = self._inbox.get()
             if first is _STOP:
                 break
-            batch, done = self._fill_batch(first)
+            batch, done = _take_batch(
+                self._inbox, first, self.settings.batch_max_readings, self.settings.batch_max_wait_s
+            )
             self._commit(batch)
-        self._drain()
-
-    def _fill_batch(self, first: Received) -> tuple[list[Received], bool]:
-        """The batch opened by ``first``, and whether the stop marker closed it."""
-        max_readings = self.settings.batch_max_readings
-        batch: list[Received] = [first]
-        count = len(first.parsed.readings)
-        deadline = time.monotonic() + self.settings.batch_max_wait_s
-        while count < max_readings:
-            remaining = deadline - time.monotonic()
-            try:
-                item = (
-                    self._inbox.get(timeout=remaining)
-                    if remaining > 0
-                    else self._inbox.get_nowait()
-                )
-            except queue.Empty:
-                break
-            if item is _STOP:
-                return batch, True
-            batch.append(item)
-            count += len(item.parsed.readings)
-        return batch, False
-
-    def _drain(self) -> None:
-        # Whatever arrived before the stop marker was read.
-        leftovers = []
-        while True:
-            try:
-                item = self._inbox.get_nowait()
-            except queue.Empty:
-                break
-            if item is not _STOP:
-                leftovers.append(item)
+        leftovers = _drain(self._inbox)
         if leftovers:
             self._commit(leftovers, give_up_after_s=10.0)
 
@@ -147,3 +116,36 @@ class BatchWriter:
         for item in batch:
             self._acknowledge(item)
         metrics.QUEUE_DEPTH.dec(len(batch))
+
+
+def _take_batch(
+    inbox: queue.Queue[Any], first: Received, max_readings: int, max_wait_s: float
+) -> tuple[list[Received], bool]:
+    """The batch opened by ``first``, and whether the stop marker closed it."""
+    batch: list[Received] = [first]
+    count = len(first.parsed.readings)
+    deadline = time.monotonic() + max_wait_s
+    while count < max_readings:
+        remaining = deadline - time.monotonic()
+        try:
+            item = inbox.get(timeout=remaining) if remaining > 0 else inbox.get_nowait()
+        except queue.Empty:
+            break
+        if item is _STOP:
+            return batch, True
+        batch.append(item)
+        count += len(item.parsed.readings)
+    return batch, False
+
+
+def _drain(inbox: queue.Queue[Any]) -> list[Received]:
+    """Whatever arrived before the stop marker was read."""
+    leftovers = []
+    while True:
+        try:
+            item = inbox.get_nowait()
+        except queue.Empty:
+            break
+        if item is not _STOP:
+            leftovers.append(item)
+    return leftovers

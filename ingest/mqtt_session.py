@@ -93,6 +93,38 @@ def new_client(settings: Settings, client_id: str, protocol: MQTTProtocolVersion
     return client
 
 
+def _await_protocol(settings: Settings, stopping: threading.Event) -> MQTTProtocolVersion | None:
+    """The broker's protocol once it answers (backing off), or None if stopped first."""
+    delay = 0.5
+    while not stopping.is_set():
+        try:
+            return detect_protocol(settings)
+        except ConnectionError as exc:
+            log.warning("MQTT broker not reachable (%s); retrying in %.1f s", exc, delay)
+            stopping.wait(delay)
+            delay = min(delay * 2, 30.0)
+    return None
+
+
+def _request_session(
+    client: mqtt.Client, settings: Settings, protocol: MQTTProtocolVersion
+) -> None:
+    """Ask for the persistent session: no clean start, expiry and Receive Maximum on MQTT 5."""
+    if protocol == mqtt.MQTTv5:
+        properties = Properties(PacketTypes.CONNECT)  # type: ignore[no-untyped-call]
+        properties.SessionExpiryInterval = settings.mqtt_session_expiry_s
+        properties.ReceiveMaximum = settings.mqtt_receive_maximum
+        client.connect_async(
+            settings.mqtt_host,
+            settings.mqtt_port,
+            keepalive=30,
+            clean_start=False,
+            properties=properties,
+        )
+    else:
+        client.connect_async(settings.mqtt_host, settings.mqtt_port, keepalive=30)
+
+
 class MqttSession:
     """The ingester's one connection: connects, subscribes, reconnects and acknowledges.
 
@@ -118,18 +150,20 @@ class MqttSession:
 
     def connect(self) -> None:
         """Wait for the broker (backing off), then start the persistent session."""
-        delay = 0.5
-        while not self._stopping.is_set():
-            try:
-                self.protocol = detect_protocol(self.settings)
-                break
-            except ConnectionError as exc:
-                log.warning("MQTT broker not reachable (%s); retrying in %.1f s", exc, delay)
-                self._stopping.wait(delay)
-                delay = min(delay * 2, 30.0)
-        if self._stopping.is_set() or self.protocol is None:
+        protocol = _await_protocol(self.settings, self._stopping)
+        if protocol is None:
             return
-        client = self._new_session_client(self.protocol)
+        self.protocol = protocol
+        if self._stopping.is_set():
+            return
+        # Callbacks and the connection request are in place before the network loop starts.
+        client = new_client(self.settings, self.settings.mqtt_client_id, protocol)
+        client.on_connect = self._on_connect
+        client.on_disconnect = self._on_disconnect
+        client.on_message = self._on_message
+        client.on_subscribe = self._on_subscribe
+        client.reconnect_delay_set(min_delay=1, max_delay=30)
+        _request_session(client, self.settings, protocol)
         self._client = client
         client.loop_start()
         log.info(
@@ -137,32 +171,8 @@ class MqttSession:
             self.settings.mqtt_host,
             self.settings.mqtt_port,
             self.settings.mqtt_client_id,
-            "5" if self.protocol == mqtt.MQTTv5 else "3.1.1",
+            "5" if protocol == mqtt.MQTTv5 else "3.1.1",
         )
-
-    def _new_session_client(self, protocol: MQTTProtocolVersion) -> mqtt.Client:
-        # Callbacks and the connection request are in place before the network loop starts.
-        settings = self.settings
-        client = new_client(settings, settings.mqtt_client_id, protocol)
-        client.on_connect = self._on_connect
-        client.on_disconnect = self._on_disconnect
-        client.on_message = self._on_message
-        client.on_subscribe = self._on_subscribe
-        client.reconnect_delay_set(min_delay=1, max_delay=30)
-        if protocol == mqtt.MQTTv5:
-            properties = Properties(PacketTypes.CONNECT)  # type: ignore[no-untyped-call]
-            properties.SessionExpiryInterval = settings.mqtt_session_expiry_s
-            properties.ReceiveMaximum = settings.mqtt_receive_maximum
-            client.connect_async(
-                settings.mqtt_host,
-                settings.mqtt_port,
-                keepalive=30,
-                clean_start=False,
-                properties=properties,
-            )
-        else:
-            client.connect_async(settings.mqtt_host, settings.mqtt_port, keepalive=30)
-        return client
 
     def acknowledge(self, mid: int, qos: int, generation: int) -> None:
         """Acknowledge one message to the broker, if it came in on the current connection."""

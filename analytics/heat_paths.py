@@ -579,32 +579,87 @@ def capacity_at_setpoint(
     i_cap = float(positive(max_current, "max_current"))
     q_int = float(finite(q_internal, "q_internal"))
     props = _Props(module, float(finite(alpha, "alpha")), float(finite(beta, "beta")))
-    k = module.conductance
     load = ua * (ta - tset) + q_int
     if load <= 0.0:
         raise OutOfDomainError(
             f"setpoint {tset:.2f} K needs no cooling at ambient {ta:.2f} K (heat load {load:.3g} W)"
         )
+    held = _HeldCabinet(props, tset, ta, r_hot, r_cold)
+    i_lim = _current_limit(held, i_cap, max_voltage)
+    i_best, q_best = _most_cooling(held, i_lim)
+    holdable = q_best >= load
+    i_use = (
+        _brentq(lambda i: held.cooling(i) - load, 0.0, i_best, "current holding the setpoint")
+        if holdable
+        else i_best
+    )
+    tc, th = held.faces(i_use)
+    point = _finish(tc, th, tset, i_use, props, "setpoint capacity")
+    return SetpointCapacity(holdable, load, q_best, q_best - load, i_use, point.cop, point)
 
-    solved: dict[float, tuple[float, float]] = {}
 
-    def faces(i: float) -> tuple[float, float]:
-        # The optimisers come back to currents already solved (their answers, the limits).
-        if i not in solved:
-            solved[i] = _faces(i)
-        return solved[i]
+class _HeldCabinet:
+    """The network with the cabinet air held at the setpoint: face temperatures per current.
 
-    def _faces(i: float) -> tuple[float, float]:
+    Qc·r_cold = T_set - Tc and Qh·r_hot = Th - T_amb fix (Tc, Th) at each current. The optimisers
+    come back to currents already solved (their answers, the limits), so solutions are cached.
+    """
+
+    def __init__(self, props: _Props, tset: float, ta: float, r_hot: float, r_cold: float) -> None:
+        self.props = props
+        self.tset = tset
+        self.ta = ta
+        self.r_hot = r_hot
+        self.r_cold = r_cold
+        self.k = props.module.conductance
+        self._solved: dict[float, tuple[float, float]] = {}
+
+    def faces(self, i: float) -> tuple[float, float]:
+        """(Tc, Th) at current ``i`` [K]."""
+        if i not in self._solved:
+            self._solved[i] = self._solve(i)
+        return self._solved[i]
+
+    def cooling(self, i: float) -> float:
+        """Qc at current ``i`` [W]."""
+        tc, th = self.faces(i)
+        s, r = self.props.s_r(tc, th)
+        return _qc_qh(i, tc, th, s, r, self.k)[0]
+
+    def volts(self, i: float) -> float:
+        """Module voltage at current ``i`` [V]."""
+        tc, th = self.faces(i)
+        s, r = self.props.s_r(tc, th)
+        return s * (th - tc) + i * r
+
+    def _residual(self, i: float, x: FloatArray) -> FloatArray:
+        tc, th = float(x[0]), float(x[1])
+        s, r = self.props.s_r(tc, th)
+        qc, qh = _qc_qh(i, tc, th, s, r, self.k)
+        return np.array([qc * self.r_cold - (self.tset - tc), qh * self.r_hot - (th - self.ta)])
+
+    def _solve(self, i: float) -> tuple[float, float]:
         def residual(x: FloatArray) -> FloatArray:
-            tc, th = float(x[0]), float(x[1])
-            s, r = props.s_r(tc, th)
-            qc, qh = _qc_qh(i, tc, th, s, r, k)
-            return np.array([qc * r_cold - (tset - tc), qh * r_hot - (th - ta)])
+            return self._residual(i, x)
 
+        tc, th, settled = self._fixed_point(i, residual)
+        if settled:
+            return tc, th
+        start = np.array([tc, th]) if math.isfinite(tc + th) else np.array([self.tset, self.ta])
+        sol = root(residual, start, method="hybr")
+        if not sol.success or np.max(np.abs(residual(sol.x))) > 1e-7:
+            raise NoConvergenceError(f"face temperatures at {i:.4g} A not found: {sol.message}")
+        return float(sol.x[0]), float(sol.x[1])
+
+    def _fixed_point(
+        self, i: float, residual: Callable[[FloatArray], FloatArray]
+    ) -> tuple[float, float, bool]:
+        """(Tc, Th, whether they solve the balances) from the closed-form iteration."""
         # At given S and R the two balances are linear in (Tc, Th): solve them in closed form,
         # update S and R at the new faces and repeat. S and R change by parts per thousand per
         # kelvin, so this contracts fast; scipy's root takes over if it does not settle.
-        s, r = module.seebeck, module.resistance
+        k, r_cold, r_hot, tset, ta = self.k, self.r_cold, self.r_hot, self.tset, self.ta
+        s, r = self.props.module.seebeck, self.props.module.resistance
         tc = th = math.nan
         for _ in range(60):
             j = 0.5 * i * i * r
@@ -619,36 +674,27 @@ def capacity_at_setpoint(
             tc, th = tc_new, th_new
             if done:
                 res = residual(np.array([tc, th]))
-                if abs(float(res[0])) <= 1e-7 and abs(float(res[1])) <= 1e-7:
-                    return tc, th
-                break
-            s, r = props.s_r(tc, th)
-        start = np.array([tc, th]) if math.isfinite(tc + th) else np.array([tset, ta])
-        sol = root(residual, start, method="hybr")
-        if not sol.success or np.max(np.abs(residual(sol.x))) > 1e-7:
-            raise NoConvergenceError(f"face temperatures at {i:.4g} A not found: {sol.message}")
-        return float(sol.x[0]), float(sol.x[1])
+                return tc, th, abs(float(res[0])) <= 1e-7 and abs(float(res[1])) <= 1e-7
+            s, r = self.props.s_r(tc, th)
+        return tc, th, False
 
-    def cooling(i: float) -> float:
-        tc, th = faces(i)
-        s, r = props.s_r(tc, th)
-        return _qc_qh(i, tc, th, s, r, k)[0]
 
-    def volts(i: float) -> float:
-        tc, th = faces(i)
-        s, r = props.s_r(tc, th)
-        return s * (th - tc) + i * r
-
+def _current_limit(held: _HeldCabinet, i_cap: float, max_voltage: float | None) -> float:
+    """Largest current allowed by the current limit and, if given, the voltage limit [A]."""
     i_lim = i_cap
     if max_voltage is not None:
         v_cap = float(positive(max_voltage, "max_voltage"))
-        if volts(0.0) >= v_cap:
+        if held.volts(0.0) >= v_cap:
             raise OutOfDomainError(f"max_voltage {v_cap} V cannot drive any current")
-        if volts(i_cap) > v_cap:
-            i_lim = _brentq(lambda i: volts(i) - v_cap, 0.0, i_cap, "voltage-limited current")
+        if held.volts(i_cap) > v_cap:
+            i_lim = _brentq(lambda i: held.volts(i) - v_cap, 0.0, i_cap, "voltage-limited current")
+    return i_lim
 
+
+def _most_cooling(held: _HeldCabinet, i_lim: float) -> tuple[float, float]:
+    """(current [A], Qc [W]) of the most cooling at currents 0..i_lim."""
     best = minimize_scalar(
-        lambda i: -cooling(float(i)),
+        lambda i: -held.cooling(float(i)),
         bounds=(0.0, i_lim),
         method="bounded",
         options={"xatol": 1e-6 * i_lim},
@@ -656,16 +702,7 @@ def capacity_at_setpoint(
     if not best.success:
         raise NoConvergenceError(f"current of most cooling not found: {best.message}")
     i_best = float(best.x)
-    q_best = cooling(i_best)
-    holdable = q_best >= load
-    i_use = (
-        _brentq(lambda i: cooling(i) - load, 0.0, i_best, "current holding the setpoint")
-        if holdable
-        else i_best
-    )
-    tc, th = faces(i_use)
-    point = _finish(tc, th, tset, i_use, props, "setpoint capacity")
-    return SetpointCapacity(holdable, load, q_best, q_best - load, i_use, point.cop, point)
+    return i_best, held.cooling(i_best)
 
 
 def _brentq(f: Callable[[float], float], lo: float, hi: float, what: str) -> float:

@@ -761,24 +761,37 @@ def parameters_from_ratings(
     r = v_max * tc / (i_max * th)
     k = i_max * v_max * tc / (2.0 * th * dt_max)
     if n_couples is not None:
-        if n_couples < 1:
-            raise OutOfDomainError(f"n_couples must be >= 1, got {n_couples}")
-        per_couple = s / n_couples
-        lo, hi = _COUPLE_SEEBECK_RANGE
-        if not lo <= per_couple <= hi:
-            raise InconsistentRatingsError(
-                f"Vmax = {v_max} V at Th = {th} K gives {per_couple * 1e6:.0f} µV/K per couple "
-                f"for {n_couples} couples, outside the plausible {lo * 1e6:.0f}.."
-                f"{hi * 1e6:.0f} µV/K",
-                "v_max",
-            )
+        _check_couple_seebeck(s, v_max, th, n_couples)
     if q_max is None:
         return ModuleParameters(s, r, k, n_couples)
 
     rated = {"i_max": i_max, "v_max": v_max, "dt_max": dt_max, "q_max": q_max}
     _check_consistent(rated, th, rtol)
+    s_fit, r_fit, k_fit = _fit_to_ratings(rated, th, (s, r, k))
+    return ModuleParameters(s_fit, r_fit, k_fit, n_couples)
 
-    target = np.array([i_max, v_max, dt_max, q_max], dtype=np.float64)
+
+def _check_couple_seebeck(s: float, v_max: float, th: float, n_couples: int) -> None:
+    if n_couples < 1:
+        raise OutOfDomainError(f"n_couples must be >= 1, got {n_couples}")
+    per_couple = s / n_couples
+    lo, hi = _COUPLE_SEEBECK_RANGE
+    if not lo <= per_couple <= hi:
+        raise InconsistentRatingsError(
+            f"Vmax = {v_max} V at Th = {th} K gives {per_couple * 1e6:.0f} µV/K per couple "
+            f"for {n_couples} couples, outside the plausible {lo * 1e6:.0f}.."
+            f"{hi * 1e6:.0f} µV/K",
+            "v_max",
+        )
+
+
+def _fit_to_ratings(
+    rated: dict[str, float], th: float, start: tuple[float, float, float]
+) -> tuple[float, float, float]:
+    """S, R, K fitted to all four ratings by least squares on relative residuals."""
+    target = np.array(
+        [rated["i_max"], rated["v_max"], rated["dt_max"], rated["q_max"]], dtype=np.float64
+    )
 
     def residuals(x: FloatArray) -> FloatArray:
         sx, rx, kx = (float(v) for v in np.exp(x))
@@ -788,11 +801,11 @@ def parameters_from_ratings(
         return rel
 
     # Fit in log space so S, R, K stay positive whatever the optimiser tries.
-    fit = least_squares(residuals, np.log([s, r, k]))
+    fit = least_squares(residuals, np.log(list(start)))
     if not fit.success or not np.all(np.isfinite(fit.x)):
         raise NoConvergenceError(f"least-squares reconciliation of ratings failed: {fit.message}")
     s_fit, r_fit, k_fit = (float(v) for v in np.exp(fit.x))
-    return ModuleParameters(s_fit, r_fit, k_fit, n_couples)
+    return s_fit, r_fit, k_fit
 
 
 def _positive_rating(name: str, value: float) -> None:
@@ -927,9 +940,14 @@ def modules_in_parallel(module: ModuleParameters, n: int) -> ModuleParameters:
 # ---------------------------------------------------------------------------
 
 #: Relative change of module resistance per kelvin of mean temperature near
-#: room temperature for bismuth-telluride modules [1/K]. From memory; consistent
-#: with ρ ∝ T^(3/2) for acoustic-phonon scattering in a degenerate
-#: semiconductor (Goldsmid 2010), which gives 1.5/300 K ≈ 0.005 /K.
+#: room temperature for bismuth-telluride modules [1/K]. From memory: not fitted to
+#: measured data or to a named datasheet family. For orientation only: with the
+#: carrier density fixed by doping and acoustic-phonon scattering, one parabolic
+#: band gives ρ ∝ T^p, from p = 3/2 for non-degenerate carriers (mobility ∝ T^(-3/2))
+#: down to p = 1 for degenerate ones (mobility ∝ T^(-1)) (standard transport theory,
+#: from memory), i.e. 1/T..1.5/T = 0.0034..0.0050 /K at 25 °C. The figure lies in
+#: that bracket, as expected for the partly degenerate carriers of alloys doped for
+#: best ZT (from memory); real alloys may depart from the one-band picture.
 BI2TE3_RESISTANCE_TEMPCO = 4.5e-3
 
 #: Relative change of the module Seebeck coefficient per kelvin near room

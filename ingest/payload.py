@@ -4,101 +4,26 @@ Every refusal is a ``Reject`` with a short code and a sentence naming the field;
 some bad items keeps the good ones. Nothing here raises on any input: the fuzz tests hold it to
 that.
 
-Plausibility limits (documented in DEVELOPERS.md): temperatures -60..150 °C (beyond the range of
-bismuth-telluride modules and of the sensors fitted to them), current 0..50 A (the largest
-single-stage modules are rated near 30 A), voltage -60..60 V (a 48 V supply with headroom;
-negative while the module is off and its Seebeck voltage floats), relative humidity 0..100 %.
-Timestamps must not be more than ``future_tolerance_s`` ahead of the receiving clock and not
-before 2000-01-01.
-
-SenML (RFC 8428): base name, base time, base unit and base value carry forward as in section 4.5;
-a resolved time below 2**28 is relative to now (section 4.5.3). No maintained Python SenML
-library exists, so resolution is done here.
+The stages of one message, in order: the topic (device id and kind), a status payload, the
+size and JSON decoding, the shape (one object, a batch array or a SenML pack, see
+:mod:`.senml`), then each item's fields (:mod:`.telemetry_item`) and its timestamp against the
+receiving clock: not more than ``future_tolerance_s`` ahead of it.
 """
 
 from __future__ import annotations
 
-import math
 import re
 from dataclasses import dataclass, field
-from datetime import datetime
-from typing import Annotated, Any
+from typing import Any
 
 import orjson
-from pydantic import BaseModel, ConfigDict, Field, Strict, ValidationError, field_validator
+from pydantic import ValidationError
 
 from tecfleet.ingest.db import Reading, Reject, StatusUpdate
+from tecfleet.ingest.senml import is_senml, senml_items
+from tecfleet.ingest.telemetry_item import TelemetryItem, describe_errors
 
 DEVICE_ID_RE = re.compile(r"^[A-Za-z0-9_.\-]{1,64}$")
-EPOCH_2000_S = 946_684_800.0
-SENML_RELATIVE_LIMIT_S = 2**28
-
-T_MIN_C, T_MAX_C = -60.0, 150.0
-I_MIN_A, I_MAX_A = 0.0, 50.0
-V_MIN_V, V_MAX_V = -60.0, 60.0
-
-SENML_UNITS = {
-    "t_cabinet": "Cel",
-    "t_cold": "Cel",
-    "t_hot": "Cel",
-    "t_ambient": "Cel",
-    "current": "A",
-    "voltage": "V",
-    "rh": "%RH",
-}
-SENML_BOOLEANS = {"door_open"}
-SENML_KEYS = {"bn", "bt", "bu", "bv", "bs", "bver", "n", "u", "v", "vs", "vb", "vd", "s", "t", "ut"}
-
-StrictFloat = Annotated[float, Strict(), Field(allow_inf_nan=False)]
-
-
-class TelemetryItem(BaseModel):
-    """One reading as published; temperatures in °C."""
-
-    model_config = ConfigDict(extra="ignore")
-
-    ts: Any
-    seq: Annotated[int, Strict(), Field(ge=0)] | None = None
-    t_cabinet: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    t_cold: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    t_hot: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    t_ambient: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    current: Annotated[StrictFloat, Field(ge=I_MIN_A, le=I_MAX_A)]
-    voltage: Annotated[StrictFloat, Field(ge=V_MIN_V, le=V_MAX_V)]
-    rh: Annotated[StrictFloat, Field(ge=0.0, le=100.0)] | None = None
-    door_open: Annotated[bool, Strict()] | None = None
-
-    @field_validator("ts")
-    @classmethod
-    def _ts_seconds(cls, value: Any) -> float:
-        return parse_timestamp(value)
-
-
-def parse_timestamp(value: Any) -> float:
-    """Unix seconds from an RFC 3339 string with offset or a number of seconds."""
-    if isinstance(value, bool):
-        raise ValueError("timestamp must be an RFC 3339 string or Unix seconds, not a boolean")
-    if isinstance(value, int | float):
-        seconds = float(value)
-        if not math.isfinite(seconds):
-            raise ValueError("timestamp must be finite")
-    elif isinstance(value, str):
-        if len(value) > 40 or "T" not in value.upper():
-            raise ValueError(f"timestamp {value[:40]!r} is not RFC 3339 (date 'T' time offset)")
-        try:
-            parsed = datetime.fromisoformat(value)
-        except ValueError as exc:
-            raise ValueError(f"timestamp {value!r} is not RFC 3339") from exc
-        if parsed.tzinfo is None or parsed.utcoffset() is None:
-            raise ValueError(f"timestamp {value!r} has no UTC offset")
-        seconds = parsed.timestamp()
-    else:
-        raise ValueError("timestamp must be an RFC 3339 string or Unix seconds")
-    if seconds < EPOCH_2000_S:
-        raise ValueError("timestamp is before 2000-01-01")
-    if seconds > 32_503_680_000.0:  # year 3000: keeps millisecond integers in range
-        raise ValueError("timestamp is after year 3000")
-    return seconds
 
 
 @dataclass
@@ -110,31 +35,19 @@ class Parsed:
     status: StatusUpdate | None = None
 
 
-_CODE_BY_PYDANTIC = {
-    "missing": "missing_field",
-    "greater_than_equal": "out_of_range",
-    "less_than_equal": "out_of_range",
-    "greater_than": "out_of_range",
-    "less_than": "out_of_range",
-    "finite_number": "not_finite",
-}
+@dataclass(frozen=True, slots=True)
+class _Message:
+    """Topic and payload of the message being parsed, for the rejects it produces."""
 
+    topic: str
+    payload: bytes
+    device_id: str
 
-def _describe(exc: ValidationError) -> tuple[str, str]:
-    errors = exc.errors(include_url=False)
-    # A missing field says most about a malformed item; report it first.
-    errors.sort(key=lambda err: err["type"] != "missing")
-    first = errors[0]
-    name = ".".join(str(p) for p in first["loc"]) or "item"
-    code = _CODE_BY_PYDANTIC.get(first["type"], "wrong_type")
-    if name == "ts" and code == "wrong_type":
-        code = "bad_timestamp"
-    parts = []
-    for err in errors[:4]:
-        loc = ".".join(str(p) for p in err["loc"]) or "item"
-        got = "" if err["type"] == "missing" else f" (got {str(err.get('input'))[:40]})"
-        parts.append(f"{loc}: {err['msg']}{got}")
-    return code, "; ".join(parts)
+    def reject(
+        self, code: str, reason: str, raw: bytes | None = None, item: int | None = None
+    ) -> Reject:
+        payload = self.payload if raw is None else raw
+        return Reject(self.topic, payload, code, reason, self.device_id, item)
 
 
 def split_topic(topic: str, prefix: str) -> tuple[str, str] | None:
@@ -148,96 +61,6 @@ def split_topic(topic: str, prefix: str) -> tuple[str, str] | None:
     return rest[0], rest[1]
 
 
-def _is_senml(doc: Any) -> bool:
-    return (
-        isinstance(doc, list)
-        and bool(doc)
-        and all(isinstance(rec, dict) for rec in doc)
-        and any(("n" in rec or "bn" in rec) for rec in doc)
-        and all(set(rec) <= SENML_KEYS | {key for key in rec if key.endswith("_")} for rec in doc)
-    )
-
-
-def _senml_items(
-    pack: list[dict[str, Any]], now_s: float
-) -> tuple[list[dict[str, Any]], list[tuple[str, str]]]:
-    """Resolve a SenML pack into reading dicts grouped by time, plus per-record problems."""
-    base_name, base_time, base_unit, base_value = "", 0.0, None, 0.0
-    groups: dict[float, dict[str, Any]] = {}
-    problems: list[tuple[str, str]] = []
-    for index, rec in enumerate(pack):
-        if "bver" in rec and rec["bver"] not in (10,) and not isinstance(rec["bver"], bool):
-            problems.append(
-                ("senml_error", f"record {index}: unsupported SenML version {rec['bver']!r}")
-            )
-            continue
-        if "bn" in rec:
-            if not isinstance(rec["bn"], str):
-                problems.append(("senml_error", f"record {index}: bn must be a string"))
-                continue
-            base_name = rec["bn"]
-        for key in ("bt", "bv"):
-            if key in rec and (isinstance(rec[key], bool) or not isinstance(rec[key], int | float)):
-                problems.append(("senml_error", f"record {index}: {key} must be a number"))
-                break
-        else:
-            base_time = float(rec.get("bt", base_time))
-            base_value = float(rec.get("bv", base_value))
-            if "bu" in rec:
-                base_unit = rec["bu"]
-            if "n" not in rec:
-                continue
-            name = rec["n"]
-            if not isinstance(name, str):
-                problems.append(("senml_error", f"record {index}: n must be a string"))
-                continue
-            channel = name if name in SENML_UNITS or name in SENML_BOOLEANS else None
-            if channel is None:
-                full = base_name + name
-                channel = re.split(r"[:/]", full)[-1] if full else None
-            if channel not in SENML_UNITS and channel not in SENML_BOOLEANS:
-                problems.append(("senml_error", f"record {index}: unknown name {name!r}"))
-                continue
-            t = rec.get("t", 0.0)
-            if isinstance(t, bool) or not isinstance(t, int | float):
-                problems.append(("senml_error", f"record {index}: t must be a number"))
-                continue
-            when = base_time + float(t)
-            if when < SENML_RELATIVE_LIMIT_S:
-                when = now_s + when
-            unit = rec.get("u", base_unit)
-            if channel in SENML_BOOLEANS:
-                if "vb" not in rec:
-                    problems.append(
-                        ("senml_error", f"record {index}: {channel} needs a boolean value (vb)")
-                    )
-                    continue
-                value: Any = rec["vb"]
-            else:
-                if unit is not None and unit != SENML_UNITS[channel]:
-                    problems.append(
-                        (
-                            "bad_unit",
-                            f"record {index}: {channel} unit {unit!r}, "
-                            f"expected {SENML_UNITS[channel]!r}",
-                        )
-                    )
-                    continue
-                if "v" not in rec:
-                    problems.append(
-                        ("senml_error", f"record {index}: {channel} needs a numeric value (v)")
-                    )
-                    continue
-                raw = rec["v"]
-                value = (
-                    raw + base_value
-                    if isinstance(raw, int | float) and not isinstance(raw, bool)
-                    else raw
-                )
-            groups.setdefault(when, {"ts": when})[channel] = value
-    return [groups[key] for key in sorted(groups)], problems
-
-
 def parse_message(
     topic: str,
     payload: bytes,
@@ -249,62 +72,70 @@ def parse_message(
 ) -> Parsed:
     """Turn one MQTT message into readings, rejects and status changes. Never raises."""
     out = Parsed()
-    where = split_topic(topic, prefix)
-    if where is None:
-        out.rejects.append(
-            Reject(
-                topic,
-                payload,
-                "bad_topic",
-                f"topic {topic[:200]!r} is not {prefix}/<device_id>/telemetry",
-            )
-        )
+    where = _route(topic, payload, prefix)
+    if isinstance(where, Reject):
+        out.rejects.append(where)
         return out
     device_id, kind = where
-    if not DEVICE_ID_RE.match(device_id):
-        out.rejects.append(
-            Reject(
-                topic,
-                payload,
-                "bad_device_id",
-                f"device id {device_id[:80]!r} must match [A-Za-z0-9_.-]{{1,64}}",
-            )
-        )
-        return out
+    message = _Message(topic, payload, device_id)
     if kind == "status":
-        status_text = bytes(payload).strip().lower()
-        if status_text in (b"online", b"offline"):
-            out.status = StatusUpdate(device_id, status_text.decode(), int(now_s * 1000))
-        elif status_text:
-            out.rejects.append(
-                Reject(
-                    topic,
-                    payload,
-                    "bad_status",
-                    "status payload must be 'online' or 'offline'",
-                    device_id,
-                )
-            )
+        _read_status(message, now_s, out)
         return out
     if kind != "telemetry":
-        out.rejects.append(
-            Reject(topic, payload, "bad_topic", f"unknown topic kind {kind[:40]!r}", device_id)
-        )
+        out.rejects.append(message.reject("bad_topic", f"unknown topic kind {kind[:40]!r}"))
         return out
+    doc, refused = _decode(message, max_payload_bytes)
+    if refused is not None:
+        out.rejects.append(refused)
+        return out
+    shaped = _items_of(doc, message, now_s, out)
+    if shaped is None:
+        return out
+    items, single = shaped
+    limit_s = now_s + future_tolerance_s
+    for index, item in enumerate(items):
+        raw = payload if single else orjson.dumps(item)
+        item_no = None if single else index
+        outcome = _check_item(item, message, raw, item_no, now_s, limit_s, future_tolerance_s)
+        if isinstance(outcome, Reject):
+            out.rejects.append(outcome)
+        else:
+            out.readings.append(outcome)
+    return out
+
+
+def _route(topic: str, payload: bytes, prefix: str) -> tuple[str, str] | Reject:
+    """(device_id, kind) of a topic of ours with a valid device id, else the reject."""
+    where = split_topic(topic, prefix)
+    if where is None:
+        reason = f"topic {topic[:200]!r} is not {prefix}/<device_id>/telemetry"
+        return Reject(topic, payload, "bad_topic", reason)
+    device_id, _kind = where
+    if not DEVICE_ID_RE.match(device_id):
+        reason = f"device id {device_id[:80]!r} must match [A-Za-z0-9_.-]{{1,64}}"
+        return Reject(topic, payload, "bad_device_id", reason)
+    return where
+
+
+def _read_status(message: _Message, now_s: float, out: Parsed) -> None:
+    status_text = bytes(message.payload).strip().lower()
+    if status_text in (b"online", b"offline"):
+        out.status = StatusUpdate(message.device_id, status_text.decode(), int(now_s * 1000))
+    elif status_text:
+        out.rejects.append(
+            message.reject("bad_status", "status payload must be 'online' or 'offline'")
+        )
+
+
+def _decode(message: _Message, max_payload_bytes: int) -> tuple[Any, Reject | None]:
+    """The decoded JSON document, or the reject of an oversized or undecodable payload."""
+    payload = message.payload
     if len(payload) > max_payload_bytes:
-        out.rejects.append(
-            Reject(
-                topic,
-                payload,
-                "payload_too_large",
-                f"{len(payload)} bytes, limit {max_payload_bytes}",
-                device_id,
-            )
-        )
-        return out
+        reason = f"{len(payload)} bytes, limit {max_payload_bytes}"
+        return None, message.reject("payload_too_large", reason)
     try:
         # orjson checks the UTF-8 itself; the slower decode only runs to explain a refusal.
-        doc = orjson.loads(payload)
+        return orjson.loads(payload), None
     except orjson.JSONDecodeError as exc:
         try:
             payload.decode("utf-8")
@@ -312,96 +143,80 @@ def parse_message(
             code, why = "not_utf8", f"payload is not UTF-8: {bad.reason} at byte {bad.start}"
         else:
             code, why = "invalid_json", f"payload is not JSON: {exc}"
-        out.rejects.append(Reject(topic, payload, code, why, device_id))
-        return out
+        return None, message.reject(code, why)
 
+
+def _items_of(
+    doc: Any, message: _Message, now_s: float, out: Parsed
+) -> tuple[list[Any], bool] | None:
+    """(items, whether the payload is one object) by the document's shape; None if refused."""
     items: list[Any]
-    if _is_senml(doc):
-        items, problems = _senml_items(doc, now_s)
+    if is_senml(doc):
+        items, problems = senml_items(doc, now_s)
         for reason_code, text in problems:
-            out.rejects.append(Reject(topic, payload, reason_code, text, device_id))
+            out.rejects.append(message.reject(reason_code, text))
         if not items and not problems:
-            out.rejects.append(
-                Reject(topic, payload, "senml_error", "SenML pack holds no readings", device_id)
-            )
-        single = False
-    elif isinstance(doc, dict):
-        items, single = [doc], True
-    elif isinstance(doc, list):
-        items, single = doc, False
-        if not items:
-            out.rejects.append(
-                Reject(topic, payload, "empty_batch", "batch array is empty", device_id)
-            )
-    else:
-        out.rejects.append(
-            Reject(
-                topic,
-                payload,
-                "wrong_shape",
-                "payload must be a JSON object, an array of objects or a SenML pack",
-                device_id,
-            )
+            out.rejects.append(message.reject("senml_error", "SenML pack holds no readings"))
+        return items, False
+    if isinstance(doc, dict):
+        return [doc], True
+    if isinstance(doc, list):
+        if not doc:
+            out.rejects.append(message.reject("empty_batch", "batch array is empty"))
+        return doc, False
+    out.rejects.append(
+        message.reject(
+            "wrong_shape", "payload must be a JSON object, an array of objects or a SenML pack"
         )
-        return out
+    )
+    return None
 
-    limit_s = now_s + future_tolerance_s
-    for index, item in enumerate(items):
-        raw = payload if single else orjson.dumps(item)
-        item_no = None if single else index
-        if not isinstance(item, dict):
-            out.rejects.append(
-                Reject(
-                    topic, raw, "wrong_shape", "batch item is not a JSON object", device_id, item_no
-                )
-            )
-            continue
-        claimed = item.get("device_id")
-        if claimed is not None and claimed != device_id:
-            out.rejects.append(
-                Reject(
-                    topic,
-                    raw,
-                    "device_mismatch",
-                    f"payload names device {str(claimed)[:64]!r} but the topic names {device_id!r}",
-                    device_id,
-                    item_no,
-                )
-            )
-            continue
-        try:
-            valid = TelemetryItem.model_validate(item)
-        except ValidationError as exc:
-            code, reason = _describe(exc)
-            out.rejects.append(Reject(topic, raw, code, reason, device_id, item_no))
-            continue
-        ts_s: float = valid.ts
-        if ts_s > limit_s:
-            out.rejects.append(
-                Reject(
-                    topic,
-                    raw,
-                    "future_timestamp",
-                    f"ts is {ts_s - now_s:.0f} s ahead of the receiving clock "
-                    f"(limit {future_tolerance_s:.0f} s)",
-                    device_id,
-                    item_no,
-                )
-            )
-            continue
-        out.readings.append(
-            Reading(
-                device_id=device_id,
-                ts_ms=round(ts_s * 1000.0),
-                t_cabinet=valid.t_cabinet,
-                t_cold=valid.t_cold,
-                t_hot=valid.t_hot,
-                t_ambient=valid.t_ambient,
-                current=valid.current,
-                voltage=valid.voltage,
-                seq=valid.seq,
-                rh=valid.rh,
-                door_open=valid.door_open,
-            )
+
+def _check_item(
+    item: Any,
+    message: _Message,
+    raw: bytes,
+    item_no: int | None,
+    now_s: float,
+    limit_s: float,
+    future_tolerance_s: float,
+) -> Reading | Reject:
+    """One item's reading, or the reject naming what is wrong with it."""
+    device_id = message.device_id
+    if not isinstance(item, dict):
+        return message.reject("wrong_shape", "batch item is not a JSON object", raw, item_no)
+    claimed = item.get("device_id")
+    if claimed is not None and claimed != device_id:
+        return message.reject(
+            "device_mismatch",
+            f"payload names device {str(claimed)[:64]!r} but the topic names {device_id!r}",
+            raw,
+            item_no,
         )
-    return out
+    try:
+        valid = TelemetryItem.model_validate(item)
+    except ValidationError as exc:
+        code, reason = describe_errors(exc)
+        return message.reject(code, reason, raw, item_no)
+    ts_s: float = valid.ts
+    if ts_s > limit_s:
+        return message.reject(
+            "future_timestamp",
+            f"ts is {ts_s - now_s:.0f} s ahead of the receiving clock "
+            f"(limit {future_tolerance_s:.0f} s)",
+            raw,
+            item_no,
+        )
+    return Reading(
+        device_id=device_id,
+        ts_ms=round(ts_s * 1000.0),
+        t_cabinet=valid.t_cabinet,
+        t_cold=valid.t_cold,
+        t_hot=valid.t_hot,
+        t_ambient=valid.t_ambient,
+        current=valid.current,
+        voltage=valid.voltage,
+        seq=valid.seq,
+        rh=valid.rh,
+        door_open=valid.door_open,
+    )

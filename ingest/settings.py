@@ -11,10 +11,10 @@ from __future__ import annotations
 import re
 import socket
 from pathlib import Path
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 from urllib.parse import unquote, urlsplit
 
-from pydantic import Field, ValidationError, field_validator
+from pydantic import AfterValidator, BeforeValidator, Field, ValidationError
 from pydantic_settings import (
     BaseSettings,
     PydanticBaseSettingsSource,
@@ -32,20 +32,65 @@ def _default_client_id() -> str:
     return f"tecfleet-{socket.gethostname()}"[:64]
 
 
+def _split_roles(value: Any) -> Any:
+    if isinstance(value, str):
+        value = [part.strip() for part in value.split(",") if part.strip()]
+    return value
+
+
+def _known_roles(value: tuple[str, ...]) -> tuple[str, ...]:
+    unknown = [role for role in value if role not in ROLES]
+    if unknown:
+        raise ValueError(f"unknown role(s) {unknown}; choose from {list(ROLES)}")
+    if not value:
+        raise ValueError("at least one role is needed")
+    return tuple(dict.fromkeys(value))
+
+
+def _prefix_ok(value: str) -> str:
+    if not _PREFIX_RE.match(value) or value.startswith("/") or value.endswith("/"):
+        raise ValueError("topic prefix must be 1-64 of A-Z a-z 0-9 _ . - / and not start/end in /")
+    if any(ch in value for ch in "+#$"):
+        raise ValueError("topic prefix may not contain MQTT wildcards")
+    return value
+
+
+def _mqtt_url_ok(value: str) -> str:
+    parts = urlsplit(value)
+    if parts.scheme not in ("mqtt", "mqtts", "tcp", "ssl"):
+        raise ValueError("MQTT URL must start with mqtt:// or mqtts://")
+    if not parts.hostname:
+        raise ValueError("MQTT URL needs a host")
+    return value
+
+
+def _group_ok(value: str | None) -> str | None:
+    if value is not None and (not value or any(ch in value for ch in "/+#")):
+        raise ValueError("share group may not be empty or contain / + #")
+    return value or None
+
+
+# Field types with their checks attached, so the class below only declares fields.
+Roles = Annotated[tuple[str, ...], BeforeValidator(_split_roles), AfterValidator(_known_roles)]
+TopicPrefix = Annotated[str, AfterValidator(_prefix_ok)]
+MqttUrl = Annotated[str, AfterValidator(_mqtt_url_ok)]
+ShareGroup = Annotated[str | None, AfterValidator(_group_ok)]
+
+
 class Settings(BaseSettings):
     """Everything a tecfleet process needs to know about its surroundings."""
 
     model_config = SettingsConfigDict(env_prefix="TECFLEET_", extra="ignore")
 
     database_url: str = "sqlite:///./tecfleet.db"
-    mqtt_url: str = "mqtt://127.0.0.1:1883"
-    topic_prefix: str = "tecfleet"
+    mqtt_url: MqttUrl = "mqtt://127.0.0.1:1883"
+    topic_prefix: TopicPrefix = "tecfleet"
     http_host: str = "127.0.0.1"
     http_port: int = Field(8000, ge=0, le=65535)
     analyze_every_s: float = Field(30.0, gt=0)
     mqtt_client_id: str = Field(default_factory=_default_client_id)
-    roles: tuple[str, ...] = ROLES
-    share_group: str | None = None
+    roles: Roles = ROLES
+    share_group: ShareGroup = None
 
     # Not in the external contract; tuning with documented defaults.
     mqtt_protocol: Literal["auto", "5", "3.1.1"] = "auto"
@@ -57,51 +102,6 @@ class Settings(BaseSettings):
     max_payload_bytes: int = Field(1_048_576, ge=1024)
     future_tolerance_s: float = Field(300.0, ge=0)
     config: Path | None = None
-
-    @field_validator("roles", mode="before")
-    @classmethod
-    def _split_roles(cls, value: Any) -> Any:
-        if isinstance(value, str):
-            value = [part.strip() for part in value.split(",") if part.strip()]
-        return value
-
-    @field_validator("roles")
-    @classmethod
-    def _known_roles(cls, value: tuple[str, ...]) -> tuple[str, ...]:
-        unknown = [role for role in value if role not in ROLES]
-        if unknown:
-            raise ValueError(f"unknown role(s) {unknown}; choose from {list(ROLES)}")
-        if not value:
-            raise ValueError("at least one role is needed")
-        return tuple(dict.fromkeys(value))
-
-    @field_validator("topic_prefix")
-    @classmethod
-    def _prefix_ok(cls, value: str) -> str:
-        if not _PREFIX_RE.match(value) or value.startswith("/") or value.endswith("/"):
-            raise ValueError(
-                "topic prefix must be 1-64 of A-Z a-z 0-9 _ . - / and not start/end in /"
-            )
-        if any(ch in value for ch in "+#$"):
-            raise ValueError("topic prefix may not contain MQTT wildcards")
-        return value
-
-    @field_validator("mqtt_url")
-    @classmethod
-    def _mqtt_url_ok(cls, value: str) -> str:
-        parts = urlsplit(value)
-        if parts.scheme not in ("mqtt", "mqtts", "tcp", "ssl"):
-            raise ValueError("MQTT URL must start with mqtt:// or mqtts://")
-        if not parts.hostname:
-            raise ValueError("MQTT URL needs a host")
-        return value
-
-    @field_validator("share_group")
-    @classmethod
-    def _group_ok(cls, value: str | None) -> str | None:
-        if value is not None and (not value or any(ch in value for ch in "/+#")):
-            raise ValueError("share group may not be empty or contain / + #")
-        return value or None
 
     @classmethod
     def settings_customise_sources(

@@ -11,7 +11,8 @@ import orjson
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from tecfleet.ingest.payload import T_MAX_C, T_MIN_C, parse_message
+from tecfleet.ingest.payload import parse_message
+from tecfleet.ingest.telemetry_item import T_MAX_C, T_MIN_C
 
 NOW = 1_790_000_000.0
 TOPIC = "tecfleet/unit-7/telemetry"

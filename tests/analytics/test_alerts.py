@@ -14,7 +14,7 @@ import sqlalchemy as sa
 from scipy.special import logsumexp
 
 from tecfleet.analytics import alerts
-from tecfleet.analytics.simulator import DeviceSpec, FleetSpec, simulate
+from tecfleet.analytics.simulation import DeviceSpec, FleetSpec, simulate
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
 

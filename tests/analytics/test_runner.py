@@ -18,7 +18,7 @@ import sqlalchemy as sa
 from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import runner
-from tecfleet.analytics.simulator import STANDARD_RATINGS
+from tecfleet.analytics.simulation import STANDARD_RATINGS
 from tecfleet.ingest import db
 from tests.analytics.synthetic import Truth, simulate
 

@@ -21,9 +21,8 @@ import pytest
 
 from tecfleet.analytics import heat_paths as hp
 from tecfleet.analytics import physics as ph
-from tecfleet.analytics import simulator as sm
-from tecfleet.analytics.fleet_publisher import FileSink, encode, publish_fleet
-from tecfleet.analytics.scenario import demo_fleet
+from tecfleet.analytics import simulation as sm
+from tecfleet.analytics.simulation import FileSink, demo_fleet, encode, publish_fleet
 from tecfleet.ingest.payload import parse_message
 
 START = 1_780_000_000.0  # a fixed instant in 2026

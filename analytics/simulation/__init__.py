@@ -3,7 +3,8 @@ sensors; where its readings go; the demo fleet; and the ``tecfleet simulate`` co
 
 One-way chain (each module imports only those before it)::
 
-    specs -> truth, chunk, sensors -> model -> fleets -> publisher -> scenario -> command
+    specs -> truth, chunk, sensors, surroundings, thermal -> model -> fleets
+          -> publisher -> scenario -> command
 
 The pipeline never imports this package; only the command line, tests and benches do.
 """
@@ -11,7 +12,7 @@ The pipeline never imports this package; only the command line, tests and benche
 from .chunk import Chunk, concat
 from .command import add_simulate_arguments, run_simulate
 from .fleets import FAULT_DEFAULTS, parse_fault_mix, random_fleet, spec_summary, with_devices
-from .model import ALPHA_R, BETA_S, T25_K, Simulator, simulate
+from .model import Simulator, simulate
 from .publisher import FileSink, MqttSink, Sink, encode, publish_fleet
 from .scenario import COMPANY, SITES, demo_fleet, run_demo_feed
 from .sensors import PROBE_ERROR_C, QUANTUM, SensorModel
@@ -27,6 +28,8 @@ from .specs import (
     ScheduledEvent,
     device_from_ratings,
 )
+from .surroundings import Climate, Use
+from .thermal import ALPHA_R, BETA_S, T25_K, ThermalModel
 from .truth import TRUTH_PARAMS, FleetTruth
 
 __all__ = [
@@ -45,6 +48,7 @@ __all__ = [
     "T25_K",
     "TRUTH_PARAMS",
     "Chunk",
+    "Climate",
     "DeviceSpec",
     "Fault",
     "FileSink",
@@ -55,6 +59,8 @@ __all__ = [
     "SensorModel",
     "Simulator",
     "Sink",
+    "ThermalModel",
+    "Use",
     "add_simulate_arguments",
     "concat",
     "demo_fleet",

@@ -95,17 +95,7 @@ class SensorModel:
 
     def _noisy(self, tr: dict[str, FloatArray], noise: FloatArray) -> dict[str, FloatArray]:
         """True values plus bias and noise, within what each channel can read."""
-        true = {
-            "t_cabinet": tr["t_air"],
-            "t_cold": tr["t_cold"],
-            "t_hot": tr["t_hot"],
-            "t_ambient": tr["t_ambient"],
-            "current": tr["current"],
-            "voltage": np.where(
-                tr["current"] > 0.0, tr["voltage"], np.where(self.off_open, tr["voltage"], 0.0)
-            ),
-            "rh": tr["rh"],
-        }
+        true = _true_values(tr, self.off_open)
         meas: dict[str, FloatArray] = {}
         for c, name in enumerate(CHANNELS):
             v = true[name] + self.bias[:, c] + self.noise_sd[:, c] * noise[:, :, c]
@@ -139,3 +129,19 @@ class SensorModel:
                 col[(frac > 0) & (u_drop[:, i] < f.magnitude)] = PROBE_ERROR_C
             else:
                 raise ValueError(f"unknown sensor fault mode {f.mode!r}")
+
+
+def _true_values(tr: dict[str, FloatArray], off_open: BoolArray) -> dict[str, FloatArray]:
+    """The true value each channel measures: a driver that is off shows its module's
+    open-circuit voltage where ``off_open``, zero elsewhere."""
+    return {
+        "t_cabinet": tr["t_air"],
+        "t_cold": tr["t_cold"],
+        "t_hot": tr["t_hot"],
+        "t_ambient": tr["t_ambient"],
+        "current": tr["current"],
+        "voltage": np.where(
+            tr["current"] > 0.0, tr["voltage"], np.where(off_open, tr["voltage"], 0.0)
+        ),
+        "rh": tr["rh"],
+    }

@@ -166,9 +166,9 @@ class ThermalModel:
         co = _coefficients(self.p, self.proportional, self.interval, self.n_sub)
         for j in range(t_amb_all.shape[0]):
             x = _step_inputs(co, paths, j, t_amb_all[j])
-            self.step(co, x, j, load_all[j], tr, en)
+            self._step(co, x, j, load_all[j], tr, en)
 
-    def step(
+    def _step(
         self,
         co: _Coefficients,
         x: _StepInputs,

@@ -74,7 +74,7 @@ def cmd_serve(args: argparse.Namespace) -> int:
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
-    from tecfleet.analytics.scenario import demo_fleet, run_demo_feed
+    from tecfleet.analytics.simulation.scenario import demo_fleet, run_demo_feed
     from tecfleet.api.auth import create_key
     from tecfleet.api.schemas import DeviceIn
     from tecfleet.api.service import Service
@@ -178,7 +178,7 @@ def cmd_analyze(args: argparse.Namespace) -> int:
 
 
 def cmd_simulate(args: argparse.Namespace) -> int:
-    from tecfleet.analytics.simulator import run_simulate
+    from tecfleet.analytics.simulation.command import run_simulate
 
     return int(run_simulate(args))
 
@@ -221,7 +221,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     simulate = sub.add_parser("simulate", help="publish a simulated fleet")
     try:
-        from tecfleet.analytics.simulator import add_simulate_arguments
+        from tecfleet.analytics.simulation.command import add_simulate_arguments
     except ImportError:
         simulate.set_defaults(func=lambda _args: _missing("simulator"))
     else:

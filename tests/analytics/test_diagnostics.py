@@ -23,7 +23,7 @@ import pytest
 
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics as ph
-from tecfleet.analytics import simulator as sm
+from tecfleet.analytics import simulation as sm
 from tecfleet.analytics.diagnostics import cabinet
 from tecfleet.analytics.errors import InsufficientDataError
 from tests.analytics.synthetic import Noise, Truth, simulate

@@ -24,7 +24,7 @@ import numpy as np
 import pytest
 
 from tecfleet.analytics import runner
-from tecfleet.analytics import simulator as sim
+from tecfleet.analytics import simulation as sim
 from tests.bench.bench_diagnostics import (
     START_S,
     UnitScore,

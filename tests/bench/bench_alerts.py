@@ -45,7 +45,7 @@ import sqlalchemy as sa
 
 from tecfleet.analytics import alerts, physics, runner
 from tecfleet.analytics import diagnostics as dg
-from tecfleet.analytics import simulator as sim
+from tecfleet.analytics import simulation as sim
 from tecfleet.ingest import db
 
 START_S = 1_735_689_600.0  # 2025-01-01T00:00Z, a day boundary

@@ -20,8 +20,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from tecfleet.analytics.fleet_publisher import FileSink, publish_fleet
-from tecfleet.analytics.simulator import Simulator, random_fleet
+from tecfleet.analytics.simulation import FileSink, Simulator, publish_fleet, random_fleet
 
 START = 1_780_000_000.0
 

@@ -6,7 +6,7 @@ from __future__ import annotations
 import sqlalchemy as sa
 
 from tecfleet.analytics import alerts
-from tecfleet.analytics.simulator import DeviceSpec, FleetSpec, simulate
+from tecfleet.analytics.simulation import DeviceSpec, FleetSpec, simulate
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
 from tests.analytics.alerts.cabinet import T0, cabinet_series

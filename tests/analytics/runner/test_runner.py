@@ -17,7 +17,7 @@ import sqlalchemy as sa
 from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import heat_paths, physics, runner
-from tecfleet.analytics.simulator import STANDARD_RATINGS
+from tecfleet.analytics.simulation import STANDARD_RATINGS
 from tecfleet.ingest import db
 from tests.analytics.synthetic import Truth, simulate
 

@@ -8,6 +8,13 @@ References:
   Incropera and scipy in test_heat_paths.py).
 - Backward Euler is first-order accurate (common practice, no source): halving the sub-step
   roughly halves the error.
+- Module parameters from maximum ratings: S. Lineykin, S. Ben-Yaakov, IEEE Trans. Ind. Appl.
+  43(2), 505-512, 2007: S = Vmax/Th, R = Vmax(Th-ΔTmax)/(Imax·Th),
+  K = Imax·Vmax(Th-ΔTmax)/(2·Th·ΔTmax).
+- Hot- and cold-side rises through a thermal resistance, ΔT = Q·r: Incropera et al. 2007, ch. 3.
+- Terminal voltage V = S·ΔT + I·R: Goldsmid 2010, ch. 2.
+- 2-8 °C, the storage range of refrigerated medicines and vaccines (WHO cold-chain guidance,
+  from memory).
 """
 
 from __future__ import annotations
@@ -21,9 +28,8 @@ import pytest
 
 from tecfleet.analytics import heat_paths as hp
 from tecfleet.analytics import physics as ph
-from tecfleet.analytics import simulator as sm
-from tecfleet.analytics.fleet_publisher import FileSink, encode, publish_fleet
-from tecfleet.analytics.scenario import demo_fleet
+from tecfleet.analytics import simulation as sm
+from tecfleet.analytics.simulation import FileSink, demo_fleet, encode, publish_fleet
 from tecfleet.ingest.payload import parse_message
 
 START = 1_780_000_000.0  # a fixed instant in 2026
@@ -76,6 +82,17 @@ def test_inlined_temperature_dependence_matches_physics_core() -> None:
 
 
 def test_standard_module_is_plausible() -> None:
+    # Reference: the closed-form inversion of Imax, Vmax, ΔTmax (Lineykin & Ben-Yaakov 2007)
+    # at Th = 27 °C gives S 0.0490 V/K, R 1.90 ohm, K 0.511 W/K. The bands are those values
+    # within about 10 % (K: -12 %, +17 %): with Qmax as well the ratings are reconciled by a
+    # fit that may move them by as much as the Qmax mismatch it accepts (10 %); the width is
+    # common practice, no source.
+    rt = sm.STANDARD_RATINGS
+    th = rt["t_hot_rated_c"] + T0
+    s_ref = rt["v_max_v"] / th
+    r_ref = rt["v_max_v"] * (th - rt["dt_max_k"]) / (rt["i_max_a"] * th)
+    k_ref = rt["i_max_a"] * rt["v_max_v"] * (th - rt["dt_max_k"]) / (2 * th * rt["dt_max_k"])
+    assert 1.7 < r_ref < 2.1 and 0.045 < s_ref < 0.052 and 0.45 < k_ref < 0.6
     d = sm.device_from_ratings("x")
     assert 1.7 < d.r25 < 2.1 and 0.045 < d.s25 < 0.052 and 0.45 < d.k < 0.6
     two = sm.device_from_ratings("y", dict(sm.STANDARD_RATINGS, count=2))
@@ -181,9 +198,17 @@ def test_healthy_unit_holds_its_setpoint() -> None:
     spec = sm.FleetSpec((dev,), START, seed=4, random_use=True)
     chunk, truth = run(spec, 3)
     t_air = chunk.truth["t_air"][1440:, 0]  # after the first day
+    # The thermostat cycles within setpoint ± hysteresis (1 K, the DeviceSpec default); doors
+    # and loads skew the cycle warm, so the median within 0.6 K of the setpoint (common
+    # practice, no source).
     assert abs(np.median(t_air) - 5.0) < 0.6
+    # 2-8 °C (WHO, from memory) for all but 1 % of the time: doors (8 a day, 25 s on
+    # average, the DeviceSpec defaults) and loads are the only disturbances.
     assert np.mean((t_air > 2.0) & (t_air < 8.0)) > 0.99
     duty = chunk.truth["on"][1440:, 0].mean()
+    # A unit sized for its cabinet runs between a fifth and nearly all of the time: below
+    # that the module is oversized, above it the setpoint cannot be held through a door
+    # opening (common practice, no source).
     assert 0.2 < duty < 0.95
     assert not truth.excursions.get("unit-1")
 
@@ -241,6 +266,9 @@ def test_twins_share_their_ambient(twins: dict[str, dict[str, np.ndarray]]) -> N
 def test_wear_raises_v_over_i_and_leaves_the_hot_side_alone(
     twins: dict[str, dict[str, np.ndarray]],
 ) -> None:
+    # R25 +15 %: V/I = R + S·ΔT/I (Goldsmid 2010) grows by less, since S·ΔT/I stays; more
+    # than 8 % because I·R is most of V at these currents (common practice, no source). The
+    # hot-side rise Qh·r_hot (Incropera 2007) moves only by the extra Joule heat: within 15 %.
     ok, worn = twins["ok_p"], twins["wear_p"]
     ratio = [_median_on(c, c["voltage"] / np.maximum(c["current"], 1e-3)) for c in (ok, worn)]
     assert ratio[1] / ratio[0] > 1.08
@@ -249,12 +277,19 @@ def test_wear_raises_v_over_i_and_leaves_the_hot_side_alone(
 
 
 def test_hot_fan_failure_raises_hot_side_rise(twins: dict[str, dict[str, np.ndarray]]) -> None:
+    # rise = Qh·r_hot (Incropera 2007) with r_hot x3; Qh falls a little as the voltage drive
+    # pushes less current across the larger ΔT, so more than 1.8x rather than 3x (common
+    # practice, no source for the margin).
     ok, bad = twins["ok"], twins["fan"]
     rise = [_median_on(c, c["t_hot"] - c["t_ambient"]) for c in (ok, bad)]
     assert rise[1] > 1.8 * rise[0]
 
 
 def test_leak_raises_duty_cycle_not_resistance(twins: dict[str, dict[str, np.ndarray]]) -> None:
+    # Duty ≈ heat load / capacity: UA x1.6 raises the wall load (the larger share of the load
+    # at ΔT of about 17 K) by 60 %; more than 15 % leaves room for the internal load and the
+    # capacity changing (common practice, no source). Resistance and hot-side rise do not
+    # depend on UA: within the scatter of the thermostat's on-samples, 4 % and 10 %.
     ok, leaky = twins["ok"], twins["leak"]
     duty = [c["true_on"].mean() for c in (ok, leaky)]
     assert duty[1] > duty[0] * 1.15
@@ -267,6 +302,8 @@ def test_leak_raises_duty_cycle_not_resistance(twins: dict[str, dict[str, np.nda
 def test_inner_fan_failure_widens_cabinet_to_cold_face_gap(
     twins: dict[str, dict[str, np.ndarray]],
 ) -> None:
+    # gap = Qc·r_cold (Incropera 2007) with r_cold x2.5; Qc falls as the cold face gets
+    # colder, so more than 1.8x (common practice, no source for the margin).
     gap = [
         _median_on(c, c["true_t_air"] - c["true_t_cold"]) for c in (twins["ok"], twins["inner_fan"])
     ]
@@ -274,6 +311,9 @@ def test_inner_fan_failure_widens_cabinet_to_cold_face_gap(
 
 
 def test_supply_sag_lowers_the_drive_current(twins: dict[str, dict[str, np.ndarray]]) -> None:
+    # I = (V - S·ΔT)/R (Goldsmid 2010): V x0.8 lowers I by at least 20 % at the same ΔT;
+    # less than 0.9x leaves room for ΔT shrinking with the weaker drive (common practice,
+    # no source for the margin).
     cur = [_median_on(c, c["current"]) for c in (twins["ok"], twins["sag"])]
     assert cur[1] < 0.9 * cur[0]
 
@@ -297,6 +337,10 @@ def test_sensor_faults_touch_only_their_channel(mode: str) -> None:
     np.testing.assert_array_equal(ok.truth["t_hot"], bad.truth["t_hot"])
     diff = bad.measured["t_hot"][:, 0] - ok.measured["t_hot"][:, 0]
     assert np.all(diff[:1440] == 0)
+    # drift: 3 K, each reading rounded to the 0.1 K quantum (sm.QUANTUM), so the
+    # difference of two readings is off by at most 0.1 K (+ float rounding)
+    # dropout: a binomial share, p = 0.1 over 2880 samples (sd 0.006); ±0.05 is far outside
+    # chance.
     if mode == "drift":
         assert diff[-1] == pytest.approx(3.0, abs=0.11)
     elif mode == "stuck":
@@ -310,6 +354,7 @@ def test_offline_device_sends_nothing_in_its_window() -> None:
     fault = sm.Fault("offline", "unit-1", START + DAY, end_s=START + 1.5 * DAY)
     ok, off = _pair(fault, days=2)
     assert not off.present[1440:2160, 0].any()
+    # outside the window only missed samples are absent: p_missed 0.2 % (DeviceSpec default)
     assert off.present[2160:, 0].mean() > 0.95 and off.present[:1440, 0].mean() > 0.95
     np.testing.assert_array_equal(ok.truth["t_air"], off.truth["t_air"])
 
@@ -323,6 +368,9 @@ def test_off_voltage_is_open_circuit_or_zero() -> None:
         if mode == "zero":
             assert np.all(v_off == 0.0)
         else:
+            # open circuit: V = S·ΔT (Goldsmid 2010), here with S at 25 °C; S(T) differs by
+            # BETA_S·(Tm - 25 °C), about 2 % of readings below 1 V, plus the 0.01 V quantum:
+            # 0.1 V is a generous margin (common practice, no source)
             dt = chunk.truth["t_hot"][off, 0] - chunk.truth["t_cold"][off, 0]
             assert np.median(v_off) > 0.1
             np.testing.assert_allclose(v_off, np.round(spec.devices[0].s25 * dt, 2), atol=0.1)
@@ -436,6 +484,8 @@ def test_every_payload_parses_without_rejects(tmp_path: Path) -> None:
     publish_fleet(spec, sink, end_s=START + 0.1 * DAY, batch=50)
     sink.close()
     lines = (tmp_path / "out.jsonl").read_text().splitlines()
+    # 6 devices x 144 steps, less missed samples (0.2 %) and an offline fault, if it falls
+    # in the first 0.1 day (common practice, no source for the 5 % allowance)
     assert len(lines) > 0.95 * 6 * 144
     assert json.loads(lines[0])["device_id"].startswith("tec-")
 
@@ -492,6 +542,8 @@ def test_demo_history_shows_the_excursion_and_healthy_units_hold() -> None:
     chunk, truth = run(spec, 14)
     assert truth.excursions.get("kv-mil-med02")
     start, _end = truth.excursions["kv-mil-med02"][0]
+    # a closed medicine fridge without power leaves 2-8 °C within a few hours of the cut
+    # (common practice, no source)
     assert abs(start - (now - 2 * DAY)) < 3 * 3600
     faulty = {f.device_id for f in spec.faults} | {"kv-mil-med02"}
     for i, device_id in enumerate(chunk.device_ids):
@@ -499,4 +551,6 @@ def test_demo_history_shows_the_excursion_and_healthy_units_hold() -> None:
         t_air = chunk.truth["t_air"][1440:, i]
         inside = np.mean((t_air >= cab["low_limit_c"]) & (t_air <= cab["high_limit_c"]))
         if device_id not in faulty:
+            # doors, loads and short random power cuts take a healthy unit out of its
+            # limits for at most a few percent of the time (common practice, no source)
             assert inside > 0.97, device_id

@@ -27,15 +27,16 @@ from typing import Any
 
 import numpy as np
 
-from . import heat_paths
-from .fleet_publisher import MqttSink, publish_fleet
-from .simulator import (
+from tecfleet.analytics import heat_paths
+
+from .model import Simulator
+from .publisher import MqttSink, publish_fleet
+from .specs import (
     STANDARD_RATINGS,
     DeviceSpec,
     Fault,
     FleetSpec,
     ScheduledEvent,
-    Simulator,
     device_from_ratings,
 )
 
@@ -104,10 +105,35 @@ def _unit(device_id: str, kind: str, label: str, rng: np.random.Generator) -> De
         "off_voltage": "open_circuit" if rng.random() < 0.6 else "zero",
         "ctrl_bias_k": float(rng.normal(0, 0.1)),
     }
-    if kind == "med":  # 24 V upright medicine fridge, two modules in series, 2-8 °C
+    if kind == "med":  # two modules in series
         ratings["count"] = 2
+    volume, body = _body(kind, rng)
+    air = heat_paths.air_heat_capacity(volume / 1000.0, 278.15)
+    return device_from_ratings(
+        device_id,
+        ratings,
+        spread,
+        label=label,
+        site=site,
+        volume_l=round(volume, 1),
+        c_air=air + 15.0 * volume,  # liner and shelves, about 15 J/K per litre (no source)
+        g_contents=float(rng.uniform(1.5, 3.0)),
+        cuts_per_30d=0.3,
+        **climate,
+        **sensors,
+        **body,
+    )
+
+
+def _body(kind: str, rng: np.random.Generator) -> tuple[float, dict[str, Any]]:
+    """Volume [L] and the cabinet, drive and use of a unit of ``kind`` (med, vac, smp, enc).
+
+    The cabinets' heat paths and capacities are plausible values (common practice, no
+    source)."""
+    body: dict[str, Any]
+    if kind == "med":  # 24 V upright medicine fridge, two modules in series, 2-8 °C
         volume = float(rng.uniform(45, 60))
-        body: dict[str, Any] = {
+        body = {
             "ua": float(rng.uniform(0.6, 0.8)),
             "r_hot": float(rng.uniform(0.12, 0.16)),
             "r_cold": float(rng.uniform(0.25, 0.3)),
@@ -161,21 +187,7 @@ def _unit(device_id: str, kind: str, label: str, rng: np.random.Generator) -> De
             "low_limit_c": 5.0,
             "high_limit_c": 35.0,
         }
-    air = heat_paths.air_heat_capacity(volume / 1000.0, 278.15)
-    return device_from_ratings(
-        device_id,
-        ratings,
-        spread,
-        label=label,
-        site=site,
-        volume_l=round(volume, 1),
-        c_air=air + 15.0 * volume,  # liner and shelves, about 15 J/K per litre (no source)
-        g_contents=float(rng.uniform(1.5, 3.0)),
-        cuts_per_30d=0.3,
-        **climate,
-        **sensors,
-        **body,
-    )
+    return volume, body
 
 
 def demo_fleet(

@@ -4,7 +4,7 @@ Everything runs on the readings' own timestamps. Per device, ``alert_progress`` 
 time of the last evaluated reading and each rule's timers, so each call reads only new
 readings (plus a fixed look-back for windowed features) and the same history gives the same
 alerts whether it arrives live or as a backfill. Alert changes, their audit rows and their
-notifications (the outbox drained by :class:`tecfleet.api.notify.Notifier`) are written in one
+notifications (the outbox drained by :class:`tecfleet.api.delivery.Notifier`) are written in one
 transaction per device.
 """
 

@@ -15,6 +15,7 @@ from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState
 from tecfleet.analytics.runner.window import fit_window
+from tecfleet.ingest import db
 from tecfleet.ingest.db import analysis as analysis_db
 from tecfleet.ingest.db.analysis import DeviceToAnalyze
 
@@ -33,7 +34,7 @@ def analyze_device(
     window = cfg.window_s * 1000
     last = int(dev.last_reading_ms)
     if saved is None:
-        first = analysis_db.first_reading_ms(conn, dev.device_id)
+        first = db.first_reading_ms(conn, dev.device_id)
         if first is None:
             return 0, 0
         done = first // step * step

@@ -91,7 +91,7 @@ def _pending_steps(
         done = done_ms
     else:
         with engine.connect() as conn:
-            first = analysis_db.first_reading_ms(conn, dev.device_id)
+            first = db.first_reading_ms(conn, dev.device_id)
         if first is None:
             return 0
         done = first // step * step

@@ -11,7 +11,7 @@ from tecfleet.analytics import alerts as rules
 from tecfleet.api.pagination import int_cursor, next_cursor
 from tecfleet.api.schemas.alerts import AlertDetailOut, AlertOut, alert_object
 from tecfleet.api.timefmt import ms_to_rfc3339
-from tecfleet.ingest.db import alert_reads, alert_records
+from tecfleet.ingest.db import alert_records
 from tecfleet.ingest.errors import NotFoundError
 
 
@@ -30,14 +30,14 @@ def list_alerts(
 ) -> tuple[list[AlertOut], str | None]:
     """Alerts newest first, filtered by device, state and kind."""
     before = int_cursor(cursor)
-    rows = alert_reads.alert_page(engine, limit, before, device=device, state=state, kind=kind)
+    rows = alert_records.alert_page(engine, limit, before, device=device, state=state, kind=kind)
     items = [AlertOut(**alert_object(alert_records.alert_row_dict(r))) for r in rows[:limit]]
     return items, next_cursor(rows, limit, "id")
 
 
 def get_alert(engine: Engine, alert_id: int) -> AlertDetailOut:
     """One alert with its audit trail (state changes, who acknowledged and when)."""
-    row = alert_reads.alert_by_id(engine, alert_id)
+    row = alert_records.alert_by_id(engine, alert_id)
     if row is None:
         raise NotFoundError(f"unknown alert {alert_id}")
     out: dict[str, Any] = alert_object(alert_records.alert_row_dict(row))

@@ -9,7 +9,7 @@ from sqlalchemy.engine import Engine
 from tecfleet.analytics import alerts as rules
 from tecfleet.api.schemas.maintenance import MaintenanceOut
 from tecfleet.api.timefmt import ms_to_rfc3339
-from tecfleet.ingest.db import alert_reads
+from tecfleet.ingest.db import alert_records
 
 
 def _maintenance_out(r: Any) -> MaintenanceOut:
@@ -44,9 +44,9 @@ def add_window(
         reason=reason,
         created_by=created_by,
     )
-    return _maintenance_out(alert_reads.maintenance_window(engine, window_id))
+    return _maintenance_out(alert_records.maintenance_window(engine, window_id))
 
 
 def list_windows(engine: Engine) -> list[MaintenanceOut]:
     """The newest windows first."""
-    return [_maintenance_out(r) for r in alert_reads.newest_maintenance_windows(engine)]
+    return [_maintenance_out(r) for r in alert_records.newest_maintenance_windows(engine)]

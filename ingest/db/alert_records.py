@@ -1,6 +1,6 @@
 """Stored alerts: the alert rows, their audit trail, the notifications outbox, per-device
 evaluation progress, threshold overrides, maintenance windows, and the estimates the alert
-rules read.
+rules read; and what the API reads of them (pages of alerts, maintenance windows).
 
 Functions that take a ``Connection`` run inside the caller's transaction, so an alert change,
 its audit row and its outbox notice commit together; those that take an ``Engine`` open their
@@ -28,25 +28,28 @@ from tecfleet.ingest.db.tables import (
     estimates,
     maintenance_windows,
     notifications,
-    readings,
 )
 from tecfleet.ingest.errors import NotFoundError, StoreError
 
 __all__ = [
+    "MAINTENANCE_LIST_LIMIT",
     "OPEN_STATES",
     "acknowledge_alert",
     "active_maintenance",
+    "alert_by_id",
+    "alert_page",
     "alert_row_dict",
     "alert_state",
     "audit_rows",
     "devices_to_evaluate",
-    "first_reading_ms",
     "insert_alert",
     "insert_audit",
     "insert_maintenance",
     "insert_notice",
     "jsonable",
     "load_overrides",
+    "maintenance_window",
+    "newest_maintenance_windows",
     "read_estimates",
     "read_progress",
     "release_held",
@@ -135,15 +138,6 @@ def write_progress(conn: Connection, device_id: str, done_ms: int, state: Any) -
             updated_ms=now_ms(),
         )
     )
-
-
-def first_reading_ms(conn: Connection, device_id: str) -> int | None:
-    """Time of the device's oldest stored reading [ms], None without readings."""
-    r = readings
-    first = conn.execute(
-        sa.select(sa.func.min(r.c.ts_ms)).where(r.c.device_id == device_id)
-    ).scalar()
-    return None if first is None else int(first)
 
 
 def read_estimates(
@@ -412,3 +406,54 @@ def insert_maintenance(
                 .returning(maintenance_windows.c.id)
             ).scalar_one()
         )  # fmt: skip
+
+
+# What the API reads of alerts and maintenance windows.
+
+#: Maintenance windows listed at most (newest first).
+MAINTENANCE_LIST_LIMIT = 1000
+
+
+def alert_page(
+    engine: Engine,
+    limit: int,
+    before_id: int | None,
+    *,
+    device: str | None = None,
+    state: str | None = None,
+    kind: str | None = None,
+) -> list[Row[Any]]:
+    """Up to ``limit + 1`` alerts, newest first, with ids below ``before_id``, filtered."""
+    a = alerts
+    stmt = sa.select(a).order_by(a.c.id.desc()).limit(limit + 1)
+    if before_id is not None:
+        stmt = stmt.where(a.c.id < before_id)
+    if device is not None:
+        stmt = stmt.where(a.c.device_id == device)
+    if state is not None:
+        stmt = stmt.where(a.c.state == state)
+    if kind is not None:
+        stmt = stmt.where(a.c.kind == kind)
+    with engine.connect() as conn:
+        return list(conn.execute(stmt).fetchall())
+
+
+def alert_by_id(engine: Engine, alert_id: int) -> Row[Any] | None:
+    with engine.connect() as conn:
+        return conn.execute(sa.select(alerts).where(alerts.c.id == alert_id)).first()
+
+
+def maintenance_window(engine: Engine, window_id: int) -> Row[Any]:
+    m = maintenance_windows
+    with engine.connect() as conn:
+        return conn.execute(sa.select(m).where(m.c.id == window_id)).one()
+
+
+def newest_maintenance_windows(engine: Engine) -> list[Row[Any]]:
+    m = maintenance_windows
+    with engine.connect() as conn:
+        return list(
+            conn.execute(
+                sa.select(m).order_by(m.c.id.desc()).limit(MAINTENANCE_LIST_LIMIT)
+            ).fetchall()
+        )

@@ -17,7 +17,7 @@ import sqlalchemy as sa
 from sqlalchemy.engine import Connection, Engine
 
 from tecfleet.ingest.db.engine import marker, now_ms
-from tecfleet.ingest.db.tables import analysis_state, devices, estimates, readings
+from tecfleet.ingest.db.tables import analysis_state, devices, estimates
 
 __all__ = [
     "ESTIMATE_COLUMNS",
@@ -25,7 +25,6 @@ __all__ = [
     "devices_with_readings",
     "done_ms_by_device",
     "estimate_rows",
-    "first_reading_ms",
     "latest_estimates",
     "read_states",
     "state_from_text",
@@ -71,14 +70,6 @@ def done_ms_by_device(conn: Connection) -> dict[str, int]:
     return {
         r.device_id: int(r.done_ms) for r in conn.execute(sa.select(st.c.device_id, st.c.done_ms))
     }
-
-
-def first_reading_ms(conn: Connection, device_id: str) -> int | None:
-    """Time of a device's oldest stored reading (epoch ms UTC), None without readings."""
-    first = conn.execute(
-        sa.select(sa.func.min(readings.c.ts_ms)).where(readings.c.device_id == device_id)
-    ).scalar()
-    return None if first is None else int(first)
 
 
 def read_states(conn: Connection, device_ids: Sequence[str]) -> dict[str, dict[str, Any]]:

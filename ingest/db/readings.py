@@ -200,6 +200,14 @@ def store_batch(
         raise StoreError(f"could not store batch: {exc.__class__.__name__}: {exc}") from exc
 
 
+def first_reading_ms(connection: Connection, device_id: str) -> int | None:
+    """Time of a device's oldest stored reading (epoch ms UTC), None without readings."""
+    first = connection.execute(
+        sa.select(sa.func.min(readings.c.ts_ms)).where(readings.c.device_id == device_id)
+    ).scalar()
+    return None if first is None else int(first)
+
+
 READING_COLUMNS = (
     "ts_ms",
     "seq",

@@ -15,7 +15,7 @@ from tecfleet.analytics.alerts.constants import MS_HOUR, T0
 from tecfleet.analytics.alerts.observations import BoolArray, FloatArray, IntArray
 from tecfleet.analytics.alerts.policy import AlertPolicy
 from tecfleet.analytics.alerts.scope import DeviceScope, load_readings
-from tecfleet.ingest.db import alert_records as records
+from tecfleet.ingest import db
 
 __all__ = [
     "PROBE_DRIFT_ISSUE",
@@ -145,7 +145,7 @@ def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
         return kept if isinstance(kept, dict) and "r_cold" in kept else None
     if not dev.module:
         return None
-    first_ms = records.first_reading_ms(conn, dev.device_id)
+    first_ms = db.first_reading_ms(conn, dev.device_id)
     if first_ms is None:
         return None
     end_ms = int(first_ms) + int(policy.drift_baseline_s * 1000)

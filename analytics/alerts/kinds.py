@@ -10,6 +10,7 @@ __all__ = ["ESTIMATE_KINDS", "KINDS", "OPEN_STATES", "SEVERITIES", "channel_faul
 
 KINDS = (
     "excursion",
+    "pull_down_overdue",
     "offline",
     "sensor_fault",
     "module_wear",

@@ -57,6 +57,8 @@ def timing_for(kind: str, p: AlertPolicy) -> Timing:
         return Timing(int(p.sensor_delay_s * s), 2 * clear, reopen, None, bridge)
     if kind == "offline":
         return Timing(0, 0, reopen)
+    if kind == "pull_down_overdue":
+        return Timing(0, clear, reopen)
     return Timing(0, int(p.estimate_clear_s * s), int(p.estimate_reopen_window_s * s))
 
 

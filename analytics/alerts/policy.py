@@ -66,6 +66,12 @@ class _Thresholds:
     #: Cumulative time out of band in one spell that makes it critical: 10 h, the WHO PQS
     #: 30-day recorder heat alarm (+8 °C for 10 h; from memory) [s].
     excursion_critical_s: float = 36_000.0
+    #: A unit commissioning (pulling down to its band for the first time, or after a
+    #: maintenance window that left it warm) and not yet in its band this long after it
+    #: began gets a pull-down-overdue alert [s]. Thermoelectric cabinets pull down from room
+    #: temperature to 2-8 °C in one to several hours, slower than compressor units; half a
+    #: day without reaching the band means the unit cannot (common practice, no source).
+    pull_down_limit_s: float = 12 * 3600.0
     #: Window of time-in-range and mean kinetic temperature in the evidence [s] (common
     #: practice, no source).
     mkt_window_s: float = 86_400.0

@@ -76,6 +76,22 @@ def _excursion(ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any) -
     return s, peak
 
 
+def _pull_down(ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any) -> tuple[str, Any]:
+    ev["lowest_c"] = lo
+    began = "it was switched on" if ev.get("commissioning_reason") != "maintenance" else (
+        "its maintenance ended"
+    )
+    s = (
+        f"Cabinet not yet inside its {ev['low_limit_c']:g}-{ev['high_limit_c']:g} °C band "
+        f"{_dur(1000.0 * ev.get('elapsed_s', 0.0))} after {began} (lowest {lo:.1f} °C so far, "
+        f"allowed {_dur(1000.0 * ev['pull_down_limit_s'])}); check door, load, fans and "
+        "module before stock goes in."
+    )
+    if ev.get("pull_down_s") is not None:
+        s += f" It reached its band after {_dur(1000.0 * ev['pull_down_s'])}."
+    return s, lo
+
+
 def _over_temperature(
     ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any
 ) -> tuple[str, Any]:
@@ -187,6 +203,7 @@ def _capacity(ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any) ->
 
 _SENTENCES: dict[str, _Sentence] = {
     "excursion": _excursion,
+    "pull_down_overdue": _pull_down,
     "over_temperature": _over_temperature,
     "condensation_risk": _condensation,
     "offline": _offline,

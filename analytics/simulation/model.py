@@ -132,7 +132,9 @@ class Simulator:
         self.use = Use(p, self.interval, gen, events, random_use=spec.random_use)
         self.sensors = SensorModel(devs, self.faults, self.interval, gen, enabled=spec.sensors)
         proportional = np.array([d.control == "proportional" for d in devs])
-        self.thermal = ThermalModel(p, proportional, self.interval, self.n_sub)
+        self.thermal = ThermalModel(
+            p, proportional, self.interval, self.n_sub, warm=spec.warm_start
+        )
         self.climate = Climate(p, self.interval, gen["weather"])
         self.truth = FleetTruth(spec)
         self.limits = (

@@ -196,6 +196,9 @@ class FleetSpec:
     events: tuple[ScheduledEvent, ...] = ()
     random_use: bool = True  # random doors, loads and power cuts
     sensors: bool = True  # bias, noise, jitter, missed samples
+    #: Units start switched off at their room's temperature and switch on at ``start_s``
+    #: (a newly installed fleet); False starts them settled at their setpoint.
+    warm_start: bool = False
     max_substep_s: float = 20.0
 
     @property

@@ -123,7 +123,8 @@ class ThermalModel:
 
     ``p`` holds the device columns, ``proportional`` which devices use proportional current
     control; ``n_sub`` sub-steps per output interval of ``interval_s``. State starts at the
-    setpoint, the faces at rest.
+    setpoint, the faces at rest; ``warm`` starts everything at the room's mean temperature, as
+    a unit just switched on.
     """
 
     def __init__(
@@ -132,18 +133,20 @@ class ThermalModel:
         proportional: BoolArray,
         interval_s: float,
         n_sub: int,
+        *,
+        warm: bool = False,
     ) -> None:
         self.p = p
         self.proportional = proportional
         self.interval = interval_s
         self.n_sub = n_sub
         n = proportional.shape[0]
-        sp_k = p["setpoint_c"] + T0_K
+        amb0 = p["t_amb_mean_c"] + T0_K
+        sp_k = amb0.copy() if warm else p["setpoint_c"] + T0_K
         self.t_air = sp_k.copy()
         self.t_cont = sp_k.copy()
-        amb0 = p["t_amb_mean_c"] + T0_K
-        self.tc = sp_k - 2.0
-        self.th = amb0 + 2.0
+        self.tc = amb0.copy() if warm else sp_k - 2.0
+        self.th = amb0.copy() if warm else amb0 + 2.0
         self.on = np.ones(n, dtype=bool)
 
     def advance(

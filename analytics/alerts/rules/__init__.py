@@ -19,6 +19,7 @@ from typing import Any
 from tecfleet.analytics.alerts.observations import Observations
 from tecfleet.analytics.alerts.policy import AlertPolicy
 from tecfleet.analytics.alerts.rules import (
+    commissioning,
     condensation,
     excursion,
     offline,
@@ -61,6 +62,7 @@ TREND_JUDGES: dict[str, Judge] = {
 
 RULES: tuple[Rule, ...] = (
     Rule("excursion", excursion.observe, excursion.evidence),
+    Rule("pull_down_overdue", commissioning.observe, commissioning.evidence),
     Rule("over_temperature", over_temperature.observe, over_temperature.evidence),
     Rule("condensation_risk", condensation.observe, condensation.evidence),
     Rule("sensor_fault", sensor_fault.observe, sensor_fault.evidence, sensor_fault.track_taint),

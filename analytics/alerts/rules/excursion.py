@@ -11,6 +11,7 @@ import numpy as np
 from tecfleet.analytics.alerts.constants import MKT_ACTIVATION_J_PER_MOL, MKT_GAS_CONSTANT, T0
 from tecfleet.analytics.alerts.observations import FloatArray, IntArray, Observations
 from tecfleet.analytics.alerts.policy import Band
+from tecfleet.analytics.alerts.rules import commissioning
 from tecfleet.analytics.alerts.scope import DeviceScope
 from tecfleet.analytics.errors import AlertError
 
@@ -51,16 +52,23 @@ def excursion_observations(t_ms: IntArray, t_cabinet: FloatArray, band: Band) ->
 
 
 def observe(scope: DeviceScope) -> Observations | None:
-    """The rule on the new readings (None without any)."""
+    """The rule on the new readings (None without any); none while the unit is commissioning
+    or inside a maintenance window (see rules.commissioning)."""
     if not len(scope.t_new):
         return None
-    return excursion_observations(scope.t_new, scope.new_column("t_cabinet"), scope.band)
+    obs = excursion_observations(scope.t_new, scope.new_column("t_cabinet"), scope.band)
+    held = commissioning.phase(scope).excursion_held
+    obs.active &= ~held
+    obs.hold &= ~held
+    obs.severity[held] = 0
+    return obs
 
 
 def evidence(scope: DeviceScope) -> Callable[[int], dict[str, Any]]:
     """Evidence at time t [ms]: the band and its source, and over the trailing MKT window the
     time in range, the mean kinetic temperature and the mean."""
     policy, band, t_all, frame = scope.policy, scope.band, scope.t_all, scope.frame
+    com = scope.state.get("commissioning") or {}
 
     def context(t: int) -> dict[str, Any]:
         w0 = t - int(policy.mkt_window_s * 1000)
@@ -72,6 +80,10 @@ def evidence(scope: DeviceScope) -> Callable[[int], dict[str, Any]]:
             "limits_source": band.source, "window_s": policy.mkt_window_s,
             "window_start_ms": w0, "window_end_ms": t,
         }  # fmt: skip
+        if com.get("pull_down_s") is not None:
+            # the unit's last pull-down: its commissioning, or its return after maintenance
+            ctx["commissioned_ms"] = com["in_band_ms"]
+            ctx["pull_down_s"] = com["pull_down_s"]
         if tc.size:
             inside = (tc >= band.low_c) & (tc <= band.high_c)
             ctx["time_in_range_pct"] = round(100.0 * float(np.mean(inside)), 2)

@@ -78,8 +78,10 @@ def _excursion(ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any) -
 
 def _pull_down(ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any) -> tuple[str, Any]:
     ev["lowest_c"] = lo
-    began = "it was switched on" if ev.get("commissioning_reason") != "maintenance" else (
-        "its maintenance ended"
+    began = (
+        "it was switched on"
+        if ev.get("commissioning_reason") != "maintenance"
+        else ("its maintenance ended")
     )
     s = (
         f"Cabinet not yet inside its {ev['low_limit_c']:g}-{ev['high_limit_c']:g} °C band "

@@ -32,7 +32,8 @@ def test_maintenance_holds_notices_and_sends_the_open_alert_at_the_end(engine: s
     # inside a maintenance window of minutes 1400-1700 and past its end.
     alerts.add_maintenance(engine, T0 + 1400 * MIN, T0 + 1700 * MIN, device_id="cab-1")
     data = [
-        r._replace(t_hot=r.t_hot + 45.0) if i >= 1500 else r for i, r in enumerate(cabinet_series(1800))
+        r._replace(t_hot=r.t_hot + 45.0) if i >= 1500 else r
+        for i, r in enumerate(cabinet_series(1800))
     ]
     db.store_batch(engine, data)
     changes = alerts.evaluate(engine)

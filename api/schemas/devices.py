@@ -32,6 +32,8 @@ class CabinetIn(BaseModel):
     setpoint_c: float | None = Field(None, ge=-40, le=40)
     low_limit_c: float | None = Field(None, ge=-60, le=60)
     high_limit_c: float | None = Field(None, ge=-60, le=60)
+    #: The warmest air the site expects around the unit, for its capacity figures [°C].
+    design_ambient_c: float | None = Field(None, ge=-20, le=60)
 
     @model_validator(mode="after")
     def _limits_ordered(self) -> CabinetIn:
@@ -70,5 +72,18 @@ class DeviceOut(BaseModel):
     open_alerts: int
 
 
+class CommissioningOut(BaseModel):
+    """A unit's latest pull-down to its band: from its first reading, or from the end of a
+    maintenance window that left it warm."""
+
+    since: str | None
+    reason: str
+    #: Still pulling down: no excursion is raised until the cabinet is first in band.
+    active: bool
+    pulled_down_at: str | None
+    pull_down_minutes: float | None
+
+
 class DeviceDetail(DeviceOut):
     latest_reading: ReadingOut | None
+    commissioning: CommissioningOut | None = None

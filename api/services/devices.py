@@ -8,9 +8,10 @@ from typing import Any
 from sqlalchemy.engine import Engine, Row
 
 from tecfleet.api.pagination import next_cursor, str_cursor
-from tecfleet.api.schemas.devices import DeviceDetail, DeviceIn, DeviceOut
+from tecfleet.api.schemas.devices import CommissioningOut, DeviceDetail, DeviceIn, DeviceOut
 from tecfleet.api.services.readings import reading_out
 from tecfleet.api.timefmt import ms_to_rfc3339
+from tecfleet.ingest.db import alert_records
 from tecfleet.ingest.db import fleet as fleet_db
 from tecfleet.ingest.errors import NotFoundError
 
@@ -63,7 +64,27 @@ def get_device(engine: Engine, device_id: str) -> DeviceDetail:
         raise not_found(device_id)
     row, open_alerts, latest = found
     base = _device_out(row, open_alerts, int(time.time() * 1000))
-    return DeviceDetail(**base.model_dump(), latest_reading=reading_out(latest) if latest else None)
+    return DeviceDetail(
+        **base.model_dump(),
+        latest_reading=reading_out(latest) if latest else None,
+        commissioning=_commissioning(engine, device_id),
+    )
+
+
+def _commissioning(engine: Engine, device_id: str) -> CommissioningOut | None:
+    """The device's latest pull-down as the alert evaluation carries it (None before any)."""
+    with engine.connect() as conn:
+        com = alert_records.read_progress(conn, device_id)[1].get("commissioning")
+    if not com:
+        return None
+    pull = com.get("pull_down_s")
+    return CommissioningOut(
+        since=ms_to_rfc3339(com.get("since_ms")),
+        reason=str(com.get("reason")),
+        active=com.get("in_band_ms") is None,
+        pulled_down_at=ms_to_rfc3339(com.get("in_band_ms")),
+        pull_down_minutes=None if pull is None else round(float(pull) / 60.0, 1),
+    )
 
 
 def register_device(engine: Engine, device_id: str, body: DeviceIn) -> DeviceDetail:

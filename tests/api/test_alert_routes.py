@@ -33,18 +33,20 @@ def key(engine: sa.Engine, scope: str) -> dict[str, str]:
 
 
 def warm_cabinet(engine: sa.Engine, device: str) -> None:
+    """Half an hour in its 2-8 °C band, then an hour at 10 °C: a unit past its commissioning
+    pull-down (in band at its first reading) that leaves its band."""
     rows = [
         Reading(
             device,
             T0 + i * MIN,
-            10.0 + 0.1 * (i % 2),
+            (5.0 if i < 30 else 10.0) + 0.1 * (i % 2),
             2.0 + 0.1 * (i % 3),
             30.0 + 0.1 * (i % 4),
             22.0 + 0.1 * (i % 5),
             3.0,
             8.0,
         )
-        for i in range(90)
+        for i in range(120)
     ]
     db.store_batch(engine, rows)
 
@@ -62,9 +64,10 @@ def test_list_filter_paginate_and_acknowledge(engine: sa.Engine) -> None:
     assert [a["device_id"] for a in rest["items"]] == ["a-1"] and rest["next_cursor"] is None
     item = first["items"][0]
     assert item["kind"] == "excursion" and item["state"] == "open"
-    # opened 30 min in (default delay); RFC 3339 UTC as the standard library parses it
+    # opened 30 min (default delay) after leaving the band at minute 30; RFC 3339 UTC as the
+    # standard library parses it
     opened = datetime.fromisoformat(item["opened_at"].replace("Z", "+00:00"))
-    assert opened == datetime.fromtimestamp((T0 + 30 * MIN) / 1000, tz=UTC)
+    assert opened == datetime.fromtimestamp((T0 + 60 * MIN) / 1000, tz=UTC)
     assert item["opened_at"].endswith("Z")
     assert item["resolved_at"] is None
     assert client.get("/v1/alerts?kind=nope", headers=read).status_code == 422
@@ -87,7 +90,7 @@ def test_list_filter_paginate_and_acknowledge(engine: sa.Engine) -> None:
 def test_maintenance_and_overrides_need_their_scopes(engine: sa.Engine) -> None:
     client = TestClient(create_app(engine))
     read, write, admin = key(engine, "read"), key(engine, "write"), key(engine, "admin")
-    body = {"device_id": "a-1", "start": "2026-09-21T14:00:00Z", "end": "2026-09-21T18:00:00Z"}
+    body = {"device_id": "a-9", "start": "2026-09-21T14:00:00Z", "end": "2026-09-21T18:00:00Z"}
     assert client.post("/v1/maintenance", json=body, headers=read).status_code == 403
     made = client.post("/v1/maintenance", json=body, headers=write)
     assert made.status_code == 201 and made.json()["created_by"] == "write-person"
@@ -100,7 +103,28 @@ def test_maintenance_and_overrides_need_their_scopes(engine: sa.Engine) -> None:
     assert client.put(url, json={"excursion_delay_s": 600}, headers=write).status_code == 403
     assert client.put(url, json={"nonsense": 1}, headers=admin).status_code == 422
     assert client.put(url, json={"excursion_delay_s": 600}, headers=admin).status_code == 200
-    # the override shortens the delay for this device: the alert opens 10 minutes in
+    # the override shortens the delay for this device: the alert opens 10 minutes after the
+    # cabinet left its band at minute 30 (the window above is another unit's)
     warm_cabinet(engine, "a-1")
     (change,) = alerts.evaluate(engine)
-    assert change.at_ms == T0 + 10 * MIN
+    assert change.at_ms == T0 + 40 * MIN
+
+
+def test_a_device_shows_its_commissioning(engine: sa.Engine) -> None:
+    # 40 min at 15 °C after switch-on, then inside the 2-8 °C band: a pull-down of 40 min,
+    # no excursion (issue 17 A1)
+    rows = [
+        Reading("new-1", T0 + i * MIN, (15.0 if i < 40 else 5.0) + 0.1 * (i % 2),
+                2.0 + 0.1 * (i % 3), 30.0 + 0.1 * (i % 4), 22.0 + 0.1 * (i % 5), 3.0, 8.0)
+        for i in range(120)
+    ]  # fmt: skip
+    db.store_batch(engine, rows)
+    assert alerts.evaluate(engine) == []
+    client = TestClient(create_app(engine))
+    got = client.get("/v1/devices/new-1", headers=key(engine, "read")).json()["commissioning"]
+    assert got["reason"] == "first_reading" and got["active"] is False
+    assert got["pull_down_minutes"] == 40.0
+    assert got["since"].endswith("Z") and got["pulled_down_at"].endswith("Z")
+    body = {"cabinet": {"design_ambient_c": 90.0}}
+    put = client.put("/v1/devices/new-1", json=body, headers=key(engine, "write"))
+    assert put.status_code == 422

@@ -87,7 +87,8 @@ def receiver() -> Iterator[Receiver]:
 
 
 def excursion(engine: sa.Engine, device: str, site: str | None = None) -> None:
-    """Store two hours of a cabinet at 10 °C (out of the 2-8 °C band) and evaluate."""
+    """Store 20 min of a cabinet in its 2-8 °C band (past its commissioning pull-down), then
+    two hours at 10 °C (out of the band)."""
     if site is not None:
         with engine.begin() as conn:
             conn.execute(db.devices.insert().values(device_id=device, site=site, readings=0))
@@ -95,14 +96,14 @@ def excursion(engine: sa.Engine, device: str, site: str | None = None) -> None:
         Reading(
             device,
             T0 + i * MIN,
-            10.0 + 0.1 * (i % 2),
+            (5.0 if i < 20 else 10.0) + 0.1 * (i % 2),
             2.0 + 0.1 * (i % 3),
             30.0 + 0.1 * (i % 4),
             22.0 + 0.1 * (i % 5),
             3.0,
             8.0,
         )
-        for i in range(120)
+        for i in range(140)
     ]
     db.store_batch(engine, rows)
 

@@ -39,7 +39,10 @@ def evaluate(
 
     ``now_ms`` [ms] is the wall clock of the live service, used only to judge silence
     (offline); without it silence is judged against the newest reading of the whole fleet,
-    so an analysis of stored history is reproducible. Each device is evaluated in its own
+    so an analysis of stored history is reproducible. Silence after a device's newest reading
+    is judged on the clock of receipt as well: a device whose newest readings arrived late and
+    which is still delivering (a backlog, an import) is not offline at the times its backlog
+    has not reached yet (see rules.offline). Each device is evaluated in its own
     transaction: alert changes, audit rows, outbox notices and progress commit together.
     Returns the changes made, in time order per device.
     """
@@ -48,6 +51,7 @@ def evaluate(
         with engine.connect() as conn:
             fleet_newest, devs = records.devices_to_evaluate(conn, device_id)
             overrides = records.load_overrides(conn)
+            receipt = now_ms if now_ms is not None else records.newest_receipt_ms(conn)
         if device_id is not None and not devs:
             raise NotFoundError(f"unknown device {device_id!r}")
         reference = now_ms if now_ms is not None else int(fleet_newest or 0)
@@ -57,17 +61,23 @@ def evaluate(
                 continue
             p = policy_for(base, overrides, dev.device_id, dev.site)
             with engine.begin() as conn:
-                changes.extend(evaluate_device(conn, dev, p, reference))
+                changes.extend(evaluate_device(conn, dev, p, reference, receipt))
         return changes
     except SQLAlchemyError as exc:
         raise StoreError(f"alert evaluation failed: {exc}") from exc
 
 
 def evaluate_device(
-    conn: Connection, dev: Any, policy: AlertPolicy, reference_ms: int
+    conn: Connection,
+    dev: Any,
+    policy: AlertPolicy,
+    reference_ms: int,
+    receipt_reference_ms: int | None = None,
 ) -> list[AlertChange]:
     """Run every rule of ``RULES`` on the device's new readings and estimates, in the
-    caller's transaction, and keep the progress; returns the alert changes made."""
+    caller's transaction, and keep the progress; returns the alert changes made.
+    ``receipt_reference_ms`` [ms] is ``reference_ms`` on the clock of the readings' receipt
+    (see :class:`DeviceScope`)."""
     done, state = records.read_progress(conn, dev.device_id)
     lookback = int(
         max(policy.mkt_window_s, policy.stuck_window_s, policy.impossible_on_s, 3600) * 1000
@@ -79,6 +89,7 @@ def evaluate_device(
     band = policy.band(dev.cabinet)
     kinds: dict[str, dict[str, Any]] = state.setdefault("kinds", {})
     scope = DeviceScope(conn, dev, policy, reference_ms, done, state, frame, first, band)
+    scope.receipt_reference_ms = receipt_reference_ms
     for rule in RULES:
         obs = rule.observe(scope)
         if obs is None:

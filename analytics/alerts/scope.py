@@ -19,6 +19,7 @@ __all__ = ["READ_COLUMNS", "DeviceScope", "load_readings", "usual_interval_ms"]
 #: Reading columns the rules use, in the order ``load_readings`` fetches them.
 READ_COLUMNS = (
     "ts_ms", "t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh",
+    "received_ms",
 )  # fmt: skip
 
 
@@ -26,11 +27,13 @@ def load_readings(
     conn: Connection, device_id: str, after_ms: int, before_ms: int | None = None
 ) -> pd.DataFrame:
     """Readings of one device newer than ``after_ms`` [ms] (and older than ``before_ms``),
-    oldest first, as float columns (``ts_ms`` int64; a missing humidity is NaN)."""
+    oldest first, as float columns (``ts_ms`` and ``received_ms`` int64; a missing humidity is
+    NaN)."""
     end = 2**62 if before_ms is None else int(before_ms)
     arr = db.read_arrays(conn, device_id, READ_COLUMNS, int(after_ms) + 1, end)
     data: dict[str, Any] = {c: arr[:, k] for k, c in enumerate(READ_COLUMNS)}
     data["ts_ms"] = arr[:, 0].astype(np.int64)
+    data["received_ms"] = arr[:, -1].astype(np.int64)
     return pd.DataFrame(data)
 
 
@@ -44,7 +47,9 @@ def usual_interval_ms(t_ms: IntArray, n: int = 60) -> FloatArray:
 class DeviceScope:
     """One device's evaluation: ``frame`` holds the look-back and the new readings, rows
     ``first:`` are the new ones; ``state`` is the JSON carried between calls (rule timers
-    under ``state["kinds"]``); ``reference_ms`` [ms] is the time silence is judged against.
+    under ``state["kinds"]``); ``reference_ms`` [ms] is the time silence is judged against,
+    ``receipt_reference_ms`` [ms] the same on the clock of the readings' receipt (the wall
+    clock live, else the newest receipt of the fleet; None: not known).
     Rules read what they need from here and may keep their own entries in ``state``;
     ``finishers`` run once every rule has run."""
 
@@ -62,6 +67,7 @@ class DeviceScope:
     finishers: list[Callable[[], None]] = field(default_factory=list)
     #: What one rule computes once for the others of its family (see rules.estimates).
     shared: dict[str, Any] = field(default_factory=dict)
+    receipt_reference_ms: int | None = None
 
     def __post_init__(self) -> None:
         self.t_all = self.frame["ts_ms"].to_numpy(np.int64)

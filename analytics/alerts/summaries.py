@@ -119,10 +119,17 @@ def _condensation(
 
 def _offline(ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any) -> tuple[str, Any]:
     ev["longest_silence_s"] = hi
-    s = (
-        f"No readings since {_dur(ev.get('silent_ms', 0))} before the last check "
-        f"(usually every {ev.get('usual_interval_s', 0):.0f} s); check power and network."
-    )
+    usual = ev.get("usual_interval_s")
+    every = f" (usually every {usual:.0f} s)" if usual is not None else ""
+    if ev.get("past_outage"):
+        start = pd.Timestamp(int(ev["gap_start_ms"]), unit="ms")
+        s = (
+            f"Past outage: no readings for {_dur(ev.get('silent_ms', 0))} from "
+            f"{start:%Y-%m-%d %H:%M} UTC{every}, found in history that arrived later; the "
+            "unit reported again afterwards. Check power and network if it recurs."
+        )
+        return s, hi
+    s = f"No readings for {_dur(ev.get('silent_ms', 0))}{every}; check power and network."
     return s, hi
 
 

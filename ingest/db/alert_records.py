@@ -28,6 +28,7 @@ from tecfleet.ingest.db.tables import (
     estimates,
     maintenance_windows,
     notifications,
+    readings,
 )
 from tecfleet.ingest.errors import NotFoundError, StoreError
 
@@ -109,6 +110,16 @@ def devices_to_evaluate(conn: Connection, device_id: str | None) -> tuple[int | 
     if device_id is not None:
         q = q.where(d.c.device_id == device_id)
     return fleet_newest, list(conn.execute(q).fetchall())
+
+
+def newest_receipt_ms(conn: Connection) -> int | None:
+    """When the newest reading of any device was stored (wall clock) [ms]; None without any.
+    Taken over each device's newest reading, which the (device, time) index finds."""
+    d, r = devices, readings
+    on = sa.and_(r.c.device_id == d.c.device_id, r.c.ts_ms == d.c.last_reading_ms)
+    found = conn.execute(sa.select(sa.func.max(r.c.received_ms)).select_from(d.join(r, on)))
+    value = found.scalar()
+    return None if value is None else int(value)
 
 
 def load_overrides(conn: Connection) -> dict[tuple[str, str], dict[str, Any]]:

@@ -221,6 +221,9 @@ READING_COLUMNS = (
     "door_open",
 )
 
+#: What ``read_arrays`` may also read: when the service stored each reading (wall clock, ms).
+_RECEIPT_COLUMNS = ("received_ms",)
+
 #: Columns that may be NULL; they come back as NaN.
 _NULLABLE = frozenset({"seq", "rh"})
 #: A missing door flag reads as closed (0), an open door as 1.
@@ -243,7 +246,7 @@ def read_arrays(
     Plain SQL on the driver's own cursor: building SQLAlchemy result rows costs more than the
     analysis of them. Milliseconds since 1970 stay below 2**53, so ``ts_ms`` is exact in float.
     """
-    unknown = [c for c in columns if c not in READING_COLUMNS]
+    unknown = [c for c in columns if c not in READING_COLUMNS and c not in _RECEIPT_COLUMNS]
     if unknown:
         raise StoreError(f"unknown reading columns {unknown}; known: {list(READING_COLUMNS)}")
     m = marker(connection)

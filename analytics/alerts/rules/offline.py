@@ -23,6 +23,8 @@ def offline_observations(
     status_at_ms: int | None,
     policy: AlertPolicy,
     interval: FloatArray | None = None,
+    received_ms: IntArray | None = None,
+    receipt_reference_ms: int | None = None,
 ) -> Observations:
     """Gaps in the readings of rows ``first:`` and after the newest one, up to
     ``reference_ms`` [ms] (the newest reading of the fleet, or the wall clock live).
@@ -31,6 +33,13 @@ def offline_observations(
     offline from the moment the threshold passed; readings resuming clear it. A retained
     ``offline`` status newer than the last reading counts at once. ``interval`` is
     ``usual_interval_ms(t_ms)``, when the caller has it.
+
+    One time frame: with the readings' receipt times ``received_ms`` [ms] and the receipt
+    clock's reference ``receipt_reference_ms`` [ms], a device whose newest reading arrived
+    late and which was heard from within the threshold is delivering a backlog, and is not
+    silent after its newest reading (those times are still to come); a gap whose reading
+    before it arrived only after the gap's threshold had passed is a past outage (nobody
+    could have seen it live), recorded with ``past_outage`` in the detail.
     """
     n = len(t_ms)
     if n == 0:
@@ -40,56 +49,65 @@ def offline_observations(
     fallback = float(np.nanmedian(np.diff(t_ms))) if n > 1 else policy.offline_min_s * 1000
     floor = policy.offline_min_s * 1000
     crit = policy.offline_critical_s * 1000
-    # Per reading i >= first: [offline at the threshold], [critical], then the reading itself.
-    i = np.arange(max(first, 1), n)
-    usual = np.where(np.isfinite(interval[i]), interval[i], fallback)
-    thr = np.maximum(policy.offline_factor * usual, floor)
-    prev = t_ms[i - 1]
-    gap = t_ms[i] - prev
-    warn = gap > thr
-    late = warn & (gap > crit) & (crit > thr)
-    m = len(i)
-    slot_t = np.zeros((m, 3), np.int64)
-    slot_t[:, 0] = (prev + thr).astype(np.int64)
-    slot_t[:, 1] = (prev + crit).astype(np.int64)
-    slot_t[:, 2] = t_ms[i]
-    slot_on = np.column_stack([warn, late, np.ones(m, bool)])
-    slot_a = np.zeros((m, 3), bool)
-    slot_a[:, 0] = True
-    slot_a[:, 1] = True
-    slot_s = np.tile(np.array([1, 2, 0], np.int8), (m, 1))
-    slot_v = np.column_stack([thr / 1000, np.full(m, crit / 1000), gap / 1000])
-    keep = slot_on.ravel()
-    out_t = list(slot_t.ravel()[keep])
-    out_a = list(slot_a.ravel()[keep])
-    out_s = list(slot_s.ravel()[keep])
-    out_v = list(slot_v.ravel()[keep])
+    out = _gaps(t_ms, max(first, 1), interval, fallback, floor, crit, policy, received_ms)
     last = int(t_ms[-1])
     thr_last = max(policy.offline_factor * fallback, floor)
+    tail = {"gap_start_ms": last, "gap_end_ms": None, "past_outage": False}
+    delivering = (
+        received_ms is not None
+        and receipt_reference_ms is not None
+        and receipt_reference_ms - int(received_ms[-1]) <= thr_last
+        and int(received_ms[-1]) - last > thr_last
+    )
     if status == "offline" and status_at_ms is not None and last <= status_at_ms <= reference_ms:
-        out_t.append(int(status_at_ms))
-        out_a.append(True)
-        out_s.append(1)
-        out_v.append((status_at_ms - last) / 1000)
-    elif reference_ms - last > thr_last:
-        out_t.append(int(last + thr_last))
-        out_a.append(True)
-        out_s.append(1)
-        out_v.append(thr_last / 1000)
-    if reference_ms - last > crit and crit > thr_last:
-        out_t.append(int(last + crit))
-        out_a.append(True)
-        out_s.append(2)
-        out_v.append(crit / 1000)
-    order = np.argsort(np.array(out_t, dtype=np.int64), kind="stable")
-    a = np.array(out_a, dtype=bool)[order]
+        out.append((int(status_at_ms), 1, (status_at_ms - last) / 1000, tail))
+    elif reference_ms - last > thr_last and not delivering:
+        out.append((int(last + thr_last), 1, thr_last / 1000, tail))
+    if reference_ms - last > crit and crit > thr_last and not delivering:
+        out.append((int(last + crit), 2, crit / 1000, tail))
+    out.sort(key=lambda x: x[0])
+    sev = np.array([o[1] for o in out], dtype=np.int8)
+    a = sev > 0
     return Observations(
-        np.array(out_t, dtype=np.int64)[order],
+        np.array([o[0] for o in out], dtype=np.int64),
         a,
         a.copy(),
-        np.array(out_s, dtype=np.int8)[order],
-        np.array(out_v, dtype=np.float64)[order],
+        sev,
+        np.array([o[2] for o in out], dtype=np.float64),
+        [o[3] for o in out],
     )
+
+
+#: One observation: time [ms], severity (0: readings back), value [s], detail.
+_Slot = tuple[int, int, float, dict[str, Any]]
+
+
+def _gaps(
+    t_ms: IntArray,
+    first: int,
+    interval: FloatArray,
+    fallback: float,
+    floor: float,
+    crit: float,
+    policy: AlertPolicy,
+    received_ms: IntArray | None,
+) -> list[_Slot]:
+    """Per reading ``i >= first``: offline at the gap's threshold, critical, then the reading
+    itself (readings back), each with the gap it belongs to."""
+    out: list[_Slot] = []
+    for i in range(first, len(t_ms)):
+        usual = float(interval[i]) if np.isfinite(interval[i]) else fallback
+        thr = max(policy.offline_factor * usual, floor)
+        prev, now = int(t_ms[i - 1]), int(t_ms[i])
+        gap = now - prev
+        if gap > thr:
+            past = received_ms is not None and int(received_ms[i - 1]) > prev + thr
+            d = {"gap_start_ms": prev, "gap_end_ms": now, "past_outage": bool(past)}
+            out.append((int(prev + thr), 1, thr / 1000, d))
+            if gap > crit and crit > thr:
+                out.append((int(prev + crit), 2, crit / 1000, d))
+        out.append((now, 0, gap / 1000, {}))
+    return out
 
 
 def observe(scope: DeviceScope) -> Observations | None:
@@ -106,6 +124,8 @@ def observe(scope: DeviceScope) -> Observations | None:
         dev.status_at_ms,
         scope.policy,
         scope.interval_all,
+        scope.frame["received_ms"].to_numpy(np.int64),
+        scope.receipt_reference_ms,
     )
 
 
@@ -117,10 +137,12 @@ def evidence(scope: DeviceScope) -> Callable[[int], dict[str, Any]]:
     usual = float(interval_all[-1]) if np.isfinite(interval_all[-1]) else float("nan")
 
     def context(t: int) -> dict[str, Any]:
-        before = t_all[t_all <= t]
-        last = int(before[-1]) if before.size else int(t_all[0])
+        k = int(np.searchsorted(t_all, t, side="right"))
+        last = int(t_all[k - 1]) if k else int(t_all[0])
+        # silent up to the next reading, or (none yet) up to the reference
+        upto = int(t_all[k]) if k < len(t_all) else max(reference_ms, t)
         return {
-            "last_reading_ms": last, "silent_ms": max(reference_ms, t) - last,
+            "last_reading_ms": last, "silent_ms": upto - last,
             "usual_interval_s": round(usual / 1000.0, 1) if math.isfinite(usual) else None,
             "reference_ms": reference_ms,
         }  # fmt: skip

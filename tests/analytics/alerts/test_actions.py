@@ -28,8 +28,8 @@ def test_acknowledge_records_who_and_when(engine: sa.Engine) -> None:
 
 
 def test_maintenance_holds_notices_and_sends_the_open_alert_at_the_end(engine: sa.Engine) -> None:
-    # The hot side at 75 °C (45 K up), above 70 °C (the policy's over-temperature warning) from minute 1500 on,
-    # inside a maintenance window of minutes 1400-1700 and past its end.
+    # The hot side at 75 °C (45 K up), above 70 °C (the policy's over-temperature warning),
+    # from minute 1500 on: inside a maintenance window of minutes 1400-1700 and past its end.
     alerts.add_maintenance(engine, T0 + 1400 * MIN, T0 + 1700 * MIN, device_id="cab-1")
     data = [
         r._replace(t_hot=r.t_hot + 45.0) if i >= 1500 else r

@@ -21,11 +21,11 @@ from tests.bench.bench_alerts import START_S, opened_alerts, run_fleet
 DAYS = 2.0
 
 
-def _fleet(n: int, seed: int, **extra: object) -> sim.FleetSpec:
+def _fleet(n: int, seed: int) -> sim.FleetSpec:
     base = sim.random_fleet(n, seed=seed, start_s=START_S, days=DAYS, prefix="new")
     # no random power cuts: a cut is a real excursion, scheduled where a test wants one
     devs = tuple(dataclasses.replace(d, cuts_per_30d=0.0) for d in base.devices)
-    return sim.FleetSpec(devices=devs, start_s=START_S, seed=seed, warm_start=True, **extra)  # type: ignore[arg-type]
+    return sim.FleetSpec(devices=devs, start_s=START_S, seed=seed, warm_start=True)
 
 
 def _pull_down_ends(truth: sim.FleetTruth) -> dict[str, float]:
@@ -60,7 +60,7 @@ def test_a_unit_that_cannot_pull_down_gets_the_overdue_alert(tmp_path: Path) -> 
     # one unit's module at a tenth of its Seebeck coefficient: it cannot cool to its band
     weak = dataclasses.replace(spec.devices[0], s25=0.1 * spec.devices[0].s25)
     spec = dataclasses.replace(spec, devices=(weak, spec.devices[1]))
-    engine, truth, _spent, _beyond = run_fleet(tmp_path / "t.db", spec, 1.0, step_hours=3.0)
+    engine, _truth, _spent, _beyond = run_fleet(tmp_path / "t.db", spec, 1.0, step_hours=3.0)
     opened = [a for a in opened_alerts(engine) if a["kind"] in ("pull_down_overdue", "excursion")]
     # (a module this weak also reads as a cold-side probe fault: not this test's matter)
     assert [(a["device_id"], a["kind"]) for a in opened] == [(weak.device_id, "pull_down_overdue")]

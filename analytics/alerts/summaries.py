@@ -196,17 +196,40 @@ def _hot_side(ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any) ->
     return s, hi
 
 
+#: Where the design ambient came from, by ``capacity.design_ambient_basis`` (the codes of
+#: tecfleet.analytics.runner.daily).
+_DESIGN_AMBIENT_BASIS = {
+    0: "the fleet default",
+    1: "the site's registration",
+    2: "the warmest hours of its own ambient",
+}
+
+
 def _capacity(ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any) -> tuple[str, Any]:
     margin = ev.get("capacity.margin_median_w", ev.get("capacity.margin_w", float("nan")))
     frac = ev.get("capacity.margin_fraction")
     days = ev.get("capacity.days_judged", 1)
-    s = f"At the design ambient the cooler has {margin:.1f} W of cooling to spare"
+    ambient = ev.get("capacity.design_ambient_c")
+    basis = ev.get("capacity.design_ambient_basis")
+    at = "At the design ambient"
+    if ambient is not None:
+        at += f" of {ambient:.1f} °C"
+        if basis is not None:
+            source = _DESIGN_AMBIENT_BASIS.get(int(basis), "an unknown source")
+            ev["capacity.design_ambient_source"] = source
+            at += f" (from {source})"
+    s = f"{at} the cooler has {margin:.1f} W of cooling to spare"
     if frac is not None and math.isfinite(frac):
         s += f" ({100.0 * frac:.0f}% of its maximum cooling"
         s += f", median of {days} daily figures)" if days > 1 else ")"
-    s += (
-        " and cannot hold its setpoint" if ev.get("capacity.holdable", 1.0) < 0.5 else ""
-    ) + "; check module, fans and heat leak before warm weather."
+    s += " and cannot hold its setpoint there" if ev.get("capacity.holdable", 1.0) < 0.5 else ""
+    if ev.get("capacity.losing_setpoint", 0.0) >= 0.5:
+        hours = ev.get("capacity.losing_setpoint_h", 0.0)
+        s += (
+            f"; it is losing its setpoint now ({hours:.0f} h of the last day above it while "
+            "driven flat out)"
+        )
+    s += "; check module, fans and heat leak before warm weather."
     return s, lo
 
 

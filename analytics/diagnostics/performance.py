@@ -118,6 +118,7 @@ def setpoint_capacity(
     max_current: float,
     *,
     max_voltage: float | None = None,
+    q_internal: float = 0.0,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
     beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
 ) -> heat_paths.SetpointCapacity:
@@ -137,6 +138,7 @@ def setpoint_capacity(
     ua : Cabinet heat-loss conductance [W/K].
     max_current : Largest drive current [A].
     max_voltage : Largest drive voltage, optional [V].
+    q_internal : Heat released inside the cabinet (fans, electronics) [W].
     alpha, beta : Temperature coefficients of R and S [1/K].
 
     Returns
@@ -158,6 +160,7 @@ def setpoint_capacity(
             ua,
             max_current,
             max_voltage=max_voltage,
+            q_internal=q_internal,
             alpha=alpha,
             beta=beta,
         )

@@ -1,6 +1,16 @@
-"""Once a day: Theil-Sen slopes of the tracked quantities, wear, and setpoint capacity."""
+"""Once a day: Theil-Sen slopes of the tracked quantities, wear, and setpoint capacity.
+
+The capacity is judged at a design ambient: the registration's (``cabinet.design_ambient_c``),
+else the unit's own warm extreme (a percentile of its hourly mean ambient over the trailing
+days), else the fleet default; ``capacity.design_ambient_basis`` says which (1, 2, 0). Whether
+the unit is losing its setpoint now (driven flat out and still warm) is judged on the day's
+own readings.
+"""
 
 from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
 
 import numpy as np
 from scipy import ndimage
@@ -8,24 +18,103 @@ from scipy import ndimage
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics, trends
 from tecfleet.analytics.errors import PhysicsError
+from tecfleet.analytics.runner.data import Readings
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import MS_DAY, T0, AnalysisSettings
 from tecfleet.analytics.runner.state import DeviceState
 
-__all__ = ["daily"]
+__all__ = ["DESIGN_AMBIENT_BASIS", "daily"]
+
+#: What ``capacity.design_ambient_basis`` codes stand for.
+DESIGN_AMBIENT_BASIS = {0: "fleet default", 1: "registration", 2: "own ambient"}
+_HOUR_MS = 3_600_000
 
 
 def daily(
     b: int,
+    data: Readings,
     rows: EstimateRows,
     state: DeviceState,
     prior: physics.ModuleParameters | None,
-    setpoint_c: float,
+    cabinet: Mapping[str, Any],
     cfg: AnalysisSettings,
 ) -> None:
-    """The daily estimates of the day ending at ``b`` (epoch ms UTC)."""
+    """The daily estimates of the day ending at ``b`` (epoch ms UTC); ``data`` holds that
+    day's readings, ``cabinet`` the registration's cabinet (setpoint, design ambient, °C)."""
     _slopes(b, rows, state, cfg)
-    _capacity(b, rows, state, prior, setpoint_c, cfg)
+    sl = data.slice(b - MS_DAY, b)
+    _remember_ambient(b, data.ts[sl], data.ta[sl] - T0, state, cfg)
+    setpoint_c = float(cabinet.get("setpoint_c") or cfg.default_setpoint_c)
+    registered = cabinet.get("design_ambient_c")
+    design = _design_ambient(None if registered is None else float(registered), state, cfg)
+    losing = _losing_setpoint(
+        data.ts[sl], data.tcab[sl] - T0, data.i[sl], setpoint_c, b - MS_DAY, cfg
+    )
+    _capacity(b, rows, state, prior, setpoint_c, design, cfg)
+    note = (
+        f"hours of the day with the cabinet over {cfg.losing_setpoint_k:g} K above "
+        f"{setpoint_c:g} °C at {100 * cfg.losing_setpoint_drive:g} % of the day's largest current"
+    )
+    rows.add("capacity.losing_setpoint_h", b, float(losing), None, 1, note=note)
+    rows.add(
+        "capacity.losing_setpoint", b, 1.0 if losing >= cfg.losing_setpoint_hours else 0.0, None,
+        1, note=f"{note}: at least {cfg.losing_setpoint_hours:g} h",
+    )  # fmt: skip
+
+
+def _hourly_means(ts: Any, x: Any, start_ms: int) -> tuple[Any, Any]:
+    """Hour ends [ms] and means of ``x`` over the hours from ``start_ms`` that hold samples."""
+    ok = np.isfinite(x)
+    hour = (ts[ok] - start_ms) // _HOUR_MS
+    if not hour.size:
+        return np.zeros(0, np.int64), np.zeros(0)
+    counts = np.bincount(hour)
+    sums = np.bincount(hour, weights=x[ok])
+    have = np.flatnonzero(counts)
+    return start_ms + (have + 1) * _HOUR_MS, sums[have] / counts[have]
+
+
+def _remember_ambient(
+    b: int, ts: Any, ta_c: Any, state: DeviceState, cfg: AnalysisSettings
+) -> None:
+    """Add the day's hourly mean ambient [°C] to the state, keeping the trailing days."""
+    ends, means = _hourly_means(ts, ta_c, b - MS_DAY)
+    keep_from = b - cfg.design_ambient_days * MS_DAY
+    kept = [p for p in (state.ambient_hours or []) if p[0] > keep_from]
+    kept += [[int(e), round(float(m), 2)] for e, m in zip(ends, means, strict=True)]
+    state.ambient_hours = kept
+
+
+def _design_ambient(
+    registered_c: float | None, state: DeviceState, cfg: AnalysisSettings
+) -> tuple[float, int, str]:
+    """The design ambient [°C], its basis code and its source in words."""
+    if registered_c is not None:
+        return registered_c, 1, "the registration's"
+    hours = [p[1] for p in state.ambient_hours or []]
+    if len(hours) >= cfg.design_ambient_min_hours:
+        value = float(np.percentile(hours, cfg.design_ambient_percentile))
+        how = (
+            f"the {cfg.design_ambient_percentile:g}th percentile of the unit's hourly mean "
+            f"ambient over {len(hours)} h of the last {cfg.design_ambient_days:g} days"
+        )
+        return value, 2, how
+    return cfg.design_ambient_c, 0, "the fleet default (climate classes SN and N)"
+
+
+def _losing_setpoint(
+    ts: Any, tcab_c: Any, current: Any, setpoint_c: float, start_ms: int, cfg: AnalysisSettings
+) -> float:
+    """Hours of the day [h] whose mean cabinet temperature [°C] was ``losing_setpoint_k``
+    above the setpoint while the mean current [A] was at ``losing_setpoint_drive`` of the
+    day's largest hourly mean."""
+    _ends, cab = _hourly_means(ts, tcab_c, start_ms)
+    _ends_i, amps = _hourly_means(ts, current, start_ms)
+    if not cab.size or cab.size != amps.size or not np.any(amps > cfg.on_current):
+        return 0.0
+    flat_out = amps >= cfg.losing_setpoint_drive * float(np.max(amps))
+    warm = cab > setpoint_c + cfg.losing_setpoint_k
+    return float(np.count_nonzero(flat_out & warm & (amps > cfg.on_current)))
 
 
 def _slopes(b: int, rows: EstimateRows, state: DeviceState, cfg: AnalysisSettings) -> None:
@@ -65,8 +154,10 @@ def _capacity(
     state: DeviceState,
     prior: physics.ModuleParameters | None,
     setpoint_c: float,
+    design: tuple[float, int, str],
     cfg: AnalysisSettings,
 ) -> None:
+    ambient_c, basis, source = design
     p = state.params
     if p is None or p.ua is None or p.r_hot is None or p.r_cold is None:
         return
@@ -81,16 +172,22 @@ def _capacity(
         return
     try:
         cap = dg.setpoint_capacity(
-            setpoint_c + T0, cfg.design_ambient_c + T0, p.s25, p.r25, p.k, p.r_hot,
-            p.r_cold, p.ua, i_max, max_voltage=v_max, alpha=cfg.alpha, beta=cfg.beta,
+            setpoint_c + T0, ambient_c + T0, p.s25, p.r25, p.k, p.r_hot, p.r_cold, p.ua, i_max,
+            max_voltage=v_max, q_internal=p.q_int or 0.0, alpha=cfg.alpha, beta=cfg.beta,
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("capacity.margin_w", b, None, None, 0, False, str(exc))
         return
     note = (
-        f"setpoint {setpoint_c:g} °C at design ambient {cfg.design_ambient_c:g} °C, "
-        f"drive up to {i_max:.2f} A" + ("" if prior_i is not None else " (largest current seen)")
+        f"setpoint {setpoint_c:g} °C at design ambient {ambient_c:.1f} °C ({source}), "
+        f"internal load {p.q_int or 0.0:.2f} W, drive up to {i_max:.2f} A"
+        + ("" if prior_i is not None else " (largest current seen)")
     )
+    rows.add("capacity.design_ambient_c", b, ambient_c, None, 1, note=source)
+    rows.add(
+        "capacity.design_ambient_basis", b, float(basis), None, 1,
+        note=", ".join(f"{k}: {v}" for k, v in DESIGN_AMBIENT_BASIS.items()),
+    )  # fmt: skip
     rows.add("capacity.margin_w", b, cap.margin, None, 1, note=note)
     rows.add("capacity.holdable", b, 1.0 if cap.holdable else 0.0, None, 1, note=note)
     rows.add("capacity.max_cooling_w", b, cap.max_cooling, None, 1)

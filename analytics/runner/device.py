@@ -63,7 +63,6 @@ def analyze_device(
     rows = EstimateRows(dev.device_id)
     prior = priors(dev.module, cfg)
     cabinet = dev.cabinet if isinstance(dev.cabinet, dict) else {}
-    setpoint_c = float(cabinet.get("setpoint_c") or cfg.default_setpoint_c)
     steps = 0
     hot: dict[int, dg.Estimate | None] = {}
     for b in range(done + step, end + 1, step):
@@ -72,7 +71,7 @@ def analyze_device(
             fit_window(data, b, rows, state, prior, cfg)
             hot = {}
         if b % (cfg.daily_s * 1000) == 0:
-            daily(b, rows, state, prior, setpoint_c, cfg)
+            daily(b, data, rows, state, prior, cabinet, cfg)
         if b not in hot:
             # The fitted parameters hold until the next window: every hour up to it at once.
             hot = hot_side(data, b, min(b // window * window + window - step, end), state, cfg)

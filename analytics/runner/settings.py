@@ -110,8 +110,26 @@ class AnalysisSettings:
     #: no source).
     r_hot_min_heat_w: float = 5.0
     cusum_allowance: float = 0.5  # [σ], Page (1954), Montgomery (from memory)
-    #: Upper ambient of climate classes SN and N, 32 °C (ISO 15502 / IEC 62552; from memory).
+    #: Design ambient of the capacity figures when the registration gives none and the
+    #: unit's own ambient is not known yet: the upper ambient of climate classes SN and N,
+    #: 32 °C (ISO 15502 / IEC 62552; from memory) [°C].
     design_ambient_c: float = 32.0
+    #: Otherwise the unit's own warm extreme: this percentile of its hourly mean ambient over
+    #: the trailing ``design_ambient_days``, once ``design_ambient_min_hours`` hourly means are
+    #: known. 99 % of hours is the 1 % cooling design condition of building services (ASHRAE
+    #: Handbook—Fundamentals, climatic design conditions; from memory), here over a month of
+    #: the unit's own air rather than years of weather [%, d, -].
+    design_ambient_percentile: float = 99.0
+    design_ambient_days: float = 30.0
+    design_ambient_min_hours: int = 24
+    #: A unit is losing its setpoint now when, on ``losing_setpoint_hours`` hours of the day
+    #: or more, its cabinet's hourly mean sat ``losing_setpoint_k`` above the setpoint while
+    #: its mean current was at ``losing_setpoint_drive`` of the day's largest: driven flat out
+    #: and still warm. Door openings and warm goods recover within an hour or two (common
+    #: practice, no source) [h, K, -].
+    losing_setpoint_hours: float = 3.0
+    losing_setpoint_k: float = 1.0
+    losing_setpoint_drive: float = 0.95
     #: Setpoint assumed when a registration omits it [°C] (common practice, no source).
     default_setpoint_c: float = 5.0
     #: Uncertainty of the difference of two uncalibrated probes [K] (common practice, no source).

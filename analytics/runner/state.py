@@ -191,6 +191,9 @@ class DeviceState(_Stored):
     tau_hist: list[list[float]] | None = None
     #: Recent K fitted from data [W/K].
     k_hist: list[float] | None = None
+    #: Hourly mean ambient over the trailing ``design_ambient_days``: [end of the hour
+    #: (epoch ms UTC), °C].
+    ambient_hours: list[Point] | None = None
 
     def series_by_name(self) -> dict[str, list[Point]]:
         if self.series is None:

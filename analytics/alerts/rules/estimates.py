@@ -56,6 +56,10 @@ CAPACITY_KEYS = (
     "capacity.holdable",
     "capacity.heat_load_w",
     "capacity.max_cooling_w",
+    "capacity.design_ambient_c",
+    "capacity.design_ambient_basis",
+    "capacity.losing_setpoint",
+    "capacity.losing_setpoint_h",
 )
 #: The keys each kind reads, in the order the kinds are judged.
 TREND_KEYS = {

@@ -1,4 +1,4 @@
-"""The rules on the diagnostics' estimates: module wear and heat leak."""
+"""The rules on the diagnostics' estimates: module wear, heat leak and capacity."""
 
 from __future__ import annotations
 
@@ -83,3 +83,54 @@ def test_heat_leak_back_after_days_reopens_the_same_alert(engine: sa.Engine) -> 
             )
         ).fetchall()
     assert [r.reopen_count for r in rows] == [1]
+
+
+def _capacity_series(days: int, losing_from: int | None) -> dict[str, list[tuple[int, float]]]:
+    """Daily capacity figures of a unit short of cooling at its design ambient (-3 W of
+    11 W, cannot hold there), losing its setpoint from day ``losing_from`` on."""
+    day = 86_400_000
+    at = [T0 + d * day for d in range(days)]
+    losing = [1.0 if losing_from is not None and d >= losing_from else 0.0 for d in range(days)]
+    return {
+        "capacity.margin_w": [(t, -3.0) for t in at],
+        "capacity.holdable": [(t, 0.0) for t in at],
+        "capacity.max_cooling_w": [(t, 11.0) for t in at],
+        "capacity.design_ambient_c": [(t, 24.6) for t in at],
+        "capacity.design_ambient_basis": [(t, 2.0) for t in at],
+        "capacity.losing_setpoint": list(zip(at, losing, strict=True)),
+        "capacity.losing_setpoint_h": [(t, 5.0 * v) for t, v in zip(at, losing, strict=True)],
+    }
+
+
+def test_capacity_short_at_the_design_ambient_alone_is_a_warning() -> None:
+    # Issue 17 A3: units holding their setpoint were marked critical for lacking capacity at
+    # the design ambient. Critical is kept for a unit losing its setpoint now.
+    policy = alerts.AlertPolicy()
+    obs = alerts.trend_observations("capacity_shortfall", _capacity_series(8, None), policy)
+    n = policy.capacity_persist
+    assert list(obs.active) == [False] * (n - 1) + [True] * (8 - n + 1)
+    assert set(obs.severity[obs.active]) == {1}
+    obs = alerts.trend_observations("capacity_shortfall", _capacity_series(8, 6), policy)
+    assert list(obs.severity[n - 1 :]) == [1, 1, 2, 2]
+
+
+def test_capacity_summary_says_where_the_design_ambient_came_from(engine: sa.Engine) -> None:
+    day = 86_400_000
+    series = cabinet_series(7 * 1440 + 60)
+    db.store_batch(engine, series)
+    for key, points in _capacity_series(7, 6).items():
+        for t, v in points:
+            _estimate(engine, key, t, v)
+    changes = [c for c in alerts.evaluate(engine) if c.kind == "capacity_shortfall"]
+    assert [(c.change, c.severity) for c in changes] == [
+        ("opened", "warning"),
+        ("escalated", "critical"),
+    ]
+    assert changes[0].at_ms == T0 + 4 * day  # the fifth daily figure (capacity_persist)
+    assert changes[1].summary == (
+        "At the design ambient of 24.6 °C (from the warmest hours of its own ambient) the "
+        "cooler has -3.0 W of cooling to spare (-27% of its maximum cooling, median of 5 "
+        "daily figures) and cannot hold its setpoint there; it is losing its setpoint now "
+        "(5 h of the last day above it while driven flat out); check module, fans and heat "
+        "leak before warm weather."
+    )

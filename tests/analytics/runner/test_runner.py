@@ -19,6 +19,7 @@ from sqlalchemy.engine import Engine
 from tecfleet.analytics import heat_paths, physics, runner
 from tecfleet.analytics.simulation import STANDARD_RATINGS
 from tecfleet.ingest import db
+from tecfleet.ingest.db import fleet
 from tests.analytics.synthetic import Truth, simulate
 
 DEVICE = "cab-demo-1"
@@ -96,6 +97,8 @@ def test_incremental_live_equals_backfill_and_rerun_is_idempotent(
 
 def test_health_has_contract_keys_in_contract_shape(tmp_path: Path, frame: pd.DataFrame) -> None:
     e = _engine(tmp_path, "health")
+    # the site registers the warmest air it expects around the unit: 32 °C
+    fleet.register(e, DEVICE, {"cabinet": {"design_ambient_c": 32.0}})
     _store(e, frame)
     runner.analyze(e)
     health = runner.latest_health(e, DEVICE)
@@ -121,8 +124,10 @@ def test_health_has_contract_keys_in_contract_shape(tmp_path: Path, frame: pd.Da
     assert abs(health["module.resistance_25c.change_pct"]["value"]) < 1.0
     assert health["module.resistance_25c.flag"]["value"] == 0.0
     assert health["hot_side.resistance.flag"]["value"] == 0.0
-    # Daily capacity: the healthy cooler holds 5 °C at the 32 °C design ambient, with the
-    # margin the steady-state model gives on the generator's true parameters.
+    # Daily capacity: the healthy cooler holds 5 °C at the registered 32 °C design ambient,
+    # with the margin the steady-state model gives on the generator's true parameters.
+    assert health["capacity.design_ambient_c"]["value"] == 32.0
+    assert health["capacity.design_ambient_basis"]["value"] == 1.0  # the registration's
     assert health["capacity.holdable"]["value"] == 1.0
     margin = health["capacity.margin_w"]["value"]
     # Margin = most cooling - heat load (its definition, heat_paths.SetpointCapacity).
@@ -135,6 +140,7 @@ def test_health_has_contract_keys_in_contract_shape(tmp_path: Path, frame: pd.Da
 
 #: Served parameters behind the capacity and the fitted quantity each stands for.
 _CAPACITY_INPUTS = {
+    "q_internal": "cabinet.internal_load_w",
     "s25": "module.seebeck_25c_v_per_k",
     "r25": "module.resistance_25c_ohm",
     "k": "module.conductance_w_per_k",
@@ -149,13 +155,15 @@ def _true_margin(tr: Truth, max_current: float, **moved: float) -> float:
     # Ioffe 1957 and Goldsmid 2010, ch. 2; checked on its own in test_heat_paths against the
     # operating-point solver) on the generator's true module, sinks and cabinet, at 5 °C and
     # the 32 °C design ambient, driven up to the generator's largest drive level (4 A; the
-    # runner takes the largest current it saw, 4 A plus the 10 mA current noise). Like the
-    # served figure, without the internal load. ``moved`` replaces true parameters.
+    # runner takes the largest current it saw, 4 A plus the 10 mA current noise), with the
+    # generator's internal load as the served figure has the fitted one. ``moved`` replaces
+    # true parameters.
     p = {"s25": tr.s25, "r25": tr.r25, "k": tr.k, "r_hot": tr.r_hot, "r_cold": tr.r_cold}
-    p |= {"ua": tr.ua} | moved
+    p |= {"ua": tr.ua, "q_internal": tr.q_internal} | moved
     cap = heat_paths.capacity_at_setpoint(
         5.0 + 273.15, 32.0 + 273.15, physics.ModuleParameters(p["s25"], p["r25"], p["k"]),
-        p["r_hot"], p["r_cold"], p["ua"], max_current, alpha=tr.alpha, beta=tr.beta,
+        p["r_hot"], p["r_cold"], p["ua"], max_current, q_internal=p["q_internal"],
+        alpha=tr.alpha, beta=tr.beta,
     )  # fmt: skip
     return cap.margin
 
@@ -168,8 +176,12 @@ def _margin_sd(tr: Truth, health: dict[str, dict[str, Any]]) -> float:
     base = _true_margin(tr, 4.0)
     var = 0.0
     for name, key in _CAPACITY_INPUTS.items():
-        rel = health[key]["stderr"] / health[key]["value"]
+        se = health[key]["stderr"]
         true = getattr(tr, name)
+        if name == "q_internal":  # a heat flow near zero: its own standard error in watts
+            var += (_true_margin(tr, 4.0, q_internal=true + se) - base) ** 2
+            continue
+        rel = se / health[key]["value"]
         var += (_true_margin(tr, 4.0, **{name: true * (1.0 + rel)}) - base) ** 2
     return math.sqrt(var)
 
@@ -281,3 +293,24 @@ def test_ua_changes_are_not_followed_while_the_hot_side_is_flagged(tmp_path: Pat
     change = [h["at_ms"] for h in runner.estimate_history(e, DEVICE, "cabinet.ua.change_pct")]
     assert any(at < start for at in change)  # followed before the fault
     assert not any(at > raised[0] for at in change)
+
+
+def test_capacity_is_judged_at_the_units_own_warm_extreme(
+    tmp_path: Path, frame: pd.DataFrame
+) -> None:
+    # Without a registered design ambient the unit's own warm extreme is used: the 99th
+    # percentile of its hourly mean ambient. The generator's ambient is 25 °C ± 2 K over a
+    # day (Truth: ambient_c, ambient_swing_k), so its hourly means peak within a few
+    # hundredths of a kelvin of 27 °C (a sine averaged over 1/24 of its period keeps
+    # sin(π/24)/(π/24) = 0.997 of its amplitude) and the probe noise averages out over an
+    # hour's 60 samples; 0.25 K allows for hours not centred on the peak.
+    e = _engine(tmp_path, "own")
+    _store(e, frame)
+    runner.analyze(e)
+    health = runner.latest_health(e, DEVICE)
+    tr = Truth()
+    peak = tr.ambient_c + tr.ambient_swing_k
+    assert health["capacity.design_ambient_c"]["value"] == pytest.approx(peak, abs=0.25)
+    assert health["capacity.design_ambient_basis"]["value"] == 2.0  # its own ambient
+    # a healthy unit holding its setpoint is not losing it
+    assert health["capacity.losing_setpoint"]["value"] == 0.0

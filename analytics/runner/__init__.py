@@ -48,8 +48,17 @@ hot_side.resistance_fit_k_per_w                the same from the 24-hour sink fi
 performance.cooling_w / input_power_w / cop    at the window's latest steady on operating point
 performance.cop_max / current_for_best_cop_a   best COP at those temperatures and its current
 performance.carnot_cop                         Tc/(Th - Tc)
-capacity.holdable / margin_w / max_cooling_w   setpoint capacity at the design ambient (daily)
+capacity.holdable / margin_w / max_cooling_w   setpoint capacity at the design ambient, with
+                                               the fitted internal load (daily)
 capacity.heat_load_w                           heat load at setpoint and design ambient [W]
+capacity.design_ambient_c                      the design ambient used [°C]: the registration's
+                                               ``cabinet.design_ambient_c``, else a percentile
+                                               of the unit's hourly mean ambient over the
+                                               trailing days, else the fleet default
+capacity.design_ambient_basis                  which: 1 registration, 2 own ambient, 0 default
+capacity.losing_setpoint (_h)                  1 when the cabinet sat above its setpoint while
+                                               driven flat out for hours of the day (and the
+                                               hours) [-, h]
 <q>.baseline                                   commissioning baseline (median of first days)
 <q>.change_pct                                 recent value against baseline [%]
 <q>.cusum                                      Page's upper CUSUM on standardised values [σ]

@@ -130,16 +130,18 @@ def observe(scope: DeviceScope) -> Observations | None:
 
 
 def evidence(scope: DeviceScope) -> Callable[[int], dict[str, Any]]:
-    """Evidence at time t [ms]: the last reading before it, how long the unit has been
-    silent [ms] and its usual interval [s]."""
+    """Evidence at time t [ms]: the last reading before it, how long the unit was silent
+    [ms] (up to the reading that ended the silence, or up to the reference) and its usual
+    interval [s]."""
     t_all, reference_ms = scope.t_all, scope.reference_ms
     interval_all = scope.interval_all
     usual = float(interval_all[-1]) if np.isfinite(interval_all[-1]) else float("nan")
 
     def context(t: int) -> dict[str, Any]:
-        k = int(np.searchsorted(t_all, t, side="right"))
+        # the silence around t: from the reading before it to the reading at or after it
+        # (the one that ended it), or (none yet) up to the reference
+        k = int(np.searchsorted(t_all, t, side="left"))
         last = int(t_all[k - 1]) if k else int(t_all[0])
-        # silent up to the next reading, or (none yet) up to the reference
         upto = int(t_all[k]) if k < len(t_all) else max(reference_ms, t)
         return {
             "last_reading_ms": last, "silent_ms": upto - last,

@@ -43,6 +43,8 @@ def test_offline_gap_opens_at_five_intervals_and_resolves_on_return(engine: sa.E
     # usual interval 1 min; 5 × 1 min = 5 min is below the 10-minute floor (common practice)
     assert changes[0].at_ms == T0 + 299 * MIN + 10 * MIN
     assert changes[1].at_ms == T0 + 400 * MIN
+    # stored long after it happened: a past outage of 101 min, said so in words
+    assert changes[1].summary.startswith("Resolved after 1.5 h: past outage: no readings for 1.7 h")
 
 
 def test_offline_judged_against_the_fleet_and_the_wall_clock(
@@ -89,6 +91,9 @@ def test_a_backlog_being_delivered_is_not_offline(
     assert changes[0].evidence["past_outage"] is True
     # 4.2 h = 253 min from minute 99 to minute 352
     assert changes[0].summary.startswith("Past outage: no readings for 4.2 h")
+    assert changes[-1].summary.startswith(
+        "Resolved after 4.0 h: past outage: no readings for 4.2 h"
+    )
     # 5 min after the last delivery the unit still counts as delivering
     assert alerts.evaluate(engine, now_ms=T0 + 1010 * MIN) == []
     # delivered up to minute 599 at minute 1005, and nothing since: 15 min of silence on the

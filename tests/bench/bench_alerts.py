@@ -1,6 +1,8 @@
 """Alerts scored against the simulator's ground truth.
 
-Run: ``python tests/bench/bench_alerts.py [--days 14] [--healthy 6] [--seed 3]``.
+Run: ``python tests/bench/bench_alerts.py [--days 14] [--healthy 6] [--seed 3]``;
+``--switched-on`` runs a healthy fleet switched on at room temperature instead and prints each
+unit's pull-down and the alerts opened (none is the target: a pull-down is commissioning).
 Prints one row per expected alert (kind, unit, expected, fired, delay against its target)
 and one row of false positives per alert kind. Simulated data only; the test
 ``tests/analytics/alerts/test_scoring.py`` runs a smaller fleet through the same functions.
@@ -47,6 +49,7 @@ from tecfleet.analytics import alerts, physics, runner
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import simulation as sim
 from tecfleet.ingest import db
+from tecfleet.ingest.db import alert_records
 
 START_S = 1_735_689_600.0  # 2025-01-01T00:00Z, a day boundary
 DAY_S = 86_400.0
@@ -436,6 +439,28 @@ def _human(seconds: float) -> str:
     return f"{seconds / DAY_S:.1f} d"
 
 
+def switched_on(days: float, units: int, seed: int, step_hours: float) -> str:
+    """A healthy fleet newly switched on (``FleetSpec.warm_start``): each unit's pull-down as
+    the alerts saw it and every alert opened on the fleet (none is the target)."""
+    base = sim.random_fleet(units, seed=seed, start_s=START_S, days=days, prefix="on")
+    devs = tuple(dataclasses.replace(d, cuts_per_30d=0.0) for d in base.devices)
+    spec = sim.FleetSpec(devices=devs, start_s=START_S, seed=seed, warm_start=True)
+    with tempfile.TemporaryDirectory() as tmp:
+        engine, _truth, _spent, _beyond = run_fleet(
+            Path(tmp) / "on.db", spec, days, step_hours=step_hours
+        )
+        opened = opened_alerts(engine)
+        with engine.connect() as conn:
+            states = {d: alert_records.read_progress(conn, d)[1] for d in spec.device_ids}
+        engine.dispose()
+    lines = [f"{'unit':<10}{'pull-down':>10}  alerts opened"]
+    for d in spec.device_ids:
+        pull = states[d].get("commissioning", {}).get("pull_down_s")
+        kinds = ", ".join(a["kind"] for a in opened if a["device_id"] == d) or "none"
+        lines.append(f"{d:<10}{'-' if pull is None else _human(pull):>10}  {kinds}")
+    return "\n".join(lines)
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--days", type=float, default=14.0)
@@ -444,7 +469,19 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--step-hours", type=float, default=6.0)
     ap.add_argument("--verbose", action="store_true", help="print every alert opened")
     ap.add_argument("--keep", type=Path, help="keep the database at this path")
+    ap.add_argument(
+        "--switched-on",
+        action="store_true",
+        help="a healthy fleet of --healthy units switched on warm instead: pull-downs, alerts",
+    )
     args = ap.parse_args(argv)
+    if args.switched_on:
+        print(
+            f"{args.healthy} healthy units switched on at room temperature, {args.days:g} "
+            f"days, seed {args.seed}, evaluated every {args.step_hours:g} h"
+        )
+        print(switched_on(args.days, args.healthy, args.seed, args.step_hours))
+        return 0
     spec, expected = scoring_fleet(args.days, healthy=args.healthy, seed=args.seed)
     with tempfile.TemporaryDirectory() as tmp:
         db_path = args.keep if args.keep is not None else Path(tmp) / "bench.db"

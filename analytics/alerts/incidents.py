@@ -11,7 +11,9 @@ if that comes first, and then the cause's opening as its worsening), again when 
 rises or a symptom of a new kind joins it, and once when the cause resolves; every other change
 of its symptoms stays on record only (an audit row, and an ``absorbed`` outbox row).
 
-A condition that comes back within the reopen window is the same alert, reopened and counted.
+A condition that comes back within the reopen window is the same alert, reopened and counted;
+a symptom that comes back while its cause is still open is the same alert however long it was
+away.
 Once an alert has come back, its next resolution notice waits for the reopen window
 (``deferred``): if the condition returns in that time, neither the resolution nor the return is
 sent (the people told still see it open) unless it returns worse. A condition of every
@@ -32,7 +34,16 @@ from sqlalchemy.engine import Connection, Row
 from tecfleet.analytics.alerts.kinds import OPEN_STATES, SEVERITIES
 from tecfleet.ingest.db import alert_records as records
 
-__all__ = ["LINKS", "Link", "Windows", "causes_of", "link", "notice_route", "symptoms_of"]
+__all__ = [
+    "LINKS",
+    "Link",
+    "Windows",
+    "causes_of",
+    "continues",
+    "link",
+    "notice_route",
+    "symptoms_of",
+]
 
 
 @dataclass(frozen=True)
@@ -101,6 +112,18 @@ def causes_of(kind: str) -> tuple[str, ...]:
 def symptoms_of(kind: str) -> tuple[str, ...]:
     """The symptom kinds a cause of ``kind`` explains."""
     return tuple(k.symptom for k in LINKS if k.cause == kind)
+
+
+def continues(conn: Connection, alert_id: int | None) -> bool:
+    """Whether a condition back after the reopen window still continues the resolved alert
+    ``alert_id``: it does while that alert is a symptom whose cause is still open."""
+    if alert_id is None:
+        return False
+    row = records.alert_row(conn, alert_id)
+    if row.incident_id is None or row.incident_id == row.id:
+        return False
+    cause = records.alert_row(conn, int(row.incident_id))
+    return bool(cause.state in OPEN_STATES)
 
 
 def link(conn: Connection, row: Row[Any], change: str, at: int, link_ms: int) -> Row[Any] | None:

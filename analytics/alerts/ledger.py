@@ -74,6 +74,8 @@ class Ledger:
         severity = SEVERITIES[sev]
         ev = records.jsonable(ev)
         before = None
+        if change == "opened" and incidents.continues(self.conn, st.get("alert_id")):
+            change = "reopened"  # a symptom back while its cause is still open: the same one
         if change == "opened":
             alert_id = records.insert_alert(
                 self.conn, self.device.device_id, kind, severity, at, summary, ev

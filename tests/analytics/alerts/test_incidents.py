@@ -21,6 +21,7 @@ import sqlalchemy as sa
 
 from tecfleet.analytics import alerts
 from tecfleet.analytics import simulation as sim
+from tecfleet.analytics.alerts import incidents
 from tecfleet.ingest import db
 from tests.analytics.alerts.cabinet import MIN, T0, cabinet_series
 from tests.bench.bench_alerts import DAY_S, HOUR_S, START_S, run_fleet
@@ -157,3 +158,49 @@ def test_a_condition_back_every_day_is_told_once_it_stays_away(engine: sa.Engine
         ).fetchall()
     # the last resolution waited for the reopen window after the third spell cleared
     assert told[-1].hold_until_ms >= T0 + (700 + 2 * day) * MIN + 36 * 3600 * 1000
+
+
+def test_a_symptom_is_told_when_it_joins_or_worsens_the_incident(engine: sa.Engine) -> None:
+    # UA up 40 % (over the 35 % warning, under the 60 % critical; common practice, no source)
+    # explains a cabinet out of band: 11.7 h out of band turns the excursion critical at 10 h
+    # (the WHO PQS recorder's heat alarm; from memory), then it comes back for 100 min
+    first = cabinet_series(3 * 1440, hot=(1500, 2200))
+    again = cabinet_series(3 * 1440, hot=(2600, 2700))
+    db.store_batch(engine, first[:2600] + again[2600:])
+    with engine.begin() as conn:
+        for k in range(1, 12):
+            conn.execute(
+                db.estimates.insert().values(
+                    device_id="cab-1", key="cabinet.ua.change_pct", at_ms=T0 + k * 6 * 3_600_000,
+                    value=40.0, n=10, reliable=True,
+                )
+            )  # fmt: skip
+    alerts.evaluate(engine)
+    rows = _alerts(engine, "cab-1")
+    cause = next(r for r in rows if r.kind == "heat_leak")
+    assert sorted((r.kind, r.incident_id) for r in rows) == [
+        ("excursion", cause.id),
+        ("heat_leak", cause.id),
+    ]
+    notices = sorted(_notices(engine, "cab-1"), key=lambda n: n.event_ms)  # in event time
+    told = [(n.kind, n.event) for n in notices if n.state in SENT]
+    assert told == [
+        ("heat_leak", "alert.opened"),  # the incident opens
+        ("excursion", "alert.opened"),  # a symptom of a new kind joins it
+        ("excursion", "alert.escalated"),  # critical: worse than the incident was
+    ]
+    kept = [(n.kind, n.event) for n in notices if n.state == "absorbed"]
+    assert kept == [
+        ("excursion", "alert.resolved"),
+        ("excursion", "alert.reopened"),
+        ("excursion", "alert.resolved"),
+    ]
+
+
+def test_silence_and_probe_faults_explain_nothing() -> None:
+    # a silent unit may have lost its power or only its network, and a faulty probe explains
+    # a reading, not a condition: neither is made the cause of another alert
+    linked = {k for link in incidents.LINKS for k in (link.cause, link.symptom)}
+    assert linked <= set(alerts.KINDS)
+    assert "offline" not in linked and "sensor_fault" not in linked
+    assert incidents.causes_of("over_temperature") == ("hot_side_cooling",)

@@ -41,7 +41,6 @@ __all__ = [
     "alert_page",
     "alert_row",
     "alert_row_dict",
-    "alert_state",
     "attach_symptoms",
     "audit_rows",
     "cancel_deferred",
@@ -205,12 +204,6 @@ def insert_alert(
     )  # fmt: skip
 
 
-def alert_state(conn: Connection, alert_id: int) -> str:
-    """The stored state of one alert."""
-    a = alerts
-    return str(conn.execute(sa.select(a.c.state).where(a.c.id == alert_id)).scalar_one())
-
-
 def update_alert(conn: Connection, alert_id: int, change: str, values: Mapping[str, Any]) -> None:
     """Write ``values`` to one alert; a ``reopened`` change also counts the reopen."""
     a = alerts
@@ -254,6 +247,8 @@ def insert_notice(
     the cause of an incident); ``hold`` [ms] holds it until a maintenance window ends;
     ``route`` (see NOTICE_ROUTES) says whether it goes out, stays on record only, or waits
     until ``defer_until_ms`` [ms]."""
+    if route not in NOTICE_ROUTES:
+        raise StoreError(f"unknown notice route {route!r}")
     row = alert_row(conn, alert_id)
     symptoms = symptoms_by_incident(conn, [alert_id]).get(alert_id)
     if route == "absorb":

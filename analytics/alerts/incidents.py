@@ -114,16 +114,23 @@ def symptoms_of(kind: str) -> tuple[str, ...]:
     return tuple(k.symptom for k in LINKS if k.cause == kind)
 
 
-def continues(conn: Connection, alert_id: int | None) -> bool:
-    """Whether a condition back after the reopen window still continues the resolved alert
-    ``alert_id``: it does while that alert is a symptom whose cause is still open."""
+def continues(conn: Connection, alert_id: int | None, at: int) -> bool:
+    """Whether a condition back at ``at`` [ms], after the reopen window, still continues the
+    resolved alert ``alert_id``: it does while that alert is a symptom whose cause is open."""
     if alert_id is None:
         return False
     row = records.alert_row(conn, alert_id)
     if row.incident_id is None or row.incident_id == row.id:
         return False
-    cause = records.alert_row(conn, int(row.incident_id))
-    return bool(cause.state in OPEN_STATES)
+    return _open_at(records.alert_row(conn, int(row.incident_id)), at)
+
+
+def _open_at(cause: Row[Any], at: int) -> bool:
+    """Whether the cause alert was open at ``at`` [ms]: opened by then and still open, or
+    resolved only later (a backfill judges a symptom after its cause's whole history)."""
+    if int(cause.opened_ms) > at:
+        return False
+    return bool(cause.state in OPEN_STATES or (cause.resolved_ms or 0) > at)
 
 
 def link(conn: Connection, row: Row[Any], change: str, at: int, link_ms: int) -> Row[Any] | None:
@@ -135,7 +142,9 @@ def link(conn: Connection, row: Row[Any], change: str, at: int, link_ms: int) ->
     alone."""
     symptoms = symptoms_of(row.kind)
     if symptoms and change in ("opened", "reopened"):
-        records.attach_symptoms(conn, int(row.id), row.device_id, symptoms, at - link_ms, at)
+        found = records.attach_symptoms(conn, int(row.id), row.device_id, symptoms, at - link_ms)
+        if found:
+            _reroute_unsent(conn, row, found, at)
     causes = causes_of(row.kind)
     if not causes:
         return None
@@ -146,6 +155,29 @@ def link(conn: Connection, row: Row[Any], change: str, at: int, link_ms: int) ->
         return None
     records.set_incident(conn, int(row.id), int(cause.id))
     return cause
+
+
+def _reroute_unsent(conn: Connection, cause: Row[Any], found: list[Any], at: int) -> None:
+    """Symptoms judged before their cause (the readings' rules run first in an evaluation,
+    and a backfill holds weeks): their notices not yet sent from after the cause opened at
+    ``at`` [ms] are routed as the incident would have routed them. A symptom kind joining
+    and a rise above the incident's severity go out; the rest stays on record only."""
+    rank = SEVERITIES.index
+    before = [r for r in found if int(r.opened_ms) < at]
+    joined = {r.kind for r in before}
+    top = max([rank(cause.severity), *(rank(r.severity) for r in before)])
+    quiet = []
+    for notice_id, kind, event, severity in records.unsent_notices(
+        conn, [int(r.id) for r in found], at
+    ):
+        if event in ("alert.opened", "alert.reopened") and kind not in joined:
+            joined.add(kind)
+            top = max(top, rank(severity))
+        elif event != "alert.resolved" and rank(severity) > top:
+            top = rank(severity)
+        else:
+            quiet.append(notice_id)
+    records.absorb_notices(conn, quiet)
 
 
 def notice_route(
@@ -162,7 +194,7 @@ def notice_route(
     ``defer``, see ``alert_records.NOTICE_ROUTES``), the time a deferred notice waits for
     [ms], and a note for the audit trail."""
     rank = SEVERITIES.index
-    if cause is not None and cause.state in OPEN_STATES and int(cause.opened_ms) <= at:
+    if cause is not None and _open_at(cause, at):
         note = f"symptom of incident {int(cause.id)} ({cause.kind})"
         if change == "resolved":
             return "absorb", None, note

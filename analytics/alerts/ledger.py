@@ -74,7 +74,7 @@ class Ledger:
         severity = SEVERITIES[sev]
         ev = records.jsonable(ev)
         before = None
-        if change == "opened" and incidents.continues(self.conn, st.get("alert_id")):
+        if change == "opened" and incidents.continues(self.conn, st.get("alert_id"), at):
             change = "reopened"  # a symptom back while its cause is still open: the same one
         if change == "opened":
             alert_id = records.insert_alert(

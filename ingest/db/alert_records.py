@@ -35,6 +35,7 @@ __all__ = [
     "MAINTENANCE_LIST_LIMIT",
     "NOTICE_ROUTES",
     "OPEN_STATES",
+    "absorb_notices",
     "acknowledge_alert",
     "active_maintenance",
     "alert_by_id",
@@ -62,6 +63,7 @@ __all__ = [
     "set_incident",
     "store_policy",
     "symptoms_by_incident",
+    "unsent_notices",
     "update_alert",
     "write_progress",
 ]
@@ -314,42 +316,53 @@ def set_incident(conn: Connection, alert_id: int, incident_id: int) -> None:
 
 
 def attach_symptoms(
-    conn: Connection,
-    cause_id: int,
-    device_id: str,
-    kinds: Sequence[str],
-    since_ms: int,
-    opened_ms: int,
-) -> list[int]:
+    conn: Connection, cause_id: int, device_id: str, kinds: Sequence[str], since_ms: int
+) -> list[Any]:
     """Attach the device's alerts of ``kinds`` that belong to no incident and are open or
-    resolved at or after ``since_ms`` [ms] to the incident of ``cause_id``, opened at
-    ``opened_ms`` [ms]. Their notices of resolutions and reopenings not yet sent and from
-    after the cause opened stay on record only: the incident speaks for them. Returns the
-    ids attached."""
-    a, n = alerts, notifications
-    ids = [
-        int(i)
-        for i in conn.execute(
-            sa.select(a.c.id).where(
+    resolved at or after ``since_ms`` [ms] to the incident of ``cause_id``. Returns them as
+    they were before (id, kind, opened_ms, severity)."""
+    a = alerts
+    found = list(
+        conn.execute(
+            sa.select(a.c.id, a.c.kind, a.c.opened_ms, a.c.severity).where(
                 a.c.device_id == device_id, a.c.kind.in_(list(kinds)), a.c.id != cause_id,
                 a.c.incident_id.is_(None),
                 sa.or_(a.c.state.in_(OPEN_STATES), a.c.resolved_ms >= since_ms),
             )
-        ).scalars()
-    ]  # fmt: skip
-    if not ids:
+        ).fetchall()
+    )  # fmt: skip
+    if not found:
         return []
+    ids = [int(r.id) for r in found]
     conn.execute(a.update().where(a.c.id.in_(ids)).values(incident_id=cause_id))
     conn.execute(a.update().where(a.c.id == cause_id).values(incident_id=cause_id))
-    conn.execute(
-        n.update()
+    return found
+
+
+def unsent_notices(conn: Connection, alert_ids: Sequence[int], after_ms: int) -> list[Any]:
+    """Notices of ``alert_ids`` not yet sent (pending or deferred) with their event at or
+    after ``after_ms`` [ms], in event order: id, kind, event and the alert's severity."""
+    n = notifications
+    rows = conn.execute(
+        sa.select(n.c.id, n.c.kind, n.c.event, n.c.payload)
         .where(
-            n.c.alert_id.in_(ids), n.c.state.in_(("pending", "deferred")),
-            n.c.event.in_(("alert.resolved", "alert.reopened")), n.c.event_ms >= opened_ms,
+            n.c.alert_id.in_(list(alert_ids)), n.c.state.in_(("pending", "deferred")),
+            n.c.event_ms >= after_ms,
         )
-        .values(state="absorbed", mqtt_state="absorbed")
-    )  # fmt: skip
-    return ids
+        .order_by(n.c.event_ms, n.c.id)
+    ).fetchall()  # fmt: skip
+    return [(int(r.id), r.kind, r.event, r.payload["alert"]["severity"]) for r in rows]
+
+
+def absorb_notices(conn: Connection, notice_ids: Sequence[int]) -> None:
+    """Keep these notices on record only: they are never sent."""
+    if notice_ids:
+        n = notifications
+        conn.execute(
+            n.update()
+            .where(n.c.id.in_(list(notice_ids)))
+            .values(state="absorbed", mqtt_state="absorbed")
+        )
 
 
 def incident_members(conn: Connection, incident_id: int, exclude_id: int) -> list[Any]:

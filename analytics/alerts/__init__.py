@@ -4,7 +4,9 @@ Each rule (``rules/``, one module per kind, registered in ``rules.RULES``) is a 
 from readings (or stored estimates) to a per-sample observation: is the condition present,
 how bad (warning or critical), and the value whose peak matters. A small state machine per
 device and kind (``machine``) turns observations into alerts, and the ledger (``ledger``)
-records each change with its audit row and its notification in the same transaction.
+records each change with its audit row and its notification in the same transaction;
+``incidents`` groups symptom alerts under the alert of their cause and decides which changes
+are sent (an incident is told when it opens, worsens and resolves).
 ``engine.evaluate`` runs it all per device; ``summaries`` words each change; ``policy`` holds
 every threshold with its source; ``actions`` holds what people do with alerts.
 

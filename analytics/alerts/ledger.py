@@ -1,5 +1,6 @@
 """The record of alert changes: alert rows, their audit trail and the outbox notices, written
-on the caller's connection so that a change and its notice commit together."""
+on the caller's connection so that a change and its notice commit together. Each change is
+brought into its incident and its notice routed as ``incidents`` says."""
 
 from __future__ import annotations
 
@@ -8,6 +9,8 @@ from typing import Any
 
 from sqlalchemy.engine import Connection
 
+from tecfleet.analytics.alerts import incidents
+from tecfleet.analytics.alerts.incidents import Windows
 from tecfleet.analytics.alerts.kinds import SEVERITIES
 from tecfleet.ingest.db import alert_records as records
 
@@ -63,20 +66,26 @@ class Ledger:
         st: dict[str, Any],
         summary: str,
         ev: dict[str, Any],
+        windows: Windows | None = None,
     ) -> None:
         """Record ``change`` (opened, reopened, escalated, resolved, or ``updated``: the
-        evidence only) of the alert of ``kind`` whose lifecycle state is ``st``."""
+        evidence only) of the alert of ``kind`` whose lifecycle state is ``st``; ``windows``
+        are the times its notice is judged by (see ``incidents.notice_route``)."""
         severity = SEVERITIES[sev]
         ev = records.jsonable(ev)
+        before = None
+        if change == "opened" and incidents.continues(self.conn, st.get("alert_id"), at):
+            change = "reopened"  # a symptom back while its cause is still open: the same one
         if change == "opened":
             alert_id = records.insert_alert(
                 self.conn, self.device.device_id, kind, severity, at, summary, ev
             )
             st["alert_id"] = alert_id
-            self._audit(alert_id, at, None, "open", severity, "condition present")
+            old, new, note = None, "open", "condition present"
         else:
             alert_id = int(st["alert_id"])
-            old = records.alert_state(self.conn, alert_id)
+            before = records.alert_row(self.conn, alert_id)
+            old, new, note = before.state, before.state, change
             values: dict[str, Any] = {"updated_ms": at, "summary": summary, "evidence": ev}
             if change == "reopened":
                 values.update(state="open", resolved_ms=None, severity=severity)
@@ -86,15 +95,18 @@ class Ledger:
                 new = "resolved"
             elif change == "escalated":
                 values.update(severity=severity)
-                new = old
-            else:  # evidence update only
-                records.update_alert(self.conn, alert_id, change, values)
-                return
             records.update_alert(self.conn, alert_id, change, values)
-            self._audit(alert_id, at, old, new, severity, change)
+            if change == "updated":
+                return  # evidence only: no audit row, no notice
+        w = windows or Windows()
+        row = records.alert_row(self.conn, alert_id)
+        cause = incidents.link(self.conn, row, change, at, w.link_ms)
+        route, until, why = incidents.notice_route(self.conn, row, before, change, at, cause, w)
+        self._audit(alert_id, at, old, new, severity, note if why is None else f"{note}; {why}")
         records.insert_notice(
-            self.conn, alert_id, f"alert.{change}", at, self.device.site, self._held_until(at)
-        )
+            self.conn, alert_id, f"alert.{change}", at, self.device.site, self._held_until(at),
+            route=route, defer_until_ms=until,
+        )  # fmt: skip
         self.changes.append(
             AlertChange(alert_id, self.device.device_id, kind, change, severity, at, summary, ev)
         )

@@ -6,7 +6,7 @@
 * severity only rises within a spell (no flapping between warning and critical);
 * one alert per device and kind is open at a time; a condition returning within
   ``reopen_window_s`` of resolving (``estimate_reopen_window_s`` for the trend kinds) reopens
-  the same alert and counts the reopen.
+  the same alert and counts the reopen (what that does to its notices: see ``incidents``).
 
 The lifecycle state is a JSON dict carried between calls, so the same history gives the same
 alerts whether it arrives live or as a backfill.
@@ -14,12 +14,14 @@ alerts whether it arrives live or as a backfill.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
 from tecfleet.analytics.alerts.constants import MS_MIN
+from tecfleet.analytics.alerts.incidents import Windows
 from tecfleet.analytics.alerts.ledger import Ledger
 from tecfleet.analytics.alerts.observations import Observations
 from tecfleet.analytics.alerts.policy import AlertPolicy
@@ -31,17 +33,28 @@ __all__ = ["Timing", "run_machine", "timing_for"]
 @dataclass(frozen=True)
 class Timing:
     """Delays of one kind's lifecycle [ms]: to open, to resolve once clear, to reopen rather
-    than open anew, to turn critical (None: never by time) and the entry bridge."""
+    than open anew, to turn critical (None: never by time), the entry bridge, and the window
+    in which a symptom joins its cause's incident."""
 
     open_after_ms: int
     clear_after_ms: int
     reopen_within_ms: int
     critical_after_ms: int | None = None
     bridge_ms: int = 0
+    incident_link_ms: int = 0
+
+    @property
+    def windows(self) -> Windows:
+        """The times a change's notice is judged by."""
+        return Windows(self.reopen_within_ms, self.incident_link_ms)
 
 
 def timing_for(kind: str, p: AlertPolicy) -> Timing:
     """The lifecycle delays of ``kind`` under policy ``p``."""
+    return dataclasses.replace(_delays(kind, p), incident_link_ms=int(p.incident_link_s * 1000))
+
+
+def _delays(kind: str, p: AlertPolicy) -> Timing:
     s = 1000
     clear = int(p.clear_s * s)
     reopen = int(p.reopen_window_s * s)
@@ -107,7 +120,7 @@ def run_machine(
                 if ep["sev"] > int(st.get("sev", 1)):
                     st["sev"] = ep["sev"]
                     summ, ev = describe(kind, ep, {**context(t), **st.get("detail", {})}, False)
-                    ledger.apply(kind, "escalated", t, ep["sev"], st, summ, ev)
+                    ledger.apply(kind, "escalated", t, ep["sev"], st, summ, ev, timing.windows)
                 else:
                     touched = True
             elif ep["active_ms"] >= timing.open_after_ms:
@@ -120,9 +133,9 @@ def run_machine(
                     and resolved_at is not None
                     and (ep["start"] - resolved_at <= reopen_ms)
                 ):
-                    ledger.apply(kind, "reopened", t, ep["sev"], st, summ, ev)
+                    ledger.apply(kind, "reopened", t, ep["sev"], st, summ, ev, timing.windows)
                 else:
-                    ledger.apply(kind, "opened", t, ep["sev"], st, summ, ev)
+                    ledger.apply(kind, "opened", t, ep["sev"], st, summ, ev, timing.windows)
                 touched = False
         else:
             if not is_open:
@@ -137,7 +150,9 @@ def run_machine(
                 # the spell ended when the condition cleared, not when the alert resolved
                 ep["end"] = int(st["clear"])
                 summ, ev = describe(kind, ep, {**context(t), **st.get("detail", {})}, True)
-                ledger.apply(kind, "resolved", t, int(st.get("sev", 1)), st, summ, ev)
+                ledger.apply(
+                    kind, "resolved", t, int(st.get("sev", 1)), st, summ, ev, timing.windows
+                )
                 st.update(open=False, clear=None, ep=None, resolved_at=t, sev=0)
                 touched = False
     st["last_t"] = last_t

@@ -176,13 +176,20 @@ class _Thresholds:
     #: no source).
     clear_s: float = 1800.0
     estimate_clear_s: float = 86_400.0
-    #: A condition back within this time reopens the resolved alert [s] (common practice, no
-    #: source).
-    reopen_window_s: float = 6 * 3600.0
+    #: A condition back within this time reopens the resolved alert [s]: a day and a half, so
+    #: that what comes back every afternoon (a hot side on a warm room's peak, a cabinet that
+    #: leaves its band at the day's warmest hour) is one alert that reopens, whatever hour the
+    #: spell ends, and not a new alert a day (common practice, no source).
+    reopen_window_s: float = 36 * 3600.0
     #: The same for the alerts judged on the diagnostics' trends (wear, heat leak, hot side,
     #: capacity): their figures move a day at a time, and a leak or a worn module that dips
     #: under its threshold for a day is still the same fault (common practice, no source) [s].
     estimate_reopen_window_s: float = 7 * 86_400.0
+    #: A symptom alert joins the incident of a cause alert (see tecfleet.analytics.alerts
+    #: .incidents) that is open or resolved less than this long before it opened: a day, the
+    #: span of the daily fits the cause alerts are judged on, so the cause's figures lag the
+    #: readings by up to that much (common practice, no source) [s].
+    incident_link_s: float = 86_400.0
     #: Grouped notice when at least this many devices of one site open one kind within the
     #: window [s] (a site power cut); common practice, no source.
     group_min_devices: int = 3

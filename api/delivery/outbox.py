@@ -1,7 +1,10 @@
 """Draining the ``notifications`` outbox.
 
 The alert ledger writes one row in ``notifications`` in the same transaction as each alert
-change; :class:`Notifier` (a thread) drains it, so a notice survives a restart. Every round
+change; :class:`Notifier` (a thread) drains it, so a notice survives a restart. Only
+``pending`` rows go out: the ledger keeps the changes of an incident's symptoms as ``absorbed``
+rows (on record, never sent) and a recurring alert's resolution as ``deferred`` until it has
+stayed away (see tecfleet.analytics.alerts.incidents). Every round
 fans new notices out to one delivery per webhook, publishes alert objects to MQTT and attempts
 the deliveries that are due.
 

@@ -20,14 +20,18 @@ def alerts_list(
     device: str | None = None,
     state: Annotated[str | None, Query(pattern="^(open|acknowledged|resolved)$")] = None,
     kind: str | None = None,
+    incident: Annotated[
+        int | None,
+        Query(ge=1, description="only the alerts of the incident whose cause has this id"),
+    ] = None,
     limit: LogLimit = 100,
     cursor: str | None = None,
 ) -> dict[str, Any]:
-    """Alerts, newest first."""
+    """Alerts, newest first; the cause of an incident lists its symptoms."""
     if kind is not None and not alerts.known_kind(kind):
         raise unprocessable("query", "kind", "unknown kind")
     items, next_cursor = alerts.list_alerts(
-        engine, limit, cursor, device=device, state=state, kind=kind
+        engine, limit, cursor, device=device, state=state, kind=kind, incident=incident
     )
     return {"items": items, "next_cursor": next_cursor}
 

@@ -5,6 +5,7 @@ from tecfleet.api.schemas.alerts import (
     AlertDetailOut,
     AlertOut,
     AuditEntryOut,
+    SymptomOut,
     alert_object,
 )
 from tecfleet.api.schemas.common import (
@@ -49,6 +50,7 @@ __all__ = [
     "ReadingOut",
     "ReadyOut",
     "RejectOut",
+    "SymptomOut",
     "WebhookCreatedOut",
     "WebhookIn",
     "WebhookOut",

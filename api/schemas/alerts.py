@@ -10,6 +10,13 @@ from pydantic import BaseModel, ConfigDict, Field
 from tecfleet.api.timefmt import ms_to_rfc3339
 
 
+class SymptomOut(BaseModel):
+    """A symptom alert of an incident: its id and kind."""
+
+    id: int
+    kind: str
+
+
 class AlertOut(BaseModel):
     """An alert as the contract names it (times in RFC 3339 UTC)."""
 
@@ -24,6 +31,15 @@ class AlertOut(BaseModel):
     summary: str
     evidence: dict[str, Any]
     reopen_count: int
+    incident_id: int | None = Field(
+        None,
+        description="id of the cause alert of the incident this alert belongs to (the "
+        "alert's own id on the cause); null for an alert that stands alone",
+    )
+    symptoms: list[SymptomOut] = Field(
+        default_factory=list,
+        description="on the cause of an incident, the alerts its physics explains",
+    )
 
 
 class AuditEntryOut(BaseModel):
@@ -60,4 +76,6 @@ def alert_object(alert: Mapping[str, Any]) -> dict[str, Any]:
         "summary": alert["summary"],
         "evidence": alert["evidence"],
         "reopen_count": alert.get("reopen_count", 0),
+        "incident_id": alert.get("incident_id"),
+        "symptoms": list(alert.get("symptoms") or []),
     }

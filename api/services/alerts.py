@@ -27,11 +27,22 @@ def list_alerts(
     device: str | None = None,
     state: str | None = None,
     kind: str | None = None,
+    incident: int | None = None,
 ) -> tuple[list[AlertOut], str | None]:
-    """Alerts newest first, filtered by device, state and kind."""
+    """Alerts newest first, filtered by device, state, kind and incident (the cause's id);
+    a cause carries its symptoms."""
     before = int_cursor(cursor)
-    rows = alert_records.alert_page(engine, limit, before, device=device, state=state, kind=kind)
-    items = [AlertOut(**alert_object(alert_records.alert_row_dict(r))) for r in rows[:limit]]
+    rows = alert_records.alert_page(
+        engine, limit, before, device=device, state=state, kind=kind, incident=incident
+    )
+    page = rows[:limit]
+    symptoms = alert_records.incident_symptoms(
+        engine, [int(r.id) for r in page if r.incident_id == r.id]
+    )
+    items = [
+        AlertOut(**alert_object(alert_records.alert_row_dict(r, symptoms.get(int(r.id)))))
+        for r in page
+    ]
     return items, next_cursor(rows, limit, "id")
 
 
@@ -40,7 +51,8 @@ def get_alert(engine: Engine, alert_id: int) -> AlertDetailOut:
     row = alert_records.alert_by_id(engine, alert_id)
     if row is None:
         raise NotFoundError(f"unknown alert {alert_id}")
-    out: dict[str, Any] = alert_object(alert_records.alert_row_dict(row))
+    symptoms = alert_records.incident_symptoms(engine, [alert_id]).get(alert_id)
+    out: dict[str, Any] = alert_object(alert_records.alert_row_dict(row, symptoms))
     out["history"] = [
         {**{k: v for k, v in h.items() if k != "at_ms"}, "at": ms_to_rfc3339(h["at_ms"])}
         for h in rules.audit_trail(engine, alert_id)

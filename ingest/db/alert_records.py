@@ -34,15 +34,22 @@ from tecfleet.ingest.errors import NotFoundError, StoreError
 
 __all__ = [
     "MAINTENANCE_LIST_LIMIT",
+    "NOTICE_ROUTES",
     "OPEN_STATES",
+    "absorb_notices",
     "acknowledge_alert",
     "active_maintenance",
     "alert_by_id",
     "alert_page",
+    "alert_row",
     "alert_row_dict",
-    "alert_state",
+    "attach_symptoms",
     "audit_rows",
+    "cancel_deferred",
     "devices_to_evaluate",
+    "find_cause",
+    "incident_members",
+    "incident_symptoms",
     "insert_alert",
     "insert_audit",
     "insert_maintenance",
@@ -54,13 +61,20 @@ __all__ = [
     "read_estimates",
     "read_progress",
     "release_held",
+    "set_incident",
     "store_policy",
+    "symptoms_by_incident",
+    "unsent_notices",
     "update_alert",
     "write_progress",
 ]
 
 #: Alert states in which an alert is still live.
 OPEN_STATES = ("open", "acknowledged")
+#: How an alert change reaches the outbox: ``send`` (pending, or held by maintenance),
+#: ``absorb`` (kept for the record, never sent: a symptom inside an incident already told),
+#: ``defer`` (sent at ``defer_until_ms`` unless the alert has reopened by then).
+NOTICE_ROUTES = ("send", "absorb", "defer")
 
 
 def jsonable(x: Any) -> Any:
@@ -76,8 +90,9 @@ def jsonable(x: Any) -> Any:
     return x
 
 
-def alert_row_dict(row: Any) -> dict[str, Any]:
-    """An ``alerts`` row as a dict with millisecond times (the API formats them)."""
+def alert_row_dict(row: Any, symptoms: list[dict[str, Any]] | None = None) -> dict[str, Any]:
+    """An ``alerts`` row as a dict with millisecond times (the API formats them); on the
+    cause of an incident, ``symptoms`` lists the alerts it explains (id and kind)."""
     return {
         "id": int(row.id),
         "device_id": row.device_id,
@@ -90,6 +105,8 @@ def alert_row_dict(row: Any) -> dict[str, Any]:
         "summary": row.summary,
         "evidence": row.evidence,
         "reopen_count": int(row.reopen_count or 0),
+        "incident_id": None if row.incident_id is None else int(row.incident_id),
+        "symptoms": list(symptoms or []),
     }
 
 
@@ -200,12 +217,6 @@ def insert_alert(
     )  # fmt: skip
 
 
-def alert_state(conn: Connection, alert_id: int) -> str:
-    """The stored state of one alert."""
-    a = alerts
-    return str(conn.execute(sa.select(a.c.state).where(a.c.id == alert_id)).scalar_one())
-
-
 def update_alert(conn: Connection, alert_id: int, change: str, values: Mapping[str, Any]) -> None:
     """Write ``values`` to one alert; a ``reopened`` change also counts the reopen."""
     a = alerts
@@ -235,11 +246,30 @@ def insert_audit(
 
 
 def insert_notice(
-    conn: Connection, alert_id: int, event: str, at_ms: int, site: str | None, hold: int | None
+    conn: Connection,
+    alert_id: int,
+    event: str,
+    at_ms: int,
+    site: str | None,
+    hold: int | None,
+    *,
+    route: str = "send",
+    defer_until_ms: int | None = None,
 ) -> None:
-    """An outbox notice of ``event`` carrying the alert as stored now; ``hold`` [ms] holds
-    it until a maintenance window ends."""
-    row = conn.execute(sa.select(alerts).where(alerts.c.id == alert_id)).one()
+    """An outbox notice of ``event`` carrying the alert as stored now (with its symptoms on
+    the cause of an incident); ``hold`` [ms] holds it until a maintenance window ends;
+    ``route`` (see NOTICE_ROUTES) says whether it goes out, stays on record only, or waits
+    until ``defer_until_ms`` [ms]."""
+    if route not in NOTICE_ROUTES:
+        raise StoreError(f"unknown notice route {route!r}")
+    row = alert_row(conn, alert_id)
+    symptoms = symptoms_by_incident(conn, [alert_id]).get(alert_id)
+    if route == "absorb":
+        state, until = "absorbed", None
+    elif route == "defer":
+        state, until = "deferred", max(int(defer_until_ms or at_ms), hold or 0)
+    else:
+        state, until = ("held", hold) if hold is not None else ("pending", None)
     conn.execute(
         notifications.insert().values(
             created_ms=now_ms(),
@@ -249,12 +279,144 @@ def insert_notice(
             device_id=row.device_id,
             site=site,
             kind=row.kind,
-            payload=jsonable({"alert": alert_row_dict(row), "change": event}),
-            state="held" if hold is not None else "pending",
-            hold_until_ms=hold,
-            mqtt_state="held" if hold is not None else "pending",
+            payload=jsonable({"alert": alert_row_dict(row, symptoms), "change": event}),
+            state=state,
+            hold_until_ms=until,
+            mqtt_state=state,
         )
     )
+
+
+def alert_row(conn: Connection, alert_id: int) -> Row[Any]:
+    """One stored alert."""
+    return conn.execute(sa.select(alerts).where(alerts.c.id == alert_id)).one()
+
+
+# ---------------------------------------------------------------------------
+# Incidents: a cause alert and the symptom alerts it explains (``alerts.incident_id``)
+# ---------------------------------------------------------------------------
+
+
+def find_cause(
+    conn: Connection, device_id: str, kinds: Sequence[str], since_ms: int
+) -> Row[Any] | None:
+    """The device's alert of one of ``kinds`` that is open or resolved at or after
+    ``since_ms`` [ms]: an open one first, then the most recently opened."""
+    a = alerts
+    live = a.c.state.in_(OPEN_STATES)
+    return conn.execute(
+        sa.select(a)
+        .where(
+            a.c.device_id == device_id,
+            a.c.kind.in_(list(kinds)),
+            sa.or_(live, a.c.resolved_ms >= since_ms),
+        )
+        .order_by(sa.case((live, 0), else_=1), a.c.opened_ms.desc(), a.c.id.desc())
+        .limit(1)
+    ).first()
+
+
+def set_incident(conn: Connection, alert_id: int, incident_id: int) -> None:
+    """Make ``alert_id`` part of the incident of cause ``incident_id`` (the cause too)."""
+    a = alerts
+    conn.execute(a.update().where(a.c.id == alert_id).values(incident_id=incident_id))
+    conn.execute(
+        a.update().where(a.c.id == incident_id, a.c.incident_id.is_(None))
+        .values(incident_id=incident_id)
+    )  # fmt: skip
+
+
+def attach_symptoms(
+    conn: Connection, cause_id: int, device_id: str, kinds: Sequence[str], since_ms: int
+) -> list[Any]:
+    """Attach the device's alerts of ``kinds`` that belong to no incident and are open or
+    resolved at or after ``since_ms`` [ms] to the incident of ``cause_id``. Returns them as
+    they were before (id, kind, opened_ms, severity)."""
+    a = alerts
+    found = list(
+        conn.execute(
+            sa.select(a.c.id, a.c.kind, a.c.opened_ms, a.c.severity).where(
+                a.c.device_id == device_id, a.c.kind.in_(list(kinds)), a.c.id != cause_id,
+                a.c.incident_id.is_(None),
+                sa.or_(a.c.state.in_(OPEN_STATES), a.c.resolved_ms >= since_ms),
+            )
+        ).fetchall()
+    )  # fmt: skip
+    if not found:
+        return []
+    ids = [int(r.id) for r in found]
+    conn.execute(a.update().where(a.c.id.in_(ids)).values(incident_id=cause_id))
+    conn.execute(a.update().where(a.c.id == cause_id).values(incident_id=cause_id))
+    return found
+
+
+def unsent_notices(conn: Connection, alert_ids: Sequence[int], after_ms: int) -> list[Any]:
+    """Notices of ``alert_ids`` not yet sent (pending or deferred) with their event at or
+    after ``after_ms`` [ms], in event order: id, kind, event and the alert's severity."""
+    n = notifications
+    rows = conn.execute(
+        sa.select(n.c.id, n.c.kind, n.c.event, n.c.payload)
+        .where(
+            n.c.alert_id.in_(list(alert_ids)), n.c.state.in_(("pending", "deferred")),
+            n.c.event_ms >= after_ms,
+        )
+        .order_by(n.c.event_ms, n.c.id)
+    ).fetchall()  # fmt: skip
+    return [(int(r.id), r.kind, r.event, r.payload["alert"]["severity"]) for r in rows]
+
+
+def absorb_notices(conn: Connection, notice_ids: Sequence[int]) -> None:
+    """Keep these notices on record only: they are never sent."""
+    if notice_ids:
+        n = notifications
+        conn.execute(
+            n.update()
+            .where(n.c.id.in_(list(notice_ids)))
+            .values(state="absorbed", mqtt_state="absorbed")
+        )
+
+
+def incident_members(conn: Connection, incident_id: int, exclude_id: int) -> list[Any]:
+    """Kind and severity of the alerts of one incident (cause and symptoms) but one."""
+    a = alerts
+    return list(
+        conn.execute(
+            sa.select(a.c.kind, a.c.severity).where(
+                sa.or_(a.c.incident_id == incident_id, a.c.id == incident_id),
+                a.c.id != exclude_id,
+            )
+        ).fetchall()
+    )
+
+
+def symptoms_by_incident(
+    conn: Connection, cause_ids: Sequence[int]
+) -> dict[int, list[dict[str, Any]]]:
+    """Per cause id, the symptom alerts of its incident (id and kind), oldest first."""
+    if not cause_ids:
+        return {}
+    a = alerts
+    rows = conn.execute(
+        sa.select(a.c.id, a.c.kind, a.c.incident_id)
+        .where(a.c.incident_id.in_(list(cause_ids)), a.c.id != a.c.incident_id)
+        .order_by(a.c.id)
+    ).fetchall()
+    out: dict[int, list[dict[str, Any]]] = {}
+    for r in rows:
+        out.setdefault(int(r.incident_id), []).append({"id": int(r.id), "kind": r.kind})
+    return out
+
+
+def cancel_deferred(conn: Connection, alert_id: int) -> bool:
+    """The alert has come back: its resolution notice still waiting is never sent. Returns
+    whether there was one (the people told still see the alert open)."""
+    n = notifications
+    done = conn.execute(
+        n.update()
+        .where(n.c.alert_id == alert_id, n.c.state == "deferred")
+        .values(state="suppressed", mqtt_state="suppressed")
+    )
+    return bool(done.rowcount)
 
 
 def active_maintenance(conn: Connection, device_id: str, site: str | None) -> list[tuple[int, int]]:
@@ -268,7 +430,9 @@ def active_maintenance(conn: Connection, device_id: str, site: str | None) -> li
 
 
 def release_held(conn: Connection, device_id: str, reference_ms: int) -> None:
-    """Maintenance over: held notices of alerts still open go out once, the rest are dropped."""
+    """Maintenance over: held notices of alerts still open go out once, the rest are dropped.
+    Deferred resolutions whose wait is over go out if the alert is still resolved."""
+    _release_deferred(conn, device_id, reference_ms)
     n = notifications
     held = conn.execute(
         sa.select(n.c.id, n.c.alert_id, n.c.hold_until_ms, n.c.site, n.c.kind)
@@ -289,6 +453,21 @@ def release_held(conn: Connection, device_id: str, reference_ms: int) -> None:
         row = conn.execute(sa.select(alerts).where(alerts.c.id == alert_id)).one()
         if row.state in OPEN_STATES:
             _release_one(conn, row, device_id, rs)
+
+
+def _release_deferred(conn: Connection, device_id: str, reference_ms: int) -> None:
+    n, a = notifications, alerts
+    due = conn.execute(
+        sa.select(n.c.id, a.c.state)
+        .join(a, a.c.id == n.c.alert_id)
+        .where(
+            n.c.device_id == device_id, n.c.state == "deferred",
+            n.c.hold_until_ms <= reference_ms,
+        )
+    ).fetchall()  # fmt: skip
+    for r in due:
+        state = "suppressed" if r.state in OPEN_STATES else "pending"
+        conn.execute(n.update().where(n.c.id == r.id).values(state=state, mqtt_state=state))
 
 
 def _release_one(conn: Connection, row: Row[Any], device_id: str, held: list[Any]) -> None:
@@ -329,7 +508,7 @@ def acknowledge_alert(
                 raise NotFoundError(f"unknown alert {alert_id}")
             if row.state == "open":
                 row = _acknowledge_open(conn, row, actor, note, now)
-            return alert_row_dict(row)
+            return alert_row_dict(row, symptoms_by_incident(conn, [alert_id]).get(alert_id))
     except SQLAlchemyError as exc:
         raise StoreError(f"could not acknowledge alert {alert_id}: {exc}") from exc
 
@@ -433,8 +612,10 @@ def alert_page(
     device: str | None = None,
     state: str | None = None,
     kind: str | None = None,
+    incident: int | None = None,
 ) -> list[Row[Any]]:
-    """Up to ``limit + 1`` alerts, newest first, with ids below ``before_id``, filtered."""
+    """Up to ``limit + 1`` alerts, newest first, with ids below ``before_id``, filtered
+    (``incident``: the alerts of the incident whose cause has that id)."""
     a = alerts
     stmt = sa.select(a).order_by(a.c.id.desc()).limit(limit + 1)
     if before_id is not None:
@@ -445,8 +626,16 @@ def alert_page(
         stmt = stmt.where(a.c.state == state)
     if kind is not None:
         stmt = stmt.where(a.c.kind == kind)
+    if incident is not None:
+        stmt = stmt.where(a.c.incident_id == incident)
     with engine.connect() as conn:
         return list(conn.execute(stmt).fetchall())
+
+
+def incident_symptoms(engine: Engine, cause_ids: Sequence[int]) -> dict[int, list[dict[str, Any]]]:
+    """Per cause id, the symptoms of its incident (see ``symptoms_by_incident``)."""
+    with engine.connect() as conn:
+        return symptoms_by_incident(conn, cause_ids)
 
 
 def alert_by_id(engine: Engine, alert_id: int) -> Row[Any] | None:

@@ -109,6 +109,8 @@ alerts = sa.Table(
     sa.Column("summary", sa.Text, nullable=False),
     sa.Column("evidence", sa.JSON, nullable=False),
     sa.Column("reopen_count", sa.Integer, nullable=False, server_default="0"),
+    # the cause alert of the incident this alert belongs to (migration 0004); NULL: alone
+    sa.Column("incident_id", sa.BigInteger().with_variant(sa.Integer, "sqlite"), index=True),
     sa.Index("ix_alerts_device_id_kind_state", "device_id", "kind", "state"),
 )
 

@@ -15,6 +15,7 @@ from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
+from tests.analytics.alerts.cabinet import cabinet_series
 
 T0 = 1_790_000_000_000
 MIN = 60_000
@@ -128,3 +129,33 @@ def test_a_device_shows_its_commissioning(engine: sa.Engine) -> None:
     body = {"cabinet": {"design_ambient_c": 90.0}}
     put = client.put("/v1/devices/new-1", json=body, headers=key(engine, "write"))
     assert put.status_code == 422
+
+
+def test_an_incident_lists_its_symptoms_and_filters_by_its_cause(engine: sa.Engine) -> None:
+    # a cabinet leaking heat (UA up 40 %, over the 35 % warning: common practice, no source)
+    # that then leaves its band: the leak explains the excursion (UA·ΔT more heat in)
+    db.store_batch(engine, cabinet_series(2 * 1440, hot=(1500, 1700)))
+    six_h = 6 * 3_600_000
+    with engine.begin() as conn:
+        for k in range(1, 8):
+            conn.execute(
+                db.estimates.insert().values(
+                    device_id="cab-1", key="cabinet.ua.change_pct", at_ms=T0 + k * six_h,
+                    value=40.0, n=10, reliable=True,
+                )
+            )  # fmt: skip
+    changes = alerts.evaluate(engine)
+    assert {c.kind for c in changes} == {"heat_leak", "excursion"}
+    client = TestClient(create_app(engine))
+    read = key(engine, "read")
+    items = client.get("/v1/alerts?device=cab-1", headers=read).json()["items"]
+    cause = next(a for a in items if a["kind"] == "heat_leak")
+    symptom = next(a for a in items if a["kind"] == "excursion")
+    assert cause["incident_id"] == cause["id"] and symptom["incident_id"] == cause["id"]
+    assert cause["symptoms"] == [{"id": symptom["id"], "kind": "excursion"}]
+    assert symptom["symptoms"] == []
+    grouped = client.get(f"/v1/alerts?incident={cause['id']}", headers=read).json()["items"]
+    assert sorted(a["id"] for a in grouped) == sorted([cause["id"], symptom["id"]])
+    detail = client.get(f"/v1/alerts/{cause['id']}", headers=read).json()
+    assert detail["symptoms"] == [{"id": symptom["id"], "kind": "excursion"}]
+    assert client.get("/v1/alerts?incident=0", headers=read).status_code == 422

@@ -31,11 +31,15 @@ def upgrade() -> None:
 
 def downgrade() -> None:
     readings = sa.table("readings", *(sa.column(name) for name in _FACES))
-    without = op.get_bind().execute(
-        sa.select(sa.func.count())
-        .select_from(readings)
-        .where(sa.or_(*(readings.c[name].is_(None) for name in _FACES)))
-    ).scalar()
+    without = (
+        op.get_bind()
+        .execute(
+            sa.select(sa.func.count())
+            .select_from(readings)
+            .where(sa.or_(*(readings.c[name].is_(None) for name in _FACES)))
+        )
+        .scalar()
+    )
     if without:
         # Making the columns NOT NULL again would have to drop these readings: refuse instead.
         raise StoreError(

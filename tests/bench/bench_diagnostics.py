@@ -171,6 +171,7 @@ class UnitScore:
     reliable: bool
     rel_stderr: float  # stated standard error / truth [-]
     target: float  # [-] (inf: no target for this sensor set)
+    reason: str | None = None  # why no value was served, where none was
 
     @property
     def within(self) -> bool:
@@ -219,12 +220,18 @@ def accuracy_scores(
                 for name, key, tkey in ACCURACY_CHECKS:
                     tol = targets.get(name, math.inf)
                     got = _latest(engine, d.device_id, key)
+                    reason = None
                     if got is None:
                         rel, reliable, se = math.inf, False, math.inf
+                        reason = (
+                            runner.latest_health(engine, d.device_id).get(key, {}).get("reason")
+                        )
                     else:
                         rel, reliable, se = got[0] / tp[tkey] - 1.0, got[1], got[2] / tp[tkey]
                     mode = f"{d.control}/{d.off_voltage}"
-                    out.append(UnitScore(seed, d.device_id, mode, name, rel, reliable, se, tol))
+                    out.append(
+                        UnitScore(seed, d.device_id, mode, name, rel, reliable, se, tol, reason)
+                    )
             engine.dispose()
     return out
 
@@ -275,6 +282,13 @@ def part_accuracy(
     if missing:
         print("no value at the end (never estimated, or served as unknown with its reason):",
               missing)  # fmt: skip
+        reasons: dict[tuple[str, str], int] = {}
+        for u in scores:
+            if u.quantity == "R25" and not math.isfinite(u.rel_err):
+                why = u.reason or "no reason stored"
+                reasons[(u.mode, why)] = reasons.get((u.mode, why), 0) + 1
+        for (mode, why), count in sorted(reasons.items()):
+            print(f"  R25 of {count:3d} {mode:26} units: {why}")
     _target_summary(scores, sensors)
 
 

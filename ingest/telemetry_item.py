@@ -5,6 +5,10 @@ bismuth-telluride modules and of the sensors fitted to them), current 0..50 A (t
 single-stage modules are rated near 30 A), voltage -60..60 V (a 48 V supply with headroom;
 negative while the module is off and its Seebeck voltage floats), relative humidity 0..100 %.
 Timestamps must not be before 2000-01-01.
+
+The face probes (``t_cold``, ``t_hot``) are optional: a unit without such a probe leaves the
+field out. A face temperature that is sent is checked like every other temperature, and an
+explicit ``null`` is refused as before (a unit either has the probe or omits the field).
 """
 
 from __future__ import annotations
@@ -25,20 +29,28 @@ StrictFloat = Annotated[float, Strict(), Field(allow_inf_nan=False)]
 
 
 class TelemetryItem(BaseModel):
-    """One reading as published; temperatures in °C."""
+    """One reading as published; temperatures in °C; ``t_cold``/``t_hot`` None: no such probe."""
 
     model_config = ConfigDict(extra="ignore")
 
     ts: Any
     seq: Annotated[int, Strict(), Field(ge=0)] | None = None
     t_cabinet: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    t_cold: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    t_hot: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
+    t_cold: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)] | None = None
+    t_hot: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)] | None = None
     t_ambient: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
     current: Annotated[StrictFloat, Field(ge=I_MIN_A, le=I_MAX_A)]
     voltage: Annotated[StrictFloat, Field(ge=V_MIN_V, le=V_MAX_V)]
     rh: Annotated[StrictFloat, Field(ge=0.0, le=100.0)] | None = None
     door_open: Annotated[bool, Strict()] | None = None
+
+    @field_validator("t_cold", "t_hot", mode="before")
+    @classmethod
+    def _probe_sent_as_number(cls, value: Any) -> Any:
+        # Only a value that was sent reaches this: an absent probe keeps its default.
+        if value is None:
+            raise ValueError("Input should be a valid number; leave the field out without a probe")
+        return value
 
     @field_validator("ts")
     @classmethod

@@ -16,7 +16,13 @@ Modules, in the order the diagnosis runs:
 - :mod:`.estimates`, :mod:`.least_squares` - the estimate type, error propagation, fitting.
 """
 
-from .electrical import ElectricalFit, detect_floating_driver, fit_electrical, harman_steps
+from .electrical import (
+    ElectricalFit,
+    detect_floating_driver,
+    fit_electrical,
+    floating_from_voltage,
+    harman_steps,
+)
 from .estimates import Estimate, propagate
 from .hot_side import hot_side_resistance_ratio, hot_side_resistance_ratios
 from .options import DEFAULT_OPTIONS, TYPICAL_MODULE_ZT, DiagnosticsOptions
@@ -38,6 +44,7 @@ __all__ = [
     "fit_electrical",
     "fit_thermal",
     "flag_samples",
+    "floating_from_voltage",
     "harman_steps",
     "hot_side_resistance_ratio",
     "hot_side_resistance_ratios",

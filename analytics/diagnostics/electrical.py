@@ -21,7 +21,13 @@ from .estimates import BoolArray
 from .least_squares import ridge, trimmed_lstsq
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 
-__all__ = ["ElectricalFit", "detect_floating_driver", "fit_electrical", "harman_steps"]
+__all__ = [
+    "ElectricalFit",
+    "detect_floating_driver",
+    "fit_electrical",
+    "floating_from_voltage",
+    "harman_steps",
+]
 
 #: Smallest plausible module Seebeck coefficient [V/K]: a few couples at ~400 µV/K each.
 #: Open-circuit readings below this are taken as a driver that shorts or grounds the module
@@ -58,6 +64,31 @@ def detect_floating_driver(
     if sel.sum() < 5:
         return False
     return bool(np.median(v[sel] / dt[sel]) > MIN_FLOATING_SEEBECK)
+
+
+def floating_from_voltage(
+    voltage_off: FloatArray, *, options: DiagnosticsOptions = DEFAULT_OPTIONS
+) -> bool:
+    """Whether a module left off floats, judged on its voltage alone (no face temperatures).
+
+    A floating module shows V = S·ΔT (Harman 1958), which stays well away from zero while its
+    faces differ; a driver that shorts or grounds it reads within the offset of the voltage
+    reading. Decided on the median |V| over at least five off samples.
+
+    Parameters
+    ----------
+    voltage_off : Voltage of samples with the module off [V].
+    options : ``floating_min_voltage``, the median |V| above which it floats [V].
+
+    Returns
+    -------
+    True when the off voltage is that of an open module.
+    """
+    v = np.abs(np.asarray(voltage_off, dtype=np.float64))
+    v = v[np.isfinite(v)]
+    if v.size < 5:
+        return False
+    return bool(np.median(v) > options.floating_min_voltage)
 
 
 @dataclass(frozen=True)

@@ -27,6 +27,8 @@ class Estimate:
     n : Number of samples behind it [-].
     reliable : False when the data cannot support it (then ``note`` says why).
     note : Why it is unreliable, or how it was obtained, in words.
+    basis : What it rests on (the channels and the method), in words; None: the basis of
+        the estimates it is stored with.
     """
 
     value: float
@@ -34,6 +36,7 @@ class Estimate:
     n: int
     reliable: bool = True
     note: str | None = None
+    basis: str | None = None
 
 
 def propagate(

@@ -66,6 +66,11 @@ class DiagnosticsOptions:
     #: 10 mV converter [V] (common practice, no source). With the ΔT offset it sets the prior
     #: of the offset term of the offset-free S.
     voltage_offset: float = 0.01
+    #: Median |V| of off samples above which a unit without face probes is taken to let its
+    #: module float [V]: three offsets of the voltage reading, since a zero-volt driver reads
+    #: within its offset while an open module shows S·ΔT, tenths of a volt a few kelvin
+    #: across a 127-couple stack (common practice, no source).
+    floating_min_voltage: float = 0.03
 
     # --- sink balances (sinks.py) -------------------------------------------------------
     #: Segment length of the sink balances [s] (common practice, no source).

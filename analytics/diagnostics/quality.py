@@ -61,9 +61,13 @@ def flag_samples(
     door_open: BoolArray | None = None,
     *,
     breaks: BoolArray | None = None,
+    probed: tuple[bool, bool] = (True, True),
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> SampleFlags:
     """Sort samples into usable or left out (missing channel, sensor fault, door).
+
+    A face without a probe (``probed``) is no missing channel: its temperature is NaN where
+    nothing reconstructed it, and the fits that need it leave those samples out themselves.
 
     A sensor fault is a temperature outside -60..150 °C, a negative current, or a spike: a
     sample more than ``spike_k`` away from both neighbours, in the same direction, while the
@@ -81,6 +85,7 @@ def flag_samples(
     door_open : Door state per sample, optional [-].
     breaks : Samples whose successor must not be consulted (the last sample of an analysis
         step), so that flags never depend on readings after the step; optional [-].
+    probed : Whether the unit has a probe on its cold and on its hot face [-].
     options : ``on_current`` [A], ``settle_s`` [s], ``door_settle_s`` [s], ``spike_k`` [K].
 
     Returns
@@ -92,12 +97,16 @@ def flag_samples(
     temps = np.vstack([t_cabinet, t_cold, t_hot, t_ambient]).astype(np.float64)
     i = np.asarray(current, dtype=np.float64)
     v = np.asarray(voltage, dtype=np.float64)
-    missing = ~(np.all(np.isfinite(temps), axis=0) & np.isfinite(i) & np.isfinite(v))
-    filled = np.where(np.isfinite(temps), temps, 0.0)
-    out_of_range = np.any((filled < T_MIN_K) | (filled > T_MAX_K), axis=0) | (
+    required = np.array([True, *probed, True])
+    finite = np.isfinite(temps)
+    missing = ~(np.all(finite[required], axis=0) & np.isfinite(i) & np.isfinite(v))
+    filled = np.where(finite, temps, 0.0)
+    out_of_range = np.any(finite & ((filled < T_MIN_K) | (filled > T_MAX_K)), axis=0) | (
         np.nan_to_num(i) < -on_current
     )
-    spike = _spikes(filled, i, on_current, options.spike_k, breaks)
+    # A face without a probe is judged only where all three samples hold a value for it.
+    judged = finite | required[:, None]
+    spike = _spikes(filled, judged, i, on_current, options.spike_k, breaks)
     fault = (out_of_range | spike) & ~missing
     door = _door_settling(t, door_open, options.door_settle_s) & ~missing & ~fault
 
@@ -113,11 +122,17 @@ def flag_samples(
 
 
 def _spikes(
-    x: FloatArray, i: FloatArray, on_current: float, spike_k: float, breaks: BoolArray | None
+    x: FloatArray,
+    judged: BoolArray,
+    i: FloatArray,
+    on_current: float,
+    spike_k: float,
+    breaks: BoolArray | None,
 ) -> BoolArray:
     # A spike leaves and rejoins its neighbours, which agree with each other; a real step
     # (the module switching) does not rejoin. Samples where the current changes are spared:
-    # the faces then really jump. ``x`` holds the four temperatures, one row each [K].
+    # the faces then really jump. ``x`` holds the four temperatures, one row each [K];
+    # ``judged`` marks the values a spike may be judged on.
     spike = np.zeros(x.shape[1], dtype=bool)
     if x.shape[1] >= 3:
         d_prev, d_next = x[:, 1:-1] - x[:, :-2], x[:, 1:-1] - x[:, 2:]
@@ -126,6 +141,9 @@ def _spikes(
             & (np.abs(d_next) > spike_k)
             & (np.sign(d_prev) == np.sign(d_next))
             & (np.abs(x[:, :-2] - x[:, 2:]) < spike_k)
+            & judged[:, :-2]
+            & judged[:, 1:-1]
+            & judged[:, 2:]
         )
         ic = np.nan_to_num(i) > on_current
         steady_drive = (ic[1:-1] == ic[:-2]) & (ic[1:-1] == ic[2:])

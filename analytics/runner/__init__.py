@@ -15,7 +15,13 @@ Cadence (defaults of :class:`AnalysisSettings`):
   statistics;
 * every day (``daily_s``): Theil-Sen slopes, days to the wear limit, and setpoint capacity.
 
-Estimate keys (``estimates.key``; value, stderr, n, reliable, note; at_ms = step end):
+Estimate keys (``estimates.key``; value, stderr, n, reliable, note, basis; at_ms = step end).
+``basis`` names what the estimate rests on (the fit or balance, and whether the face
+temperatures come from probes or from the module's voltage). A unit without a face probe
+(``t_cold``/``t_hot`` never reported) is analysed on the samples whose faces are known;
+where none are (a zero-volt driver, or no face temperature from the voltage yet), R25, S and
+UA are stored with no value, not reliable, and the reason in ``note``, and
+``quality.faces_unknown`` counts the usable samples without face temperatures:
 
 =============================================  ============================================
 module.resistance_ohm                          R at the window's mean module temperature [ohm]

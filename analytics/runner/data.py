@@ -18,12 +18,17 @@ from tecfleet.analytics.errors import PhysicsError
 from tecfleet.analytics.runner.settings import T0, AnalysisSettings
 from tecfleet.ingest import db
 
-__all__ = ["COLUMNS", "Readings", "flags_of", "load", "priors"]
+__all__ = ["COLUMNS", "Readings", "faces_basis", "flags_of", "load", "priors"]
 
 
 @dataclass
 class Readings:
-    """Loaded readings of one device (temperatures [K], t [s] from the start of the load)."""
+    """Loaded readings of one device (temperatures [K], t [s] from the start of the load).
+
+    ``probed`` says whether the unit reports a cold and a hot face temperature: a face no
+    reading of the load holds has no probe, and its temperatures are NaN (or what was
+    reconstructed of them).
+    """
 
     ts: np.ndarray[Any, np.dtype[np.int64]]
     t: FloatArray
@@ -35,6 +40,7 @@ class Readings:
     v: FloatArray
     door: np.ndarray[Any, np.dtype[np.bool_]]
     flags: dg.SampleFlags | None = None
+    probed: tuple[bool, bool] = (True, True)
 
     def slice(self, start_ms: int, end_ms: int) -> slice:
         a = int(np.searchsorted(self.ts, start_ms, side="left"))
@@ -60,7 +66,18 @@ def load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> Readin
         i=arr[:, 5],
         v=arr[:, 6],
         door=arr[:, 7] > 0.5,
+        probed=(bool(np.isfinite(arr[:, 2]).any()), bool(np.isfinite(arr[:, 3]).any())),
     )
+
+
+def faces_basis(probed: tuple[bool, bool]) -> str:
+    """Where a unit's face temperatures come from, in words, by the probes it has."""
+    return {
+        (True, True): "face probes",
+        (False, True): "hot-face probe, cold face from the module's voltage",
+        (True, False): "cold-face probe, hot face from the module's voltage",
+        (False, False): "both faces from the module's voltage",
+    }[probed]
 
 
 def flags_of(data: Readings, sl: slice) -> dg.SampleFlags:

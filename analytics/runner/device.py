@@ -58,7 +58,7 @@ def analyze_device(
     breaks = np.append(stp[1:] != stp[:-1], True) if data.ts.size else np.zeros(0, dtype=bool)
     data.flags = dg.flag_samples(
         data.t, data.tcab, data.tc, data.th, data.ta, data.i, data.v, data.door,
-        breaks=breaks, options=diagnostics_options(cfg),
+        breaks=breaks, probed=data.probed, options=diagnostics_options(cfg),
     )  # fmt: skip
     rows = EstimateRows(dev.device_id)
     prior = priors(dev.module, cfg)

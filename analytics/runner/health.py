@@ -15,8 +15,11 @@ __all__ = ["estimate_history", "latest_health"]
 def latest_health(engine: Engine, device_id: str) -> dict[str, dict[str, Any]]:
     """Newest estimate of every key of a device, in the contract's shape plus extras.
 
-    Each value is ``{"value", "stderr", "n", "reliable", "at", "note"}``; keys whose newest
-    rows hold no value (the data could not support one) fall back to their newest valued row.
+    Each value is ``{"value", "stderr", "n", "reliable", "at", "note", "basis", "reason"}``
+    (``basis``: the channels and method it rests on; ``reason``: why it is not reliable, None
+    where it is); keys whose newest rows hold no value (the data could not support one) fall
+    back to their newest valued row, and a key that never had a value is served with its
+    newest row (value None, not reliable, with the reason).
     """
     rows = analysis_db.latest_estimates(engine, device_id)
     return {r.key: _row_dict(r) for r in sorted(rows, key=lambda r: str(r.key))}
@@ -42,6 +45,8 @@ def _row_dict(r: Any) -> dict[str, Any]:
         "reliable": bool(r.reliable),
         "at": _rfc3339(int(r.at_ms)),
         "note": r.note,
+        "basis": r.basis,
+        "reason": None if r.reliable else r.note,
     }
 
 

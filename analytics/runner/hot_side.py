@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics._validate import T_25C_K
-from tecfleet.analytics.runner.data import Readings, flags_of
+from tecfleet.analytics.runner.data import Readings, faces_basis, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState
@@ -30,15 +32,21 @@ def hot_side(
     tm = 0.5 * (data.tc[w] + data.th[w])
     s = params.s25 * (1.0 + cfg.beta * (tm - T_25C_K))
     r = params.r25 * (1.0 + cfg.alpha * (tm - T_25C_K))
+    # Samples whose faces are known: every usable one with both probes, else those the
+    # module's voltage gave.
+    usable = flags_of(data, w).usable & np.isfinite(tm)
     ests = dg.hot_side_resistance_ratios(
         data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r,
         state.k_trend if state.k_trend is not None else params.k,
-        flags_of(data, w).usable, block, len(ends), c_hot=params.c_hot,
+        usable, block, len(ends), c_hot=params.c_hot,
         faces_followed=bool(_faces_followed(state)), options=diagnostics_options(cfg),
     )  # fmt: skip
     n_samples = np.bincount(block, minlength=len(ends))
+    basis = f"hot-sink heat balance: ambient probe, {faces_basis(data.probed)}"
     return {
-        b: est if isinstance(est, dg.Estimate) and n >= 10 else None
+        b: dataclasses.replace(est, basis=basis)
+        if isinstance(est, dg.Estimate) and n >= 10
+        else None
         for b, est, n in zip(ends, ests, n_samples, strict=True)
     }
 
@@ -56,6 +64,16 @@ def hourly(
     if est is None:
         return
     rows.est("hot_side.resistance_k_per_w", b, est)
+    rows.basis = est.basis
+    try:
+        _follow(b, est, rows, state, cfg)
+    finally:
+        rows.basis = None
+
+
+def _follow(
+    b: int, est: dg.Estimate, rows: EstimateRows, state: DeviceState, cfg: AnalysisSettings
+) -> None:
     # Where the sinks store heat faster than the samples follow, the hour's figure carries a
     # steady bias (see diagnostics.hot_side_resistance_ratios): not reliable, but precise
     # hours are still followed, since a steady bias cancels in the change. One hour there

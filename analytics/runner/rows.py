@@ -11,12 +11,17 @@ __all__ = ["EstimateRows"]
 
 
 class EstimateRows:
-    """Estimate rows collected for one device, written in one statement."""
+    """Estimate rows collected for one device, written in one statement.
+
+    ``basis`` says what the rows added next rest on (channels and method) unless a row
+    names its own: the window's fits set it before adding theirs.
+    """
 
     def __init__(self, device_id: str) -> None:
         self.device_id = device_id
         #: In the order of ``analysis_db.ESTIMATE_COLUMNS``.
         self.rows: list[tuple[Any, ...]] = []
+        self.basis: str | None = None
 
     def add(
         self,
@@ -27,12 +32,18 @@ class EstimateRows:
         n: int,
         reliable: bool = True,
         note: str | None = None,
+        basis: str | None = None,
     ) -> None:
         if value is not None and not math.isfinite(value):
             return
         if stderr is not None and not math.isfinite(stderr):
             stderr = None
-        self.rows.append((self.device_id, key, at_ms, value, stderr, int(n), bool(reliable), note))
+        self.rows.append(
+            (
+                self.device_id, key, at_ms, value, stderr, int(n), bool(reliable), note,
+                self.basis if basis is None else basis,
+            )
+        )  # fmt: skip
 
     def est(self, key: str, at_ms: int, e: dg.Estimate) -> None:
-        self.add(key, at_ms, e.value, e.stderr, e.n, e.reliable, e.note)
+        self.add(key, at_ms, e.value, e.stderr, e.n, e.reliable, e.note, e.basis)

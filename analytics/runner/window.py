@@ -18,7 +18,7 @@ from tecfleet.analytics import physics
 from tecfleet.analytics._validate import T_25C_K, FloatArray
 from tecfleet.analytics.errors import PhysicsError
 from tecfleet.analytics.runner import settled
-from tecfleet.analytics.runner.data import Readings, flags_of
+from tecfleet.analytics.runner.data import Readings, faces_basis, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
@@ -29,6 +29,14 @@ __all__ = ["fit_window"]
 BoolArray = np.ndarray[Any, np.dtype[np.bool_]]
 
 NEVER_RESTED = "module never rested in this window: one operating point"
+
+
+def _missing_faces(probed: tuple[bool, bool]) -> str:
+    return {
+        (False, True): "no cold-face probe",
+        (True, False): "no hot-face probe",
+        (False, False): "no face probes",
+    }[probed]
 
 
 @dataclass
@@ -53,6 +61,8 @@ class _Window:
     usable: BoolArray
     off: BoolArray
     floating: bool
+    probed: tuple[bool, bool]
+    faces_unknown: int  # usable samples whose face temperatures neither probe nor voltage gave
 
 
 @dataclass
@@ -81,20 +91,27 @@ def fit_window(
     if win is None:
         return
     _quality_rows(win, rows)
-    ele = _electrical(win, rows, state, prior, cfg)
-    if ele is None:
-        return
-    fitted = _thermal(data, win, ele, rows, state, prior, cfg)
-    if fitted is None:
-        return
-    th_fit, k_settled = fitted
-    _remember_fit(win, th_fit, state, cfg)
-    cov3 = _cov3(ele.el, th_fit.stderrs["k"])
-    _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
-    rises = _rises(data, win)
-    _path_rows(win, th_fit, rises, rows, cfg)
-    _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg)
-    _performance(win, ele, th_fit, cov3, rows, cfg)
+    faces = faces_basis(win.probed)
+    rows.basis = f"V = I·R + S·ΔT fit, {faces}" + (", open-circuit samples" if win.floating else "")
+    try:
+        ele = _electrical(win, rows, state, prior, cfg)
+        if ele is None:
+            return
+        rows.basis = f"cabinet and sink heat balances: cabinet and ambient probes, {faces}"
+        fitted = _thermal(data, win, ele, rows, state, prior, cfg)
+        if fitted is None:
+            return
+        th_fit, k_settled = fitted
+        _remember_fit(win, th_fit, state, cfg)
+        cov3 = _cov3(ele.el, th_fit.stderrs["k"])
+        _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
+        rises = _rises(data, win)
+        _path_rows(win, th_fit, rises, rows, cfg)
+        _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg)
+        rows.basis = f"module model at the operating point, {faces}"
+        _performance(win, ele, th_fit, cov3, rows, cfg)
+    finally:
+        rows.basis = None
 
 
 def _window(data: Readings, b: int, cfg: AnalysisSettings) -> _Window | None:
@@ -103,7 +120,6 @@ def _window(data: Readings, b: int, cfg: AnalysisSettings) -> _Window | None:
     w = data.slice(b - window, b)
     wt = data.slice(b - thermal_window, b)
     fl = flags_of(data, w)
-    usable_th = flags_of(data, wt).usable
     n = w.stop - w.start
     if n < 10:
         return None
@@ -111,17 +127,26 @@ def _window(data: Readings, b: int, cfg: AnalysisSettings) -> _Window | None:
     i, v = data.i[w], data.v[w]
     dt = th - tc
     tm = 0.5 * (tc + th)
-    usable = fl.usable
+    # The fits use the samples whose face temperatures are known: all usable ones where both
+    # faces have probes; where one lacks its probe, those the module's voltage gave.
+    known = np.isfinite(dt)
+    usable = fl.usable & known
+    usable_th = flags_of(data, wt).usable & np.isfinite(data.th[wt] - data.tc[wt])
     off = usable & ~fl.on
-    floating = dg.detect_floating_driver(v[off], dt[off])
+    if data.probed == (True, True):
+        floating = dg.detect_floating_driver(v[off], dt[off])
+    else:
+        opts = diagnostics_options(cfg)
+        floating = dg.floating_from_voltage(v[fl.usable & ~fl.on], options=opts)
     return _Window(
         b=b, w=w, wt=wt, n=n, fl=fl, usable_th=usable_th, t=t, tcab=tcab, tc=tc, th=th, ta=ta,
-        i=i, v=v, dt=dt, tm=tm, usable=usable, off=off, floating=floating,
+        i=i, v=v, dt=dt, tm=tm, usable=usable, off=off, floating=floating, probed=data.probed,
+        faces_unknown=int((fl.usable & ~known).sum()),
     )  # fmt: skip
 
 
 def _quality_rows(win: _Window, rows: EstimateRows) -> None:
-    b, n, fl, usable = win.b, win.n, win.fl, win.usable
+    b, n, fl, usable = win.b, win.n, win.fl, win.fl.usable
     switch_offs = int(np.sum(fl.on[:-1] & ~fl.on[1:]))
     excluded = int(n - usable.sum())
     rows.add("quality.samples", b, float(usable.sum()), None, n)
@@ -130,6 +155,37 @@ def _quality_rows(win: _Window, rows: EstimateRows) -> None:
         rows.add(f"quality.left_out_{reason}", b, float(count), None, n)
     rows.add("quality.switch_offs", b, float(switch_offs), None, n)
     rows.add("quality.driver_floating", b, 1.0 if win.floating else 0.0, None, n)
+    if win.probed != (True, True):
+        missing = _missing_faces(win.probed)
+        rows.add(
+            "quality.faces_unknown", b, float(win.faces_unknown), None, n, True,
+            f"usable samples without face temperatures ({missing}, none from the voltage)",
+        )  # fmt: skip
+
+
+def _not_separable(win: _Window, rows: EstimateRows) -> None:
+    # A unit short of a face probe whose faces the window could not reconstruct: what rests
+    # on ΔT is served as unknown, with the reason, never as a number.
+    missing = _missing_faces(win.probed)
+    rested = int((win.fl.usable & ~win.fl.on).sum()) >= 5
+    if win.floating:
+        why = f"{missing}, and no face temperature from the module's voltage in this window"
+    elif rested:
+        why = f"zero-volt driver and {missing}, not separable"
+    else:
+        why = f"module never off in this window (no open-circuit voltage) and {missing}"
+    faces = {(False, True): "hot face", (True, False): "cold face", (False, False): "no face"}
+    basis = (
+        f"cabinet, ambient, current and voltage, {faces[win.probed]} probed; "
+        "no face temperature from the voltage"
+    )
+    n = int(win.fl.usable.sum())
+    for key, what in (
+        ("module.resistance_25c_ohm", "R25 and S"),
+        ("module.seebeck_25c_v_per_k", "R25 and S"),
+        ("cabinet.ua_w_per_k", "UA (needs the module's heat, so R, S and ΔT)"),
+    ):
+        rows.add(key, win.b, None, None, n, False, f"{what}: {why}", basis)
 
 
 def _electrical(
@@ -143,6 +199,12 @@ def _electrical(
     # fails (its reason stored).
     b, n, t, i, v, tc, th = win.b, win.n, win.t, win.i, win.v, win.tc, win.th
     usable, floating = win.usable, win.floating
+    if (
+        win.probed != (True, True)
+        and int((usable & win.fl.on).sum()) < diagnostics_options(cfg).min_on
+    ):
+        _not_separable(win, rows)
+        return None
     e_prior = (prior.resistance, prior.seebeck, cfg.rating_rel_sd) if prior is not None else None
     try:
         el = dg.fit_electrical(
@@ -190,6 +252,16 @@ def _thermal(
     # The thermal fit over the thermal window, with the unit's settled K (None if it has
     # none yet); None where the fit fails (its reason stored).
     b, n, wt, usable_th, el = win.b, win.n, win.wt, win.usable_th, ele.el
+    if win.probed != (True, True):
+        # The balances integrate between samples: every usable one needs its faces.
+        lacking = int((flags_of(data, wt).usable & ~usable_th).sum())
+        if lacking:
+            why = (
+                f"UA: {_missing_faces(win.probed)}, and {lacking} usable samples of the thermal "
+                "window without a face temperature from the module's voltage"
+            )
+            rows.add("cabinet.ua_w_per_k", b, None, None, n, False, why)
+            return None
     # The heat balances use the unit's settled S once there is one; till then the S that
     # pairs with ΔT as the probes read it in this window.
     settled_s = settled.s_settled(state, cfg)
@@ -440,9 +512,10 @@ def _performance(
 ) -> None:
     # COP and cooling at the window's latest steady on operating point.
     b, fl, t, i, tc, th, el = win.b, win.fl, win.t, win.i, win.tc, win.th, ele.el
-    pick = fl.steady & fl.on & (t >= t[-1] - 3600.0)
+    steady_on = fl.steady & fl.on & win.usable  # usable: faces known
+    pick = steady_on & (t >= t[-1] - 3600.0)
     if not pick.any():
-        pick = fl.steady & fl.on
+        pick = steady_on
     if not pick.any():
         pick = ele.on
     if pick.any():

@@ -11,7 +11,14 @@ The pipeline never imports this package; only the command line, tests and benche
 
 from .chunk import Chunk, concat
 from .command import add_simulate_arguments, run_simulate
-from .fleets import FAULT_DEFAULTS, parse_fault_mix, random_fleet, spec_summary, with_devices
+from .fleets import (
+    FAULT_DEFAULTS,
+    parse_fault_mix,
+    random_fleet,
+    spec_summary,
+    with_devices,
+    with_sensor_set,
+)
 from .model import Simulator, simulate
 from .publisher import FileSink, MqttSink, Sink, encode, publish_fleet
 from .scenario import COMPANY, SITES, demo_fleet, run_demo_feed
@@ -20,6 +27,8 @@ from .specs import (
     CHANNELS,
     FAULT_KINDS,
     FAULT_PARAM,
+    MISSING_FACES,
+    SENSOR_SETS,
     STANDARD_RATINGS,
     T0_K,
     DeviceSpec,
@@ -40,8 +49,10 @@ __all__ = [
     "FAULT_DEFAULTS",
     "FAULT_KINDS",
     "FAULT_PARAM",
+    "MISSING_FACES",
     "PROBE_ERROR_C",
     "QUANTUM",
+    "SENSOR_SETS",
     "SITES",
     "STANDARD_RATINGS",
     "T0_K",
@@ -74,4 +85,5 @@ __all__ = [
     "simulate",
     "spec_summary",
     "with_devices",
+    "with_sensor_set",
 ]

@@ -3,6 +3,7 @@ payload objects a device would publish for it."""
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -18,6 +19,8 @@ FloatArray = NDArray[np.float64]
 BoolArray = NDArray[np.bool_]
 
 _TEMP_CHANNELS = ("t_cabinet", "t_cold", "t_hot", "t_ambient")
+#: Face channels a unit may lack (NaN in ``measured``): left out of its payloads.
+_FACE_CHANNELS = ("t_cold", "t_hot")
 
 
 @dataclass
@@ -59,7 +62,9 @@ def _reading(chunk: Chunk, j: int, i: int) -> dict[str, Any]:
     meas = chunk.measured
     out: dict[str, Any] = {"ts": float(chunk.ts[j, i]), "seq": int(chunk.seq[j, i])}
     for name in CHANNELS:
-        out[name] = float(meas[name][j, i])
+        value = float(meas[name][j, i])
+        if not (name in _FACE_CHANNELS and math.isnan(value)):
+            out[name] = value
     out["door_open"] = bool(chunk.truth["door_s"][j, i] > 0)
     return out
 
@@ -96,6 +101,13 @@ def _payload_rows(chunk: Chunk) -> list[list[dict[str, Any] | None]]:
                 }
             )
         rows.append(row)
+    for name in _FACE_CHANNELS:
+        absent = np.isnan(chunk.measured[name]).all(axis=0)
+        for i in np.flatnonzero(absent).tolist():
+            for row in rows:
+                reading = row[i]
+                if reading is not None:
+                    del reading[name]  # the unit has no probe there
     return rows
 
 

@@ -22,11 +22,11 @@ import threading
 import time
 from dataclasses import replace
 
-from .fleets import random_fleet
+from .fleets import random_fleet, with_sensor_set
 from .model import Simulator
 from .publisher import FileSink, MqttSink, Sink, publish_fleet
 from .scenario import demo_fleet
-from .specs import FleetSpec
+from .specs import SENSOR_SETS, FleetSpec
 from .truth import FleetTruth
 
 __all__ = ["add_simulate_arguments", "run_simulate"]
@@ -66,6 +66,12 @@ def add_simulate_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--out", default=None, help="write .csv or .jsonl instead of MQTT")
     parser.add_argument("--truth", default=None, help="write the ground truth JSON here")
     parser.add_argument("--scenario", choices=("random", "demo"), default="random")
+    parser.add_argument(
+        "--sensors",
+        choices=SENSOR_SETS,
+        default="full",
+        help="face probes of every unit: both, none on the cold side, or none on either face",
+    )
     parser.add_argument("--client-id", default=None, help="MQTT client id of the publisher")
 
 
@@ -135,8 +141,8 @@ def _fleet(args: argparse.Namespace, now: float, start: float, days: float) -> F
         spec, _reg = demo_fleet(
             args.seed, now_s=now, days_backfill=days, interval_s=args.interval_s
         )
-        return replace(spec, start_s=start)
-    return random_fleet(
+        return with_sensor_set(replace(spec, start_s=start), args.sensors)
+    spec = random_fleet(
         args.devices,
         seed=args.seed,
         start_s=start,
@@ -144,3 +150,4 @@ def _fleet(args: argparse.Namespace, now: float, start: float, days: float) -> F
         interval_s=args.interval_s,
         faults=args.faults,
     )
+    return with_sensor_set(spec, args.sensors)

@@ -12,6 +12,7 @@ from tecfleet.analytics import heat_paths
 
 from .specs import (
     FAULT_KINDS,
+    SENSOR_SETS,
     STANDARD_RATINGS,
     DeviceSpec,
     Fault,
@@ -19,7 +20,14 @@ from .specs import (
     device_from_ratings,
 )
 
-__all__ = ["FAULT_DEFAULTS", "parse_fault_mix", "random_fleet", "spec_summary", "with_devices"]
+__all__ = [
+    "FAULT_DEFAULTS",
+    "parse_fault_mix",
+    "random_fleet",
+    "spec_summary",
+    "with_devices",
+    "with_sensor_set",
+]
 
 #: Default developed magnitude and ramp of each fault kind (common practice, no source).
 FAULT_DEFAULTS: dict[str, dict[str, Any]] = {
@@ -150,6 +158,14 @@ def _place_faults(
 def with_devices(spec: FleetSpec, devices: Iterable[DeviceSpec]) -> FleetSpec:
     """``spec`` with other devices (faults and events kept)."""
     return replace(spec, devices=tuple(devices))
+
+
+def with_sensor_set(spec: FleetSpec, sensor_set: str) -> FleetSpec:
+    """``spec`` with every device fitted with the face probes of ``sensor_set`` (one of
+    ``SENSOR_SETS``)."""
+    if sensor_set not in SENSOR_SETS:
+        raise ValueError(f"unknown sensor set {sensor_set!r}; known: {SENSOR_SETS}")
+    return with_devices(spec, (replace(d, sensor_set=sensor_set) for d in spec.devices))
 
 
 def spec_summary(spec: FleetSpec) -> dict[str, Any]:

@@ -183,7 +183,10 @@ class FileSink(Sink):
     def send(self, device_id: str, readings: list[dict[str, Any]]) -> None:
         self.sent += len(readings)
         if self.csv:
-            self.writer.writerows([device_id, *(r[k] for k in _CSV_FIELDS[1:])] for r in readings)
+            # A channel the unit lacks (a face probe) is an empty cell.
+            self.writer.writerows(
+                [device_id, *(r.get(k, "") for k in _CSV_FIELDS[1:])] for r in readings
+            )
         else:
             head = b'{"device_id":' + orjson.dumps(device_id) + b","
             data = b"".join(head + orjson.dumps(r)[1:] + b"\n" for r in readings)

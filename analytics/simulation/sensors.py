@@ -13,7 +13,7 @@ from collections.abc import Sequence
 import numpy as np
 from numpy.typing import NDArray
 
-from .specs import CHANNELS, DeviceSpec, Fault
+from .specs import CHANNELS, MISSING_FACES, SENSOR_SETS, DeviceSpec, Fault
 
 __all__ = ["PROBE_ERROR_C", "QUANTUM", "SensorModel"]
 
@@ -57,6 +57,14 @@ class SensorModel:
         self.gen = gen
         self.interval = interval_s
         self.off_open = np.array([d.off_voltage == "open_circuit" for d in devices])
+        for d in devices:
+            if d.sensor_set not in MISSING_FACES:
+                raise ValueError(f"unknown sensor set {d.sensor_set!r}; known: {SENSOR_SETS}")
+        #: Devices without a probe on that face: the channel reads NaN (not published).
+        self.no_probe = {
+            name: np.array([name in MISSING_FACES[d.sensor_set] for d in devices])
+            for name in ("t_cold", "t_hot")
+        }
         self.bias = np.array([d.sensor_bias for d in devices], dtype=np.float64)  # (n, 7)
         self.noise_sd = np.array([d.sensor_noise for d in devices], dtype=np.float64)
         self.jitter_s = np.array([float(d.jitter_s) for d in devices], dtype=np.float64)
@@ -88,6 +96,9 @@ class SensorModel:
         for name in CHANNELS:
             q = QUANTUM[name]
             meas[name] = np.round(np.round(meas[name] / q) * q, _DECIMALS[name])
+        for name, absent in self.no_probe.items():
+            if absent.any():
+                meas[name][:, absent] = np.nan
         lim = 0.25 * self.interval
         ts = t[:, None] + np.clip(jitter * self.jitter_s, -lim, lim)
         ts = np.round(ts, 3)

@@ -18,6 +18,8 @@ __all__ = [
     "CHANNELS",
     "FAULT_KINDS",
     "FAULT_PARAM",
+    "MISSING_FACES",
+    "SENSOR_SETS",
     "STANDARD_RATINGS",
     "T0_K",
     "DeviceSpec",
@@ -34,6 +36,12 @@ T0_K = 273.15
 #: Measured channels in payload order (``DeviceSpec.sensor_bias`` and ``sensor_noise`` follow
 #: this order).
 CHANNELS = ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh")
+
+#: Which face probes a unit has: ``full`` (cold and hot face), ``no_cold`` (hot face only),
+#: ``no_faces`` (neither). A missing probe's channel is left out of what the unit publishes.
+SENSOR_SETS = ("full", "no_cold", "no_faces")
+#: The face channels each sensor set lacks.
+MISSING_FACES = {"full": (), "no_cold": ("t_cold",), "no_faces": ("t_cold", "t_hot")}
 
 #: Typical 127-couple module: Imax 6 A, Vmax 14.7 V, ΔTmax 67 K, Qmax 52 W at 27 °C
 #: (datasheet-like figures, common practice, no source). Gives S ≈ 0.049 V/K,
@@ -161,6 +169,7 @@ class DeviceSpec:
     jitter_s: float = 0.5
     p_missed: float = 0.002
     off_voltage: str = "open_circuit"  # or "zero"
+    sensor_set: str = "full"  # face probes fitted, one of SENSOR_SETS
     # registration
     label: str = ""
     site: str = ""

@@ -21,7 +21,8 @@ router = APIRouter(tags=["health"])
     responses=KEYED_LOOKUP,
 )
 def device_health(engine: EngineDep, device_id: DeviceId) -> dict[str, Any]:
-    """Newest estimate of every key: ``{"value", "stderr", "n", "reliable", "at", "note"}``."""
+    """Newest estimate of every key: ``{"value", "stderr", "n", "reliable", "at", "note",
+    "basis", "reason"}``."""
     return health.latest_health(engine, device_id)
 
 

@@ -6,7 +6,12 @@ from pydantic import BaseModel, RootModel
 
 
 class EstimateOut(BaseModel):
-    """One estimate: ``value`` with its standard error from ``n`` samples, at time ``at``."""
+    """One estimate: ``value`` with its standard error from ``n`` samples, at time ``at``.
+
+    ``basis`` says what it rests on (the channels and the method, e.g. the face probes or the
+    module's own voltage); ``reason`` why it is not reliable (null where it is). A quantity the
+    unit's sensors cannot reveal is served with ``value`` null, not reliable, and its reason.
+    """
 
     value: float | None
     stderr: float | None
@@ -14,6 +19,8 @@ class EstimateOut(BaseModel):
     reliable: bool
     at: str
     note: str | None
+    basis: str | None = None
+    reason: str | None = None
 
 
 class EstimatePointOut(EstimateOut):

@@ -6,11 +6,13 @@ from pydantic import BaseModel
 
 
 class ReadingOut(BaseModel):
+    """One stored reading; ``t_cold``/``t_hot`` are null for a unit without that face probe."""
+
     ts: str
     seq: int | None
     t_cabinet: float
-    t_cold: float
-    t_hot: float
+    t_cold: float | None
+    t_hot: float | None
     t_ambient: float
     current: float
     voltage: float

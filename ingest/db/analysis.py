@@ -33,7 +33,9 @@ __all__ = [
 ]
 
 #: Columns of an estimate row, in the order of the tuples :func:`write_results` takes.
-ESTIMATE_COLUMNS = ("device_id", "key", "at_ms", "value", "stderr", "n", "reliable", "note")
+ESTIMATE_COLUMNS = (
+    "device_id", "key", "at_ms", "value", "stderr", "n", "reliable", "note", "basis",
+)  # fmt: skip
 
 #: Device states read per query (well under the bound parameters SQLite allows).
 _STATES_PER_QUERY = 500
@@ -146,29 +148,40 @@ _ESTIMATE_READ = (
     estimates.c.n,
     estimates.c.reliable,
     estimates.c.note,
+    estimates.c.basis,
 )
 
 
 def latest_estimates(engine: Engine, device_id: str) -> list[Any]:
     """Newest valued row of every estimate key of a device (key, at_ms, value, stderr, n,
-    reliable, note), in no particular order."""
+    reliable, note, basis), in no particular order. A key that never had a value (the data
+    cannot support one, e.g. a quantity the unit's sensors cannot reveal) comes with its
+    newest row, value None, so that its reason is served."""
     e = estimates
+    valued = e.c.value.is_not(None)
     newest = (
         sa.select(e.c.key, sa.func.max(e.c.at_ms).label("at_ms"))
-        .where(e.c.device_id == device_id, e.c.value.is_not(None))
+        .where(e.c.device_id == device_id, valued)
         .group_by(e.c.key)
         .subquery()
     )
-    q = (
-        sa.select(*_ESTIMATE_READ)
-        .join(
-            newest,
-            sa.and_(e.c.key == newest.c.key, e.c.at_ms == newest.c.at_ms),
-        )
-        .where(e.c.device_id == device_id)
+    ever_valued = sa.select(e.c.key).where(e.c.device_id == device_id, valued)
+    newest_unvalued = (
+        sa.select(e.c.key, sa.func.max(e.c.at_ms).label("at_ms"))
+        .where(e.c.device_id == device_id, e.c.key.not_in(ever_valued))
+        .group_by(e.c.key)
+        .subquery()
     )
+    out: list[Any] = []
     with engine.connect() as conn:
-        return list(conn.execute(q).all())
+        for sub in (newest, newest_unvalued):
+            q = (
+                sa.select(*_ESTIMATE_READ)
+                .join(sub, sa.and_(e.c.key == sub.c.key, e.c.at_ms == sub.c.at_ms))
+                .where(e.c.device_id == device_id)
+            )
+            out.extend(conn.execute(q).all())
+    return out
 
 
 def estimate_rows(

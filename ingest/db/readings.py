@@ -20,7 +20,8 @@ from tecfleet.ingest.errors import StoreError
 
 
 class Reading(NamedTuple):
-    """One validated reading of one device (temperatures in °C).
+    """One validated reading of one device (temperatures in °C; a face temperature is None
+    where the unit has no probe on that face).
 
     A named tuple rather than a dataclass: the ingester makes one per reading, and a tuple in
     the insert's column order goes to the driver as it is.
@@ -29,8 +30,8 @@ class Reading(NamedTuple):
     device_id: str
     ts_ms: int
     t_cabinet: float
-    t_cold: float
-    t_hot: float
+    t_cold: float | None
+    t_hot: float | None
     t_ambient: float
     current: float
     voltage: float
@@ -225,7 +226,7 @@ READING_COLUMNS = (
 _RECEIPT_COLUMNS = ("received_ms",)
 
 #: Columns that may be NULL; they come back as NaN.
-_NULLABLE = frozenset({"seq", "rh"})
+_NULLABLE = frozenset({"seq", "t_cold", "t_hot", "rh"})
 #: A missing door flag reads as closed (0), an open door as 1.
 _SELECT_AS = {"door_open": "CASE WHEN door_open THEN 1 ELSE 0 END"}
 #: Address space SQLite may map per connection for reading (only what the file holds is mapped).
@@ -268,11 +269,15 @@ def read_arrays(
     k = len(columns)
     if not rows:
         return np.zeros((0, k), np.float64)
-    if _NULLABLE.isdisjoint(columns):
+    try:
         # fromiter over the flattened rows is the fastest way in; it cannot take None.
         flat = itertools.chain.from_iterable(rows)
         return np.fromiter(flat, np.float64, len(rows) * k).reshape(-1, k)
-    return np.array(rows, dtype=np.float64)
+    except TypeError:
+        if _NULLABLE.isdisjoint(columns):
+            raise
+        # A NULL among the rows (a unit without a face probe, no humidity sensor ...).
+        return np.array(rows, dtype=np.float64)
 
 
 def load_readings(

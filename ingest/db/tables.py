@@ -43,8 +43,9 @@ readings = sa.Table(
     sa.Column("ts_ms", sa.BigInteger, nullable=False),
     sa.Column("seq", sa.BigInteger),
     sa.Column("t_cabinet", sa.Float, nullable=False),
-    sa.Column("t_cold", sa.Float, nullable=False),
-    sa.Column("t_hot", sa.Float, nullable=False),
+    # NULL: the unit has no probe on that face (migration 0005).
+    sa.Column("t_cold", sa.Float),
+    sa.Column("t_hot", sa.Float),
     sa.Column("t_ambient", sa.Float, nullable=False),
     sa.Column("current", sa.Float, nullable=False),
     sa.Column("voltage", sa.Float, nullable=False),
@@ -92,6 +93,8 @@ estimates = sa.Table(
     sa.Column("n", sa.Integer, nullable=False, server_default="0"),
     sa.Column("reliable", sa.Boolean, nullable=False, server_default=sa.true()),
     sa.Column("note", sa.Text),
+    # What the estimate rests on: the channels and method (migration 0005).
+    sa.Column("basis", sa.Text),
     sa.UniqueConstraint("device_id", "key", "at_ms"),
 )
 

@@ -49,3 +49,31 @@ def test_health_has_every_contract_key_after_analysis(sqlite_url: str) -> None:
     assert len(history) == stored > 1
     assert client.get("/v1/devices/ghost/health", headers=headers).status_code == 404
     assert client.get("/v1/devices/unit-h/health").status_code == 401
+
+
+def test_health_serves_basis_and_reason_without_face_probes(db_url: str) -> None:
+    # A unit without face probes and with a zero-volt driver: V = I·R + S·ΔT (Goldsmid 2010,
+    # ch. 2) cannot separate R from S without ΔT, so they are served as unknown with reason.
+    engine = db.make_engine(db_url)
+    db.migrate(engine)
+    frame = simulate(Truth(floating=False), 1.5, seed=5, door_every_h=8.0)
+    db.store_batch(
+        engine,
+        [
+            db.Reading("unit-z", int(r.ts_ms), float(r.t_cabinet), None, None,
+                       float(r.t_ambient), float(r.current), float(r.voltage))
+            for r in frame.itertuples()
+        ],
+    )  # fmt: skip
+    runner.analyze(engine)
+    client = TestClient(create_app(engine))
+    headers = {"Authorization": f"Bearer {create_key(engine, 'r', 'read')}"}
+    health = client.get("/v1/devices/unit-z/health", headers=headers).json()
+    r25 = health["module.resistance_25c_ohm"]
+    assert r25["value"] is None and r25["reliable"] is False
+    assert r25["reason"] == "R25 and S: zero-volt driver and no face probes, not separable"
+    assert "no face probed" in r25["basis"]
+    samples = health["quality.samples"]
+    assert samples["value"] > 0 and samples["reason"] is None and "basis" in samples
+    readings = client.get("/v1/devices/unit-z/readings", headers=headers).json()["items"]
+    assert readings and readings[0]["t_cold"] is None and readings[0]["t_hot"] is None

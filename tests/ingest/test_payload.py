@@ -59,7 +59,7 @@ def test_batch_keeps_good_items_and_rejects_bad_ones_one_by_one() -> None:
         good(ts=NOW - 2, current=75.0),
         good(ts=NOW - 1),
         "not an object",
-        {k: v for k, v in good().items() if k != "t_hot"},
+        {k: v for k, v in good().items() if k != "t_ambient"},
     ]
     out = parse(batch)
     assert [r.ts_ms for r in out.readings] == [round((NOW - 3) * 1000), round((NOW - 1) * 1000)]
@@ -69,7 +69,7 @@ def test_batch_keeps_good_items_and_rejects_bad_ones_one_by_one() -> None:
         (4, "missing_field"),
     ]
     assert "current" in out.rejects[0].reason
-    assert "t_hot" in out.rejects[2].reason
+    assert "t_ambient" in out.rejects[2].reason
     assert json.loads(out.rejects[0].payload)["current"] == 75.0
 
 
@@ -225,7 +225,8 @@ def test_fuzz_structured_json_never_raises(doc: Any) -> None:
     out = parse_message(TOPIC, orjson.dumps(doc), prefix="tecfleet", now_s=time.time())
     for reading in out.readings:
         for value in (reading.t_cabinet, reading.t_cold, reading.t_hot, reading.t_ambient):
-            assert T_MIN_C <= value <= T_MAX_C and math.isfinite(value)
+            # A face temperature may be absent (no probe there); one that is sent is checked.
+            assert value is None or (T_MIN_C <= value <= T_MAX_C and math.isfinite(value))
         assert 0 <= reading.current <= 50
     assert out.readings or out.rejects or isinstance(doc, list)
 

@@ -57,7 +57,7 @@ def test_missing_faces_are_stored_as_null_and_read_as_nan(db_url: str) -> None:
 
 def test_migration_0005_up_and_down_keeps_rows(db_url: str) -> None:
     engine = db.make_engine(db_url)
-    _alembic(engine, "0003", up=True)
+    _alembic(engine, "0004", up=True)
     with engine.begin() as c:
         c.execute(db.devices.insert().values(device_id="a", readings=0))
         c.execute(
@@ -78,10 +78,10 @@ def test_migration_0005_up_and_down_keeps_rows(db_url: str) -> None:
     assert n == 2
     # A NULL face cannot go back under NOT NULL: the downgrade refuses rather than drop rows.
     with pytest.raises(StoreError, match="1 stored readings lack a face temperature"):
-        _alembic(engine, "0003", up=False)
+        _alembic(engine, "0004", up=False)
     with engine.begin() as c:
         c.execute(db.readings.delete().where(db.readings.c.t_cold.is_(None)))
-    _alembic(engine, "0003", up=False)
+    _alembic(engine, "0004", up=False)
     down = {c["name"]: c for c in sa.inspect(engine).get_columns("readings")}
     assert not down["t_cold"]["nullable"] and not down["t_hot"]["nullable"]
     with engine.connect() as c:

@@ -13,7 +13,7 @@ from alembic import op
 from tecfleet.ingest.errors import StoreError
 
 revision = "0005"
-down_revision = "0003"
+down_revision = "0004"
 branch_labels = None
 depends_on = None
 

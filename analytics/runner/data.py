@@ -15,10 +15,10 @@ from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics
 from tecfleet.analytics._validate import FloatArray
 from tecfleet.analytics.errors import PhysicsError
-from tecfleet.analytics.runner.settings import T0, AnalysisSettings
+from tecfleet.analytics.runner.settings import T0, AnalysisSettings, diagnostics_options
 from tecfleet.ingest import db
 
-__all__ = ["COLUMNS", "Readings", "flags_of", "load", "priors"]
+__all__ = ["COLUMNS", "Readings", "complete_faces", "flags_of", "load", "priors"]
 
 
 @dataclass
@@ -35,6 +35,10 @@ class Readings:
     v: FloatArray
     door: np.ndarray[Any, np.dtype[np.bool_]]
     flags: dg.SampleFlags | None = None
+    #: Where a face probe is missing: the faces as the module's voltage gives them.
+    faces: dg.FaceReconstruction | None = None
+    #: Where a face probe is missing and the voltage could not stand in: why not.
+    faces_missing: str | None = None
 
     def slice(self, start_ms: int, end_ms: int) -> slice:
         a = int(np.searchsorted(self.ts, start_ms, side="left"))
@@ -61,6 +65,35 @@ def load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> Readin
         v=arr[:, 6],
         door=arr[:, 7] > 0.5,
     )
+
+
+def complete_faces(
+    data: Readings, prior: physics.ModuleParameters | None, cfg: AnalysisSettings
+) -> None:
+    """Where the cold-side probe (or both face probes) reported nothing, read the faces from
+    the module's voltage (:func:`diagnostics.reconstruct_faces`): the cold face filled in,
+    the reconstruction kept in ``data.faces``, or the reason it cannot be in
+    ``data.faces_missing``. Readings with both face probes are left exactly as loaded."""
+    if data.ts.size == 0 or np.isfinite(data.tc).any():
+        return
+    hot = data.th if np.isfinite(data.th).any() else None
+    if prior is None:
+        data.faces_missing = "no face probes and no registered ratings to read ΔT with"
+        return
+    opts = diagnostics_options(cfg)
+    ok = np.isfinite(data.i) & np.isfinite(data.v) & ~data.door
+    floating = dg.floating_without_faces(data.v[ok & (data.i <= opts.on_current)], options=opts)
+    try:
+        data.faces = dg.reconstruct_faces(
+            data.t, data.i, data.v, data.tcab, data.ta, hot, ok, floating=floating,
+            r25_rated=prior.resistance, s25=prior.seebeck, alpha=cfg.alpha, beta=cfg.beta,
+            options=opts,
+        )  # fmt: skip
+    except PhysicsError as exc:
+        data.faces_missing = getattr(exc, "reason", str(exc))
+        return
+    if hot is not None:
+        data.tc = data.faces.t_cold
 
 
 def flags_of(data: Readings, sl: slice) -> dg.SampleFlags:

@@ -16,7 +16,7 @@ import numpy as np
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics
 from tecfleet.analytics._validate import T_25C_K, FloatArray
-from tecfleet.analytics.errors import PhysicsError
+from tecfleet.analytics.errors import InsufficientDataError, PhysicsError
 from tecfleet.analytics.runner import settled
 from tecfleet.analytics.runner.data import Readings, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
@@ -81,7 +81,7 @@ def fit_window(
     if win is None:
         return
     _quality_rows(win, rows)
-    ele = _electrical(win, rows, state, prior, cfg)
+    ele = _electrical(data, win, rows, state, prior, cfg)
     if ele is None:
         return
     fitted = _thermal(data, win, ele, rows, state, prior, cfg)
@@ -132,7 +132,25 @@ def _quality_rows(win: _Window, rows: EstimateRows) -> None:
     rows.add("quality.driver_floating", b, 1.0 if win.floating else 0.0, None, n)
 
 
+def _held_electrical(
+    data: Readings, prior: physics.ModuleParameters | None, cfg: AnalysisSettings
+) -> dg.ElectricalFit | str | None:
+    # Where a face probe is missing: R25 from the module's switch-off steps and S from the
+    # ratings (fitting V = I·R + S·ΔT to faces read from V would only return them), or why
+    # there is none; None where both faces are probed.
+    if data.faces_missing is not None:
+        return data.faces_missing
+    if data.faces is None or prior is None:
+        return None
+    step, opts = data.faces.step, diagnostics_options(cfg)
+    return dg.fit_held(
+        step.r25, step.r25_se, prior.seebeck, opts.seebeck_unit_rel_sd * prior.seebeck,
+        step.n_steps, r_reliable=step.reliable, note=data.faces.basis,
+    )  # fmt: skip
+
+
 def _electrical(
+    data: Readings,
     win: _Window,
     rows: EstimateRows,
     state: DeviceState,
@@ -144,8 +162,11 @@ def _electrical(
     b, n, t, i, v, tc, th = win.b, win.n, win.t, win.i, win.v, win.tc, win.th
     usable, floating = win.usable, win.floating
     e_prior = (prior.resistance, prior.seebeck, cfg.rating_rel_sd) if prior is not None else None
+    held = _held_electrical(data, prior, cfg)
     try:
-        el = dg.fit_electrical(
+        if isinstance(held, str):
+            raise InsufficientDataError(held, held)
+        el = held or dg.fit_electrical(
             i, v, tc, th, usable, floating=floating, alpha=cfg.alpha, beta=cfg.beta,
             prior=e_prior, options=diagnostics_options(cfg),
         )  # fmt: skip
@@ -154,12 +175,17 @@ def _electrical(
         rows.add("module.resistance_25c_ohm", b, None, None, n, False, note)
         return None
     on = usable & win.fl.on
-    tm_on = float(np.mean(win.tm[on]))
+    tm = win.tm
+    if data.faces is not None:
+        # Faces read from the voltage: the mean module temperature the reconstruction used.
+        tm = data.faces.t_mean[win.w]
+        on = (i > cfg.on_current) & np.isfinite(tm)
+    tm_on = float(np.mean(tm[on])) if on.any() else T_25C_K
     f_r = 1.0 + cfg.alpha * (tm_on - T_25C_K)
     f_s = 1.0 + cfg.beta * (tm_on - T_25C_K)
     se_r = float(np.sqrt(max(el.cov[0, 0], 0.0)))
     n_el = el.n_on + el.n_off
-    r_note = None if el.r_reliable else el.note
+    r_note = el.note if held is not None or not el.r_reliable else None
     rows.add("module.resistance_25c_ohm", b, el.r25, se_r, n_el, el.r_reliable, r_note)
     rows.add("module.resistance_ohm", b, el.r25 * f_r, se_r * f_r, n_el, el.r_reliable, r_note)
     # Served: the module's own S, its fit allowing for a constant ΔT offset (the heat balances
@@ -167,6 +193,8 @@ def _electrical(
     s_own, se_own = el.s25_offset_free, el.s25_offset_free_se
     rows.add("module.seebeck_25c_v_per_k", b, s_own, se_own, n_el, el.reliable, el.note)
     rows.add("module.seebeck_v_per_k", b, s_own * f_s, se_own * f_s, n_el, el.reliable, el.note)
+    if held is not None:
+        return _Electrical(el, on, tm_on, f_r, f_s, s_own, se_own)
     if floating:
         s_steps, _ = dg.harman_steps(t, i, v, tc, th, usable, options=diagnostics_options(cfg))
         if s_steps.size >= 3:
@@ -190,6 +218,10 @@ def _thermal(
     # The thermal fit over the thermal window, with the unit's settled K (None if it has
     # none yet); None where the fit fails (its reason stored).
     b, n, wt, usable_th, el = win.b, win.n, win.wt, win.usable_th, ele.el
+    if data.faces is not None and not np.isfinite(data.th[wt]).any():
+        note = f"{data.faces.basis}: the heat balances need the faces"
+        rows.add("cabinet.ua_w_per_k", b, None, None, n, False, note)
+        return None
     # The heat balances use the unit's settled S once there is one; till then the S that
     # pairs with ΔT as the probes read it in this window.
     settled_s = settled.s_settled(state, cfg)

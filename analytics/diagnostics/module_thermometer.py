@@ -1,0 +1,379 @@
+"""The module as its own thermometer: ΔT across the faces from its voltage, where probes lack.
+
+Module equation (H. J. Goldsmid, *Introduction to Thermoelectricity*, Springer, 2010, ch. 2;
+D. M. Rowe (ed.), *CRC Handbook of Thermoelectrics*, CRC Press, 1995)::
+
+    V = S(Tm)·ΔT + I·R(Tm)        driven
+    V = S(Tm)·ΔT                  floating (open circuit, the Seebeck voltage)
+
+with R(Tm) = R25·(1 + α·(Tm - 25 °C)), S(Tm) = S25·(1 + β·(Tm - 25 °C)) as in
+:func:`..physics.resistance_at_temperature`. At a switch-off the ohmic part I·R vanishes at
+once while S·ΔT remains (T. C. Harman, "Special techniques for measurement of thermoelectric
+properties", J. Appl. Phys. 29, 1373, 1958): R = (V_on - V_off)/I_on needs no face probe,
+provided ΔT is the same on both sides of the step. It is, where the faces carry heat
+capacity (their sinks) and so change over tens of seconds; V_off is extrapolated back to the
+step to remove the decay between samples. Where the faces jump with the current (no heat
+capacity to speak of) the step measures S·(ΔT_on - ΔT_off) as well, and no R comes of it.
+
+With R known, ΔT = (V - I·R)/S while driven and V_oc/S while floating, S from the registered
+ratings (S barely varies between units of one type and does not wear). With a driver that
+shorts or grounds the module while off and no face probes, one equation V = I·R + S·ΔT holds
+two unknowns at every sample: R and S are not separable (:class:`NotSeparableError`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import TypeAlias
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .. import physics
+from .._validate import T_25C_K, FloatArray
+from ..errors import InsufficientDataError
+from .estimates import BoolArray
+from .options import DEFAULT_OPTIONS, DiagnosticsOptions
+
+__all__ = [
+    "FaceReconstruction",
+    "NotSeparableError",
+    "StepResistance",
+    "floating_without_faces",
+    "reconstruct_delta_t",
+    "reconstruct_faces",
+    "step_resistance",
+]
+
+
+class NotSeparableError(InsufficientDataError):
+    """R25 and S cannot be told apart from these readings (no open-circuit voltage and no
+    face probes): V = I·R + S·ΔT is one equation in two unknowns at every sample."""
+
+
+def floating_without_faces(
+    voltage_off: FloatArray, *, options: DiagnosticsOptions = DEFAULT_OPTIONS
+) -> bool:
+    """Whether a module left off shows a voltage, judged without face probes.
+
+    A floating module shows V_oc = S·ΔT, tenths of a volt for the few kelvin an idle module
+    holds (Harman 1958); a driver that shorts or grounds it reads zero within the converter's
+    step.
+
+    Parameters
+    ----------
+    voltage_off : Voltage of usable samples with the module off [V].
+    options : ``min_floating_voltage`` [V].
+
+    Returns
+    -------
+    True when most off samples show more than ``min_floating_voltage``.
+    """
+    v = np.abs(np.asarray(voltage_off, dtype=np.float64))
+    v = v[np.isfinite(v)]
+    if v.size < 5:
+        return False
+    return bool(np.median(v) > options.min_floating_voltage)
+
+
+@dataclass(frozen=True)
+class StepResistance:
+    """Module resistance from switch-off steps, without face probes.
+
+    Attributes
+    ----------
+    r25 : Median of the steps' R referred to 25 °C [ohm].
+    r25_se : Its standard error: the steps' scatter, the extrapolation to the unknown switch
+        instant, the mean module temperature's uncertainty through α, and the current
+        reading's offset [ohm].
+    n_steps : Steps used [-].
+    reliable : ``r25_se`` within ``step_r_max_rel_stderr`` of ``r25``.
+    note : Why not reliable, else None.
+    """
+
+    r25: float
+    r25_se: float
+    n_steps: int
+    reliable: bool
+    note: str | None
+
+
+IntArray: TypeAlias = NDArray[np.intp]
+
+
+def _switch_offs(t: FloatArray, on: BoolArray, usable: BoolArray, max_gap_s: float) -> IntArray:
+    # Last on sample k of each switch-off followed by two usable off samples, gaps in bounds.
+    n = on.size
+    if n < 3:
+        return np.zeros(0, dtype=np.intp)
+    k = np.arange(n - 2)
+    ok = on[k] & ~on[k + 1] & ~on[k + 2] & usable[k] & usable[k + 1] & usable[k + 2]
+    ok &= (t[k + 1] - t[k] <= max_gap_s) & (t[k + 2] - t[k + 1] <= max_gap_s)
+    return k[ok]
+
+
+def _faces_jump(
+    th: FloatArray, k: FloatArray | np.ndarray, options: DiagnosticsOptions
+) -> BoolArray:
+    # A hot probe that jumps across the step far more than it moves over the next interval:
+    # the faces follow the current within a sample, and ΔT is not continuous at the step.
+    jump = np.abs(th[k + 1] - th[k])
+    after = np.abs(th[k + 2] - th[k + 1])
+    return np.asarray(
+        jump > options.step_jump_ratio * after + options.step_jump_floor_k, dtype=np.bool_
+    )
+
+
+def step_resistance(
+    time_s: FloatArray,
+    current: FloatArray,
+    voltage: FloatArray,
+    t_mean_k: FloatArray,
+    usable: BoolArray,
+    *,
+    t_mean_sd_k: FloatArray,
+    t_hot: FloatArray | None = None,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> StepResistance:
+    """R25 from switch-off steps of a floating driver, without face probes.
+
+    At each step, R = (V_on - V_off)/I_on (Harman 1958), V_on the last on sample, V_off the
+    first two off samples extrapolated linearly back to the middle of the interval holding
+    the switch (the instant is not reported; half the slope over that interval, ±1/√12 of it,
+    is carried as the extrapolation's uncertainty). R is referred to 25 °C with
+    R25 = R/(1 + α·(Tm - 25 °C)) (:func:`..physics.resistance_at_25c`), Tm from whatever
+    probes exist and its standard deviation carried through α. With a hot probe given, steps
+    across which it jumps (faces that follow the current within a sample) are left out.
+
+    Parameters
+    ----------
+    time_s : Sample times [s].
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_mean_k : Mean module temperature, from the probes that exist [K].
+    usable : Samples that may be used [-].
+    t_mean_sd_k : Standard deviation of ``t_mean_k`` [K].
+    t_hot : Hot-face temperature, where probed [K].
+    alpha : Temperature coefficient of R [1/K].
+    options : ``on_current`` [A], ``max_gap_s`` [s], ``min_steps`` [-],
+        ``step_jump_ratio`` [-], ``step_jump_floor_k`` [K], ``current_offset`` [A],
+        ``step_r_max_rel_stderr`` [-].
+
+    Returns
+    -------
+    The resistance and its error.
+
+    Raises
+    ------
+    InsufficientDataError : fewer than ``min_steps`` usable switch-off steps.
+    """
+    t = np.asarray(time_s, dtype=np.float64)
+    i = np.asarray(current, dtype=np.float64)
+    v = np.asarray(voltage, dtype=np.float64)
+    tm = np.asarray(t_mean_k, dtype=np.float64)
+    tm_sd = np.asarray(t_mean_sd_k, dtype=np.float64)
+    on = i > options.on_current
+    k = _switch_offs(t, on, usable & np.isfinite(tm), options.max_gap_s)
+    if t_hot is not None and k.size:
+        k = k[~_faces_jump(np.asarray(t_hot, dtype=np.float64), k, options)]
+    if k.size < options.min_steps:
+        raise InsufficientDataError(
+            f"{k.size} switch-off steps with two off samples after them, need {options.min_steps}",
+            "too few switch-offs followed by the module's open-circuit voltage",
+        )
+    gap, gap2 = t[k + 1] - t[k], t[k + 2] - t[k + 1]
+    slope = (v[k + 1] - v[k + 2]) / gap2
+    v_step = v[k + 1] + slope * 0.5 * gap
+    f_r = 1.0 + alpha * (tm[k] - T_25C_K)
+    r25_steps = (v[k] - v_step) / (i[k] * f_r)
+    r25 = float(np.median(r25_steps))
+    # The median of n normal values has a standard error of about 1.25·sd/√n.
+    scatter = 1.2533 * float(np.std(r25_steps, ddof=1)) / math.sqrt(k.size)
+    # Systematic, the same at every step: the unknown switch instant, Tm through α, the
+    # current reading's offset.
+    extrap = float(np.median(np.abs(slope) * gap / math.sqrt(12.0) / (i[k] * f_r)))
+    temp = r25 * alpha * float(np.median(tm_sd[k] / f_r))
+    cur = r25 * options.current_offset / float(np.sqrt(np.mean(i[k] ** 2)))
+    se = math.sqrt(scatter**2 + extrap**2 + temp**2 + cur**2)
+    reliable = se <= options.step_r_max_rel_stderr * abs(r25)
+    note = None
+    if not reliable:
+        note = f"R from {k.size} switch-off steps only within ±{100 * se / abs(r25):.1f} %"
+    return StepResistance(r25, se, int(k.size), reliable, note)
+
+
+def reconstruct_delta_t(
+    current: FloatArray,
+    voltage: FloatArray,
+    t_mean_k: FloatArray,
+    floating: bool,
+    r25: float,
+    r25_se: float,
+    s25: float,
+    s25_rel_sd: float,
+    *,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> tuple[FloatArray, FloatArray]:
+    """ΔT = Th - Tc from the module's voltage: (V - I·R(Tm))/S(Tm) driven, V/S(Tm) floating.
+
+    Goldsmid (2010), ch. 2; Harman (1958) for the open circuit. Off samples of a driver that
+    shorts or grounds the module carry no ΔT and come back NaN. The standard error carries
+    R25's through I·R/S, S's relative spread through ΔT itself, and the voltage reading's
+    offset over S (first order, JCGM 100:2008 eq. (13)).
+
+    Parameters
+    ----------
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_mean_k : Mean module temperature [K].
+    floating : Whether off samples show the open-circuit voltage [-].
+    r25 : Module resistance at 25 °C [ohm].
+    r25_se : Its standard error [ohm].
+    s25 : Module Seebeck coefficient at 25 °C [V/K].
+    s25_rel_sd : Relative standard deviation of ``s25`` [-].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : ``on_current`` [A], ``voltage_offset`` [V].
+
+    Returns
+    -------
+    (ΔT [K], its standard error [K]).
+    """
+    i = np.asarray(current, dtype=np.float64)
+    v = np.asarray(voltage, dtype=np.float64)
+    tm = np.asarray(t_mean_k, dtype=np.float64) - T_25C_K
+    on = i > options.on_current
+    f_r, s_t = 1.0 + alpha * tm, s25 * (1.0 + beta * tm)
+    ohmic = np.where(on, i * r25 * f_r, 0.0)
+    dt = (v - ohmic) / s_t
+    if not floating:
+        dt = np.where(on, dt, np.nan)
+    r_part = np.where(on, i * r25_se * f_r / s_t, 0.0)
+    se = np.sqrt(r_part**2 + (dt * s25_rel_sd) ** 2 + (options.voltage_offset / s_t) ** 2)
+    return np.asarray(dt, dtype=np.float64), np.asarray(se, dtype=np.float64)
+
+
+@dataclass(frozen=True)
+class FaceReconstruction:
+    """The faces as the module's voltage gives them, where probes lack.
+
+    Attributes
+    ----------
+    delta_t, delta_t_se : ΔT = Th - Tc and its standard error [K] (NaN where not known).
+    t_cold, t_cold_se : Cold face, Th - ΔT where the hot face is probed, else NaN [K].
+    t_mean, t_mean_sd : Mean module temperature behind R(Tm) and S(Tm) and its standard
+        deviation [K].
+    step : The resistance the voltage was read with.
+    basis : What the reconstruction rests on, in words.
+    """
+
+    delta_t: FloatArray
+    delta_t_se: FloatArray
+    t_cold: FloatArray
+    t_cold_se: FloatArray
+    t_mean: FloatArray
+    t_mean_sd: FloatArray
+    step: StepResistance
+    basis: str
+
+
+def _mean_temperature(
+    dt: FloatArray, dt_se: FloatArray, t_cabinet: FloatArray, t_ambient: FloatArray,
+    t_hot: FloatArray | None, probe_sd: float,
+) -> tuple[FloatArray, FloatArray]:  # fmt: skip
+    # Tm and its sd: Th - ΔT/2 where the hot face is probed. Otherwise Th = Ta + rise_h,
+    # Tc = Tcab - rise_c give Tm = (Ta + Tcab)/2 + (rise_h - rise_c)/2 with
+    # |rise_h - rise_c| <= rise_h + rise_c = ΔT - (Ta - Tcab): taken as uniform over that.
+    if t_hot is not None:
+        return t_hot - 0.5 * dt, np.hypot(0.5 * dt_se, probe_sd)
+    spread = np.maximum(np.nan_to_num(dt, nan=0.0) - (t_ambient - t_cabinet), 0.0)
+    return 0.5 * (t_ambient + t_cabinet), np.hypot(spread / (2.0 * math.sqrt(3.0)), probe_sd)
+
+
+def reconstruct_faces(
+    time_s: FloatArray,
+    current: FloatArray,
+    voltage: FloatArray,
+    t_cabinet: FloatArray,
+    t_ambient: FloatArray,
+    t_hot: FloatArray | None,
+    usable: BoolArray,
+    *,
+    floating: bool,
+    r25_rated: float,
+    s25: float,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> FaceReconstruction:
+    """ΔT, and the cold face where the hot one is probed, from the module's own voltage.
+
+    R25 from switch-off steps (:func:`step_resistance`), S25 held at ``s25`` (registered
+    ratings) with the spread between units of a type (``seebeck_unit_rel_sd``), then
+    :func:`reconstruct_delta_t`; Tc = Th - ΔT. The mean module temperature behind R(Tm) and
+    S(Tm) comes from the hot probe and ΔT, or without one from the cabinet and the ambient
+    (:func:`_mean_temperature`); it is refined once with the steps' R. Without a hot probe the
+    faces have no anchor (the hot sink's rise above the ambient needs its resistance, which
+    needs Th): ΔT and R25 are what hold, t_cold stays NaN.
+
+    Parameters
+    ----------
+    time_s : Sample times [s].
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_cabinet, t_ambient : Cabinet air and ambient [K].
+    t_hot : Hot face, None where not probed [K].
+    usable : Samples that may be used [-].
+    floating : Whether off samples show the open-circuit voltage [-].
+    r25_rated, s25 : Registered ratings' R25 [ohm] (a first Tm only) and S25 [V/K].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : as :func:`step_resistance`, and ``seebeck_unit_rel_sd`` [-],
+        ``probe_offset_k`` [K].
+
+    Returns
+    -------
+    The reconstruction.
+
+    Raises
+    ------
+    NotSeparableError : the driver does not float (no open-circuit voltage).
+    InsufficientDataError : too few switch-off steps.
+    """
+    if not floating:
+        raise NotSeparableError(
+            "no open-circuit voltage and no face probes: R25 and S not separable",
+            "no open-circuit voltage seen (a driver that holds the module at zero volts while "
+            "off, or a module that never rests) and no face probes: R25 and S cannot be told "
+            "apart",
+        )
+    i, v = np.asarray(current, dtype=np.float64), np.asarray(voltage, dtype=np.float64)
+    tcab, ta = np.asarray(t_cabinet, dtype=np.float64), np.asarray(t_ambient, dtype=np.float64)
+    th = None if t_hot is None else np.asarray(t_hot, dtype=np.float64)
+    s_rel = options.seebeck_unit_rel_sd
+    r25, r25_se = r25_rated, 0.0
+    step: StepResistance | None = None
+    tm = 0.5 * (tcab + ta)
+    for _ in range(2):
+        dt, dt_se = reconstruct_delta_t(
+            i, v, tm, True, r25, r25_se, s25, s_rel, alpha=alpha, beta=beta, options=options
+        )
+        tm, tm_sd = _mean_temperature(dt, dt_se, tcab, ta, th, options.probe_offset_k)
+        step = step_resistance(
+            time_s, i, v, tm, usable, t_mean_sd_k=tm_sd, t_hot=th, alpha=alpha, options=options
+        )
+        r25, r25_se = step.r25, step.r25_se
+    assert step is not None
+    dt, dt_se = reconstruct_delta_t(
+        i, v, tm, True, r25, r25_se, s25, s_rel, alpha=alpha, beta=beta, options=options
+    )
+    rs = f"R25 from {step.n_steps} switch-off steps, S from the registered ratings"
+    if th is None:
+        tc, tc_se = np.full_like(dt, np.nan), np.full_like(dt, np.nan)
+        basis = f"no face probes: ΔT from the module's voltage ({rs}); faces unanchored"
+    else:
+        tc, tc_se = th - dt, np.hypot(dt_se, options.probe_offset_k)
+        basis = f"cold face = hot probe - ΔT from the module's voltage ({rs})"
+    return FaceReconstruction(dt, dt_se, tc, tc_se, tm, tm_sd, step, basis)

@@ -113,7 +113,8 @@ def _window(data: Readings, b: int, cfg: AnalysisSettings) -> _Window | None:
     tm = 0.5 * (tc + th)
     usable = fl.usable
     off = usable & ~fl.on
-    floating = dg.detect_floating_driver(v[off], dt[off])
+    # Faces read from the voltage imply an open-circuit voltage was seen.
+    floating = data.faces is not None or dg.detect_floating_driver(v[off], dt[off])
     return _Window(
         b=b, w=w, wt=wt, n=n, fl=fl, usable_th=usable_th, t=t, tcab=tcab, tc=tc, th=th, ta=ta,
         i=i, v=v, dt=dt, tm=tm, usable=usable, off=off, floating=floating,

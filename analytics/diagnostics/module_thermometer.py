@@ -301,6 +301,25 @@ def _mean_temperature(
     return 0.5 * (t_ambient + t_cabinet), np.hypot(spread / (2.0 * math.sqrt(3.0)), probe_sd)
 
 
+def _check_lift(dt: FloatArray, dt_se: FloatArray, on: BoolArray, lead: FloatArray) -> None:
+    # While the module cools, heat flows from the cabinet into the cold face and from the hot
+    # face into the ambient, so Tc <= Tcab and Th >= Ta: ΔT >= Ta - Tcab (second law; common
+    # practice, no source). A ΔT read with the steps' R that stays below it means R came out
+    # high: the faces moved within a sample at the switch-offs, not continuously.
+    ok = on & np.isfinite(dt) & np.isfinite(lead)
+    if ok.sum() < 5:
+        return
+    short = float(np.median((dt - lead)[ok]))
+    if short < -2.0 * float(np.median(dt_se[ok])):
+        raise InsufficientDataError(
+            f"ΔT read with the steps' R25 is {-short:.1f} K below the ambient's lead over the "
+            "cabinet while the module cools",
+            "the switch-off steps give a resistance the heat flows rule out (ΔT below the "
+            "ambient's lead over the cabinet while cooling): the faces change faster than "
+            "the samples, so the module's voltage cannot stand in for the missing probes",
+        )
+
+
 def reconstruct_faces(
     time_s: FloatArray,
     current: FloatArray,
@@ -325,7 +344,9 @@ def reconstruct_faces(
     S(Tm) comes from the hot probe and ΔT, or without one from the cabinet and the ambient
     (:func:`_mean_temperature`); it is refined once with the steps' R. Without a hot probe the
     faces have no anchor (the hot sink's rise above the ambient needs its resistance, which
-    needs Th): ΔT and R25 are what hold, t_cold stays NaN.
+    needs Th): ΔT and R25 are what hold, t_cold stays NaN. While the module cools, ΔT must
+    be at least the ambient's lead over the cabinet (Tc <= Tcab, Th >= Ta): a ΔT that falls
+    short on most on samples rules the steps' R out.
 
     Parameters
     ----------
@@ -348,7 +369,8 @@ def reconstruct_faces(
     Raises
     ------
     NotSeparableError : the driver does not float (no open-circuit voltage).
-    InsufficientDataError : too few switch-off steps.
+    InsufficientDataError : too few switch-off steps, or a ΔT read with their R that the
+        heat flows rule out (below the ambient's lead over the cabinet while cooling).
     """
     if not floating:
         raise NotSeparableError(
@@ -377,6 +399,7 @@ def reconstruct_faces(
     dt, dt_se = reconstruct_delta_t(
         i, v, tm, True, r25, r25_se, s25, s_rel, alpha=alpha, beta=beta, options=options
     )
+    _check_lift(dt, dt_se, i > options.on_current, ta - tcab)
     rs = f"R25 from {step.n_steps} switch-off steps, S from the registered ratings"
     if th is None:
         tc, tc_se = np.full_like(dt, np.nan), np.full_like(dt, np.nan)

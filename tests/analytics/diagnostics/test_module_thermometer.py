@@ -234,3 +234,18 @@ def test_runner_states_why_a_zero_volt_unit_without_face_probes_has_no_faces(
     assert data.faces is None
     assert data.faces_missing is not None and "cannot be told apart" in data.faces_missing
     assert np.isnan(data.tc).all()
+
+
+def test_a_resistance_the_heat_flows_rule_out_gives_no_faces() -> None:
+    # Faces that jump at the switch and no hot probe to show it: the steps' R then holds
+    # S·(30 - 5) K / 3 A = 0.42 Ω besides the hand-worked 2.0 Ω, and ΔT read with it comes
+    # out 30 - 0.42 × 3 / 0.0508 = 5 K, below the 17 K the ambient leads the cabinet by. While
+    # the module cools, Tc <= Tcab and Th >= Ta (heat flows from warm to cold; common
+    # practice, no source), so no R and no faces are given.
+    t, i, v, _ = _hand_trace(600.0, jump=True)
+    n = t.size
+    with pytest.raises(InsufficientDataError, match="ambient's lead"):
+        mt.reconstruct_faces(
+            t, i, v, np.full(n, 278.0), np.full(n, 295.0), None, np.ones(n, dtype=bool),
+            floating=True, r25_rated=R_HAND, s25=S_HAND,
+        )  # fmt: skip

@@ -30,7 +30,9 @@ from .hot_side import hot_side_resistance_ratio, hot_side_resistance_ratios
 from .module_thermometer import (
     FaceReconstruction,
     NotSeparableError,
+    delta_t_from_hot_face,
     floating_without_faces,
+    reconstruct_delta_t,
     reconstruct_faces,
 )
 from .options import DEFAULT_OPTIONS, TYPICAL_MODULE_ZT, DiagnosticsOptions
@@ -50,6 +52,7 @@ __all__ = [
     "Performance",
     "SampleFlags",
     "ThermalFit",
+    "delta_t_from_hot_face",
     "detect_floating_driver",
     "fit_electrical",
     "fit_held",
@@ -61,6 +64,7 @@ __all__ = [
     "hot_side_resistance_ratios",
     "performance_now",
     "propagate",
+    "reconstruct_delta_t",
     "reconstruct_faces",
     "setpoint_capacity",
 ]

@@ -40,6 +40,7 @@ __all__ = [
     "FaceReconstruction",
     "NotSeparableError",
     "StepResistance",
+    "delta_t_from_hot_face",
     "floating_without_faces",
     "reconstruct_delta_t",
     "reconstruct_faces",
@@ -126,19 +127,35 @@ def _faces_jump(
     )
 
 
+def _step_mean_temperature(
+    dt_step: FloatArray,
+    t_cabinet: FloatArray,
+    t_ambient: FloatArray,
+    t_hot: FloatArray | None,
+    s_rel: float,
+    probe_sd: float,
+) -> tuple[FloatArray, FloatArray]:
+    # Tm at each step and its sd, with ΔT there from the open-circuit voltage (no R needed):
+    # Th - ΔT/2 where the hot face is probed, else the middle of cabinet and ambient.
+    if t_hot is not None:
+        return t_hot - 0.5 * dt_step, np.hypot(0.5 * s_rel * dt_step, probe_sd)
+    return 0.5 * (t_cabinet + t_ambient), _unanchored_sd(dt_step, t_cabinet, t_ambient, probe_sd)
+
+
 def step_resistance(
     time_s: FloatArray,
     current: FloatArray,
     voltage: FloatArray,
-    t_mean_k: FloatArray,
+    t_cabinet: FloatArray,
+    t_ambient: FloatArray,
+    t_hot: FloatArray | None,
     usable: BoolArray,
     *,
-    t_mean_sd_k: FloatArray,
-    t_hot: FloatArray | None = None,
+    s25: float,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> StepResistance:
-    """R25 from switch-off steps of a floating driver, without face probes.
+    """R25 from switch-off steps of a floating driver, without a cold-side probe.
 
     At each step, R = (V_on - V_off)/I_on (Harman 1958), V_on the last on sample, V_off the
     first two off samples extrapolated linearly back to the middle of the interval holding
@@ -148,24 +165,25 @@ def step_resistance(
     second difference half an interval before the first). Against simulated coolers with
     known truth and one-minute samples the steps' R25 came within 1 % where the sinks' time
     constants were several minutes (500/1500 J/K), and scattered by ±3 % at about one minute
-    (150/400 J/K). R is referred to 25 °C with
-    R25 = R/(1 + α·(Tm - 25 °C)) (:func:`..physics.resistance_at_25c`), Tm from whatever
-    probes exist and its standard deviation carried through α. With a hot probe given, steps
-    across which it jumps (faces that follow the current within a sample) are left out.
+    (150/400 J/K). R is referred to 25 °C with R25 = R/(1 + α·(Tm - 25 °C))
+    (:func:`..physics.resistance_at_25c`); ΔT at the step is V_off/S, so Tm needs no R:
+    Th - ΔT/2 with a hot probe, else (Ta + Tcab)/2 within the bound of
+    :func:`reconstruct_faces`, its standard deviation carried through α. With a hot probe,
+    steps across which it jumps (faces that follow the current within a sample) are left out.
 
     Parameters
     ----------
     time_s : Sample times [s].
     current : Module current [A].
     voltage : Module voltage [V].
-    t_mean_k : Mean module temperature, from the probes that exist [K].
+    t_cabinet, t_ambient : Cabinet air and ambient [K].
+    t_hot : Hot-face temperature, None where not probed [K].
     usable : Samples that may be used [-].
-    t_mean_sd_k : Standard deviation of ``t_mean_k`` [K].
-    t_hot : Hot-face temperature, where probed [K].
+    s25 : Module Seebeck coefficient at 25 °C, e.g. from the ratings [V/K].
     alpha : Temperature coefficient of R [1/K].
     options : ``on_current`` [A], ``max_gap_s`` [s], ``min_steps`` [-],
         ``step_jump_ratio`` [-], ``step_jump_floor_k`` [K], ``current_offset`` [A],
-        ``step_r_max_rel_stderr`` [-].
+        ``step_r_max_rel_stderr`` [-], ``seebeck_unit_rel_sd`` [-], ``probe_offset_k`` [K].
 
     Returns
     -------
@@ -178,31 +196,36 @@ def step_resistance(
     t = np.asarray(time_s, dtype=np.float64)
     i = np.asarray(current, dtype=np.float64)
     v = np.asarray(voltage, dtype=np.float64)
-    tm = np.asarray(t_mean_k, dtype=np.float64)
-    tm_sd = np.asarray(t_mean_sd_k, dtype=np.float64)
+    th = None if t_hot is None else np.asarray(t_hot, dtype=np.float64)
     on = i > options.on_current
-    k = _switch_offs(t, on, usable & np.isfinite(tm), options.max_gap_s)
-    if t_hot is not None and k.size:
-        k = k[~_faces_jump(np.asarray(t_hot, dtype=np.float64), k, options)]
+    k = _switch_offs(t, on, usable, options.max_gap_s)
+    if th is not None and k.size:
+        k = k[~_faces_jump(th, k, options)]
     if k.size < options.min_steps:
         raise InsufficientDataError(
-            f"{k.size} switch-off steps with two off samples after them, need {options.min_steps}",
+            f"{k.size} switch-off steps with three off samples after them, need "
+            f"{options.min_steps}",
             "too few switch-offs followed by the module's open-circuit voltage",
         )
     gap, gap2 = t[k + 1] - t[k], t[k + 2] - t[k + 1]
     slope = (v[k + 1] - v[k + 2]) / gap2
     v_step = v[k + 1] + slope * 0.5 * gap
-    f_r = 1.0 + alpha * (tm[k] - T_25C_K)
+    tm, tm_sd = _step_mean_temperature(
+        v_step / s25, np.asarray(t_cabinet, dtype=np.float64)[k],
+        np.asarray(t_ambient, dtype=np.float64)[k], None if th is None else th[k],
+        options.seebeck_unit_rel_sd, options.probe_offset_k,
+    )  # fmt: skip
+    f_r = 1.0 + alpha * (tm - T_25C_K)
     r25_steps = (v[k] - v_step) / (i[k] * f_r)
     r25 = float(np.median(r25_steps))
     # The median of n normal values has a standard error of about 1.25·sd/√n.
     scatter = 1.2533 * float(np.std(r25_steps, ddof=1)) / math.sqrt(k.size)
-    # Systematic, the same at every step: the unknown switch instant, Tm through α, the
-    # current reading's offset.
+    # Systematic, the same at every step: the unknown switch instant and the decay's
+    # curvature, Tm through α, the current reading's offset.
     curve = 0.375 * np.abs(v[k + 1] - 2.0 * v[k + 2] + v[k + 3])
     instant = np.abs(slope) * gap / math.sqrt(12.0)
     extrap = float(np.median(np.hypot(instant, curve) / (i[k] * f_r)))
-    temp = r25 * alpha * float(np.median(tm_sd[k] / f_r))
+    temp = r25 * alpha * float(np.median(tm_sd / f_r))
     cur = r25 * options.current_offset / float(np.sqrt(np.mean(i[k] ** 2)))
     se = math.sqrt(scatter**2 + extrap**2 + temp**2 + cur**2)
     reliable = se <= options.step_r_max_rel_stderr * abs(r25)
@@ -222,6 +245,7 @@ def reconstruct_delta_t(
     s25: float,
     s25_rel_sd: float,
     *,
+    t_mean_sd_k: FloatArray | float = 0.0,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
     beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
@@ -230,8 +254,10 @@ def reconstruct_delta_t(
 
     Goldsmid (2010), ch. 2; Harman (1958) for the open circuit. Off samples of a driver that
     shorts or grounds the module carry no ΔT and come back NaN. The standard error carries
-    R25's through I·R/S, S's relative spread through ΔT itself, and the voltage reading's
-    offset over S (first order, JCGM 100:2008 eq. (13)).
+    R25's through I·R/S, S's relative spread through ΔT itself, the voltage reading's offset
+    over S, and Tm's through R(Tm) and S(Tm): (I·R25·α + ΔT·S25·β)/S per kelvin, about 1 K of
+    ΔT per kelvin of Tm for a module driven near its rated current (first order,
+    JCGM 100:2008 eq. (13)).
 
     Parameters
     ----------
@@ -243,6 +269,7 @@ def reconstruct_delta_t(
     r25_se : Its standard error [ohm].
     s25 : Module Seebeck coefficient at 25 °C [V/K].
     s25_rel_sd : Relative standard deviation of ``s25`` [-].
+    t_mean_sd_k : Standard deviation of ``t_mean_k`` [K].
     alpha, beta : Temperature coefficients of R and S [1/K].
     options : ``on_current`` [A], ``voltage_offset`` [V].
 
@@ -260,7 +287,10 @@ def reconstruct_delta_t(
     if not floating:
         dt = np.where(on, dt, np.nan)
     r_part = np.where(on, i * r25_se * f_r / s_t, 0.0)
-    se = np.sqrt(r_part**2 + (dt * s25_rel_sd) ** 2 + (options.voltage_offset / s_t) ** 2)
+    tm_part = (np.where(on, i * r25 * alpha, 0.0) + dt * s25 * beta) / s_t * t_mean_sd_k
+    se = np.sqrt(
+        r_part**2 + (dt * s25_rel_sd) ** 2 + (options.voltage_offset / s_t) ** 2 + tm_part**2
+    )
     return np.asarray(dt, dtype=np.float64), np.asarray(se, dtype=np.float64)
 
 
@@ -288,17 +318,64 @@ class FaceReconstruction:
     basis: str
 
 
-def _mean_temperature(
-    dt: FloatArray, dt_se: FloatArray, t_cabinet: FloatArray, t_ambient: FloatArray,
-    t_hot: FloatArray | None, probe_sd: float,
-) -> tuple[FloatArray, FloatArray]:  # fmt: skip
-    # Tm and its sd: Th - ΔT/2 where the hot face is probed. Otherwise Th = Ta + rise_h,
-    # Tc = Tcab - rise_c give Tm = (Ta + Tcab)/2 + (rise_h - rise_c)/2 with
-    # |rise_h - rise_c| <= rise_h + rise_c = ΔT - (Ta - Tcab): taken as uniform over that.
-    if t_hot is not None:
-        return t_hot - 0.5 * dt, np.hypot(0.5 * dt_se, probe_sd)
+def _unanchored_sd(
+    dt: FloatArray, t_cabinet: FloatArray, t_ambient: FloatArray, probe_sd: float
+) -> FloatArray:
+    # Without a hot probe Tm is taken as (Ta + Tcab)/2: Th = Ta + rise_h, Tc = Tcab - rise_c
+    # give Tm = (Ta + Tcab)/2 + (rise_h - rise_c)/2 with |rise_h - rise_c| <= rise_h + rise_c
+    # = ΔT - (Ta - Tcab), taken as uniform over that.
     spread = np.maximum(np.nan_to_num(dt, nan=0.0) - (t_ambient - t_cabinet), 0.0)
-    return 0.5 * (t_ambient + t_cabinet), np.hypot(spread / (2.0 * math.sqrt(3.0)), probe_sd)
+    return np.asarray(np.hypot(spread / (2.0 * math.sqrt(3.0)), probe_sd), dtype=np.float64)
+
+
+def delta_t_from_hot_face(
+    current: FloatArray,
+    voltage: FloatArray,
+    t_hot: FloatArray,
+    floating: bool,
+    r25: float,
+    s25: float,
+    *,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> FloatArray:
+    """ΔT from the module's voltage where the hot face is probed, Tm = Th - ΔT/2 solved with it.
+
+    R(Tm) moves ΔT by about 1 K per kelvin of Tm (see :func:`reconstruct_delta_t`), so Tm is
+    not guessed: with x = Th - ΔT/2 - 25 °C, V = S25·(1 + β·x)·ΔT + I·R25·(1 + α·x) is the
+    quadratic a·ΔT² + b·ΔT + c = 0 with a = -S25·β/2, b = S25·(1 + β·h) - I·R25·α/2,
+    c = I·R25·(1 + α·h) - V, h = Th - 25 °C; the root near -c/b is taken in its stable form
+    -2c/(b + √(b² - 4ac)) (Goldsmid 2010, ch. 2, with the temperature laws of
+    :func:`..physics.resistance_at_temperature`).
+
+    Parameters
+    ----------
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_hot : Hot face [K].
+    floating : Whether off samples show the open-circuit voltage [-].
+    r25, s25 : Module resistance [ohm] and Seebeck coefficient [V/K] at 25 °C.
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : ``on_current`` [A].
+
+    Returns
+    -------
+    ΔT [K]; NaN off a driver that does not float, or where the quadratic has no such root.
+    """
+    i = np.asarray(current, dtype=np.float64)
+    v = np.asarray(voltage, dtype=np.float64)
+    h = np.asarray(t_hot, dtype=np.float64) - T_25C_K
+    ir = np.where(i > options.on_current, i * r25, 0.0)
+    a = -0.5 * s25 * beta
+    b = s25 * (1.0 + beta * h) - 0.5 * ir * alpha
+    c = ir * (1.0 + alpha * h) - v
+    disc = b * b - 4.0 * a * c
+    ok = (b > 0.0) & (disc >= 0.0)
+    dt = np.where(ok, -2.0 * c / (b + np.sqrt(np.where(ok, disc, 0.0))), np.nan)
+    if not floating:
+        dt = np.where(i > options.on_current, dt, np.nan)
+    return np.asarray(dt, dtype=np.float64)
 
 
 def _check_lift(dt: FloatArray, dt_se: FloatArray, on: BoolArray, lead: FloatArray) -> None:
@@ -330,7 +407,6 @@ def reconstruct_faces(
     usable: BoolArray,
     *,
     floating: bool,
-    r25_rated: float,
     s25: float,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
     beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
@@ -339,13 +415,15 @@ def reconstruct_faces(
     """ΔT, and the cold face where the hot one is probed, from the module's own voltage.
 
     R25 from switch-off steps (:func:`step_resistance`), S25 held at ``s25`` (registered
-    ratings) with the spread between units of a type (``seebeck_unit_rel_sd``), then
-    :func:`reconstruct_delta_t`; Tc = Th - ΔT. The mean module temperature behind R(Tm) and
-    S(Tm) comes from the hot probe and ΔT, or without one from the cabinet and the ambient
-    (:func:`_mean_temperature`); it is refined once with the steps' R. Without a hot probe the
-    faces have no anchor (the hot sink's rise above the ambient needs its resistance, which
-    needs Th): ΔT and R25 are what hold, t_cold stays NaN. While the module cools, ΔT must
-    be at least the ambient's lead over the cabinet (Tc <= Tcab, Th >= Ta): a ΔT that falls
+    ratings) with the spread between units of a type (``seebeck_unit_rel_sd``), then ΔT from
+    the voltage; Tc = Th - ΔT. The mean module temperature behind R(Tm) and S(Tm) matters
+    (about 1 K of ΔT per kelvin): with a hot probe Tm = Th - ΔT/2 is solved together with ΔT
+    (:func:`delta_t_from_hot_face`); without one it is the middle of cabinet and ambient
+    within a stated bound.
+    Without a hot probe the faces have no anchor (the hot sink's rise above the ambient needs
+    its resistance, which needs Th): ΔT and R25 are what hold, t_cold stays NaN. While the
+    module cools, ΔT must be at least the ambient's lead over the cabinet (Tc <= Tcab,
+    Th >= Ta): a ΔT that falls
     short on most on samples rules the steps' R out.
 
     Parameters
@@ -357,7 +435,7 @@ def reconstruct_faces(
     t_hot : Hot face, None where not probed [K].
     usable : Samples that may be used [-].
     floating : Whether off samples show the open-circuit voltage [-].
-    r25_rated, s25 : Registered ratings' R25 [ohm] (a first Tm only) and S25 [V/K].
+    s25 : Registered ratings' S25 [V/K].
     alpha, beta : Temperature coefficients of R and S [1/K].
     options : as :func:`step_resistance`, and ``seebeck_unit_rel_sd`` [-],
         ``probe_offset_k`` [K].
@@ -382,23 +460,27 @@ def reconstruct_faces(
     i, v = np.asarray(current, dtype=np.float64), np.asarray(voltage, dtype=np.float64)
     tcab, ta = np.asarray(t_cabinet, dtype=np.float64), np.asarray(t_ambient, dtype=np.float64)
     th = None if t_hot is None else np.asarray(t_hot, dtype=np.float64)
-    s_rel = options.seebeck_unit_rel_sd
-    r25, r25_se = r25_rated, 0.0
-    step: StepResistance | None = None
-    tm = 0.5 * (tcab + ta)
-    for _ in range(2):
-        dt, dt_se = reconstruct_delta_t(
-            i, v, tm, True, r25, r25_se, s25, s_rel, alpha=alpha, beta=beta, options=options
-        )
-        tm, tm_sd = _mean_temperature(dt, dt_se, tcab, ta, th, options.probe_offset_k)
-        step = step_resistance(
-            time_s, i, v, tm, usable, t_mean_sd_k=tm_sd, t_hot=th, alpha=alpha, options=options
-        )
-        r25, r25_se = step.r25, step.r25_se
-    assert step is not None
-    dt, dt_se = reconstruct_delta_t(
-        i, v, tm, True, r25, r25_se, s25, s_rel, alpha=alpha, beta=beta, options=options
+    s_rel, probe = options.seebeck_unit_rel_sd, options.probe_offset_k
+    step = step_resistance(
+        time_s, i, v, tcab, ta, th, usable, s25=s25, alpha=alpha, options=options
     )
+    r25 = step.r25
+    if th is not None:
+        dt = delta_t_from_hot_face(i, v, th, True, r25, s25, alpha=alpha, beta=beta,
+                                   options=options)  # fmt: skip
+        tm, tm_sd = th - 0.5 * dt, np.full_like(dt, probe)
+    else:
+        tm = 0.5 * (tcab + ta)
+        dt, _ = reconstruct_delta_t(
+            i, v, tm, True, r25, 0.0, s25, 0.0, alpha=alpha, beta=beta, options=options
+        )
+        tm_sd = _unanchored_sd(dt, tcab, ta, probe)
+    _, dt_se = reconstruct_delta_t(
+        i, v, tm, True, r25, step.r25_se, s25, s_rel, t_mean_sd_k=tm_sd, alpha=alpha,
+        beta=beta, options=options,
+    )  # fmt: skip
+    if th is not None:
+        tm_sd = np.hypot(tm_sd, 0.5 * dt_se)
     _check_lift(dt, dt_se, i > options.on_current, ta - tcab)
     rs = f"R25 from {step.n_steps} switch-off steps, S from the registered ratings"
     if th is None:

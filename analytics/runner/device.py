@@ -9,7 +9,7 @@ from sqlalchemy.engine import Connection
 
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics.runner.daily import daily
-from tecfleet.analytics.runner.data import complete_faces, load, priors
+from tecfleet.analytics.runner.data import faces_to_flag, load, priors
 from tecfleet.analytics.runner.hot_side import hot_side, hourly
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
@@ -51,18 +51,18 @@ def analyze_device(
         cfg.margin_s * 1000
     )
     data = load(conn, dev.device_id, done - lookback, end)
-    prior = priors(dev.module, cfg)
-    complete_faces(data, prior, cfg)
     # Flags once for everything loaded. They depend on at most door_settle_s/settle_s of
     # look-back (within margin_s) and never on a reading after the end of its own step, so
     # they come out the same however the history is split into runs.
     stp = data.ts // step
     breaks = np.append(stp[1:] != stp[:-1], True) if data.ts.size else np.zeros(0, dtype=bool)
+    tc, th = faces_to_flag(data)
     data.flags = dg.flag_samples(
-        data.t, data.tcab, data.tc, data.th, data.ta, data.i, data.v, data.door,
+        data.t, data.tcab, tc, th, data.ta, data.i, data.v, data.door,
         breaks=breaks, options=diagnostics_options(cfg),
     )  # fmt: skip
     rows = EstimateRows(dev.device_id)
+    prior = priors(dev.module, cfg)
     cabinet = dev.cabinet if isinstance(dev.cabinet, dict) else {}
     setpoint_c = float(cabinet.get("setpoint_c") or cfg.default_setpoint_c)
     steps = 0

@@ -18,7 +18,7 @@ from tecfleet.analytics import physics
 from tecfleet.analytics._validate import T_25C_K, FloatArray
 from tecfleet.analytics.errors import InsufficientDataError, PhysicsError
 from tecfleet.analytics.runner import settled
-from tecfleet.analytics.runner.data import Readings, flags_of
+from tecfleet.analytics.runner.data import Readings, complete_faces, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
@@ -77,6 +77,9 @@ def fit_window(
     cfg: AnalysisSettings,
 ) -> None:
     """All estimates of the window ending at ``b`` (epoch ms UTC), and what the state keeps."""
+    # Where a face probe is missing, the faces of the thermal window from its own readings.
+    wt = data.slice(b - max(cfg.thermal_window_s, cfg.window_s) * 1000, b)
+    complete_faces(data, wt, prior, cfg)
     win = _window(data, b, cfg)
     if win is None:
         return
@@ -178,8 +181,9 @@ def _electrical(
     on = usable & win.fl.on
     tm = win.tm
     if data.faces is not None:
-        # Faces read from the voltage: the mean module temperature the reconstruction used.
-        tm = data.faces.t_mean[win.w]
+        # Faces read from the voltage: the mean module temperature the reconstruction used
+        # (over the thermal window, which ends with this one).
+        tm = data.faces.t_mean[win.w.start - win.wt.start : win.w.stop - win.wt.start]
         on = (i > cfg.on_current) & np.isfinite(tm)
     tm_on = float(np.mean(tm[on])) if on.any() else T_25C_K
     f_r = 1.0 + cfg.alpha * (tm_on - T_25C_K)

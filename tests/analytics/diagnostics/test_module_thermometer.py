@@ -19,7 +19,7 @@ from tecfleet.analytics import simulation as sim
 from tecfleet.analytics._validate import T_25C_K
 from tecfleet.analytics.diagnostics import module_thermometer as mt
 from tecfleet.analytics.errors import InsufficientDataError
-from tecfleet.analytics.runner.data import Readings, complete_faces, priors
+from tecfleet.analytics.runner.data import Readings, complete_faces, fill_cold_face, priors
 from tecfleet.analytics.runner.settings import AnalysisSettings
 from tecfleet.analytics.simulation.chunk import Chunk, concat
 
@@ -98,10 +98,12 @@ def _hand_trace(tau_s: float, jump: bool = False) -> tuple[np.ndarray, ...]:
 def test_switch_off_steps_give_harman_resistance_where_faces_carry_heat() -> None:
     # Harman (1958): R = (V_on - V_off)/I_on with ΔT continuous across the step. Faces that
     # relax over 10 min: the hand-worked R = 2.0 Ω, to within the stated error.
-    t, i, v, _ = _hand_trace(600.0)
+    t, i, v, dt = _hand_trace(600.0)
     n = t.size
+    # Hot face at 25 °C + ΔT/2, so that Tm = Th - ΔT/2 is 25 °C throughout (factors of 1).
+    th = T_25C_K + 0.5 * dt
     res = mt.step_resistance(
-        t, i, v, np.full(n, T_25C_K), np.ones(n, dtype=bool), t_mean_sd_k=np.zeros(n)
+        t, i, v, np.full(n, 278.0), np.full(n, 295.0), th, np.ones(n, dtype=bool), s25=S_HAND
     )
     assert res.n_steps == 12
     assert abs(res.r25 - R_HAND) <= 2.0 * res.r25_se
@@ -118,8 +120,8 @@ def test_steps_where_the_hot_face_jumps_are_left_out() -> None:
     n = t.size
     with pytest.raises(InsufficientDataError):
         mt.step_resistance(
-            t, i, v, np.full(n, T_25C_K), np.ones(n, dtype=bool), t_mean_sd_k=np.zeros(n),
-            t_hot=th,
+            t, i, v, np.full(n, 278.0), np.full(n, 295.0), th, np.ones(n, dtype=bool),
+            s25=S_HAND,
         )  # fmt: skip
 
 
@@ -131,7 +133,7 @@ def test_zero_volt_driver_without_face_probes_is_not_separable() -> None:
     with pytest.raises(mt.NotSeparableError, match="not separable"):
         mt.reconstruct_faces(
             t, i, np.where(i > 0, v, 0.0), np.full(n, 278.0), np.full(n, 295.0), None,
-            np.ones(n, dtype=bool), floating=False, r25_rated=R_HAND, s25=S_HAND,
+            np.ones(n, dtype=bool), floating=False, s25=S_HAND,
         )  # fmt: skip
 
 
@@ -139,6 +141,21 @@ def test_floating_is_told_from_zero_volts_without_face_probes() -> None:
     # An idle module's few kelvin show tenths of a volt (Harman 1958); a shorted driver 0 V.
     assert mt.floating_without_faces(np.full(20, S_HAND * 4.0))
     assert not mt.floating_without_faces(np.zeros(20))
+
+
+def test_a_resistance_the_heat_flows_rule_out_gives_no_faces() -> None:
+    # Faces that jump at the switch and no hot probe to show it: the steps' R then holds
+    # S·(30 - 5) K / 3 A = 0.42 Ω besides the hand-worked 2.0 Ω, and ΔT read with it comes
+    # out 30 - 0.42 × 3 / 0.0508 = 5 K, below the 17 K the ambient leads the cabinet by. While
+    # the module cools, Tc <= Tcab and Th >= Ta (heat flows from warm to cold; common
+    # practice, no source), so no R and no faces are given.
+    t, i, v, _ = _hand_trace(600.0, jump=True)
+    n = t.size
+    with pytest.raises(InsufficientDataError, match="ambient's lead"):
+        mt.reconstruct_faces(
+            t, i, v, np.full(n, 278.0), np.full(n, 295.0), None, np.ones(n, dtype=bool),
+            floating=True, s25=S_HAND,
+        )  # fmt: skip
 
 
 @pytest.fixture(scope="module")
@@ -171,7 +188,7 @@ def test_cold_face_without_its_probe_matches_the_simulated_truth(
         rec = mt.reconstruct_faces(
             c.ts[ok, j], m["current"][ok, j], m["voltage"][ok, j],
             m["t_cabinet"][ok, j] + T0, m["t_ambient"][ok, j] + T0, m["t_hot"][ok, j] + T0,
-            np.ones(int(ok.sum()), dtype=bool), floating=True, r25_rated=prior.resistance,
+            np.ones(int(ok.sum()), dtype=bool), floating=True,
             s25=prior.seebeck,
         )  # fmt: skip
         assert abs(rec.step.r25 / d.r25 - 1.0) <= max(0.02, 2.0 * rec.step.r25_se / d.r25)
@@ -198,25 +215,31 @@ def test_runner_fills_the_cold_face_only_where_its_probe_is_missing(
 ) -> None:
     # Both probes present: the arrays stay exactly as loaded. Cold probe missing (NaN, as a
     # cooler without it delivers): the cold face is read from the voltage, near the
-    # simulator's true face (simulated truth), and what it rests on is kept.
+    # simulator's true face (simulated truth), and what it rests on is kept; the hours after
+    # the window are read with the window's R25 and S.
     spec, c = simulated
     cfg = AnalysisSettings()
     prior = priors(spec.devices[0].registration()["module"], cfg)
+    assert prior is not None
     full = _readings(c, 0)
     before = full.tc.copy()
-    complete_faces(full, prior, cfg)
+    complete_faces(full, slice(0, full.ts.size), prior, cfg)
     assert full.faces is None and full.faces_missing is None
     assert np.array_equal(full.tc, before)
 
     reduced = _readings(c, 0)
     reduced.tc = np.full_like(reduced.tc, np.nan)
-    complete_faces(reduced, prior, cfg)
+    reduced.cold_probe = False
+    n = reduced.ts.size
+    complete_faces(reduced, slice(0, n // 2), prior, cfg)
     assert reduced.faces is not None
     assert "hot probe" in reduced.faces.basis
+    assert np.isnan(reduced.tc[n // 2 :]).all()
+    fill_cold_face(reduced, slice(n // 2, n), reduced.faces.step.r25, prior.seebeck, cfg)
     true_tc = c.truth["t_cold"][c.present[:, 0], 0] + T0
-    assert abs(float(np.median(reduced.tc - true_tc))) <= 2.0 * float(
-        np.median(reduced.faces.t_cold_se)
-    )
+    se = float(np.median(reduced.faces.t_cold_se))
+    for part in (slice(0, n // 2), slice(n // 2, n)):
+        assert abs(float(np.median((reduced.tc - true_tc)[part]))) <= 2.0 * se
 
 
 def test_runner_states_why_a_zero_volt_unit_without_face_probes_has_no_faces(
@@ -230,22 +253,9 @@ def test_runner_states_why_a_zero_volt_unit_without_face_probes_has_no_faces(
     data.v = np.where(data.i > cfg.on_current, data.v, 0.0)
     data.tc = np.full_like(data.tc, np.nan)
     data.th = np.full_like(data.th, np.nan)
-    complete_faces(data, priors(spec.devices[1].registration()["module"], cfg), cfg)
+    data.cold_probe = data.hot_probe = False
+    prior = priors(spec.devices[1].registration()["module"], cfg)
+    complete_faces(data, slice(0, data.ts.size), prior, cfg)
     assert data.faces is None
     assert data.faces_missing is not None and "cannot be told apart" in data.faces_missing
     assert np.isnan(data.tc).all()
-
-
-def test_a_resistance_the_heat_flows_rule_out_gives_no_faces() -> None:
-    # Faces that jump at the switch and no hot probe to show it: the steps' R then holds
-    # S·(30 - 5) K / 3 A = 0.42 Ω besides the hand-worked 2.0 Ω, and ΔT read with it comes
-    # out 30 - 0.42 × 3 / 0.0508 = 5 K, below the 17 K the ambient leads the cabinet by. While
-    # the module cools, Tc <= Tcab and Th >= Ta (heat flows from warm to cold; common
-    # practice, no source), so no R and no faces are given.
-    t, i, v, _ = _hand_trace(600.0, jump=True)
-    n = t.size
-    with pytest.raises(InsufficientDataError, match="ambient's lead"):
-        mt.reconstruct_faces(
-            t, i, v, np.full(n, 278.0), np.full(n, 295.0), None, np.ones(n, dtype=bool),
-            floating=True, r25_rated=R_HAND, s25=S_HAND,
-        )  # fmt: skip

@@ -43,6 +43,7 @@ CHECKS = {
     "b": (("R25", R25, "r25", 0.03),),
 }  # fmt: skip
 DROPPED = {"full": (), "a": ("tc",), "b": ("tc", "th")}
+PROBE = {"tc": "cold_probe", "th": "hot_probe"}
 
 
 @contextmanager
@@ -54,6 +55,7 @@ def reduced(sensor_set: str) -> Iterator[None]:
         data = original(*args, **kwargs)
         for name in DROPPED[sensor_set]:
             setattr(data, name, np.full_like(getattr(data, name), np.nan))
+            setattr(data, PROBE[name], False)
         return data
 
     runner_device.load = load  # type: ignore[assignment]

@@ -466,8 +466,9 @@ def reconstruct_faces(
     )
     r25 = step.r25
     if th is not None:
-        dt = delta_t_from_hot_face(i, v, th, True, r25, s25, alpha=alpha, beta=beta,
-                                   options=options)  # fmt: skip
+        dt = delta_t_from_hot_face(
+            i, v, th, True, r25, s25, alpha=alpha, beta=beta, options=options
+        )
         tm, tm_sd = th - 0.5 * dt, np.full_like(dt, probe)
     else:
         tm = 0.5 * (tcab + ta)

@@ -8,6 +8,8 @@ Modules, in the order the diagnosis runs:
 
 - :mod:`.quality` - which samples are usable (:func:`flag_samples`);
 - :mod:`.electrical` - R and S from V = I·R + S·ΔT (:func:`fit_electrical`, :func:`harman_steps`);
+- :mod:`.module_thermometer` - ΔT and a missing face from the module's own voltage
+  (:func:`reconstruct_faces`);
 - :mod:`.thermal` - K, the sinks, UA, C and the internal load (:func:`fit_thermal`), built on
   :mod:`.sinks`, :mod:`.cabinet`, :mod:`.error_budget` and :mod:`.integrals`;
 - :mod:`.hot_side` - the hot side's resistance hour by hour;
@@ -20,11 +22,20 @@ from .electrical import (
     ElectricalFit,
     detect_floating_driver,
     fit_electrical,
+    fit_held,
     floating_from_voltage,
     harman_steps,
 )
 from .estimates import Estimate, propagate
 from .hot_side import hot_side_resistance_ratio, hot_side_resistance_ratios
+from .module_thermometer import (
+    FaceReconstruction,
+    NotSeparableError,
+    delta_t_from_hot_face,
+    floating_without_faces,
+    reconstruct_delta_t,
+    reconstruct_faces,
+)
 from .options import DEFAULT_OPTIONS, TYPICAL_MODULE_ZT, DiagnosticsOptions
 from .performance import Performance, performance_now, setpoint_capacity
 from .quality import SampleFlags, flag_samples
@@ -37,18 +48,25 @@ __all__ = [
     "DiagnosticsOptions",
     "ElectricalFit",
     "Estimate",
+    "FaceReconstruction",
+    "NotSeparableError",
     "Performance",
     "SampleFlags",
     "ThermalFit",
+    "delta_t_from_hot_face",
     "detect_floating_driver",
     "fit_electrical",
+    "fit_held",
     "fit_thermal",
     "flag_samples",
     "floating_from_voltage",
+    "floating_without_faces",
     "harman_steps",
     "hot_side_resistance_ratio",
     "hot_side_resistance_ratios",
     "performance_now",
     "propagate",
+    "reconstruct_delta_t",
+    "reconstruct_faces",
     "setpoint_capacity",
 ]

@@ -25,6 +25,7 @@ __all__ = [
     "ElectricalFit",
     "detect_floating_driver",
     "fit_electrical",
+    "fit_held",
     "floating_from_voltage",
     "harman_steps",
 ]
@@ -405,3 +406,32 @@ def harman_steps(
     s = v[k + 1] / dt[k + 1]
     r = (v[k] - s * dt[k]) / i[k]
     return s, r
+
+
+def fit_held(
+    r25: float, r25_se: float, s25: float, s25_se: float, n_on: int, *, r_reliable: bool, note: str
+) -> ElectricalFit:
+    """An electrical result whose R25 and S25 come from elsewhere, with their errors.
+
+    Where the face temperatures are themselves read from the module's voltage
+    (:mod:`.module_thermometer`), fitting V = I·R + S·ΔT to them would return the R and S
+    they were read with, to rounding: the fit is not repeated. S is not from the data, so the
+    result is not called separable (``reliable`` False); R is as reliable as its source says.
+
+    Parameters
+    ----------
+    r25, r25_se : R25 and its standard error [ohm].
+    s25, s25_se : S25 and its standard error [V/K].
+    n_on : Samples behind R25 [-].
+    r_reliable : Whether R25 is well determined [-].
+    note : What the values rest on [-].
+
+    Returns
+    -------
+    The result, R and S uncorrelated.
+    """
+    cov = np.diag([r25_se**2, s25_se**2]).astype(np.float64)
+    return ElectricalFit(
+        r25=r25, s25=s25, cov=cov, n_on=n_on, n_off=0, residual_v=math.nan, reliable=False,
+        note=note, r_reliable=r_reliable, s25_offset_free=s25, s25_offset_free_se=s25_se,
+    )  # fmt: skip

@@ -153,6 +153,30 @@ class DiagnosticsOptions:
     #: simulated hour at 0.9 read +51 %).
     locked_match: float = 0.9
 
+    # --- the module as its own thermometer (module_thermometer.py) ----------------------
+    #: Median |V| of off samples above which a driver counts as floating where no face probe
+    #: gives ΔT: five steps of a 10 mV converter, against the tenths of a volt an idle
+    #: module's few kelvin show (common practice, no source) [V].
+    min_floating_voltage: float = 0.05
+    #: Fewest switch-off steps behind a resistance without face probes [-] (common practice,
+    #: no source).
+    min_steps: int = 5
+    #: A step is left out where the hot probe jumps across it by more than this many times
+    #: its change over the next interval (plus ``step_jump_floor_k``): faces that follow the
+    #: current within a sample make ΔT discontinuous at the step [-] (common practice, no
+    #: source).
+    step_jump_ratio: float = 4.0
+    #: Allowance for the probe's reading step in that test [K]: three 0.1 K steps (common
+    #: practice, no source).
+    step_jump_floor_k: float = 0.3
+    #: Largest relative standard error of the steps' R25 called reliable [-] (common
+    #: practice, no source).
+    step_r_max_rel_stderr: float = 0.02
+    #: Relative spread of the Seebeck coefficient between units of one type, carried where S
+    #: is taken from the registered ratings to read ΔT from the voltage: a few per cent
+    #: (common practice, no source) [-].
+    seebeck_unit_rel_sd: float = 0.03
+
 
 #: The options as measured and documented; the default of every estimator.
 DEFAULT_OPTIONS = DiagnosticsOptions()

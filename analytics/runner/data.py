@@ -15,10 +15,19 @@ from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics
 from tecfleet.analytics._validate import FloatArray
 from tecfleet.analytics.errors import PhysicsError
-from tecfleet.analytics.runner.settings import T0, AnalysisSettings
+from tecfleet.analytics.runner.settings import T0, AnalysisSettings, diagnostics_options
 from tecfleet.ingest import db
 
-__all__ = ["COLUMNS", "Readings", "faces_basis", "flags_of", "load", "priors"]
+__all__ = [
+    "COLUMNS",
+    "Readings",
+    "complete_faces",
+    "faces_basis",
+    "fill_cold_face",
+    "flags_of",
+    "load",
+    "priors",
+]
 
 
 @dataclass
@@ -40,7 +49,19 @@ class Readings:
     v: FloatArray
     door: np.ndarray[Any, np.dtype[np.bool_]]
     flags: dg.SampleFlags | None = None
-    probed: tuple[bool, bool] = (True, True)
+    #: Whether each face probe reported anything in this load (a cooler without one
+    #: delivers NaN); where not, the faces are read from the module's voltage window by window.
+    cold_probe: bool = True
+    hot_probe: bool = True
+    #: The current window's faces as the module's voltage gives them, where a probe is missing.
+    faces: dg.FaceReconstruction | None = None
+    #: Where a probe is missing and the voltage could not stand in for it: why not.
+    faces_missing: str | None = None
+
+    @property
+    def probed(self) -> tuple[bool, bool]:
+        """Whether the cold and the hot face probe reported anything in this load."""
+        return self.cold_probe, self.hot_probe
 
     def slice(self, start_ms: int, end_ms: int) -> slice:
         a = int(np.searchsorted(self.ts, start_ms, side="left"))
@@ -56,18 +77,73 @@ def load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> Readin
     """Readings of one device with ``start_ms <= ts_ms < end_ms`` (epoch ms UTC)."""
     arr = db.read_arrays(conn, device_id, COLUMNS, start_ms, end_ms)
     ts = arr[:, 0].astype(np.int64)
+    tc, th = arr[:, 2] + T0, arr[:, 3] + T0
     return Readings(
         ts=ts,
         t=(ts - start_ms) / 1000.0,
         tcab=arr[:, 1] + T0,
-        tc=arr[:, 2] + T0,
-        th=arr[:, 3] + T0,
+        tc=tc,
+        th=th,
         ta=arr[:, 4] + T0,
         i=arr[:, 5],
         v=arr[:, 6],
         door=arr[:, 7] > 0.5,
-        probed=(bool(np.isfinite(arr[:, 2]).any()), bool(np.isfinite(arr[:, 3]).any())),
+        cold_probe=bool(ts.size == 0 or np.isfinite(tc).any()),
+        hot_probe=bool(ts.size == 0 or np.isfinite(th).any()),
     )
+
+
+def complete_faces(
+    data: Readings, sl: slice, prior: physics.ModuleParameters | None, cfg: AnalysisSettings
+) -> None:
+    """Where the cold-side probe (or both face probes) reported nothing in this load, read
+    the faces of the readings in ``sl`` from the module's voltage
+    (:func:`diagnostics.reconstruct_faces`, from those readings alone): the cold face filled
+    in where the hot one is probed, the reconstruction kept in ``data.faces``, or the reason
+    there is none in ``data.faces_missing``. With both probes nothing is touched."""
+    data.faces, data.faces_missing = None, None
+    if data.cold_probe:
+        return
+    if prior is None:
+        data.faces_missing = "no cold-side probe and no registered ratings to read ΔT with"
+        return
+    opts = diagnostics_options(cfg)
+    i, v = data.i[sl], data.v[sl]
+    ok = np.isfinite(i) & np.isfinite(v) & ~data.door[sl]
+    floating = dg.floating_without_faces(v[ok & (i <= opts.on_current)], options=opts)
+    hot = data.th[sl] if data.hot_probe else None
+    try:
+        data.faces = dg.reconstruct_faces(
+            data.t[sl], i, v, data.tcab[sl], data.ta[sl], hot, ok, floating=floating,
+            s25=prior.seebeck, alpha=cfg.alpha, beta=cfg.beta,
+            options=opts,
+        )  # fmt: skip
+    except PhysicsError as exc:
+        data.faces_missing = getattr(exc, "reason", str(exc))
+        return
+    if data.hot_probe:
+        data.tc[sl] = data.faces.t_cold
+
+
+def fill_cold_face(
+    data: Readings, sl: slice, r25: float, s25: float, cfg: AnalysisSettings
+) -> None:
+    """Where the hot face is probed and the cold one is not, read the cold face of the
+    readings in ``sl`` not yet read from the module's voltage with a given R25 [ohm] and S25
+    [V/K] (the last window's): the hours after a window fit, whose hourly figures need it."""
+    if data.cold_probe or not data.hot_probe:
+        return
+    todo = np.isnan(data.tc[sl])
+    if not todo.any():
+        return
+    opts = diagnostics_options(cfg)
+    i, v, th = data.i[sl][todo], data.v[sl][todo], data.th[sl][todo]
+    floating = dg.floating_without_faces(v[i <= opts.on_current], options=opts)
+    dt = dg.delta_t_from_hot_face(
+        i, v, th, floating, r25, s25, alpha=cfg.alpha, beta=cfg.beta, options=opts
+    )
+    tc = data.tc[sl]
+    tc[todo] = th - dt
 
 
 def faces_basis(probed: tuple[bool, bool]) -> str:

@@ -8,7 +8,7 @@ import numpy as np
 
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics._validate import T_25C_K
-from tecfleet.analytics.runner.data import Readings, faces_basis, flags_of
+from tecfleet.analytics.runner.data import Readings, faces_basis, fill_cold_face, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState
@@ -27,6 +27,7 @@ def hot_side(
     if params is None or params.c_hot is None:
         return dict.fromkeys(ends)
     w = data.slice(first - step, last)
+    fill_cold_face(data, w, params.r25, params.s25, cfg)
     ts = data.ts[w]
     block = (ts - (first - step)) // step
     tm = 0.5 * (data.tc[w] + data.th[w])

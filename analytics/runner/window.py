@@ -16,9 +16,9 @@ import numpy as np
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics
 from tecfleet.analytics._validate import T_25C_K, FloatArray
-from tecfleet.analytics.errors import PhysicsError
+from tecfleet.analytics.errors import InsufficientDataError, PhysicsError
 from tecfleet.analytics.runner import settled
-from tecfleet.analytics.runner.data import Readings, faces_basis, flags_of
+from tecfleet.analytics.runner.data import Readings, complete_faces, faces_basis, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
@@ -87,14 +87,17 @@ def fit_window(
     cfg: AnalysisSettings,
 ) -> None:
     """All estimates of the window ending at ``b`` (epoch ms UTC), and what the state keeps."""
+    # Where a face probe is missing, the faces of the thermal window from its own readings.
+    wt = data.slice(b - max(cfg.thermal_window_s, cfg.window_s) * 1000, b)
+    complete_faces(data, wt, prior, cfg)
     win = _window(data, b, cfg)
     if win is None:
         return
     _quality_rows(win, rows)
-    faces = faces_basis(win.probed)
+    faces = data.faces.basis if data.faces is not None else faces_basis(win.probed)
     rows.basis = f"V = I·R + S·ΔT fit, {faces}" + (", open-circuit samples" if win.floating else "")
     try:
-        ele = _electrical(win, rows, state, prior, cfg)
+        ele = _electrical(data, win, rows, state, prior, cfg)
         if ele is None:
             return
         rows.basis = f"cabinet and sink heat balances: cabinet and ambient probes, {faces}"
@@ -136,8 +139,11 @@ def _window(data: Readings, b: int, cfg: AnalysisSettings) -> _Window | None:
     if data.probed == (True, True):
         floating = dg.detect_floating_driver(v[off], dt[off])
     else:
+        # Faces read from the voltage imply an open-circuit voltage was seen.
         opts = diagnostics_options(cfg)
-        floating = dg.floating_from_voltage(v[fl.usable & ~fl.on], options=opts)
+        floating = data.faces is not None or dg.floating_from_voltage(
+            v[fl.usable & ~fl.on], options=opts
+        )
     return _Window(
         b=b, w=w, wt=wt, n=n, fl=fl, usable_th=usable_th, t=t, tcab=tcab, tc=tc, th=th, ta=ta,
         i=i, v=v, dt=dt, tm=tm, usable=usable, off=off, floating=floating, probed=data.probed,
@@ -163,13 +169,15 @@ def _quality_rows(win: _Window, rows: EstimateRows) -> None:
         )  # fmt: skip
 
 
-def _not_separable(win: _Window, rows: EstimateRows) -> None:
+def _not_separable(win: _Window, rows: EstimateRows, why_not: str | None = None) -> None:
     # A unit short of a face probe whose faces the window could not reconstruct: what rests
     # on ΔT is served as unknown, with the reason, never as a number.
     missing = _missing_faces(win.probed)
     rested = int((win.fl.usable & ~win.fl.on).sum()) >= 5
     if win.floating:
         why = f"{missing}, and no face temperature from the module's voltage in this window"
+        if why_not:
+            why += f" ({why_not})"
     elif rested:
         why = f"zero-volt driver and {missing}, not separable"
     else:
@@ -188,7 +196,25 @@ def _not_separable(win: _Window, rows: EstimateRows) -> None:
         rows.add(key, win.b, None, None, n, False, f"{what}: {why}", basis)
 
 
+def _held_electrical(
+    data: Readings, prior: physics.ModuleParameters | None, cfg: AnalysisSettings
+) -> dg.ElectricalFit | str | None:
+    # Where a face probe is missing: R25 from the module's switch-off steps and S from the
+    # ratings (fitting V = I·R + S·ΔT to faces read from V would only return them), or why
+    # there is none; None where both faces are probed.
+    if data.faces_missing is not None:
+        return data.faces_missing
+    if data.faces is None or prior is None:
+        return None
+    step, opts = data.faces.step, diagnostics_options(cfg)
+    return dg.fit_held(
+        step.r25, step.r25_se, prior.seebeck, opts.seebeck_unit_rel_sd * prior.seebeck,
+        step.n_steps, r_reliable=step.reliable, note=data.faces.basis,
+    )  # fmt: skip
+
+
 def _electrical(
+    data: Readings,
     win: _Window,
     rows: EstimateRows,
     state: DeviceState,
@@ -199,15 +225,19 @@ def _electrical(
     # fails (its reason stored).
     b, n, t, i, v, tc, th = win.b, win.n, win.t, win.i, win.v, win.tc, win.th
     usable, floating = win.usable, win.floating
+    held = _held_electrical(data, prior, cfg)
     if (
-        win.probed != (True, True)
+        not isinstance(held, dg.ElectricalFit)
+        and win.probed != (True, True)
         and int((usable & win.fl.on).sum()) < diagnostics_options(cfg).min_on
     ):
-        _not_separable(win, rows)
+        _not_separable(win, rows, held)
         return None
     e_prior = (prior.resistance, prior.seebeck, cfg.rating_rel_sd) if prior is not None else None
     try:
-        el = dg.fit_electrical(
+        if isinstance(held, str):
+            raise InsufficientDataError(held, held)
+        el = held or dg.fit_electrical(
             i, v, tc, th, usable, floating=floating, alpha=cfg.alpha, beta=cfg.beta,
             prior=e_prior, options=diagnostics_options(cfg),
         )  # fmt: skip
@@ -216,12 +246,18 @@ def _electrical(
         rows.add("module.resistance_25c_ohm", b, None, None, n, False, note)
         return None
     on = usable & win.fl.on
-    tm_on = float(np.mean(win.tm[on]))
+    tm = win.tm
+    if data.faces is not None:
+        # Faces read from the voltage: the mean module temperature the reconstruction used
+        # (over the thermal window, which ends with this one).
+        tm = data.faces.t_mean[win.w.start - win.wt.start : win.w.stop - win.wt.start]
+        on = (i > cfg.on_current) & np.isfinite(tm)
+    tm_on = float(np.mean(tm[on])) if on.any() else T_25C_K
     f_r = 1.0 + cfg.alpha * (tm_on - T_25C_K)
     f_s = 1.0 + cfg.beta * (tm_on - T_25C_K)
     se_r = float(np.sqrt(max(el.cov[0, 0], 0.0)))
     n_el = el.n_on + el.n_off
-    r_note = None if el.r_reliable else el.note
+    r_note = el.note if held is not None or not el.r_reliable else None
     rows.add("module.resistance_25c_ohm", b, el.r25, se_r, n_el, el.r_reliable, r_note)
     rows.add("module.resistance_ohm", b, el.r25 * f_r, se_r * f_r, n_el, el.r_reliable, r_note)
     # Served: the module's own S, its fit allowing for a constant ΔT offset (the heat balances
@@ -229,6 +265,8 @@ def _electrical(
     s_own, se_own = el.s25_offset_free, el.s25_offset_free_se
     rows.add("module.seebeck_25c_v_per_k", b, s_own, se_own, n_el, el.reliable, el.note)
     rows.add("module.seebeck_v_per_k", b, s_own * f_s, se_own * f_s, n_el, el.reliable, el.note)
+    if held is not None:
+        return _Electrical(el, on, tm_on, f_r, f_s, s_own, se_own)
     if floating:
         s_steps, _ = dg.harman_steps(t, i, v, tc, th, usable, options=diagnostics_options(cfg))
         if s_steps.size >= 3:
@@ -252,6 +290,10 @@ def _thermal(
     # The thermal fit over the thermal window, with the unit's settled K (None if it has
     # none yet); None where the fit fails (its reason stored).
     b, n, wt, usable_th, el = win.b, win.n, win.wt, win.usable_th, ele.el
+    if data.faces is not None and not np.isfinite(data.th[wt]).any():
+        note = f"{data.faces.basis}: the heat balances need the faces"
+        rows.add("cabinet.ua_w_per_k", b, None, None, n, False, note)
+        return None
     if win.probed != (True, True):
         # The balances integrate between samples: every usable one needs its faces.
         lacking = int((flags_of(data, wt).usable & ~usable_th).sum())

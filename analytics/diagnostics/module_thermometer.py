@@ -1,0 +1,493 @@
+"""The module as its own thermometer: ΔT across the faces from its voltage, where probes lack.
+
+Module equation (H. J. Goldsmid, *Introduction to Thermoelectricity*, Springer, 2010, ch. 2;
+D. M. Rowe (ed.), *CRC Handbook of Thermoelectrics*, CRC Press, 1995)::
+
+    V = S(Tm)·ΔT + I·R(Tm)        driven
+    V = S(Tm)·ΔT                  floating (open circuit, the Seebeck voltage)
+
+with R(Tm) = R25·(1 + α·(Tm - 25 °C)), S(Tm) = S25·(1 + β·(Tm - 25 °C)) as in
+:func:`..physics.resistance_at_temperature`. At a switch-off the ohmic part I·R vanishes at
+once while S·ΔT remains (T. C. Harman, "Special techniques for measurement of thermoelectric
+properties", J. Appl. Phys. 29, 1373, 1958): R = (V_on - V_off)/I_on needs no face probe,
+provided ΔT is the same on both sides of the step. It is, where the faces carry heat
+capacity (their sinks) and so change over tens of seconds; V_off is extrapolated back to the
+step to remove the decay between samples. Where the faces jump with the current (no heat
+capacity to speak of) the step measures S·(ΔT_on - ΔT_off) as well, and no R comes of it.
+
+With R known, ΔT = (V - I·R)/S while driven and V_oc/S while floating, S from the registered
+ratings (S barely varies between units of one type and does not wear). With a driver that
+shorts or grounds the module while off and no face probes, one equation V = I·R + S·ΔT holds
+two unknowns at every sample: R and S are not separable (:class:`NotSeparableError`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import TypeAlias
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .. import physics
+from .._validate import T_25C_K, FloatArray
+from ..errors import InsufficientDataError
+from .estimates import BoolArray
+from .options import DEFAULT_OPTIONS, DiagnosticsOptions
+
+__all__ = [
+    "FaceReconstruction",
+    "NotSeparableError",
+    "StepResistance",
+    "delta_t_from_hot_face",
+    "floating_without_faces",
+    "reconstruct_delta_t",
+    "reconstruct_faces",
+    "step_resistance",
+]
+
+
+class NotSeparableError(InsufficientDataError):
+    """R25 and S cannot be told apart from these readings (no open-circuit voltage and no
+    face probes): V = I·R + S·ΔT is one equation in two unknowns at every sample."""
+
+
+def floating_without_faces(
+    voltage_off: FloatArray, *, options: DiagnosticsOptions = DEFAULT_OPTIONS
+) -> bool:
+    """Whether a module left off shows a voltage, judged without face probes.
+
+    A floating module shows V_oc = S·ΔT, tenths of a volt for the few kelvin an idle module
+    holds (Harman 1958); a driver that shorts or grounds it reads zero within the converter's
+    step.
+
+    Parameters
+    ----------
+    voltage_off : Voltage of usable samples with the module off [V].
+    options : ``min_floating_voltage`` [V].
+
+    Returns
+    -------
+    True when most off samples show more than ``min_floating_voltage``.
+    """
+    v = np.abs(np.asarray(voltage_off, dtype=np.float64))
+    v = v[np.isfinite(v)]
+    if v.size < 5:
+        return False
+    return bool(np.median(v) > options.min_floating_voltage)
+
+
+@dataclass(frozen=True)
+class StepResistance:
+    """Module resistance from switch-off steps, without face probes.
+
+    Attributes
+    ----------
+    r25 : Median of the steps' R referred to 25 °C [ohm].
+    r25_se : Its standard error: the steps' scatter, the extrapolation to the unknown switch
+        instant, the mean module temperature's uncertainty through α, and the current
+        reading's offset [ohm].
+    n_steps : Steps used [-].
+    reliable : ``r25_se`` within ``step_r_max_rel_stderr`` of ``r25``.
+    note : Why not reliable, else None.
+    """
+
+    r25: float
+    r25_se: float
+    n_steps: int
+    reliable: bool
+    note: str | None
+
+
+IntArray: TypeAlias = NDArray[np.intp]
+
+
+def _switch_offs(t: FloatArray, on: BoolArray, usable: BoolArray, max_gap_s: float) -> IntArray:
+    # Last on sample k of each switch-off followed by three usable off samples, gaps in bounds.
+    n = on.size
+    if n < 4:
+        return np.zeros(0, dtype=np.intp)
+    k = np.arange(n - 3)
+    ok = on[k] & usable[k]
+    for j in (1, 2, 3):
+        ok &= ~on[k + j] & usable[k + j] & (t[k + j] - t[k + j - 1] <= max_gap_s)
+    return k[ok]
+
+
+def _faces_jump(
+    th: FloatArray, k: FloatArray | np.ndarray, options: DiagnosticsOptions
+) -> BoolArray:
+    # A hot probe that jumps across the step far more than it moves over the next interval:
+    # the faces follow the current within a sample, and ΔT is not continuous at the step.
+    jump = np.abs(th[k + 1] - th[k])
+    after = np.abs(th[k + 2] - th[k + 1])
+    return np.asarray(
+        jump > options.step_jump_ratio * after + options.step_jump_floor_k, dtype=np.bool_
+    )
+
+
+def _step_mean_temperature(
+    dt_step: FloatArray,
+    t_cabinet: FloatArray,
+    t_ambient: FloatArray,
+    t_hot: FloatArray | None,
+    s_rel: float,
+    probe_sd: float,
+) -> tuple[FloatArray, FloatArray]:
+    # Tm at each step and its sd, with ΔT there from the open-circuit voltage (no R needed):
+    # Th - ΔT/2 where the hot face is probed, else the middle of cabinet and ambient.
+    if t_hot is not None:
+        return t_hot - 0.5 * dt_step, np.hypot(0.5 * s_rel * dt_step, probe_sd)
+    return 0.5 * (t_cabinet + t_ambient), _unanchored_sd(dt_step, t_cabinet, t_ambient, probe_sd)
+
+
+def step_resistance(
+    time_s: FloatArray,
+    current: FloatArray,
+    voltage: FloatArray,
+    t_cabinet: FloatArray,
+    t_ambient: FloatArray,
+    t_hot: FloatArray | None,
+    usable: BoolArray,
+    *,
+    s25: float,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> StepResistance:
+    """R25 from switch-off steps of a floating driver, without a cold-side probe.
+
+    At each step, R = (V_on - V_off)/I_on (Harman 1958), V_on the last on sample, V_off the
+    first two off samples extrapolated linearly back to the middle of the interval holding
+    the switch. Carried as the extrapolation's uncertainty: the unknown switch instant (the
+    slope over that interval times 1/√12, a uniform instant) and the decay's curvature (a
+    quadratic through the first three off samples departs from the line by 3/8 of their
+    second difference half an interval before the first). Against simulated coolers with
+    known truth and one-minute samples the steps' R25 came within 1 % where the sinks' time
+    constants were several minutes (500/1500 J/K), and scattered by ±3 % at about one minute
+    (150/400 J/K). R is referred to 25 °C with R25 = R/(1 + α·(Tm - 25 °C))
+    (:func:`..physics.resistance_at_25c`); ΔT at the step is V_off/S, so Tm needs no R:
+    Th - ΔT/2 with a hot probe, else (Ta + Tcab)/2 within the bound of
+    :func:`reconstruct_faces`, its standard deviation carried through α. With a hot probe,
+    steps across which it jumps (faces that follow the current within a sample) are left out.
+
+    Parameters
+    ----------
+    time_s : Sample times [s].
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_cabinet, t_ambient : Cabinet air and ambient [K].
+    t_hot : Hot-face temperature, None where not probed [K].
+    usable : Samples that may be used [-].
+    s25 : Module Seebeck coefficient at 25 °C, e.g. from the ratings [V/K].
+    alpha : Temperature coefficient of R [1/K].
+    options : ``on_current`` [A], ``max_gap_s`` [s], ``min_steps`` [-],
+        ``step_jump_ratio`` [-], ``step_jump_floor_k`` [K], ``current_offset`` [A],
+        ``step_r_max_rel_stderr`` [-], ``seebeck_unit_rel_sd`` [-], ``probe_offset_k`` [K].
+
+    Returns
+    -------
+    The resistance and its error.
+
+    Raises
+    ------
+    InsufficientDataError : fewer than ``min_steps`` usable switch-off steps.
+    """
+    t = np.asarray(time_s, dtype=np.float64)
+    i = np.asarray(current, dtype=np.float64)
+    v = np.asarray(voltage, dtype=np.float64)
+    th = None if t_hot is None else np.asarray(t_hot, dtype=np.float64)
+    on = i > options.on_current
+    k = _switch_offs(t, on, usable, options.max_gap_s)
+    if th is not None and k.size:
+        k = k[~_faces_jump(th, k, options)]
+    if k.size < options.min_steps:
+        raise InsufficientDataError(
+            f"{k.size} switch-off steps with three off samples after them, need "
+            f"{options.min_steps}",
+            "too few switch-offs followed by the module's open-circuit voltage",
+        )
+    gap, gap2 = t[k + 1] - t[k], t[k + 2] - t[k + 1]
+    slope = (v[k + 1] - v[k + 2]) / gap2
+    v_step = v[k + 1] + slope * 0.5 * gap
+    tm, tm_sd = _step_mean_temperature(
+        v_step / s25, np.asarray(t_cabinet, dtype=np.float64)[k],
+        np.asarray(t_ambient, dtype=np.float64)[k], None if th is None else th[k],
+        options.seebeck_unit_rel_sd, options.probe_offset_k,
+    )  # fmt: skip
+    f_r = 1.0 + alpha * (tm - T_25C_K)
+    r25_steps = (v[k] - v_step) / (i[k] * f_r)
+    r25 = float(np.median(r25_steps))
+    # The median of n normal values has a standard error of about 1.25·sd/√n.
+    scatter = 1.2533 * float(np.std(r25_steps, ddof=1)) / math.sqrt(k.size)
+    # Systematic, the same at every step: the unknown switch instant and the decay's
+    # curvature, Tm through α, the current reading's offset.
+    curve = 0.375 * np.abs(v[k + 1] - 2.0 * v[k + 2] + v[k + 3])
+    instant = np.abs(slope) * gap / math.sqrt(12.0)
+    extrap = float(np.median(np.hypot(instant, curve) / (i[k] * f_r)))
+    temp = r25 * alpha * float(np.median(tm_sd / f_r))
+    cur = r25 * options.current_offset / float(np.sqrt(np.mean(i[k] ** 2)))
+    se = math.sqrt(scatter**2 + extrap**2 + temp**2 + cur**2)
+    reliable = se <= options.step_r_max_rel_stderr * abs(r25)
+    note = None
+    if not reliable:
+        note = f"R from {k.size} switch-off steps only within ±{100 * se / abs(r25):.1f} %"
+    return StepResistance(r25, se, int(k.size), reliable, note)
+
+
+def reconstruct_delta_t(
+    current: FloatArray,
+    voltage: FloatArray,
+    t_mean_k: FloatArray,
+    floating: bool,
+    r25: float,
+    r25_se: float,
+    s25: float,
+    s25_rel_sd: float,
+    *,
+    t_mean_sd_k: FloatArray | float = 0.0,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> tuple[FloatArray, FloatArray]:
+    """ΔT = Th - Tc from the module's voltage: (V - I·R(Tm))/S(Tm) driven, V/S(Tm) floating.
+
+    Goldsmid (2010), ch. 2; Harman (1958) for the open circuit. Off samples of a driver that
+    shorts or grounds the module carry no ΔT and come back NaN. The standard error carries
+    R25's through I·R/S, S's relative spread through ΔT itself, the voltage reading's offset
+    over S, and Tm's through R(Tm) and S(Tm): (I·R25·α + ΔT·S25·β)/S per kelvin, about 1 K of
+    ΔT per kelvin of Tm for a module driven near its rated current (first order,
+    JCGM 100:2008 eq. (13)).
+
+    Parameters
+    ----------
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_mean_k : Mean module temperature [K].
+    floating : Whether off samples show the open-circuit voltage [-].
+    r25 : Module resistance at 25 °C [ohm].
+    r25_se : Its standard error [ohm].
+    s25 : Module Seebeck coefficient at 25 °C [V/K].
+    s25_rel_sd : Relative standard deviation of ``s25`` [-].
+    t_mean_sd_k : Standard deviation of ``t_mean_k`` [K].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : ``on_current`` [A], ``voltage_offset`` [V].
+
+    Returns
+    -------
+    (ΔT [K], its standard error [K]).
+    """
+    i = np.asarray(current, dtype=np.float64)
+    v = np.asarray(voltage, dtype=np.float64)
+    tm = np.asarray(t_mean_k, dtype=np.float64) - T_25C_K
+    on = i > options.on_current
+    f_r, s_t = 1.0 + alpha * tm, s25 * (1.0 + beta * tm)
+    ohmic = np.where(on, i * r25 * f_r, 0.0)
+    dt = (v - ohmic) / s_t
+    if not floating:
+        dt = np.where(on, dt, np.nan)
+    r_part = np.where(on, i * r25_se * f_r / s_t, 0.0)
+    tm_part = (np.where(on, i * r25 * alpha, 0.0) + dt * s25 * beta) / s_t * t_mean_sd_k
+    se = np.sqrt(
+        r_part**2 + (dt * s25_rel_sd) ** 2 + (options.voltage_offset / s_t) ** 2 + tm_part**2
+    )
+    return np.asarray(dt, dtype=np.float64), np.asarray(se, dtype=np.float64)
+
+
+@dataclass(frozen=True)
+class FaceReconstruction:
+    """The faces as the module's voltage gives them, where probes lack.
+
+    Attributes
+    ----------
+    delta_t, delta_t_se : ΔT = Th - Tc and its standard error [K] (NaN where not known).
+    t_cold, t_cold_se : Cold face, Th - ΔT where the hot face is probed, else NaN [K].
+    t_mean, t_mean_sd : Mean module temperature behind R(Tm) and S(Tm) and its standard
+        deviation [K].
+    step : The resistance the voltage was read with.
+    basis : What the reconstruction rests on, in words.
+    """
+
+    delta_t: FloatArray
+    delta_t_se: FloatArray
+    t_cold: FloatArray
+    t_cold_se: FloatArray
+    t_mean: FloatArray
+    t_mean_sd: FloatArray
+    step: StepResistance
+    basis: str
+
+
+def _unanchored_sd(
+    dt: FloatArray, t_cabinet: FloatArray, t_ambient: FloatArray, probe_sd: float
+) -> FloatArray:
+    # Without a hot probe Tm is taken as (Ta + Tcab)/2: Th = Ta + rise_h, Tc = Tcab - rise_c
+    # give Tm = (Ta + Tcab)/2 + (rise_h - rise_c)/2 with |rise_h - rise_c| <= rise_h + rise_c
+    # = ΔT - (Ta - Tcab), taken as uniform over that.
+    spread = np.maximum(np.nan_to_num(dt, nan=0.0) - (t_ambient - t_cabinet), 0.0)
+    return np.asarray(np.hypot(spread / (2.0 * math.sqrt(3.0)), probe_sd), dtype=np.float64)
+
+
+def delta_t_from_hot_face(
+    current: FloatArray,
+    voltage: FloatArray,
+    t_hot: FloatArray,
+    floating: bool,
+    r25: float,
+    s25: float,
+    *,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> FloatArray:
+    """ΔT from the module's voltage where the hot face is probed, Tm = Th - ΔT/2 solved with it.
+
+    R(Tm) moves ΔT by about 1 K per kelvin of Tm (see :func:`reconstruct_delta_t`), so Tm is
+    not guessed: with x = Th - ΔT/2 - 25 °C, V = S25·(1 + β·x)·ΔT + I·R25·(1 + α·x) is the
+    quadratic a·ΔT² + b·ΔT + c = 0 with a = -S25·β/2, b = S25·(1 + β·h) - I·R25·α/2,
+    c = I·R25·(1 + α·h) - V, h = Th - 25 °C; the root near -c/b is taken in its stable form
+    -2c/(b + √(b² - 4ac)) (Goldsmid 2010, ch. 2, with the temperature laws of
+    :func:`..physics.resistance_at_temperature`).
+
+    Parameters
+    ----------
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_hot : Hot face [K].
+    floating : Whether off samples show the open-circuit voltage [-].
+    r25, s25 : Module resistance [ohm] and Seebeck coefficient [V/K] at 25 °C.
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : ``on_current`` [A].
+
+    Returns
+    -------
+    ΔT [K]; NaN off a driver that does not float, or where the quadratic has no such root.
+    """
+    i = np.asarray(current, dtype=np.float64)
+    v = np.asarray(voltage, dtype=np.float64)
+    h = np.asarray(t_hot, dtype=np.float64) - T_25C_K
+    ir = np.where(i > options.on_current, i * r25, 0.0)
+    a = -0.5 * s25 * beta
+    b = s25 * (1.0 + beta * h) - 0.5 * ir * alpha
+    c = ir * (1.0 + alpha * h) - v
+    disc = b * b - 4.0 * a * c
+    ok = (b > 0.0) & (disc >= 0.0)
+    dt = np.where(ok, -2.0 * c / (b + np.sqrt(np.where(ok, disc, 0.0))), np.nan)
+    if not floating:
+        dt = np.where(i > options.on_current, dt, np.nan)
+    return np.asarray(dt, dtype=np.float64)
+
+
+def _check_lift(dt: FloatArray, dt_se: FloatArray, on: BoolArray, lead: FloatArray) -> None:
+    # While the module cools, heat flows from the cabinet into the cold face and from the hot
+    # face into the ambient, so Tc <= Tcab and Th >= Ta: ΔT >= Ta - Tcab (second law; common
+    # practice, no source). A ΔT read with the steps' R that stays below it means R came out
+    # high: the faces moved within a sample at the switch-offs, not continuously.
+    ok = on & np.isfinite(dt) & np.isfinite(lead)
+    if ok.sum() < 5:
+        return
+    short = float(np.median((dt - lead)[ok]))
+    if short < -2.0 * float(np.median(dt_se[ok])):
+        raise InsufficientDataError(
+            f"ΔT read with the steps' R25 is {-short:.1f} K below the ambient's lead over the "
+            "cabinet while the module cools",
+            "the switch-off steps give a resistance the heat flows rule out (ΔT below the "
+            "ambient's lead over the cabinet while cooling): the faces change faster than "
+            "the samples, so the module's voltage cannot stand in for the missing probes",
+        )
+
+
+def reconstruct_faces(
+    time_s: FloatArray,
+    current: FloatArray,
+    voltage: FloatArray,
+    t_cabinet: FloatArray,
+    t_ambient: FloatArray,
+    t_hot: FloatArray | None,
+    usable: BoolArray,
+    *,
+    floating: bool,
+    s25: float,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> FaceReconstruction:
+    """ΔT, and the cold face where the hot one is probed, from the module's own voltage.
+
+    R25 from switch-off steps (:func:`step_resistance`), S25 held at ``s25`` (registered
+    ratings) with the spread between units of a type (``seebeck_unit_rel_sd``), then ΔT from
+    the voltage; Tc = Th - ΔT. The mean module temperature behind R(Tm) and S(Tm) matters
+    (about 1 K of ΔT per kelvin): with a hot probe Tm = Th - ΔT/2 is solved together with ΔT
+    (:func:`delta_t_from_hot_face`); without one it is the middle of cabinet and ambient
+    within a stated bound.
+    Without a hot probe the faces have no anchor (the hot sink's rise above the ambient needs
+    its resistance, which needs Th): ΔT and R25 are what hold, t_cold stays NaN. While the
+    module cools, ΔT must be at least the ambient's lead over the cabinet (Tc <= Tcab,
+    Th >= Ta): a ΔT that falls
+    short on most on samples rules the steps' R out.
+
+    Parameters
+    ----------
+    time_s : Sample times [s].
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_cabinet, t_ambient : Cabinet air and ambient [K].
+    t_hot : Hot face, None where not probed [K].
+    usable : Samples that may be used [-].
+    floating : Whether off samples show the open-circuit voltage [-].
+    s25 : Registered ratings' S25 [V/K].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : as :func:`step_resistance`, and ``seebeck_unit_rel_sd`` [-],
+        ``probe_offset_k`` [K].
+
+    Returns
+    -------
+    The reconstruction.
+
+    Raises
+    ------
+    NotSeparableError : the driver does not float (no open-circuit voltage).
+    InsufficientDataError : too few switch-off steps, or a ΔT read with their R that the
+        heat flows rule out (below the ambient's lead over the cabinet while cooling).
+    """
+    if not floating:
+        raise NotSeparableError(
+            "no open-circuit voltage and no face probes: R25 and S not separable",
+            "no open-circuit voltage seen (a driver that holds the module at zero volts while "
+            "off, or a module that never rests) and no face probes: R25 and S cannot be told "
+            "apart",
+        )
+    i, v = np.asarray(current, dtype=np.float64), np.asarray(voltage, dtype=np.float64)
+    tcab, ta = np.asarray(t_cabinet, dtype=np.float64), np.asarray(t_ambient, dtype=np.float64)
+    th = None if t_hot is None else np.asarray(t_hot, dtype=np.float64)
+    s_rel, probe = options.seebeck_unit_rel_sd, options.probe_offset_k
+    step = step_resistance(
+        time_s, i, v, tcab, ta, th, usable, s25=s25, alpha=alpha, options=options
+    )
+    r25 = step.r25
+    if th is not None:
+        dt = delta_t_from_hot_face(
+            i, v, th, True, r25, s25, alpha=alpha, beta=beta, options=options
+        )
+        tm, tm_sd = th - 0.5 * dt, np.full_like(dt, probe)
+    else:
+        tm = 0.5 * (tcab + ta)
+        dt, _ = reconstruct_delta_t(
+            i, v, tm, True, r25, 0.0, s25, 0.0, alpha=alpha, beta=beta, options=options
+        )
+        tm_sd = _unanchored_sd(dt, tcab, ta, probe)
+    _, dt_se = reconstruct_delta_t(
+        i, v, tm, True, r25, step.r25_se, s25, s_rel, t_mean_sd_k=tm_sd, alpha=alpha,
+        beta=beta, options=options,
+    )  # fmt: skip
+    if th is not None:
+        tm_sd = np.hypot(tm_sd, 0.5 * dt_se)
+    _check_lift(dt, dt_se, i > options.on_current, ta - tcab)
+    rs = f"R25 from {step.n_steps} switch-off steps, S from the registered ratings"
+    if th is None:
+        tc, tc_se = np.full_like(dt, np.nan), np.full_like(dt, np.nan)
+        basis = f"no face probes: ΔT from the module's voltage ({rs}); faces unanchored"
+    else:
+        tc, tc_se = th - dt, np.hypot(dt_se, options.probe_offset_k)
+        basis = f"cold face = hot probe - ΔT from the module's voltage ({rs})"
+    return FaceReconstruction(dt, dt_se, tc, tc_se, tm, tm_sd, step, basis)

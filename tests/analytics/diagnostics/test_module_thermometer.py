@@ -1,0 +1,261 @@
+"""The module as its own thermometer, checked against outside references.
+
+References named beside each check:
+- H. J. Goldsmid, Introduction to Thermoelectricity, Springer, 2010, ch. 2: V = S·ΔT + I·R.
+- T. C. Harman, J. Appl. Phys. 29, 1373 (1958): at a switch-off the ohmic part vanishes at
+  once, the Seebeck part S·ΔT remains.
+- The simulator's true face temperatures (simulated truth, not measurements).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+import pytest
+
+from tecfleet.analytics import simulation as sim
+from tecfleet.analytics._validate import T_25C_K
+from tecfleet.analytics.diagnostics import module_thermometer as mt
+from tecfleet.analytics.errors import InsufficientDataError
+from tecfleet.analytics.runner.data import Readings, complete_faces, fill_cold_face, priors
+from tecfleet.analytics.runner.settings import AnalysisSettings
+from tecfleet.analytics.simulation.chunk import Chunk, concat
+
+T0 = 273.15
+
+# A hand-worked example of V = S·ΔT + I·R (Goldsmid 2010, ch. 2). Module: 127 couples of
+# bismuth telluride at about 400 µV/K per couple (p and n legs about ±200 µV/K; from
+# memory), so S = 127 × 400e-6 = 0.0508 V/K; R = 2.0 Ω and I = 3.0 A, ΔT = 30 K (a typical
+# small module and operating point; from memory). By hand:
+#   Seebeck part S·ΔT = 0.0508 × 30 = 1.524 V, ohmic part I·R = 3.0 × 2.0 = 6.0 V,
+#   terminal voltage V = 7.524 V; open circuit after switch-off V_oc = 1.524 V;
+#   Harman: R = (V_on - V_off)/I_on = (7.524 - 1.524)/3.0 = 2.0 Ω.
+S_HAND, R_HAND, I_HAND, DT_HAND = 0.0508, 2.0, 3.0, 30.0
+V_ON_HAND, V_OC_HAND = 7.524, 1.524
+
+
+def test_hand_worked_voltage_gives_back_delta_t_driven_and_floating() -> None:
+    # At a mean module temperature of 25 °C the temperature factors are 1, so ΔT must be the
+    # hand-worked 30 K from V = 7.524 V driven and from V_oc = 1.524 V floating.
+    dt, se = mt.reconstruct_delta_t(
+        np.array([I_HAND, 0.0]), np.array([V_ON_HAND, V_OC_HAND]), np.full(2, T_25C_K),
+        True, R_HAND, 0.0, S_HAND, 0.0,
+    )  # fmt: skip
+    assert dt == pytest.approx([DT_HAND, DT_HAND], abs=1e-9)
+    # The only error left is the voltage reading's offset over S: 0.01 V / 0.0508 V/K.
+    assert se == pytest.approx([0.01 / 0.0508] * 2, rel=1e-9)
+
+
+def test_hand_worked_voltage_errors_follow_first_order_propagation() -> None:
+    # First-order propagation (JCGM 100:2008 eq. (13)) of ΔT = (V - I·R)/S by hand:
+    # ∂ΔT/∂R = -I/S = -3/0.0508 K/Ω, so δR = 0.02 Ω gives 1.181 K; ∂ΔT/∂S·δS = -ΔT·δS/S,
+    # 3 % of 30 K = 0.9 K; voltage offset 0.01 V / 0.0508 = 0.197 K. In quadrature 1.498 K.
+    _, se = mt.reconstruct_delta_t(
+        np.array([I_HAND]), np.array([V_ON_HAND]), np.array([T_25C_K]), True, R_HAND, 0.02,
+        S_HAND, 0.03,
+    )  # fmt: skip
+    by_hand = math.sqrt((3.0 * 0.02 / 0.0508) ** 2 + 0.9**2 + (0.01 / 0.0508) ** 2)
+    assert float(se[0]) == pytest.approx(by_hand, rel=1e-9)
+    assert by_hand == pytest.approx(1.498, abs=1e-3)
+
+
+def test_zero_volt_driver_off_samples_carry_no_delta_t() -> None:
+    # A driver that shorts the module while off shows 0 V whatever ΔT (Harman's open circuit
+    # is missing): ΔT there is unknown, not zero.
+    dt, _ = mt.reconstruct_delta_t(
+        np.array([I_HAND, 0.0]), np.array([V_ON_HAND, 0.0]), np.full(2, T_25C_K), False,
+        R_HAND, 0.0, S_HAND, 0.0,
+    )  # fmt: skip
+    assert dt[0] == pytest.approx(DT_HAND)
+    assert math.isnan(dt[1])
+
+
+def _hand_trace(tau_s: float, jump: bool = False) -> tuple[np.ndarray, ...]:
+    # On for 10 min at I_HAND with ΔT = 30 K, then off for 10 min with ΔT relaxing to 5 K with
+    # time constant tau_s (faces that carry heat), switched at a random instant within the
+    # sampling interval; one-minute samples. With ``jump`` the faces relax at once (no heat
+    # capacity). Built from the hand-worked module above, not from the code under test.
+    rng = np.random.default_rng(7)
+    t, i, dt = [], [], []
+    t0 = 0.0
+    for _ in range(12):
+        t_off = t0 + 600.0 + rng.uniform(0.0, 60.0)
+        for k in range(20):
+            ts = t0 + 60.0 * k + 30.0
+            on = ts < t_off
+            decay = 0.0 if jump else math.exp(-(ts - t_off) / tau_s)
+            t.append(ts)
+            i.append(I_HAND if on else 0.0)
+            dt.append(DT_HAND if on else 5.0 + (DT_HAND - 5.0) * decay)
+        t0 += 1200.0
+    ta, ia, dta = np.array(t), np.array(i), np.array(dt)
+    v = S_HAND * dta + ia * R_HAND
+    return ta, ia, v, dta
+
+
+def test_switch_off_steps_give_harman_resistance_where_faces_carry_heat() -> None:
+    # Harman (1958): R = (V_on - V_off)/I_on with ΔT continuous across the step. Faces that
+    # relax over 10 min: the hand-worked R = 2.0 Ω, to within the stated error.
+    t, i, v, dt = _hand_trace(600.0)
+    n = t.size
+    # Hot face at 25 °C + ΔT/2, so that Tm = Th - ΔT/2 is 25 °C throughout (factors of 1).
+    th = T_25C_K + 0.5 * dt
+    res = mt.step_resistance(
+        t, i, v, np.full(n, 278.0), np.full(n, 295.0), th, np.ones(n, dtype=bool), s25=S_HAND
+    )
+    assert res.n_steps == 12
+    assert abs(res.r25 - R_HAND) <= 2.0 * res.r25_se
+    assert res.r25 == pytest.approx(R_HAND, rel=0.01)
+    assert res.reliable
+
+
+def test_steps_where_the_hot_face_jumps_are_left_out() -> None:
+    # Faces without heat capacity: ΔT drops at the switch, so V_on - V_off holds
+    # S·(30 - 5) K besides I·R and no R comes of it. A hot probe that jumps with the
+    # current (here by half of ΔT's drop, then still) shows it.
+    t, i, v, dt = _hand_trace(600.0, jump=True)
+    th = 310.0 + 0.5 * dt
+    n = t.size
+    with pytest.raises(InsufficientDataError):
+        mt.step_resistance(
+            t, i, v, np.full(n, 278.0), np.full(n, 295.0), th, np.ones(n, dtype=bool),
+            s25=S_HAND,
+        )  # fmt: skip
+
+
+def test_zero_volt_driver_without_face_probes_is_not_separable() -> None:
+    # V = I·R + S·ΔT is one equation in two unknowns at every sample when no open-circuit
+    # voltage is seen (Goldsmid 2010, ch. 2): a specific error, never a number.
+    t, i, v, _ = _hand_trace(600.0)
+    n = t.size
+    with pytest.raises(mt.NotSeparableError, match="not separable"):
+        mt.reconstruct_faces(
+            t, i, np.where(i > 0, v, 0.0), np.full(n, 278.0), np.full(n, 295.0), None,
+            np.ones(n, dtype=bool), floating=False, s25=S_HAND,
+        )  # fmt: skip
+
+
+def test_floating_is_told_from_zero_volts_without_face_probes() -> None:
+    # An idle module's few kelvin show tenths of a volt (Harman 1958); a shorted driver 0 V.
+    assert mt.floating_without_faces(np.full(20, S_HAND * 4.0))
+    assert not mt.floating_without_faces(np.zeros(20))
+
+
+def test_a_resistance_the_heat_flows_rule_out_gives_no_faces() -> None:
+    # Faces that jump at the switch and no hot probe to show it: the steps' R then holds
+    # S·(30 - 5) K / 3 A = 0.42 Ω besides the hand-worked 2.0 Ω, and ΔT read with it comes
+    # out 30 - 0.42 × 3 / 0.0508 = 5 K, below the 17 K the ambient leads the cabinet by. While
+    # the module cools, Tc <= Tcab and Th >= Ta (heat flows from warm to cold; common
+    # practice, no source), so no R and no faces are given.
+    t, i, v, _ = _hand_trace(600.0, jump=True)
+    n = t.size
+    with pytest.raises(InsufficientDataError, match="ambient's lead"):
+        mt.reconstruct_faces(
+            t, i, v, np.full(n, 278.0), np.full(n, 295.0), None, np.ones(n, dtype=bool),
+            floating=True, s25=S_HAND,
+        )  # fmt: skip
+
+
+@pytest.fixture(scope="module")
+def simulated() -> tuple[sim.FleetSpec, Chunk]:
+    # Three thermostat units with floating drivers and sinks of 1000/3000 J/K (time constants
+    # of several minutes), one day of one-minute data; tuning seed 204.
+    spec = sim.random_fleet(3, seed=204, start_s=1_735_689_600.0, days=1)
+    devs = tuple(
+        dataclasses.replace(
+            d, control="thermostat", off_voltage="open_circuit", c_cold_sink=1000.0,
+            c_hot_sink=3000.0,
+        )
+        for d in spec.devices
+    )  # fmt: skip
+    spec = dataclasses.replace(spec, devices=devs)
+    chunks, _truth = sim.simulate(spec, 1.0)
+    return spec, concat(chunks)
+
+
+def test_cold_face_without_its_probe_matches_the_simulated_truth(
+    simulated: tuple[sim.FleetSpec, Chunk],
+) -> None:
+    # Against the simulator's true faces (simulated truth): the cold face read from the
+    # voltage and the hot probe, with R25 from the switch-off steps and S from the ratings.
+    spec, c = simulated
+    for j, d in enumerate(spec.devices):
+        ok, m = c.present[:, j], c.measured
+        prior = priors(d.registration()["module"], AnalysisSettings())
+        assert prior is not None
+        rec = mt.reconstruct_faces(
+            c.ts[ok, j], m["current"][ok, j], m["voltage"][ok, j],
+            m["t_cabinet"][ok, j] + T0, m["t_ambient"][ok, j] + T0, m["t_hot"][ok, j] + T0,
+            np.ones(int(ok.sum()), dtype=bool), floating=True,
+            s25=prior.seebeck,
+        )  # fmt: skip
+        assert abs(rec.step.r25 / d.r25 - 1.0) <= max(0.02, 2.0 * rec.step.r25_se / d.r25)
+        true_tc = c.truth["t_cold"][ok, j] + T0
+        err = rec.t_cold - true_tc
+        # The error is mostly one draw per unit (S from the ratings, the voltage reading's
+        # offset), the same at every sample: its stated size must cover it.
+        assert abs(float(np.median(err))) <= 2.0 * float(np.median(rec.t_cold_se))
+        assert "hot probe" in rec.basis
+
+
+def _readings(c: Chunk, j: int) -> Readings:
+    ok, m = c.present[:, j], c.measured
+    ts = np.round(c.ts[ok, j] * 1000.0).astype(np.int64)
+    return Readings(
+        ts=ts, t=(ts - ts[0]) / 1000.0, tcab=m["t_cabinet"][ok, j] + T0,
+        tc=m["t_cold"][ok, j] + T0, th=m["t_hot"][ok, j] + T0, ta=m["t_ambient"][ok, j] + T0,
+        i=m["current"][ok, j], v=m["voltage"][ok, j], door=c.truth["door_s"][ok, j] > 0,
+    )  # fmt: skip
+
+
+def test_runner_fills_the_cold_face_only_where_its_probe_is_missing(
+    simulated: tuple[sim.FleetSpec, Chunk],
+) -> None:
+    # Both probes present: the arrays stay exactly as loaded. Cold probe missing (NaN, as a
+    # cooler without it delivers): the cold face is read from the voltage, near the
+    # simulator's true face (simulated truth), and what it rests on is kept; the hours after
+    # the window are read with the window's R25 and S.
+    spec, c = simulated
+    cfg = AnalysisSettings()
+    prior = priors(spec.devices[0].registration()["module"], cfg)
+    assert prior is not None
+    full = _readings(c, 0)
+    before = full.tc.copy()
+    complete_faces(full, slice(0, full.ts.size), prior, cfg)
+    assert full.faces is None and full.faces_missing is None
+    assert np.array_equal(full.tc, before)
+
+    reduced = _readings(c, 0)
+    reduced.tc = np.full_like(reduced.tc, np.nan)
+    reduced.cold_probe = False
+    n = reduced.ts.size
+    complete_faces(reduced, slice(0, n // 2), prior, cfg)
+    assert reduced.faces is not None
+    assert "hot probe" in reduced.faces.basis
+    assert np.isnan(reduced.tc[n // 2 :]).all()
+    fill_cold_face(reduced, slice(n // 2, n), reduced.faces.step.r25, prior.seebeck, cfg)
+    true_tc = c.truth["t_cold"][c.present[:, 0], 0] + T0
+    se = float(np.median(reduced.faces.t_cold_se))
+    for part in (slice(0, n // 2), slice(n // 2, n)):
+        assert abs(float(np.median((reduced.tc - true_tc)[part]))) <= 2.0 * se
+
+
+def test_runner_states_why_a_zero_volt_unit_without_face_probes_has_no_faces(
+    simulated: tuple[sim.FleetSpec, Chunk],
+) -> None:
+    # No open-circuit voltage and no face probes: R25 and S cannot be told apart; the reason
+    # is kept for the estimates, the arrays stay NaN.
+    spec, c = simulated
+    cfg = AnalysisSettings()
+    data = _readings(c, 1)
+    data.v = np.where(data.i > cfg.on_current, data.v, 0.0)
+    data.tc = np.full_like(data.tc, np.nan)
+    data.th = np.full_like(data.th, np.nan)
+    data.cold_probe = data.hot_probe = False
+    prior = priors(spec.devices[1].registration()["module"], cfg)
+    complete_faces(data, slice(0, data.ts.size), prior, cfg)
+    assert data.faces is None
+    assert data.faces_missing is not None and "cannot be told apart" in data.faces_missing
+    assert np.isnan(data.tc).all()

@@ -191,6 +191,13 @@ class DeviceState(_Stored):
     tau_hist: list[list[float]] | None = None
     #: Recent K fitted from data [W/K].
     k_hist: list[float] | None = None
+    #: Rests seen (see ``runner.offsets``): [from, to (epoch ms UTC), T_j - T_a of the
+    #: cabinet, cold and hot probes [K], their standard errors [K], voltage [V], its error
+    #: [V]]; null for what was not read.
+    probe_rests: list[list[float | None]] | None = None
+    #: The probes' estimated offsets from the ambient probe (cabinet, cold, hot) [K] and the
+    #: largest standard uncertainty left of the differences the heat balances use [K].
+    probe_offsets: list[float] | None = None
 
     def series_by_name(self) -> dict[str, list[Point]]:
         if self.series is None:

@@ -17,7 +17,7 @@ from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics
 from tecfleet.analytics._validate import T_25C_K, FloatArray
 from tecfleet.analytics.errors import PhysicsError
-from tecfleet.analytics.runner import settled
+from tecfleet.analytics.runner import offsets, settled
 from tecfleet.analytics.runner.data import Readings, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
@@ -77,6 +77,13 @@ def fit_window(
     cfg: AnalysisSettings,
 ) -> None:
     """All estimates of the window ending at ``b`` (epoch ms UTC), and what the state keeps."""
+    raw = _window(data, b, cfg)
+    if raw is None:
+        return
+    # The fits see the temperatures corrected by the probes' offsets found so far, with the
+    # offset prior narrowed to what is left of it.
+    offsets.update_offsets(data, b, raw.floating, prior, rows, state, cfg)
+    data, cfg = offsets.corrected(data, state), offsets.settings_for(state, cfg)
     win = _window(data, b, cfg)
     if win is None:
         return

@@ -72,20 +72,21 @@ class DiagnosticsOptions:
     voltage_step: float = 0.01
 
     # --- probe offsets (probe_offsets.py) -----------------------------------------------
-    #: Least time without current before a rest block may start [s]: a few hours for the
-    #: faces and the cabinet air (common practice, no source).
-    rest_min_s: float = 12 * 3600.0
+    #: Least time without current before a rest's samples count [s]: the faces and the
+    #: cabinet air (a few hundred J/K on a few W/K) settle within minutes, the contents are
+    #: regressed on their drift (common practice, no source).
+    rest_min_s: float = 2 * 3600.0
     #: Sub-blocks of a rest over which the cabinet's drift and the probes' differences are
     #: averaged [s]: two hours pin the drift to about 0.01 K/h with 0.1-K readings every minute
     #: (least-squares slope error from the readings' scatter; common practice, no source).
     rest_sub_s: float = 2 * 3600.0
     #: Fewest sub-blocks for a rest to count [-]: half a day (common practice, no source).
     rest_min_sub: int = 6
-    #: Largest standard error of a probe's offset from one rest for it to count [K] (common
-    #: practice, no source).
+    #: Largest standard error of a probe's offset from one rest for it to count [K]: a third
+    #: of the offsets' prior (common practice, no source).
     rest_settle_k: float = 0.1
-    #: Largest offset a rest may show [K]: beyond it the unit has not settled into a lumped
-    #: relaxation (three times the offsets' prior; common practice, no source).
+    #: Largest offset a rest may show [K]: beyond it the stretch is no lumped relaxation
+    #: (three times the offsets' prior; common practice, no source).
     rest_spread_k: float = 1.0
     #: Least standard error of a probe's rest difference [K]: one 0.1-K step over √12 (common
     #: practice, no source).

@@ -4,13 +4,14 @@ Each probe reads T + b_j with a constant offset b_j (j: cabinet, cold face, hot 
 and the voltage reading V + b_v. Heat flows see only differences of the b_j, so the offsets
 are reported relative to the ambient probe, δ_j = b_j - b_a. Two kinds of evidence:
 
-* **Rest.** A module without current that has rested long enough has its faces, its cabinet
-  and the ambient at one temperature; then every read difference T_j - T_a is b_j - b_a, and
-  a floating module's voltage, with no ΔT across it, is b_v. A cooling body relaxes as
-  θ(t) = θ0·exp(-t/τ) (lumped capacitance: Incropera et al., *Fundamentals of Heat and Mass
-  Transfer*, 6th ed., 2007, ch. 5, eq. (5.6)), so the difference still to go is τ·|dθ/dt|:
-  a rest counts where that, with τ = ``rest_tau_s`` and each probe's own slope, is below
-  ``rest_settle_k`` for every probe, after at least ``rest_min_s`` without current.
+* **Rest.** A module without current has its faces and its cabinet relax towards the
+  ambient; once they agree with it every read difference T_j - T_a is b_j - b_a, and a
+  floating module's voltage, with no ΔT across it, is b_v. Lumped bodies relax as
+  θ(t) = θ0·exp(-t/τ) (Incropera et al., *Fundamentals of Heat and Mass Transfer*, 6th ed.,
+  2007, ch. 5, eq. (5.6)): the contents slowly, over hours, the air and the faces following
+  them and the ambient by fixed shares. So a read difference is its offset plus a
+  combination of the cabinet's and the ambient's drifts, and regressed on those drifts over
+  a rest of half a day its intercept is the offset, without waiting for full agreement.
 * **Open-circuit voltage.** Where the driver lets the module float, its voltage while off
   is V_oc = S·ΔT (the Seebeck effect: H. J. Goldsmid, *Introduction to Thermoelectricity*,
   2010, ch. 2), so ΔT_read - V_read/S = (b_h - b_c) - b_v/S on every off sample: the
@@ -37,10 +38,14 @@ from .estimates import BoolArray
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 
 __all__ = [
+    "PAIRS",
     "PROBES",
     "OffsetEvidence",
     "ProbeOffsets",
     "RestMoment",
+    "balance_offset_sds",
+    "difference_sd",
+    "largest_difference_sd",
     "open_circuit_evidence",
     "probe_offsets",
     "rest_evidence",
@@ -147,55 +152,96 @@ class ProbeOffsets:
     def difference_sd(self, a: str, b: str) -> float:
         """Standard uncertainty of the offset of probe ``a`` minus that of ``b`` (names from
         ``PROBES`` or "ambient") [K]."""
-        w = np.zeros(3)
-        for name, sign in ((a, 1.0), (b, -1.0)):
-            if name != "ambient":
-                w[PROBES.index(name)] += sign
-        return math.sqrt(max(float(w @ self.cov @ w), 0.0))
+        return difference_sd(self.cov, a, b)
 
     def largest_difference_sd(self) -> float:
-        """The largest standard uncertainty among the differences the heat balances use:
-        cabinet - cold, hot - ambient, hot - cold, ambient - cabinet [K]."""
-        pairs = (("cabinet", "cold"), ("hot", "ambient"), ("hot", "cold"), ("ambient", "cabinet"))
-        return max(self.difference_sd(a, b) for a, b in pairs)
+        """The largest standard uncertainty among the differences the heat balances use [K]."""
+        return largest_difference_sd(self.cov)
 
 
-def _runs(mask: BoolArray) -> list[tuple[int, int]]:
-    # (start, stop) of each run of True in ``mask``.
-    edges = np.flatnonzero(np.diff(np.concatenate([[0], mask.astype(np.int8), [0]])))
-    return [(int(a), int(b)) for a, b in zip(edges[::2], edges[1::2], strict=True)]
+#: The differences of probes the heat balances use: the cold path, the hot path, the module
+#: and the cabinet's lead to the ambient.
+PAIRS = (("cabinet", "cold"), ("hot", "ambient"), ("hot", "cold"), ("ambient", "cabinet"))
 
 
-def _sub_blocks(t: FloatArray, temps: FloatArray, sub_s: float) -> tuple[FloatArray, FloatArray]:
-    # Per sub-block of ``sub_s``: the cabinet's least-squares slope [K/s] and the mean read
-    # differences of the cabinet, cold and hot probes from the ambient probe [K] (NaN where a
-    # probe is not read).
+def difference_sd(cov: FloatArray, a: str, b: str) -> float:
+    """Standard uncertainty of the offset of probe ``a`` minus that of ``b`` (names from
+    ``PROBES`` or "ambient"), from the offsets' covariance ``cov`` (``PROBES`` order, relative
+    to the ambient probe) [K]."""
+    w = np.zeros(3)
+    for name, sign in ((a, 1.0), (b, -1.0)):
+        if name != "ambient":
+            w[PROBES.index(name)] += sign
+    return math.sqrt(max(float(w @ cov @ w), 0.0))
+
+
+def largest_difference_sd(cov: FloatArray) -> float:
+    """The largest standard uncertainty among the differences in ``PAIRS`` [K]."""
+    return max(difference_sd(cov, a, b) for a, b in PAIRS)
+
+
+def balance_offset_sds(
+    cov: FloatArray, k: float, g_cold: float, g_hot: float
+) -> tuple[float, float]:
+    """Standard uncertainties of the constant heat flows the offsets make in the cold and hot
+    sink balances [W].
+
+    Reads differ from the truth by the offsets, so the cold balance's g_c·(Tcab - Tc) +
+    K·(Th - Tc) is off by g_c·δ_cab - (g_c + K)·δ_c + K·δ_h and the hot one's g_h·(Th - Ta)
+    + K·(Th - Tc) by -K·δ_c + (g_h + K)·δ_h; their variances are wᵀ·cov·w (JCGM 100:2008,
+    GUM, eq. (13)).
+
+    Parameters
+    ----------
+    cov : Covariance of the offsets (``PROBES`` order, relative to the ambient probe) [K²].
+    k : Module conductance [W/K].
+    g_cold, g_hot : Conductances of the cold and hot paths [W/K].
+    """
+    w_c = np.array([g_cold, -(g_cold + k), k])
+    w_h = np.array([0.0, -k, g_hot + k])
+    return (
+        math.sqrt(max(float(w_c @ cov @ w_c), 0.0)),
+        math.sqrt(max(float(w_h @ cov @ w_h), 0.0)),
+    )
+
+
+def _sub_blocks(
+    t: FloatArray, temps: FloatArray, sub_s: float
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    # Per sub-block of ``sub_s``: the least-squares slopes of the cabinet and the ambient
+    # [K/s], the mean read differences of the cabinet, cold and hot probes from the ambient
+    # probe [K] (NaN where a probe is not read), and the block's mean time [s].
     k = ((t - t[0]) // sub_s).astype(np.int64)
-    slopes, diffs = [], []
+    slopes, diffs, mids = [], [], []
     for j in range(int(k[-1]) + 1):
         blk = k == j
-        tb, cab = t[blk], temps[blk, 0]
+        tb = t[blk]
         if tb.size < 10 or tb[-1] - tb[0] < 0.75 * sub_s:
             continue
-        slopes.append(float(np.polyfit(tb - tb.mean(), cab, 1)[0]))
+        mids.append(float(tb.mean()))
+        tb = tb - tb.mean()
+        slopes.append([float(np.polyfit(tb, temps[blk, q], 1)[0]) for q in (0, 3)])
         diffs.append(np.mean(temps[blk, :3] - temps[blk, 3:4], axis=0))
-    return np.array(slopes), np.array(diffs).reshape(-1, 3)
+    return np.array(slopes).reshape(-1, 2), np.array(diffs).reshape(-1, 3), np.array(mids)
 
 
 def _relaxed(
     t: FloatArray, temps: FloatArray, volt: FloatArray | None, options: DiagnosticsOptions
 ) -> tuple[FloatArray, FloatArray, float, float] | None:
-    # (diff, diff_sd, volt, volt_sd) of one rest stretch, None where it tells too little.
-    # ``temps``: (n, 4) cabinet, cold, hot, ambient. At rest the cabinet relaxes to the
-    # ambient as a lumped body, C·dTcab/dt = G·(Ta - Tcab), and the unpowered faces sit
-    # between the two by fixed shares of conductance, so every read difference from the
-    # ambient probe is its offset plus a multiple of the cabinet's drift:
-    # T_j - T_a = δ_j + β_j·dTcab/dt. The intercept, at no drift, is the offset.
-    x, d = _sub_blocks(t, temps, options.rest_sub_s)
-    if x.size < options.rest_min_sub:
+    # (diff, diff_sd, volt, volt_sd) of one rest stretch, None where it tells nothing.
+    # ``temps``: (n, 4) cabinet, cold, hot, ambient. At rest the contents relax to the
+    # ambient as a lumped body, Cn·dTn/dt = G·(Ta - Tn), the air and the unpowered faces
+    # sit between them and the ambient by fixed shares of conductance, so every read
+    # difference from the ambient probe is its offset plus a combination of the cabinet's and
+    # the ambient's drifts: T_j - T_a = δ_j + β_j·dTcab/dt + γ_j·dTa/dt. The intercept, at no
+    # drift, is the offset; a probe whose intercept the rest does not pin to
+    # ``rest_settle_k`` (or that reads beyond ``rest_spread_k``) is left out.
+    x, d, mid = _sub_blocks(t, temps, options.rest_sub_s)
+    if x.shape[0] < options.rest_min_sub:
         return None
-    design = np.column_stack([np.ones(x.size), x])
-    xtx_inv = np.linalg.inv(design.T @ design)
+    design = np.column_stack([np.ones(x.shape[0]), x])
+    # A drift that did not vary (a steady ambient) leaves its column empty: pseudo-inverse.
+    xtx_inv = np.linalg.pinv(design.T @ design)
     diff, sd = np.full(3, math.nan), np.full(3, math.nan)
     for j in range(3):
         y = d[:, j]
@@ -203,11 +249,12 @@ def _relaxed(
             continue
         coef = xtx_inv @ design.T @ y
         res = y - design @ coef
-        sigma = math.sqrt(float(res @ res) / max(y.size - 2, 1))
+        sigma = math.sqrt(float(res @ res) / max(y.size - design.shape[1], 1))
         se = sigma * math.sqrt(float(xtx_inv[0, 0]))
-        if se > options.rest_settle_k or abs(float(coef[0])) > options.rest_spread_k:
-            return None
-        diff[j], sd[j] = float(coef[0]), math.hypot(se, options.rest_floor_k)
+        if se <= options.rest_settle_k and abs(float(coef[0])) <= options.rest_spread_k:
+            diff[j], sd[j] = float(coef[0]), math.hypot(se, options.rest_floor_k)
+    if not np.isfinite(diff).any():
+        return None
     if volt is None:
         return diff, sd, math.nan, math.nan
     v = volt[np.isfinite(volt)]
@@ -215,11 +262,11 @@ def _relaxed(
         return diff, sd, math.nan, math.nan
     # A floating module's voltage at rest is S·ΔT with ΔT a share of the cabinet's lag: its
     # drift-free intercept is the reading's offset. The reading's step limits it: step/√12.
-    vx = np.interp(t, t[0] + options.rest_sub_s * (np.arange(x.size) + 0.5), x)
     ok = np.isfinite(volt)
-    dv = np.column_stack([np.ones(int(ok.sum())), vx[ok]])
+    vx = [np.interp(t[ok], mid, x[:, q]) for q in (0, 1)]
+    dv = np.column_stack([np.ones(int(ok.sum())), *vx])
     cv = np.linalg.lstsq(dv, volt[ok], rcond=None)[0]
-    v_sd = math.hypot(float(np.std(volt[ok] - dv @ cv, ddof=2)) / math.sqrt(v.size),
+    v_sd = math.hypot(float(np.std(volt[ok] - dv @ cv, ddof=3)) / math.sqrt(v.size),
                       options.voltage_step / 12**0.5)  # fmt: skip
     return diff, sd, float(cv[0]), v_sd
 
@@ -237,15 +284,15 @@ def rest_moments(
     floating: bool,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> list[RestMoment]:
-    """The rests in the readings: for each stretch without current, its last settled block.
+    """The rests in the readings: one per stretch without current that tells an offset.
 
-    A block is the last ``rest_block_s`` of a stretch of usable samples at least
-    ``rest_min_s`` after the module last carried current (the first sample counts as that
-    where it never did). It has settled where every probe read is within ``rest_spread_k``
-    of the ambient probe and the difference still to relax, τ·|dT_j/dt| with τ =
-    ``rest_tau_s`` and dT_j/dt the least-squares slope of the probe over the block, is below
-    ``rest_settle_k`` (a lumped body relaxing to the ambient moves at (Ta - T)/τ: Incropera
-    et al. 2007, ch. 5, eq. (5.6)).
+    A stretch's usable samples from ``rest_min_s`` after the module last carried current
+    (the first sample counts as that where it never did) are cut into sub-blocks of
+    ``rest_sub_s``; at least ``rest_min_sub`` of them are needed. Each probe's mean difference
+    from the ambient probe is regressed on the sub-blocks' drifts of the cabinet and the
+    ambient, and the intercept, at no drift, taken as its offset where its standard error is
+    within ``rest_settle_k`` (lumped bodies relaxing to the ambient, Incropera et al. 2007,
+    ch. 5, eq. (5.6); see ``_relaxed``).
 
     Parameters
     ----------
@@ -272,14 +319,14 @@ def rest_moments(
     last_on = np.maximum.accumulate(np.where(on, t, -np.inf))
     start = np.where(np.isfinite(last_on), last_on, t[0])
     rest = usable & ~on & (t - start >= options.rest_min_s) & np.isfinite(temps[:, 3])
-    gap = np.concatenate([[False], np.diff(t) > options.max_gap_s])
+    volts = np.asarray(voltage, dtype=np.float64)
     out: list[RestMoment] = []
-    for a, b in _runs(rest & ~gap):
-        blk = slice(a, b)
-        volt = np.asarray(voltage, dtype=np.float64)[blk] if floating else None
-        got = _relaxed(t[blk], temps[blk], volt, options)
+    # One moment per stretch without current (door openings and gaps within it left out).
+    for s0 in np.unique(start[rest]):
+        sel = rest & (start == s0)
+        got = _relaxed(t[sel], temps[sel], volts[sel] if floating else None, options)
         if got is not None:
-            out.append(RestMoment(float(start[a]), float(t[b - 1]), *got))
+            out.append(RestMoment(float(s0), float(t[sel][-1]), *got))
     return out
 
 

@@ -15,7 +15,7 @@ import math
 import numpy as np
 
 from tecfleet.analytics import physics
-from tecfleet.analytics._validate import T_25C_K
+from tecfleet.analytics._validate import T_25C_K, FloatArray
 from tecfleet.analytics.diagnostics import probe_offsets as po
 from tecfleet.analytics.errors import PhysicsError
 from tecfleet.analytics.runner import settled
@@ -24,7 +24,7 @@ from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState, remember
 
-__all__ = ["corrected", "settings_for", "update_offsets"]
+__all__ = ["corrected", "offset_cov", "settings_for", "update_offsets"]
 
 #: Rest moments kept per unit [-] (common practice, no source).
 _KEEP_RESTS = 20
@@ -66,7 +66,8 @@ def update_offsets(
         est = po.probe_offsets(evidence, options=opts)
     except PhysicsError:
         return  # no rest and no floating module yet: the offsets' prior stays
-    state.probe_offsets = [*map(float, est.offsets), est.largest_difference_sd()]
+    state.probe_offsets = [float(x) for x in est.offsets]
+    state.probe_offset_cov = est.cov.tolist()
     n = est.n_rest + est.n_open
     channels = (data.tcab[wt], data.tc[wt], data.th[wt])
     for name, value, se, arr in zip(po.PROBES, est.offsets, est.stderrs, channels, strict=True):
@@ -128,10 +129,19 @@ def corrected(data: Readings, state: DeviceState) -> Readings:
     )
 
 
+def offset_cov(state: DeviceState) -> FloatArray | None:
+    """Covariance of the unit's estimated offsets (cabinet, cold, hot, relative to the
+    ambient probe) [K²]; None where it has none."""
+    cov = state.probe_offset_cov
+    return None if cov is None else np.array(cov, dtype=np.float64)
+
+
 def settings_for(state: DeviceState, cfg: AnalysisSettings) -> AnalysisSettings:
     """``cfg`` with the offset prior narrowed to the largest standard uncertainty left of
-    the differences the heat balances use, where the unit has an estimate."""
-    off = state.probe_offsets
-    if off is None:
+    the differences the heat balances use, where the unit has an estimate: for what takes
+    one figure for every pair of probes (the hourly hot side, the paths' stated errors)."""
+    cov = offset_cov(state)
+    if cov is None:
         return cfg
-    return dataclasses.replace(cfg, probe_offset_k=min(cfg.probe_offset_k, off[3]))
+    sd = po.largest_difference_sd(cov)
+    return dataclasses.replace(cfg, probe_offset_k=min(cfg.probe_offset_k, sd))

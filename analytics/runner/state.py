@@ -195,9 +195,10 @@ class DeviceState(_Stored):
     #: cabinet, cold and hot probes [K], their standard errors [K], voltage [V], its error
     #: [V]]; null for what was not read.
     probe_rests: list[list[float | None]] | None = None
-    #: The probes' estimated offsets from the ambient probe (cabinet, cold, hot) [K] and the
-    #: largest standard uncertainty left of the differences the heat balances use [K].
+    #: The probes' estimated offsets from the ambient probe (cabinet, cold, hot) [K].
     probe_offsets: list[float] | None = None
+    #: Their covariance [K²].
+    probe_offset_cov: list[list[float]] | None = None
 
     def series_by_name(self) -> dict[str, list[Point]]:
         if self.series is None:

@@ -10,11 +10,14 @@ References named beside each check:
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
 import pytest
 
+from tecfleet.analytics import simulation as sim
+from tecfleet.analytics.diagnostics import flag_samples
 from tecfleet.analytics.diagnostics import probe_offsets as po
 from tecfleet.analytics.errors import InsufficientDataError
 
@@ -93,3 +96,37 @@ def test_a_unit_without_a_cold_probe_keeps_its_prior_for_it() -> None:
     # sd = 0.2121·√(4/3) = 0.2449 K (the rest's own 0.03-K floor moves it a little).
     assert est.stderrs[1] == pytest.approx(0.2449, rel=0.01)
     np.testing.assert_allclose(est.offsets[[0, 2]], [0.2, -0.1], atol=0.03)
+
+
+def test_offsets_found_on_a_long_power_cut_match_the_simulated_probe_biases() -> None:
+    # Eight simulated coolers (a development seed), each with a two-day power cut from 12 h
+    # into the run; the simulator gives every probe a constant bias (DeviceSpec.sensor_bias,
+    # the simulated truth). Every probe offset a rest pins must lie within three of its
+    # stated standard errors of the simulated one, and a floating module's voltage at rest
+    # within three of its own of the simulated voltage bias.
+    start = 1_735_689_600.0
+    spec = sim.random_fleet(8, seed=205, start_s=start, days=3.0)
+    cuts = tuple(
+        sim.ScheduledEvent("power_cut", d.device_id, start + 12 * 3600.0, duration_s=48 * 3600.0)
+        for d in spec.devices
+    )
+    chunk = sim.Simulator(dataclasses.replace(spec, events=cuts)).run(3 * 1440)
+    m, found = chunk.measured, 0
+    for k, dev in enumerate(spec.devices):
+        t = chunk.ts[:, k]
+        tcab, tc, th, ta = (m[n][:, k] + T0 for n in ("t_cabinet", "t_cold", "t_hot", "t_ambient"))
+        i, v = m["current"][:, k], m["voltage"][:, k]
+        flags = flag_samples(t, tcab, tc, th, ta, i, v, np.zeros(t.size, dtype=bool))
+        usable = flags.usable & chunk.present[:, k]
+        floating = dev.off_voltage == "open_circuit"
+        moments = po.rest_moments(t, tcab, tc, th, ta, i, v, usable, floating=floating)
+        bias = np.array(dev.sensor_bias)
+        for mom in moments:
+            pinned = np.isfinite(mom.diff)
+            truth = bias[:3] - bias[3]
+            assert np.all(np.abs(mom.diff - truth)[pinned] <= 3.0 * mom.diff_sd[pinned])
+            found += int(pinned.sum())
+            if floating:
+                assert abs(mom.volt - bias[5]) <= 3.0 * mom.volt_sd
+    # The cut is long and every unit rests through it: most probes are pinned.
+    assert found >= 12

@@ -88,6 +88,12 @@ class DiagnosticsOptions:
     #: Largest offset a rest may show [K]: beyond it the stretch is no lumped relaxation
     #: (three times the offsets' prior; common practice, no source).
     rest_spread_k: float = 1.0
+    #: Standard uncertainty added to every difference of two probes after their offsets are
+    #: estimated [K]: a probe's error changes by about 0.1 K between the rest's ambient and
+    #: the faces' working temperatures (common practice, no source). Against simulated fleets
+    #: with known truth (constant biases) the stated errors of R25, K and the hot side's
+    #: resistance otherwise covered their true errors on 64-90 % of units, not 90-100 %.
+    offset_floor_k: float = 0.1
     #: Least standard error of a probe's rest difference [K]: one 0.1-K step over √12 (common
     #: practice, no source).
     rest_floor_k: float = 0.03

@@ -403,12 +403,15 @@ def probe_offsets(
 
     Posterior of the linear Gaussian model (module docstring): precision P = P0 + info,
     mean P⁻¹·vec (prior means zero), offsets A·mean and covariance A·P⁻¹·Aᵀ with A taking
-    each probe's offset less the ambient probe's.
+    each probe's offset less the ambient probe's; then ``offset_floor_k`` is added to every
+    difference of two probes (each probe, the ambient one included, gets half its square):
+    the offsets hold at the temperatures where they were found.
 
     Parameters
     ----------
     evidence : From :func:`rest_evidence` and :func:`open_circuit_evidence`, summed.
-    options : ``probe_offset_k`` [K] and ``voltage_offset`` [V], the priors.
+    options : ``probe_offset_k`` [K] and ``voltage_offset`` [V], the priors;
+        ``offset_floor_k`` [K].
 
     Returns
     -------
@@ -427,6 +430,9 @@ def probe_offsets(
     prior = np.diag([1.0 / sd_probe**2] * 4 + [1.0 / options.voltage_offset**2])
     cov_b = np.linalg.inv(prior + evidence.info)
     mean_b = cov_b @ evidence.vec
+    floor = np.zeros((_N, _N))
+    floor[:4, :4] = 0.5 * options.offset_floor_k**2 * np.eye(4)
+    cov_b = cov_b + floor
     parts = []
     if evidence.n_rest:
         parts.append(f"{evidence.n_rest} rest moment{'s' if evidence.n_rest > 1 else ''}")

@@ -73,7 +73,9 @@ def update_offsets(
     for name, value, se, arr in zip(po.PROBES, est.offsets, est.stderrs, channels, strict=True):
         if not np.isfinite(arr).any():
             continue  # no such probe on this unit
-        ok = bool(se < 0.5 * cfg.probe_offset_k / math.sqrt(2.0))
+        # Called reliable where the readings narrowed it to two-thirds of its prior (common
+        # practice, no source).
+        ok = bool(se < (2.0 / 3.0) * cfg.probe_offset_k / math.sqrt(2.0))
         rows.add(f"probes.offset_{name}_k", b, float(value), float(se), n, ok, est.basis)
 
 

@@ -84,12 +84,13 @@ def fit_window(
     # The fits see the temperatures corrected by the probes' offsets found so far, with the
     # offset prior narrowed to what is left of it.
     offsets.update_offsets(data, b, raw.floating, prior, rows, state, cfg)
-    data, cfg = offsets.corrected(data, state), offsets.settings_for(state, cfg)
+    # R and S's stated errors keep the offset prior (see diagnostics.fit_electrical).
+    data, cfg_el, cfg = offsets.corrected(data, state), cfg, offsets.settings_for(state, cfg)
     win = _window(data, b, cfg)
     if win is None:
         return
     _quality_rows(win, rows)
-    ele = _electrical(win, rows, state, prior, cfg)
+    ele = _electrical(win, rows, state, prior, cfg_el)
     if ele is None:
         return
     fitted = _thermal(data, win, ele, rows, state, prior, cfg)

@@ -154,10 +154,6 @@ class ProbeOffsets:
         ``PROBES`` or "ambient") [K]."""
         return difference_sd(self.cov, a, b)
 
-    def largest_difference_sd(self) -> float:
-        """The largest standard uncertainty among the differences the heat balances use [K]."""
-        return largest_difference_sd(self.cov)
-
 
 #: The differences of probes the heat balances use: the cold path, the hot path, the module
 #: and the cabinet's lead to the ambient.

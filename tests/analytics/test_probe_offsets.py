@@ -132,3 +132,15 @@ def test_offsets_found_on_a_long_power_cut_match_the_simulated_probe_biases() ->
                 assert abs(mom.volt - bias[5]) <= 3.0 * mom.volt_sd
     # The cut is long and every unit rests through it: most probes are pinned.
     assert found >= 12
+
+
+def test_heat_flow_offsets_of_the_sink_balances_worked_by_hand() -> None:
+    # With the prior alone (each probe ±σ, σ² = 0.045 K², offsets taken from the ambient
+    # probe: cov = σ²·(I + 1·1ᵀ)), g_c = 3 W/K, g_h = 5 W/K, K = 0.5 W/K. The cold balance's
+    # weights (3, -3.5, 0.5) sum to zero, so the ambient's share drops out:
+    # var = σ²·(9 + 12.25 + 0.25) = 0.9675 W²; the hot one's (0, -0.5, 5.5) sum to 5:
+    # var = σ²·(0.25 + 30.25 + 25) = 2.4975 W² (JCGM 100:2008, GUM, eq. (13), by hand).
+    cov = 0.045 * (np.eye(3) + np.ones((3, 3)))
+    sd_c, sd_h = po.balance_offset_sds(cov, 0.5, 3.0, 5.0)
+    assert sd_c == pytest.approx(math.sqrt(0.9675), rel=1e-9)
+    assert sd_h == pytest.approx(math.sqrt(2.4975), rel=1e-9)

@@ -12,6 +12,8 @@ Modules, in the order the diagnosis runs:
   (:func:`reconstruct_faces`);
 - :mod:`.thermal` - K, the sinks, UA, C and the internal load (:func:`fit_thermal`), built on
   :mod:`.sinks`, :mod:`.cabinet`, :mod:`.error_budget` and :mod:`.integrals`;
+- :mod:`.probe_offsets` - the probes' offsets from rests and the open-circuit voltage
+  (:func:`.probe_offsets.probe_offsets`);
 - :mod:`.hot_side` - the hot side's resistance hour by hour;
 - :mod:`.performance` - cooling, COP and capacity at the setpoint;
 - :mod:`.options` - every threshold, prior and window share (:class:`DiagnosticsOptions`);

@@ -240,6 +240,7 @@ def _offset_free_seebeck(
     cov: FloatArray,
     s_current: float,
     prior: tuple[float, float, float] | None,
+    dt_sd: float,
     options: DiagnosticsOptions,
 ) -> tuple[float, float]:
     # S25 and its error with one more unknown, the constant S·δ + b, with a prior of zero ±
@@ -247,7 +248,7 @@ def _offset_free_seebeck(
     # currents, tells it from S. Where R and S are not separable, the S of the fit.
     s_free, s_free_se = float(coef[1]), math.sqrt(max(float(cov[1, 1]), 0.0))
     if d.data_ok:
-        c_sd = math.hypot(float(coef[1]) * options.probe_offset_k, options.voltage_offset)
+        c_sd = math.hypot(float(coef[1]) * dt_sd, options.voltage_offset)
         means, sds = [0.0, 0.0, 0.0], [math.inf, math.inf, c_sd]
         if prior is not None:
             means[:2], sds[:2] = [prior[0], prior[1]], [prior[2] * prior[0], prior[2] * prior[1]]
@@ -268,6 +269,7 @@ def fit_electrical(
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
     beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
     prior: tuple[float, float, float] | None = None,
+    dt_offset_sd: float | None = None,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> ElectricalFit:
     """Fit R25 and S25 to V = R25·I·(1 + α·(Tm - 25 °C)) + S25·ΔT·(1 + β·(Tm - 25 °C)).
@@ -296,6 +298,9 @@ def fit_electrical(
     alpha : Temperature coefficient of R [1/K].
     beta : Temperature coefficient of S [1/K].
     prior : (R25 [ohm], S25 [V/K], relative standard deviation [-]), optional.
+    dt_offset_sd : Standard uncertainty of the ΔT offset left after the face temperatures
+        were corrected by the probes' estimated offsets, the prior of the offset-free S's
+        constant term; None: ``probe_offset_k`` [K].
     options : ``on_current`` [A], ``min_on`` [-], ``electrical_max_rel_stderr`` [-],
         ``current_offset`` [A], ``probe_offset_k`` [K], ``voltage_offset`` [V].
 
@@ -326,11 +331,14 @@ def fit_electrical(
     x00 = float(d.xtx[0, 0])
     r_at_zero_s, r_lever = float(d.x[:, 0] @ d.y) / x00, float(d.xtx[0, 1]) / x00
     coef, cov, r_ok, note = _with_prior(d, prior, max_rel_stderr)
+    dt_sd = options.probe_offset_k if dt_offset_sd is None else dt_offset_sd
+    # The stated errors keep the offset prior: narrowed to the estimate's, R25's covered its
+    # true error on 85 % of simulated units (constant biases, known truth), not 98 %.
     cov, s_current = electrical_offsets(
         d.x, d.xtx, coef, cov, d.f_r, d.f_s, d.data_ok, options.current_offset,
         options.probe_offset_k,
     )  # fmt: skip
-    s_free, s_free_se = _offset_free_seebeck(d, coef, cov, s_current, prior, options)
+    s_free, s_free_se = _offset_free_seebeck(d, coef, cov, s_current, prior, dt_sd, options)
     i_rms = float(np.sqrt(np.mean(i[on] ** 2)))
     rel_i = options.current_offset / max(i_rms, 1e-12)
     current_ok = rel_i <= 2.0 * max_rel_stderr

@@ -72,6 +72,37 @@ class DiagnosticsOptions:
     #: across a 127-couple stack (common practice, no source).
     floating_min_voltage: float = 0.03
 
+    #: One step of the voltage reading, 10 mV (common practice, no source) [V]: the mean of a
+    #: quantised reading is known to no better than step/√12.
+    voltage_step: float = 0.01
+
+    # --- probe offsets (probe_offsets.py) -----------------------------------------------
+    #: Least time without current before a rest's samples count [s]: the faces and the
+    #: cabinet air (a few hundred J/K on a few W/K) settle within minutes, the contents are
+    #: regressed on their drift (common practice, no source).
+    rest_min_s: float = 2 * 3600.0
+    #: Sub-blocks of a rest over which the cabinet's drift and the probes' differences are
+    #: averaged [s]: two hours pin the drift to about 0.01 K/h with 0.1-K readings every minute
+    #: (least-squares slope error from the readings' scatter; common practice, no source).
+    rest_sub_s: float = 2 * 3600.0
+    #: Fewest sub-blocks for a rest to count [-]: half a day (common practice, no source).
+    rest_min_sub: int = 6
+    #: Largest standard error of a probe's offset from one rest for it to count [K]: a third
+    #: of the offsets' prior (common practice, no source).
+    rest_settle_k: float = 0.1
+    #: Largest offset a rest may show [K]: beyond it the stretch is no lumped relaxation
+    #: (three times the offsets' prior; common practice, no source).
+    rest_spread_k: float = 1.0
+    #: Standard uncertainty added to every difference of two probes after their offsets are
+    #: estimated [K]: a probe's error changes by about 0.1 K between the rest's ambient and
+    #: the faces' working temperatures (common practice, no source). Against simulated fleets
+    #: with known truth (constant biases) the stated errors of R25, K and the hot side's
+    #: resistance otherwise covered their true errors on 64-90 % of units, not 90-100 %.
+    offset_floor_k: float = 0.1
+    #: Least standard error of a probe's rest difference [K]: one 0.1-K step over √12 (common
+    #: practice, no source).
+    rest_floor_k: float = 0.03
+
     # --- sink balances (sinks.py) -------------------------------------------------------
     #: Segment length of the sink balances [s] (common practice, no source).
     segment_s: float = 900.0

@@ -26,6 +26,7 @@ from .estimates import BoolArray
 from .integrals import SampleGrid, Segments
 from .least_squares import robust_weighted
 from .options import DiagnosticsOptions
+from .probe_offsets import balance_offset_sds
 
 __all__ = ["SinkFit", "fit_sinks", "sink_taus", "slowest_sink"]
 
@@ -175,6 +176,7 @@ def fit_sinks(
     k_settled: float | None,
     sink_taus_settled: tuple[float, float, float, float] | None,
     options: DiagnosticsOptions,
+    offset_cov: FloatArray | None = None,
 ) -> SinkFit:
     """Solve the cold and hot sink balances together for K and the sinks (module docstring).
 
@@ -191,6 +193,10 @@ def fit_sinks(
     k_settled : The unit's settled K, where K is held at a single operating point [W/K].
     sink_taus_settled : The unit's settled sink time constants and errors [s].
     options : The sink fields of :class:`.DiagnosticsOptions`.
+    offset_cov : Covariance of the probes' offsets left after the temperatures were corrected
+        by their estimate (cabinet, cold, hot, relative to the ambient probe), which sets the
+        offset terms' priors (:func:`.probe_offsets.balance_offset_sds`); None: each path's
+        difference ± ``probe_offset_k`` [K²].
 
     Returns
     -------
@@ -221,19 +227,22 @@ def fit_sinks(
     k_sd = float(np.sqrt(max(cov1[0, 0], 0.0)))  # from the readings' scatter alone
     # Constant probe offsets shift the small sink differences (a few kelvin at rest) and
     # through them K. Each balance gets a constant heat flow for them, g·δ + K·δΔT, with a
-    # prior of zero ± ``probe_offset_k`` times that path's conductance; the switching
-    # transients, whose storage terms carry no offset, separate it from K. K's spread
-    # beyond its scatter-only one is then what the offsets leave unresolved.
+    # prior of zero ± ``probe_offset_k`` times that path's conductance (or what the offsets'
+    # estimate leaves, ``offset_cov``); the switching transients, whose storage terms carry
+    # no offset, separate it from K. K's spread beyond its scatter-only one is then what the
+    # offsets leave unresolved.
     # At a single operating point they cannot be told from the sinks' conductances: left out.
     dur = sums(grid.h)
-    offsets = (  # priors of a_c and a_h, columns 5 and 6
-        {}
-        if one_point
-        else {
-            5: (0.0, options.probe_offset_k * math.hypot(float(p1[2]), float(p1[0]))),
-            6: (0.0, options.probe_offset_k * math.hypot(float(p1[3]), float(p1[0]))),
-        }
+    k1, g_c1, g_h1 = float(p1[0]), float(p1[2]), float(p1[3])
+    sd_ac, sd_ah = (
+        (
+            options.probe_offset_k * math.hypot(g_c1, k1),
+            options.probe_offset_k * math.hypot(g_h1, k1),
+        )
+        if offset_cov is None
+        else balance_offset_sds(offset_cov, k1, g_c1, g_h1)
     )
+    offsets = {} if one_point else {5: (0.0, sd_ac), 6: (0.0, sd_ah)}  # a_c, a_h
     offset_cols = [(dur, z), (z, dur)] if offsets else [(), ()]
     # Relative errors of S and R move both balances' heat flows: S·I·T in each, ∓½·I²·R.
     s_it_c, s_it_h, joule = (

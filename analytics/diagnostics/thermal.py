@@ -139,6 +139,7 @@ def fit_thermal(
     q_settled: tuple[float, float] | None = None,
     sr_rel_cov: FloatArray | None = None,
     sink_taus_settled: tuple[float, float, float, float] | None = None,
+    offset_cov: FloatArray | None = None,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
@@ -179,6 +180,11 @@ def fit_thermal(
         :attr:`ThermalFit.sink_taus` (e.g. pooled from its earlier windows): when given, they
         decide instead of this window's own, which scatter from window to window; sinks do
         not change [s].
+    offset_cov : Covariance of the probes' offsets left after the temperatures were
+        corrected by their estimate (cabinet, cold, hot, relative to the ambient probe:
+        :class:`.probe_offsets.ProbeOffsets`); it sets the sink balances' offset priors and
+        the cabinet's lead offset. None: every difference of two probes ± ``probe_offset_k``
+        [K²].
     options : The thermal fit's thresholds, priors and window shares (see
         :class:`.DiagnosticsOptions`: shared, sink and cabinet fields).
 
@@ -208,7 +214,7 @@ def fit_thermal(
     base, pair = _pairs(t, on, usable, options)
     sk = fit_sinks(
         grid, pair, (pc, ph, dtv), (tcab, tc, th, ta), i, s, r, usable, k_prior, k_prior_rel,
-        k_settled, sink_taus_settled, options,
+        k_settled, sink_taus_settled, options, offset_cov,
     )  # fmt: skip
     k = float(sk.params[0])
     k_sd, k_probe, k_from_data = sink_k_errors(
@@ -220,7 +226,8 @@ def fit_thermal(
     )  # fmt: skip
     stderrs = cabinet_stderrs(
         sk.cov, cab.cov, cab.resp, sk.resp[:, 0], float(cab.params[0]), k_sd, k_probe,
-        cab.held_cab, sr_rel_cov, options.probe_offset_k,
+        cab.held_cab, sr_rel_cov,
+        options.probe_offset_k if offset_cov is None else math.sqrt(float(offset_cov[0, 0])),
     )  # fmt: skip
     return _result(sk, cab, stderrs, pair, k_from_data, options)
 

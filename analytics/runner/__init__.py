@@ -71,6 +71,9 @@ capacity.losing_setpoint (_h)                  1 when the cabinet sat above its 
 <q>.flag                                       1 when change_pct reaches its threshold, else 0
 <q>.slope_pct_per_30d (+ _low / _high)         Theil-Sen slope of daily medians, 95 % CI (daily)
 module.days_to_wear_limit                      days until R25 reaches the wear limit (daily)
+probes.offset_cabinet_k / _cold_k / _hot_k     the probe's offset from the ambient probe [K],
+                                               from rests and the open-circuit voltage (note:
+                                               the basis); temperatures are corrected by it
 quality.samples / quality.left_out_*           samples used and left out, by reason
 quality.switch_offs / quality.driver_floating  on/off cycles seen; open-circuit voltage seen
 =============================================  ============================================
@@ -92,7 +95,8 @@ codes and licensed practice; condensation near electronics needs an electrician'
 
 Layout: :mod:`.settings` (tunables), :mod:`.schedule` (a run over devices), :mod:`.device`
 (one device's steps), :mod:`.window` (the 6-hourly fits), :mod:`.hot_side` (hourly),
-:mod:`.daily` (slopes, capacity), :mod:`.tracks` (baselines, changes, flags), :mod:`.settled`
+:mod:`.daily` (slopes, capacity), :mod:`.offsets` (the probes' offsets carried from window to
+window), :mod:`.tracks` (baselines, changes, flags), :mod:`.settled`
 (the unit's settled values), :mod:`.state` (the carried state), :mod:`.data` (readings and
 priors), :mod:`.rows` (estimate rows), :mod:`.health` (what is served). Stored data goes
 through :mod:`tecfleet.ingest.db.analysis`.

@@ -194,6 +194,14 @@ class DeviceState(_Stored):
     #: Hourly mean ambient over the trailing ``design_ambient_days``: [end of the hour
     #: (epoch ms UTC), °C].
     ambient_hours: list[Point] | None = None
+    #: Rests seen (see ``runner.offsets``): [from, to (epoch ms UTC), T_j - T_a of the
+    #: cabinet, cold and hot probes [K], their standard errors [K], voltage [V], its error
+    #: [V]]; null for what was not read.
+    probe_rests: list[list[float | None]] | None = None
+    #: The probes' estimated offsets from the ambient probe (cabinet, cold, hot) [K].
+    probe_offsets: list[float] | None = None
+    #: Their covariance [K²].
+    probe_offset_cov: list[list[float]] | None = None
 
     def series_by_name(self) -> dict[str, list[Point]]:
         if self.series is None:

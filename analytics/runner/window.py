@@ -16,8 +16,9 @@ import numpy as np
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics
 from tecfleet.analytics._validate import T_25C_K, FloatArray
+from tecfleet.analytics.diagnostics import probe_offsets as po
 from tecfleet.analytics.errors import InsufficientDataError, PhysicsError
-from tecfleet.analytics.runner import settled
+from tecfleet.analytics.runner import offsets, settled
 from tecfleet.analytics.runner.data import Readings, complete_faces, faces_basis, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
@@ -87,6 +88,16 @@ def fit_window(
     cfg: AnalysisSettings,
 ) -> None:
     """All estimates of the window ending at ``b`` (epoch ms UTC), and what the state keeps."""
+    data.faces, data.faces_missing = None, None
+    raw = _window(data, b, cfg)
+    if raw is None:
+        return
+    # The fits see the temperatures corrected by the probes' offsets found so far, with the
+    # offset prior narrowed to what is left of it. The offsets rest on the probes as read,
+    # so they are found before any face is read from the module's voltage.
+    offsets.update_offsets(data, b, raw.floating, prior, rows, state, cfg)
+    # R and S's stated errors keep the offset prior (see diagnostics.fit_electrical).
+    data, cfg_el, cfg = offsets.corrected(data, state), cfg, offsets.settings_for(state, cfg)
     # Where a face probe is missing, the faces of the thermal window from its own readings.
     wt = data.slice(b - max(cfg.thermal_window_s, cfg.window_s) * 1000, b)
     complete_faces(data, wt, prior, cfg)
@@ -97,7 +108,7 @@ def fit_window(
     faces = data.faces.basis if data.faces is not None else faces_basis(win.probed)
     rows.basis = f"V = I·R + S·ΔT fit, {faces}" + (", open-circuit samples" if win.floating else "")
     try:
-        ele = _electrical(data, win, rows, state, prior, cfg)
+        ele = _electrical(data, win, rows, state, prior, cfg_el)
         if ele is None:
             return
         rows.basis = f"cabinet and sink heat balances: cabinet and ambient probes, {faces}"
@@ -109,7 +120,7 @@ def fit_window(
         cov3 = _cov3(ele.el, th_fit.stderrs["k"])
         _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
         rises = _rises(data, win)
-        _path_rows(win, th_fit, rises, rows, cfg)
+        _path_rows(win, th_fit, rises, rows, state, cfg)
         _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg)
         rows.basis = f"module model at the operating point, {faces}"
         _performance(win, ele, th_fit, cov3, rows, cfg)
@@ -239,7 +250,7 @@ def _electrical(
             raise InsufficientDataError(held, held)
         el = held or dg.fit_electrical(
             i, v, tc, th, usable, floating=floating, alpha=cfg.alpha, beta=cfg.beta,
-            prior=e_prior, options=diagnostics_options(cfg),
+            prior=e_prior, dt_offset_sd=_dt_offset_sd(state), options=diagnostics_options(cfg),
         )  # fmt: skip
     except PhysicsError as exc:
         note = getattr(exc, "reason", str(exc))
@@ -276,6 +287,12 @@ def _electrical(
             )  # fmt: skip
     track_r25(rows, state, b, el, prior, cfg)
     return _Electrical(el, on, tm_on, f_r, f_s, s_own, se_own)
+
+
+def _dt_offset_sd(state: DeviceState) -> float | None:
+    # What is left of the ΔT offset after the faces were corrected by the estimate [K].
+    cov = offsets.offset_cov(state)
+    return None if cov is None else po.difference_sd(cov, "hot", "cold")
 
 
 def _thermal(
@@ -340,7 +357,8 @@ def _thermal(
             data.t[wt], data.tcab[wt], data.tc[wt], data.th[wt], data.ta[wt], data.i[wt],
             s_t, r_t, usable_th, k0, k_rel, k_settled=k_settled,
             q_settled=settled.q_settled(state, cfg), sr_rel_cov=sr_rel_cov,
-            sink_taus_settled=settled.taus_settled(state, cfg), options=diagnostics_options(cfg),
+            sink_taus_settled=settled.taus_settled(state, cfg),
+            offset_cov=offsets.offset_cov(state), options=diagnostics_options(cfg),
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))
@@ -457,6 +475,7 @@ def _path_rows(
     th_fit: dg.ThermalFit,
     rises: tuple[float, float, float, float],
     rows: EstimateRows,
+    state: DeviceState,
     cfg: AnalysisSettings,
 ) -> None:
     # The cold and hot sides' thermal resistances from the thermal fit.
@@ -472,12 +491,14 @@ def _path_rows(
     # larger) on 97 %, as did the hourly figure's: there it stays out.
     rise_c, rise_h, _, dt_th = rises
     k_held_sd = 0.0 if th_fit.k_from_data else sd["k"]
-    for key, g, sd_g, rise in (
-        ("cold_side.resistance_k_per_w", g_c, sd["g_cold"], rise_c),
-        ("hot_side.resistance_fit_k_per_w", g_h, sd["g_hot"], rise_h),
+    cov = offsets.offset_cov(state)
+    for key, g, sd_g, rise, pair in (
+        ("cold_side.resistance_k_per_w", g_c, sd["g_cold"], rise_c, ("cabinet", "cold")),
+        ("hot_side.resistance_fit_k_per_w", g_h, sd["g_hot"], rise_h, ("hot", "ambient")),
     ):
         rise_abs = max(abs(rise), 1e-9)
-        se_probe = (1.0 / g) * cfg.probe_offset_k / rise_abs
+        u_off = cfg.probe_offset_k if cov is None else po.difference_sd(cov, *pair)
+        se_probe = (1.0 / g) * u_off / rise_abs
         se_k = k_held_sd * abs(dt_th) / rise_abs / g**2 if key.startswith("cold_side") else 0.0
         se = math.sqrt((sd_g / g**2) ** 2 + se_probe**2 + se_k**2)
         ok = se < 0.2 / g

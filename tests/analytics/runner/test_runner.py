@@ -6,6 +6,7 @@ the reference is the generator's known parameters with the tolerance given at th
 
 from __future__ import annotations
 
+import dataclasses
 import itertools
 import math
 from pathlib import Path
@@ -17,6 +18,7 @@ import sqlalchemy as sa
 from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import heat_paths, physics, runner
+from tecfleet.analytics import simulation as sim
 from tecfleet.analytics.simulation import STANDARD_RATINGS
 from tecfleet.ingest import db
 from tecfleet.ingest.db import fleet
@@ -314,3 +316,35 @@ def test_capacity_is_judged_at_the_units_own_warm_extreme(
     assert health["capacity.design_ambient_basis"]["value"] == 2.0  # its own ambient
     # a healthy unit holding its setpoint is not losing it
     assert health["capacity.losing_setpoint"]["value"] == 0.0
+
+
+def test_offsets_found_on_a_power_cut_are_served_and_keep_serving(tmp_path: Path) -> None:
+    # One simulated cooler (development seed) with a 40-hour power cut from 12 h into a
+    # 4-day run; its probes' constant biases are the simulated truth. The runner serves the
+    # hot probe's offset from the ambient probe within three stated errors of it, based on
+    # the rest, and keeps the rest in the state so the windows after it still use it.
+    start = 1_735_689_600.0
+    spec = sim.random_fleet(1, seed=207, start_s=start, days=4.0)
+    dev = spec.devices[0]
+    cut = sim.ScheduledEvent(
+        "power_cut", dev.device_id, start + 12 * 3600.0, duration_s=40 * 3600.0
+    )
+    chunk = sim.Simulator(dataclasses.replace(spec, events=(cut,))).run(4 * 1440)
+    m = chunk.measured
+    rows = [
+        db.Reading(dev.device_id, int(chunk.ts[j, 0] * 1000 + 0.5), *(float(m[n][j, 0]) for n in (
+            "t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage")))
+        for j in range(chunk.n_steps) if chunk.present[j, 0]
+    ]  # fmt: skip
+    e = _engine(tmp_path, "offsets")
+    db.store_batch(e, rows)
+    runner.analyze(e)
+    health = runner.latest_health(e, dev.device_id)
+    hot = health["probes.offset_hot_k"]
+    truth = dev.sensor_bias[2] - dev.sensor_bias[3]
+    assert abs(hot["value"] - truth) <= 3.0 * hot["stderr"]
+    assert hot["stderr"] < 0.15 and "rest" in hot["note"]
+    # The newest window is two days after the cut: the rest is still behind its estimate.
+    history = runner.estimate_history(e, dev.device_id, "probes.offset_hot_k")
+    assert history[-1]["at_ms"] >= (start + 3.5 * 86_400.0) * 1000
+    assert "1 rest moment" in history[-1]["note"]

@@ -15,8 +15,9 @@ from tecfleet.ingest.db import analysis as analysis_db
 #: code produced itself): the final and intermediate states of simulated coolers analysed at
 #: once and in pieces, with and without registered ratings, a unit whose module never rests
 #: (rated S and K, kept windows), a fan failure (hot side flagged) and twelve days (a growing
-#: UA baseline); and, stored since, two and a half days of a unit with the hourly ambient
-#: behind its design ambient.
+#: UA baseline); stored since, two and a half days of a unit with the hourly ambient behind its
+#: design ambient, and the final state of a unit with a rest (power cut) kept and the offsets
+#: it gave, from the estimator on a simulated unit.
 STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
 
 

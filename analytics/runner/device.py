@@ -8,7 +8,6 @@ import numpy as np
 from sqlalchemy.engine import Connection
 
 from tecfleet.analytics import diagnostics as dg
-from tecfleet.analytics.runner import offsets
 from tecfleet.analytics.runner.daily import daily
 from tecfleet.analytics.runner.data import load, priors
 from tecfleet.analytics.runner.hot_side import hot_side, hourly
@@ -75,10 +74,10 @@ def analyze_device(
             daily(b, data, rows, state, prior, cabinet, cfg)
         if b not in hot:
             # The fitted parameters hold until the next window: every hour up to it at once.
-            hot = hot_side(
-                offsets.corrected(data, state), b, min(b // window * window + window - step, end),
-                state, offsets.settings_for(state, cfg),
-            )  # fmt: skip
+            # On the probes as read: the hourly figures are judged against the unit's own
+            # baseline, in which constant offsets cancel, and an offset found mid-season
+            # must not step them.
+            hot = hot_side(data, b, min(b // window * window + window - step, end), state, cfg)
         hourly(b, hot.get(b), rows, state, cfg)
     analysis_db.write_results(conn, dev.device_id, rows.rows, end, state.to_json())
     return steps, len(rows.rows)

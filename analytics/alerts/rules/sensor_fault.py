@@ -114,7 +114,8 @@ def _stuck_checks(
         span[col] = (s.max() - s.min()).to_numpy()
     frozen_since_stuck = np.zeros(n, dtype=bool)
     for col in _TEMPS:
-        others = np.max(np.vstack([span[c] for c in _TEMPS if c != col]), axis=0)
+        # fmax skips a face the unit has no probe for (NaN), where max would spread it.
+        others = np.fmax.reduce(np.vstack([span[c] for c in _TEMPS if c != col]), axis=0)
         frozen = covered & (counts >= 10) & (span[col] <= 1e-9)
         stuck = frozen & (others >= policy.stuck_other_move_k)
         checks.append((f"{col} stuck", stuck))

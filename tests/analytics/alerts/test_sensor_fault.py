@@ -98,3 +98,20 @@ def test_a_drifting_cabinet_probe_moves_the_offset_and_a_healthy_one_does_not() 
     # a 12-hour median lags a ramp by about 6 hours: the offset there is the drift 6 h earlier
     lagged = 2.5 * np.clip((np.arange(n) - 4 * 1440 - 360) / (5 * 1440), 0.0, 1.0)
     np.testing.assert_allclose(moved[3 * 1440 :], lagged[3 * 1440 :], atol=0.05)
+
+
+def test_stuck_cabinet_probe_is_found_on_a_unit_without_face_probes(engine: sa.Engine) -> None:
+    # The same frozen cabinet probe on a unit that reports no face temperatures: the missing
+    # faces must not hide the channels that still move (a probe cannot hold a reading to the
+    # last digit for an hour while the cabinet's cooler cycles; common practice, no source).
+    rows = [
+        Reading(
+            r.device_id, r.ts_ms, 4.7 if i >= 100 else r.t_cabinet, None, None,
+            r.t_ambient + 0.5 * np.sin(i / 15.0), r.current, r.voltage, seq=r.seq,
+        )
+        for i, r in enumerate(cabinet_series(400))
+    ]  # fmt: skip
+    db.store_batch(engine, rows)
+    changes = alerts.evaluate(engine)
+    assert kinds(changes) == [("sensor_fault", "opened")]
+    assert "t_cabinet stuck" in changes[0].evidence["issues"]

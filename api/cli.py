@@ -9,6 +9,7 @@ import threading
 from pathlib import Path
 from typing import Any
 
+from tecfleet.api.commands import agent
 from tecfleet.ingest.errors import TecfleetError
 from tecfleet.ingest.settings import Settings, load_settings
 
@@ -227,6 +228,7 @@ def build_parser() -> argparse.ArgumentParser:
     else:
         add_simulate_arguments(simulate)
         simulate.set_defaults(func=cmd_simulate)
+    agent.add_parser(sub)
     return parser
 
 

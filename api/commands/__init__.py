@@ -1,0 +1,1 @@
+"""Subcommands of ``tecfleet`` that live in modules of their own: each has ``add_parser(sub)``."""

@@ -9,7 +9,7 @@ import threading
 from pathlib import Path
 from typing import Any
 
-from tecfleet.api.commands import agent, import_
+from tecfleet.api.commands import agent, devices, import_
 from tecfleet.ingest.errors import TecfleetError
 from tecfleet.ingest.settings import Settings, load_settings
 
@@ -230,6 +230,7 @@ def build_parser() -> argparse.ArgumentParser:
         simulate.set_defaults(func=cmd_simulate)
     agent.add_parser(sub)
     import_.add_parser(sub, _add_setting_flags)
+    devices.add_parser(sub, _add_setting_flags)
     return parser
 
 

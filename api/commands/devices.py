@@ -102,7 +102,7 @@ def _register(args: argparse.Namespace, device_id: str) -> None:
     settings = load_settings({name: getattr(args, name) for name in flags})
     engine = make_engine(settings.database_url)
     migrate(engine)
-    register_device(engine, device_id, DeviceIn())
+    register_device(engine, device_id, DeviceIn.model_validate({}))
 
 
 def _write_agent_config(

@@ -15,6 +15,7 @@ import threading
 import time
 import uuid
 from datetime import UTC, datetime
+from collections.abc import Callable
 from pathlib import Path
 from typing import Protocol
 
@@ -72,8 +73,9 @@ def calibrated(sample: Sample, calibration: dict[str, Calibration]) -> dict[str,
 class Agent:
     """Sources -> buffer -> broker, for one device."""
 
-    def __init__(self, config: AgentConfig) -> None:
+    def __init__(self, config: AgentConfig, wall_clock: Callable[[], float] = time.time) -> None:
         self.config = config
+        self._wall_clock = wall_clock
         self.buffer = Buffer(config.buffer, config.options.buffer_max_readings)
         self.link = Link(config)
         self.sources = [make_source(spec, config) for spec in config.sources]
@@ -126,7 +128,7 @@ class Agent:
         values = calibrated(sample, self.config.calibration)
         if sample.ts_s is not None:
             return Stamped(round(sample.ts_s * 1000.0), values)
-        wall_s = time.time()
+        wall_s = self._wall_clock()
         if not clock_is_set(wall_s, self.config.options.release_year):
             if not self._clock_warned:
                 log.warning(
@@ -144,10 +146,9 @@ class Agent:
         done = self.link.acknowledged()
         if done:
             self.buffer.remove(done)
-        if self._clock_warned and clock_is_set(time.time(), self.config.options.release_year):
-            fixed = self.buffer.restamp(
-                self._boot, round(time.time() * 1000.0), time.monotonic_ns()
-            )
+        wall_s = self._wall_clock()
+        if self._clock_warned and clock_is_set(wall_s, self.config.options.release_year):
+            fixed = self.buffer.restamp(self._boot, round(wall_s * 1000.0), time.monotonic_ns())
             log.info("the wall clock is set; %d held readings stamped", fixed)
             self._clock_warned = False
 

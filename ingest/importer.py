@@ -80,7 +80,8 @@ def import_file(
 ) -> FileReport:
     """Validate and store one file's readings for ``device_id``; ``progress`` gets bytes read."""
     try:
-        digest = hashlib.sha256(path.read_bytes()).hexdigest()
+        with path.open("rb") as whole:
+            digest = hashlib.file_digest(whole, "sha256").hexdigest()
     except OSError as exc:
         raise ImportFileError(f"{path}: {exc.strerror or exc}") from exc
     report = FileReport(path)
@@ -167,7 +168,8 @@ class _Importer:
             self._reject(line, "bad_line", f"cannot be read as CSV: {exc}")
             return None
         if self.header is None:
-            self.header = [name.strip() for name in cells]
+            # A spreadsheet's export may start with a byte order mark.
+            self.header = [name.strip().lstrip("\ufeff") for name in cells]
             if "ts" not in self.header:
                 raise ImportFileError(f"{self.report.path}: the CSV header has no ts column")
             return None

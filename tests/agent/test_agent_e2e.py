@@ -142,13 +142,17 @@ def test_kill_minus_nine_mid_backlog_loses_and_repeats_nothing(
         "[options]\nbatch_max_readings = 10\nbacklog_messages_per_s = 20\n"
     )
     ingester, engine, _ = start_ingester(sqlite_url, mosquitto.url, client_id="agent-kill")
+    watcher = StatusWatcher(mosquitto.port)
     agent = AgentProcess(["--config", str(config)], tmp_path / "agent.log")
     agent.start()
     try:
         assert wait_for(lambda: count_readings(engine, DEVICE) >= 300, 60), agent.log()
+        assert watcher.last() == "online"
         agent.kill()
         at_kill = count_readings(engine, DEVICE)
         assert 0 < at_kill < n
+        # The broker publishes the last will once the connection is gone without a goodbye.
+        assert wait_for(lambda: watcher.last() == "offline", 60)
         agent.start()
         assert wait_for(lambda: count_readings(engine, DEVICE) >= n, 120), agent.log()
         time.sleep(2.0)
@@ -156,4 +160,5 @@ def test_kill_minus_nine_mid_backlog_loses_and_repeats_nothing(
         assert agent.terminate() == 0
     finally:
         agent.close()
+        watcher.close()
         ingester.stop()

@@ -118,6 +118,18 @@ def test_followed_csv_resumes_waits_for_whole_lines_and_counts_bad_ones(
     assert follower.poll(second.position).samples == [Sample(None, {"t_cabinet": 7.0})]
 
 
+def test_followed_json_lines(tmp_path: Path) -> None:
+    path = write(
+        tmp_path / "log.jsonl",
+        '{"ts": "2026-12-04T09:00:00Z", "t_cabinet": 4.1, "door_open": true}\n'
+        '[1, 2]\n{"rh": "x"}\n',
+    )
+    polled = FollowedFile(SourceSpec(kind="jsonl", path=path), AgentOptions()).poll(None)
+    nine = datetime(2026, 12, 4, 9, 0, tzinfo=UTC).timestamp()
+    assert polled.samples == [Sample(nine, {"t_cabinet": 4.1, "door_open": True})]
+    assert polled.bad_lines == 2
+
+
 def test_timestamps_and_commands() -> None:
     # RFC 3339 section 5.8 example: 1996-12-19T16:39:57-08:00 is 1996-12-20T00:39:57Z.
     expected = datetime(1996, 12, 20, 0, 39, 57, tzinfo=UTC).timestamp()

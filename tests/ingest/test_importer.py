@@ -75,7 +75,7 @@ def test_csv_import_twice_stores_once_and_reports_bad_lines_by_number(
 
 
 def test_json_lines_take_objects_batches_and_senml_like_mqtt(
-    sqlite_url: str, tmp_path: Path
+    sqlite_url: str, tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
     path = tmp_path / "export.jsonl"
     rows = [json.dumps(reading(i)) for i in range(5)]
@@ -84,8 +84,9 @@ def test_json_lines_take_objects_batches_and_senml_like_mqtt(
     rows.append("{not json")
     rows.append(json.dumps({**reading(9), "device_id": "someone-else"}))
     path.write_text("\n".join(rows) + "\n")
-    code = main(["import", "--device-id", "cab-j", "--db", sqlite_url, "--quiet", str(path)])
+    code = main(["import", "--device-id", "cab-j", "--db", sqlite_url, str(path)])
     assert code == 1
+    assert "100%" in capsys.readouterr().err  # the progress bar reached the end of the file
     engine = db.make_engine(sqlite_url)
     assert count_readings(engine, "cab-j") == 9
     found = rejects(sqlite_url)

@@ -5,6 +5,7 @@ from fastapi import APIRouter
 from tecfleet.api.routes import (
     alerts,
     devices,
+    fleet,
     health,
     maintenance,
     policies,
@@ -24,6 +25,7 @@ ROUTERS: tuple[APIRouter, ...] = (
     devices.router,
     readings.router,
     health.router,
+    fleet.router,
     rejects.router,
 )
 
@@ -31,6 +33,7 @@ __all__ = [
     "ROUTERS",
     "alerts",
     "devices",
+    "fleet",
     "health",
     "maintenance",
     "policies",

@@ -1,0 +1,93 @@
+"""The whole fleet in a few statements, for its overview page: every device with its newest
+reading, its open alerts by severity, and the newest valued estimate of chosen keys."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any, NamedTuple
+
+import sqlalchemy as sa
+from sqlalchemy.engine import Engine
+
+from tecfleet.ingest.db.fleet import OPEN_STATES
+from tecfleet.ingest.db.tables import alerts, devices, estimates, readings
+
+__all__ = ["FleetRows", "LatestEstimate", "fleet_rows"]
+
+
+class LatestEstimate(NamedTuple):
+    """The newest valued row of one estimate key of one device (time in ms)."""
+
+    at_ms: int
+    value: float
+    stderr: float | None
+    n: int
+    reliable: bool
+
+
+class FleetRows(NamedTuple):
+    """What the overview reads: device rows (registration, progress and the newest reading's
+    cabinet temperature and the time of its first reading), open alerts per device and severity, and the newest valued estimate
+    per device and key."""
+
+    devices: list[Any]
+    open_alerts: dict[str, dict[str, int]]
+    estimates: dict[str, dict[str, LatestEstimate]]
+
+
+def fleet_rows(engine: Engine, keys: Sequence[str], device_id: str | None = None) -> FleetRows:
+    """Every device (by id; or the one ``device_id``), its open alerts and the newest valued
+    estimate of each of ``keys``; one statement per key, each walking the (device, key, time)
+    index per device."""
+    d, r = devices.c, readings.c
+    newest = (
+        sa.select(r.t_cabinet)
+        .where(r.device_id == d.device_id, r.ts_ms == d.last_reading_ms)
+        .scalar_subquery()
+    )
+    first = sa.select(sa.func.min(r.ts_ms)).where(r.device_id == d.device_id).scalar_subquery()
+    device_q = sa.select(
+        devices, newest.label("t_cabinet_now"), first.label("first_reading_ms")
+    ).order_by(d.device_id)
+    alert_q = (
+        sa.select(alerts.c.device_id, alerts.c.severity, sa.func.count().label("n"))
+        .where(alerts.c.state.in_(OPEN_STATES))
+        .group_by(alerts.c.device_id, alerts.c.severity)
+    )
+    if device_id is not None:
+        device_q = device_q.where(d.device_id == device_id)
+        alert_q = alert_q.where(alerts.c.device_id == device_id)
+    with engine.connect() as conn:
+        device_rows = list(conn.execute(device_q).all())
+        open_alerts: dict[str, dict[str, int]] = {}
+        for row in conn.execute(alert_q):
+            open_alerts.setdefault(row.device_id, {})[row.severity] = int(row.n)
+        found: dict[str, dict[str, LatestEstimate]] = {}
+        for key in keys:
+            for row in conn.execute(_latest_of_key(key, device_id)):
+                found.setdefault(row.device_id, {})[key] = LatestEstimate(
+                    int(row.at_ms),
+                    float(row.value),
+                    None if row.stderr is None else float(row.stderr),
+                    int(row.n),
+                    bool(row.reliable),
+                )
+    return FleetRows(device_rows, open_alerts, found)
+
+
+def _latest_of_key(key: str, device_id: str | None) -> sa.Select[Any]:
+    e, e2, d = estimates.c, estimates.alias("e2").c, devices.c
+    newest_at = (
+        sa.select(sa.func.max(e2.at_ms))
+        .where(e2.device_id == d.device_id, e2.key == key, e2.value.is_not(None))
+        .scalar_subquery()
+    )
+    q = (
+        sa.select(d.device_id, e.at_ms, e.value, e.stderr, e.n, e.reliable)
+        .select_from(devices)
+        .join(
+            estimates,
+            sa.and_(e.device_id == d.device_id, e.key == key, e.at_ms == newest_at),
+        )
+    )
+    return q if device_id is None else q.where(d.device_id == device_id)

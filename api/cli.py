@@ -9,6 +9,7 @@ import threading
 from pathlib import Path
 from typing import Any
 
+from tecfleet.api.commands import report
 from tecfleet.ingest.errors import TecfleetError
 from tecfleet.ingest.settings import Settings, load_settings
 
@@ -218,6 +219,8 @@ def build_parser() -> argparse.ArgumentParser:
     analyze.add_argument("--device", default=None)
     _add_setting_flags(analyze, only=("--db", "--config"))
     analyze.set_defaults(func=cmd_analyze)
+
+    report.add_parser(sub)
 
     simulate = sub.add_parser("simulate", help="publish a simulated fleet")
     try:

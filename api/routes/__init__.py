@@ -11,6 +11,7 @@ from tecfleet.api.routes import (
     policies,
     readings,
     rejects,
+    reports,
     system,
     webhooks,
 )
@@ -26,6 +27,7 @@ ROUTERS: tuple[APIRouter, ...] = (
     readings.router,
     health.router,
     fleet.router,
+    reports.router,
     rejects.router,
 )
 
@@ -39,6 +41,7 @@ __all__ = [
     "policies",
     "readings",
     "rejects",
+    "reports",
     "system",
     "webhooks",
 ]

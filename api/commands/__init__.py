@@ -1,0 +1,2 @@
+"""Subcommands of ``tecfleet`` that live in modules of their own: each exposes
+``add_parser(sub)``."""

@@ -6,6 +6,14 @@ const POLL_MS = 15000;
 const RANGES = { hour: 3600e3, day: 86400e3, week: 7 * 86400e3, month: 30 * 86400e3 };
 // Health trends need weeks to show a trend: their plots never span less than this.
 const TREND_MIN_MS = 14 * 86400e3;
+const MAIN_FIGURES = [
+  ["module.resistance_25c_ohm", "Module resistance at 25 °C"], ["module.resistance_25c.change_pct", "Its change since commissioning"],
+  ["module.resistance_25c.slope_pct_per_30d", "Its trend"], ["module.days_to_wear_limit", "Time to the wear limit"],
+  ["cabinet.ua_w_per_k", "Cabinet heat-leak conductance UA"], ["cabinet.ua.change_pct", "UA change since commissioning"],
+  ["cabinet.heat_leak_w", "Heat leaking in"], ["hot_side.resistance_k_per_w", "Hot-side sink resistance"],
+  ["hot_side.resistance.change_pct", "Its change since commissioning"], ["performance.cop", "COP now"],
+  ["performance.cop_max", "Best possible COP"], ["performance.cooling_w", "Heat pumped"], ["capacity.margin_w", "Cooling to spare at design ambient"],
+];
 const COLOURS = { cabinet: "#0f5c63", cold: "#3a7fb8", hot: "#b4532a", ambient: "#7c7466", limit: "#a12f24",
                   base: "#6d7a80", extra: "#8a5a00" };
 const state = { key: localStorage.getItem("tecfleet.key") || "", fleet: null, sort: ["alerts", -1],
@@ -186,6 +194,9 @@ async function showUnit(id) {
   $("#registration").innerHTML = registration(unit);
   $("#capacity").textContent = unit.capacity;
   const rows = Object.entries(unit.all_figures).sort(([a], [b]) => a.localeCompare(b));
+  $("#health-main tbody").innerHTML = MAIN_FIGURES.filter(([k]) => unit.all_figures[k]).map(([k, label]) =>
+    `<tr><td>${label}</td><td class="num">${figure(unit.all_figures[k])}</td><td>${ago(unit.all_figures[k].at)}</td></tr>`).join("")
+    || '<tr><td colspan="3" class="quiet-text">Not analysed yet.</td></tr>';
   $("#health tbody").innerHTML = rows.length ? rows.map(([k, f]) =>
     `<tr><td>${esc(k)}</td><td class="num">${figure(f)}</td><td>${f.at ? ago(f.at) : ""}</td></tr>`).join("")
     : '<tr><td colspan="3" class="quiet-text">Not analysed yet.</td></tr>';

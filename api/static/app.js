@@ -240,11 +240,15 @@ function drawUnitPlots(unit, readings, trends, alerts, span, trendSpan) {
     scales: scaleX, plugins: [marks(alertTimes, COLOURS.extra)],
     axes: [{}, { label: "°C" }],
     series: [{}, line("cabinet least [°C]", COLOURS.cabinet, { width: 1 }), line("cabinet greatest [°C]", COLOURS.cabinet, { width: 1 }),
-      line("cabinet mean [°C]", COLOURS.cabinet, { width: 2 }), line("cold side [°C]", COLOURS.cold), line("hot side [°C]", COLOURS.hot),
-      line("ambient [°C]", COLOURS.ambient), line("low limit [°C]", COLOURS.limit, { dash: [6, 4] }), line("high limit [°C]", COLOURS.limit, { dash: [6, 4] })],
+      line("cabinet mean [°C]", COLOURS.cabinet, { width: 2 }),
+      line("low limit [°C]", COLOURS.limit, { dash: [6, 4] }), line("high limit [°C]", COLOURS.limit, { dash: [6, 4] })],
     bands: [{ series: [2, 1], fill: "rgba(15,92,99,0.18)" }],
-  }, [x, ch(it, "t_cabinet", "lo"), ch(it, "t_cabinet", "hi"), ch(it, "t_cabinet", "mean"), ch(it, "t_cold", "mean"),
-    ch(it, "t_hot", "mean"), ch(it, "t_ambient", "mean"), flat(unit.band.low_c), flat(unit.band.high_c)]);
+  }, [x, ch(it, "t_cabinet", "lo"), ch(it, "t_cabinet", "hi"), ch(it, "t_cabinet", "mean"), flat(unit.band.low_c), flat(unit.band.high_c)]);
+  place("plot-faces", {
+    scales: scaleX, axes: [{}, { label: "°C" }],
+    series: [{}, line("cold side [°C]", COLOURS.cold), line("hot side [°C]", COLOURS.hot), line("ambient [°C]", COLOURS.ambient)],
+  }, [x, ch(it, "t_cold", "mean"), ch(it, "t_hot", "mean"), ch(it, "t_ambient", "mean")]);
+  $("#alt-faces").textContent = it.length ? `Mean cold-side, hot-side and ambient temperatures per interval of ${Math.round(readings.every_s / 60)} min.` : "No readings in this range.";
   const lo = Math.min(...ch(it, "t_cabinet", "lo").filter((v) => v !== null)), hi = Math.max(...ch(it, "t_cabinet", "hi").filter((v) => v !== null));
   $("#alt-temp").textContent = it.length ? `Cabinet from ${lo.toFixed(1)} to ${hi.toFixed(1)} °C over this ${state.range} (${it.length} intervals of ${Math.round(readings.every_s / 60)} min); limits ${unit.band.low_c.toFixed(1)} to ${unit.band.high_c.toFixed(1)} °C; ${alertTimes.length} alert(s) marked.`
     : "No readings in this range.";

@@ -6,6 +6,8 @@ const POLL_MS = 15000;
 const RANGES = { hour: 3600e3, day: 86400e3, week: 7 * 86400e3, month: 30 * 86400e3 };
 // Health trends need weeks to show a trend: their plots never span less than this.
 const TREND_MIN_MS = 14 * 86400e3;
+// Health trends in 6-hour buckets: the fits behind them run every 6 hours at most.
+const TREND_EVERY_S = 21600;
 const MAIN_FIGURES = [
   ["module.resistance_25c_ohm", "Module resistance at 25 °C"], ["module.resistance_25c.change_pct", "Its change since commissioning"],
   ["module.resistance_25c.slope_pct_per_30d", "Its trend"], ["module.days_to_wear_limit", "Time to the wear limit"],
@@ -47,6 +49,7 @@ function figure(f) {
 // ---- routing ---------------------------------------------------------------------------
 function route() {
   const parts = location.hash.replace(/^#\/?/, "").split("/");
+  if (parts[2] in RANGES) state.range = parts[2];
   return { view: parts[0] || "fleet", id: parts[1] ? decodeURIComponent(parts[1]) : null };
 }
 
@@ -187,7 +190,7 @@ async function showUnit(id) {
     "cabinet.ua_w_per_k", "cabinet.ua.baseline", "hot_side.resistance_k_per_w", "hot_side.resistance.baseline"];
   const [readings, trends, alerts] = await Promise.all([
     api(`/v1/devices/${enc}/readings/buckets?start=${iso(start)}&end=${iso(end)}`),
-    api(`/v1/devices/${enc}/estimates?keys=${keys.join(",")}&start=${iso(trendStart)}&end=${iso(end)}`),
+    api(`/v1/devices/${enc}/estimates?keys=${keys.join(",")}&start=${iso(trendStart)}&end=${iso(end)}&every=${TREND_EVERY_S}`),
     api(`/v1/fleet/alerts?device=${enc}&limit=50`),
   ]);
   drawUnitPlots(unit, readings, trends, alerts, [start, end], [trendStart, end]);
@@ -362,7 +365,10 @@ $("#devices thead").addEventListener("click", (ev) => {
   document.querySelector(`button[data-sort="${b.dataset.sort}"]`).focus();
 });
 for (const id of ["#search", "#site-filter", "#state-filter"]) $(id).addEventListener("input", drawFleetTable);
-$("#ranges").addEventListener("click", (ev) => { const b = ev.target.closest("[data-range]"); if (b) { state.range = b.dataset.range; show(); } });
+$("#ranges").addEventListener("click", (ev) => {
+  const b = ev.target.closest("[data-range]");
+  if (b) location.hash = `#/unit/${encodeURIComponent(state.unit)}/${b.dataset.range}`;
+});
 $("#report-form").addEventListener("submit", downloadReport);
 window.addEventListener("hashchange", () => { show(); $("#view").focus(); });
 if (state.key) { $("#key").value = state.key; show(); }

@@ -36,8 +36,6 @@ def run(args: argparse.Namespace) -> int:
     engine = make_engine(settings.database_url)
     migrate(engine)
     out = Path(args.out)
-    units = write_report(
-        engine, out, args.start, args.end, device_id=args.device, site=args.site
-    )
+    units = write_report(engine, out, args.start, args.end, device_id=args.device, site=args.site)
     print(f"wrote {out} ({units} unit{'s' if units != 1 else ''})", file=sys.stderr)
     return 0

@@ -1,6 +1,7 @@
 """The printable cold-chain report: per unit, time in range, each excursion with its mean
 kinetic temperature, the temperature plot with limits, acknowledgements with their notes, the
-period's health figures, and the cautions. ``gather`` reads the record, ``write_pdf`` prints it, ``write_report`` does both.
+period's health figures, and the cautions. ``gather`` reads the record, ``write_pdf`` prints
+it, ``write_report`` does both.
 """
 
 from pathlib import Path
@@ -32,7 +33,13 @@ __all__ = [
 
 
 def write_report(
-    engine: Engine, out: Path | BinaryIO, start: str, end: str, *, device_id: str | None, site: str | None
+    engine: Engine,
+    out: Path | BinaryIO,
+    start: str,
+    end: str,
+    *,
+    device_id: str | None,
+    site: str | None,
 ) -> int:
     """Write the report of one unit or every unit of a site over the period from ``start``
     to ``end`` (dates, the end day included, or RFC 3339) to ``out``; the units written."""

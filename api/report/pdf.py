@@ -13,14 +13,15 @@ import matplotlib
 
 matplotlib.use("Agg")  # no display: the report is written on servers and in the command line
 
-import matplotlib.dates as mdates  # noqa: E402
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
+import matplotlib.dates as mdates
+import matplotlib.pyplot as plt
+import numpy as np
+from matplotlib.axes import Axes
+from matplotlib.backends.backend_pdf import PdfPages
+from matplotlib.figure import Figure
 
-from tecfleet.api import readout  # noqa: E402
-from tecfleet.api.report.record import HEALTH_KEYS, UnitRecord  # noqa: E402
+from tecfleet.api import readout
+from tecfleet.api.report.record import HEALTH_KEYS, UnitRecord
 
 __all__ = ["CAUTIONS", "write_pdf"]
 
@@ -73,7 +74,9 @@ def _lines(rec: UnitRecord) -> list[str]:
         for h in a["trail"]:
             if h["to_state"] == "acknowledged":
                 note = f': "{h["note"]}"' if h["note"] else " (no note)"
-                lines.append(f"     acknowledged {readout.timestamp(h['at_ms'])} by {h['actor']}{note}")
+                lines.append(
+                    f"     acknowledged {readout.timestamp(h['at_ms'])} by {h['actor']}{note}"
+                )
     lines += ["", "Health figures of the period (newest in the period):"]
     for key, name in HEALTH_KEYS.items():
         points = rec.health.get(key) or []
@@ -119,13 +122,15 @@ def _plot_page(rec: UnitRecord) -> Figure:
         strict=True,
     ):
         _health_axis(ax, rec.health.get(key) or [], unit)
-    axes[-1].xaxis.set_major_formatter(mdates.DateFormatter("%Y-%m-%d", tz=UTC))
+    # matplotlib leaves DateFormatter's constructor unannotated
+    days = mdates.DateFormatter("%Y-%m-%d", tz=UTC)  # type: ignore[no-untyped-call]
+    axes[-1].xaxis.set_major_formatter(days)
     fig.autofmt_xdate()
     fig.tight_layout()
     return fig
 
 
-def _health_axis(ax: plt.Axes, points: Sequence[tuple[int, float, bool]], unit: str) -> None:
+def _health_axis(ax: Axes, points: Sequence[tuple[int, float, bool]], unit: str) -> None:
     ax.set_ylabel(unit)
     if not points:
         ax.text(0.5, 0.5, readout.NO_DATA, transform=ax.transAxes, ha="center", va="center")

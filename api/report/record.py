@@ -10,8 +10,13 @@ import numpy as np
 from numpy.typing import NDArray
 from sqlalchemy.engine import Engine
 
-from tecfleet.analytics.alerts import AlertPolicy, Band, audit_trail, mean_kinetic_temperature
-from tecfleet.analytics.alerts import policy_for
+from tecfleet.analytics.alerts import (
+    AlertPolicy,
+    Band,
+    audit_trail,
+    mean_kinetic_temperature,
+    policy_for,
+)
 from tecfleet.api.timefmt import rfc3339_to_ms
 from tecfleet.ingest.db import alert_records, buckets, overview, read_arrays
 from tecfleet.ingest.db import fleet as fleet_db
@@ -121,7 +126,9 @@ def gather(engine: Engine, device_id: str, start_ms: int, end_ms: int) -> UnitRe
     )  # fmt: skip
     record.alerts = _alerts(engine, device_id, start_ms, end_ms)
     every = max(MS_DAY // 4, (end_ms - start_ms) // 200)
-    for b in buckets.estimate_buckets(engine, device_id, list(HEALTH_KEYS), start_ms, end_ms, every):
+    for b in buckets.estimate_buckets(
+        engine, device_id, list(HEALTH_KEYS), start_ms, end_ms, every
+    ):
         record.health.setdefault(b.key, []).append((b.start_ms, b.mean, b.reliable_n == b.n))
     return record
 

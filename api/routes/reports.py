@@ -19,7 +19,10 @@ router = APIRouter(tags=["reports"])
     dependencies=[READ],
     response_class=Response,
     responses={
-        200: {"content": {"application/pdf": {}}, "description": "the report (PDF)"},
+        200: {
+            "content": {"application/pdf": {"schema": {"type": "string", "format": "binary"}}},
+            "description": "the report (PDF)",
+        },
         **json_error_responses(401, 403, 404, 503),
     },
 )

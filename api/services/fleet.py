@@ -230,7 +230,9 @@ def bucket_width_s(start_ms: int, end_ms: int, every_s: int | None) -> int:
     return every_s
 
 
-def _range(engine: Engine, device_id: str, start_ms: int | None, end_ms: int | None) -> tuple[int, int]:
+def _range(
+    engine: Engine, device_id: str, start_ms: int | None, end_ms: int | None
+) -> tuple[int, int]:
     """The range asked for; by default the day up to the device's newest reading."""
     found = fleet_db.device_detail(engine, device_id)
     if found is None:

@@ -26,9 +26,9 @@ class LatestEstimate(NamedTuple):
 
 
 class FleetRows(NamedTuple):
-    """What the overview reads: device rows (registration, progress and the newest reading's
-    cabinet temperature and the time of its first reading), open alerts per device and severity, and the newest valued estimate
-    per device and key."""
+    """What the overview reads: device rows (registration, progress, the newest reading's
+    cabinet temperature and the time of the first reading), open alerts per device and
+    severity, and the newest valued estimate per device and key."""
 
     devices: list[Any]
     open_alerts: dict[str, dict[str, int]]

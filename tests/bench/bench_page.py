@@ -24,12 +24,12 @@ import uvicorn
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from tecfleet.api.app import create_app  # noqa: E402
-from tecfleet.api.auth import create_key  # noqa: E402
-from tecfleet.ingest import db  # noqa: E402
-from tests.api.test_web_page import CHROMIUM_ARGS  # noqa: E402
-from tests.fleet_fixture import fill  # noqa: E402
-from tests.services import free_port, wait_port  # noqa: E402
+from tecfleet.api.app import create_app
+from tecfleet.api.auth import create_key
+from tecfleet.ingest import db
+from tests.api.test_web_page import CHROMIUM_ARGS
+from tests.fleet_fixture import fill
+from tests.services import free_port, wait_port
 
 PAINTED = "new Promise((done) => requestAnimationFrame(() => done(performance.now())))"
 
@@ -109,7 +109,9 @@ def main(argv: list[str] | None = None) -> int:
         url_db = args.db or f"sqlite:///{tmp}/bench.db"
         engine = db.make_engine(url_db)
         db.migrate(engine)
-        print(f"== {args.units} units, {args.days:g} days, seed {args.seed}, {url_db.split(':')[0]}")
+        print(
+            f"== {args.units} units, {args.days:g} days, seed {args.seed}, {url_db.split(':')[0]}"
+        )
         t0 = time.perf_counter()
         ids = fill(engine, args.units, args.days, seed=args.seed, faults="wear:3,leak:3,fan:3")
         print(f"  simulated, stored and analysed in {time.perf_counter() - t0:.0f} s (not timed)")

@@ -43,7 +43,7 @@ function ago(iso) {
 
 function figure(f) {
   if (!f) return '<span class="doubt">not enough data</span>';
-  return f.reliable ? esc(f.text) : `<span class="doubt" title="not yet reliable">${esc(f.text)}</span>`;
+  return f.reliable ? esc(f.text) : `<span class="doubt" title="not yet reliable">${esc(f.text)}<span class="sr"> (not yet reliable)</span></span>`;
 }
 
 // ---- routing ---------------------------------------------------------------------------
@@ -140,7 +140,7 @@ function drawFleetTable() {
       <td class="num">${u.t_cabinet_c === null ? "—" : u.t_cabinet_c.toFixed(1) + " °C"}</td>
       <td class="num">${figure(f["module.resistance_25c.change_pct"])}</td><td class="num">${figure(f["module.days_to_wear_limit"])}</td>
       <td class="num">${figure(f["cabinet.ua.change_pct"])}</td><td class="num">${figure(f["hot_side.resistance.change_pct"])}</td>
-      <td class="num">${figure(f["performance.cop"])} / ${figure(f["performance.cop_max"])}</td></tr>`;
+      <td class="num">${f["performance.cop"].value === null ? figure(null) : figure(f["performance.cop"]) + " / " + figure(f["performance.cop_max"])}</td></tr>`;
   }).join("");
 }
 
@@ -261,17 +261,18 @@ function drawUnitPlots(unit, readings, trends, alerts, span, trendSpan) {
   }, [x, ch(it, "current", "mean"), ch(it, "power", "mean")]);
   $("#alt-power").textContent = it.length ? `Mean current and electrical power per interval of ${Math.round(readings.every_s / 60)} min.` : "No readings in this range.";
   const s = trends.series;
-  trendPlot("plot-cop", "alt-cop", trendSpan, [["performance.cop", "COP now", COLOURS.cabinet], ["performance.cop_max", "best possible COP", COLOURS.ambient]], s, "COP [-]", null);
+  const kindTimes = (...kinds) => alerts.filter(({ alert: a }) => kinds.includes(a.kind)).map(({ alert: a }) => Date.parse(a.opened_at) / 1000);
+  trendPlot("plot-cop", "alt-cop", trendSpan, [["performance.cop", "COP now", COLOURS.cabinet], ["performance.cop_max", "best possible COP", COLOURS.ambient]], s, "COP [-]", null, kindTimes("capacity_shortfall"));
   const wear = unit.wear_limit_ohm, crossing = unit.wear_limit_at ? Date.parse(unit.wear_limit_at) : null;
   trendPlot("plot-r25", "alt-r25", trendSpan, [["module.resistance_25c_ohm", "R25", COLOURS.hot], ["module.resistance_25c.baseline", "baseline", COLOURS.base]], s, "Ω",
-    wear === null ? null : { value: wear, label: "wear limit", crossing, from: unit.figures["module.resistance_25c_ohm"] });
-  trendPlot("plot-ua", "alt-ua", trendSpan, [["cabinet.ua_w_per_k", "UA", COLOURS.cabinet], ["cabinet.ua.baseline", "baseline", COLOURS.base]], s, "W/K", null);
-  trendPlot("plot-hot", "alt-hot", trendSpan, [["hot_side.resistance_k_per_w", "hot-side resistance", COLOURS.hot], ["hot_side.resistance.baseline", "baseline", COLOURS.base]], s, "K/W", null);
+    wear === null ? null : { value: wear, label: "wear limit", crossing, from: unit.figures["module.resistance_25c_ohm"] }, kindTimes("module_wear"));
+  trendPlot("plot-ua", "alt-ua", trendSpan, [["cabinet.ua_w_per_k", "UA", COLOURS.cabinet], ["cabinet.ua.baseline", "baseline", COLOURS.base]], s, "W/K", null, kindTimes("heat_leak"));
+  trendPlot("plot-hot", "alt-hot", trendSpan, [["hot_side.resistance_k_per_w", "hot-side resistance", COLOURS.hot], ["hot_side.resistance.baseline", "baseline", COLOURS.base]], s, "K/W", null, kindTimes("hot_side_cooling", "over_temperature"));
 }
 
 // A health trend: bucket means of each key on one time axis, and optionally a limit with the
 // straight projection from the newest value to its crossing.
-function trendPlot(id, altId, span, keys, series, unitLabel, limit) {
+function trendPlot(id, altId, span, keys, series, unitLabel, limit, alertTimes = []) {
   const times = new Set();
   for (const [k] of keys) for (const p of series[k] || []) times.add(p.t_ms / 1000);
   let end = span[1] / 1000;
@@ -288,13 +289,13 @@ function trendPlot(id, altId, span, keys, series, unitLabel, limit) {
     data.push(x.map((t) => t === a ? proj.from.value : t === b ? proj.value : null));
     ser.push({ label: "projected trend", stroke: COLOURS.extra, dash: [2, 3], width: 2, spanGaps: true });
   }
-  place(id, { scales: { x: { time: true, range: () => [span[0] / 1000, end] } }, axes: [{}, { label: unitLabel }], series: ser }, data);
+  place(id, { scales: { x: { time: true, range: () => [span[0] / 1000, end] } }, axes: [{}, { label: unitLabel }], series: ser,
+    plugins: [marks(alertTimes, COLOURS.extra)] }, data);
   const main = (series[keys[0][0]] || []);
   let alt = main.length ? `${main.length} points; newest ${main[main.length - 1].mean.toPrecision(3)} ${unitLabel}` : "Not enough data for this trend yet.";
   if (main.length && main.some((p) => p.reliable_n < p.n)) alt += "; some values are not yet reliable";
   if (limit) alt += `; ${limit.label} ${limit.value.toPrecision(3)} ${unitLabel}` + (proj ? `, projected crossing ${new Date(proj.crossing).toISOString().slice(0, 10)}` : ", no crossing projected");
   $("#" + altId).textContent = alt + ".";
-  document.getElementById(id).setAttribute("aria-label", alt);
 }
 
 // ---- alerts view -----------------------------------------------------------------------
@@ -371,5 +372,7 @@ $("#ranges").addEventListener("click", (ev) => {
 });
 $("#report-form").addEventListener("submit", downloadReport);
 window.addEventListener("hashchange", () => { show(); $("#view").focus(); });
+// Each plot is named by its text alternative, for screen readers.
+document.querySelectorAll(".plot").forEach((el) => el.setAttribute("aria-labelledby", el.nextElementSibling.id));
 if (state.key) { $("#key").value = state.key; show(); }
 setInterval(() => { if (!document.hidden) show(); }, POLL_MS);

@@ -9,7 +9,7 @@ from fastapi import APIRouter, Query
 
 from tecfleet.api.deps import READ, DeviceId, EngineDep, LogLimit, time_bounds
 from tecfleet.api.errors import unprocessable
-from tecfleet.api.schemas import KEYED, KEYED_LOOKUP
+from tecfleet.api.schemas import KEYED, KEYED_LOOKUP, Page
 from tecfleet.api.schemas.fleet import (
     AlertReadOut,
     EstimateBucketsOut,
@@ -92,13 +92,15 @@ def estimate_buckets(
 
 
 @router.get(
-    "/v1/fleet/alerts", response_model=list[AlertReadOut], dependencies=[READ], responses=KEYED
+    "/v1/fleet/alerts", response_model=Page[AlertReadOut], dependencies=[READ], responses=KEYED
 )
 def fleet_alerts(
     engine: EngineDep,
     device: str | None = None,
     state: Annotated[str | None, Query(pattern="^(open|acknowledged|resolved)$")] = None,
     limit: LogLimit = 100,
-) -> list[dict[str, Any]]:
+    cursor: str | None = None,
+) -> dict[str, Any]:
     """Alerts newest first, each with its evidence as numbers with units."""
-    return fleet.alert_readouts(engine, limit, device=device, state=state)
+    items, next_cursor = fleet.alert_readouts(engine, limit, cursor, device=device, state=state)
+    return {"items": items, "next_cursor": next_cursor}

@@ -19,11 +19,12 @@ class FigureOut(BaseModel):
 
 
 class BandOut(BaseModel):
-    """The cabinet's limits [°C] and where they come from."""
+    """The cabinet's limits [°C], where they come from, and the alert profile they belong to."""
 
     low_c: float
     high_c: float
     source: str
+    profile: str
 
 
 class UnitOut(BaseModel):

@@ -71,8 +71,8 @@ def _figure(key: str, est: LatestEstimate | dict[str, Any] | None) -> dict[str, 
     }
 
 
-def _band_out(band: Band) -> dict[str, Any]:
-    return {"low_c": band.low_c, "high_c": band.high_c, "source": band.source}
+def _band_out(band: Band, profile: str) -> dict[str, Any]:
+    return {"low_c": band.low_c, "high_c": band.high_c, "source": band.source, "profile": profile}
 
 
 def _units(engine: Engine, device_id: str | None = None) -> list[dict[str, Any]]:
@@ -83,7 +83,8 @@ def _units(engine: Engine, device_id: str | None = None) -> list[dict[str, Any]]
     wall_ms = int(time.time() * 1000)
     units = []
     for d in rows.devices:
-        band = policy_for(base, overrides, d.device_id, d.site).band(d.cabinet)
+        policy = policy_for(base, overrides, d.device_id, d.site)
+        band = policy.band(d.cabinet)
         t_now = d.t_cabinet_now
         est = rows.estimates.get(d.device_id, {})
         in_service = None
@@ -103,7 +104,7 @@ def _units(engine: Engine, device_id: str | None = None) -> list[dict[str, Any]]
                 "days_in_service": in_service,
                 "open_alerts": rows.open_alerts.get(d.device_id, {}),
                 "figures": {k: _figure(k, est.get(k)) for k in FLEET_KEYS},
-                "band": _band_out(band),
+                "band": _band_out(band, policy.profile),
                 "_row": d,
             }
         )
@@ -310,10 +311,16 @@ def estimate_buckets(
 
 
 def alert_readouts(
-    engine: Engine, limit: int, *, device: str | None = None, state: str | None = None
-) -> list[dict[str, Any]]:
-    """Alerts newest first, each with its evidence as text people read."""
-    items, _cursor = list_alerts(engine, limit, None, device=device, state=state)
+    engine: Engine,
+    limit: int,
+    cursor: str | None,
+    *,
+    device: str | None = None,
+    state: str | None = None,
+) -> tuple[list[dict[str, Any]], str | None]:
+    """A page of alerts newest first, each with its evidence as text people read, and the
+    cursor of the next page."""
+    items, next_cursor = list_alerts(engine, limit, cursor, device=device, state=state)
     return [
         {
             "alert": a.model_dump(),
@@ -322,4 +329,4 @@ def alert_readouts(
             ],
         }
         for a in items
-    ]
+    ], next_cursor

@@ -191,7 +191,7 @@ async function showUnit(id) {
   const [readings, trends, alerts] = await Promise.all([
     api(`/v1/devices/${enc}/readings/buckets?start=${iso(start)}&end=${iso(end)}`),
     api(`/v1/devices/${enc}/estimates?keys=${keys.join(",")}&start=${iso(trendStart)}&end=${iso(end)}&every=${TREND_EVERY_S}`),
-    api(`/v1/fleet/alerts?device=${enc}&limit=50`),
+    api(`/v1/fleet/alerts?device=${enc}&limit=50`).then((page) => page.items),
   ]);
   drawUnitPlots(unit, readings, trends, alerts, [start, end], [trendStart, end]);
   $("#registration").innerHTML = registration(unit);
@@ -214,7 +214,7 @@ function registration(u) {
     row("Rated voltage", m.v_max_v ? m.v_max_v + " V" : null) + row("Rated ΔT", m.dt_max_k ? m.dt_max_k + " K" : null) +
     row("Rated heat pumped", m.q_max_w ? m.q_max_w + " W" : null) + row("Cabinet volume", c.volume_l ? c.volume_l + " L" : null) +
     row("Setpoint", c.setpoint_c !== undefined ? c.setpoint_c + " °C" : null) +
-    row("Limits", u.band.low_c.toFixed(1) + " to " + u.band.high_c.toFixed(1) + " °C") + row("Limits from", u.band.source) +
+    row("Limits", u.band.low_c.toFixed(1) + " to " + u.band.high_c.toFixed(1) + " °C") + row("Limits from", u.band.source) + row("Alert profile", u.band.profile) +
     row("In service since", u.first_seen_at ? u.first_seen_at.slice(0, 10) : null);
 }
 
@@ -301,7 +301,8 @@ function trendPlot(id, altId, span, keys, series, unitLabel, limit, alertTimes =
 // ---- alerts view -----------------------------------------------------------------------
 async function showAlerts(targetId) {
   if (document.activeElement && document.activeElement.matches("#alerts textarea, #alerts input")) return;
-  const [open, recent] = await Promise.all([api("/v1/fleet/alerts?state=open&limit=200"), api("/v1/fleet/alerts?limit=100")]);
+  const [open, recent] = (await Promise.all([api("/v1/fleet/alerts?state=open&limit=200"), api("/v1/fleet/alerts?limit=100")]))
+    .map((page) => page.items);
   const seen = new Set(open.map(({ alert }) => alert.id));
   const list = open.concat(recent.filter(({ alert }) => !seen.has(alert.id)));
   $("#alerts tbody").innerHTML = list.map(({ alert: a, evidence_text: ev }) => `<tr id="alert-${a.id}"${String(a.id) === String(targetId) ? ' class="target"' : ""}>

@@ -100,7 +100,9 @@ def test_unit_view_wear_limit_and_alert_evidence(
     assert unit["module"] is None and unit["band"]["low_c"] == 2.0
     assert "not enough data" in unit["capacity"]
     assert c.get("/v1/fleet/units/nope", headers=h).status_code == 404
-    (alert,) = c.get("/v1/fleet/alerts?state=open", headers=h).json()
+    page = c.get("/v1/fleet/alerts?state=open", headers=h).json()
+    assert page["next_cursor"] is None
+    (alert,) = page["items"]
     assert {"name": "active", "text": "42 min"} in alert["evidence_text"]
 
 

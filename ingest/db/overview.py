@@ -7,12 +7,15 @@ from collections.abc import Sequence
 from typing import Any, NamedTuple
 
 import sqlalchemy as sa
-from sqlalchemy.engine import Engine
+from sqlalchemy.engine import Connection, Engine
 
 from tecfleet.ingest.db.fleet import OPEN_STATES
 from tecfleet.ingest.db.tables import alerts, devices, estimates, readings
 
 __all__ = ["FleetRows", "LatestEstimate", "fleet_rows"]
+
+#: Device ids (and times) bound per statement, well under the parameters SQLite allows.
+_IDS_PER_QUERY = 500
 
 
 class LatestEstimate(NamedTuple):
@@ -37,8 +40,9 @@ class FleetRows(NamedTuple):
 
 def fleet_rows(engine: Engine, keys: Sequence[str], device_id: str | None = None) -> FleetRows:
     """Every device (by id; or the one ``device_id``), its open alerts and the newest valued
-    estimate of each of ``keys``; one statement per key, each walking the (device, key, time)
-    index per device."""
+    estimate of each of ``keys``: per key, one statement finds each device's newest time by
+    walking the (device, key, time) index, and one reads the rows at those times by the same
+    index."""
     d, r = devices.c, readings.c
     newest = (
         sa.select(r.t_cabinet)
@@ -64,7 +68,12 @@ def fleet_rows(engine: Engine, keys: Sequence[str], device_id: str | None = None
             open_alerts.setdefault(row.device_id, {})[row.severity] = int(row.n)
         found: dict[str, dict[str, LatestEstimate]] = {}
         for key in keys:
-            for row in conn.execute(_latest_of_key(key, device_id)):
+            newest = {
+                row.device_id: int(row.at_ms)
+                for row in conn.execute(_newest_of_key(key, device_id))
+                if row.at_ms is not None
+            }
+            for row in _rows_at(conn, key, newest):
                 found.setdefault(row.device_id, {})[key] = LatestEstimate(
                     int(row.at_ms),
                     float(row.value),
@@ -75,19 +84,35 @@ def fleet_rows(engine: Engine, keys: Sequence[str], device_id: str | None = None
     return FleetRows(device_rows, open_alerts, found)
 
 
-def _latest_of_key(key: str, device_id: str | None) -> sa.Select[Any]:
-    e, e2, d = estimates.c, estimates.alias("e2").c, devices.c
+def _rows_at(conn: Connection, key: str, newest: dict[str, int]) -> list[Any]:
+    """The rows of ``key`` at each device's time in ``newest``. Fleets report on the same
+    clock, so the distinct times are few: the statement asks for every device at any of them
+    (an index range each) and the rows at another device's time are dropped here."""
+    e = estimates.c
+    ids, times = sorted(newest), sorted(set(newest.values()))
+    out: list[Any] = []
+    for k in range(0, len(ids), _IDS_PER_QUERY):
+        for t in range(0, len(times), _IDS_PER_QUERY):
+            q = sa.select(e.device_id, e.at_ms, e.value, e.stderr, e.n, e.reliable).where(
+                e.device_id.in_(ids[k : k + _IDS_PER_QUERY]),
+                e.key == key,
+                e.at_ms.in_(times[t : t + _IDS_PER_QUERY]),
+            )
+            out += [row for row in conn.execute(q) if newest[row.device_id] == row.at_ms]
+    return out
+
+
+def _newest_of_key(key: str, device_id: str | None) -> sa.Select[Any]:
+    """Each device's id and the time of its newest valued row of ``key`` (None if none)."""
+    e2, d = estimates.alias("e2").c, devices.c
+    # Walking the (device, key, time) index backwards stops at the newest valued row; a max()
+    # over the valued rows would visit every row of the key to read its value.
     newest_at = (
-        sa.select(sa.func.max(e2.at_ms))
+        sa.select(e2.at_ms)
         .where(e2.device_id == d.device_id, e2.key == key, e2.value.is_not(None))
+        .order_by(e2.at_ms.desc())
+        .limit(1)
         .scalar_subquery()
     )
-    q = (
-        sa.select(d.device_id, e.at_ms, e.value, e.stderr, e.n, e.reliable)
-        .select_from(devices)
-        .join(
-            estimates,
-            sa.and_(e.device_id == d.device_id, e.key == key, e.at_ms == newest_at),
-        )
-    )
+    q = sa.select(d.device_id, newest_at.label("at_ms"))
     return q if device_id is None else q.where(d.device_id == device_id)

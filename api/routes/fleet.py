@@ -18,6 +18,7 @@ from tecfleet.api.schemas.fleet import (
     UnitDetailOut,
 )
 from tecfleet.api.services import fleet
+from tecfleet.ingest.db.buckets import BUCKET_CHANNELS
 
 router = APIRouter(tags=["fleet"])
 
@@ -56,12 +57,22 @@ def reading_buckets(
     start: str | None = None,
     end: str | None = None,
     every: Every = None,
+    channels: Annotated[
+        str | None,
+        Query(description="comma-separated, of " + ", ".join(BUCKET_CHANNELS) + " (default all)"),
+    ] = None,
 ) -> dict[str, Any]:
     """Least, greatest and mean of each channel per bucket (default: the last day up to the
     newest reading, in about 400 buckets)."""
     bounds = time_bounds(start, end)
+    wanted = BUCKET_CHANNELS if channels is None else tuple(c.strip() for c in channels.split(","))
+    unknown = sorted(set(wanted) - set(BUCKET_CHANNELS))
+    if unknown:
+        raise unprocessable("query", "channels", f"unknown channels {unknown}")
     try:
-        return fleet.reading_buckets(engine, device_id, bounds.start_ms, bounds.end_ms, every)
+        return fleet.reading_buckets(
+            engine, device_id, bounds.start_ms, bounds.end_ms, every, wanted
+        )
     except ValueError as exc:
         raise unprocessable("query", "every", str(exc)) from exc
 

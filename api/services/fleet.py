@@ -252,11 +252,12 @@ def reading_buckets(
     start_ms: int | None,
     end_ms: int | None,
     every_s: int | None,
+    channels: Sequence[str] = buckets.BUCKET_CHANNELS,
 ) -> dict[str, Any]:
     """Readings of one device in buckets (default: the last day to its newest reading)."""
     start_ms, end_ms = _range(engine, device_id, start_ms, end_ms)
     every = bucket_width_s(start_ms, end_ms, every_s)
-    found = buckets.reading_buckets(engine, device_id, start_ms, end_ms, every * 1000)
+    found = buckets.reading_buckets(engine, device_id, start_ms, end_ms, every * 1000, channels)
     items = [
         {
             "t": ms_to_rfc3339(b.start_ms),

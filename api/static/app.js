@@ -189,7 +189,7 @@ async function showUnit(id) {
   const keys = ["performance.cop", "performance.cop_max", "module.resistance_25c_ohm", "module.resistance_25c.baseline",
     "cabinet.ua_w_per_k", "cabinet.ua.baseline", "hot_side.resistance_k_per_w", "hot_side.resistance.baseline"];
   const [readings, trends, alerts] = await Promise.all([
-    api(`/v1/devices/${enc}/readings/buckets?start=${iso(start)}&end=${iso(end)}`),
+    api(`/v1/devices/${enc}/readings/buckets?start=${iso(start)}&end=${iso(end)}&channels=t_cabinet,t_cold,t_hot,t_ambient,current,power`),
     api(`/v1/devices/${enc}/estimates?keys=${keys.join(",")}&start=${iso(trendStart)}&end=${iso(end)}&every=${TREND_EVERY_S}`),
     api(`/v1/fleet/alerts?device=${enc}&limit=50`).then((page) => page.items),
   ]);

@@ -68,12 +68,12 @@ def fleet_rows(engine: Engine, keys: Sequence[str], device_id: str | None = None
             open_alerts.setdefault(row.device_id, {})[row.severity] = int(row.n)
         found: dict[str, dict[str, LatestEstimate]] = {}
         for key in keys:
-            newest = {
+            times = {
                 row.device_id: int(row.at_ms)
                 for row in conn.execute(_newest_of_key(key, device_id))
                 if row.at_ms is not None
             }
-            for row in _rows_at(conn, key, newest):
+            for row in _rows_at(conn, key, times):
                 found.setdefault(row.device_id, {})[key] = LatestEstimate(
                     int(row.at_ms),
                     float(row.value),

@@ -115,6 +115,12 @@ def test_reading_buckets_snap_their_width_and_refuse_too_many(
     assert day["every_s"] == 300
     assert len(day["items"]) == 288
     assert sum(b["n"] for b in day["items"]) == 1440
+    cab = c.get("/v1/devices/u-a/readings/buckets?channels=t_cabinet,power", headers=h).json()
+    assert set(cab["items"][0]["channels"]) == {"t_cabinet", "power"}
+    # power is current x voltage of each reading: 2 A x 6 V
+    assert cab["items"][0]["channels"]["power"] == {"lo": 12.0, "hi": 12.0, "mean": 12.0}
+    bad = c.get("/v1/devices/u-a/readings/buckets?channels=t_cabinet,colour", headers=h)
+    assert bad.status_code == 422 and bad.json()["detail"][0]["loc"] == ["query", "channels"]
     too_many = c.get(
         "/v1/devices/u-a/readings/buckets?start=2020-01-01T00:00:00Z&every=60", headers=h
     )

@@ -52,6 +52,9 @@ TARGET_BUCKETS = 400
 MAX_BUCKETS = 5000
 
 MS_DAY = 86_400_000
+#: A wear limit further away than this is not projected to a date: the page reads it as
+#: "over a year" [days] (common practice, no source).
+PROJECTION_HORIZON_DAYS = 365
 
 
 def _figure(key: str, est: LatestEstimate | dict[str, Any] | None) -> dict[str, Any]:
@@ -181,7 +184,7 @@ def capacity_verdict(health: dict[str, dict[str, Any]]) -> str:
     if holdable is None or margin is None or ambient is None:
         return f"Capacity at the design ambient: {readout.NO_DATA}."
     at = readout.temperature(ambient)
-    if holdable >= 0.5:
+    if holdable >= 0.5:  # a flag stored as 1 or 0
         text = f"Holds its setpoint at the design ambient of {at} with "
         text += f"{readout.significant(margin, 'W')} to spare."
     else:
@@ -189,7 +192,10 @@ def capacity_verdict(health: dict[str, dict[str, Any]]) -> str:
         text += f"{readout.significant(-float(margin), 'W')}."
     losing = value("capacity.losing_setpoint_h")
     if losing:
-        text += f" Lost its setpoint for {readout.duration(float(losing) * 3600)} on the last day."
+        text += (
+            f" On its last analysed day it was well above its setpoint at near full drive for "
+            f"{readout.duration(float(losing) * 3600)}."
+        )
     return text
 
 
@@ -204,7 +210,8 @@ def unit_detail(engine: Engine, device_id: str) -> dict[str, Any]:
     baseline = (health.get("module.resistance_25c.baseline") or {}).get("value")
     days = unit["figures"]["module.days_to_wear_limit"]
     crossing = None
-    if days["value"] is not None and days["at"] is not None and 0 <= days["value"] <= 3650:
+    known = days["value"] is not None and days["at"] is not None
+    if known and 0 <= days["value"] <= PROJECTION_HORIZON_DAYS:
         from_ms = rfc3339_to_ms(days["at"])
         crossing = ms_to_rfc3339(from_ms + int(float(days["value"]) * MS_DAY))
     return unit | {

@@ -22,6 +22,11 @@ from tecfleet.ingest.db.buckets import BUCKET_CHANNELS
 
 router = APIRouter(tags=["fleet"])
 
+#: The span up to the end when no start is given [s]: from a minute to a year.
+Last = Annotated[
+    int | None,
+    Query(ge=60, le=366 * 86400, description="seconds up to the end when start is not given"),
+]
 #: Bucket width asked for [s]: from a minute to a week.
 Every = Annotated[int | None, Query(ge=60, le=7 * 86400, description="bucket width [s]")]
 
@@ -57,6 +62,7 @@ def reading_buckets(
     start: str | None = None,
     end: str | None = None,
     every: Every = None,
+    last: Last = None,
     channels: Annotated[
         str | None,
         Query(description="comma-separated, of " + ", ".join(BUCKET_CHANNELS) + " (default all)"),
@@ -71,7 +77,7 @@ def reading_buckets(
         raise unprocessable("query", "channels", f"unknown channels {unknown}")
     try:
         return fleet.reading_buckets(
-            engine, device_id, bounds.start_ms, bounds.end_ms, every, wanted
+            engine, device_id, bounds.start_ms, bounds.end_ms, every, wanted, last
         )
     except ValueError as exc:
         raise unprocessable("query", "every", str(exc)) from exc
@@ -90,13 +96,14 @@ def estimate_buckets(
     start: str | None = None,
     end: str | None = None,
     every: Every = None,
+    last: Last = None,
 ) -> dict[str, Any]:
     """History of several estimate keys in buckets: least, greatest and mean value."""
     bounds = time_bounds(start, end)
     wanted = [k.strip() for k in keys.split(",") if k.strip()]
     try:
         return fleet.estimate_buckets(
-            engine, device_id, wanted, bounds.start_ms, bounds.end_ms, every
+            engine, device_id, wanted, bounds.start_ms, bounds.end_ms, every, last
         )
     except ValueError as exc:
         raise unprocessable("query", "every", str(exc)) from exc

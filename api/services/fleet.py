@@ -239,9 +239,10 @@ def bucket_width_s(start_ms: int, end_ms: int, every_s: int | None) -> int:
 
 
 def _range(
-    engine: Engine, device_id: str, start_ms: int | None, end_ms: int | None
+    engine: Engine, device_id: str, start_ms: int | None, end_ms: int | None, last_s: int | None
 ) -> tuple[int, int]:
-    """The range asked for; by default the day up to the device's newest reading."""
+    """The range asked for; by default ``last_s`` seconds (a day) up to the device's newest
+    reading."""
     found = fleet_db.device_detail(engine, device_id)
     if found is None:
         raise not_found(device_id)
@@ -249,7 +250,7 @@ def _range(
         last = found[0].last_reading_ms
         end_ms = int(last) + 1 if last is not None else int(time.time() * 1000)
     if start_ms is None:
-        start_ms = end_ms - MS_DAY
+        start_ms = end_ms - (MS_DAY if last_s is None else last_s * 1000)
     return start_ms, end_ms
 
 
@@ -260,9 +261,10 @@ def reading_buckets(
     end_ms: int | None,
     every_s: int | None,
     channels: Sequence[str] = buckets.BUCKET_CHANNELS,
+    last_s: int | None = None,
 ) -> dict[str, Any]:
     """Readings of one device in buckets (default: the last day to its newest reading)."""
-    start_ms, end_ms = _range(engine, device_id, start_ms, end_ms)
+    start_ms, end_ms = _range(engine, device_id, start_ms, end_ms, last_s)
     every = bucket_width_s(start_ms, end_ms, every_s)
     found = buckets.reading_buckets(engine, device_id, start_ms, end_ms, every * 1000, channels)
     items = [
@@ -292,9 +294,10 @@ def estimate_buckets(
     start_ms: int | None,
     end_ms: int | None,
     every_s: int | None,
+    last_s: int | None = None,
 ) -> dict[str, Any]:
     """Several estimate keys of one device in buckets (default: the last day)."""
-    start_ms, end_ms = _range(engine, device_id, start_ms, end_ms)
+    start_ms, end_ms = _range(engine, device_id, start_ms, end_ms, last_s)
     every = bucket_width_s(start_ms, end_ms, every_s)
     series: dict[str, list[dict[str, Any]]] = {k: [] for k in keys}
     for b in buckets.estimate_buckets(engine, device_id, keys, start_ms, end_ms, every * 1000):

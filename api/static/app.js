@@ -171,7 +171,16 @@ function drawFleetPlot(units) {
 // ---- unit view -------------------------------------------------------------------------
 async function showUnit(id) {
   const enc = encodeURIComponent(id);
-  const unit = await api("/v1/fleet/units/" + enc);
+  const span = RANGES[state.range], trendSpan = Math.max(span, TREND_MIN_MS);
+  const keys = ["performance.cop", "performance.cop_max", "module.resistance_25c_ohm", "module.resistance_25c.baseline",
+    "cabinet.ua_w_per_k", "cabinet.ua.baseline", "hot_side.resistance_k_per_w", "hot_side.resistance.baseline"];
+  // All at once: the ranges end at the unit's newest reading, which the server knows.
+  const [unit, readings, trends, alerts] = await Promise.all([
+    api("/v1/fleet/units/" + enc),
+    api(`/v1/devices/${enc}/readings/buckets?last=${span / 1000}&channels=t_cabinet,t_cold,t_hot,t_ambient,current,power`),
+    api(`/v1/devices/${enc}/estimates?keys=${keys.join(",")}&last=${trendSpan / 1000}&every=${TREND_EVERY_S}`),
+    api(`/v1/fleet/alerts?device=${enc}&limit=50`).then((page) => page.items),
+  ]);
   const first = state.unit !== id;
   state.unit = id;
   $("#unit-title").textContent = (unit.label || id) + (unit.site ? " — " + unit.site : "");
@@ -179,20 +188,12 @@ async function showUnit(id) {
     (unit.in_range === false ? '<span class="pill state-out">out of range</span>' : "") +
     ` ${esc(id)} · cabinet ${unit.t_cabinet_c === null ? "—" : unit.t_cabinet_c.toFixed(1) + " °C"} · last reading ${ago(unit.last_reading_at)}`;
   document.querySelectorAll("[data-range]").forEach((b) => b.setAttribute("aria-pressed", String(b.dataset.range === state.range)));
-  const end = unit.last_reading_at ? Date.parse(unit.last_reading_at) + 1 : Date.now();
+  const end = Date.parse(readings.end);
   if (first) {
     $("#report-end").value = new Date(end).toISOString().slice(0, 10);
     $("#report-start").value = new Date(end - 7 * 86400e3).toISOString().slice(0, 10);
   }
-  const span = RANGES[state.range], start = end - span, trendStart = end - Math.max(span, TREND_MIN_MS);
-  const iso = (ms) => encodeURIComponent(new Date(ms).toISOString());
-  const keys = ["performance.cop", "performance.cop_max", "module.resistance_25c_ohm", "module.resistance_25c.baseline",
-    "cabinet.ua_w_per_k", "cabinet.ua.baseline", "hot_side.resistance_k_per_w", "hot_side.resistance.baseline"];
-  const [readings, trends, alerts] = await Promise.all([
-    api(`/v1/devices/${enc}/readings/buckets?start=${iso(start)}&end=${iso(end)}&channels=t_cabinet,t_cold,t_hot,t_ambient,current,power`),
-    api(`/v1/devices/${enc}/estimates?keys=${keys.join(",")}&start=${iso(trendStart)}&end=${iso(end)}&every=${TREND_EVERY_S}`),
-    api(`/v1/fleet/alerts?device=${enc}&limit=50`).then((page) => page.items),
-  ]);
+  const start = Date.parse(readings.start), trendStart = Date.parse(trends.start);
   drawUnitPlots(unit, readings, trends, alerts, [start, end], [trendStart, end]);
   $("#registration").innerHTML = registration(unit);
   $("#capacity").textContent = unit.capacity;

@@ -5,11 +5,13 @@ from __future__ import annotations
 
 from fastapi import FastAPI, Request
 from fastapi.responses import JSONResponse
+from fastapi.staticfiles import StaticFiles
 from sqlalchemy.engine import Engine
 
 from tecfleet.api.deps import ReadyCheck
 from tecfleet.api.errors import CursorError
 from tecfleet.api.routes import ROUTERS
+from tecfleet.api.routes.system import STATIC
 from tecfleet.ingest.errors import NotFoundError, StoreError
 from tecfleet.ingest.settings import Settings
 
@@ -41,6 +43,7 @@ def create_app(
     app.state.engine = engine
     app.state.settings = settings
     app.state.ready_check = ready
+    app.mount("/static", StaticFiles(directory=STATIC), name="static")
     for router in ROUTERS:
         app.include_router(router)
     app.add_exception_handler(NotFoundError, _not_found)

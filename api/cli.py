@@ -9,7 +9,7 @@ import threading
 from pathlib import Path
 from typing import Any
 
-from tecfleet.api.commands import agent, devices, import_
+from tecfleet.api.commands import agent, devices, import_, report
 from tecfleet.ingest.errors import TecfleetError
 from tecfleet.ingest.settings import Settings, load_settings
 
@@ -166,12 +166,12 @@ def cmd_analyze(args: argparse.Namespace) -> int:
 
     settings = _settings(args)
     engine = _engine(settings)
-    report = analyze(engine, device_id=args.device)
+    done = analyze(engine, device_id=args.device)
     # Event time only: "offline" is judged against the newest stored reading.
     changes = evaluate(engine, device_id=args.device)
     print(
-        f"analysed {report.devices} device(s): {report.steps} step(s), "
-        f"{report.estimates} estimate(s) in {report.seconds:.1f} s; "
+        f"analysed {done.devices} device(s): {done.steps} step(s), "
+        f"{done.estimates} estimate(s) in {done.seconds:.1f} s; "
         f"{len(changes)} alert change(s)",
         flush=True,
     )
@@ -219,6 +219,8 @@ def build_parser() -> argparse.ArgumentParser:
     analyze.add_argument("--device", default=None)
     _add_setting_flags(analyze, only=("--db", "--config"))
     analyze.set_defaults(func=cmd_analyze)
+
+    report.add_parser(sub)
 
     simulate = sub.add_parser("simulate", help="publish a simulated fleet")
     try:

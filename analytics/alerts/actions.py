@@ -1,5 +1,5 @@
-"""What people do with alerts: acknowledge one, read its audit trail, silence a device or a
-site for maintenance, and override thresholds per device or site."""
+"""What people do with alerts: acknowledge one, read its audit trail, hold the notices of a
+device or a site during maintenance, and override thresholds per device or site."""
 
 from __future__ import annotations
 
@@ -45,7 +45,8 @@ def add_maintenance(
     reason: str | None = None,
     created_by: str | None = None,
 ) -> int:
-    """Silence a device or a whole site between ``start_ms`` and ``end_ms`` [ms, event time]."""
+    """Hold the notices of a device or a whole site between ``start_ms`` and ``end_ms`` [ms,
+    event time]."""
     if (device_id is None) == (site is None):
         raise AlertError("a maintenance window names either a device or a site")
     if end_ms <= start_ms:

@@ -1,4 +1,5 @@
-"""The demo fleet: Kestrel Valley Health Cooperative (an invented regional clinic network).
+"""The demo fleet: Kavenmoor Vale Health Cooperative (an invented regional clinic network;
+every site, organisation and person in the demo is made up).
 
 24 thermoelectric units at six invented sites: medicine fridges (24 V, two modules in
 series), vaccine carriers and sample fridges (12 V, one module), and enclosure coolers in
@@ -44,44 +45,44 @@ log = logging.getLogger(__name__)
 
 __all__ = ["COMPANY", "SITES", "demo_fleet", "run_demo_feed"]
 
-COMPANY = "Kestrel Valley Health Cooperative"
+COMPANY = "Kavenmoor Vale Health Cooperative"
 
 #: site code -> (name, indoor?, mean ambient °C, daily swing K, UTC offset h)
 SITES: dict[str, tuple[str, bool, float, float, float]] = {
-    "mil": ("Millbrook Clinic", True, 22.0, 1.5, 1.0),
-    "ald": ("Aldwick Pharmacy", True, 23.0, 2.0, 1.0),
-    "fer": ("Fernhill Medical Centre", True, 21.5, 1.0, 1.0),
-    "sto": ("Stonebridge Sample Lab", True, 24.0, 1.5, 1.0),
+    "mil": ("Milquarren Clinic", True, 22.0, 1.5, 1.0),
+    "ald": ("Aldervoss Dispensary", True, 23.0, 2.0, 1.0),
+    "fer": ("Ferrowyn Health Centre", True, 21.5, 1.0, 1.0),
+    "sto": ("Stovendel Sample Lab", True, 24.0, 1.5, 1.0),
     "van": ("Outreach Van 3", True, 24.0, 4.0, 1.0),
-    "rid": ("Ridgeway Telecom Hut", False, 17.0, 7.0, 1.0),
+    "rid": ("Ridgmarrow Telecom Hut", False, 17.0, 7.0, 1.0),
 }
 
 # (device id, kind, label)
 _UNITS: tuple[tuple[str, str, str], ...] = (
-    ("kv-mil-med01", "med", "Millbrook dispensary fridge A"),
-    ("kv-mil-med02", "med", "Millbrook dispensary fridge B"),
-    ("kv-mil-vac01", "vac", "Millbrook vaccine carrier 1"),
-    ("kv-mil-vac02", "vac", "Millbrook vaccine carrier 2"),
-    ("kv-ald-med01", "med", "Aldwick pharmacy fridge"),
-    ("kv-ald-smp01", "smp", "Aldwick counter sample fridge"),
-    ("kv-ald-vac01", "vac", "Aldwick vaccine carrier"),
-    ("kv-fer-med01", "med", "Fernhill treatment-room fridge"),
-    ("kv-fer-med02", "med", "Fernhill insulin fridge"),
-    ("kv-fer-smp01", "smp", "Fernhill phlebotomy sample fridge"),
-    ("kv-fer-vac01", "vac", "Fernhill vaccine carrier"),
-    ("kv-sto-med01", "med", "Stonebridge reagent fridge"),
-    ("kv-sto-smp01", "smp", "Stonebridge sample fridge 1"),
-    ("kv-sto-smp02", "smp", "Stonebridge sample fridge 2"),
-    ("kv-sto-smp03", "smp", "Stonebridge sample fridge 3"),
+    ("kv-mil-med01", "med", "Milquarren dispensary fridge A"),
+    ("kv-mil-med02", "med", "Milquarren dispensary fridge B"),
+    ("kv-mil-vac01", "vac", "Milquarren vaccine carrier 1"),
+    ("kv-mil-vac02", "vac", "Milquarren vaccine carrier 2"),
+    ("kv-ald-med01", "med", "Aldervoss dispensary fridge"),
+    ("kv-ald-smp01", "smp", "Aldervoss counter sample fridge"),
+    ("kv-ald-vac01", "vac", "Aldervoss vaccine carrier"),
+    ("kv-fer-med01", "med", "Ferrowyn treatment-room fridge"),
+    ("kv-fer-med02", "med", "Ferrowyn insulin fridge"),
+    ("kv-fer-smp01", "smp", "Ferrowyn phlebotomy sample fridge"),
+    ("kv-fer-vac01", "vac", "Ferrowyn vaccine carrier"),
+    ("kv-sto-med01", "med", "Stovendel reagent fridge"),
+    ("kv-sto-smp01", "smp", "Stovendel sample fridge 1"),
+    ("kv-sto-smp02", "smp", "Stovendel sample fridge 2"),
+    ("kv-sto-smp03", "smp", "Stovendel sample fridge 3"),
     ("kv-van-vac01", "vac", "Outreach van vaccine carrier A"),
     ("kv-van-vac02", "vac", "Outreach van vaccine carrier B"),
     ("kv-van-smp01", "smp", "Outreach van sample box"),
-    ("kv-rid-enc01", "enc", "Ridgeway radio cabinet cooler"),
-    ("kv-rid-enc02", "enc", "Ridgeway battery cabinet cooler"),
-    ("kv-rid-enc03", "enc", "Ridgeway fibre cabinet cooler"),
-    ("kv-mil-smp01", "smp", "Millbrook lab sample fridge"),
-    ("kv-ald-med02", "med", "Aldwick cold-chain fridge"),
-    ("kv-fer-enc01", "enc", "Fernhill server-closet cooler"),
+    ("kv-rid-enc01", "enc", "Ridgmarrow radio cabinet cooler"),
+    ("kv-rid-enc02", "enc", "Ridgmarrow battery cabinet cooler"),
+    ("kv-rid-enc03", "enc", "Ridgmarrow fibre cabinet cooler"),
+    ("kv-mil-smp01", "smp", "Milquarren lab sample fridge"),
+    ("kv-ald-med02", "med", "Aldervoss cold-chain fridge"),
+    ("kv-fer-enc01", "enc", "Ferrowyn server-closet cooler"),
 )
 
 DAY = 86_400.0

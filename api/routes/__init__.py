@@ -5,11 +5,13 @@ from fastapi import APIRouter
 from tecfleet.api.routes import (
     alerts,
     devices,
+    fleet,
     health,
     maintenance,
     policies,
     readings,
     rejects,
+    reports,
     system,
     webhooks,
 )
@@ -24,6 +26,8 @@ ROUTERS: tuple[APIRouter, ...] = (
     devices.router,
     readings.router,
     health.router,
+    fleet.router,
+    reports.router,
     rejects.router,
 )
 
@@ -31,11 +35,13 @@ __all__ = [
     "ROUTERS",
     "alerts",
     "devices",
+    "fleet",
     "health",
     "maintenance",
     "policies",
     "readings",
     "rejects",
+    "reports",
     "system",
     "webhooks",
 ]

@@ -1,4 +1,5 @@
-"""Maintenance routes: silence a device or a site, and list the windows."""
+"""Maintenance routes: hold notices for a device or a site during a maintenance window, and
+list the windows."""
 
 from __future__ import annotations
 
@@ -18,7 +19,8 @@ router = APIRouter(tags=["alerts"])
 
 @router.post("/v1/maintenance", status_code=201, response_model=MaintenanceOut, responses=KEYED)
 def maintenance_add(engine: EngineDep, body: MaintenanceIn, who: Writer) -> MaintenanceOut:
-    """Silence a device or a site: notices are held and sent at the end if still relevant."""
+    """Hold notices for a device or a site between ``start`` and ``end``: alerts are still
+    judged and recorded, and their notices are sent at the window's end if still relevant."""
     times = {}
     for name in ("start", "end"):
         try:

@@ -1,4 +1,5 @@
-"""Maintenance windows in and out (times in RFC 3339 with offset)."""
+"""Maintenance windows in and out (times in RFC 3339 with offset): while one lasts, the
+notices of its device or site are held, not sent."""
 
 from __future__ import annotations
 
@@ -6,6 +7,8 @@ from pydantic import BaseModel, ConfigDict, Field
 
 
 class MaintenanceIn(BaseModel):
+    """A window holding notices: name a device or a site, and its start and end."""
+
     model_config = ConfigDict(extra="forbid")
     device_id: str | None = Field(None, pattern=r"^[A-Za-z0-9_.\-]{1,64}$")
     site: str | None = Field(None, max_length=200)
@@ -15,6 +18,8 @@ class MaintenanceIn(BaseModel):
 
 
 class MaintenanceOut(BaseModel):
+    """A stored window holding notices, with who made it."""
+
     id: int
     device_id: str | None
     site: str | None

@@ -1,4 +1,4 @@
-"""Maintenance windows: silencing a device or a site for a while."""
+"""Maintenance windows: holding the notices of a device or a site for a while."""
 
 from __future__ import annotations
 

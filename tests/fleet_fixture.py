@@ -1,0 +1,68 @@
+"""A demo-like fleet in a database for the page's browser test and its benchmark: simulated
+units (the project's own simulator, test data only) stored through the ingester's write path,
+registered at invented sites, analysed and judged by the engine."""
+
+from __future__ import annotations
+
+import time
+from typing import Any
+
+import numpy as np
+from sqlalchemy.engine import Engine
+
+from tecfleet.analytics import alerts, runner
+from tecfleet.analytics import simulation as sim
+from tecfleet.ingest import db
+
+#: Invented site names for test fleets.
+SITES = ("Quillmarsh Depot", "Vantry Hollow Clinic", "Orrindale Store")
+#: Readings stored per simulator step (as in the benches).
+CHUNK = 360
+
+
+def fill(
+    engine: Engine,
+    n_devices: int,
+    days: float,
+    *,
+    seed: int,
+    faults: str | None = None,
+    analyse: bool = True,
+) -> list[str]:
+    """Simulate ``n_devices`` units for ``days`` up to now, store, register and (optionally)
+    analyse them; the device ids."""
+    start_s = time.time() - days * 86_400.0
+    spec = sim.random_fleet(n_devices, seed=seed, start_s=start_s, days=days, faults=faults)
+    simulator = sim.Simulator(spec)
+    ids = list(spec.device_ids)
+    with engine.begin() as conn:
+        conn.execute(
+            db.devices.insert(),
+            [
+                {"device_id": d.device_id, "label": f"Test cooler {k + 1}",
+                 "site": SITES[k % len(SITES)], "module": d.registration()["module"],
+                 "cabinet": d.registration()["cabinet"], "readings": 0}
+                for k, d in enumerate(spec.devices)
+            ],
+        )  # fmt: skip
+    total = round(days * 86_400.0 / spec.interval_s)
+    for _ in range(0, total, CHUNK):
+        db.store_batch(engine, _readings(spec, simulator.run(CHUNK)))
+    if analyse:
+        runner.analyze(engine)
+        alerts.evaluate(engine)
+    return ids
+
+
+def _readings(spec: Any, chunk: Any) -> list[db.Reading]:
+    m = chunk.measured
+    j, i = np.nonzero(chunk.present)
+    ids = np.array(spec.device_ids)[i].tolist()
+    ts = np.round(chunk.ts[j, i] * 1000.0).astype(np.int64).tolist()
+    names = ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh")
+    cols = [[None if v != v else v for v in m[n][j, i].tolist()] for n in names]
+    door = (chunk.truth["door_s"] > 0)[j, i].tolist()
+    return [
+        db.Reading(d, t, *vals, rh=rh, door_open=dr)
+        for d, t, *vals, rh, dr in zip(ids, ts, *cols, door, strict=True)
+    ]

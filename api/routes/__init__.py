@@ -4,8 +4,13 @@ from fastapi import APIRouter
 
 from tecfleet.api.routes import (
     alerts,
+    audit,
+    calibration,
     devices,
+    events,
+    export,
     health,
+    keys,
     maintenance,
     policies,
     readings,
@@ -25,13 +30,23 @@ ROUTERS: tuple[APIRouter, ...] = (
     readings.router,
     health.router,
     rejects.router,
+    calibration.router,
+    export.router,
+    events.router,
+    keys.router,
+    audit.router,
 )
 
 __all__ = [
     "ROUTERS",
     "alerts",
+    "audit",
+    "calibration",
     "devices",
+    "events",
+    "export",
     "health",
+    "keys",
     "maintenance",
     "policies",
     "readings",

@@ -99,14 +99,20 @@ def _site_guard(request: Request, who: Principal) -> None:
             raise ApiError(404, "not_found", f"unknown alert {params['alert_id']}")
 
 
-def require(scope: str, *, fleet_wide: bool = False) -> Callable[..., Principal]:
-    """Dependency factory: a key with at least ``scope`` (403 otherwise) whose sites cover
-    the device or alert the path names; ``fleet_wide`` routes need a key of every site."""
+class Require:
+    """Dependency: a key with at least ``scope`` (403 otherwise) whose sites cover the device
+    or alert the path names; ``fleet_wide`` routes need a key of every site."""
 
-    def check(request: Request, who: Principal = Depends(principal)) -> Principal:
-        if not who.allows(scope):
-            raise ApiError(403, "scope_too_small", f"this route needs a key with scope {scope!r}")
-        if fleet_wide and who.sites is not None:
+    def __init__(self, scope: str, *, fleet_wide: bool = False) -> None:
+        self.scope = scope
+        self.fleet_wide = fleet_wide
+
+    def __call__(self, request: Request, who: Principal = Depends(principal)) -> Principal:
+        if not who.allows(self.scope):
+            raise ApiError(
+                403, "scope_too_small", f"this route needs a key with scope {self.scope!r}"
+            )
+        if self.fleet_wide and who.sites is not None:
             raise ApiError(
                 403,
                 "site_limited_key",
@@ -115,7 +121,9 @@ def require(scope: str, *, fleet_wide: bool = False) -> Callable[..., Principal]
         _site_guard(request, who)
         return who
 
-    return check
+
+def require(scope: str, *, fleet_wide: bool = False) -> Require:
+    return Require(scope, fleet_wide=fleet_wide)
 
 
 #: Route-level guards (``dependencies=[READ]``) and the key holder as a parameter.

@@ -23,7 +23,11 @@ def alerts_list(
     kind: str | None = None,
     incident: Annotated[
         int | None,
-        Query(ge=1, description="only the alerts of the incident whose cause has this id"),
+        Query(
+            ge=1,
+            le=2**63 - 1,
+            description="only the alerts of the incident whose cause has this id",
+        ),
     ] = None,
     limit: LogLimit = 100,
     cursor: str | None = None,

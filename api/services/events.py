@@ -22,6 +22,7 @@ from tecfleet.ingest.db import events as events_db
 
 #: Changes read per query [changes].
 _BATCH = 500
+_INT64_MAX = 2**63 - 1
 #: What a client waits before reconnecting after the stream ends [ms].
 RETRY_MS = 2000
 
@@ -47,8 +48,9 @@ def change_event(r: Any) -> ServerSentEvent:
 def start_after(engine: Engine, last_event_id: str | None) -> int:
     """Where a stream starts: after the event the client saw last, or after the newest change
     (a new client gets only what happens from now on)."""
-    if last_event_id is not None and last_event_id.strip().isdigit():
-        return int(last_event_id.strip())
+    text = (last_event_id or "").strip()
+    if text.isascii() and text.isdigit() and int(text) <= _INT64_MAX:
+        return int(text)
     return events_db.newest_change_id(engine)
 
 

@@ -41,7 +41,7 @@ BODIES: dict[tuple[str, str], Any] = {
         "start": "2026-09-21T15:00:00Z",
         "end": "2026-09-21T16:00:00Z",
     },
-    ("PUT", "/v1/alert-policies/{scope}/{name}"): {"excursion_min_s": 600},
+    ("PUT", "/v1/alert-policies/{scope}/{name}"): {"excursion_delay_s": 600},
     ("POST", "/v1/webhooks"): {"url": "http://127.0.0.1:9/other"},
     ("POST", "/v1/keys"): {"name": "planner", "scope": "read"},
     ("POST", "/v1/devices/{device_id}/calibration"): {

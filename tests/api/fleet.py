@@ -18,12 +18,11 @@ import uvicorn
 from fastapi import FastAPI
 
 from tecfleet.analytics import alerts
-from tecfleet.api.auth import create_key_with_id
+from tecfleet.api.auth import Principal, create_key_with_id
 from tecfleet.api.schemas import DeviceIn
+from tecfleet.api.schemas.calibration import OffsetIn
 from tecfleet.api.services import calibration, webhooks
 from tecfleet.api.services.devices import register_device
-from tecfleet.api.schemas.calibration import OffsetIn
-from tecfleet.api.auth import Principal
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
 from tests.services import free_port, wait_port
@@ -84,9 +83,7 @@ def populate(engine: sa.Engine) -> Fleet:
         keys[role], key_ids[role] = create_key_with_id(engine, role, scope, sites=sites)
     with engine.begin() as conn:
         conn.execute(
-            db.api_keys.update()
-            .where(db.api_keys.c.id == key_ids["revoked"])
-            .values(revoked_ms=T0)
+            db.api_keys.update().where(db.api_keys.c.id == key_ids["revoked"]).values(revoked_ms=T0)
         )
     hook = webhooks.create_webhook(engine, "http://127.0.0.1:9/hook", allow_private=True)
     admin = Principal(key_ids["admin"], "admin", "admin")

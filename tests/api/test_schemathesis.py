@@ -13,10 +13,10 @@ from pathlib import Path
 
 import pytest
 import schemathesis
-from schemathesis.checks import not_a_server_error
-from schemathesis.specs.openapi import checks
 import sqlalchemy as sa
 from hypothesis import HealthCheck, given, settings
+from schemathesis.checks import not_a_server_error
+from schemathesis.specs.openapi import checks
 
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key

@@ -25,6 +25,7 @@ def create_app(
     Without ``settings`` the API limits take their defaults and webhook secrets are sealed
     with a key held by this process only (tests, embedded use).
     """
+    api_settings = settings if settings is not None else Settings.model_validate({})
     app = FastAPI(
         title="tecfleet",
         version="0.1.0",
@@ -32,7 +33,6 @@ def create_app(
         "Every error answers one JSON shape (`ErrorOut`): a machine `code`, a `message`, "
         "and the offending `field`.",
     )
-    api_settings = settings if settings is not None else Settings.model_validate({})
     app.state.engine = engine
     app.state.settings = settings
     app.state.api_settings = api_settings

@@ -13,6 +13,7 @@ import orjson
 from limits import RateLimitItemPerMinute
 from limits.storage import MemoryStorage
 from limits.strategies import MovingWindowRateLimiter
+from starlette.exceptions import HTTPException
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from tecfleet.api.errors import ApiError, error_body
@@ -47,7 +48,8 @@ class BodyLimit:
     """ASGI middleware answering 413 to a request body over ``max_bytes`` [bytes].
 
     A declared ``Content-Length`` over the limit is refused before the body is read; a body
-    sent without one is counted as it arrives.
+    sent without one is counted as it arrives. (The framework's own body limit answers in
+    plain text, outside the app's error handlers; this one answers in the one error shape.)
     """
 
     def __init__(self, app: ASGIApp, max_bytes: int) -> None:
@@ -70,8 +72,9 @@ class BodyLimit:
             if message["type"] == "http.request":
                 seen += len(message.get("body", b""))
                 if seen > self.max_bytes:
-                    # Raised inside the handler's read: it never sees a cut body.
-                    raise ApiError(413, "body_too_large", self._message())
+                    # Raised inside the handler's read, so it never sees a cut body; the
+                    # framework passes an HTTPException from there to the error handlers.
+                    raise HTTPException(413, self._message())
             return message
 
         await self.app(scope, counted, send)

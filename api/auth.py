@@ -23,6 +23,14 @@ SCOPES = ("read", "write", "admin")
 KEY_PREFIX = "tfk_"
 
 
+class KeyArgumentError(ValueError):
+    """A key cannot be made as asked; ``field`` names the argument at fault."""
+
+    def __init__(self, field: str, message: str) -> None:
+        super().__init__(message)
+        self.field = field
+
+
 @dataclass(frozen=True, slots=True)
 class Principal:
     """The holder of a key: who, how much they may do, and where (None: every site)."""
@@ -69,15 +77,16 @@ def create_key_with_id(
     expires_ms: int | None = None,
     created_by: str | None = None,
 ) -> tuple[str, int]:
-    """:func:`create_key`, also returning the new key's id (ValueError on a bad argument)."""
+    """:func:`create_key`, also returning the new key's id (KeyArgumentError, a ValueError,
+    on a bad argument)."""
     if scope not in SCOPES:
-        raise ValueError(f"scope must be one of {', '.join(SCOPES)}")
+        raise KeyArgumentError("scope", f"scope must be one of {', '.join(SCOPES)}")
     if not name.strip():
-        raise ValueError("a key needs a name")
+        raise KeyArgumentError("name", "a key needs a name")
     if sites is not None and not [s for s in sites if s.strip()]:
-        raise ValueError("a key limited to sites needs at least one site")
+        raise KeyArgumentError("sites", "a key limited to sites needs at least one site")
     if expires_ms is not None and expires_ms <= now_ms():
-        raise ValueError("the expiry must lie in the future")
+        raise KeyArgumentError("expires_at", "the expiry must lie in the future")
     clean_sites = sorted({s.strip() for s in sites if s.strip()}) if sites is not None else None
     key = KEY_PREFIX + secrets.token_urlsafe(32)
     key_id = keys_db.insert_key(

@@ -6,6 +6,7 @@ from typing import Any
 
 from fastapi import APIRouter
 
+from tecfleet.api.auth import KeyArgumentError
 from tecfleet.api.deps import FLEET_ADMIN, EngineDep, FleetAdmin, LogLimit, RowId
 from tecfleet.api.errors import unprocessable
 from tecfleet.api.schemas import KEYED, KEYED_LOOKUP, Page
@@ -29,9 +30,8 @@ def key_create(engine: EngineDep, body: KeyIn, who: FleetAdmin) -> KeyCreatedOut
         return keys.create(
             engine, who, body.name, body.scope, sites=body.sites, expires_ms=expires_ms
         )
-    except ValueError as exc:
-        field = "expires_at" if "expiry" in str(exc) else "sites" if "site" in str(exc) else "name"
-        raise unprocessable("body", field, str(exc)) from exc
+    except KeyArgumentError as exc:
+        raise unprocessable("body", exc.field, str(exc)) from exc
 
 
 @router.get("/v1/keys", response_model=Page[KeyOut], dependencies=[FLEET_ADMIN], responses=KEYED)

@@ -10,6 +10,7 @@ from pathlib import Path
 from typing import Any
 
 from tecfleet.api.commands import agent, devices, import_, report
+from tecfleet.api.commands import keys as keys_command
 from tecfleet.ingest.errors import TecfleetError
 from tecfleet.ingest.settings import Settings, load_settings
 
@@ -94,6 +95,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
             "http_port": args.port,
             "analyze_every_s": args.analyze_every,
             "roles": "ingest,analytics,api",
+            "secret_key_file": str(data_dir / "secret.key"),
         },
         env={},
     )
@@ -140,16 +142,6 @@ def cmd_demo(args: argparse.Namespace) -> int:
     finally:
         stop_feed.set()
         broker.stop()
-    return 0
-
-
-def cmd_keys_create(args: argparse.Namespace) -> int:
-    from tecfleet.api.auth import create_key
-
-    settings = _settings(args)
-    key = create_key(_engine(settings), args.name, args.scope)
-    print(key, flush=True)
-    print(f"created {args.scope} key {args.name!r}; it is shown only once", file=sys.stderr)
     return 0
 
 
@@ -203,12 +195,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_setting_flags(serve)
     serve.set_defaults(func=cmd_serve)
 
-    keys = sub.add_parser("keys", help="manage API keys").add_subparsers(dest="keys", required=True)
-    create = keys.add_parser("create", help="create a key; prints it once on the first line")
-    create.add_argument("--name", required=True)
-    create.add_argument("--scope", required=True, choices=("read", "write", "admin"))
-    _add_setting_flags(create, only=("--db", "--config"))
-    create.set_defaults(func=cmd_keys_create)
+    keys_command.add_parser(sub, lambda p: _add_setting_flags(p, only=("--db", "--config")))
 
     db = sub.add_parser("db", help="database schema").add_subparsers(dest="db", required=True)
     upgrade = db.add_parser("upgrade", help="apply pending migrations")

@@ -11,6 +11,7 @@ import orjson
 from tecfleet.api.errors import CursorError
 
 _FOREIGN = "cursor is not one this API handed out"
+_INT64_MAX = 2**63 - 1
 
 
 def encode_cursor(value: Any) -> str:
@@ -30,7 +31,10 @@ def decode_cursor(cursor: str | None) -> Any:
 def int_cursor(cursor: str | None) -> int | None:
     """A cursor that must hold an integer key (an id or a time) [CursorError otherwise]."""
     value = decode_cursor(cursor)
-    if value is not None and not isinstance(value, int):
+    if value is None:
+        return None
+    # bool is an int to Python; a key beyond 64 bits is no key of a stored row.
+    if not isinstance(value, int) or isinstance(value, bool) or abs(value) > _INT64_MAX:
         raise CursorError(_FOREIGN)
     return value
 

@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import Annotated, Any, Literal
 from urllib.parse import unquote, urlsplit
 
-from pydantic import AfterValidator, BeforeValidator, Field, ValidationError
+from pydantic import AfterValidator, BeforeValidator, Field, SecretStr, ValidationError
 from pydantic_settings import (
     BaseSettings,
     PydanticBaseSettingsSource,
@@ -102,6 +102,26 @@ class Settings(BaseSettings):
     max_payload_bytes: int = Field(1_048_576, ge=1024)
     future_tolerance_s: float = Field(300.0, ge=0)
     config: Path | None = None
+
+    # REST API limits and secrets; every limit is common practice, no source.
+    #: Requests one API key may make per minute before it gets 429 [requests/min].
+    api_rate_per_minute: int = Field(600, ge=1)
+    #: Largest request body accepted [bytes].
+    api_max_body_bytes: int = Field(1_048_576, ge=1024)
+    #: Largest page a list answers [items]; the OpenAPI document states it.
+    api_max_page_size: int = Field(1000, ge=1, le=5000)
+    #: Longest span of raw readings one request or export covers [days].
+    api_max_range_days: float = Field(31.0, gt=0)
+    #: A key's last-used time is written at most this often [s].
+    api_key_touch_s: float = Field(60.0, ge=0)
+    #: How often an event stream looks for new alert changes [s].
+    api_events_poll_s: float = Field(1.0, gt=0)
+    #: How long one event stream stays open before the client resumes it [s].
+    api_events_max_s: float = Field(600.0, gt=0)
+    #: Fernet key(s) sealing webhook secrets at rest, comma separated: the first seals, all
+    #: open (rotation). Unset: read from ``secret_key_file``, made there on first need.
+    secret_key: SecretStr | None = None
+    secret_key_file: Path = Path("tecfleet-secret.key")
 
     @classmethod
     def settings_customise_sources(

@@ -24,6 +24,7 @@ from sqlalchemy.engine import Connection, Engine
 from tecfleet.api.delivery.mqtt import AlertPublisher
 from tecfleet.api.delivery.options import DeliveryOptions
 from tecfleet.api.delivery.webhooks import WebhookSender, allow_private_default
+from tecfleet.api.sealing import sealer_for
 from tecfleet.ingest.db import delivery as delivery_db
 from tecfleet.ingest.db import now_ms
 from tecfleet.ingest.settings import Settings
@@ -131,7 +132,9 @@ class Notifier(threading.Thread):
         self.allow_private = allow_private_default() if allow_private is None else allow_private
         self._halt = threading.Event()
         self._mqtt = None if settings is None else AlertPublisher(engine, settings, timeout_s)
-        self._webhooks = WebhookSender(engine, self.options, allow_private=self.allow_private)
+        self._webhooks = WebhookSender(
+            engine, self.options, allow_private=self.allow_private, sealer=sealer_for(settings)
+        )
 
     def stop(self, timeout_s: float = 10.0) -> None:
         self._halt.set()

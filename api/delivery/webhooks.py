@@ -30,6 +30,7 @@ from sqlalchemy.engine import Engine
 from tecfleet.api.delivery.options import DeliveryOptions
 from tecfleet.api.errors import WebhookError
 from tecfleet.api.schemas.alerts import alert_object
+from tecfleet.api.sealing import Sealer, sealer_for
 from tecfleet.api.timefmt import ms_to_rfc3339
 from tecfleet.ingest.db import delivery as delivery_db
 
@@ -108,10 +109,18 @@ def webhook_body(row: Any) -> dict[str, Any]:
 class WebhookSender:
     """Attempts due deliveries, retries with backoff and records every outcome."""
 
-    def __init__(self, engine: Engine, options: DeliveryOptions, *, allow_private: bool) -> None:
+    def __init__(
+        self,
+        engine: Engine,
+        options: DeliveryOptions,
+        *,
+        allow_private: bool,
+        sealer: Sealer | None = None,
+    ) -> None:
         self.engine = engine
         self.options = options
         self.allow_private = allow_private
+        self.sealer = sealer if sealer is not None else sealer_for(None)
         self._http = httpx.Client(timeout=options.timeout_s, follow_redirects=False)
 
     def close(self) -> None:
@@ -138,7 +147,9 @@ class WebhookSender:
                 "content-type": "application/json",
                 "webhook-id": row.msg_id,
                 "webhook-timestamp": str(timestamp),
-                "webhook-signature": sign(row.secret, row.msg_id, timestamp, body),
+                "webhook-signature": sign(
+                    self.sealer.open(row.secret), row.msg_id, timestamp, body
+                ),
             },
         )
         return response.status_code

@@ -8,8 +8,8 @@ from typing import Any
 from fastapi import APIRouter
 
 from tecfleet.analytics.errors import AlertError
-from tecfleet.api.deps import READ, EngineDep, Writer
-from tecfleet.api.errors import unprocessable
+from tecfleet.api.deps import EngineDep, Reader, Writer
+from tecfleet.api.errors import ApiError, unprocessable
 from tecfleet.api.schemas import KEYED, MaintenanceIn, MaintenanceOut, Page
 from tecfleet.api.services import maintenance
 from tecfleet.api.timefmt import rfc3339_to_ms
@@ -27,6 +27,8 @@ def maintenance_add(engine: EngineDep, body: MaintenanceIn, who: Writer) -> Main
             times[name] = rfc3339_to_ms(getattr(body, name))
         except ValueError as exc:
             raise unprocessable("body", name, str(exc)) from exc
+    if not maintenance.within_sites(engine, who, body.device_id, body.site):
+        raise ApiError(403, "site_not_allowed", "the key may silence only devices at its sites")
     try:
         return maintenance.add_window(
             engine,
@@ -35,7 +37,7 @@ def maintenance_add(engine: EngineDep, body: MaintenanceIn, who: Writer) -> Main
             device_id=body.device_id,
             site=body.site,
             reason=body.reason,
-            created_by=who.name,
+            who=who,
         )
     except AlertError as exc:
         raise unprocessable("body", "device_id", str(exc)) from exc
@@ -44,8 +46,8 @@ def maintenance_add(engine: EngineDep, body: MaintenanceIn, who: Writer) -> Main
 @router.get(
     "/v1/maintenance",
     response_model=Page[MaintenanceOut],
-    dependencies=[READ],
     responses=KEYED,
 )
-def maintenance_list(engine: EngineDep) -> dict[str, Any]:
-    return {"items": maintenance.list_windows(engine), "next_cursor": None}
+def maintenance_list(engine: EngineDep, who: Reader) -> dict[str, Any]:
+    """The newest windows first (those on the key's sites)."""
+    return {"items": maintenance.list_windows(engine, who), "next_cursor": None}

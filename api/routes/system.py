@@ -8,7 +8,7 @@ from fastapi import APIRouter
 from fastapi.responses import FileResponse, JSONResponse, PlainTextResponse, Response
 from prometheus_client import CONTENT_TYPE_LATEST, REGISTRY, generate_latest
 
-from tecfleet.api.deps import READ, EngineDep, ReadyDep
+from tecfleet.api.deps import FLEET_READ, EngineDep, ReadyDep
 from tecfleet.api.schemas import HealthzOut, ReadyOut, json_error_responses
 from tecfleet.ingest import metrics as _ingest_metrics  # noqa: F401 - registers the counters
 from tecfleet.ingest.db import ping
@@ -45,7 +45,7 @@ def readyz(engine: EngineDep, ready: ReadyDep) -> JSONResponse:
 @router.get(
     "/metrics",
     tags=["service"],
-    dependencies=[READ],
+    dependencies=[FLEET_READ],
     response_class=PlainTextResponse,
     responses={
         200: {

@@ -6,8 +6,13 @@ Each reads or writes the store through ``tecfleet.ingest.db`` (or the alert rule
 
 from tecfleet.api.services import (
     alerts,
+    audit,
+    calibration,
     devices,
+    events,
+    export,
     health,
+    keys,
     maintenance,
     policies,
     readings,
@@ -17,8 +22,13 @@ from tecfleet.api.services import (
 
 __all__ = [
     "alerts",
+    "audit",
+    "calibration",
     "devices",
+    "events",
+    "export",
     "health",
+    "keys",
     "maintenance",
     "policies",
     "readings",

@@ -3,15 +3,19 @@ acknowledgement."""
 
 from __future__ import annotations
 
+from collections.abc import Collection
 from typing import Any
 
 from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import alerts as rules
+from tecfleet.api.auth import Principal
 from tecfleet.api.pagination import int_cursor, next_cursor
 from tecfleet.api.schemas.alerts import AlertDetailOut, AlertOut, alert_object
+from tecfleet.api.services.audit import record_change
 from tecfleet.api.timefmt import ms_to_rfc3339
 from tecfleet.ingest.db import alert_records
+from tecfleet.ingest.db import sites as sites_db
 from tecfleet.ingest.errors import NotFoundError
 
 
@@ -28,12 +32,20 @@ def list_alerts(
     state: str | None = None,
     kind: str | None = None,
     incident: int | None = None,
+    sites: Collection[str] | None = None,
 ) -> tuple[list[AlertOut], str | None]:
     """Alerts newest first, filtered by device, state, kind and incident (the cause's id);
     a cause carries its symptoms."""
     before = int_cursor(cursor)
     rows = alert_records.alert_page(
-        engine, limit, before, device=device, state=state, kind=kind, incident=incident
+        engine,
+        limit,
+        before,
+        device=device,
+        state=state,
+        kind=kind,
+        incident=incident,
+        sites=sites,
     )
     page = rows[:limit]
     symptoms = alert_records.incident_symptoms(
@@ -60,6 +72,11 @@ def get_alert(engine: Engine, alert_id: int) -> AlertDetailOut:
     return AlertDetailOut(**out)
 
 
-def acknowledge(engine: Engine, alert_id: int, actor: str, note: str | None) -> AlertOut:
-    """Acknowledge an open alert in the name of ``actor`` (idempotent)."""
-    return AlertOut(**alert_object(rules.acknowledge(engine, alert_id, actor, note)))
+def acknowledge(engine: Engine, alert_id: int, who: Principal, note: str | None) -> AlertOut:
+    """Acknowledge an open alert in the name of the key holder (idempotent), on record."""
+    before = alert_records.alert_by_id(engine, alert_id)
+    out = AlertOut(**alert_object(rules.acknowledge(engine, alert_id, who.name, note)))
+    if before is not None and before.state != out.state:
+        site = sites_db.known_site(engine, out.device_id)
+        record_change(engine, who, "alert.acknowledge", f"alert/{alert_id}", {"note": note}, site)
+    return out

@@ -3,15 +3,19 @@
 from __future__ import annotations
 
 import time
+from collections.abc import Collection
 from typing import Any
 
 from sqlalchemy.engine import Engine, Row
 
+from tecfleet.api.auth import Principal
 from tecfleet.api.pagination import next_cursor, str_cursor
 from tecfleet.api.schemas.devices import CommissioningOut, DeviceDetail, DeviceIn, DeviceOut
+from tecfleet.api.services.audit import record_change
 from tecfleet.api.services.readings import reading_out
 from tecfleet.api.timefmt import ms_to_rfc3339
 from tecfleet.ingest.db import alert_records
+from tecfleet.ingest.db import calibration as calibration_db
 from tecfleet.ingest.db import fleet as fleet_db
 from tecfleet.ingest.errors import NotFoundError
 
@@ -48,10 +52,10 @@ def _device_out(row: Row[Any], open_alerts: int, wall_ms: int) -> DeviceOut:
 
 
 def list_devices(
-    engine: Engine, limit: int, cursor: str | None
+    engine: Engine, limit: int, cursor: str | None, sites: Collection[str] | None = None
 ) -> tuple[list[DeviceOut], str | None]:
     after = str_cursor(cursor)
-    rows, counts = fleet_db.device_page(engine, limit, after)
+    rows, counts = fleet_db.device_page(engine, limit, after, sites)
     page = rows[:limit]
     wall = int(time.time() * 1000)
     items = [_device_out(r, counts.get(r.device_id, 0), wall) for r in page]
@@ -66,9 +70,14 @@ def get_device(engine: Engine, device_id: str) -> DeviceDetail:
     base = _device_out(row, open_alerts, int(time.time() * 1000))
     return DeviceDetail(
         **base.model_dump(),
-        latest_reading=reading_out(latest) if latest else None,
+        latest_reading=reading_out(latest, _offsets(engine, device_id)) if latest else None,
         commissioning=_commissioning(engine, device_id),
     )
+
+
+def _offsets(engine: Engine, device_id: str) -> list[calibration_db.Offset]:
+    with engine.connect() as conn:
+        return calibration_db.active_offsets(conn, device_id)
 
 
 def _commissioning(engine: Engine, device_id: str) -> CommissioningOut | None:
@@ -87,7 +96,14 @@ def _commissioning(engine: Engine, device_id: str) -> CommissioningOut | None:
     )
 
 
-def register_device(engine: Engine, device_id: str, body: DeviceIn) -> DeviceDetail:
-    """Create or update a device's registration; only the fields given change."""
-    fleet_db.register(engine, device_id, body.model_dump(exclude_unset=True))
-    return get_device(engine, device_id)
+def register_device(
+    engine: Engine, device_id: str, body: DeviceIn, who: Principal | str | None = None
+) -> DeviceDetail:
+    """Create or update a device's registration; only the fields given change. A change
+    made by ``who`` goes to the audit trail."""
+    given = body.model_dump(exclude_unset=True)
+    fleet_db.register(engine, device_id, given)
+    out = get_device(engine, device_id)
+    if who is not None:
+        record_change(engine, who, "device.register", f"device/{device_id}", given, out.site)
+    return out

@@ -7,9 +7,12 @@ from typing import Any
 from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import alerts as rules
+from tecfleet.api.auth import Principal
 from tecfleet.api.schemas.maintenance import MaintenanceOut
+from tecfleet.api.services.audit import record_change
 from tecfleet.api.timefmt import ms_to_rfc3339
 from tecfleet.ingest.db import alert_records
+from tecfleet.ingest.db import sites as sites_db
 
 
 def _maintenance_out(r: Any) -> MaintenanceOut:
@@ -32,9 +35,10 @@ def add_window(
     device_id: str | None,
     site: str | None,
     reason: str | None,
-    created_by: str,
+    who: Principal,
 ) -> MaintenanceOut:
-    """Store a window (AlertError when it names neither or both, or ends before it starts)."""
+    """Store a window (AlertError when it names neither or both, or ends before it starts),
+    on record in the audit trail."""
     window_id = rules.add_maintenance(
         engine,
         start_ms,
@@ -42,11 +46,26 @@ def add_window(
         device_id=device_id,
         site=site,
         reason=reason,
-        created_by=created_by,
+        created_by=who.name,
     )
-    return _maintenance_out(alert_records.maintenance_window(engine, window_id))
+    out = _maintenance_out(alert_records.maintenance_window(engine, window_id))
+    site = site if device_id is None else sites_db.known_site(engine, device_id)
+    record_change(
+        engine, who, "maintenance.add", f"maintenance/{window_id}", out.model_dump(), site
+    )
+    return out
 
 
-def list_windows(engine: Engine) -> list[MaintenanceOut]:
-    """The newest windows first."""
-    return [_maintenance_out(r) for r in alert_records.newest_maintenance_windows(engine)]
+def within_sites(engine: Engine, who: Principal, device_id: str | None, site: str | None) -> bool:
+    """Whether a window for this device or site lies within the key's sites."""
+    if device_id is not None:
+        return who.sees_site(sites_db.known_site(engine, device_id))
+    return who.sees_site(site)
+
+
+def list_windows(engine: Engine, who: Principal) -> list[MaintenanceOut]:
+    """The newest windows first (only those on the key's sites)."""
+    rows = alert_records.newest_maintenance_windows(engine)
+    if who.sites is not None:
+        rows = [r for r in rows if within_sites(engine, who, r.device_id, r.site)]
+    return [_maintenance_out(r) for r in rows]

@@ -6,9 +6,12 @@ from typing import Any
 
 from sqlalchemy.engine import Engine
 
+from tecfleet.api.auth import Principal
 from tecfleet.api.delivery.webhooks import check_url, new_secret
 from tecfleet.api.pagination import int_cursor, next_cursor
 from tecfleet.api.schemas.webhooks import DeliveryOut, WebhookCreatedOut, WebhookOut
+from tecfleet.api.sealing import Sealer, sealer_for
+from tecfleet.api.services.audit import record_change
 from tecfleet.api.timefmt import ms_to_rfc3339
 from tecfleet.ingest.db import delivery as delivery_db
 from tecfleet.ingest.db import now_ms
@@ -20,14 +23,27 @@ def create_webhook(
     url: str,
     *,
     description: str | None = None,
-    created_by: str | None = None,
+    who: Principal | str | None = None,
     allow_private: bool = False,
+    sealer: Sealer | None = None,
 ) -> WebhookCreatedOut:
-    """Register a hook; the answer carries the secret, the only time it is shown."""
+    """Register a hook; the answer carries the secret, the only time it is shown. The
+    secret is stored sealed (see :mod:`tecfleet.api.sealing`); a hook made by ``who`` goes to
+    the audit trail."""
     clean = check_url(url, allow_private=allow_private)
     secret = new_secret()
+    sealed = (sealer or sealer_for(None)).seal(secret)
     now = now_ms()
-    hook_id = delivery_db.insert_webhook(engine, clean, secret, description, now, created_by)
+    by = who.name if isinstance(who, Principal) else who
+    hook_id = delivery_db.insert_webhook(engine, clean, sealed, description, now, by)
+    if who is not None:
+        record_change(
+            engine,
+            who,
+            "webhook.create",
+            f"webhook/{hook_id}",
+            {"url": clean, "description": description},
+        )
     return WebhookCreatedOut(
         id=hook_id,
         url=clean,
@@ -57,9 +73,11 @@ def require_webhook(engine: Engine, webhook_id: int) -> None:
         raise NotFoundError(f"unknown webhook {webhook_id}")
 
 
-def delete_webhook(engine: Engine, webhook_id: int) -> None:
+def delete_webhook(engine: Engine, webhook_id: int, who: Principal | None = None) -> None:
     require_webhook(engine, webhook_id)
     delivery_db.delete_webhook(engine, webhook_id)
+    if who is not None:
+        record_change(engine, who, "webhook.delete", f"webhook/{webhook_id}", {})
 
 
 def _delivery_out(r: Any) -> DeliveryOut:

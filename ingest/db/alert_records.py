@@ -10,7 +10,7 @@ own transaction.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Collection, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -19,6 +19,7 @@ from sqlalchemy.engine import Connection, Engine, Row
 from sqlalchemy.exc import SQLAlchemyError
 
 from tecfleet.ingest.db.engine import now_ms
+from tecfleet.ingest.db.sites import devices_at
 from tecfleet.ingest.db.tables import (
     alert_audit,
     alert_policies,
@@ -613,9 +614,11 @@ def alert_page(
     state: str | None = None,
     kind: str | None = None,
     incident: int | None = None,
+    sites: Collection[str] | None = None,
 ) -> list[Row[Any]]:
     """Up to ``limit + 1`` alerts, newest first, with ids below ``before_id``, filtered
-    (``incident``: the alerts of the incident whose cause has that id)."""
+    (``incident``: the alerts of the incident whose cause has that id; ``sites``: only the
+    alerts of devices at these sites)."""
     a = alerts
     stmt = sa.select(a).order_by(a.c.id.desc()).limit(limit + 1)
     if before_id is not None:
@@ -628,6 +631,8 @@ def alert_page(
         stmt = stmt.where(a.c.kind == kind)
     if incident is not None:
         stmt = stmt.where(a.c.incident_id == incident)
+    if sites is not None:
+        stmt = stmt.where(a.c.device_id.in_(devices_at(sites)))
     with engine.connect() as conn:
         return list(conn.execute(stmt).fetchall())
 

@@ -3,6 +3,7 @@ readings and rejects pages."""
 
 from __future__ import annotations
 
+from collections.abc import Collection
 from typing import Any
 
 import sqlalchemy as sa
@@ -28,11 +29,13 @@ def open_alert_counts(connection: Connection, device_ids: list[str]) -> dict[str
 
 
 def device_page(
-    engine: Engine, limit: int, after: str | None
+    engine: Engine, limit: int, after: str | None, sites: Collection[str] | None = None
 ) -> tuple[list[Row[Any]], dict[str, int]]:
-    """Up to ``limit + 1`` devices by id after ``after``, and the open alerts of the first
-    ``limit`` of them (the extra row only tells that another page follows)."""
+    """Up to ``limit + 1`` devices by id after ``after`` (at ``sites`` only, when given), and
+    the open alerts of the first ``limit`` of them (the extra row tells another page follows)."""
     stmt = sa.select(devices).order_by(devices.c.device_id).limit(limit + 1)
+    if sites is not None:
+        stmt = stmt.where(devices.c.site.in_(list(sites)))
     if after is not None:
         stmt = stmt.where(devices.c.device_id > after)
     with engine.connect() as connection:

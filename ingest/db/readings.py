@@ -14,6 +14,7 @@ from sqlalchemy.dialects import postgresql, sqlite
 from sqlalchemy.engine import Connection, Engine
 from sqlalchemy.exc import SQLAlchemyError
 
+from tecfleet.ingest.db.calibration import calibrate_arrays
 from tecfleet.ingest.db.engine import marker, now_ms
 from tecfleet.ingest.db.tables import devices, readings, rejects
 from tecfleet.ingest.errors import StoreError
@@ -242,7 +243,8 @@ def read_arrays(
 ) -> NDArray[np.float64]:
     """Readings of one device with ``start_ms <= ts_ms < end_ms`` (epoch ms UTC), oldest first,
     as a float array with one column per name in ``columns`` (temperatures in °C as stored;
-    NULL as NaN; ``door_open`` as 1/0). Every analysis reads readings through here.
+    NULL as NaN; ``door_open`` as 1/0), the device's calibration offsets added. Every
+    analysis reads readings through here.
 
     Plain SQL on the driver's own cursor: building SQLAlchemy result rows costs more than the
     analysis of them. Milliseconds since 1970 stay below 2**53, so ``ts_ms`` is exact in float.
@@ -272,12 +274,14 @@ def read_arrays(
     try:
         # fromiter over the flattened rows is the fastest way in; it cannot take None.
         flat = itertools.chain.from_iterable(rows)
-        return np.fromiter(flat, np.float64, len(rows) * k).reshape(-1, k)
+        arr = np.fromiter(flat, np.float64, len(rows) * k).reshape(-1, k)
     except TypeError:
         if _NULLABLE.isdisjoint(columns):
             raise
         # A NULL among the rows (a unit without a face probe, no humidity sensor ...).
-        return np.array(rows, dtype=np.float64)
+        arr = np.array(rows, dtype=np.float64)
+    # Stored values stay as received; calibration offsets apply as they are read.
+    return calibrate_arrays(connection, device_id, columns, arr)
 
 
 def load_readings(

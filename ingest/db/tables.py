@@ -79,6 +79,11 @@ api_keys = sa.Table(
     sa.Column("prefix", sa.String(16), nullable=False),
     sa.Column("created_ms", sa.BigInteger, nullable=False),
     sa.Column("revoked_ms", sa.BigInteger),
+    # migration 0007: NULL sites = the whole fleet; NULL expiry = never
+    sa.Column("sites", sa.JSON),
+    sa.Column("expires_ms", sa.BigInteger),
+    sa.Column("last_used_ms", sa.BigInteger),
+    sa.Column("created_by", sa.String(200)),
 )
 
 estimates = sa.Table(
@@ -235,4 +240,43 @@ webhook_deliveries = sa.Table(
     sa.Column("delivered_ms", sa.BigInteger),
     sa.UniqueConstraint("webhook_id", "notification_id"),
     sa.Index("ix_webhook_deliveries_state_next_attempt_ms", "state", "next_attempt_ms"),
+)
+
+
+# ---------------------------------------------------------------------------
+# Audit trail and calibration offsets (migration 0007).
+# ``audit_log`` is append-only: triggers refuse UPDATE and DELETE on it.
+# A calibration offset is added to a sensor's stored value when readings are read
+# (``valid_from_ms`` inclusive, ``valid_to_ms`` exclusive, NULL = open); stored readings
+# stay as received. ``deleted_ms`` marks a withdrawn offset, kept for the record.
+# ---------------------------------------------------------------------------
+
+audit_log = sa.Table(
+    "audit_log",
+    metadata,
+    sa.Column("id", _ALERT_BIGID, primary_key=True),
+    sa.Column("at_ms", sa.BigInteger, nullable=False),
+    sa.Column("actor", sa.String(200), nullable=False),
+    sa.Column("actor_key_id", sa.Integer),
+    sa.Column("action", sa.String(64), nullable=False),
+    sa.Column("target", sa.String(300), nullable=False),
+    sa.Column("site", sa.String(200)),
+    sa.Column("detail", sa.JSON, nullable=False),
+    sa.Index("ix_audit_log_at_ms", "at_ms"),
+)
+
+calibration_offsets = sa.Table(
+    "calibration_offsets",
+    metadata,
+    sa.Column("id", _ALERT_BIGID, primary_key=True),
+    sa.Column("device_id", sa.String(64), sa.ForeignKey("devices.device_id"), nullable=False),
+    sa.Column("sensor", sa.String(32), nullable=False),
+    sa.Column("offset", sa.Float, nullable=False),
+    sa.Column("valid_from_ms", sa.BigInteger, nullable=False),
+    sa.Column("valid_to_ms", sa.BigInteger),
+    sa.Column("note", sa.Text),
+    sa.Column("created_ms", sa.BigInteger, nullable=False),
+    sa.Column("created_by", sa.String(200)),
+    sa.Column("deleted_ms", sa.BigInteger),
+    sa.Index("ix_calibration_offsets_device_id", "device_id"),
 )

@@ -7,7 +7,7 @@ from typing import Annotated, Any
 
 from fastapi import APIRouter, Query
 
-from tecfleet.api.deps import READ, DeviceId, EngineDep, LogLimit, time_bounds
+from tecfleet.api.deps import READ, DeviceId, EngineDep, LogLimit, Reader, time_bounds
 from tecfleet.api.errors import unprocessable
 from tecfleet.api.schemas import KEYED, KEYED_LOOKUP, Page
 from tecfleet.api.schemas.fleet import (
@@ -31,11 +31,11 @@ Last = Annotated[
 Every = Annotated[int | None, Query(ge=60, le=7 * 86400, description="bucket width [s]")]
 
 
-@router.get("/v1/fleet", response_model=FleetOut, dependencies=[READ], responses=KEYED)
-def fleet_overview(engine: EngineDep) -> dict[str, Any]:
-    """Every unit with its state and health figures, counts by state, the worst units by
-    wear, heat leak and hot-side sink, and the COP spread."""
-    return fleet.fleet_summary(engine)
+@router.get("/v1/fleet", response_model=FleetOut, responses=KEYED)
+def fleet_overview(engine: EngineDep, who: Reader) -> dict[str, Any]:
+    """Every unit (on the key's sites) with its state and health figures, counts by state,
+    the worst units by wear, heat leak and hot-side sink, and the COP spread."""
+    return fleet.fleet_summary(engine, who.sites)
 
 
 @router.get(
@@ -109,16 +109,17 @@ def estimate_buckets(
         raise unprocessable("query", "every", str(exc)) from exc
 
 
-@router.get(
-    "/v1/fleet/alerts", response_model=Page[AlertReadOut], dependencies=[READ], responses=KEYED
-)
+@router.get("/v1/fleet/alerts", response_model=Page[AlertReadOut], responses=KEYED)
 def fleet_alerts(
     engine: EngineDep,
+    who: Reader,
     device: str | None = None,
     state: Annotated[str | None, Query(pattern="^(open|acknowledged|resolved)$")] = None,
     limit: LogLimit = 100,
     cursor: str | None = None,
 ) -> dict[str, Any]:
-    """Alerts newest first, each with its evidence as numbers with units."""
-    items, next_cursor = fleet.alert_readouts(engine, limit, cursor, device=device, state=state)
+    """Alerts newest first (on the key's sites), each with its evidence as numbers with units."""
+    items, next_cursor = fleet.alert_readouts(
+        engine, limit, cursor, device=device, state=state, sites=who.sites
+    )
     return {"items": items, "next_cursor": next_cursor}

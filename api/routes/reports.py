@@ -6,17 +6,17 @@ import io
 
 from fastapi import APIRouter, Response
 
-from tecfleet.api.deps import READ, EngineDep
-from tecfleet.api.errors import unprocessable
+from tecfleet.api.deps import EngineDep, Reader
+from tecfleet.api.errors import ApiError, unprocessable
 from tecfleet.api.report import write_report
 from tecfleet.api.schemas.common import json_error_responses
+from tecfleet.ingest.db import sites as sites_db
 
 router = APIRouter(tags=["reports"])
 
 
 @router.get(
     "/v1/reports/cold-chain.pdf",
-    dependencies=[READ],
     response_class=Response,
     responses={
         200: {
@@ -28,6 +28,7 @@ router = APIRouter(tags=["reports"])
 )
 def cold_chain_report(
     engine: EngineDep,
+    who: Reader,
     start: str,
     end: str,
     device: str | None = None,
@@ -37,6 +38,10 @@ def cold_chain_report(
     ``start`` to ``end`` (dates, the end day included, or RFC 3339 times)."""
     if (device is None) == (site is None):
         raise unprocessable("query", "device", "give exactly one of device and site")
+    if who.sites is not None:
+        site = site if device is None else sites_db.device_site(engine, device)
+        if site is not sites_db.UNKNOWN and not who.sees_site(site):
+            raise ApiError(404, "not_found", f"{device or site!r} is not known")
     out = io.BytesIO()
     try:
         write_report(engine, out, start, end, device_id=device, site=site)

@@ -5,7 +5,7 @@ buckets behind the page's plots."""
 from __future__ import annotations
 
 import time
-from collections.abc import Sequence
+from collections.abc import Collection, Sequence
 from typing import Any
 
 import numpy as np
@@ -121,10 +121,12 @@ def _spread(values: Sequence[float]) -> list[float | None]:
     return [float(a.min()), float(np.median(a)), float(a.max())]
 
 
-def fleet_summary(engine: Engine) -> dict[str, Any]:
-    """Every unit with its state and health figures, counts by state, the worst units by
-    wear, heat leak and hot-side sink, and the spread of COP across the fleet."""
+def fleet_summary(engine: Engine, sites: Collection[str] | None = None) -> dict[str, Any]:
+    """Every unit (of ``sites`` when given) with its state and health figures, counts by
+    state, the worst units by wear, heat leak and hot-side sink, and the spread of COP."""
     units = _units(engine)
+    if sites is not None:
+        units = [u for u in units if u["site"] in sites]
     counts = {
         "total": len(units),
         "online": sum(u["online"] for u in units),
@@ -328,10 +330,11 @@ def alert_readouts(
     *,
     device: str | None = None,
     state: str | None = None,
+    sites: Collection[str] | None = None,
 ) -> tuple[list[dict[str, Any]], str | None]:
-    """A page of alerts newest first, each with its evidence as text people read, and the
-    cursor of the next page."""
-    items, next_cursor = list_alerts(engine, limit, cursor, device=device, state=state)
+    """A page of alerts newest first (of ``sites`` when given), each with its evidence as
+    text people read, and the cursor of the next page."""
+    items, next_cursor = list_alerts(engine, limit, cursor, device=device, state=state, sites=sites)
     return [
         {
             "alert": a.model_dump(),

@@ -26,7 +26,12 @@ const esc = (s) => String(s ?? "").replace(/[&<>"']/g, (c) => ({ "&": "&amp;", "
 async function api(path, options = {}) {
   const response = await fetch(path, { ...options, headers: { "Authorization": "Bearer " + state.key, ...(options.headers || {}) } });
   if (response.status === 401) throw new Error("the API key was refused");
-  if (!response.ok) { const e = new Error(path.split("?")[0] + ": HTTP " + response.status); e.status = response.status; throw e; }
+  if (!response.ok) {
+    const body = await response.json().catch(() => ({}));
+    const e = new Error(path.split("?")[0] + ": " + (body.message || "HTTP " + response.status));
+    e.status = response.status;
+    throw e;
+  }
   return options.raw ? response : response.json();
 }
 

@@ -32,6 +32,12 @@ PUBLIC = {"/healthz", "/readyz", "/"}
 SCOPES = ("read", "write", "admin")
 #: A range within the populated fleet's readings (1_790_000_000 s is 2026-09-21T14:13:20Z).
 RANGE = {"start": "2026-09-21T00:00:00Z", "end": "2026-09-22T00:00:00Z"}
+#: Values of the other required query parameters.
+REQUIRED = {**RANGE, "keys": "module.zt"}
+#: Optional query parameters a route needs to do anything, naming North's things.
+QUERIES: dict[tuple[str, str], dict[str, str]] = {
+    ("GET", "/v1/reports/cold-chain.pdf"): {"device": "cab-n1"},
+}
 #: A body each writing route accepts from a key allowed to use it, naming North's things.
 BODIES: dict[tuple[str, str], Any] = {
     ("PUT", "/v1/devices/{device_id}"): {"label": "north fridge"},
@@ -109,20 +115,22 @@ def calls(app: Any, fleet: Fleet) -> list[Call]:
         url = route.path.format(**{n: values[n] for n in names})
         for method in sorted(route.methods or ()):
             op = document["paths"][route.path][method.lower()]
-            query = {}
+            query = dict(QUERIES.get((method, route.path), {}))
             for param in op.get("parameters", []):
                 if param["in"] != "query":
                     continue
                 if param["name"] == "follow":
                     query["follow"] = "false"  # a stream that ends, so its body can be read
                 elif param.get("required"):
-                    assert param["name"] in RANGE, f"add a value for {param['name']} of {url}"
-                    query[param["name"]] = RANGE[param["name"]]
+                    assert param["name"] in REQUIRED, f"add a value for {param['name']} of {url}"
+                    query[param["name"]] = REQUIRED[param["name"]]
             body = BODIES.get((method, route.path))
             if "requestBody" in op:
                 assert (method, route.path) in BODIES, f"add a body for {method} {route.path}"
-            north = bool({"device_id", "alert_id", "name"} & set(names)) or (
-                isinstance(body, dict) and body.get("device_id") == "cab-n1"
+            north = (
+                bool({"device_id", "alert_id", "name"} & set(names))
+                or (isinstance(body, dict) and body.get("device_id") == "cab-n1")
+                or "cab-n1" in query.values()
             )
             out.append(
                 Call(method, route.path, url, guard.scope, guard.fleet_wide, query, body, north)

@@ -18,14 +18,11 @@ from .._validate import FloatArray
 from ..errors import InsufficientDataError
 from .cabinet import strobed_blocks
 from .estimates import BoolArray, Estimate
+from .intervals import scaled_for_interval, usual_interval
 from .least_squares import segment_sums
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 
 __all__ = ["hot_side_resistance_ratio", "hot_side_resistance_ratios"]
-
-#: Fewest sample pairs in a stretch for its ratio [-] (common practice, no source).
-MIN_PAIRS = 10
-
 
 @dataclass(frozen=True)
 class _Ratios:
@@ -67,7 +64,7 @@ def _ratios(
     q_sum, r_sum, h_sum = sums(q_int), sums(r_int), sums(h[pair])
     heat = q_sum - c_hot * sums(np.diff(th)[pair])
     n = np.bincount(seg, minlength=n_blocks)
-    ok = (n >= MIN_PAIRS) & (heat >= options.hot_side_min_heat_j)
+    ok = (n >= options.hot_side_min_pairs) & (heat >= options.hot_side_min_heat_j)
     value = np.where(ok, r_sum / np.where(ok, heat, 1.0), np.nan)
     # Spread of the pair-level mismatch against the fitted ratio, summed as independent errors.
     mismatch = r_int - value[seg] * q_int
@@ -123,7 +120,8 @@ def hot_side_resistance_ratios(
         its changes), and a stretch whose on/off cycle is locked to the sampling (the samples
         see the same few phases of every cycle; such hours read up to twice the true value)
         gives none [-].
-    options : ``max_gap_s`` [s], ``hot_side_min_heat_j`` [J], ``probe_offset_k`` [K],
+    options : ``max_gap_s`` [s], ``hot_side_min_heat_j`` [J], ``hot_side_min_pairs`` [-],
+        ``probe_offset_k`` [K],
         ``hot_side_max_rel_stderr`` [-], ``on_current`` [A], ``locked_match`` [-].
 
     Returns
@@ -134,6 +132,7 @@ def hot_side_resistance_ratios(
     th = np.asarray(t_hot, dtype=np.float64)
     i = np.asarray(current, dtype=np.float64)
     blk = np.asarray(block, dtype=np.int64)
+    options = scaled_for_interval(options, usual_interval(t))
     q = _ratios(
         t, th, t_ambient, t_cold, i, seebeck, resistance, conductance, usable, blk, n_blocks,
         c_hot, options,

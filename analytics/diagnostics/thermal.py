@@ -19,6 +19,7 @@ stage 2, :mod:`.cabinet`; the stated errors, :mod:`.error_budget`.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 
@@ -30,6 +31,7 @@ from .cabinet import CabinetFit, fit_cabinet
 from .error_budget import cabinet_stderrs, sink_k_errors
 from .estimates import BoolArray
 from .integrals import SampleGrid
+from .intervals import scaled_for_interval, usual_interval
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 from .sinks import SinkFit, fit_sinks
 
@@ -75,6 +77,8 @@ class ThermalFit:
     sink_taus : This window's own sink time constants (heat capacity over conductance) and
         their standard errors, (cold, its error, hot, its error); None where the module did
         not switch often (``min_switches_per_h``) [s].
+    interval_s : The readings' usual interval the balances rest on (segments, blocks and
+        the largest gap integrated across scale with it: :mod:`.intervals`) [s].
     """
 
     ua: float
@@ -98,6 +102,7 @@ class ThermalFit:
     ua_per_k: float = 0.0
     faces_followed: bool = True
     sink_taus: tuple[float, float, float, float] | None = None
+    interval_s: float = 60.0
 
     def stderr(self, name: str) -> float:
         """Standard error of one parameter (a name from ``THERMAL_PARAMS``)."""
@@ -206,6 +211,9 @@ def fit_thermal(
     r = np.asarray(resistance, dtype=np.float64)
     if t.size < 2:
         raise InsufficientDataError("fewer than two samples", "no readings in this window")
+    # Slow reporting: the same balances over longer segments and blocks (.intervals).
+    interval = usual_interval(t)
+    options = scaled_for_interval(options, interval)
     pc = s * i * tc - 0.5 * i * i * r
     ph = s * i * th + 0.5 * i * i * r
     dtv = th - tc
@@ -229,7 +237,9 @@ def fit_thermal(
         cab.held_cab, sr_rel_cov,
         options.probe_offset_k if offset_cov is None else math.sqrt(float(offset_cov[0, 0])),
     )  # fmt: skip
-    return _result(sk, cab, stderrs, pair, k_from_data, options)
+    return dataclasses.replace(
+        _result(sk, cab, stderrs, pair, k_from_data, options), interval_s=interval
+    )
 
 
 def _result(

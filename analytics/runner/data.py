@@ -57,6 +57,14 @@ class Readings:
     faces: dg.FaceReconstruction | None = None
     #: Where a probe is missing and the voltage could not stand in for it: why not.
     faces_missing: str | None = None
+    #: The readings' interval summaries by name (``SUMMARY_COLUMNS``; NaN where a reading
+    #: carries none), None where no reading of the load carries any.
+    means: dict[str, FloatArray] | None = None
+
+    @property
+    def summarised(self) -> bool:
+        """Whether readings of this load carry interval summaries."""
+        return self.means is not None
 
     @property
     def probed(self) -> tuple[bool, bool]:

@@ -109,6 +109,15 @@ class AnalysisSettings:
     #: and the estimate's own standard error says whether it is reliable (common practice,
     #: no source).
     r_hot_min_heat_w: float = 5.0
+    #: A stretch of the hot side's resistance spans at least this many of the unit's usual
+    #: reporting intervals, in whole hourly steps (an hour at one to five minutes, three
+    #: hours at fifteen): the ratio of two integrals needs about a dozen samples of the
+    #: on/off cycles it averages over (common practice, no source) [-].
+    hot_side_intervals: int = 12
+    #: Fewest sample pairs behind a stretch's resistance: ten, or this share of the usual
+    #: intervals in the stretch where that is fewer (slow reporting; missed readings allowed
+    #: for; common practice, no source) [-].
+    hot_side_min_pair_share: float = 2.0 / 3.0
     cusum_allowance: float = 0.5  # [σ], Page (1954), Montgomery (from memory)
     #: Design ambient of the capacity figures when the registration gives none and the
     #: unit's own ambient is not known yet: the upper ambient of climate classes SN and N,

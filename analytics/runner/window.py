@@ -106,6 +106,9 @@ def fit_window(
         return
     _quality_rows(win, rows)
     faces = data.faces.basis if data.faces is not None else faces_basis(win.probed)
+    # Every estimate states the readings it rests on: their usual interval and kind.
+    every = dg.interval_basis(dg.usual_interval(data.t[win.wt]), data.summarised)
+    faces = f"{faces}, {every}"
     rows.basis = f"V = I·R + S·ΔT fit, {faces}" + (", open-circuit samples" if win.floating else "")
     try:
         ele = _electrical(data, win, rows, state, prior, cfg_el)

@@ -41,6 +41,27 @@ from tecfleet.ingest import db
 START_S = 1_735_689_600.0  # 2025-01-01T00:00Z, a day boundary
 
 
+@dataclass(frozen=True)
+class Reporting:
+    """How every simulated unit reports: its interval [s] and whether each reading carries
+    the interval summaries (means over the interval) beside the instant."""
+
+    interval_s: float = 60.0
+    summaries: bool = False
+
+    def label(self) -> str:
+        kind = "summaries" if self.summaries else "instants"
+        return f"{self.interval_s / 60.0:g}-minute {kind}"
+
+    def apply(self, spec: sim.FleetSpec) -> sim.FleetSpec:
+        """``spec`` reporting this way."""
+        return dataclasses.replace(spec, interval_s=self.interval_s, summaries=self.summaries)
+
+
+#: Set once by ``main`` from ``--interval`` and ``--summaries``.
+REPORTING = Reporting()
+
+
 def build_db(
     path: Path, spec: sim.FleetSpec, days: float, simulator: sim.Simulator | None = None
 ) -> tuple[Any, sim.FleetTruth, float]:
@@ -201,7 +222,7 @@ def accuracy_scores(
     out: list[UnitScore] = []
     targets = TARGETS[sensors][0]
     for seed in seeds:
-        spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
+        spec = REPORTING.apply(sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days))
         spec = dataclasses.replace(
             spec,
             devices=tuple(
@@ -243,8 +264,8 @@ def part_accuracy(
     sinks: tuple[float, float] = (0.0, 0.0),
     sensors: str = "full",
 ) -> None:
-    print(f"\n== Accuracy ({sensors} sensor set): healthy units, {days:g} days of one-minute "
-          f"data, seeds {seeds}, {n_dev} devices each (noise, bias, quantisation, doors, loads "
+    print(f"\n== Accuracy ({sensors} sensor set): healthy units, {days:g} days of "
+          f"{REPORTING.label()}, seeds {seeds}, {n_dev} devices each (noise, bias, quantisation, doors, loads "
           f"on), sinks of {sinks[0]:g}/{sinks[1]:g} J/K (cold/hot) ==")  # fmt: skip
     scores = accuracy_scores(seeds, n_dev, days, sinks, sensors)
     print(f"{'quantity':18} {'group':26} {'n':>3} {'median|err|':>11} {'p90|err|':>9} "
@@ -338,7 +359,7 @@ def detection_fleet(
     faults = tuple(
         dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
     )
-    return sim.with_sensor_set(dataclasses.replace(spec, faults=faults), sensors)
+    return REPORTING.apply(sim.with_sensor_set(dataclasses.replace(spec, faults=faults), sensors))
 
 
 def detection_scores(
@@ -372,8 +393,8 @@ def detection_scores(
 
 
 def part_detect(seed: int, n_dev: int, days: float, sensors: str = "full") -> None:
-    print(f"\n== Detection ({sensors} sensor set): {n_dev} devices, {days:g} days, seed {seed}, "
-          "faults wear/leak/fan ==")  # fmt: skip
+    print(f"\n== Detection ({sensors} sensor set): {n_dev} devices, {days:g} days of "
+          f"{REPORTING.label()}, seed {seed}, faults wear/leak/fan ==")  # fmt: skip
     t0 = time.perf_counter()
     found, healthy, false = detection_scores(seed, n_dev, days, sensors)
     print(f"(simulation and analysis {time.perf_counter() - t0:.1f} s)")
@@ -413,7 +434,7 @@ def season_scores(
     """Healthy units over ``days`` with the ambient swinging about ±10 K. ``sinks``: heat
     capacities of every unit's cold and hot sink [J/K] (0: massless faces); ``sensors``:
     the face probes every unit has."""
-    spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
+    spec = REPORTING.apply(sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days))
     # A slow weather anomaly of 5 K s.d. with a 20-day memory plus a 4 K daily swing gives
     # excursions of about ±10 K over the season.
     devs = tuple(
@@ -462,8 +483,8 @@ def part_season(seeds: list[int], n_dev: int, days: float, sensors: str = "full"
 
 
 def _season_one(seed: int, n_dev: int, days: float, sensors: str) -> int:
-    print(f"\n== Season ({sensors} sensor set): {n_dev} healthy devices, {days:g} days, "
-          f"seed {seed}, ambient swinging about ±10 K ==")  # fmt: skip
+    print(f"\n== Season ({sensors} sensor set): {n_dev} healthy devices, {days:g} days of "
+          f"{REPORTING.label()}, seed {seed}, ambient swinging about ±10 K ==")  # fmt: skip
     sea = season_scores(seed, n_dev, days, sensors=sensors)
     for f in sea.flags:
         print(f"flag: {f}")
@@ -608,7 +629,19 @@ def main(argv: list[str] | None = None) -> int:
         help="heat capacities of the cold and hot sinks for the accuracy part [J/K]; "
         "e.g. 150,400 for small aluminium sinks (0,0: massless faces)",
     )  # fmt: skip
+    ap.add_argument("--detect-seeds", default="4", help="seeds of the detect part")
+    ap.add_argument(
+        "--interval", type=float, default=1.0,
+        help="reporting interval of every simulated unit in the accuracy, detect and season "
+        "parts [min]",
+    )  # fmt: skip
+    ap.add_argument(
+        "--summaries", action="store_true",
+        help="every reading carries the interval summaries (means over its interval)",
+    )  # fmt: skip
     args = ap.parse_args(argv)
+    global REPORTING
+    REPORTING = Reporting(60.0 * args.interval, args.summaries)
     parts = set(args.part.split(","))
     sets = SENSOR_SETS if args.sensors == "all" else (args.sensors,)
     for sensors in sets:
@@ -617,7 +650,8 @@ def main(argv: list[str] | None = None) -> int:
             seeds = [int(s) for s in args.seeds.split(",")]
             part_accuracy(seeds, args.devices, 7.0, (cc, ch), sensors)
         if "detect" in parts:
-            part_detect(4, 10, 26.0, sensors)
+            for seed in (int(x) for x in args.detect_seeds.split(",")):
+                part_detect(seed, 10, 26.0, sensors)
         if "season" in parts:
             seeds = [int(x) for x in args.season_seeds.split(",")]
             part_season(seeds, 4, args.season_days, sensors)

@@ -31,7 +31,13 @@ from .electrical import (
 )
 from .estimates import Estimate, propagate
 from .hot_side import hot_side_resistance_ratio, hot_side_resistance_ratios
-from .intervals import interval_basis, scaled_for_interval, usual_interval
+from .intervals import (
+    IntervalMeans,
+    closing_pairs,
+    interval_basis,
+    scaled_for_interval,
+    usual_interval,
+)
 from .module_thermometer import (
     FaceReconstruction,
     NotSeparableError,
@@ -53,10 +59,12 @@ __all__ = [
     "ElectricalFit",
     "Estimate",
     "FaceReconstruction",
+    "IntervalMeans",
     "NotSeparableError",
     "Performance",
     "SampleFlags",
     "ThermalFit",
+    "closing_pairs",
     "delta_t_from_hot_face",
     "detect_floating_driver",
     "fit_electrical",

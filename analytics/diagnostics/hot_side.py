@@ -24,6 +24,7 @@ from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 
 __all__ = ["hot_side_resistance_ratio", "hot_side_resistance_ratios"]
 
+
 @dataclass(frozen=True)
 class _Ratios:
     # Per stretch: the ratio and its error, and what went into them.

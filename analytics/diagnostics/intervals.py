@@ -13,13 +13,71 @@ pairs at any interval as they do at one minute. At one-minute readings nothing c
 from __future__ import annotations
 
 import dataclasses
+from dataclasses import dataclass
 
 import numpy as np
 
 from .._validate import FloatArray
+from .estimates import BoolArray
 from .options import DiagnosticsOptions
 
-__all__ = ["interval_basis", "scaled_for_interval", "usual_interval"]
+__all__ = [
+    "COVER_SHARE",
+    "IntervalMeans",
+    "closing_pairs",
+    "interval_basis",
+    "scaled_for_interval",
+    "usual_interval",
+]
+
+#: A summary stands for a pair of samples when the interval it covers is at least this share
+#: of the time between them: a reading missed before it leaves the earlier part unsummarised
+#: (common practice, no source) [-].
+COVER_SHARE = 0.75
+
+
+@dataclass(frozen=True)
+class IntervalMeans:
+    """What each reading says of the interval it closes (NaN where it says nothing).
+
+    Attributes
+    ----------
+    interval : The interval covered, ending at the reading [s].
+    t_cabinet, t_cold, t_hot, t_ambient : Mean temperatures over it [K].
+    current : Mean current [A].
+    current_sq : Mean of the current's square [A²].
+    power : Mean electrical power into the module [W].
+    on_share : Share of the interval the module was on [-].
+    """
+
+    interval: FloatArray
+    t_cabinet: FloatArray
+    t_cold: FloatArray
+    t_hot: FloatArray
+    t_ambient: FloatArray
+    current: FloatArray
+    current_sq: FloatArray
+    power: FloatArray
+    on_share: FloatArray
+
+    def part(self, sl: slice) -> IntervalMeans:
+        """The means of the readings in ``sl``."""
+        return IntervalMeans(*(getattr(self, f.name)[sl] for f in dataclasses.fields(self)))
+
+    def complete(self) -> BoolArray:
+        """Readings that carry every mean the energy balances use [-]."""
+        ok = np.isfinite(self.interval)
+        for f in dataclasses.fields(self):
+            ok &= np.isfinite(getattr(self, f.name))
+        return np.asarray(ok, dtype=bool)
+
+
+def closing_pairs(time_s: FloatArray, means: IntervalMeans) -> BoolArray:
+    """Sample pairs whose later reading's means stand for the whole pair: every balance mean
+    present and covering at least ``COVER_SHARE`` of the time between the two [-]."""
+    h = np.diff(np.asarray(time_s, dtype=np.float64))
+    ok = means.complete()[1:] & (means.interval[1:] >= COVER_SHARE * h)
+    return np.asarray(ok, dtype=bool)
 
 
 def usual_interval(time_s: FloatArray) -> float:
@@ -34,16 +92,24 @@ def usual_interval(time_s: FloatArray) -> float:
     return float(np.median(h)) if h.size else 0.0
 
 
-def scaled_for_interval(options: DiagnosticsOptions, interval_s: float) -> DiagnosticsOptions:
+def scaled_for_interval(
+    options: DiagnosticsOptions, interval_s: float, summarised: bool = False
+) -> DiagnosticsOptions:
     """``options`` with the balances' time scales stretched to readings ``interval_s`` apart.
 
     The largest gap integrated across becomes ``max_gap_intervals`` usual intervals, the sink
     segments ``segment_intervals`` and the cabinet blocks ``block_intervals`` of them, each
     at least its one-minute value: the balances keep the number of samples behind each of
-    their rows. Parameters: the options for one-minute readings; the usual interval [s].
+    their rows. Where the readings carry interval summaries (``summarised``) each pair's
+    integral is exact whatever the interval, so only the largest gap grows. Parameters: the
+    options for one-minute readings; the usual interval [s]; whether summaries are used.
     """
     if not interval_s > 0.0:
         return options
+    if summarised:
+        return dataclasses.replace(
+            options, max_gap_s=max(options.max_gap_s, options.max_gap_intervals * interval_s)
+        )
     return dataclasses.replace(
         options,
         max_gap_s=max(options.max_gap_s, options.max_gap_intervals * interval_s),

@@ -31,7 +31,7 @@ from .cabinet import CabinetFit, fit_cabinet
 from .error_budget import cabinet_stderrs, sink_k_errors
 from .estimates import BoolArray
 from .integrals import SampleGrid
-from .intervals import scaled_for_interval, usual_interval
+from .intervals import IntervalMeans, closing_pairs, scaled_for_interval, usual_interval
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 from .sinks import SinkFit, fit_sinks
 
@@ -145,6 +145,7 @@ def fit_thermal(
     sr_rel_cov: FloatArray | None = None,
     sink_taus_settled: tuple[float, float, float, float] | None = None,
     offset_cov: FloatArray | None = None,
+    means: IntervalMeans | None = None,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
@@ -190,6 +191,12 @@ def fit_thermal(
         :class:`.probe_offsets.ProbeOffsets`); it sets the sink balances' offset priors and
         the cabinet's lead offset. None: every difference of two probes ± ``probe_offset_k``
         [K²].
+    means : The readings' interval summaries, where they carry them: each pair whose later
+        reading's means cover it (:func:`.intervals.closing_pairs`) is integrated as those
+        means times its interval, with the temperatures, the current and the heat flows
+        from them (Pc = S·Ī·T̄c - ½·R·mean(I²), Ph = Pc + mean(P): the product of two means
+        leaves out their covariance within the interval, S times a few kelvin-amperes, about
+        a per cent of the Peltier heat). None: instants throughout.
     options : The thermal fit's thresholds, priors and window shares (see
         :class:`.DiagnosticsOptions`: shared, sink and cabinet fields).
 
@@ -213,16 +220,32 @@ def fit_thermal(
         raise InsufficientDataError("fewer than two samples", "no readings in this window")
     # Slow reporting: the same balances over longer segments and blocks (.intervals).
     interval = usual_interval(t)
-    options = scaled_for_interval(options, interval)
+    summarised = means is not None and bool(closing_pairs(t, means).mean() >= 0.5)
+    options = scaled_for_interval(options, interval, summarised)
     pc = s * i * tc - 0.5 * i * i * r
     ph = s * i * th + 0.5 * i * i * r
+    closing, off_share = None, None
+    if means is not None:
+        closing = closing_pairs(t, means)
+        m = np.concatenate([[False], closing])
+        tcab, tc, th, ta, i = (
+            np.where(m, mean, inst)
+            for mean, inst in (
+                (means.t_cabinet, tcab), (means.t_cold, tc), (means.t_hot, th),
+                (means.t_ambient, ta), (means.current, i),
+            )
+        )  # fmt: skip
+        pc = np.where(m, s * i * tc - 0.5 * means.current_sq * r, pc)
+        ph = np.where(m, pc + means.power, ph)
+        # A module that rests within its intervals rests: its summaries say for how long.
+        off_share = np.where(m, 1.0 - means.on_share, (i <= options.on_current).astype(float))
     dtv = th - tc
-    grid = SampleGrid.of(t)
+    grid = SampleGrid.of(t, closing)
     on = i > options.on_current
     base, pair = _pairs(t, on, usable, options)
     sk = fit_sinks(
         grid, pair, (pc, ph, dtv), (tcab, tc, th, ta), i, s, r, usable, k_prior, k_prior_rel,
-        k_settled, sink_taus_settled, options, offset_cov,
+        k_settled, sink_taus_settled, options, offset_cov, off_share,
     )  # fmt: skip
     k = float(sk.params[0])
     k_sd, k_probe, k_from_data = sink_k_errors(

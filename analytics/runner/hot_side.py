@@ -4,11 +4,13 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from typing import Any
 
 import numpy as np
 
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics._validate import T_25C_K
+from tecfleet.analytics.errors import PhysicsError
 from tecfleet.analytics.runner.data import Readings, faces_basis, fill_cold_face, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
@@ -16,6 +18,8 @@ from tecfleet.analytics.runner.state import DeviceState
 from tecfleet.analytics.runner.tracks import track
 
 __all__ = ["hot_side", "hourly", "stretch_steps"]
+
+IntArray = np.ndarray[Any, np.dtype[np.int64]]
 
 
 def hot_side(
@@ -54,20 +58,25 @@ def hot_side(
     # Stretch j holds the samples of the ``span`` hours up to the j-th end.
     bounds = np.searchsorted(ts, [first - span * step + j * step for j in range(len(ends) + span)])
     counts = [int(bounds[j + span] - bounds[j]) for j in range(len(ends))]
-    args = (data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w], s, r)
     k = state.k_trend if state.k_trend is not None else params.k
-    kw = {"c_hot": params.c_hot, "faces_followed": _faces_followed(state), "options": opts}
+    c_hot, followed = params.c_hot, _faces_followed(state)
+    t, th, ta, tc, i = data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w]
+
+    def ratios(sl: slice, block: IntArray, n: int) -> list[dg.Estimate | PhysicsError]:
+        return list(
+            dg.hot_side_resistance_ratios(
+                t[sl], th[sl], ta[sl], tc[sl], i[sl], s[sl], r[sl], k, usable[sl], block, n,
+                c_hot=c_hot, faces_followed=followed, options=opts,
+            )
+        )  # fmt: skip
+
     if span == 1:
-        block = (ts - (first - step)) // step
-        ests = dg.hot_side_resistance_ratios(*args, k, usable, block, len(ends), **kw)
+        ests = ratios(slice(None), (ts - (first - step)) // step, len(ends))
     else:
         ests = []
         for j in range(len(ends)):
             sl = slice(int(bounds[j]), int(bounds[j + span]))
-            one = np.zeros(sl.stop - sl.start, dtype=np.int64)
-            ests += dg.hot_side_resistance_ratios(
-                *(x[sl] for x in args), k, usable[sl], one, 1, **kw
-            )
+            ests += ratios(sl, np.zeros(sl.stop - sl.start, dtype=np.int64), 1)
     every = dg.interval_basis(interval, data.summarised)
     basis = f"hot-sink heat balance: ambient probe, {faces_basis(data.probed)}, {every}"
     if span > 1:

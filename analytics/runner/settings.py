@@ -23,6 +23,11 @@ class AnalysisSettings:
     step_s: int = 3600
     #: Module and performance fits every 6 hours [s] (common practice, no source).
     window_s: int = 6 * 3600
+    #: ... reaching back at least this many of the unit's usual reporting intervals (up to
+    #: ``thermal_window_s``): at 15-minute reporting a thermostat's six hours hold about ten
+    #: samples with the module on, too few for the electrical fit's ``min_on`` (common
+    #: practice, no source) [-].
+    window_min_intervals: int = 72
     #: Readings behind the thermal fit (K, sinks, cabinet), ending with each window: a day
     #: averages over use and ambient cycles, which the cabinet balance needs [s].
     thermal_window_s: int = 24 * 3600

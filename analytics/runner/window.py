@@ -132,8 +132,11 @@ def fit_window(
 
 
 def _window(data: Readings, b: int, cfg: AnalysisSettings) -> _Window | None:
-    window = cfg.window_s * 1000
-    thermal_window = max(cfg.thermal_window_s * 1000, window)
+    thermal_window = max(cfg.thermal_window_s, cfg.window_s) * 1000
+    # At slow reporting the module's fit reaches back further, up to the thermal window.
+    interval = dg.usual_interval(data.t[data.slice(b - thermal_window, b)])
+    window = round(1000 * max(cfg.window_s, min(cfg.window_min_intervals * interval,
+                                                  thermal_window / 1000)))  # fmt: skip
     w = data.slice(b - window, b)
     wt = data.slice(b - thermal_window, b)
     fl = flags_of(data, w)
@@ -367,7 +370,9 @@ def _thermal(
             s_t, r_t, usable_th, k0, k_rel, k_settled=k_settled,
             q_settled=settled.q_settled(state, cfg), sr_rel_cov=sr_rel_cov,
             sink_taus_settled=settled.taus_settled(state, cfg),
-            offset_cov=offsets.offset_cov(state), options=diagnostics_options(cfg),
+            offset_cov=offsets.offset_cov(state),
+            means=None if data.means is None else data.means.part(wt),
+            options=diagnostics_options(cfg),
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))

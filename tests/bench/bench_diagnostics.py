@@ -107,10 +107,11 @@ def append_steps(path: Path, spec: sim.FleetSpec, simulator: sim.Simulator, step
         cols = _chunk_columns(spec, c)
         dev, ts = cols[0], cols[1]
         rows = zip(*cols, [now] * len(ts), strict=True)
+        names = ("device_id", "ts_ms", "t_cabinet", "t_cold", "t_hot", "t_ambient", "current",
+                 "voltage", "rh", "door_open", *c.summaries, "received_ms")  # fmt: skip
         raw.executemany(
-            "INSERT OR IGNORE INTO readings (device_id, ts_ms, t_cabinet, t_cold, t_hot, "
-            "t_ambient, current, voltage, rh, door_open, received_ms) "
-            "VALUES (?,?,?,?,?,?,?,?,?,?,?)",
+            f"INSERT OR IGNORE INTO readings ({', '.join(names)}) "
+            f"VALUES ({', '.join('?' * len(names))})",
             rows,
         )
         stored += len(ts)
@@ -265,8 +266,8 @@ def part_accuracy(
     sensors: str = "full",
 ) -> None:
     print(f"\n== Accuracy ({sensors} sensor set): healthy units, {days:g} days of "
-          f"{REPORTING.label()}, seeds {seeds}, {n_dev} devices each (noise, bias, quantisation, doors, loads "
-          f"on), sinks of {sinks[0]:g}/{sinks[1]:g} J/K (cold/hot) ==")  # fmt: skip
+          f"{REPORTING.label()}, seeds {seeds}, {n_dev} devices each (noise, bias, "
+          f"quantisation, doors, loads on), sinks of {sinks[0]:g}/{sinks[1]:g} J/K (cold/hot) ==")  # fmt: skip
     scores = accuracy_scores(seeds, n_dev, days, sinks, sensors)
     print(f"{'quantity':18} {'group':26} {'n':>3} {'median|err|':>11} {'p90|err|':>9} "
           f"{'within':>7} {'target':>7} {'reliable':>8} {'within|rel':>10} "
@@ -534,7 +535,8 @@ def part_speed(n_dev: int, days: float) -> None:
 
 def _chunk_columns(spec: sim.FleetSpec, c: Any) -> list[list[Any]]:
     """What one simulator chunk reports, as columns in the readings table's order: device_id,
-    ts_ms, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, rh, door_open."""
+    ts_ms, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, rh, door_open, then the
+    interval summaries where the fleet reports them."""
     m = c.measured
     j, i = np.nonzero(c.present)
     names = ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh")
@@ -543,6 +545,7 @@ def _chunk_columns(spec: sim.FleetSpec, c: Any) -> list[list[Any]]:
         np.round(c.ts[j, i] * 1000.0).astype(np.int64).tolist(),
         *(_nullable(m[n][j, i]) for n in names),
         (c.truth["door_s"] > 0)[j, i].tolist(),
+        *(_nullable(col[j, i]) for col in c.summaries.values()),
     ]
 
 
@@ -556,9 +559,18 @@ def _nullable(col: Any) -> list[Any]:
 
 def _chunk_readings(spec: sim.FleetSpec, c: Any) -> list[db.Reading]:
     """What one simulator chunk reports, as the ingester's readings."""
+    cols = _chunk_columns(spec, c)
+    names = list(c.summaries)
     return [
-        db.Reading(d, t, *vals, rh=rh, door_open=dr)
-        for d, t, *vals, rh, dr in zip(*_chunk_columns(spec, c), strict=True)
+        db.Reading(
+            d,
+            t,
+            *vals[:6],
+            rh=vals[6],
+            door_open=vals[7],
+            **dict(zip(names, vals[8:], strict=True)),
+        )
+        for d, t, *vals in zip(*cols, strict=True)
     ]
 
 

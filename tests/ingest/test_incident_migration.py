@@ -61,5 +61,5 @@ def test_incident_column_up_down_and_up_again(db_url: str) -> None:
     with engine.connect() as conn:
         assert conn.execute(sa.select(db.alerts.c.incident_id)).scalar_one() is None
         head = conn.execute(sa.text("SELECT version_num FROM alembic_version")).scalar_one()
-    assert head == "0005"  # the newest revision: 0004 is below it
+    assert head == "0006"  # the newest revision: 0004 is below it
     engine.dispose()

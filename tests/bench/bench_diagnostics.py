@@ -267,7 +267,8 @@ def part_accuracy(
 ) -> None:
     print(f"\n== Accuracy ({sensors} sensor set): healthy units, {days:g} days of "
           f"{REPORTING.label()}, seeds {seeds}, {n_dev} devices each (noise, bias, "
-          f"quantisation, doors, loads on), sinks of {sinks[0]:g}/{sinks[1]:g} J/K (cold/hot) ==")  # fmt: skip
+          f"quantisation, doors, loads on), sinks of {sinks[0]:g}/{sinks[1]:g} J/K "
+          "(cold/hot) ==")  # fmt: skip
     scores = accuracy_scores(seeds, n_dev, days, sinks, sensors)
     print(f"{'quantity':18} {'group':26} {'n':>3} {'median|err|':>11} {'p90|err|':>9} "
           f"{'within':>7} {'target':>7} {'reliable':>8} {'within|rel':>10} "

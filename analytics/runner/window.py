@@ -21,7 +21,11 @@ from tecfleet.analytics.errors import InsufficientDataError, PhysicsError
 from tecfleet.analytics.runner import offsets, settled
 from tecfleet.analytics.runner.data import Readings, complete_faces, faces_basis, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
-from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
+from tecfleet.analytics.runner.settings import (
+    AnalysisSettings,
+    diagnostics_options,
+    for_reporting,
+)
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
 from tecfleet.analytics.runner.tracks import ambient_lead_usual, rebase_ua, track_r25, track_ua
 
@@ -89,6 +93,8 @@ def fit_window(
 ) -> None:
     """All estimates of the window ending at ``b`` (epoch ms UTC), and what the state keeps."""
     data.faces, data.faces_missing = None, None
+    day = data.t[data.slice(b - cfg.thermal_window_s * 1000, b)]
+    cfg = for_reporting(cfg, dg.usual_interval(day), data.summarised)
     raw = _window(data, b, cfg)
     if raw is None:
         return

@@ -131,7 +131,9 @@ class SensorModel:
         for name, absent in self.no_probe.items():
             if absent.any():
                 out[f"{name}_mean"][:, absent] = np.nan
-        return out
+        # Reported to a tenth of a millikelvin, milliampere or milliwatt: far below the probes'
+        # own error, and short to send.
+        return {k: np.round(v, 4) for k, v in out.items()}
 
     def _noisy(self, tr: dict[str, FloatArray], noise: FloatArray) -> dict[str, FloatArray]:
         """True values plus bias and noise, within what each channel can read."""

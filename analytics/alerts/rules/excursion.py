@@ -65,8 +65,8 @@ def slow_reporting_wait(
     The lifecycle opens an alert ``delay_s`` [s] after a spell's first reading counts; where
     ``n`` usual intervals (``interval_ms`` per reading [ms]) are longer than that, a spell's
     readings count only from ``n`` intervals less ``delay_s`` after its first, so that the
-    alert waits ``n`` intervals in all. Times ``t_ms`` [ms]; at one-minute reporting nothing
-    waits.
+    alert waits at least ``n`` intervals. Times ``t_ms`` [ms]; at one- to fifteen-minute
+    reporting (with the default 30 minutes and two intervals) nothing waits.
     """
     wait = np.zeros(len(t_ms), dtype=bool)
     extra = np.nan_to_num(n * interval_ms - delay_s * 1000.0, nan=0.0)

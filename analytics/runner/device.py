@@ -58,7 +58,7 @@ def analyze_device(
     # At slow reporting an hour's hot-side stretch reaches back several hours, and the
     # thermal window of instants several days.
     interval = dg.usual_interval(data.t)
-    span = stretch_steps(interval, cfg) * step
+    span = stretch_steps(interval, cfg, data.summarised) * step
     thermal = for_reporting(cfg, interval, data.summarised).thermal_window_s * 1000
     need = max(thermal, window) if fit_due else span
     if need + cfg.margin_s * 1000 > lookback:

@@ -35,7 +35,7 @@ def hot_side(
     if params is None or params.c_hot is None:
         return dict.fromkeys(ends)
     interval = dg.usual_interval(data.t[data.slice(first - 2 * step, last)])
-    span = stretch_steps(interval, cfg)
+    span = stretch_steps(interval, cfg, data.summarised)
     w = data.slice(first - span * step, last)
     fill_cold_face(data, w, params.r25, params.s25, cfg)
     ts = data.ts[w]
@@ -61,12 +61,14 @@ def hot_side(
     k = state.k_trend if state.k_trend is not None else params.k
     c_hot, followed = params.c_hot, _faces_followed(state)
     t, th, ta, tc, i = data.t[w], data.th[w], data.ta[w], data.tc[w], data.i[w]
+    means = None if data.means is None else data.means.part(w)
 
     def ratios(sl: slice, block: IntArray, n: int) -> list[dg.Estimate | PhysicsError]:
         return list(
             dg.hot_side_resistance_ratios(
                 t[sl], th[sl], ta[sl], tc[sl], i[sl], s[sl], r[sl], k, usable[sl], block, n,
                 c_hot=c_hot, faces_followed=followed, options=opts,
+                means=None if means is None else means.part(sl),
             )
         )  # fmt: skip
 
@@ -89,9 +91,12 @@ def hot_side(
     }
 
 
-def stretch_steps(interval_s: float, cfg: AnalysisSettings) -> int:
+def stretch_steps(interval_s: float, cfg: AnalysisSettings, summarised: bool = False) -> int:
     """Hourly steps in a stretch of the hot side's resistance at a usual reporting interval
-    of ``interval_s`` [s]: one up to ``hot_side_intervals`` intervals an hour."""
+    of ``interval_s`` [s]: one up to ``hot_side_intervals`` intervals an hour, and one where
+    the readings carry interval summaries (whose integrals are exact at any interval)."""
+    if summarised:
+        return 1
     return max(1, math.ceil(cfg.hot_side_intervals * interval_s / cfg.step_s - 1e-9))
 
 

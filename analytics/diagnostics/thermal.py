@@ -127,6 +127,48 @@ def _pairs(
     return base, base & settled
 
 
+Flows = tuple[
+    tuple[FloatArray, FloatArray, FloatArray, FloatArray],
+    FloatArray,
+    FloatArray,
+    FloatArray,
+    FloatArray | None,
+    BoolArray | None,
+]
+
+
+def _flows(
+    t: FloatArray,
+    temps: tuple[FloatArray, FloatArray, FloatArray, FloatArray],
+    i: FloatArray,
+    s: FloatArray,
+    r: FloatArray,
+    means: IntervalMeans | None,
+    options: DiagnosticsOptions,
+) -> Flows:
+    # ((Tcab, Tc, Th, Ta), I, Pc, Ph, off share, closing pairs) per sample: the instants, or
+    # where a summary closes the pair before a sample, its interval means (see fit_thermal).
+    tcab, tc, th, ta = temps
+    pc = s * i * tc - 0.5 * i * i * r
+    ph = s * i * th + 0.5 * i * i * r
+    if means is None:
+        return temps, i, pc, ph, None, None
+    closing = closing_pairs(t, means)
+    m = np.concatenate([[False], closing])
+    tcab, tc, th, ta, i = (
+        np.where(m, mean, inst)
+        for mean, inst in (
+            (means.t_cabinet, tcab), (means.t_cold, tc), (means.t_hot, th),
+            (means.t_ambient, ta), (means.current, i),
+        )
+    )  # fmt: skip
+    pc = np.where(m, s * i * tc - 0.5 * means.current_sq * r, pc)
+    ph = np.where(m, pc + means.power, ph)
+    # A module that rests within its intervals rests: its summaries say for how long.
+    off_share = np.where(m, 1.0 - means.on_share, (i <= options.on_current).astype(float))
+    return (tcab, tc, th, ta), i, pc, ph, off_share, closing
+
+
 def fit_thermal(
     time_s: FloatArray,
     t_cabinet: FloatArray,
@@ -191,12 +233,8 @@ def fit_thermal(
         :class:`.probe_offsets.ProbeOffsets`); it sets the sink balances' offset priors and
         the cabinet's lead offset. None: every difference of two probes ± ``probe_offset_k``
         [K²].
-    means : The readings' interval summaries, where they carry them: each pair whose later
-        reading's means cover it (:func:`.intervals.closing_pairs`) is integrated as those
-        means times its interval, with the temperatures, the current and the heat flows
-        from them (Pc = S·Ī·T̄c - ½·R·mean(I²), Ph = Pc + mean(P): the product of two means
-        leaves out their covariance within the interval, S times a few kelvin-amperes, about
-        a per cent of the Peltier heat). None: instants throughout.
+    means : The readings' interval summaries: a pair a summary closes is integrated from its
+        means (Pc = S·Ī·T̄c - ½·R·mean(I²), Ph = Pc + mean(P); diagnostics README, 6b).
     options : The thermal fit's thresholds, priors and window shares (see
         :class:`.DiagnosticsOptions`: shared, sink and cabinet fields).
 
@@ -218,27 +256,11 @@ def fit_thermal(
     r = np.asarray(resistance, dtype=np.float64)
     if t.size < 2:
         raise InsufficientDataError("fewer than two samples", "no readings in this window")
-    # Slow reporting: the same balances over longer segments and blocks (.intervals).
-    interval = usual_interval(t)
+    interval = usual_interval(t)  # slow reporting: longer segments and blocks (.intervals)
     summarised = means is not None and bool(closing_pairs(t, means).mean() >= 0.5)
     options = scaled_for_interval(options, interval, summarised)
-    pc = s * i * tc - 0.5 * i * i * r
-    ph = s * i * th + 0.5 * i * i * r
-    closing, off_share = None, None
-    if means is not None:
-        closing = closing_pairs(t, means)
-        m = np.concatenate([[False], closing])
-        tcab, tc, th, ta, i = (
-            np.where(m, mean, inst)
-            for mean, inst in (
-                (means.t_cabinet, tcab), (means.t_cold, tc), (means.t_hot, th),
-                (means.t_ambient, ta), (means.current, i),
-            )
-        )  # fmt: skip
-        pc = np.where(m, s * i * tc - 0.5 * means.current_sq * r, pc)
-        ph = np.where(m, pc + means.power, ph)
-        # A module that rests within its intervals rests: its summaries say for how long.
-        off_share = np.where(m, 1.0 - means.on_share, (i <= options.on_current).astype(float))
+    temps = (tcab, tc, th, ta)
+    (tcab, tc, th, ta), i, pc, ph, off_share, closing = _flows(t, temps, i, s, r, means, options)
     dtv = th - tc
     grid = SampleGrid.of(t, closing)
     on = i > options.on_current

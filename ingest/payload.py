@@ -21,7 +21,7 @@ from pydantic import ValidationError
 
 from tecfleet.ingest.db import Reading, Reject, StatusUpdate
 from tecfleet.ingest.senml import is_senml, senml_items
-from tecfleet.ingest.telemetry_item import TelemetryItem, describe_errors
+from tecfleet.ingest.telemetry_item import SUMMARY_TYPES, TelemetryItem, describe_errors
 
 DEVICE_ID_RE = re.compile(r"^[A-Za-z0-9_.\-]{1,64}$")
 
@@ -219,4 +219,5 @@ def _check_item(
         seq=valid.seq,
         rh=valid.rh,
         door_open=valid.door_open,
+        **{name: getattr(valid, name) for name in SUMMARY_TYPES},
     )

@@ -16,7 +16,7 @@ from tecfleet.ingest.errors import PayloadError
 
 SENML_RELATIVE_LIMIT_S = 2**28
 
-SENML_UNITS = {
+SENML_UNITS: dict[str, str | None] = {
     "t_cabinet": "Cel",
     "t_cold": "Cel",
     "t_hot": "Cel",
@@ -24,6 +24,19 @@ SENML_UNITS = {
     "current": "A",
     "voltage": "V",
     "rh": "%RH",
+    # The interval summaries (ingest/PAYLOAD.md). A² has no SenML unit: that record goes
+    # without one.
+    "interval_s": "s",
+    "t_cabinet_mean": "Cel",
+    "t_cold_mean": "Cel",
+    "t_hot_mean": "Cel",
+    "t_ambient_mean": "Cel",
+    "current_mean": "A",
+    "current_sq_mean": None,
+    "power_mean": "W",
+    "on_share": "/",
+    "t_cabinet_min": "Cel",
+    "t_cabinet_max": "Cel",
 }
 SENML_BOOLEANS = {"door_open"}
 SENML_KEYS = {"bn", "bt", "bu", "bv", "bs", "bver", "n", "u", "v", "vs", "vb", "vd", "s", "t", "ut"}
@@ -119,10 +132,11 @@ def _record_value(index: int, rec: dict[str, Any], channel: str, base: _Base) ->
                 "senml_error", f"record {index}: {channel} needs a boolean value (vb)"
             )
         return rec["vb"]
-    if unit is not None and unit != SENML_UNITS[channel]:
+    expected = SENML_UNITS[channel]
+    if unit is not None and unit != expected:
+        wanted = "none (SenML has no unit for it)" if expected is None else repr(expected)
         raise PayloadError(
-            "bad_unit",
-            f"record {index}: {channel} unit {unit!r}, expected {SENML_UNITS[channel]!r}",
+            "bad_unit", f"record {index}: {channel} unit {unit!r}, expected {wanted}"
         )
     if "v" not in rec:
         raise PayloadError("senml_error", f"record {index}: {channel} needs a numeric value (v)")

@@ -6,6 +6,10 @@ single-stage modules are rated near 30 A), voltage -60..60 V (a 48 V supply with
 negative while the module is off and its Seebeck voltage floats), relative humidity 0..100 %.
 Timestamps must not be before 2000-01-01.
 
+The interval summaries (``SUMMARY_TYPES``; ingest/PAYLOAD.md) are optional, each checked
+against its own limits when sent: a unit that samples fast but reports slowly sends the means
+over the interval its reading closes.
+
 The face probes (``t_cold``, ``t_hot``) are optional: a unit without such a probe leaves the
 field out. A face temperature that is sent is checked like every other temperature, and an
 explicit ``null`` is refused as before (a unit either has the probe or omits the field).
@@ -26,6 +30,32 @@ I_MIN_A, I_MAX_A = 0.0, 50.0
 V_MIN_V, V_MAX_V = -60.0, 60.0
 
 StrictFloat = Annotated[float, Strict(), Field(allow_inf_nan=False)]
+#: Longest interval a summary may cover: a day [s].
+INTERVAL_MAX_S = 86_400.0
+Temperature = Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
+Current = Annotated[StrictFloat, Field(ge=I_MIN_A, le=I_MAX_A)]
+
+Interval = Annotated[StrictFloat, Field(gt=0.0, le=INTERVAL_MAX_S)]
+CurrentSquared = Annotated[StrictFloat, Field(ge=0.0, le=I_MAX_A**2)]
+Power = Annotated[StrictFloat, Field(ge=0.0, le=V_MAX_V * I_MAX_A)]
+Share = Annotated[StrictFloat, Field(ge=0.0, le=1.0)]
+
+#: The optional interval summaries, each with the limits it is checked against: an interval of
+#: up to a day [s], the temperatures' limits [°C], the current's [A] and its square's [A²],
+#: power up to the largest voltage times the largest current [W], a share [-].
+SUMMARY_TYPES: dict[str, Any] = {
+    "interval_s": Interval,
+    "t_cabinet_mean": Temperature,
+    "t_cold_mean": Temperature,
+    "t_hot_mean": Temperature,
+    "t_ambient_mean": Temperature,
+    "current_mean": Current,
+    "current_sq_mean": CurrentSquared,
+    "power_mean": Power,
+    "on_share": Share,
+    "t_cabinet_min": Temperature,
+    "t_cabinet_max": Temperature,
+}
 
 
 class TelemetryItem(BaseModel):
@@ -35,14 +65,26 @@ class TelemetryItem(BaseModel):
 
     ts: Any
     seq: Annotated[int, Strict(), Field(ge=0)] | None = None
-    t_cabinet: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    t_cold: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)] | None = None
-    t_hot: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)] | None = None
-    t_ambient: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    current: Annotated[StrictFloat, Field(ge=I_MIN_A, le=I_MAX_A)]
+    t_cabinet: Temperature
+    t_cold: Temperature | None = None
+    t_hot: Temperature | None = None
+    t_ambient: Temperature
+    current: Current
     voltage: Annotated[StrictFloat, Field(ge=V_MIN_V, le=V_MAX_V)]
     rh: Annotated[StrictFloat, Field(ge=0.0, le=100.0)] | None = None
     door_open: Annotated[bool, Strict()] | None = None
+    # Interval summaries (None: not sent), as listed in ``SUMMARY_TYPES``.
+    interval_s: Interval | None = None
+    t_cabinet_mean: Temperature | None = None
+    t_cold_mean: Temperature | None = None
+    t_hot_mean: Temperature | None = None
+    t_ambient_mean: Temperature | None = None
+    current_mean: Current | None = None
+    current_sq_mean: CurrentSquared | None = None
+    power_mean: Power | None = None
+    on_share: Share | None = None
+    t_cabinet_min: Temperature | None = None
+    t_cabinet_max: Temperature | None = None
 
     @field_validator("t_cold", "t_hot", mode="before")
     @classmethod
@@ -50,6 +92,14 @@ class TelemetryItem(BaseModel):
         # Only a value that was sent reaches this: an absent probe keeps its default.
         if value is None:
             raise ValueError("Input should be a valid number; leave the field out without a probe")
+        return value
+
+    @field_validator(*SUMMARY_TYPES, mode="before")
+    @classmethod
+    def _summary_sent_as_number(cls, value: Any) -> Any:
+        # As for the probes: a summary is either sent as a number or left out.
+        if value is None:
+            raise ValueError("Input should be a valid number; leave the summary out if not kept")
         return value
 
     @field_validator("ts")

@@ -63,6 +63,11 @@ class _Thresholds:
     #: Out of band this long before an alert [s] (door openings recover sooner; common
     #: practice, no source).
     excursion_delay_s: float = 1800.0
+    #: ... and at least this many of the unit's usual reporting intervals [-]: a unit that
+    #: reports every 30 minutes or more has then shown the cabinet out of band in three
+    #: readings running, not one door opening caught by chance (common practice, no source).
+    #: At one to fifteen minutes the 30 minutes are the longer.
+    excursion_delay_intervals: float = 2.0
     #: Cumulative time out of band in one spell that makes it critical: 10 h, the WHO PQS
     #: 30-day recorder heat alarm (+8 °C for 10 h; from memory) [s].
     excursion_critical_s: float = 36_000.0
@@ -82,6 +87,10 @@ class _Thresholds:
     offline_factor: float = 5.0
     offline_min_s: float = 600.0
     offline_critical_s: float = 4 * 3600.0
+    #: ... and at least this many times the offline threshold: a unit reporting hourly or
+    #: slower is offline after five hours and critical no sooner than twice that (common
+    #: practice, no source) [-].
+    offline_critical_factor: float = 2.0
     #: Hot side limits: most Bi2Te3 modules are soldered for 80 °C continuous hot side
     #: (datasheet-typical; common practice, no source); 70 °C warns early [°C]. An open alert
     #: holds until 3 K [K] below the warning; 5 min [s] above it before an alert (common

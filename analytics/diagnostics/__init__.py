@@ -15,6 +15,7 @@ Modules, in the order the diagnosis runs:
 - :mod:`.probe_offsets` - the probes' offsets from rests and the open-circuit voltage
   (:func:`.probe_offsets.probe_offsets`);
 - :mod:`.hot_side` - the hot side's resistance hour by hour;
+- :mod:`.intervals` - the readings' usual interval and the time scales it sets;
 - :mod:`.performance` - cooling, COP and capacity at the setpoint;
 - :mod:`.options` - every threshold, prior and window share (:class:`DiagnosticsOptions`);
 - :mod:`.estimates`, :mod:`.least_squares` - the estimate type, error propagation, fitting.
@@ -30,6 +31,13 @@ from .electrical import (
 )
 from .estimates import Estimate, propagate
 from .hot_side import hot_side_resistance_ratio, hot_side_resistance_ratios
+from .intervals import (
+    IntervalMeans,
+    closing_pairs,
+    interval_basis,
+    scaled_for_interval,
+    usual_interval,
+)
 from .module_thermometer import (
     FaceReconstruction,
     NotSeparableError,
@@ -51,10 +59,12 @@ __all__ = [
     "ElectricalFit",
     "Estimate",
     "FaceReconstruction",
+    "IntervalMeans",
     "NotSeparableError",
     "Performance",
     "SampleFlags",
     "ThermalFit",
+    "closing_pairs",
     "delta_t_from_hot_face",
     "detect_floating_driver",
     "fit_electrical",
@@ -66,9 +76,12 @@ __all__ = [
     "harman_steps",
     "hot_side_resistance_ratio",
     "hot_side_resistance_ratios",
+    "interval_basis",
     "performance_now",
     "propagate",
     "reconstruct_delta_t",
     "reconstruct_faces",
+    "scaled_for_interval",
     "setpoint_capacity",
+    "usual_interval",
 ]

@@ -18,13 +18,11 @@ from .._validate import FloatArray
 from ..errors import InsufficientDataError
 from .cabinet import strobed_blocks
 from .estimates import BoolArray, Estimate
+from .intervals import IntervalMeans, closing_pairs, scaled_for_interval, usual_interval
 from .least_squares import segment_sums
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 
 __all__ = ["hot_side_resistance_ratio", "hot_side_resistance_ratios"]
-
-#: Fewest sample pairs in a stretch for its ratio [-] (common practice, no source).
-MIN_PAIRS = 10
 
 
 @dataclass(frozen=True)
@@ -52,14 +50,27 @@ def _ratios(
     n_blocks: int,
     c_hot: float,
     options: DiagnosticsOptions,
+    means: IntervalMeans | None = None,
 ) -> _Ratios:
     qh = seebeck * i * th + 0.5 * i * i * resistance - conductance * (th - tc)
     rise = th - ta
     h = np.diff(t)
     pair = usable[:-1] & usable[1:] & (h <= options.max_gap_s) & (h > 0) & (blk[:-1] == blk[1:])
     seg = blk[:-1][pair]
-    q_int = (0.5 * (qh[:-1] + qh[1:]) * h)[pair]
-    r_int = (0.5 * (rise[:-1] + rise[1:]) * h)[pair]
+    q_all = 0.5 * (qh[:-1] + qh[1:]) * h
+    r_all = 0.5 * (rise[:-1] + rise[1:]) * h
+    if means is not None:
+        # Pairs a summary closes: its means times the interval (Qh from the means as in
+        # .thermal.fit_thermal; the sink's storage term keeps the instants).
+        closing = closing_pairs(t, means)
+        qh_m = (
+            seebeck * means.current * means.t_hot
+            + 0.5 * means.current_sq * resistance
+            - conductance * (means.t_hot - means.t_cold)
+        )
+        q_all = np.where(closing, qh_m[1:] * h, q_all)
+        r_all = np.where(closing, (means.t_hot - means.t_ambient)[1:] * h, r_all)
+    q_int, r_int = q_all[pair], r_all[pair]
 
     def sums(f: FloatArray) -> FloatArray:
         return segment_sums(seg, n_blocks, f)
@@ -67,7 +78,7 @@ def _ratios(
     q_sum, r_sum, h_sum = sums(q_int), sums(r_int), sums(h[pair])
     heat = q_sum - c_hot * sums(np.diff(th)[pair])
     n = np.bincount(seg, minlength=n_blocks)
-    ok = (n >= MIN_PAIRS) & (heat >= options.hot_side_min_heat_j)
+    ok = (n >= options.hot_side_min_pairs) & (heat >= options.hot_side_min_heat_j)
     value = np.where(ok, r_sum / np.where(ok, heat, 1.0), np.nan)
     # Spread of the pair-level mismatch against the fitted ratio, summed as independent errors.
     mismatch = r_int - value[seg] * q_int
@@ -94,6 +105,7 @@ def hot_side_resistance_ratios(
     *,
     c_hot: float = 0.0,
     faces_followed: bool = True,
+    means: IntervalMeans | None = None,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> list[Estimate | InsufficientDataError]:
     """Hot-side resistance r_hot = ∫(Th - Ta) dt / (∫Qh dt - Ch·δTh) over many stretches.
@@ -123,7 +135,10 @@ def hot_side_resistance_ratios(
         its changes), and a stretch whose on/off cycle is locked to the sampling (the samples
         see the same few phases of every cycle; such hours read up to twice the true value)
         gives none [-].
-    options : ``max_gap_s`` [s], ``hot_side_min_heat_j`` [J], ``probe_offset_k`` [K],
+    means : The readings' interval summaries, where they carry them: a pair a summary closes
+        is integrated from its means (:func:`.intervals.closing_pairs`); None: instants.
+    options : ``max_gap_s`` [s], ``hot_side_min_heat_j`` [J], ``hot_side_min_pairs`` [-],
+        ``probe_offset_k`` [K],
         ``hot_side_max_rel_stderr`` [-], ``on_current`` [A], ``locked_match`` [-].
 
     Returns
@@ -134,12 +149,13 @@ def hot_side_resistance_ratios(
     th = np.asarray(t_hot, dtype=np.float64)
     i = np.asarray(current, dtype=np.float64)
     blk = np.asarray(block, dtype=np.int64)
+    options = scaled_for_interval(options, usual_interval(t), means is not None)
     q = _ratios(
         t, th, t_ambient, t_cold, i, seebeck, resistance, conductance, usable, blk, n_blocks,
-        c_hot, options,
+        c_hot, options, means,
     )  # fmt: skip
     locked = np.zeros(n_blocks, dtype=bool)
-    if not faces_followed and blk.size > 1:
+    if not faces_followed and blk.size > 1 and means is None:
         # Partly locked hours bias it too: a lower share of matching pairs than the
         # cabinet balance's 0.95 (one simulated hour at 0.9 read +51 %).
         found = strobed_blocks(i > options.on_current, blk[:-1], min_match=options.locked_match)

@@ -2,7 +2,9 @@
 
 Integrating a balance over a segment removes the need for noisy derivatives:
 ∫C·dT/dt dt = C·(T_end - T_start). Each pair of consecutive samples contributes its
-trapezoid 0.5·(f_k + f_k+1)·h_k to the segment its first sample falls in.
+trapezoid 0.5·(f_k + f_k+1)·h_k to the segment its first sample falls in; where the later
+sample carries the mean of f over the interval it closes (an interval summary), the pair
+contributes that mean times h_k instead, which is the integral itself.
 """
 
 from __future__ import annotations
@@ -60,19 +62,26 @@ class SampleGrid:
     ----------
     t : Sample times [s].
     h : Intervals, ``t[k+1] - t[k]`` [s].
+    closing : Pairs whose later sample holds the mean over the interval it closes, or None
+        (instants throughout) [-].
     """
 
     t: FloatArray
     h: FloatArray
+    closing: BoolArray | None = None
 
     @classmethod
-    def of(cls, t: FloatArray) -> SampleGrid:
-        """The grid of sample times ``t`` [s]."""
-        return cls(t, np.diff(t))
+    def of(cls, t: FloatArray, closing: BoolArray | None = None) -> SampleGrid:
+        """The grid of sample times ``t`` [s]; ``closing`` as the attribute."""
+        return cls(t, np.diff(t), closing)
 
     def trap(self, f: FloatArray) -> FloatArray:
-        """Trapezoid of ``f`` over each interval [units of f·s]."""
-        return np.asarray(0.5 * (f[:-1] + f[1:]) * self.h, dtype=np.float64)
+        """Integral of ``f`` over each interval: its trapezoid, or where the pair is
+        ``closing``, the later sample's interval mean times the interval [units of f·s]."""
+        out = 0.5 * (f[:-1] + f[1:]) * self.h
+        if self.closing is not None:
+            out = np.where(self.closing, f[1:] * self.h, out)
+        return np.asarray(out, dtype=np.float64)
 
     def segments(self, length: float, use: BoolArray) -> Segments:
         """Pairs ``use`` grouped into segments of ``length`` [s] from the first sample."""

@@ -33,6 +33,10 @@ class DiagnosticsOptions:
     #: Largest gap between two samples integrated across, or forming a switch-off step [s]:
     #: three one-minute samples (common practice, no source).
     max_gap_s: float = 180.0
+    #: ... or this many of the series' usual intervals, where that is longer [-]: the same
+    #: three samples at any reporting interval (common practice, no source). See
+    #: :func:`.intervals.scaled_for_interval`.
+    max_gap_intervals: float = 3.0
     #: Standard uncertainty of a constant offset between two uncalibrated probes, carried
     #: into R, S, K, UA and the hot side's resistance [K]: about 0.2-0.5 K (common practice,
     #: no source).
@@ -106,6 +110,9 @@ class DiagnosticsOptions:
     # --- sink balances (sinks.py) -------------------------------------------------------
     #: Segment length of the sink balances [s] (common practice, no source).
     segment_s: float = 900.0
+    #: ... or this many usual intervals, where that is longer [-]: a segment keeps several
+    #: sample pairs at slow reporting (common practice, no source).
+    segment_intervals: float = 6.0
     #: Fewest complete sink segments accepted [-] (common practice, no source).
     min_segments: int = 8
     #: Sample pairs closer than this after a switch are left out of the sink balances [s]; 0
@@ -142,6 +149,9 @@ class DiagnosticsOptions:
     #: Block length of the cabinet balance [s]: an hour averages over the thermostat cycles
     #: (common practice, no source).
     cabinet_block_s: float = 3600.0
+    #: ... or this many usual intervals, where that is longer [-]: an hour's twelve samples at
+    #: 5-minute reporting, three hours at 15-minute (common practice, no source).
+    block_intervals: float = 12.0
     #: Prior (mean [W], standard deviation [W]) of the heat released inside the cabinet by
     #: its inner fan and electronics: about 1 W ± 1 W for small thermoelectric cabinets
     #: (common practice, no source). Without it UA and a constant internal load cannot be
@@ -175,6 +185,8 @@ class DiagnosticsOptions:
     #: Least heat rejected over a stretch for a usable ratio [J]: 10 W over an hour (common
     #: practice, no source).
     hot_side_min_heat_j: float = 3.6e4
+    #: Fewest sample pairs in a stretch for its ratio [-] (common practice, no source).
+    hot_side_min_pairs: int = 10
     #: Largest relative standard error of a stretch's resistance called reliable [-] (common
     #: practice, no source).
     hot_side_max_rel_stderr: float = 0.2

@@ -96,7 +96,7 @@ def _one_operating_point(
     grid: SampleGrid,
     segs: Segments,
     i: FloatArray,
-    on: BoolArray,
+    off_share: FloatArray,
     usable: BoolArray,
     options: DiagnosticsOptions,
 ) -> tuple[bool, bool]:
@@ -104,7 +104,7 @@ def _one_operating_point(
     # A module that never rests and whose current hardly moves offers none: what the fit
     # would find then is the probes' resolution and offsets, so K is held at its prior.
     seg_i = segs.sums(grid.trap(i)) / np.maximum(segs.sums(grid.h), 1e-9)
-    rests = float(np.mean(~on[usable])) >= options.min_rest_share if usable.any() else True
+    rests = float(np.mean(off_share[usable])) >= options.min_rest_share if usable.any() else True
     i_mid = float(np.median(seg_i))
     one_point = not rests and float(np.ptp(seg_i)) < options.min_current_spread * max(i_mid, 1e-9)
     return rests, one_point
@@ -177,6 +177,7 @@ def fit_sinks(
     sink_taus_settled: tuple[float, float, float, float] | None,
     options: DiagnosticsOptions,
     offset_cov: FloatArray | None = None,
+    off_share: FloatArray | None = None,
 ) -> SinkFit:
     """Solve the cold and hot sink balances together for K and the sinks (module docstring).
 
@@ -197,6 +198,8 @@ def fit_sinks(
         by their estimate (cabinet, cold, hot, relative to the ambient probe), which sets the
         offset terms' priors (:func:`.probe_offsets.balance_offset_sds`); None: each path's
         difference ± ``probe_offset_k`` [K²].
+    off_share : Share of each sample's interval with the module off, where the readings say
+        (interval summaries); None: off where the current is at most ``on_current`` [-].
 
     Returns
     -------
@@ -219,7 +222,8 @@ def fit_sinks(
     blocks = _balances(grid, segs, heat, temps)
     z = np.zeros_like(blocks[0][1])
     on = i > options.on_current
-    rests, one_point = _one_operating_point(grid, segs, i, on, usable, options)
+    off = (~on).astype(np.float64) if off_share is None else off_share
+    rests, one_point = _one_operating_point(grid, segs, i, off, usable, options)
     k0 = k_settled if one_point and k_settled is not None else k_prior
     p1, cov1, forced, _ = robust_weighted(
         blocks, 0, k0, k_prior_rel * k_prior, _POSITIVE, hold=one_point

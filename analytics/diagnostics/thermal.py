@@ -19,6 +19,7 @@ stage 2, :mod:`.cabinet`; the stated errors, :mod:`.error_budget`.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 
@@ -30,6 +31,7 @@ from .cabinet import CabinetFit, fit_cabinet
 from .error_budget import cabinet_stderrs, sink_k_errors
 from .estimates import BoolArray
 from .integrals import SampleGrid
+from .intervals import IntervalMeans, closing_pairs, scaled_for_interval, usual_interval
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 from .sinks import SinkFit, fit_sinks
 
@@ -75,6 +77,8 @@ class ThermalFit:
     sink_taus : This window's own sink time constants (heat capacity over conductance) and
         their standard errors, (cold, its error, hot, its error); None where the module did
         not switch often (``min_switches_per_h``) [s].
+    interval_s : The readings' usual interval the balances rest on (segments, blocks and
+        the largest gap integrated across scale with it: :mod:`.intervals`) [s].
     """
 
     ua: float
@@ -98,6 +102,7 @@ class ThermalFit:
     ua_per_k: float = 0.0
     faces_followed: bool = True
     sink_taus: tuple[float, float, float, float] | None = None
+    interval_s: float = 60.0
 
     def stderr(self, name: str) -> float:
         """Standard error of one parameter (a name from ``THERMAL_PARAMS``)."""
@@ -122,6 +127,48 @@ def _pairs(
     return base, base & settled
 
 
+Flows = tuple[
+    tuple[FloatArray, FloatArray, FloatArray, FloatArray],
+    FloatArray,
+    FloatArray,
+    FloatArray,
+    FloatArray | None,
+    BoolArray | None,
+]
+
+
+def _flows(
+    t: FloatArray,
+    temps: tuple[FloatArray, FloatArray, FloatArray, FloatArray],
+    i: FloatArray,
+    s: FloatArray,
+    r: FloatArray,
+    means: IntervalMeans | None,
+    options: DiagnosticsOptions,
+) -> Flows:
+    # ((Tcab, Tc, Th, Ta), I, Pc, Ph, off share, closing pairs) per sample: the instants, or
+    # where a summary closes the pair before a sample, its interval means (see fit_thermal).
+    tcab, tc, th, ta = temps
+    pc = s * i * tc - 0.5 * i * i * r
+    ph = s * i * th + 0.5 * i * i * r
+    if means is None:
+        return temps, i, pc, ph, None, None
+    closing = closing_pairs(t, means)
+    m = np.concatenate([[False], closing])
+    tcab, tc, th, ta, i = (
+        np.where(m, mean, inst)
+        for mean, inst in (
+            (means.t_cabinet, tcab), (means.t_cold, tc), (means.t_hot, th),
+            (means.t_ambient, ta), (means.current, i),
+        )
+    )  # fmt: skip
+    pc = np.where(m, s * i * tc - 0.5 * means.current_sq * r, pc)
+    ph = np.where(m, pc + means.power, ph)
+    # A module that rests within its intervals rests: its summaries say for how long.
+    off_share = np.where(m, 1.0 - means.on_share, (i <= options.on_current).astype(float))
+    return (tcab, tc, th, ta), i, pc, ph, off_share, closing
+
+
 def fit_thermal(
     time_s: FloatArray,
     t_cabinet: FloatArray,
@@ -140,6 +187,7 @@ def fit_thermal(
     sr_rel_cov: FloatArray | None = None,
     sink_taus_settled: tuple[float, float, float, float] | None = None,
     offset_cov: FloatArray | None = None,
+    means: IntervalMeans | None = None,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> ThermalFit:
     """Fit K and the sinks, then UA, C and the internal load, to integral energy balances.
@@ -185,6 +233,8 @@ def fit_thermal(
         :class:`.probe_offsets.ProbeOffsets`); it sets the sink balances' offset priors and
         the cabinet's lead offset. None: every difference of two probes ± ``probe_offset_k``
         [K²].
+    means : The readings' interval summaries: a pair a summary closes is integrated from its
+        means (Pc = S·Ī·T̄c - ½·R·mean(I²), Ph = Pc + mean(P); diagnostics README, 6b).
     options : The thermal fit's thresholds, priors and window shares (see
         :class:`.DiagnosticsOptions`: shared, sink and cabinet fields).
 
@@ -206,15 +256,18 @@ def fit_thermal(
     r = np.asarray(resistance, dtype=np.float64)
     if t.size < 2:
         raise InsufficientDataError("fewer than two samples", "no readings in this window")
-    pc = s * i * tc - 0.5 * i * i * r
-    ph = s * i * th + 0.5 * i * i * r
+    interval = usual_interval(t)  # slow reporting: longer segments and blocks (.intervals)
+    summarised = means is not None and bool(closing_pairs(t, means).mean() >= 0.5)
+    options = scaled_for_interval(options, interval, summarised)
+    temps = (tcab, tc, th, ta)
+    (tcab, tc, th, ta), i, pc, ph, off_share, closing = _flows(t, temps, i, s, r, means, options)
     dtv = th - tc
-    grid = SampleGrid.of(t)
+    grid = SampleGrid.of(t, closing)
     on = i > options.on_current
     base, pair = _pairs(t, on, usable, options)
     sk = fit_sinks(
         grid, pair, (pc, ph, dtv), (tcab, tc, th, ta), i, s, r, usable, k_prior, k_prior_rel,
-        k_settled, sink_taus_settled, options, offset_cov,
+        k_settled, sink_taus_settled, options, offset_cov, off_share,
     )  # fmt: skip
     k = float(sk.params[0])
     k_sd, k_probe, k_from_data = sink_k_errors(
@@ -229,7 +282,9 @@ def fit_thermal(
         cab.held_cab, sr_rel_cov,
         options.probe_offset_k if offset_cov is None else math.sqrt(float(offset_cov[0, 0])),
     )  # fmt: skip
-    return _result(sk, cab, stderrs, pair, k_from_data, options)
+    return dataclasses.replace(
+        _result(sk, cab, stderrs, pair, k_from_data, options), interval_s=interval
+    )
 
 
 def _result(

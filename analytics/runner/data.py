@@ -17,6 +17,7 @@ from tecfleet.analytics._validate import FloatArray
 from tecfleet.analytics.errors import PhysicsError
 from tecfleet.analytics.runner.settings import T0, AnalysisSettings, diagnostics_options
 from tecfleet.ingest import db
+from tecfleet.ingest.db.readings import carries_summaries
 
 __all__ = [
     "COLUMNS",
@@ -57,6 +58,14 @@ class Readings:
     faces: dg.FaceReconstruction | None = None
     #: Where a probe is missing and the voltage could not stand in for it: why not.
     faces_missing: str | None = None
+    #: The readings' interval summaries (NaN where a reading carries none), None where the
+    #: newest reading of the load carries none.
+    means: dg.IntervalMeans | None = None
+
+    @property
+    def summarised(self) -> bool:
+        """Whether readings of this load carry interval summaries."""
+        return self.means is not None
 
     @property
     def probed(self) -> tuple[bool, bool]:
@@ -73,11 +82,35 @@ class Readings:
 COLUMNS = ("ts_ms", "t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "door_open")
 
 
+#: Interval summaries the balances use, in the order of ``IntervalMeans``' fields.
+SUMMARIES = (
+    "interval_s",
+    "t_cabinet_mean",
+    "t_cold_mean",
+    "t_hot_mean",
+    "t_ambient_mean",
+    "current_mean",
+    "current_sq_mean",
+    "power_mean",
+    "on_share",
+)
+
+
 def load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> Readings:
-    """Readings of one device with ``start_ms <= ts_ms < end_ms`` (epoch ms UTC)."""
-    arr = db.read_arrays(conn, device_id, COLUMNS, start_ms, end_ms)
+    """Readings of one device with ``start_ms <= ts_ms < end_ms`` (epoch ms UTC), with their
+    interval summaries where the newest of them carries any."""
+    summarised = carries_summaries(conn, device_id, start_ms, end_ms)
+    arr = db.read_arrays(
+        conn, device_id, COLUMNS + (SUMMARIES if summarised else ()), start_ms, end_ms
+    )
     ts = arr[:, 0].astype(np.int64)
     tc, th = arr[:, 2] + T0, arr[:, 3] + T0
+    means = None
+    if summarised:
+        cols = [arr[:, len(COLUMNS) + j] for j in range(len(SUMMARIES))]
+        for j in (1, 2, 3, 4):
+            cols[j] = cols[j] + T0
+        means = dg.IntervalMeans(*cols)
     return Readings(
         ts=ts,
         t=(ts - start_ms) / 1000.0,
@@ -90,6 +123,7 @@ def load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> Readin
         door=arr[:, 7] > 0.5,
         cold_probe=bool(ts.size == 0 or np.isfinite(tc).any()),
         hot_probe=bool(ts.size == 0 or np.isfinite(th).any()),
+        means=means,
     )
 
 

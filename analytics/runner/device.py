@@ -10,9 +10,13 @@ from sqlalchemy.engine import Connection
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics.runner.daily import daily
 from tecfleet.analytics.runner.data import load, priors
-from tecfleet.analytics.runner.hot_side import hot_side, hourly
+from tecfleet.analytics.runner.hot_side import hot_side, hourly, stretch_steps
 from tecfleet.analytics.runner.rows import EstimateRows
-from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
+from tecfleet.analytics.runner.settings import (
+    AnalysisSettings,
+    diagnostics_options,
+    for_reporting,
+)
 from tecfleet.analytics.runner.state import DeviceState
 from tecfleet.analytics.runner.window import fit_window
 from tecfleet.ingest import db
@@ -51,6 +55,14 @@ def analyze_device(
         cfg.margin_s * 1000
     )
     data = load(conn, dev.device_id, done - lookback, end)
+    # At slow reporting an hour's hot-side stretch reaches back several hours, and the
+    # thermal window of instants several days.
+    interval = dg.usual_interval(data.t)
+    span = stretch_steps(interval, cfg, data.summarised) * step
+    thermal = for_reporting(cfg, interval, data.summarised).thermal_window_s * 1000
+    need = max(thermal, window) if fit_due else span
+    if need + cfg.margin_s * 1000 > lookback:
+        data = load(conn, dev.device_id, done - need - cfg.margin_s * 1000, end)
     # Flags once for everything loaded. They depend on at most door_settle_s/settle_s of
     # look-back (within margin_s) and never on a reading after the end of its own step, so
     # they come out the same however the history is split into runs.

@@ -121,13 +121,19 @@ def _moment(row: list[float | None]) -> po.RestMoment:
 
 
 def corrected(data: Readings, state: DeviceState) -> Readings:
-    """``data`` with the cabinet and face temperatures corrected by the unit's estimated
-    offsets relative to the ambient probe (itself unchanged); ``data`` where there are none."""
+    """``data`` with the cabinet and face temperatures (and their interval means) corrected by
+    the unit's estimated offsets relative to the ambient probe (itself unchanged); ``data``
+    where there are none."""
     off = state.probe_offsets
     if off is None:
         return data
+    m = data.means
+    if m is not None:
+        m = dataclasses.replace(
+            m, t_cabinet=m.t_cabinet - off[0], t_cold=m.t_cold - off[1], t_hot=m.t_hot - off[2]
+        )
     return dataclasses.replace(
-        data, tcab=data.tcab - off[0], tc=data.tc - off[1], th=data.th - off[2]
+        data, tcab=data.tcab - off[0], tc=data.tc - off[1], th=data.th - off[2], means=m
     )
 
 

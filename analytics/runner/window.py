@@ -21,7 +21,11 @@ from tecfleet.analytics.errors import InsufficientDataError, PhysicsError
 from tecfleet.analytics.runner import offsets, settled
 from tecfleet.analytics.runner.data import Readings, complete_faces, faces_basis, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
-from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
+from tecfleet.analytics.runner.settings import (
+    AnalysisSettings,
+    diagnostics_options,
+    for_reporting,
+)
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
 from tecfleet.analytics.runner.tracks import ambient_lead_usual, rebase_ua, track_r25, track_ua
 
@@ -89,6 +93,8 @@ def fit_window(
 ) -> None:
     """All estimates of the window ending at ``b`` (epoch ms UTC), and what the state keeps."""
     data.faces, data.faces_missing = None, None
+    day = data.t[data.slice(b - cfg.thermal_window_s * 1000, b)]
+    cfg = for_reporting(cfg, dg.usual_interval(day), data.summarised)
     raw = _window(data, b, cfg)
     if raw is None:
         return
@@ -106,6 +112,9 @@ def fit_window(
         return
     _quality_rows(win, rows)
     faces = data.faces.basis if data.faces is not None else faces_basis(win.probed)
+    # Every estimate states the readings it rests on: their usual interval and kind.
+    every = dg.interval_basis(dg.usual_interval(data.t[win.wt]), data.summarised)
+    faces = f"{faces}, {every}"
     rows.basis = f"V = I·R + S·ΔT fit, {faces}" + (", open-circuit samples" if win.floating else "")
     try:
         ele = _electrical(data, win, rows, state, prior, cfg_el)
@@ -129,8 +138,11 @@ def fit_window(
 
 
 def _window(data: Readings, b: int, cfg: AnalysisSettings) -> _Window | None:
-    window = cfg.window_s * 1000
-    thermal_window = max(cfg.thermal_window_s * 1000, window)
+    thermal_window = max(cfg.thermal_window_s, cfg.window_s) * 1000
+    # At slow reporting the module's fit reaches back further, up to the thermal window.
+    interval = dg.usual_interval(data.t[data.slice(b - thermal_window, b)])
+    window = round(1000 * max(cfg.window_s, min(cfg.window_min_intervals * interval,
+                                                  thermal_window / 1000)))  # fmt: skip
     w = data.slice(b - window, b)
     wt = data.slice(b - thermal_window, b)
     fl = flags_of(data, w)
@@ -364,7 +376,9 @@ def _thermal(
             s_t, r_t, usable_th, k0, k_rel, k_settled=k_settled,
             q_settled=settled.q_settled(state, cfg), sr_rel_cov=sr_rel_cov,
             sink_taus_settled=settled.taus_settled(state, cfg),
-            offset_cov=offsets.offset_cov(state), options=diagnostics_options(cfg),
+            offset_cov=offsets.offset_cov(state),
+            means=None if data.means is None else data.means.part(wt),
+            options=diagnostics_options(cfg),
         )  # fmt: skip
     except PhysicsError as exc:
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))

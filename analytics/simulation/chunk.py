@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -33,7 +33,9 @@ class Chunk:
     (already biased, noisy, quantised, faulted), ``ts`` the sample timestamps (jittered) and
     ``present`` which samples exist (not missed, not offline). ``energy`` holds per-step
     energy terms [J]: wall (through walls and door, into the cabinet), internal, loads,
-    electrical, rejected (at the hot face), stored (air + contents).
+    electrical, rejected (at the hot face), stored (air + contents). ``summaries`` holds what
+    a unit that samples fast reports of each interval (means, on share, extremes; as measured,
+    with each probe's bias) where the fleet reports them.
     """
 
     t: FloatArray
@@ -44,6 +46,8 @@ class Chunk:
     measured: dict[str, FloatArray]
     energy: dict[str, FloatArray]
     device_ids: list[str]
+    #: The interval summaries each reading carries, by payload field name (empty: none).
+    summaries: dict[str, FloatArray] = field(default_factory=dict)
 
     @property
     def n_steps(self) -> int:
@@ -66,6 +70,10 @@ def _reading(chunk: Chunk, j: int, i: int) -> dict[str, Any]:
         if not (name in _FACE_CHANNELS and math.isnan(value)):
             out[name] = value
     out["door_open"] = bool(chunk.truth["door_s"][j, i] > 0)
+    for name, col in chunk.summaries.items():
+        value = float(col[j, i])
+        if not math.isnan(value):
+            out[name] = value
     return out
 
 
@@ -108,7 +116,19 @@ def _payload_rows(chunk: Chunk) -> list[list[dict[str, Any] | None]]:
                 reading = row[i]
                 if reading is not None:
                     del reading[name]  # the unit has no probe there
+    _add_summaries(chunk, rows)
     return rows
+
+
+def _add_summaries(chunk: Chunk, rows: list[list[dict[str, Any] | None]]) -> None:
+    # Each reading's interval summaries, where the fleet reports them (a face the unit has no
+    # probe on has none).
+    for name, col in chunk.summaries.items():
+        values = col.tolist()
+        for j, row in enumerate(rows):
+            for i, reading in enumerate(row):
+                if reading is not None and not math.isnan(values[j][i]):
+                    reading[name] = values[j][i]
 
 
 def concat(chunks: Sequence[Chunk]) -> Chunk:
@@ -123,4 +143,5 @@ def concat(chunks: Sequence[Chunk]) -> Chunk:
         measured={k: np.concatenate([c.measured[k] for c in chunks]) for k in first.measured},
         energy={k: np.concatenate([c.energy[k] for c in chunks]) for k in first.energy},
         device_ids=first.device_ids,
+        summaries={k: np.concatenate([c.summaries[k] for c in chunks]) for k in first.summaries},
     )

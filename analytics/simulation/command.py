@@ -44,7 +44,14 @@ def add_simulate_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument("--devices", type=int, default=10, help="number of coolers")
     parser.add_argument("--days", type=float, default=1.0, help="simulated days")
-    parser.add_argument("--interval-s", type=float, default=60.0, help="sample interval [s]")
+    parser.add_argument(
+        "--interval-s", type=float, default=60.0, help="reporting interval of every unit [s]"
+    )
+    parser.add_argument(
+        "--summaries",
+        action="store_true",
+        help="every reading also carries its interval's summaries (means, on share, extremes)",
+    )
     parser.add_argument(
         "--speed",
         type=float,
@@ -91,7 +98,7 @@ def run_simulate(args: argparse.Namespace) -> int:
     sink: Sink
     try:
         sink = (
-            FileSink(args.out)
+            FileSink(args.out, summaries=args.summaries)
             if args.out
             else MqttSink(args.mqtt, args.topic_prefix, client_id=args.client_id)
         )
@@ -141,7 +148,8 @@ def _fleet(args: argparse.Namespace, now: float, start: float, days: float) -> F
         spec, _reg = demo_fleet(
             args.seed, now_s=now, days_backfill=days, interval_s=args.interval_s
         )
-        return with_sensor_set(replace(spec, start_s=start), args.sensors)
+        spec = replace(spec, start_s=start, summaries=args.summaries)
+        return with_sensor_set(spec, args.sensors)
     spec = random_fleet(
         args.devices,
         seed=args.seed,
@@ -150,4 +158,4 @@ def _fleet(args: argparse.Namespace, now: float, start: float, days: float) -> F
         interval_s=args.interval_s,
         faults=args.faults,
     )
-    return with_sensor_set(spec, args.sensors)
+    return with_sensor_set(replace(spec, summaries=args.summaries), args.sensors)

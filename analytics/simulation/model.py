@@ -22,7 +22,7 @@ from .chunk import Chunk
 from .sensors import SensorModel
 from .specs import FAULT_KINDS, FAULT_PARAM, T0_K, DeviceSpec, Fault, FleetSpec
 from .surroundings import Climate, Use
-from .thermal import ThermalModel
+from .thermal import SUMMARY_KEYS, ThermalModel
 from .truth import FleetTruth
 
 __all__ = ["Simulator", "simulate"]
@@ -82,6 +82,10 @@ _STATE_KEYS = (
 _ENERGY_KEYS = ("wall", "internal", "loads", "electrical", "rejected", "stored")
 
 
+#: Summaries that are temperatures (kelvin in the model, °C in the chunk).
+_SUMMARY_TEMPS = ("mean_t_air", "mean_t_cold", "mean_t_hot", "min_t_air", "max_t_air")
+
+
 class _Streams:
     """One PCG64 generator per kind of draw, all spawned from the fleet seed."""
 
@@ -133,8 +137,9 @@ class Simulator:
         self.sensors = SensorModel(devs, self.faults, self.interval, gen, enabled=spec.sensors)
         proportional = np.array([d.control == "proportional" for d in devs])
         self.thermal = ThermalModel(
-            p, proportional, self.interval, self.n_sub, warm=spec.warm_start
-        )
+            p, proportional, self.interval, self.n_sub, warm=spec.warm_start,
+            summaries=spec.summaries,
+        )  # fmt: skip
         self.climate = Climate(p, self.interval, gen["weather"])
         self.truth = FleetTruth(spec)
         self.limits = (
@@ -167,7 +172,8 @@ class Simulator:
         t_amb_all, rh_all = self.climate.at(t)
         fac = self._factors(t)
         door_start, load_all, cut_start = self.use.starts(t)
-        tr = {k: np.empty((m, n)) for k in _STATE_KEYS}
+        keys = _STATE_KEYS + (SUMMARY_KEYS if self.spec.summaries else ())
+        tr = {k: np.empty((m, n)) for k in keys}
         en = {k: np.zeros((m, n)) for k in _ENERGY_KEYS}
         door_s_all, powered_all = self.use.door_and_power(door_start, cut_start)
         self.thermal.advance(fac, door_s_all, powered_all, t_amb_all, load_all, tr, en)
@@ -177,8 +183,9 @@ class Simulator:
         tr["on"][:] = tr["current"] > 0.0
         tr["door_s"][:] = door_s_all
         tr["powered"][:] = powered_all
-        for key in ("t_air", "t_contents", "t_cold", "t_hot", "t_ambient"):
-            tr[key] -= T0_K
+        for key in ("t_air", "t_contents", "t_cold", "t_hot", "t_ambient", *_SUMMARY_TEMPS):
+            if key in tr:
+                tr[key] -= T0_K
         tr["rh"] = rh_all
         self.excursions.record(t, tr, cut_start)
         return self._assemble(t, tr, en)
@@ -193,13 +200,14 @@ class Simulator:
         """The sensors' view of the true state ``tr``, and the chunk of it."""
         m, n = t.shape[0], self.n
         measured, ts, present = self.sensors.measure(t, tr)
+        summaries = self.sensors.summarise(tr) if self.spec.summaries else {}
         self.t_next = float(t[-1] + self.interval) if m else self.t_next
         first = self.step_index
         self.step_index += m
         seq_arr = np.broadcast_to(
             np.arange(first, first + m, dtype=np.int64)[:, None], (m, n)
         ).copy()
-        return Chunk(t, ts, seq_arr, present, tr, measured, en, self.ids)
+        return Chunk(t, ts, seq_arr, present, tr, measured, en, self.ids, summaries)
 
 
 class _ExcursionLog:

@@ -161,13 +161,29 @@ def _client(parts: SplitResult, client_id: str, max_pending: int) -> Any:
 
 
 _CSV_FIELDS = ["device_id", "ts", "seq", *CHANNELS, "door_open"]
+#: Columns a fleet that reports interval summaries adds (the payload's names).
+_SUMMARY_FIELDS = [
+    "interval_s",
+    "t_cabinet_mean",
+    "t_cold_mean",
+    "t_hot_mean",
+    "t_ambient_mean",
+    "current_mean",
+    "current_sq_mean",
+    "power_mean",
+    "on_share",
+    "t_cabinet_min",
+    "t_cabinet_max",
+]
 
 
 class FileSink(Sink):
-    """CSV (``.csv``) or JSON lines (anything else): one reading per row, with its device."""
+    """CSV (``.csv``) or JSON lines (anything else): one reading per row, with its device;
+    ``summaries`` adds the interval summaries' columns to the CSV."""
 
-    def __init__(self, path: str) -> None:
+    def __init__(self, path: str, summaries: bool = False) -> None:
         self.path = path
+        self.fields = _CSV_FIELDS + (_SUMMARY_FIELDS if summaries else [])
         self.csv = path.lower().endswith(".csv")
         self.fh: IO[Any]
         if self.csv:
@@ -178,14 +194,14 @@ class FileSink(Sink):
         self.bytes = 0
         if self.csv:
             self.writer = csv.writer(cast(IO[str], self.fh))
-            self.writer.writerow(_CSV_FIELDS)
+            self.writer.writerow(self.fields)
 
     def send(self, device_id: str, readings: list[dict[str, Any]]) -> None:
         self.sent += len(readings)
         if self.csv:
             # A channel the unit lacks (a face probe) is an empty cell.
             self.writer.writerows(
-                [device_id, *(r.get(k, "") for k in _CSV_FIELDS[1:])] for r in readings
+                [device_id, *(r.get(k, "") for k in self.fields[1:])] for r in readings
             )
         else:
             head = b'{"device_id":' + orjson.dumps(device_id) + b","

@@ -209,6 +209,10 @@ class FleetSpec:
     #: (a newly installed fleet); False starts them settled at their setpoint.
     warm_start: bool = False
     max_substep_s: float = 20.0
+    #: Each reading also carries the interval summaries: the means over the interval since
+    #: the reading before (temperatures, current, current squared, electrical power, on
+    #: share) and the cabinet air's extremes, as a unit that samples fast but reports slowly.
+    summaries: bool = False
 
     @property
     def device_ids(self) -> list[str]:

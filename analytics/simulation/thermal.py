@@ -52,7 +52,7 @@ from tecfleet.analytics._validate import T_25C_K
 
 from .specs import T0_K
 
-__all__ = ["ALPHA_R", "BETA_S", "T25_K", "ThermalModel"]
+__all__ = ["ALPHA_R", "BETA_S", "SUMMARY_KEYS", "T25_K", "ThermalModel"]
 
 FloatArray = NDArray[np.float64]
 BoolArray = NDArray[np.bool_]
@@ -124,7 +124,8 @@ class ThermalModel:
     ``p`` holds the device columns, ``proportional`` which devices use proportional current
     control; ``n_sub`` sub-steps per output interval of ``interval_s``. State starts at the
     setpoint, the faces at rest; ``warm`` starts everything at the room's mean temperature, as
-    a unit just switched on.
+    a unit just switched on. ``summaries`` also records each interval's means over its
+    sub-steps (``SUMMARY_KEYS``).
     """
 
     def __init__(
@@ -135,8 +136,10 @@ class ThermalModel:
         n_sub: int,
         *,
         warm: bool = False,
+        summaries: bool = False,
     ) -> None:
         self.p = p
+        self.summaries = summaries
         self.proportional = proportional
         self.interval = interval_s
         self.n_sub = n_sub
@@ -193,6 +196,7 @@ class ThermalModel:
         e_wall: float | FloatArray = 0.0
         e_el: float | FloatArray = 0.0
         e_rej: float | FloatArray = 0.0
+        acc = _Means(ta) if self.summaries else None
         for _ in range(self.n_sub):
             dtm = 0.5 * (tc + th) - T25_K
             s = co.s25 * (1.0 + BETA_S * dtm)
@@ -201,8 +205,13 @@ class ThermalModel:
             cur = _drive_current(co, x, s, r, ta, tc, th, on)
             ta, tn, tc, th = _implicit_update(co, x, s, r, cur, ta, tn, tc, th)
             e_wall = e_wall + x.ua * (t_amb - ta)
-            e_el = e_el + cur * (s * (th - tc) + cur * r)
+            p_el = cur * (s * (th - tc) + cur * r)
+            e_el = e_el + p_el
             e_rej = e_rej + (th * x.inv_rh - x.rh_tamb)
+            if acc is not None:
+                acc.add(ta, tc, th, cur, p_el, s * (th - tc) + cur * r)
+        if acc is not None:
+            acc.record(tr, j, self.n_sub)
         en["wall"][j] = e_wall * h
         en["electrical"][j] = e_el * h
         en["rejected"][j] = e_rej * h
@@ -223,6 +232,53 @@ class ThermalModel:
             1.0 + ALPHA_R * dtm
         )
         self.t_air, self.t_cont, self.tc, self.th, self.on = ta, tn, tc, th, on
+
+
+#: The interval summaries recorded where ``summaries`` is set: means over the sub-steps of the
+#: air, the faces [K], the current [A], its square [A²], the electrical power [W], the on
+#: share [-] and the terminal voltage while on times that share [V], and the air's extremes [K].
+SUMMARY_KEYS = (
+    "mean_t_air",
+    "mean_t_cold",
+    "mean_t_hot",
+    "mean_current",
+    "mean_current_sq",
+    "mean_power",
+    "on_share",
+    "mean_v_on",
+    "min_t_air",
+    "max_t_air",
+)
+
+
+class _Means:
+    """Sums over the sub-steps of one output interval, arrays (n,)."""
+
+    def __init__(self, ta: FloatArray) -> None:
+        z = np.zeros_like(ta)
+        self.sums = {k: z.copy() for k in SUMMARY_KEYS[:8]}
+        self.low, self.high = np.full_like(ta, np.inf), np.full_like(ta, -np.inf)
+
+    def add(
+        self,
+        ta: FloatArray,
+        tc: FloatArray,
+        th: FloatArray,
+        cur: FloatArray,
+        p_el: FloatArray,
+        v_term: FloatArray,
+    ) -> None:
+        on = (cur > 0.0).astype(np.float64)
+        for k, v in zip(
+            SUMMARY_KEYS[:8], (ta, tc, th, cur, cur * cur, p_el, on, v_term * on), strict=True
+        ):
+            self.sums[k] += v
+        self.low, self.high = np.minimum(self.low, ta), np.maximum(self.high, ta)
+
+    def record(self, tr: dict[str, FloatArray], j: int, n_sub: int) -> None:
+        for k, v in self.sums.items():
+            tr[k][j] = v / n_sub
+        tr["min_t_air"][j], tr["max_t_air"][j] = self.low, self.high
 
 
 def _paths(

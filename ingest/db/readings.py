@@ -16,7 +16,7 @@ from sqlalchemy.exc import SQLAlchemyError
 
 from tecfleet.ingest.db.calibration import calibrate_arrays
 from tecfleet.ingest.db.engine import marker, now_ms
-from tecfleet.ingest.db.tables import devices, readings, rejects
+from tecfleet.ingest.db.tables import SUMMARY_COLUMNS, devices, readings, rejects
 from tecfleet.ingest.errors import StoreError
 
 
@@ -39,6 +39,22 @@ class Reading(NamedTuple):
     seq: int | None = None
     rh: float | None = None
     door_open: bool | None = None
+    # The optional interval summaries, in the order of ``SUMMARY_COLUMNS`` (None: not sent).
+    interval_s: float | None = None
+    t_cabinet_mean: float | None = None
+    t_cold_mean: float | None = None
+    t_hot_mean: float | None = None
+    t_ambient_mean: float | None = None
+    current_mean: float | None = None
+    current_sq_mean: float | None = None
+    power_mean: float | None = None
+    on_share: float | None = None
+    t_cabinet_min: float | None = None
+    t_cabinet_max: float | None = None
+
+
+assert Reading._fields[-len(SUMMARY_COLUMNS) :] == SUMMARY_COLUMNS
+_NO_SUMMARY = (None,) * len(SUMMARY_COLUMNS)
 
 
 @dataclass(frozen=True, slots=True)
@@ -93,14 +109,17 @@ _DEVICE_RECOUNT = (
 )
 
 
-# Reading's field order, then the receive time.
-_READING_INSERT_COLUMNS = ", ".join((*Reading._fields, "received_ms"))
+#: Reading's fields without the interval summaries: most units send none, and a database
+#: still below revision 0006 has no columns for them.
+_BASE_FIELDS = len(Reading._fields) - len(SUMMARY_COLUMNS)
 
 
-def _insert_readings_sql(connection: Connection) -> str:
-    values = ", ".join([marker(connection)] * (len(Reading._fields) + 1))
+def _insert_readings_sql(connection: Connection, summaries: bool) -> str:
+    # Reading's field order (with or without the summaries), then the receive time.
+    fields = Reading._fields if summaries else Reading._fields[:_BASE_FIELDS]
+    values = ", ".join([marker(connection)] * (len(fields) + 1))
     return (
-        f"INSERT INTO readings ({_READING_INSERT_COLUMNS}) VALUES ({values})"
+        f"INSERT INTO readings ({', '.join((*fields, 'received_ms'))}) VALUES ({values})"
         " ON CONFLICT (device_id, ts_ms) DO NOTHING"
     )
 
@@ -137,8 +156,9 @@ def write_batch(
         # Straight to the driver's executemany: SQLAlchemy's per-row parameter processing
         # would cost more than the insert itself.
         tail = (received,)
-        rows = [r + tail for r in batch_readings]
-        result = connection.exec_driver_sql(_insert_readings_sql(connection), rows)
+        summaries = any(r[_BASE_FIELDS:] != _NO_SUMMARY for r in batch_readings)
+        rows = [(r if summaries else r[:_BASE_FIELDS]) + tail for r in batch_readings]
+        result = connection.exec_driver_sql(_insert_readings_sql(connection, summaries), rows)
         stored = result.rowcount
         if stored == len(rows):
             # Every row was new: the batch itself says what each device gained.
@@ -210,6 +230,23 @@ def first_reading_ms(connection: Connection, device_id: str) -> int | None:
     return None if first is None else int(first)
 
 
+def carries_summaries(connection: Connection, device_id: str, start_ms: int, end_ms: int) -> bool:
+    """Whether the device's newest reading with ``start_ms <= ts_ms < end_ms`` carries an
+    interval summary (its ``interval_s``): one index lookup, so that a device that sends none
+    is never loaded with them."""
+    found = connection.execute(
+        sa.select(readings.c.interval_s)
+        .where(
+            readings.c.device_id == device_id,
+            readings.c.ts_ms >= start_ms,
+            readings.c.ts_ms < end_ms,
+        )
+        .order_by(readings.c.ts_ms.desc())
+        .limit(1)
+    ).scalar()
+    return found is not None
+
+
 READING_COLUMNS = (
     "ts_ms",
     "seq",
@@ -223,11 +260,12 @@ READING_COLUMNS = (
     "door_open",
 )
 
-#: What ``read_arrays`` may also read: when the service stored each reading (wall clock, ms).
-_RECEIPT_COLUMNS = ("received_ms",)
+#: What ``read_arrays`` may also read: the optional interval summaries, and when the service
+#: stored each reading (wall clock, ms).
+_RECEIPT_COLUMNS = (*SUMMARY_COLUMNS, "received_ms")
 
 #: Columns that may be NULL; they come back as NaN.
-_NULLABLE = frozenset({"seq", "t_cold", "t_hot", "rh"})
+_NULLABLE = frozenset({"seq", "t_cold", "t_hot", "rh", *SUMMARY_COLUMNS})
 #: A missing door flag reads as closed (0), an open door as 1.
 _SELECT_AS = {"door_open": "CASE WHEN door_open THEN 1 ELSE 0 END"}
 #: Address space SQLite may map per connection for reading (only what the file holds is mapped).

@@ -19,6 +19,24 @@ metadata = sa.MetaData(
     }
 )
 
+#: A reading's optional interval summaries (migration 0006), each NULL where the reading
+#: carries none: the interval they cover [s], the means over it of the four temperatures [°C],
+#: of the current [A], of its square [A²] and of the electrical power [W], the share of it
+#: the module was on [-], and the cabinet air's lowest and highest [°C]. See ingest/PAYLOAD.md.
+SUMMARY_COLUMNS = (
+    "interval_s",
+    "t_cabinet_mean",
+    "t_cold_mean",
+    "t_hot_mean",
+    "t_ambient_mean",
+    "current_mean",
+    "current_sq_mean",
+    "power_mean",
+    "on_share",
+    "t_cabinet_min",
+    "t_cabinet_max",
+)
+
 devices = sa.Table(
     "devices",
     metadata,
@@ -51,6 +69,7 @@ readings = sa.Table(
     sa.Column("voltage", sa.Float, nullable=False),
     sa.Column("rh", sa.Float),
     sa.Column("door_open", sa.Boolean),
+    *(sa.Column(name, sa.Float) for name in SUMMARY_COLUMNS),
     sa.Column("received_ms", sa.BigInteger, nullable=False),
     sa.UniqueConstraint("device_id", "ts_ms"),
 )

@@ -41,6 +41,27 @@ from tecfleet.ingest import db
 START_S = 1_735_689_600.0  # 2025-01-01T00:00Z, a day boundary
 
 
+@dataclass(frozen=True)
+class Reporting:
+    """How every simulated unit reports: its interval [s] and whether each reading carries
+    the interval summaries (means over the interval) beside the instant."""
+
+    interval_s: float = 60.0
+    summaries: bool = False
+
+    def label(self) -> str:
+        kind = "summaries" if self.summaries else "instants"
+        return f"{self.interval_s / 60.0:g}-minute {kind}"
+
+    def apply(self, spec: sim.FleetSpec) -> sim.FleetSpec:
+        """``spec`` reporting this way."""
+        return dataclasses.replace(spec, interval_s=self.interval_s, summaries=self.summaries)
+
+
+#: Set once by ``main`` from ``--interval`` and ``--summaries``.
+REPORTING = Reporting()
+
+
 def build_db(
     path: Path, spec: sim.FleetSpec, days: float, simulator: sim.Simulator | None = None
 ) -> tuple[Any, sim.FleetTruth, float]:
@@ -86,10 +107,11 @@ def append_steps(path: Path, spec: sim.FleetSpec, simulator: sim.Simulator, step
         cols = _chunk_columns(spec, c)
         dev, ts = cols[0], cols[1]
         rows = zip(*cols, [now] * len(ts), strict=True)
+        names = ("device_id", "ts_ms", "t_cabinet", "t_cold", "t_hot", "t_ambient", "current",
+                 "voltage", "rh", "door_open", *c.summaries, "received_ms")  # fmt: skip
         raw.executemany(
-            "INSERT OR IGNORE INTO readings (device_id, ts_ms, t_cabinet, t_cold, t_hot, "
-            "t_ambient, current, voltage, rh, door_open, received_ms) "
-            "VALUES (?,?,?,?,?,?,?,?,?,?,?)",
+            f"INSERT OR IGNORE INTO readings ({', '.join(names)}) "
+            f"VALUES ({', '.join('?' * len(names))})",
             rows,
         )
         stored += len(ts)
@@ -157,6 +179,36 @@ DETECT_PREFIX = {
     "fan": "hot_side.resistance",
 }
 DETECT_TARGET_H = {"wear": 7 * 24.0, "leak": 48.0, "fan": 2.0}
+#: Issue 22's targets at slow reporting, by interval [min] (full sensor set, healthy units,
+#: 7 days): the relative error per quantity [-] on at least 90 % of units, and the detection
+#: delays [h]. At 15-minute instants UA within 35 % (where the unit rests now and then).
+SLOW_TARGETS: dict[float, dict[str, float]] = {
+    5.0: {"R25": 0.02, "UA": 0.25, "r_hot (1 h)": 0.30, "r_hot (24 h fit)": 0.30},
+    15.0: {"R25": 0.02, "UA": 0.25, "r_hot (1 h)": 0.30, "r_hot (24 h fit)": 0.30},
+}
+SLOW_DETECT_H: dict[float, dict[str, float]] = {
+    5.0: {"wear": 7 * 24.0, "leak": 72.0, "fan": 6.0},
+    15.0: {"wear": 7 * 24.0, "leak": 96.0, "fan": 12.0},
+}
+
+
+def targets_for(sensors: str) -> tuple[dict[str, float], float | None, bool]:
+    """The accuracy targets of ``sensors`` at the bench's reporting (``REPORTING``)."""
+    minutes = REPORTING.interval_s / 60.0
+    if minutes <= 1.0 or sensors != "full":
+        return TARGETS[sensors]
+    slow = dict(SLOW_TARGETS[5.0 if minutes <= 5.0 else 15.0])
+    if minutes > 5.0 and not REPORTING.summaries:
+        slow["UA"] = 0.35
+    return slow, 0.90, False
+
+
+def detect_targets_h() -> dict[str, float]:
+    """The detection-delay targets at the bench's reporting [h]."""
+    minutes = REPORTING.interval_s / 60.0
+    if minutes <= 1.0:
+        return DETECT_TARGET_H
+    return SLOW_DETECT_H[5.0 if minutes <= 5.0 else 15.0]
 
 
 @dataclass(frozen=True)
@@ -199,9 +251,9 @@ def accuracy_scores(
     ``sinks``: heat capacities of every unit's cold and hot sink [J/K] (0: massless faces);
     ``sensors``: the face probes every unit has (one of ``SENSOR_SETS``)."""
     out: list[UnitScore] = []
-    targets = TARGETS[sensors][0]
+    targets = targets_for(sensors)[0]
     for seed in seeds:
-        spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
+        spec = REPORTING.apply(sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days))
         spec = dataclasses.replace(
             spec,
             devices=tuple(
@@ -243,9 +295,10 @@ def part_accuracy(
     sinks: tuple[float, float] = (0.0, 0.0),
     sensors: str = "full",
 ) -> None:
-    print(f"\n== Accuracy ({sensors} sensor set): healthy units, {days:g} days of one-minute "
-          f"data, seeds {seeds}, {n_dev} devices each (noise, bias, quantisation, doors, loads "
-          f"on), sinks of {sinks[0]:g}/{sinks[1]:g} J/K (cold/hot) ==")  # fmt: skip
+    print(f"\n== Accuracy ({sensors} sensor set): healthy units, {days:g} days of "
+          f"{REPORTING.label()}, seeds {seeds}, {n_dev} devices each (noise, bias, "
+          f"quantisation, doors, loads on), sinks of {sinks[0]:g}/{sinks[1]:g} J/K "
+          "(cold/hot) ==")  # fmt: skip
     scores = accuracy_scores(seeds, n_dev, days, sinks, sensors)
     print(f"{'quantity':18} {'group':26} {'n':>3} {'median|err|':>11} {'p90|err|':>9} "
           f"{'within':>7} {'target':>7} {'reliable':>8} {'within|rel':>10} "
@@ -295,7 +348,7 @@ def part_accuracy(
 def _target_summary(scores: list[UnitScore], sensors: str) -> None:
     """Per targeted quantity: the share of the units the target speaks of that are within it
     (a unit without a value counts as outside)."""
-    targets, share, floating_only = TARGETS[sensors]
+    targets, share, floating_only = targets_for(sensors)
     whom = "units whose driver floats" if floating_only else "all units"
     need = "not stated" if share is None else f"{100 * share:.0f} %"
     print(f"\nwithin target ({sensors} sensor set; of {whom}; share needed: {need}):")
@@ -324,7 +377,7 @@ class Detection:
 
     @property
     def in_time(self) -> bool:
-        return self.delay_h <= DETECT_TARGET_H[self.kind]
+        return self.delay_h <= detect_targets_h()[self.kind]
 
 
 def detection_fleet(
@@ -338,7 +391,7 @@ def detection_fleet(
     faults = tuple(
         dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
     )
-    return sim.with_sensor_set(dataclasses.replace(spec, faults=faults), sensors)
+    return REPORTING.apply(sim.with_sensor_set(dataclasses.replace(spec, faults=faults), sensors))
 
 
 def detection_scores(
@@ -371,9 +424,11 @@ def detection_scores(
     return found, healthy, false
 
 
-def part_detect(seed: int, n_dev: int, days: float, sensors: str = "full") -> None:
-    print(f"\n== Detection ({sensors} sensor set): {n_dev} devices, {days:g} days, seed {seed}, "
-          "faults wear/leak/fan ==")  # fmt: skip
+def part_detect(
+    seed: int, n_dev: int, days: float, sensors: str = "full"
+) -> tuple[list[Detection], int]:
+    print(f"\n== Detection ({sensors} sensor set): {n_dev} devices, {days:g} days of "
+          f"{REPORTING.label()}, seed {seed}, faults wear/leak/fan ==")  # fmt: skip
     t0 = time.perf_counter()
     found, healthy, false = detection_scores(seed, n_dev, days, sensors)
     print(f"(simulation and analysis {time.perf_counter() - t0:.1f} s)")
@@ -387,10 +442,22 @@ def part_detect(seed: int, n_dev: int, days: float, sensors: str = "full") -> No
         delay = "never" if d.flagged_s is None else f"{d.delay_h:9.1f} h"
         print(f"{d.device_id:10} {modes[d.device_id]:24} {d.kind:6} "
               f"{(d.start_s - START_S) / 3600:12.1f} {delay:>11} "
-              f"{DETECT_TARGET_H[d.kind]:6.0f}h")  # fmt: skip
+              f"{detect_targets_h()[d.kind]:6.0f}h")  # fmt: skip
     for f in false:
         print(f"false flag: {f}")
     print(f"healthy devices: {len(healthy)}, false flags: {len(false)}")
+    return found, len(false)
+
+
+def _detect_summary(found: list[Detection], false: int, seeds: int, sensors: str) -> None:
+    print(f"\ndetection over {seeds} seeds ({sensors} sensor set, {REPORTING.label()}):")
+    for kind, target in detect_targets_h().items():
+        mine = [d for d in found if d.kind == kind]
+        delays = sorted(d.delay_h for d in mine)
+        shown = ", ".join("never" if not math.isfinite(x) else f"{x:.0f}" for x in delays)
+        print(f"  {kind:5} in time ({target:.0f} h): {sum(d.in_time for d in mine)} of "
+              f"{len(mine)}; delays [h]: {shown}")  # fmt: skip
+    print(f"  false flags on healthy units: {false}")
 
 
 @dataclass
@@ -413,7 +480,7 @@ def season_scores(
     """Healthy units over ``days`` with the ambient swinging about ±10 K. ``sinks``: heat
     capacities of every unit's cold and hot sink [J/K] (0: massless faces); ``sensors``:
     the face probes every unit has."""
-    spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days)
+    spec = REPORTING.apply(sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days))
     # A slow weather anomaly of 5 K s.d. with a 20-day memory plus a 4 K daily swing gives
     # excursions of about ±10 K over the season.
     devs = tuple(
@@ -462,8 +529,8 @@ def part_season(seeds: list[int], n_dev: int, days: float, sensors: str = "full"
 
 
 def _season_one(seed: int, n_dev: int, days: float, sensors: str) -> int:
-    print(f"\n== Season ({sensors} sensor set): {n_dev} healthy devices, {days:g} days, "
-          f"seed {seed}, ambient swinging about ±10 K ==")  # fmt: skip
+    print(f"\n== Season ({sensors} sensor set): {n_dev} healthy devices, {days:g} days of "
+          f"{REPORTING.label()}, seed {seed}, ambient swinging about ±10 K ==")  # fmt: skip
     sea = season_scores(seed, n_dev, days, sensors=sensors)
     for f in sea.flags:
         print(f"flag: {f}")
@@ -513,7 +580,8 @@ def part_speed(n_dev: int, days: float) -> None:
 
 def _chunk_columns(spec: sim.FleetSpec, c: Any) -> list[list[Any]]:
     """What one simulator chunk reports, as columns in the readings table's order: device_id,
-    ts_ms, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, rh, door_open."""
+    ts_ms, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, rh, door_open, then the
+    interval summaries where the fleet reports them."""
     m = c.measured
     j, i = np.nonzero(c.present)
     names = ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh")
@@ -522,6 +590,7 @@ def _chunk_columns(spec: sim.FleetSpec, c: Any) -> list[list[Any]]:
         np.round(c.ts[j, i] * 1000.0).astype(np.int64).tolist(),
         *(_nullable(m[n][j, i]) for n in names),
         (c.truth["door_s"] > 0)[j, i].tolist(),
+        *(_nullable(col[j, i]) for col in c.summaries.values()),
     ]
 
 
@@ -535,9 +604,18 @@ def _nullable(col: Any) -> list[Any]:
 
 def _chunk_readings(spec: sim.FleetSpec, c: Any) -> list[db.Reading]:
     """What one simulator chunk reports, as the ingester's readings."""
+    cols = _chunk_columns(spec, c)
+    names = list(c.summaries)
     return [
-        db.Reading(d, t, *vals, rh=rh, door_open=dr)
-        for d, t, *vals, rh, dr in zip(*_chunk_columns(spec, c), strict=True)
+        db.Reading(
+            d,
+            t,
+            *vals[:6],
+            rh=vals[6],
+            door_open=vals[7],
+            **dict(zip(names, vals[8:], strict=True)),
+        )
+        for d, t, *vals in zip(*cols, strict=True)
     ]
 
 
@@ -608,7 +686,19 @@ def main(argv: list[str] | None = None) -> int:
         help="heat capacities of the cold and hot sinks for the accuracy part [J/K]; "
         "e.g. 150,400 for small aluminium sinks (0,0: massless faces)",
     )  # fmt: skip
+    ap.add_argument("--detect-seeds", default="4", help="seeds of the detect part")
+    ap.add_argument(
+        "--interval", type=float, default=1.0,
+        help="reporting interval of every simulated unit in the accuracy, detect and season "
+        "parts [min]",
+    )  # fmt: skip
+    ap.add_argument(
+        "--summaries", action="store_true",
+        help="every reading carries the interval summaries (means over its interval)",
+    )  # fmt: skip
     args = ap.parse_args(argv)
+    global REPORTING
+    REPORTING = Reporting(60.0 * args.interval, args.summaries)
     parts = set(args.part.split(","))
     sets = SENSOR_SETS if args.sensors == "all" else (args.sensors,)
     for sensors in sets:
@@ -617,7 +707,14 @@ def main(argv: list[str] | None = None) -> int:
             seeds = [int(s) for s in args.seeds.split(",")]
             part_accuracy(seeds, args.devices, 7.0, (cc, ch), sensors)
         if "detect" in parts:
-            part_detect(4, 10, 26.0, sensors)
+            seeds = [int(x) for x in args.detect_seeds.split(",")]
+            found: list[Detection] = []
+            false = 0
+            for seed in seeds:
+                got, n_false = part_detect(seed, 10, 26.0, sensors)
+                found += got
+                false += n_false
+            _detect_summary(found, false, len(seeds), sensors)
         if "season" in parts:
             seeds = [int(x) for x in args.season_seeds.split(",")]
             part_season(seeds, 4, args.season_days, sensors)

@@ -9,13 +9,19 @@ from typing import Any
 import numpy as np
 
 from tecfleet.analytics.alerts.constants import MKT_ACTIVATION_J_PER_MOL, MKT_GAS_CONSTANT, T0
-from tecfleet.analytics.alerts.observations import FloatArray, IntArray, Observations
+from tecfleet.analytics.alerts.observations import BoolArray, FloatArray, IntArray, Observations
 from tecfleet.analytics.alerts.policy import Band
 from tecfleet.analytics.alerts.rules import commissioning
 from tecfleet.analytics.alerts.scope import DeviceScope
 from tecfleet.analytics.errors import AlertError
 
-__all__ = ["evidence", "excursion_observations", "mean_kinetic_temperature", "observe"]
+__all__ = [
+    "evidence",
+    "excursion_observations",
+    "mean_kinetic_temperature",
+    "observe",
+    "slow_reporting_wait",
+]
 
 
 def mean_kinetic_temperature(
@@ -51,12 +57,47 @@ def excursion_observations(t_ms: IntArray, t_cabinet: FloatArray, band: Band) ->
     return Observations(t_ms, active, active.copy(), sev, np.asarray(t_cabinet, np.float64))
 
 
+def slow_reporting_wait(
+    t_ms: IntArray, out_of_band: BoolArray, interval_ms: FloatArray, delay_s: float, n: float
+) -> BoolArray:
+    """Readings of a spell out of band that come too early in it to count at slow reporting.
+
+    The lifecycle opens an alert ``delay_s`` [s] after a spell's first reading counts; where
+    ``n`` usual intervals (``interval_ms`` per reading [ms]) are longer than that, a spell's
+    readings count only from ``n`` intervals less ``delay_s`` after its first, so that the
+    alert waits at least ``n`` intervals. Times ``t_ms`` [ms]; at one- to fifteen-minute
+    reporting (with the default 30 minutes and two intervals) nothing waits.
+    """
+    wait = np.zeros(len(t_ms), dtype=bool)
+    extra = np.nan_to_num(n * interval_ms - delay_s * 1000.0, nan=0.0)
+    if not out_of_band.any() or not (extra > 0.0).any():
+        return wait
+    start = -1
+    for k in range(len(t_ms)):
+        if not out_of_band[k]:
+            start = -1
+            continue
+        start = k if start < 0 else start
+        wait[k] = t_ms[k] - t_ms[start] < extra[k]
+    return wait
+
+
 def observe(scope: DeviceScope) -> Observations | None:
     """The rule on the new readings (None without any); none while the unit is commissioning
-    or inside a maintenance window (see rules.commissioning)."""
+    or inside a maintenance window (see rules.commissioning). At slow reporting a spell waits
+    ``excursion_delay_intervals`` usual intervals in all (:func:`slow_reporting_wait`)."""
     if not len(scope.t_new):
         return None
     obs = excursion_observations(scope.t_new, scope.new_column("t_cabinet"), scope.band)
+    # The spell's start may lie before the new readings: judged over every loaded one.
+    t_all = scope.t_all
+    every = excursion_observations(t_all, scope.frame["t_cabinet"].to_numpy(np.float64), scope.band)
+    policy = scope.policy
+    wait = slow_reporting_wait(
+        t_all, every.active, scope.interval_all, policy.excursion_delay_s,
+        policy.excursion_delay_intervals,
+    )[scope.first :]  # fmt: skip
+    obs.active &= ~wait
     held = commissioning.phase(scope).excursion_held
     obs.active &= ~held
     obs.hold &= ~held

@@ -30,7 +30,9 @@ def offline_observations(
     ``reference_ms`` [ms] (the newest reading of the fleet, or the wall clock live).
 
     A gap longer than ``offline_factor`` usual intervals (at least ``offline_min_s``) is
-    offline from the moment the threshold passed; readings resuming clear it. A retained
+    offline from the moment the threshold passed, critical after ``offline_critical_s`` or
+    ``offline_critical_factor`` thresholds, whichever is longer (both timings scale with the
+    unit's usual interval); readings resuming clear it. A retained
     ``offline`` status newer than the last reading counts at once. ``interval`` is
     ``usual_interval_ms(t_ms)``, when the caller has it.
 
@@ -63,8 +65,9 @@ def offline_observations(
         out.append((int(status_at_ms), 1, (status_at_ms - last) / 1000, tail))
     elif reference_ms - last > thr_last and not delivering:
         out.append((int(last + thr_last), 1, thr_last / 1000, tail))
-    if reference_ms - last > crit and crit > thr_last and not delivering:
-        out.append((int(last + crit), 2, crit / 1000, tail))
+    crit_last = max(crit, policy.offline_critical_factor * thr_last)
+    if reference_ms - last > crit_last and not delivering:
+        out.append((int(last + crit_last), 2, crit_last / 1000, tail))
     out.sort(key=lambda x: x[0])
     sev = np.array([o[1] for o in out], dtype=np.int8)
     a = sev > 0
@@ -104,8 +107,9 @@ def _gaps(
             past = received_ms is not None and int(received_ms[i - 1]) > prev + thr
             d = {"gap_start_ms": prev, "gap_end_ms": now, "past_outage": bool(past)}
             out.append((int(prev + thr), 1, thr / 1000, d))
-            if gap > crit and crit > thr:
-                out.append((int(prev + crit), 2, crit / 1000, d))
+            crit_i = max(crit, policy.offline_critical_factor * thr)
+            if gap > crit_i:
+                out.append((int(prev + crit_i), 2, crit_i / 1000, d))
         out.append((now, 0, gap / 1000, {}))
     return out
 

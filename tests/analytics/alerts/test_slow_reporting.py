@@ -1,0 +1,54 @@
+"""Excursion and offline timings at slow reporting: they scale with the unit's usual interval.
+
+The expectations follow from the policy's documented delays (common practice, no source): an
+excursion opens after 30 minutes out of band and at least two usual intervals; offline after
+five usual intervals (at least 10 minutes) and critical after 4 hours or twice that threshold.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from tecfleet.analytics import alerts
+from tecfleet.analytics.alerts.rules.excursion import slow_reporting_wait
+from tecfleet.analytics.alerts.rules.offline import offline_observations
+
+MIN = 60_000
+
+
+def _times(every_min: float, n: int) -> np.ndarray:
+    return (np.arange(n) * every_min * MIN).astype(np.int64)
+
+
+def test_one_to_fifteen_minute_readings_never_wait_beyond_the_delay() -> None:
+    for every in (1.0, 5.0, 15.0):
+        t = _times(every, 40)
+        out = np.ones(40, dtype=bool)
+        wait = slow_reporting_wait(t, out, np.full(40, every * MIN), 1800.0, 2.0)
+        assert not wait.any()  # 30 minutes is at least two such intervals
+
+
+def test_hourly_readings_wait_two_intervals_in_all() -> None:
+    t = _times(60.0, 8)
+    out = np.array([False, True, True, True, False, True, True, False])
+    wait = slow_reporting_wait(t, out, np.full(8, 60.0 * MIN), 1800.0, 2.0)
+    # A spell's readings count once 2 h less the 30-min delay (90 min) have passed since its
+    # first: the first two (0 and 60 min into it) wait, the third (120 min) counts.
+    assert wait.tolist() == [False, True, True, False, False, True, True, False]
+
+
+def _offline(every_min: float) -> tuple[float, float]:
+    # (offline after, critical after) the last reading of a unit that went silent [min].
+    t = _times(every_min, 30)
+    policy = alerts.AlertPolicy()
+    ref = int(t[-1] + 48 * 60 * MIN)
+    obs = offline_observations(t, 1, ref, None, None, policy)
+    opened = [int(x) for x, s in zip(obs.t, obs.severity, strict=True) if s == 1]
+    critical = [int(x) for x, s in zip(obs.t, obs.severity, strict=True) if s == 2]
+    return (opened[-1] - int(t[-1])) / MIN, (critical[-1] - int(t[-1])) / MIN
+
+
+def test_offline_scales_with_the_usual_interval() -> None:
+    assert _offline(1.0) == (10.0, 240.0)  # five minutes is under the 10-minute floor
+    assert _offline(15.0) == (75.0, 240.0)
+    assert _offline(60.0) == (300.0, 600.0)  # critical no sooner than twice the threshold

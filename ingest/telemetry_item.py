@@ -14,10 +14,20 @@ explicit ``null`` is refused as before (a unit either has the probe or omits the
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from dataclasses import dataclass
 from datetime import datetime
-from typing import Annotated, Any
+from typing import Annotated, Any, NotRequired, Required
 
-from pydantic import BaseModel, ConfigDict, Field, Strict, ValidationError, field_validator
+from pydantic import (
+    AfterValidator,
+    BeforeValidator,
+    Field,
+    Strict,
+    TypeAdapter,
+    ValidationError,
+)
+from typing_extensions import TypedDict
 
 EPOCH_2000_S = 946_684_800.0
 
@@ -28,34 +38,48 @@ V_MIN_V, V_MAX_V = -60.0, 60.0
 StrictFloat = Annotated[float, Strict(), Field(allow_inf_nan=False)]
 
 
-class TelemetryItem(BaseModel):
-    """One reading as published; temperatures in °C; ``t_cold``/``t_hot`` None: no such probe."""
+@dataclass(frozen=True, slots=True)
+class Channel:
+    """One numeric field of a reading: its plausible range and whether it must be sent.
 
-    model_config = ConfigDict(extra="ignore")
+    ``probe``: an optional face probe, absent when the unit has none, but refused when sent as
+    ``null`` (a unit either has the probe or omits the field); any other optional field may be
+    ``null``.
+    """
 
-    ts: Any
-    seq: Annotated[int, Strict(), Field(ge=0)] | None = None
-    t_cabinet: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    t_cold: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)] | None = None
-    t_hot: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)] | None = None
-    t_ambient: Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-    current: Annotated[StrictFloat, Field(ge=I_MIN_A, le=I_MAX_A)]
-    voltage: Annotated[StrictFloat, Field(ge=V_MIN_V, le=V_MAX_V)]
-    rh: Annotated[StrictFloat, Field(ge=0.0, le=100.0)] | None = None
-    door_open: Annotated[bool, Strict()] | None = None
+    name: str
+    low: float
+    high: float
+    required: bool = False
+    probe: bool = False
 
-    @field_validator("t_cold", "t_hot", mode="before")
-    @classmethod
-    def _probe_sent_as_number(cls, value: Any) -> Any:
-        # Only a value that was sent reaches this: an absent probe keeps its default.
-        if value is None:
-            raise ValueError("Input should be a valid number; leave the field out without a probe")
-        return value
 
-    @field_validator("ts")
-    @classmethod
-    def _ts_seconds(cls, value: Any) -> float:
-        return parse_timestamp(value)
+#: The numeric fields in the order their errors are reported; one line per field.
+CHANNELS: tuple[Channel, ...] = (
+    Channel("t_cabinet", T_MIN_C, T_MAX_C, required=True),  # [°C]
+    Channel("t_cold", T_MIN_C, T_MAX_C, probe=True),  # [°C]
+    Channel("t_hot", T_MIN_C, T_MAX_C, probe=True),  # [°C]
+    Channel("t_ambient", T_MIN_C, T_MAX_C, required=True),  # [°C]
+    Channel("current", I_MIN_A, I_MAX_A, required=True),  # [A]
+    Channel("voltage", V_MIN_V, V_MAX_V, required=True),  # [V]
+    Channel("rh", 0.0, 100.0),  # [%]
+)
+
+
+def _probe_sent_as_number(value: Any) -> Any:
+    # Only a value that was sent reaches this: an absent probe stays absent.
+    if value is None:
+        raise ValueError("Input should be a valid number; leave the field out without a probe")
+    return value
+
+
+def _channel_type(channel: Channel) -> Any:
+    number = Annotated[StrictFloat, Field(ge=channel.low, le=channel.high)]
+    if channel.required:
+        return Required[number]
+    if channel.probe:
+        return NotRequired[Annotated[number | None, BeforeValidator(_probe_sent_as_number)]]
+    return NotRequired[number | None]
 
 
 def parse_timestamp(value: Any) -> float:
@@ -83,6 +107,27 @@ def parse_timestamp(value: Any) -> float:
     if seconds > 32_503_680_000.0:  # year 3000: keeps millisecond integers in range
         raise ValueError("timestamp is after year 3000")
     return seconds
+
+
+def _item_type() -> Any:
+    """The TypedDict of one reading as published, from :data:`CHANNELS`."""
+    fields: dict[str, Any] = {
+        "ts": Required[Annotated[Any, AfterValidator(parse_timestamp)]],
+        "seq": NotRequired[Annotated[int, Strict(), Field(ge=0)] | None],
+        **{channel.name: _channel_type(channel) for channel in CHANNELS},
+        "door_open": NotRequired[Annotated[bool, Strict()] | None],
+    }
+    make: Any = TypedDict  # a field table, not a class statement: one line per channel above
+    return make("TelemetryItem", fields)
+
+
+#: One reading as published (a dict of the fields sent; temperatures in °C). Validated in
+#: pydantic-core without a model instance per reading.
+TelemetryItem = _item_type()
+
+#: Validates one item into a dict of the fields sent; raises ``ValidationError`` (see
+#: :func:`describe_errors`).
+validate_item: Callable[[Any], dict[str, Any]] = TypeAdapter(TelemetryItem).validate_python
 
 
 _CODE_BY_PYDANTIC = {

@@ -210,6 +210,9 @@ def main() -> None:
     parser = argparse.ArgumentParser()
     parser.add_argument("--singles", type=int, default=20_000)
     parser.add_argument("--batch-rows", type=int, default=100_000)
+    parser.add_argument(
+        "--databases", default="sqlite,postgresql", help="comma-separated: sqlite, postgresql"
+    )
     args = parser.parse_args()
     work = Path(tempfile.mkdtemp(prefix="tecfleet-bench-"))
     broker = Mosquitto(work / "mosquitto")
@@ -227,6 +230,8 @@ def main() -> None:
             ("sqlite", lambda tag: f"sqlite:///{work / (tag + '.db')}"),
             ("postgresql", lambda tag: pg.create_database(tag)),
         ):
+            if name not in args.databases.split(","):
+                continue
             e2e_single = ingester_rate(broker.port, url_for("single"), singles, args.singles)
             e2e_batch = ingester_rate(broker.port, url_for("batch"), batches, args.batch_rows)
             if name == "sqlite":

@@ -68,8 +68,11 @@ def claim(
     returns the devices it holds, in id order. Commit promptly: claimed rows stay locked till
     the caller's transaction ends."""
     leases = analysis_leases
+    # Only devices without a lease row: inserting over an existing row would wait for any
+    # transaction that holds it, i.e. for another worker's analysis.
+    unleased = ~sa.exists().where(leases.c.device_id == devices.c.device_id)
     with_readings = sa.select(devices.c.device_id, sa.null(), sa.literal(0)).where(
-        devices.c.last_reading_ms.is_not(None)
+        devices.c.last_reading_ms.is_not(None), unleased
     )
     conn.execute(
         _insert(conn, leases)

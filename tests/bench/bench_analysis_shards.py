@@ -34,9 +34,11 @@ from tests.services import Postgres
 STEP_MS = 3_600_000
 
 
-def store_fleet(url: str, devices: int, days: float) -> None:
+def store_fleet(url: str, devices: int, days: float) -> list[db.Reading]:
+    """Store the fleet but for its last hour, which is returned (the live step)."""
     engine = db.make_engine(url)
     db.migrate(engine)
+    tail: list[db.Reading] = []
     for k in range(devices):
         frame = simulate(Truth(), days, seed=301 + k % 14, door_every_h=9.0)
         rows = [
@@ -44,10 +46,13 @@ def store_fleet(url: str, devices: int, days: float) -> None:
                        r.current, r.voltage)
             for r in frame.itertuples()
         ]  # fmt: skip
-        db.store_batch(engine, rows, [])
+        cut = rows[-1].ts_ms // STEP_MS * STEP_MS - STEP_MS
+        db.store_batch(engine, [r for r in rows if r.ts_ms < cut], [])
+        tail.extend(r for r in rows if r.ts_ms >= cut)
         cabinet = {"setpoint_c": 5.0, "low_limit_c": 2.0, "high_limit_c": 8.0}
         register(engine, f"unit-{k}", {"site": f"site-{k % 3}", "cabinet": cabinet})
     engine.dispose()
+    return tail
 
 
 def lagging(engine: sa.Engine) -> int:
@@ -79,6 +84,7 @@ def worker(url: str, ready: Any, go: Any, finished: Any) -> None:
         if not report.steps:
             time.sleep(0.5)  # its share is done: wait like the live loop, leave the cores
     finished.put(time.time())
+    shards.retire()
     engine.dispose()
 
 
@@ -106,6 +112,23 @@ def run(pg: Postgres, template: str, processes: int, tag: str) -> float:
     return max(ends) - start
 
 
+def live_step(url: str, tail: list[db.Reading], devices: int) -> None:
+    """One process's live round: every device's next hour arrives, then a round with nothing
+    new (alerts still judge silence on the wall clock every round)."""
+    engine = db.make_engine(url)
+    db.store_batch(engine, tail, [])
+    shards = ShardedAnalysis(engine, lease_s=120, devices_per_commit=20)
+    for label in ("a new hour per device", "nothing new"):
+        report = shards.round(now_ms=db.now_ms())
+        assert len(report.analysed) == devices, report
+        print(
+            f"live round, {label:22s}: {report.seconds:6.2f} s for {devices} devices, "
+            f"{1000 * report.seconds / devices:6.1f} ms per device"
+        )
+    shards.retire()
+    engine.dispose()
+
+
 def main() -> None:
     parser = argparse.ArgumentParser()
     parser.add_argument("--devices", type=int, default=24)
@@ -116,8 +139,8 @@ def main() -> None:
     pg.start()
     try:
         template = "fleet"
-        store_fleet(pg.create_database(template), args.devices, args.days)
-        hours = args.devices * args.days * 24
+        tail = store_fleet(pg.create_database(template), args.devices, args.days)
+        hours = args.devices * args.days * 24 - args.devices
         print(f"fleet: {args.devices} devices x {args.days:g} days = {hours:.0f} device-hours")
         print(f"cores: {os.cpu_count()}, load average before: {os.getloadavg()[0]:.2f}")
         base = None
@@ -129,6 +152,7 @@ def main() -> None:
                 f"{n} analysis process(es): {seconds:6.1f} s, {rate:7.1f} device-hours/s "
                 f"({rate / base:.2f}x one process), load average {os.getloadavg()[0]:.2f}"
             )
+        live_step(pg.url(f"run_{args.workers.split(',')[0]}"), tail, args.devices)
     finally:
         pg.destroy()
 

@@ -126,6 +126,14 @@ def live_step(url: str, tail: list[db.Reading], devices: int) -> None:
             f"{1000 * report.seconds / devices:6.1f} ms per device"
         )
     shards.retire()
+    with engine.connect() as c:
+        size = c.execute(sa.text("SELECT pg_total_relation_size('readings')")).scalar_one()
+        count = c.execute(sa.text("SELECT count(*) FROM readings")).scalar_one()
+    per_reading = size / count
+    print(
+        f"disk: {per_reading:.0f} bytes per stored reading (table and indexes), "
+        f"{per_reading * 525_600 / 1e6:.0f} MB per device-year at one reading a minute"
+    )
     engine.dispose()
 
 

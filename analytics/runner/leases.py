@@ -29,6 +29,7 @@ from tecfleet.ingest.db import alert_records as records
 from tecfleet.ingest.db import analysis as analysis_db
 from tecfleet.ingest.db import leases as leases_db
 from tecfleet.ingest.db import now_ms as wall_ms
+from tecfleet.ingest.db.analysis import DeviceToAnalyze
 
 __all__ = ["ShardReport", "ShardedAnalysis", "new_worker_id"]
 
@@ -89,13 +90,32 @@ class ShardedAnalysis:
             )
         step = self.devices_per_commit
         for k in range(0, len(report.held), step):
+            if k:
+                # A long round still counts as alive, so the others keep to their share.
+                with self.engine.begin() as conn:
+                    leases_db.heartbeat(conn, self.worker_id, wall_ms(), self.lease_ms)
             with self.engine.begin() as conn:
                 mine = leases_db.hold(
                     conn, self.worker_id, report.held[k : k + step], wall_ms(), self.lease_ms
                 )
                 overrides = records.load_overrides(conn)
-                for device_id in mine:
-                    self._analyse(conn, device_id, now_ms, overrides, report)
+                done = leases_db.progress(conn, mine)
+                devs = leases_db.devices_of(conn, mine)
+                # Only the states of devices with a complete step to analyse are read: a round
+                # comes far more often than a step completes.
+                step_ms = self.settings.step_s * 1000
+                due = [
+                    d.device_id
+                    for d in devs
+                    if d.device_id in done
+                    and d.last_reading_ms // step_ms * step_ms > done[d.device_id]
+                ]
+                states = analysis_db.read_states(conn, due)
+                for dev in devs:
+                    saved = None
+                    if dev.device_id in done:
+                        saved = (done[dev.device_id], states.get(dev.device_id, {}))
+                    self._analyse(conn, dev, saved, now_ms, overrides, report)
         report.seconds = time.perf_counter() - started
         return report
 
@@ -107,28 +127,20 @@ class ShardedAnalysis:
     def _analyse(
         self,
         conn: Connection,
-        device_id: str,
+        dev: Any,
+        saved: tuple[int, dict[str, Any]] | None,
         now_ms: int | None,
         overrides: dict[tuple[str, str], dict[str, Any]],
         report: ShardReport,
     ) -> None:
-        """Estimates, then alerts, of one held device in the caller's transaction."""
-        (dev,) = analysis_db.devices_with_readings(conn, device_id) or (None,)
-        if dev is None:
-            return
-        done = leases_db.progress(conn, [device_id]).get(device_id)
-        saved = None
-        if done is not None:
-            saved = (done, analysis_db.read_states(conn, [device_id]).get(device_id, {}))
-        steps, estimates = analyze_device(conn, dev, saved, self.settings)
+        """Estimates, then alerts, of one held device in the caller's transaction; ``saved``
+        is its progress and carried state (None if never analysed)."""
+        target = DeviceToAnalyze(dev.device_id, dev.module, dev.cabinet, int(dev.last_reading_ms))
+        steps, estimates = analyze_device(conn, target, saved, self.settings)
         report.steps += steps
         report.estimates += estimates
-        report.analysed.append(device_id)
-        _fleet_newest, devs = records.devices_to_evaluate(conn, device_id)
+        report.analysed.append(dev.device_id)
         reference = now_ms if now_ms is not None else wall_ms()
-        for alert_dev in devs:
-            if alert_dev.last_reading_ms is None:
-                continue
-            policy = policy_for(self.policy, overrides, alert_dev.device_id, alert_dev.site)
-            changes = evaluate_device(conn, alert_dev, policy, reference, reference)
-            report.alert_changes += len(changes)
+        policy = policy_for(self.policy, overrides, dev.device_id, dev.site)
+        changes = evaluate_device(conn, dev, policy, reference, reference)
+        report.alert_changes += len(changes)

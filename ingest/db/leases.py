@@ -32,7 +32,7 @@ from sqlalchemy.engine import Connection
 
 from tecfleet.ingest.db.tables import analysis_leases, analysis_state, analysis_workers, devices
 
-__all__ = ["claim", "heartbeat", "hold", "holders", "progress", "retire"]
+__all__ = ["claim", "devices_of", "heartbeat", "hold", "holders", "progress", "retire"]
 
 #: Devices named in one statement (well under the bound parameters SQLite allows).
 _IDS_PER_STATEMENT = 500
@@ -145,6 +145,26 @@ def holders(conn: Connection, now_ms: int) -> dict[str, str]:
         )
     )
     return {r.device_id: r.owner for r in rows}
+
+
+def devices_of(conn: Connection, device_ids: Sequence[str]) -> list[Any]:
+    """Registration, status and newest reading of these devices (those with readings), in id
+    order: what the estimates and the alert rules of a device need, in one query."""
+    d = devices
+    found: list[Any] = []
+    for k in range(0, len(device_ids), _IDS_PER_STATEMENT):
+        found.extend(
+            conn.execute(
+                sa.select(
+                    d.c.device_id, d.c.site, d.c.module, d.c.cabinet, d.c.status,
+                    d.c.status_at_ms, d.c.last_reading_ms,
+                ).where(
+                    d.c.device_id.in_(device_ids[k : k + _IDS_PER_STATEMENT]),
+                    d.c.last_reading_ms.is_not(None),
+                )
+            ).fetchall()
+        )  # fmt: skip
+    return sorted(found, key=lambda row: str(row.device_id))
 
 
 def progress(conn: Connection, device_ids: Sequence[str]) -> dict[str, int]:

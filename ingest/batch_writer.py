@@ -47,13 +47,15 @@ class Inbox:
     """Messages from the network thread to the writer, handed over a batch at a time.
 
     ``put`` never blocks (the broker's in-flight window bounds what can arrive); ``take``
-    blocks until a batch is complete: ``max_readings`` readings, or ``max_wait_s`` after the
-    first message waiting.
+    blocks until a batch is complete: ``max_readings`` readings, ``max_messages`` messages (the
+    broker's in-flight window: no more arrive before some are acknowledged), or ``max_wait_s``
+    after the first message waiting.
     """
 
-    def __init__(self, max_readings: int, max_wait_s: float) -> None:
+    def __init__(self, max_readings: int, max_wait_s: float, max_messages: int) -> None:
         self.max_readings = max_readings
         self.max_wait_s = max_wait_s
+        self.max_messages = max_messages
         #: Most messages ever waiting at once [count].
         self.max_depth = 0
         self._items: list[Received] = []
@@ -75,7 +77,7 @@ class Inbox:
             if depth == 1:
                 self._first_at = time.monotonic()
                 self._waiting.set()
-            if self._readings >= self.max_readings:
+            if self._readings >= self.max_readings or depth >= self.max_messages:
                 self._full.set()
         self.max_depth = max(self.max_depth, depth)
 
@@ -106,7 +108,7 @@ class Inbox:
             if not self._finished:
                 if not self._items:
                     self._waiting.clear()
-                if self._readings < self.max_readings:
+                if self._readings < self.max_readings and len(self._items) < self.max_messages:
                     self._full.clear()
         return batch
 

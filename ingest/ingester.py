@@ -44,7 +44,9 @@ class Ingester:
     def __init__(self, settings: Settings, engine: Engine) -> None:
         self.settings = settings
         self.engine = engine
-        self._inbox = Inbox(settings.batch_max_readings, settings.batch_max_wait_s)
+        self._inbox = Inbox(
+            settings.batch_max_readings, settings.batch_max_wait_s, settings.mqtt_receive_maximum
+        )
         self._stopping = threading.Event()
         self._session = MqttSession(settings, self._on_message, self._stopping)
         self._batches = BatchWriter(settings, engine, self._inbox, self._stopping, self._ack)

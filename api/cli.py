@@ -94,7 +94,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
             "mqtt_client_id": "tecfleet-demo-ingester",
             "http_port": args.port,
             "analyze_every_s": args.analyze_every,
-            "roles": "ingest,analytics,api",
+            "roles": "ingest,analytics,api,delivery",
             "secret_key_file": str(data_dir / "secret.key"),
         },
         env={},

@@ -1,7 +1,13 @@
-"""Runs the roles of one tecfleet process: ingester, analytics loop and HTTP API.
+"""Runs the roles of one tecfleet process: ingester, analytics loop, HTTP API and delivery.
 
-Ctrl-C / SIGTERM stops the HTTP server first, then the analytics loop, then drains the
-ingester (commit and acknowledge what was received) before the process exits.
+Every role keeps its state in the database, so each may run in any number of processes beside
+the others: ingesters split the stream through a shared subscription, analysis processes on
+PostgreSQL share the fleet through device leases (:mod:`tecfleet.analytics.runner.leases`),
+API processes are stateless, and deliverers claim the notices they send.
+
+Ctrl-C / SIGTERM stops the HTTP server first, then the analytics loop (giving its leases back),
+then delivery, then drains the ingester (commit and acknowledge what was received) before the
+process exits.
 """
 
 from __future__ import annotations
@@ -10,17 +16,21 @@ import logging
 import signal
 import threading
 from collections.abc import Callable
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import uvicorn
 from fastapi import FastAPI
 from sqlalchemy.engine import Engine
+from sqlalchemy.exc import SQLAlchemyError
 
 from tecfleet.api.app import create_app
 from tecfleet.api.delivery import Notifier
 from tecfleet.ingest.db import now_ms
 from tecfleet.ingest.ingester import Ingester
 from tecfleet.ingest.settings import Settings
+
+if TYPE_CHECKING:
+    from tecfleet.analytics.runner.leases import ShardedAnalysis
 
 log = logging.getLogger(__name__)
 
@@ -37,6 +47,7 @@ class Service:
         self.ingester = Ingester(settings, engine) if "ingest" in settings.roles else None
         self.server: uvicorn.Server | None = None
         self._analytics: threading.Thread | None = None
+        self._shards: ShardedAnalysis | None = None
         self.notifier: Notifier | None = None
 
     def ready(self) -> tuple[bool, str]:
@@ -48,11 +59,15 @@ class Service:
         """Run until a signal (or ``stop``), then shut down in order."""
         if self.ingester is not None:
             self.ingester.start()
-        if "analytics" in self.settings.roles or "api" in self.settings.roles:
+        if "delivery" in self.settings.roles:
             self.notifier = Notifier(self.engine, self.settings)
             self.notifier.start()
         if "analytics" in self.settings.roles:
-            analyze = analysis_round(self.settings, self.engine)
+            if self.engine.dialect.name == "postgresql":
+                self._shards = sharded_analysis(self.settings, self.engine)
+                analyze = sharded_round(self._shards)
+            else:
+                analyze = analysis_round(self.settings, self.engine)
             self._analytics = threading.Thread(
                 target=analytics_loop,
                 args=(analyze, self.stopping, self.analytics_gate, self.settings.analyze_every_s),
@@ -108,6 +123,11 @@ class Service:
         self.stopping.set()
         if self._analytics is not None:
             self._analytics.join(30)
+        if self._shards is not None:
+            try:
+                self._shards.retire()
+            except SQLAlchemyError:  # the leases lapse by themselves
+                log.warning("could not give the analysis leases back", exc_info=True)
         if self.notifier is not None:
             self.notifier.stop()
         if self.ingester is not None:
@@ -156,5 +176,26 @@ def analysis_round(settings: Settings, engine: Engine) -> Callable[[], Any]:
         report = runner.analyze(engine)
         alerts.evaluate(engine, now_ms=now_ms())
         return report
+
+    return round_
+
+
+def sharded_analysis(settings: Settings, engine: Engine) -> ShardedAnalysis:
+    """This process's worker of the sharded analysis (PostgreSQL)."""
+    from tecfleet.analytics.runner.leases import ShardedAnalysis
+
+    return ShardedAnalysis(
+        engine,
+        lease_s=settings.analysis_lease_s,
+        devices_per_commit=settings.analysis_devices_per_commit,
+    )
+
+
+def sharded_round(shards: ShardedAnalysis) -> Callable[[], Any]:
+    """The analytics loop's round on PostgreSQL: estimates and alerts of this worker's devices.
+    The live service judges "offline" on the wall clock."""
+
+    def round_() -> Any:
+        return shards.round(now_ms=now_ms())
 
     return round_

@@ -1,11 +1,11 @@
-"""MQTT ingester: the network callback validates and enqueues, one writer commits in batches.
+"""MQTT ingester: the network callback validates and hands over, one writer commits in batches.
 
-The pattern is that of a logging queue listener: paho's network thread only parses a message and
-puts it on a queue; a single writer thread takes messages off the queue, stores a batch in one
-transaction (bounded by size and by time, whichever comes first) and only then acknowledges every
-message of the batch to the broker, in the order received. A crash before the commit loses
-nothing (the broker redelivers what was not acknowledged) and a redelivery stores nothing twice
-(the insert is idempotent on device and timestamp).
+Paho's network thread only parses a message and puts it in the writer's inbox; a single writer
+thread takes a batch at a time (bounded by size and by time, whichever comes first), stores it in
+one transaction and only then acknowledges every message of the batch to the broker, in the
+order received. A crash before the commit loses nothing (the broker redelivers what was not
+acknowledged) and a redelivery stores nothing twice (the insert is idempotent on device and
+timestamp).
 
 Memory stays bounded while the database is down: the broker sends at most Receive Maximum
 (MQTT 5) or its in-flight window (3.1.1) unacknowledged messages, and nothing is acknowledged
@@ -18,7 +18,6 @@ the life cycle of the whole.
 
 from __future__ import annotations
 
-import queue
 import threading
 import time
 from typing import Any
@@ -28,14 +27,10 @@ from paho.mqtt.enums import MQTTProtocolVersion
 from sqlalchemy.engine import Engine
 
 from tecfleet.ingest import metrics
-from tecfleet.ingest.batch_writer import BatchWriter, Received
+from tecfleet.ingest.batch_writer import BatchWriter, Inbox, Received
 from tecfleet.ingest.mqtt_session import MqttSession
 from tecfleet.ingest.payload import parse_message
 from tecfleet.ingest.settings import Settings
-
-# Label lookups cost more than the increment; resolve them once.
-_TELEMETRY_MESSAGES = metrics.MESSAGES.labels("telemetry")
-_STATUS_MESSAGES = metrics.MESSAGES.labels("status")
 
 
 class Ingester:
@@ -49,10 +44,12 @@ class Ingester:
     def __init__(self, settings: Settings, engine: Engine) -> None:
         self.settings = settings
         self.engine = engine
-        self._queue: queue.Queue[Any] = queue.Queue()
+        self._inbox = Inbox(
+            settings.batch_max_readings, settings.batch_max_wait_s, settings.mqtt_receive_maximum
+        )
         self._stopping = threading.Event()
         self._session = MqttSession(settings, self._on_message, self._stopping)
-        self._batches = BatchWriter(settings, engine, self._queue, self._stopping, self._ack)
+        self._batches = BatchWriter(settings, engine, self._inbox, self._stopping, self._ack)
         self._writer = threading.Thread(
             target=self._batches.run, name="tecfleet-writer", daemon=True
         )
@@ -60,7 +57,6 @@ class Ingester:
             target=self._session.connect, name="tecfleet-mqtt", daemon=True
         )
         self.messages_received = 0
-        self.max_queue_depth = 0
 
     @property
     def ready(self) -> threading.Event:
@@ -85,28 +81,31 @@ class Ingester:
         self._session.close()
         metrics.CONNECTED.set(0)
 
+    @property
+    def max_queue_depth(self) -> int:
+        """Most messages ever waiting for the writer at once."""
+        return self._inbox.max_depth
+
     def backlog(self) -> int:
-        """Messages received and not yet committed."""
-        return self._queue.qsize()
+        """Messages received and waiting for the writer."""
+        return len(self._inbox)
 
     def _on_message(self, _client: mqtt.Client, _userdata: Any, message: mqtt.MQTTMessage) -> None:
         # Network thread: validate and enqueue only. Once stopping, leave messages
         # unacknowledged so the broker hands them over again next session.
         if self._stopping.is_set():
             return
+        settings = self.settings
         parsed = parse_message(
             message.topic,
             bytes(message.payload),
-            prefix=self.settings.topic_prefix,
+            prefix=settings.topic_prefix,
             now_s=time.time(),
-            future_tolerance_s=self.settings.future_tolerance_s,
-            max_payload_bytes=self.settings.max_payload_bytes,
+            future_tolerance_s=settings.future_tolerance_s,
+            max_payload_bytes=settings.max_payload_bytes,
         )
-        (_STATUS_MESSAGES if parsed.status is not None else _TELEMETRY_MESSAGES).inc()
-        self._queue.put(Received(self._session.generation, message.mid, message.qos, parsed))
-        metrics.QUEUE_DEPTH.inc()
+        self._inbox.put(Received(self._session.generation, message.mid, message.qos, parsed))
         self.messages_received += 1
-        self.max_queue_depth = max(self.max_queue_depth, self._queue.qsize())
 
     def _ack(self, item: Received) -> None:
         # Called by the writer once the item's batch is committed.

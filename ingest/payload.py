@@ -21,7 +21,7 @@ from pydantic import ValidationError
 
 from tecfleet.ingest.db import Reading, Reject, StatusUpdate
 from tecfleet.ingest.senml import is_senml, senml_items
-from tecfleet.ingest.telemetry_item import SUMMARY_TYPES, TelemetryItem, describe_errors
+from tecfleet.ingest.telemetry_item import describe_errors, validate_item
 
 DEVICE_ID_RE = re.compile(r"^[A-Za-z0-9_.\-]{1,64}$")
 
@@ -94,9 +94,8 @@ def parse_message(
     items, single = shaped
     limit_s = now_s + future_tolerance_s
     for index, item in enumerate(items):
-        raw = payload if single else orjson.dumps(item)
         item_no = None if single else index
-        outcome = _check_item(item, message, raw, item_no, now_s, limit_s, future_tolerance_s)
+        outcome = _check_item(item, message, item_no, now_s, limit_s, future_tolerance_s)
         if isinstance(outcome, Reject):
             out.rejects.append(outcome)
         else:
@@ -172,10 +171,13 @@ def _items_of(
     return None
 
 
+#: Reading fields after device and time, filled from the validated item by name.
+_VALUE_FIELDS = Reading._fields[2:]
+
+
 def _check_item(
     item: Any,
     message: _Message,
-    raw: bytes,
     item_no: int | None,
     now_s: float,
     limit_s: float,
@@ -184,40 +186,34 @@ def _check_item(
     """One item's reading, or the reject naming what is wrong with it."""
     device_id = message.device_id
     if not isinstance(item, dict):
-        return message.reject("wrong_shape", "batch item is not a JSON object", raw, item_no)
+        return _refuse(message, item, item_no, "wrong_shape", "batch item is not a JSON object")
     claimed = item.get("device_id")
     if claimed is not None and claimed != device_id:
-        return message.reject(
+        return _refuse(
+            message,
+            item,
+            item_no,
             "device_mismatch",
             f"payload names device {str(claimed)[:64]!r} but the topic names {device_id!r}",
-            raw,
-            item_no,
         )
     try:
-        valid = TelemetryItem.model_validate(item)
+        valid = validate_item(item)
     except ValidationError as exc:
-        code, reason = describe_errors(exc)
-        return message.reject(code, reason, raw, item_no)
-    ts_s: float = valid.ts
+        return _refuse(message, item, item_no, *describe_errors(exc))
+    ts_s: float = valid["ts"]
     if ts_s > limit_s:
-        return message.reject(
+        return _refuse(
+            message,
+            item,
+            item_no,
             "future_timestamp",
             f"ts is {ts_s - now_s:.0f} s ahead of the receiving clock "
             f"(limit {future_tolerance_s:.0f} s)",
-            raw,
-            item_no,
         )
-    return Reading(
-        device_id=device_id,
-        ts_ms=round(ts_s * 1000.0),
-        t_cabinet=valid.t_cabinet,
-        t_cold=valid.t_cold,
-        t_hot=valid.t_hot,
-        t_ambient=valid.t_ambient,
-        current=valid.current,
-        voltage=valid.voltage,
-        seq=valid.seq,
-        rh=valid.rh,
-        door_open=valid.door_open,
-        **{name: getattr(valid, name) for name in SUMMARY_TYPES},
-    )
+    return Reading._make((device_id, round(ts_s * 1000.0), *map(valid.get, _VALUE_FIELDS)))
+
+
+def _refuse(message: _Message, item: Any, item_no: int | None, code: str, reason: str) -> Reject:
+    # A batch item is kept on its own; it is serialised again only when refused.
+    raw = None if item_no is None else orjson.dumps(item)
+    return message.reject(code, reason, raw, item_no)

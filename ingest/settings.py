@@ -24,7 +24,7 @@ from pydantic_settings import (
 
 from tecfleet.ingest.errors import SettingsError
 
-ROLES = ("ingest", "analytics", "api")
+ROLES = ("ingest", "analytics", "api", "delivery")
 _PREFIX_RE = re.compile(r"^[A-Za-z0-9_.\-/]{1,64}$")
 
 
@@ -101,6 +101,12 @@ class Settings(BaseSettings):
     reject_payload_cap_bytes: int = Field(4096, ge=64)
     max_payload_bytes: int = Field(1_048_576, ge=1024)
     future_tolerance_s: float = Field(300.0, ge=0)
+    #: How long an analysis process keeps a device without renewing its lease, and counts as
+    #: alive without a heartbeat [s]: a few analysis rounds (common practice, no source).
+    analysis_lease_s: float = Field(120.0, gt=0)
+    #: Devices analysed per transaction by a sharded analysis process [count] (common
+    #: practice, no source).
+    analysis_devices_per_commit: int = Field(20, ge=1)
     config: Path | None = None
 
     # REST API limits and secrets; every limit is common practice, no source.

@@ -6,22 +6,30 @@ single-stage modules are rated near 30 A), voltage -60..60 V (a 48 V supply with
 negative while the module is off and its Seebeck voltage floats), relative humidity 0..100 %.
 Timestamps must not be before 2000-01-01.
 
-The interval summaries (``SUMMARY_TYPES``; ingest/PAYLOAD.md) are optional, each checked
-against its own limits when sent: a unit that samples fast but reports slowly sends the means
-over the interval its reading closes.
-
 The face probes (``t_cold``, ``t_hot``) are optional: a unit without such a probe leaves the
 field out. A face temperature that is sent is checked like every other temperature, and an
-explicit ``null`` is refused as before (a unit either has the probe or omits the field).
+explicit ``null`` is refused as before (a unit either has the probe or omits the field). The
+interval summaries (``interval_s``, the means, ``on_share``, the cabinet's least and greatest)
+are optional in the same way: sent as numbers within their limits, or left out.
 """
 
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from dataclasses import dataclass
 from datetime import datetime
-from typing import Annotated, Any
+from typing import Annotated, Any, NotRequired, Required
 
-from pydantic import BaseModel, ConfigDict, Field, Strict, ValidationError, field_validator
+from pydantic import (
+    AfterValidator,
+    BeforeValidator,
+    Field,
+    Strict,
+    TypeAdapter,
+    ValidationError,
+)
+from typing_extensions import TypedDict
 
 EPOCH_2000_S = 946_684_800.0
 
@@ -32,80 +40,75 @@ V_MIN_V, V_MAX_V = -60.0, 60.0
 StrictFloat = Annotated[float, Strict(), Field(allow_inf_nan=False)]
 #: Longest interval a summary may cover: a day [s].
 INTERVAL_MAX_S = 86_400.0
-Temperature = Annotated[StrictFloat, Field(ge=T_MIN_C, le=T_MAX_C)]
-Current = Annotated[StrictFloat, Field(ge=I_MIN_A, le=I_MAX_A)]
-
-Interval = Annotated[StrictFloat, Field(gt=0.0, le=INTERVAL_MAX_S)]
-CurrentSquared = Annotated[StrictFloat, Field(ge=0.0, le=I_MAX_A**2)]
-Power = Annotated[StrictFloat, Field(ge=0.0, le=V_MAX_V * I_MAX_A)]
-Share = Annotated[StrictFloat, Field(ge=0.0, le=1.0)]
-
-#: The optional interval summaries, each with the limits it is checked against: an interval of
-#: up to a day [s], the temperatures' limits [°C], the current's [A] and its square's [A²],
-#: power up to the largest voltage times the largest current [W], a share [-].
-SUMMARY_TYPES: dict[str, Any] = {
-    "interval_s": Interval,
-    "t_cabinet_mean": Temperature,
-    "t_cold_mean": Temperature,
-    "t_hot_mean": Temperature,
-    "t_ambient_mean": Temperature,
-    "current_mean": Current,
-    "current_sq_mean": CurrentSquared,
-    "power_mean": Power,
-    "on_share": Share,
-    "t_cabinet_min": Temperature,
-    "t_cabinet_max": Temperature,
-}
 
 
-class TelemetryItem(BaseModel):
-    """One reading as published; temperatures in °C; ``t_cold``/``t_hot`` None: no such probe."""
+@dataclass(frozen=True, slots=True)
+class Channel:
+    """One numeric field of a reading: its plausible range and whether it must be sent.
 
-    model_config = ConfigDict(extra="ignore")
+    ``probe``: an optional face probe, absent when the unit has none, but refused when sent as
+    ``null`` (a unit either has the probe or omits the field); ``summary``: an interval summary,
+    likewise sent as a number or left out; any other optional field may be ``null``.
+    ``low_open``: the low limit itself is refused (an interval must last).
+    """
 
-    ts: Any
-    seq: Annotated[int, Strict(), Field(ge=0)] | None = None
-    t_cabinet: Temperature
-    t_cold: Temperature | None = None
-    t_hot: Temperature | None = None
-    t_ambient: Temperature
-    current: Current
-    voltage: Annotated[StrictFloat, Field(ge=V_MIN_V, le=V_MAX_V)]
-    rh: Annotated[StrictFloat, Field(ge=0.0, le=100.0)] | None = None
-    door_open: Annotated[bool, Strict()] | None = None
-    # Interval summaries (None: not sent), as listed in ``SUMMARY_TYPES``.
-    interval_s: Interval | None = None
-    t_cabinet_mean: Temperature | None = None
-    t_cold_mean: Temperature | None = None
-    t_hot_mean: Temperature | None = None
-    t_ambient_mean: Temperature | None = None
-    current_mean: Current | None = None
-    current_sq_mean: CurrentSquared | None = None
-    power_mean: Power | None = None
-    on_share: Share | None = None
-    t_cabinet_min: Temperature | None = None
-    t_cabinet_max: Temperature | None = None
+    name: str
+    low: float
+    high: float
+    required: bool = False
+    probe: bool = False
+    summary: bool = False
+    low_open: bool = False
 
-    @field_validator("t_cold", "t_hot", mode="before")
-    @classmethod
-    def _probe_sent_as_number(cls, value: Any) -> Any:
-        # Only a value that was sent reaches this: an absent probe keeps its default.
-        if value is None:
-            raise ValueError("Input should be a valid number; leave the field out without a probe")
-        return value
 
-    @field_validator(*SUMMARY_TYPES, mode="before")
-    @classmethod
-    def _summary_sent_as_number(cls, value: Any) -> Any:
-        # As for the probes: a summary is either sent as a number or left out.
-        if value is None:
-            raise ValueError("Input should be a valid number; leave the summary out if not kept")
-        return value
+#: The numeric fields in the order their errors are reported; one line per field.
+CHANNELS: tuple[Channel, ...] = (
+    Channel("t_cabinet", T_MIN_C, T_MAX_C, required=True),  # [°C]
+    Channel("t_cold", T_MIN_C, T_MAX_C, probe=True),  # [°C]
+    Channel("t_hot", T_MIN_C, T_MAX_C, probe=True),  # [°C]
+    Channel("t_ambient", T_MIN_C, T_MAX_C, required=True),  # [°C]
+    Channel("current", I_MIN_A, I_MAX_A, required=True),  # [A]
+    Channel("voltage", V_MIN_V, V_MAX_V, required=True),  # [V]
+    Channel("rh", 0.0, 100.0),  # [%]
+    # Interval summaries over the interval ending at ts (see ingest/PAYLOAD.md).
+    Channel("interval_s", 0.0, INTERVAL_MAX_S, summary=True, low_open=True),  # [s]
+    Channel("t_cabinet_mean", T_MIN_C, T_MAX_C, summary=True),  # [°C]
+    Channel("t_cold_mean", T_MIN_C, T_MAX_C, summary=True),  # [°C]
+    Channel("t_hot_mean", T_MIN_C, T_MAX_C, summary=True),  # [°C]
+    Channel("t_ambient_mean", T_MIN_C, T_MAX_C, summary=True),  # [°C]
+    Channel("current_mean", I_MIN_A, I_MAX_A, summary=True),  # [A]
+    Channel("current_sq_mean", 0.0, I_MAX_A**2, summary=True),  # [A²]
+    Channel("power_mean", 0.0, V_MAX_V * I_MAX_A, summary=True),  # [W]
+    Channel("on_share", 0.0, 1.0, summary=True),  # [-]
+    Channel("t_cabinet_min", T_MIN_C, T_MAX_C, summary=True),  # [°C]
+    Channel("t_cabinet_max", T_MIN_C, T_MAX_C, summary=True),  # [°C]
+)
 
-    @field_validator("ts")
-    @classmethod
-    def _ts_seconds(cls, value: Any) -> float:
-        return parse_timestamp(value)
+
+def _probe_sent_as_number(value: Any) -> Any:
+    # Only a value that was sent reaches this: an absent probe stays absent.
+    if value is None:
+        raise ValueError("Input should be a valid number; leave the field out without a probe")
+    return value
+
+
+def _summary_sent_as_number(value: Any) -> Any:
+    # As for the probes: a summary is either sent as a number or left out.
+    if value is None:
+        raise ValueError("Input should be a valid number; leave the summary out if not kept")
+    return value
+
+
+def _channel_type(channel: Channel) -> Any:
+    low = Field(gt=channel.low) if channel.low_open else Field(ge=channel.low)
+    number = Annotated[StrictFloat, low, Field(le=channel.high)]
+    if channel.required:
+        return Required[number]
+    if channel.probe:
+        return NotRequired[Annotated[number | None, BeforeValidator(_probe_sent_as_number)]]
+    if channel.summary:
+        return NotRequired[Annotated[number | None, BeforeValidator(_summary_sent_as_number)]]
+    return NotRequired[number | None]
 
 
 def parse_timestamp(value: Any) -> float:
@@ -133,6 +136,27 @@ def parse_timestamp(value: Any) -> float:
     if seconds > 32_503_680_000.0:  # year 3000: keeps millisecond integers in range
         raise ValueError("timestamp is after year 3000")
     return seconds
+
+
+def _item_type() -> Any:
+    """The TypedDict of one reading as published, from :data:`CHANNELS`."""
+    fields: dict[str, Any] = {
+        "ts": Required[Annotated[Any, AfterValidator(parse_timestamp)]],
+        "seq": NotRequired[Annotated[int, Strict(), Field(ge=0)] | None],
+        **{channel.name: _channel_type(channel) for channel in CHANNELS},
+        "door_open": NotRequired[Annotated[bool, Strict()] | None],
+    }
+    make: Any = TypedDict  # a field table, not a class statement: one line per channel above
+    return make("TelemetryItem", fields)
+
+
+#: One reading as published (a dict of the fields sent; temperatures in °C). Validated in
+#: pydantic-core without a model instance per reading.
+TelemetryItem = _item_type()
+
+#: Validates one item into a dict of the fields sent; raises ``ValidationError`` (see
+#: :func:`describe_errors`).
+validate_item: Callable[[Any], dict[str, Any]] = TypeAdapter(TelemetryItem).validate_python
 
 
 _CODE_BY_PYDANTIC = {

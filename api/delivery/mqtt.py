@@ -52,19 +52,29 @@ class AlertPublisher:
         return self._mqtt
 
     def publish_pending(self) -> None:
-        """Publish pending notices oldest first; stop at the first the broker does not take."""
-        rows = delivery_db.mqtt_pending(self.engine)
-        if not rows:
-            return
-        client = self._client()
-        prefix = self.settings.topic_prefix
-        for row in rows:
-            body = orjson.dumps(alert_object(row.payload["alert"]))
-            info = client.publish(f"{prefix}/{row.device_id}/alerts", body, qos=1)
-            info.wait_for_publish(self.timeout_s)
-            if not info.is_published():
-                return  # broker gone; the rest stays pending for the next round
-            delivery_db.mark_mqtt_sent(self.engine, row.id)
+        """Publish pending notices oldest first; stop at the first the broker does not take.
+
+        One delivery process at a time publishes (see ``delivery_db.take_turn``), so each
+        device's notices go out in order and none twice; what was acknowledged is marked sent
+        in the same transaction.
+        """
+        with self.engine.begin() as conn:
+            if not delivery_db.take_turn(conn, delivery_db.MQTT_TURN):
+                return
+            rows = delivery_db.mqtt_pending(conn)
+            if not rows:
+                return
+            client = self._client()
+            prefix = self.settings.topic_prefix
+            sent: list[int] = []
+            for row in rows:
+                body = orjson.dumps(alert_object(row.payload["alert"]))
+                info = client.publish(f"{prefix}/{row.device_id}/alerts", body, qos=1)
+                info.wait_for_publish(self.timeout_s)
+                if not info.is_published():
+                    break  # broker gone; the rest stays pending for the next round
+                sent.append(int(row.id))
+            delivery_db.mark_mqtt_sent(conn, sent)
 
     def close(self) -> None:
         if self._mqtt is not None:

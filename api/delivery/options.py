@@ -28,3 +28,6 @@ class DeliveryOptions:
     group_window_ms: int = 900_000
     #: How long an "opened" notice waits for the rest of a site-wide event [ms].
     group_hold_ms: int = 10_000
+    #: Webhook deliveries one process claims at a time [count]; each claim lasts twice the
+    #: time their attempts can take.
+    claim_batch: int = 20

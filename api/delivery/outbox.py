@@ -1,4 +1,4 @@
-"""Draining the ``notifications`` outbox.
+"""Draining the ``notifications`` outbox, from any number of delivery processes at once.
 
 The alert ledger writes one row in ``notifications`` in the same transaction as each alert
 change; :class:`Notifier` (a thread) drains it, so a notice survives a restart. Only
@@ -84,6 +84,8 @@ def _group_bucket(
 def fan_out(engine: Engine, now: int, options: DeliveryOptions) -> None:
     """Group what belongs together, then one pending delivery per (live hook, notice)."""
     with engine.begin() as conn:
+        if not delivery_db.take_turn(conn, delivery_db.FAN_OUT_TURN):
+            return  # another delivery process is fanning out right now
         pending = delivery_db.pending_notices(conn)
         if not pending:
             return

@@ -128,12 +128,20 @@ class WebhookSender:
 
     def deliver_due(self, now: int) -> None:
         """Attempt every delivery due at ``now`` [ms]; those of deleted hooks are cancelled."""
-        due, notices = delivery_db.due_deliveries(self.engine, now)
-        for row in due:
-            if row.deleted_ms is not None:
-                self._finish(row.id, "cancelled", row.attempts, None, "webhook deleted")
-                continue
-            self._attempt(row, notices[row.notification_id])
+        # Claimed a few at a time, each claim for twice as long as its attempts can take, so
+        # no other delivery process sends them meanwhile.
+        claim_ms = int(self.options.claim_batch * self.options.timeout_s * 2000)
+        while True:
+            due, notices = delivery_db.due_deliveries(
+                self.engine, now, self.options.claim_batch, claim_ms
+            )
+            if not due:
+                return
+            for row in due:
+                if row.deleted_ms is not None:
+                    self._finish(row.id, "cancelled", row.attempts, None, "webhook deleted")
+                    continue
+                self._attempt(row, notices[row.notification_id])
 
     def _post(self, row: Any, notice: Any) -> int:
         """POST one signed notice; the HTTP status, or WebhookError / httpx.HTTPError."""

@@ -3,6 +3,14 @@ delivery log.
 
 The fan-out functions take a connection so that one round runs in one transaction; the rest
 open their own.
+
+Several delivery processes may drain one outbox. Fanning out and publishing to MQTT are cheap
+and keep each device's notices in order, so one process at a time does them: it takes a
+transaction-level advisory lock (:func:`take_turn`) and the others skip that part of the round.
+Webhook attempts are slow, so they are shared: :func:`due_deliveries` claims a few due
+deliveries (``FOR UPDATE SKIP LOCKED``) by moving their next attempt past the time their
+attempts can take; another process sees them as not due, and a claim whose process died is
+attempted again once it lapses.
 """
 
 from __future__ import annotations
@@ -18,7 +26,20 @@ from tecfleet.ingest.db.tables import notifications, webhook_deliveries, webhook
 
 #: Rows handled per round [count] (common practice, no source).
 MQTT_BATCH = 500
-DELIVERY_BATCH = 200
+
+#: Advisory lock keys of the parts of a delivery round that one process does at a time.
+FAN_OUT_TURN = 0x7466_0001
+MQTT_TURN = 0x7466_0002
+
+
+def take_turn(conn: Connection, key: int) -> bool:
+    """True when this transaction may do the part of the round named by ``key``: on
+    PostgreSQL, when no other transaction holds its advisory lock (held till this one ends);
+    SQLite has one process, so always."""
+    if conn.dialect.name != "postgresql":
+        return True
+    return bool(conn.execute(sa.select(sa.func.pg_try_advisory_xact_lock(key))).scalar_one())
+
 
 # -- fan-out (one transaction per round) -----------------------------------------------------
 
@@ -101,41 +122,54 @@ def fan_out_notice(conn: Connection, notice_id: int, hook_ids: Iterable[int], no
 # -- MQTT -----------------------------------------------------------------------------------
 
 
-def mqtt_pending(engine: Engine) -> list[Row[Any, Any, Any]]:
-    """``id``, ``device_id`` and ``payload`` of notices still to publish, oldest first."""
+def mqtt_pending(conn: Connection) -> list[Row[Any, Any, Any]]:
+    """``id``, ``device_id`` and ``payload`` of notices still to publish, oldest first (in the
+    caller's transaction, which should hold :data:`MQTT_TURN`)."""
     n = notifications
-    with engine.connect() as conn:
-        return list(
-            conn.execute(
-                sa.select(n.c.id, n.c.device_id, n.c.payload)
-                .where(n.c.mqtt_state == "pending")
-                .order_by(n.c.id)
-                .limit(MQTT_BATCH)
-            ).fetchall()
-        )
+    return list(
+        conn.execute(
+            sa.select(n.c.id, n.c.device_id, n.c.payload)
+            .where(n.c.mqtt_state == "pending")
+            .order_by(n.c.id)
+            .limit(MQTT_BATCH)
+        ).fetchall()
+    )
 
 
-def mark_mqtt_sent(engine: Engine, notice_id: int) -> None:
+def mark_mqtt_sent(conn: Connection, notice_ids: list[int]) -> None:
     n = notifications
-    with engine.begin() as conn:
-        conn.execute(n.update().where(n.c.id == notice_id).values(mqtt_state="sent"))
+    if notice_ids:
+        conn.execute(n.update().where(n.c.id.in_(notice_ids)).values(mqtt_state="sent"))
 
 
 # -- webhook deliveries ---------------------------------------------------------------------
 
 
-def due_deliveries(engine: Engine, now: int) -> tuple[list[Row[Any]], dict[int, Row[Any]]]:
-    """Pending deliveries due at ``now`` with their hook's url, secret and deletion time, and
-    the notices they carry by id."""
+def due_deliveries(
+    engine: Engine, now: int, limit: int, claim_ms: int
+) -> tuple[list[Row[Any]], dict[int, Row[Any]]]:
+    """Claim up to ``limit`` pending deliveries due at ``now`` [ms] for ``claim_ms`` [ms];
+    returns them with their hook's url, secret and deletion time, and the notices they carry
+    by id. Deliveries another process has locked or claimed are left to it."""
     d, w, n = webhook_deliveries, webhooks, notifications
-    with engine.connect() as conn:
+    with engine.begin() as conn:
+        ids = list(
+            conn.execute(
+                sa.select(d.c.id)
+                .where(d.c.state == "pending", d.c.next_attempt_ms <= now)
+                .order_by(d.c.id)
+                .limit(limit)
+                .with_for_update(skip_locked=True)
+            ).scalars()
+        )
+        if ids:
+            conn.execute(d.update().where(d.c.id.in_(ids)).values(next_attempt_ms=now + claim_ms))
         due = list(
             conn.execute(
                 sa.select(d, w.c.url, w.c.secret, w.c.deleted_ms)
                 .join(w, w.c.id == d.c.webhook_id)
-                .where(d.c.state == "pending", d.c.next_attempt_ms <= now)
+                .where(d.c.id.in_(ids))
                 .order_by(d.c.id)
-                .limit(DELIVERY_BATCH)
             ).fetchall()
         )
         notices = {

@@ -158,6 +158,24 @@ analysis_state = sa.Table(
 )
 
 
+# Sharded analysis (migration 0009): which analysis process holds each device, till when, and
+# which processes are alive. A device is analysed only under its lease (see ingest/db/leases.py).
+analysis_leases = sa.Table(
+    "analysis_leases",
+    metadata,
+    sa.Column("device_id", sa.String(64), sa.ForeignKey("devices.device_id"), primary_key=True),
+    sa.Column("owner", sa.String(120)),
+    sa.Column("expires_ms", sa.BigInteger, nullable=False, server_default="0"),
+    sa.Index("ix_analysis_leases_owner", "owner"),
+)
+
+analysis_workers = sa.Table(
+    "analysis_workers",
+    metadata,
+    sa.Column("worker_id", sa.String(120), primary_key=True),
+    sa.Column("seen_ms", sa.BigInteger, nullable=False),
+)
+
 # ---------------------------------------------------------------------------
 # Alerts: lifecycle and delivery (migration 0003). Written by the alert engine
 # (progress, audit, outbox) and the API's delivery (webhooks, outbox drain).

@@ -42,7 +42,7 @@ def test_singles_batches_senml_and_redeliveries_store_exactly_n(
         pub.flush()
         total = n_single + n_batch + n_senml
         assert wait_for(lambda: count_readings(engine) >= total, 60)
-        assert wait_for(lambda: ingester._queue.empty(), 10)
+        assert wait_for(lambda: ingester.backlog() == 0, 10)
         assert count_readings(engine, "cab-a") == n_single
         assert count_readings(engine, "cab-b") == n_batch
         assert count_readings(engine, "cab-c") == n_senml

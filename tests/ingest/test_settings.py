@@ -17,7 +17,7 @@ def test_contract_defaults() -> None:
     assert (s.topic_prefix, s.http_host, s.http_port) == ("tecfleet", "127.0.0.1", 8000)
     assert s.analyze_every_s == 30
     assert s.mqtt_client_id.startswith("tecfleet-")
-    assert s.roles == ("ingest", "analytics", "api")
+    assert s.roles == ("ingest", "analytics", "api", "delivery")  # every role by default
     assert s.share_group is None
     assert s.telemetry_filter == "tecfleet/+/telemetry"
 

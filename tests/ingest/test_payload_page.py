@@ -19,7 +19,7 @@ def blocks(language: str) -> list[str]:
 
 def test_every_json_example_is_stored_without_a_reject() -> None:
     examples = blocks("json")
-    assert len(examples) == 3
+    assert len(examples) == 4  # one reading, a batch, a SenML pack, interval summaries
     for text in examples:
         parsed = parse_message(
             "tecfleet/cab-17/telemetry", text.encode(), prefix="tecfleet", now_s=1_800_000_000.0

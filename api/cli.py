@@ -9,6 +9,7 @@ import threading
 from pathlib import Path
 from typing import Any
 
+from tecfleet.api.commands import db_retention
 from tecfleet.ingest.errors import TecfleetError
 from tecfleet.ingest.settings import Settings, load_settings
 
@@ -213,6 +214,7 @@ def build_parser() -> argparse.ArgumentParser:
     upgrade = db.add_parser("upgrade", help="apply pending migrations")
     _add_setting_flags(upgrade, only=("--db", "--config"))
     upgrade.set_defaults(func=cmd_db_upgrade)
+    db_retention.add_parser(db)
 
     analyze = sub.add_parser("analyze", help="bring estimates and alerts up to the newest reading")
     analyze.add_argument("--device", default=None)

@@ -18,6 +18,7 @@ from sqlalchemy.engine import Engine
 
 from tecfleet.api.app import create_app
 from tecfleet.api.delivery import Notifier
+from tecfleet.api.storage_upkeep import start_upkeep
 from tecfleet.ingest.db import now_ms
 from tecfleet.ingest.ingester import Ingester
 from tecfleet.ingest.settings import Settings
@@ -37,6 +38,7 @@ class Service:
         self.ingester = Ingester(settings, engine) if "ingest" in settings.roles else None
         self.server: uvicorn.Server | None = None
         self._analytics: threading.Thread | None = None
+        self._upkeep: threading.Thread | None = None
         self.notifier: Notifier | None = None
 
     def ready(self) -> tuple[bool, str]:
@@ -60,6 +62,8 @@ class Service:
                 daemon=True,
             )
             self._analytics.start()
+        if "ingest" in self.settings.roles or "analytics" in self.settings.roles:
+            self._upkeep = start_upkeep(self.engine, self.settings, self.stopping)
         try:
             if "api" in self.settings.roles:
                 app = create_app(self.engine, ready=self.ready, settings=self.settings)
@@ -108,6 +112,8 @@ class Service:
         self.stopping.set()
         if self._analytics is not None:
             self._analytics.join(30)
+        if self._upkeep is not None:
+            self._upkeep.join(30)
         if self.notifier is not None:
             self.notifier.stop()
         if self.ingester is not None:

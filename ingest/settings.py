@@ -101,6 +101,19 @@ class Settings(BaseSettings):
     reject_payload_cap_bytes: int = Field(4096, ge=64)
     max_payload_bytes: int = Field(1_048_576, ge=1024)
     future_tolerance_s: float = Field(300.0, ge=0)
+    # Retention (ingest/db/retention.py). Raw readings older than this many days are rolled up
+    # and removed; unset (the default) keeps them for ever, so nothing stored goes unless an
+    # operator asks for it [days].
+    raw_retention_days: float | None = Field(None, ge=1)
+    # Width of one rollup interval; must divide a day [s]. Common practice, no source.
+    rollup_interval_s: int = Field(3600, ge=60, le=86_400)
+    # Rollups kept this long [days]; ten years (common practice, no source).
+    rollup_retention_days: float = Field(3653.0, ge=1)
+    # PostgreSQL day partitions of readings made ahead of the clock [days]; a week covers a
+    # maintenance job that stopped for days (common practice, no source).
+    partitions_ahead_days: int = Field(7, ge=1, le=60)
+    # How often the service makes partitions ahead and applies retention [s].
+    retention_every_s: float = Field(3600.0, gt=0)
     config: Path | None = None
 
     @classmethod

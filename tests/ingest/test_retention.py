@@ -167,3 +167,13 @@ def test_policy_refuses_intervals_that_do_not_divide_a_day() -> None:
         RetentionPolicy(raw_keep_days=30, rollup_span_s=7 * 3600)
     with pytest.raises(StoreError, match="at least one day"):
         RetentionPolicy(raw_keep_days=0.5)
+
+
+def test_settings_give_the_policy_and_keep_everything_by_default() -> None:
+    from tecfleet.api.storage_upkeep import retention_policy
+    from tecfleet.ingest.settings import load_settings
+
+    assert retention_policy(load_settings(env={})) == RetentionPolicy(raw_keep_days=None)
+    env = {"TECFLEET_RAW_RETENTION_DAYS": "90", "TECFLEET_ROLLUP_INTERVAL_S": "900"}
+    policy = retention_policy(load_settings(env=env))
+    assert (policy.raw_keep_days, policy.rollup_span_s) == (90.0, 900)

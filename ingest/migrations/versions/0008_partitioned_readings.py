@@ -28,40 +28,27 @@ depends_on = None
 
 _DAY_MS = 86_400_000
 _AHEAD_DAYS = 7
-_COLUMNS = (
-    "id, device_id, ts_ms, seq, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, rh, "
-    "door_open, received_ms"
-)
 _CHANNELS = ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh")
 
-_COLUMN_DDL = """
-    id bigint NOT NULL DEFAULT nextval('readings_id_seq'),
-    device_id varchar(64) NOT NULL,
-    ts_ms bigint NOT NULL,
-    seq bigint,
-    t_cabinet double precision NOT NULL,
-    t_cold double precision,
-    t_hot double precision,
-    t_ambient double precision NOT NULL,
-    current double precision NOT NULL,
-    voltage double precision NOT NULL,
-    rh double precision,
-    door_open boolean,
-    received_ms bigint NOT NULL,
-    CONSTRAINT fk_readings_device_id_devices FOREIGN KEY (device_id)
-        REFERENCES devices (device_id),
-"""
-
+# The new table takes its columns from the old one (LIKE), so a column another revision added
+# comes along; the id keeps drawing from the same sequence.
+_FK = (
+    "CONSTRAINT fk_readings_device_id_devices FOREIGN KEY (device_id)"
+    " REFERENCES devices (device_id)"
+)
 _PARTITIONED = f"""
-CREATE TABLE readings ({_COLUMN_DDL}
-    CONSTRAINT pk_readings PRIMARY KEY (device_id, ts_ms)
+CREATE TABLE readings (
+    LIKE readings_unpartitioned INCLUDING DEFAULTS,
+    CONSTRAINT pk_readings PRIMARY KEY (device_id, ts_ms),
+    {_FK}
 ) PARTITION BY RANGE (ts_ms)
 """
-
 _PLAIN = f"""
-CREATE TABLE readings ({_COLUMN_DDL}
+CREATE TABLE readings (
+    LIKE readings_partitioned INCLUDING DEFAULTS,
     CONSTRAINT pk_readings PRIMARY KEY (id),
-    CONSTRAINT uq_readings_device_id_ts_ms UNIQUE (device_id, ts_ms)
+    CONSTRAINT uq_readings_device_id_ts_ms UNIQUE (device_id, ts_ms),
+    {_FK}
 )
 """
 
@@ -166,10 +153,7 @@ def _rename_old(new_name: str) -> None:
 
 def _copy_rows(source: str) -> None:
     """Every row of ``source`` into the new ``readings``, counted before ``source`` goes."""
-    op.execute(
-        f"INSERT INTO readings ({_COLUMNS}) SELECT {_COLUMNS} FROM {source} "
-        "ORDER BY device_id, ts_ms"
-    )
+    op.execute(f"INSERT INTO readings SELECT * FROM {source} ORDER BY device_id, ts_ms")
     before, after = _count(source), _count("readings")
     if before != after:
         raise StoreError(f"copied {after} of {before} readings; migration stopped, nothing lost")

@@ -157,16 +157,20 @@ def latest_estimates(engine: Engine, device_id: str) -> list[Any]:
     reliable, note, basis), in no particular order. A key that never had a value (the data
     cannot support one, e.g. a quantity the unit's sensors cannot reveal) comes with its
     newest row, value None, so that its reason is served."""
+    with engine.connect() as conn:
+        return list(conn.execute(latest_estimates_query(device_id)).all())
+
+
+def latest_estimates_query(device_id: str) -> sa.Select[Any]:
+    """The query behind :func:`latest_estimates`: one round trip, per key valued rows before
+    unvalued ones, newest first."""
     e = estimates
-    # One query (one round trip): per key, valued rows before unvalued ones, newest first.
     rank = sa.func.row_number().over(
         partition_by=e.c.key, order_by=(e.c.value.is_(None), e.c.at_ms.desc())
     )
     ranked = sa.select(*_ESTIMATE_READ, rank.label("rank")).where(e.c.device_id == device_id)
     inner = ranked.subquery()
-    q = sa.select(*(inner.c[c.name] for c in _ESTIMATE_READ)).where(inner.c.rank == 1)
-    with engine.connect() as conn:
-        return list(conn.execute(q).all())
+    return sa.select(*(inner.c[c.name] for c in _ESTIMATE_READ)).where(inner.c.rank == 1)
 
 
 def estimate_rows(

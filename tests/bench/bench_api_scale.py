@@ -91,6 +91,21 @@ def populate(engine: sa.Engine, n_dev: int, days: float, seed: int) -> int:
     return int(count)
 
 
+def database_ms(engine: sa.Engine, device_ids: list[str]) -> np.ndarray:
+    """Server-side execution time of the health answer's estimate query [ms], from
+    EXPLAIN ANALYZE: what the database spends, apart from round trips and the HTTP stack."""
+    from tecfleet.ingest.db import analysis
+
+    spent = []
+    with engine.connect() as c:
+        for device_id in device_ids:
+            query = analysis.latest_estimates_query(device_id)
+            compiled = query.compile(c, compile_kwargs={"literal_binds": True})
+            plan = c.execute(sa.text(f"EXPLAIN (ANALYZE, FORMAT JSON) {compiled}")).scalar_one()
+            spent.append(float(plan[0]["Execution Time"]) + float(plan[0]["Planning Time"]))
+    return np.array(spent)
+
+
 def serve(url: str, port: int) -> subprocess.Popen[bytes]:
     tecfleet = Path(sys.executable).with_name("tecfleet")
     env = dict(os.environ, TECFLEET_DATABASE_URL=url, TECFLEET_ROLES="api")
@@ -147,6 +162,9 @@ def main(argv: list[str] | None = None) -> int:
         print(f"== {args.devices} devices, {rows} estimates ({args.days:g} days), seed "
               f"{args.seed}; loaded in {loaded:.0f} s (not timed) ==")  # fmt: skip
         key = create_key(engine, "bench", "read")
+        rng = np.random.default_rng(args.seed + 1)
+        sample = [f"cooler-{i:05d}" for i in rng.integers(0, args.devices, size=500)]
+        report("health estimates query, database only", database_ms(engine, sample), 20, "p99")
         engine.dispose()
         port = free_port()
         server = serve(url, port)

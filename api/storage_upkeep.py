@@ -46,20 +46,27 @@ def describe(report: RetentionReport) -> str:
     )
 
 
-def upkeep_loop(engine: Engine, settings: Settings, stopping: threading.Event) -> None:
-    """Run the storage job until ``stopping``; a failed run is logged and retried next time."""
-    policy = retention_policy(settings)
+def upkeep_loop(
+    engine: Engine, policy: RetentionPolicy, every_s: float, stopping: threading.Event
+) -> None:
+    """Run the storage job every ``every_s`` seconds until ``stopping``; a failed run is logged
+    and retried next time."""
     while not stopping.is_set():
         try:
             log.info(describe(apply_retention(engine, policy, now_ms())))
         except TecfleetError:
             log.exception("storage upkeep failed")
-        stopping.wait(settings.retention_every_s)
+        stopping.wait(every_s)
 
 
 def start_upkeep(engine: Engine, settings: Settings, stopping: threading.Event) -> threading.Thread:
+    """Start the job in a thread; an unusable policy fails here, before the service runs."""
+    policy = retention_policy(settings)
     thread = threading.Thread(
-        target=upkeep_loop, args=(engine, settings, stopping), name="tecfleet-upkeep", daemon=True
+        target=upkeep_loop,
+        args=(engine, policy, settings.retention_every_s, stopping),
+        name="tecfleet-upkeep",
+        daemon=True,
     )
     thread.start()
     return thread

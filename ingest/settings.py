@@ -112,7 +112,8 @@ class Settings(BaseSettings):
     # PostgreSQL day partitions of readings made ahead of the clock [days]; a week covers a
     # maintenance job that stopped for days (common practice, no source).
     partitions_ahead_days: int = Field(7, ge=1, le=60)
-    # How often the service makes partitions ahead and applies retention [s].
+    # How often the service makes partitions ahead and applies retention [s] (common
+    # practice, no source).
     retention_every_s: float = Field(3600.0, gt=0)
     config: Path | None = None
 

@@ -177,3 +177,28 @@ def test_settings_give_the_policy_and_keep_everything_by_default() -> None:
     env = {"TECFLEET_RAW_RETENTION_DAYS": "90", "TECFLEET_ROLLUP_INTERVAL_S": "900"}
     policy = retention_policy(load_settings(env=env))
     assert (policy.raw_keep_days, policy.rollup_span_s) == (90.0, 900)
+
+
+def test_the_service_job_applies_the_policy_on_its_own(sqlite_url: str) -> None:
+    import threading
+    import time
+
+    from tecfleet.api.storage_upkeep import start_upkeep
+    from tecfleet.ingest.settings import load_settings
+
+    engine = db.make_engine(sqlite_url)
+    db.migrate(engine)
+    old = _fleet_rows(206, db.now_ms() - 5 * DAY_MS, 1.0)  # all older than the 3 days kept
+    db.store_batch(engine, old)
+    settings = load_settings({"raw_retention_days": 3, "retention_every_s": 0.05}, env={})
+    stopping = threading.Event()
+    thread = start_upkeep(engine, settings, stopping)
+    deadline = time.monotonic() + 30
+    while _stored(engine) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    stopping.set()
+    thread.join(10)
+    assert _stored(engine) == []
+    with engine.connect() as c:
+        kept = c.execute(sa.select(sa.func.sum(reading_rollups.c.n))).scalar()
+    assert kept == len(old)  # every reading removed is counted in a rollup

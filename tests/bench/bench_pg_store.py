@@ -48,6 +48,7 @@ def part_store(pg: Postgres, total: int, seed: int) -> None:
     print(f"\n== store_batch on partitioned readings: {total} readings per run, seed {seed} ==")
     print("batch  executemany/s  COPY/s  ratio")
     now = db.now_ms()
+    shipped = store.COPY_MIN_ROWS
     for size in (1, 10, 50, 200, 2000):
         rates = []
         for mode in ("executemany", "copy"):
@@ -62,7 +63,7 @@ def part_store(pg: Postgres, total: int, seed: int) -> None:
             rates.append((len(rows) - size) / (time.perf_counter() - t0))
             engine.dispose()
         print(f"{size:5d}  {rates[0]:13.0f}  {rates[1]:6.0f}  {rates[1] / rates[0]:5.2f}")
-    store.COPY_MIN_ROWS = 50
+    store.COPY_MIN_ROWS = shipped
 
 
 # The primary key carrying every reading column: one device's rows are read from index pages

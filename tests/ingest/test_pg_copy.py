@@ -38,15 +38,15 @@ def _store_all(engine: sa.Engine) -> list[int]:
     first = _batch(0, 300)
     counts = [db.store_batch(engine, first)]
     counts.append(db.store_batch(engine, first[100:] + _batch(300, 200)))  # a redelivery
-    counts.append(db.store_batch(engine, _batch(500, 100) + _batch(550, 100)))  # repeats inside
+    counts.append(db.store_batch(engine, _batch(500, 150) + _batch(550, 150)))  # repeats inside
     with engine.begin() as c:  # two batches in one transaction
-        counts.append(db.write_batch(c, _batch(700, 80), []))
-        counts.append(db.write_batch(c, _batch(760, 80), []))
+        counts.append(db.write_batch(c, _batch(700, 200), []))
+        counts.append(db.write_batch(c, _batch(800, 200), []))
     return counts
 
 
 def test_copy_path_stores_what_the_row_insert_stores(pg_url: str, sqlite_url: str) -> None:
-    assert store.COPY_MIN_ROWS <= 80  # every batch below takes the COPY path on PostgreSQL
+    assert store.COPY_MIN_ROWS <= 200  # every batch below takes the COPY path on PostgreSQL
     results = []
     for url in (pg_url, sqlite_url):
         engine = db.make_engine(url)
@@ -54,6 +54,6 @@ def test_copy_path_stores_what_the_row_insert_stores(pg_url: str, sqlite_url: st
         results.append((_store_all(engine), _contents(engine)))
         engine.dispose()
     (pg_counts, pg_contents), (ref_counts, ref_contents) = results
-    assert ref_counts == [300, 200, 150, 80, 60]  # new rows in each batch, counted by hand
+    assert ref_counts == [300, 200, 200, 200, 100]  # new rows in each batch, counted by hand
     assert pg_counts == ref_counts
     assert pg_contents == ref_contents

@@ -9,7 +9,7 @@ import threading
 from pathlib import Path
 from typing import Any
 
-from tecfleet.api.commands import agent, devices, import_, report
+from tecfleet.api.commands import agent, db_retention, devices, import_, report
 from tecfleet.api.commands import keys as keys_command
 from tecfleet.ingest.errors import TecfleetError
 from tecfleet.ingest.settings import Settings, load_settings
@@ -201,6 +201,7 @@ def build_parser() -> argparse.ArgumentParser:
     upgrade = db.add_parser("upgrade", help="apply pending migrations")
     _add_setting_flags(upgrade, only=("--db", "--config"))
     upgrade.set_defaults(func=cmd_db_upgrade)
+    db_retention.add_parser(db)
 
     analyze = sub.add_parser("analyze", help="bring estimates and alerts up to the newest reading")
     analyze.add_argument("--device", default=None)

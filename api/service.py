@@ -25,6 +25,7 @@ from sqlalchemy.exc import SQLAlchemyError
 
 from tecfleet.api.app import create_app
 from tecfleet.api.delivery import Notifier
+from tecfleet.api.storage_upkeep import start_upkeep
 from tecfleet.ingest.db import now_ms
 from tecfleet.ingest.ingester import Ingester
 from tecfleet.ingest.settings import Settings
@@ -48,6 +49,7 @@ class Service:
         self.server: uvicorn.Server | None = None
         self._analytics: threading.Thread | None = None
         self._shards: ShardedAnalysis | None = None
+        self._upkeep: threading.Thread | None = None
         self.notifier: Notifier | None = None
 
     def ready(self) -> tuple[bool, str]:
@@ -75,6 +77,8 @@ class Service:
                 daemon=True,
             )
             self._analytics.start()
+        if "ingest" in self.settings.roles or "analytics" in self.settings.roles:
+            self._upkeep = start_upkeep(self.engine, self.settings, self.stopping)
         try:
             if "api" in self.settings.roles:
                 app = create_app(self.engine, ready=self.ready, settings=self.settings)
@@ -128,6 +132,8 @@ class Service:
                 self._shards.retire()
             except SQLAlchemyError:  # the leases lapse by themselves
                 log.warning("could not give the analysis leases back", exc_info=True)
+        if self._upkeep is not None:
+            self._upkeep.join(30)
         if self.notifier is not None:
             self.notifier.stop()
         if self.ingester is not None:

@@ -107,6 +107,20 @@ class Settings(BaseSettings):
     #: Devices analysed per transaction by a sharded analysis process [count] (common
     #: practice, no source).
     analysis_devices_per_commit: int = Field(20, ge=1)
+    # Retention (ingest/db/retention.py). Raw readings older than this many days are rolled up
+    # and removed; unset (the default) keeps them for ever, so nothing stored goes unless an
+    # operator asks for it [days].
+    raw_retention_days: float | None = Field(None, ge=1)
+    # Width of one rollup interval; must divide a day [s]. Common practice, no source.
+    rollup_interval_s: int = Field(3600, ge=60, le=86_400)
+    # Rollups kept this long [days]; ten years (common practice, no source).
+    rollup_retention_days: float = Field(3653.0, ge=1)
+    # PostgreSQL day partitions of readings made ahead of the clock [days]; a week covers a
+    # maintenance job that stopped for days (common practice, no source).
+    partitions_ahead_days: int = Field(7, ge=1, le=60)
+    # How often the service makes partitions ahead and applies retention [s] (common
+    # practice, no source).
+    retention_every_s: float = Field(3600.0, gt=0)
     config: Path | None = None
 
     # REST API limits and secrets; every limit is common practice, no source.

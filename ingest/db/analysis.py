@@ -157,31 +157,20 @@ def latest_estimates(engine: Engine, device_id: str) -> list[Any]:
     reliable, note, basis), in no particular order. A key that never had a value (the data
     cannot support one, e.g. a quantity the unit's sensors cannot reveal) comes with its
     newest row, value None, so that its reason is served."""
-    e = estimates
-    valued = e.c.value.is_not(None)
-    newest = (
-        sa.select(e.c.key, sa.func.max(e.c.at_ms).label("at_ms"))
-        .where(e.c.device_id == device_id, valued)
-        .group_by(e.c.key)
-        .subquery()
-    )
-    ever_valued = sa.select(e.c.key).where(e.c.device_id == device_id, valued)
-    newest_unvalued = (
-        sa.select(e.c.key, sa.func.max(e.c.at_ms).label("at_ms"))
-        .where(e.c.device_id == device_id, e.c.key.not_in(ever_valued))
-        .group_by(e.c.key)
-        .subquery()
-    )
-    out: list[Any] = []
     with engine.connect() as conn:
-        for sub in (newest, newest_unvalued):
-            q = (
-                sa.select(*_ESTIMATE_READ)
-                .join(sub, sa.and_(e.c.key == sub.c.key, e.c.at_ms == sub.c.at_ms))
-                .where(e.c.device_id == device_id)
-            )
-            out.extend(conn.execute(q).all())
-    return out
+        return list(conn.execute(latest_estimates_query(device_id)).all())
+
+
+def latest_estimates_query(device_id: str) -> sa.Select[Any]:
+    """The query behind :func:`latest_estimates`: one round trip, per key valued rows before
+    unvalued ones, newest first."""
+    e = estimates
+    rank = sa.func.row_number().over(
+        partition_by=e.c.key, order_by=(e.c.value.is_(None), e.c.at_ms.desc())
+    )
+    ranked = sa.select(*_ESTIMATE_READ, rank.label("rank")).where(e.c.device_id == device_id)
+    inner = ranked.subquery()
+    return sa.select(*(inner.c[c.name] for c in _ESTIMATE_READ)).where(inner.c.rank == 1)
 
 
 def estimate_rows(

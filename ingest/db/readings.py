@@ -114,14 +114,59 @@ _DEVICE_RECOUNT = (
 _BASE_FIELDS = len(Reading._fields) - len(SUMMARY_COLUMNS)
 
 
-def _insert_readings_sql(connection: Connection, summaries: bool) -> str:
+def _insert_columns(summaries: bool) -> str:
     # Reading's field order (with or without the summaries), then the receive time.
     fields = Reading._fields if summaries else Reading._fields[:_BASE_FIELDS]
-    values = ", ".join([marker(connection)] * (len(fields) + 1))
+    return ", ".join((*fields, "received_ms"))
+
+
+def _insert_readings_sql(connection: Connection, summaries: bool) -> str:
+    columns = _insert_columns(summaries)
+    values = ", ".join([marker(connection)] * (columns.count(",") + 1))
     return (
-        f"INSERT INTO readings ({', '.join((*fields, 'received_ms'))}) VALUES ({values})"
+        f"INSERT INTO readings ({columns}) VALUES ({values})"
         " ON CONFLICT (device_id, ts_ms) DO NOTHING"
     )
+
+
+#: Batches of at least this many readings go to PostgreSQL through COPY into a temporary table
+#: and one INSERT ... SELECT from it; smaller ones through executemany. Measured by
+#: tests/bench/bench_pg_store.py: about 1.4 times the rows per second from 200 readings a batch,
+#: no gain at 50 (COPY pays a fixed cost of three more statements per batch).
+COPY_MIN_ROWS = 200
+
+_STAGE = "tecfleet_readings_in"
+_STAGE_DDL = (
+    f"CREATE TEMP TABLE IF NOT EXISTS {_STAGE} (device_id varchar(64), ts_ms bigint,"
+    " t_cabinet float8, t_cold float8, t_hot float8, t_ambient float8, current float8,"
+    " voltage float8, seq bigint, rh float8, door_open boolean, received_ms bigint"
+    + "".join(f", {name} float8" for name in SUMMARY_COLUMNS)
+    + ")"
+)
+
+
+def _copy_readings(connection: Connection, rows: Sequence[tuple[Any, ...]], summaries: bool) -> int:
+    """Insert ``rows`` (Reading fields, with or without the summaries, then receive time)
+    through COPY; returns how many were new. COPY itself cannot skip a reading already stored,
+    so the batch goes to a temporary table of this session first and on with
+    ``ON CONFLICT DO NOTHING``."""
+    columns = _insert_columns(summaries)
+    driver = connection.connection.driver_connection
+    if driver is None:
+        raise StoreError("the database connection is closed")
+    with driver.cursor() as cursor:
+        cursor.execute(_STAGE_DDL)
+        with cursor.copy(f"COPY {_STAGE} ({columns}) FROM STDIN") as copy:
+            for row in rows:
+                copy.write_row(row)
+        cursor.execute(
+            f"INSERT INTO readings ({columns}) SELECT {columns} FROM {_STAGE}"
+            " ON CONFLICT (device_id, ts_ms) DO NOTHING"
+        )
+        stored = int(cursor.rowcount)
+        # emptied at once: the caller's transaction may store another batch
+        cursor.execute(f"DELETE FROM {_STAGE}")
+    return stored
 
 
 def _insert(dialect_name: str, table: sa.Table) -> Any:
@@ -158,8 +203,11 @@ def write_batch(
         tail = (received,)
         summaries = any(r[_BASE_FIELDS:] != _NO_SUMMARY for r in batch_readings)
         rows = [(r if summaries else r[:_BASE_FIELDS]) + tail for r in batch_readings]
-        result = connection.exec_driver_sql(_insert_readings_sql(connection, summaries), rows)
-        stored = result.rowcount
+        if dialect == "postgresql" and len(rows) >= COPY_MIN_ROWS:
+            stored = _copy_readings(connection, rows, summaries)
+        else:
+            sql = _insert_readings_sql(connection, summaries)
+            stored = connection.exec_driver_sql(sql, rows).rowcount
         if stored == len(rows):
             # Every row was new: the batch itself says what each device gained.
             per_device: dict[str, list[int]] = {}

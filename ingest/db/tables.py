@@ -317,3 +317,30 @@ calibration_offsets = sa.Table(
     sa.Column("deleted_ms", sa.BigInteger),
     sa.Index("ix_calibration_offsets_device_id", "device_id"),
 )
+
+
+# ---------------------------------------------------------------------------
+# Reading rollups (migration 0008). Written by retention only: when raw readings pass their
+# age limit, each device's readings are summarised per interval (``span_ms`` wide, starting at
+# ``bucket_ms``) by the database and the raw rows go. ``n`` counts the readings summarised,
+# ``<channel>_n`` those that carried the channel (a face or humidity probe may be missing), so
+# rollups of late rows merge exactly with the ones already kept.
+# ---------------------------------------------------------------------------
+
+#: Reading channels summarised by min, max and mean (units as in ``readings``).
+ROLLUP_CHANNELS = ("t_cabinet", "t_cold", "t_hot", "t_ambient", "current", "voltage", "rh")
+
+reading_rollups = sa.Table(
+    "reading_rollups",
+    metadata,
+    sa.Column("device_id", sa.String(64), sa.ForeignKey("devices.device_id"), primary_key=True),
+    sa.Column("span_ms", sa.BigInteger, primary_key=True),
+    sa.Column("bucket_ms", sa.BigInteger, primary_key=True),
+    sa.Column("n", sa.BigInteger, nullable=False),
+    sa.Column("door_open_n", sa.BigInteger, nullable=False),
+    *(
+        sa.Column(f"{channel}_{stat}", sa.BigInteger if stat == "n" else sa.Float)
+        for channel in ROLLUP_CHANNELS
+        for stat in ("n", "min", "max", "mean")
+    ),
+)

@@ -36,6 +36,13 @@ if TYPE_CHECKING:
 log = logging.getLogger(__name__)
 
 
+def delivers(roles: tuple[str, ...]) -> bool:
+    """Whether a process of these roles sends notices: the ``delivery`` role, or a process
+    that both analyses and serves (``ingest,analytics,api``, the all-in-one set of the
+    contract, delivered before the role had a name of its own)."""
+    return "delivery" in roles or {"analytics", "api"} <= set(roles)
+
+
 class Service:
     def __init__(
         self, settings: Settings, engine: Engine, analytics_gate: threading.Event | None = None
@@ -61,7 +68,7 @@ class Service:
         """Run until a signal (or ``stop``), then shut down in order."""
         if self.ingester is not None:
             self.ingester.start()
-        if "delivery" in self.settings.roles:
+        if delivers(self.settings.roles):
             self.notifier = Notifier(self.engine, self.settings)
             self.notifier.start()
         if "analytics" in self.settings.roles:

@@ -21,6 +21,7 @@ from paho.mqtt.enums import CallbackAPIVersion
 
 from tecfleet.analytics import alerts
 from tecfleet.api.delivery import check_url, new_secret
+from tecfleet.api.service import delivers
 from tecfleet.ingest import db
 from tecfleet.ingest.db import delivery as delivery_db
 from tests.api.test_webhooks import Receiver, excursion
@@ -105,3 +106,11 @@ def test_two_deliverers_never_send_a_notice_twice(
     assert len(alerts_seen) == UNITS and max(alerts_seen.values()) == 1
     for k in (1, 2):
         assert "Traceback" not in (tmp_path / f"deliver-{k}.log").read_text()
+
+
+def test_the_all_in_one_roles_still_deliver() -> None:
+    # The contract's set ingest,analytics,api ran delivery before the role had a name.
+    assert delivers(("ingest", "analytics", "api"))
+    assert delivers(("delivery",))
+    assert not delivers(("analytics",))
+    assert not delivers(("ingest", "api"))

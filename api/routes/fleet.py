@@ -18,6 +18,7 @@ from tecfleet.api.schemas.fleet import (
     UnitDetailOut,
 )
 from tecfleet.api.services import fleet
+from tecfleet.api.timefmt import DURATION_PATTERN, duration_to_s
 from tecfleet.ingest.db.buckets import BUCKET_CHANNELS
 
 router = APIRouter(tags=["fleet"])
@@ -27,8 +28,26 @@ Last = Annotated[
     int | None,
     Query(ge=60, le=366 * 86400, description="seconds up to the end when start is not given"),
 ]
-#: Bucket width asked for [s]: from a minute to a week.
-Every = Annotated[int | None, Query(ge=60, le=7 * 86400, description="bucket width [s]")]
+#: Bucket width asked for: seconds or a duration such as 15m, 1h, 1d; from a minute to a week.
+Every = Annotated[
+    str | None,
+    Query(
+        pattern=DURATION_PATTERN,
+        description="bucket width, 60 s to 7 d: seconds, or a number with s, m, h or d (1h)",
+        examples=["1h"],
+    ),
+]
+#: Narrowest and widest bucket [s].
+EVERY_MIN_S, EVERY_MAX_S = 60, 7 * 86_400
+
+
+def _every_s(every: str | None) -> int | None:
+    if every is None:
+        return None
+    seconds = duration_to_s(every)
+    if not EVERY_MIN_S <= seconds <= EVERY_MAX_S:
+        raise unprocessable("query", "every", f"{every} is outside 60 s to 7 d")
+    return seconds
 
 
 @router.get("/v1/fleet", response_model=FleetOut, responses=KEYED)
@@ -77,7 +96,7 @@ def reading_buckets(
         raise unprocessable("query", "channels", f"unknown channels {unknown}")
     try:
         return fleet.reading_buckets(
-            engine, device_id, bounds.start_ms, bounds.end_ms, every, wanted, last
+            engine, device_id, bounds.start_ms, bounds.end_ms, _every_s(every), wanted, last
         )
     except ValueError as exc:
         raise unprocessable("query", "every", str(exc)) from exc
@@ -103,7 +122,7 @@ def estimate_buckets(
     wanted = [k.strip() for k in keys.split(",") if k.strip()]
     try:
         return fleet.estimate_buckets(
-            engine, device_id, wanted, bounds.start_ms, bounds.end_ms, every, last
+            engine, device_id, wanted, bounds.start_ms, bounds.end_ms, _every_s(every), last
         )
     except ValueError as exc:
         raise unprocessable("query", "every", str(exc)) from exc

@@ -140,3 +140,20 @@ def test_reading_buckets_snap_their_width_and_refuse_too_many(
     ).json()
     assert [p["mean"] for p in est["series"]["performance.cop"]] == [0.30]
     assert est["series"]["nothing"] == []
+
+
+def test_bucket_width_as_a_duration(client: tuple[TestClient, dict[str, str], int]) -> None:
+    c, h, _now = client
+    hourly = c.get("/v1/devices/u-a/readings/buckets?every=1h", headers=h).json()
+    # a day up to the newest reading in whole hours: 24 buckets of 60 one-minute readings
+    assert hourly["every_s"] == 3600 and len(hourly["items"]) == 24
+    assert c.get("/v1/devices/u-a/readings/buckets?every=3600", headers=h).json() == hourly
+    daily = c.get(
+        "/v1/devices/u-a/estimates?keys=performance.cop&every=1d&start=2020-01-01T00:00:00Z",
+        headers=h,
+    ).json()
+    assert daily["every_s"] == 86_400
+    for bad in ("30s", "8d", "1w", "1.5h", "h"):
+        answer = c.get(f"/v1/devices/u-a/readings/buckets?every={bad}", headers=h)
+        assert answer.status_code == 422, bad
+        assert answer.json()["field"] == "every", bad

@@ -13,6 +13,7 @@ from tecfleet.api.schemas import KEYED, KEYED_LOOKUP, Page
 from tecfleet.api.schemas.fleet import (
     AlertReadOut,
     EstimateBucketsOut,
+    FleetCountsOut,
     FleetOut,
     ReadingBucketsOut,
     UnitDetailOut,
@@ -55,6 +56,13 @@ def fleet_overview(engine: EngineDep, who: Reader) -> dict[str, Any]:
     """Every unit (on the key's sites) with its state and health figures, counts by state,
     the worst units by wear, heat leak and hot-side sink, and the COP spread."""
     return fleet.fleet_summary(engine, who.sites)
+
+
+@router.get("/v1/fleet/summary", response_model=FleetCountsOut, responses=KEYED)
+def fleet_summary(engine: EngineDep, who: Reader) -> dict[str, Any]:
+    """The fleet (on the key's sites) summed up without its units: counts by state, the worst
+    units by wear, heat leak and hot-side sink, and the COP spread."""
+    return fleet.fleet_counts(engine, who.sites)
 
 
 @router.get(

@@ -62,13 +62,18 @@ class SpreadOut(BaseModel):
     cop_of_best: list[float | None] = Field(description="least, median, greatest")
 
 
-class FleetOut(BaseModel):
-    """The whole fleet at a glance."""
+class FleetCountsOut(BaseModel):
+    """The whole fleet summed up: counts by state, the worst units, the COP spread."""
 
     generated_at: str
     counts: dict[str, int] = Field(description="units by state: total, online, offline, ...")
     worst: dict[str, list[RankedOut]] = Field(description="wear, leak and sink, worst first")
     cop_spread: SpreadOut
+
+
+class FleetOut(FleetCountsOut):
+    """The whole fleet at a glance, with every unit."""
+
     units: list[UnitOut]
 
 

@@ -98,9 +98,7 @@ def _units(engine: Engine, device_id: str | None = None) -> list[dict[str, Any]]
                 "device_id": d.device_id,
                 "label": d.label,
                 "site": d.site,
-                "online": d.last_reading_ms is not None
-                and wall_ms - int(d.last_reading_ms) <= STALE_AFTER_MS
-                and d.status != "offline",
+                "online": _online(d, wall_ms),
                 "in_range": None if t_now is None else band.low_c <= t_now <= band.high_c,
                 "t_cabinet_c": t_now,
                 "last_reading_at": ms_to_rfc3339(d.last_reading_ms),
@@ -127,6 +125,60 @@ def fleet_summary(engine: Engine, sites: Collection[str] | None = None) -> dict[
     units = _units(engine)
     if sites is not None:
         units = [u for u in units if u["site"] in sites]
+    out = _at_a_glance(units)
+    for u in units:
+        u.pop("_row")
+    return {**out, "units": units}
+
+
+def fleet_counts(engine: Engine, sites: Collection[str] | None = None) -> dict[str, Any]:
+    """What :func:`fleet_summary` says of the whole fleet without its units: counts by
+    state, the worst units and the COP spread. Only the listed units' figures are put in
+    words, so a fleet of ten thousand is summed up in one pass over light rows."""
+    rows = overview.state_rows(engine, SPREAD_KEYS + tuple(WORST_BY.values()), sites)
+    with engine.connect() as conn:
+        overrides = alert_records.load_overrides(conn)
+    base = AlertPolicy()
+    wall_ms = int(time.time() * 1000)
+    units = []
+    for d in rows.devices:
+        band = policy_for(base, overrides, d.device_id, d.site).band(d.cabinet)
+        t_now = d.t_cabinet_now
+        est = rows.estimates.get(d.device_id, {})
+        units.append(
+            {
+                "device_id": d.device_id,
+                "label": d.label,
+                "online": _online(d, wall_ms),
+                "in_range": None if t_now is None else band.low_c <= t_now <= band.high_c,
+                "open_alerts": rows.open_alerts.get(d.device_id, {}),
+                "figures": {
+                    k: {"value": e.value, "reliable": bool(e.reliable)} for k, e in est.items()
+                },
+            }
+        )
+    return _at_a_glance(units)
+
+
+#: Estimate keys the COP spread is drawn from.
+SPREAD_KEYS = ("performance.cop", "performance.cop_max")
+
+
+def _online(d: Any, wall_ms: int) -> bool:
+    return (
+        d.last_reading_ms is not None
+        and wall_ms - int(d.last_reading_ms) <= STALE_AFTER_MS
+        and d.status != "offline"
+    )
+
+
+def _value(u: dict[str, Any], key: str) -> Any:
+    return (u["figures"].get(key) or {}).get("value")
+
+
+def _at_a_glance(units: list[dict[str, Any]]) -> dict[str, Any]:
+    """Counts by state, worst units and COP spread of units as :func:`_units` makes them
+    (figures without their text are put in words here)."""
     counts = {
         "total": len(units),
         "online": sum(u["online"] for u in units),
@@ -141,34 +193,30 @@ def fleet_summary(engine: Engine, sites: Collection[str] | None = None) -> dict[
     }
     worst: dict[str, list[dict[str, Any]]] = {}
     for name, key in WORST_BY.items():
-        ranked = [u for u in units if u["figures"][key]["value"] is not None]
-        ranked.sort(key=lambda u: -float(u["figures"][key]["value"]))
+        ranked = [u for u in units if _value(u, key) is not None]
+        ranked.sort(key=lambda u: -float(_value(u, key)))
         worst[name] = [
             {
                 "device_id": u["device_id"],
                 "label": u["label"],
-                "value": u["figures"][key]["value"],
-                "text": u["figures"][key]["text"],
+                "value": _value(u, key),
+                "text": readout.estimate_text(key, _value(u, key)),
                 "reliable": u["figures"][key]["reliable"],
             }
             for u in ranked[:WORST_COUNT]
         ]
     cops, ratios = [], []
     for u in units:
-        cop = u["figures"]["performance.cop"]["value"]
-        best = u["figures"]["performance.cop_max"]["value"]
+        cop, best = _value(u, "performance.cop"), _value(u, "performance.cop_max")
         if cop is not None:
             cops.append(float(cop))
             if best:
                 ratios.append(float(cop) / float(best))
-    for u in units:
-        u.pop("_row")
     return {
         "generated_at": ms_to_rfc3339(int(time.time() * 1000)),
         "counts": counts,
         "worst": worst,
         "cop_spread": {"units": len(cops), "cop": _spread(cops), "cop_of_best": _spread(ratios)},
-        "units": units,
     }
 
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 from collections.abc import Sequence
+from itertools import chain
 from typing import Any, NamedTuple
 
 import orjson
@@ -17,7 +18,7 @@ import sqlalchemy as sa
 from sqlalchemy.engine import Connection, Engine
 
 from tecfleet.ingest.db.engine import marker, now_ms
-from tecfleet.ingest.db.tables import analysis_state, devices, estimates
+from tecfleet.ingest.db.tables import analysis_state, devices, estimates, estimates_latest
 
 __all__ = [
     "ESTIMATE_COLUMNS",
@@ -86,25 +87,38 @@ def read_states(conn: Connection, device_ids: Sequence[str]) -> dict[str, dict[s
     return states
 
 
+#: Estimate rows per statement on PostgreSQL: 9 parameters each, well under its 65,535.
+_ROWS_PER_STATEMENT = 1000
+
+
+def _insert_estimates(conn: Connection, rows: list[tuple[Any, ...]]) -> None:
+    """Insert estimate rows (a row already stored at that time is kept). The driver's own
+    cursor: SQLAlchemy's per-row parameter handling costs more than the statement itself for
+    thousands of rows. On PostgreSQL many rows a statement, since ``estimates_latest`` is kept
+    by a trigger fired once per statement; SQLite's executemany is one statement a row anyway."""
+    mark = marker(conn)
+    one = f"({', '.join([mark] * len(ESTIMATE_COLUMNS))})"
+    head = f"INSERT INTO estimates ({', '.join(ESTIMATE_COLUMNS)}) VALUES "
+    tail = " ON CONFLICT (device_id, key, at_ms) DO NOTHING"
+    cursor = conn.connection.cursor()
+    try:
+        if conn.dialect.name != "postgresql":
+            cursor.executemany(head + one + tail, rows)
+            return
+        for k in range(0, len(rows), _ROWS_PER_STATEMENT):
+            chunk = rows[k : k + _ROWS_PER_STATEMENT]
+            cursor.execute(head + ", ".join([one] * len(chunk)) + tail, list(chain(*chunk)))
+    finally:
+        cursor.close()
+
+
 def write_results(
     conn: Connection, device_id: str, rows: list[tuple[Any, ...]], done: int, state: dict[str, Any]
 ) -> None:
     """Store a device's new estimate rows (in :data:`ESTIMATE_COLUMNS` order; rows already
     stored are kept) and its progress ``done`` (epoch ms UTC) with its carried state."""
     if rows:
-        # The driver's own executemany: SQLAlchemy's per-row parameter handling costs more
-        # than the statement itself for thousands of rows.
-        mark = marker(conn)
-        sql = (
-            f"INSERT INTO estimates ({', '.join(ESTIMATE_COLUMNS)}) "
-            f"VALUES ({', '.join([mark] * len(ESTIMATE_COLUMNS))}) "
-            "ON CONFLICT (device_id, key, at_ms) DO NOTHING"
-        )
-        cursor = conn.connection.cursor()
-        try:
-            cursor.executemany(sql, rows)
-        finally:
-            cursor.close()
+        _insert_estimates(conn, rows)
     # The driver's own cursor and orjson: through SQLAlchemy's JSON type, the state's
     # statement and encoding cost more than an hour's analysis of the device.
     mark = marker(conn)
@@ -162,15 +176,10 @@ def latest_estimates(engine: Engine, device_id: str) -> list[Any]:
 
 
 def latest_estimates_query(device_id: str) -> sa.Select[Any]:
-    """The query behind :func:`latest_estimates`: one round trip, per key valued rows before
-    unvalued ones, newest first."""
-    e = estimates
-    rank = sa.func.row_number().over(
-        partition_by=e.c.key, order_by=(e.c.value.is_(None), e.c.at_ms.desc())
-    )
-    ranked = sa.select(*_ESTIMATE_READ, rank.label("rank")).where(e.c.device_id == device_id)
-    inner = ranked.subquery()
-    return sa.select(*(inner.c[c.name] for c in _ESTIMATE_READ)).where(inner.c.rank == 1)
+    """The query behind :func:`latest_estimates`: the device's rows of ``estimates_latest``,
+    which triggers keep to each key's newest row, a valued one before an unvalued one."""
+    e = estimates_latest
+    return sa.select(*(e.c[c.name] for c in _ESTIMATE_READ)).where(e.c.device_id == device_id)
 
 
 def estimate_rows(

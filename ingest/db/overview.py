@@ -3,19 +3,17 @@ reading, its open alerts by severity, and the newest valued estimate of chosen k
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Collection, Sequence
 from typing import Any, NamedTuple
 
 import sqlalchemy as sa
-from sqlalchemy.engine import Connection, Engine
+from sqlalchemy.engine import Engine
 
 from tecfleet.ingest.db.fleet import OPEN_STATES
-from tecfleet.ingest.db.tables import alerts, devices, estimates, readings
+from tecfleet.ingest.db.sites import devices_at
+from tecfleet.ingest.db.tables import alerts, devices, estimates_latest, readings
 
-__all__ = ["FleetRows", "LatestEstimate", "fleet_rows"]
-
-#: Device ids (and times) bound per statement, well under the parameters SQLite allows.
-_IDS_PER_QUERY = 500
+__all__ = ["FleetRows", "LatestEstimate", "fleet_rows", "state_rows"]
 
 
 class LatestEstimate(NamedTuple):
@@ -40,9 +38,7 @@ class FleetRows(NamedTuple):
 
 def fleet_rows(engine: Engine, keys: Sequence[str], device_id: str | None = None) -> FleetRows:
     """Every device (by id; or the one ``device_id``), its open alerts and the newest valued
-    estimate of each of ``keys``: per key, one statement finds each device's newest time by
-    walking the (device, key, time) index, and one reads the rows at those times by the same
-    index."""
+    estimate of each of ``keys``, in three statements."""
     d, r = devices.c, readings.c
     newest = (
         sa.select(r.t_cabinet)
@@ -67,52 +63,62 @@ def fleet_rows(engine: Engine, keys: Sequence[str], device_id: str | None = None
         for row in conn.execute(alert_q):
             open_alerts.setdefault(row.device_id, {})[row.severity] = int(row.n)
         found: dict[str, dict[str, LatestEstimate]] = {}
-        for key in keys:
-            times = {
-                row.device_id: int(row.at_ms)
-                for row in conn.execute(_newest_of_key(key, device_id))
-                if row.at_ms is not None
-            }
-            for row in _rows_at(conn, key, times):
-                found.setdefault(row.device_id, {})[key] = LatestEstimate(
-                    int(row.at_ms),
-                    float(row.value),
-                    None if row.stderr is None else float(row.stderr),
-                    int(row.n),
-                    bool(row.reliable),
-                )
+        for row in conn.execute(_latest_of(keys, device_id)):
+            found.setdefault(row.device_id, {})[row.key] = LatestEstimate(
+                int(row.at_ms),
+                float(row.value),
+                None if row.stderr is None else float(row.stderr),
+                int(row.n),
+                bool(row.reliable),
+            )
     return FleetRows(device_rows, open_alerts, found)
 
 
-def _rows_at(conn: Connection, key: str, newest: dict[str, int]) -> list[Any]:
-    """The rows of ``key`` at each device's time in ``newest``. Fleets report on the same
-    clock, so the distinct times are few: the statement asks for every device at any of them
-    (an index range each) and the rows at another device's time are dropped here."""
-    e = estimates.c
-    ids, times = sorted(newest), sorted(set(newest.values()))
-    out: list[Any] = []
-    for k in range(0, len(ids), _IDS_PER_QUERY):
-        for t in range(0, len(times), _IDS_PER_QUERY):
-            q = sa.select(e.device_id, e.at_ms, e.value, e.stderr, e.n, e.reliable).where(
-                e.device_id.in_(ids[k : k + _IDS_PER_QUERY]),
-                e.key == key,
-                e.at_ms.in_(times[t : t + _IDS_PER_QUERY]),
-            )
-            out += [row for row in conn.execute(q) if newest[row.device_id] == row.at_ms]
-    return out
+def _latest_of(keys: Sequence[str], device_id: str | None) -> sa.Select[Any]:
+    """Each device's newest valued row of each of ``keys``, from ``estimates_latest`` (one row
+    per device and key, kept by triggers)."""
+    e = estimates_latest.c
+    q = sa.select(e.device_id, e.key, e.at_ms, e.value, e.stderr, e.n, e.reliable).where(
+        e.key.in_(list(keys)), e.value.is_not(None)
+    )
+    return q if device_id is None else q.where(e.device_id == device_id)
 
 
-def _newest_of_key(key: str, device_id: str | None) -> sa.Select[Any]:
-    """Each device's id and the time of its newest valued row of ``key`` (None if none)."""
-    e2, d = estimates.alias("e2").c, devices.c
-    # Walking the (device, key, time) index backwards stops at the newest valued row; a max()
-    # over the valued rows would visit every row of the key to read its value.
-    newest_at = (
-        sa.select(e2.at_ms)
-        .where(e2.device_id == d.device_id, e2.key == key, e2.value.is_not(None))
-        .order_by(e2.at_ms.desc())
-        .limit(1)
+def state_rows(
+    engine: Engine, keys: Sequence[str], sites: Collection[str] | None = None
+) -> FleetRows:
+    """What the fleet's counts need, of every device (at ``sites`` when given): id, label,
+    site, status, newest reading's time and cabinet temperature, and the cabinet registration
+    (for its limits); open alerts per device and severity; the newest valued estimate of
+    each of ``keys``."""
+    d, r = devices.c, readings.c
+    newest = (
+        sa.select(r.t_cabinet)
+        .where(r.device_id == d.device_id, r.ts_ms == d.last_reading_ms)
         .scalar_subquery()
     )
-    q = sa.select(d.device_id, newest_at.label("at_ms"))
-    return q if device_id is None else q.where(d.device_id == device_id)
+    device_q = sa.select(
+        d.device_id, d.label, d.site, d.status, d.last_reading_ms, d.cabinet,
+        newest.label("t_cabinet_now"),
+    )  # fmt: skip
+    alert_q = (
+        sa.select(alerts.c.device_id, alerts.c.severity, sa.func.count().label("n"))
+        .where(alerts.c.state.in_(OPEN_STATES))
+        .group_by(alerts.c.device_id, alerts.c.severity)
+    )
+    estimate_q = _latest_of(keys, None)
+    if sites is not None:
+        device_q = device_q.where(d.site.in_(list(sites)))
+        alert_q = alert_q.where(alerts.c.device_id.in_(devices_at(sites)))
+        estimate_q = estimate_q.where(estimates_latest.c.device_id.in_(devices_at(sites)))
+    with engine.connect() as conn:
+        device_rows = list(conn.execute(device_q).all())
+        open_alerts: dict[str, dict[str, int]] = {}
+        for row in conn.execute(alert_q):
+            open_alerts.setdefault(row.device_id, {})[row.severity] = int(row.n)
+        found: dict[str, dict[str, LatestEstimate]] = {}
+        for row in conn.execute(estimate_q):
+            found.setdefault(row.device_id, {})[row.key] = LatestEstimate(
+                int(row.at_ms), float(row.value), row.stderr, int(row.n), bool(row.reliable)
+            )
+    return FleetRows(device_rows, open_alerts, found)

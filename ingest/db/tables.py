@@ -122,6 +122,22 @@ estimates = sa.Table(
     sa.UniqueConstraint("device_id", "key", "at_ms"),
 )
 
+#: The newest row of every device and key (a valued row before an unvalued one), kept by
+#: triggers on ``estimates`` (migration 0010): what the health answer and the fleet read.
+estimates_latest = sa.Table(
+    "estimates_latest",
+    metadata,
+    sa.Column("device_id", sa.String(64), sa.ForeignKey("devices.device_id"), primary_key=True),
+    sa.Column("key", sa.String(64), primary_key=True),
+    sa.Column("at_ms", sa.BigInteger, nullable=False),
+    sa.Column("value", sa.Float),
+    sa.Column("stderr", sa.Float),
+    sa.Column("n", sa.Integer, nullable=False, server_default="0"),
+    sa.Column("reliable", sa.Boolean, nullable=False, server_default=sa.true()),
+    sa.Column("note", sa.Text),
+    sa.Column("basis", sa.Text),
+)
+
 alerts = sa.Table(
     "alerts",
     metadata,

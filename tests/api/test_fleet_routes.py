@@ -88,6 +88,11 @@ def test_fleet_counts_worst_units_and_cop_spread(
     assert a["figures"]["module.resistance_25c.change_pct"]["text"] == "+7.5 %"
     assert a["days_in_service"] == pytest.approx((3 * 1440 - 1) / 1440)
     assert a["open_alerts"] == {}
+    # The summary without units goes its own lighter way and must say the same.
+    summary = c.get("/v1/fleet/summary", headers=h).json()
+    for part in ("counts", "worst", "cop_spread"):
+        assert summary[part] == fleet[part], part
+    assert "units" not in summary
 
 
 def test_unit_view_wear_limit_and_alert_evidence(

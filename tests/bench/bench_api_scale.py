@@ -1,7 +1,7 @@
 """The API at fleet scale on PostgreSQL: 10,000 registered devices and a month of estimates,
 served by ``tecfleet serve --roles api`` (uvicorn) and measured with a real HTTP client (httpx)
 over loopback. Targets (issue 20): ``GET /v1/devices/{id}/health`` p99 under 20 ms; the fleet
-list and the fleet summary under 200 ms.
+list (``/v1/devices``) and the fleet summary (``/v1/fleet/summary``) under 200 ms.
 
 Run: ``python tests/bench/bench_api_scale.py [--devices 10000] [--days 30] [--seed 301]``.
 Prints figures; asserts nothing. Starts its own PostgreSQL cluster (Debian's server binaries).
@@ -108,7 +108,13 @@ def database_ms(engine: sa.Engine, device_ids: list[str]) -> np.ndarray:
 
 def serve(url: str, port: int) -> subprocess.Popen[bytes]:
     tecfleet = Path(sys.executable).with_name("tecfleet")
-    env = dict(os.environ, TECFLEET_DATABASE_URL=url, TECFLEET_ROLES="api")
+    # One client asks as fast as it can: a rate limit made for integrators would stop it.
+    env = dict(
+        os.environ,
+        TECFLEET_DATABASE_URL=url,
+        TECFLEET_ROLES="api",
+        TECFLEET_API_RATE_PER_MINUTE="1000000",
+    )
     env["TECFLEET_HTTP_PORT"] = str(port)
     process = subprocess.Popen([str(tecfleet), "serve"], env=env, stdout=subprocess.DEVNULL)
     deadline = time.monotonic() + 60
@@ -175,7 +181,7 @@ def main(argv: list[str] | None = None) -> int:
             health = [f"/v1/devices/cooler-{i:05d}/health" for i in picks]
             timed(client, health[:200])  # warm-up: connections, plans, caches
             report("GET /v1/devices/{id}/health", timed(client, health[200:]), 20, "p99")
-            for limit in (100, 1000, 5000):
+            for limit in (100, 1000):  # 1000: api_max_page_size
                 pages = [f"/v1/devices?limit={limit}"] * 20
                 report(f"GET /v1/devices?limit={limit} (first page)", timed(client, pages),
                        200, "max")  # fmt: skip
@@ -189,12 +195,9 @@ def main(argv: list[str] | None = None) -> int:
                 if cursor is None:
                     break
             report("GET /v1/devices?limit=1000 (every page)", np.array(walk), 200, "max")
-            summary = client.get("/v1/fleet/summary")
-            if summary.status_code == 404:
-                print("GET /v1/fleet/summary: no such route in this branch (not measured)")
-            else:
-                report("GET /v1/fleet/summary", timed(client, ["/v1/fleet/summary"] * 20), 200,
-                       "max")  # fmt: skip
+            report("GET /v1/fleet/summary", timed(client, ["/v1/fleet/summary"] * 20), 200, "max")
+            # Every unit with its figures in words: what the page draws (no target of its own).
+            report("GET /v1/fleet (every unit)", timed(client, ["/v1/fleet"] * 5), 200, "max")
     finally:
         if server is not None:
             server.terminate()

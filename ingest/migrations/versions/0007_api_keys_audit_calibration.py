@@ -2,7 +2,7 @@
 calibration offsets with validity dates.
 
 Revision ID: 0007
-Revises: 0005
+Revises: 0006
 """
 
 from __future__ import annotations

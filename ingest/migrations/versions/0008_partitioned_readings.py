@@ -9,7 +9,7 @@ lock or drop one. Every stored row is copied, sorted by device and time so one d
 of a day lie together, and the copy is counted before the old table goes.
 
 Revision ID: 0008
-Revises: 0005
+Revises: 0007
 """
 
 from __future__ import annotations

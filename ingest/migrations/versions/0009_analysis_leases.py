@@ -1,7 +1,7 @@
 """Sharded analysis: a lease per device and a heartbeat per analysis process.
 
 Revision ID: 0009
-Revises: 0005
+Revises: 0008
 """
 
 from __future__ import annotations

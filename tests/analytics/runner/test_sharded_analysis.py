@@ -14,6 +14,7 @@ import signal
 import subprocess
 import sys
 from collections import Counter
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -37,9 +38,18 @@ LEASE_S = 3.0
 STEP_MS = 3_600_000
 
 
-def _store_fleet(url: str) -> sa.Engine:
+def _store_fleet(url: str, before_readings: Callable[[sa.Engine], None] | None = None) -> sa.Engine:
+    """Every unit's readings; half the units registered with limits their cabinet cannot
+    keep. The registrations go first, then ``before_readings`` runs (the analysers start),
+    then each unit's readings arrive in one transaction."""
     engine = db.make_engine(url)
     db.migrate(engine)
+    for k in range(0, DEVICES, 2):
+        # A high limit below the thermostat's band: the cabinet is out of its limits.
+        cabinet = {"setpoint_c": 5.0, "low_limit_c": 2.0, "high_limit_c": 4.0}
+        register(engine, f"unit-{k}", {"site": "north", "cabinet": cabinet})
+    if before_readings is not None:
+        before_readings(engine)
     for k in range(DEVICES):
         frame = simulate(Truth(), DAYS, seed=201 + k, door_every_h=9.0)
         rows = [
@@ -48,10 +58,6 @@ def _store_fleet(url: str) -> sa.Engine:
             for r in frame.itertuples()
         ]  # fmt: skip
         db.store_batch(engine, rows, [])
-        if k % 2 == 0:
-            # A high limit below the thermostat's band: the cabinet is out of its limits.
-            cabinet = {"setpoint_c": 5.0, "low_limit_c": 2.0, "high_limit_c": 4.0}
-            register(engine, f"unit-{k}", {"site": "north", "cabinet": cabinet})
     return engine
 
 
@@ -87,6 +93,11 @@ def _all_done(engine: sa.Engine) -> bool:
             {"step": STEP_MS},
         ).scalar_one()
     return int(lag) == 0
+
+
+def _heartbeats(engine: sa.Engine) -> int:
+    with engine.connect() as c:
+        return int(c.execute(sa.text("SELECT count(*) FROM analysis_workers")).scalar_one())
 
 
 def _lease_writers(engine: sa.Engine) -> int:
@@ -139,12 +150,23 @@ def test_a_killed_analyser_is_taken_over_and_nothing_is_done_twice(
     assert len({a[0] for a in expected["alerts"]}) >= DEVICES // 2  # every unit out of limits
 
     url = postgres.create_database(f"t_shard_{os.getpid()}")
-    engine = _store_fleet(url)
-    victim = _worker(url, tmp_path / "victim.log")
-    survivor = _worker(url, tmp_path / "survivor.log")
+    workers: list[subprocess.Popen[bytes]] = []
+
+    def start_both(engine: sa.Engine) -> None:
+        # Both analysers up before any reading: the fleet is split from the first round, so
+        # the one killed below dies with work of its own undone.
+        workers.extend(_worker(url, tmp_path / f"{name}.log") for name in ("victim", "survivor"))
+        assert wait_for(lambda: _heartbeats(engine) == 2, 120, 0.05)
+
     try:
+        engine = _store_fleet(url, start_both)
+        victim, survivor = workers
         # Both holding devices and inside a transaction at once: kill one right there.
-        assert wait_for(lambda: _owners(engine) == 2 and _lease_writers(engine) >= 2, 120, 0.01)
+        assert wait_for(
+            lambda: _owners(engine) == 2 and _lease_writers(engine) >= 2 and not _all_done(engine),
+            120,
+            0.01,
+        )
         victim.send_signal(signal.SIGKILL)
         victim.wait(10)
         with engine.connect() as c:
@@ -158,10 +180,12 @@ def test_a_killed_analyser_is_taken_over_and_nothing_is_done_twice(
         # The survivor takes every device over once the victim's leases and heartbeat lapse.
         assert wait_for(lambda: _lease_owners(engine) == {str(survivor.pid)}, 60)
     finally:
-        survivor.send_signal(signal.SIGTERM)
-        survivor.wait(60)
-        if victim.poll() is None:
-            victim.kill()
+        for worker in workers[1:]:  # the survivor stops cleanly, handing its leases back
+            worker.send_signal(signal.SIGTERM)
+            worker.wait(60)
+        for worker in workers:
+            if worker.poll() is None:
+                worker.kill()
     got = _outcome(engine)
     assert got["estimates"] == expected["estimates"]
     assert got["alerts"] == expected["alerts"]

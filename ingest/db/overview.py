@@ -40,30 +40,46 @@ def fleet_rows(engine: Engine, keys: Sequence[str], device_id: str | None = None
     """Every device (by id; or the one ``device_id``), its open alerts and the newest valued
     estimate of each of ``keys``, in three statements."""
     d, r = devices.c, readings.c
-    newest = (
+    first = sa.select(sa.func.min(r.ts_ms)).where(r.device_id == d.device_id).scalar_subquery()
+    device_q = sa.select(
+        devices, _cabinet_now().label("t_cabinet_now"), first.label("first_reading_ms")
+    ).order_by(d.device_id)
+    alert_q, estimate_q = _open_alerts(), _latest_of(keys, device_id)
+    if device_id is not None:
+        device_q = device_q.where(d.device_id == device_id)
+        alert_q = alert_q.where(alerts.c.device_id == device_id)
+    return _read(engine, device_q, alert_q, estimate_q)
+
+
+def _cabinet_now() -> Any:
+    """The cabinet temperature of each device's newest reading, as a scalar subquery."""
+    d, r = devices.c, readings.c
+    return (
         sa.select(r.t_cabinet)
         .where(r.device_id == d.device_id, r.ts_ms == d.last_reading_ms)
         .scalar_subquery()
     )
-    first = sa.select(sa.func.min(r.ts_ms)).where(r.device_id == d.device_id).scalar_subquery()
-    device_q = sa.select(
-        devices, newest.label("t_cabinet_now"), first.label("first_reading_ms")
-    ).order_by(d.device_id)
-    alert_q = (
+
+
+def _open_alerts() -> sa.Select[Any]:
+    """Open alerts counted per device and severity."""
+    return (
         sa.select(alerts.c.device_id, alerts.c.severity, sa.func.count().label("n"))
         .where(alerts.c.state.in_(OPEN_STATES))
         .group_by(alerts.c.device_id, alerts.c.severity)
     )
-    if device_id is not None:
-        device_q = device_q.where(d.device_id == device_id)
-        alert_q = alert_q.where(alerts.c.device_id == device_id)
+
+
+def _read(
+    engine: Engine, device_q: sa.Select[Any], alert_q: sa.Select[Any], estimate_q: sa.Select[Any]
+) -> FleetRows:
     with engine.connect() as conn:
         device_rows = list(conn.execute(device_q).all())
         open_alerts: dict[str, dict[str, int]] = {}
         for row in conn.execute(alert_q):
             open_alerts.setdefault(row.device_id, {})[row.severity] = int(row.n)
         found: dict[str, dict[str, LatestEstimate]] = {}
-        for row in conn.execute(_latest_of(keys, device_id)):
+        for row in conn.execute(estimate_q):
             found.setdefault(row.device_id, {})[row.key] = LatestEstimate(
                 int(row.at_ms),
                 float(row.value),
@@ -91,34 +107,14 @@ def state_rows(
     site, status, newest reading's time and cabinet temperature, and the cabinet registration
     (for its limits); open alerts per device and severity; the newest valued estimate of
     each of ``keys``."""
-    d, r = devices.c, readings.c
-    newest = (
-        sa.select(r.t_cabinet)
-        .where(r.device_id == d.device_id, r.ts_ms == d.last_reading_ms)
-        .scalar_subquery()
-    )
+    d = devices.c
     device_q = sa.select(
         d.device_id, d.label, d.site, d.status, d.last_reading_ms, d.cabinet,
-        newest.label("t_cabinet_now"),
+        _cabinet_now().label("t_cabinet_now"),
     )  # fmt: skip
-    alert_q = (
-        sa.select(alerts.c.device_id, alerts.c.severity, sa.func.count().label("n"))
-        .where(alerts.c.state.in_(OPEN_STATES))
-        .group_by(alerts.c.device_id, alerts.c.severity)
-    )
-    estimate_q = _latest_of(keys, None)
+    alert_q, estimate_q = _open_alerts(), _latest_of(keys, None)
     if sites is not None:
         device_q = device_q.where(d.site.in_(list(sites)))
         alert_q = alert_q.where(alerts.c.device_id.in_(devices_at(sites)))
         estimate_q = estimate_q.where(estimates_latest.c.device_id.in_(devices_at(sites)))
-    with engine.connect() as conn:
-        device_rows = list(conn.execute(device_q).all())
-        open_alerts: dict[str, dict[str, int]] = {}
-        for row in conn.execute(alert_q):
-            open_alerts.setdefault(row.device_id, {})[row.severity] = int(row.n)
-        found: dict[str, dict[str, LatestEstimate]] = {}
-        for row in conn.execute(estimate_q):
-            found.setdefault(row.device_id, {})[row.key] = LatestEstimate(
-                int(row.at_ms), float(row.value), row.stderr, int(row.n), bool(row.reliable)
-            )
-    return FleetRows(device_rows, open_alerts, found)
+    return _read(engine, device_q, alert_q, estimate_q)

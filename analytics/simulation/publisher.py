@@ -27,8 +27,6 @@ from urllib.parse import SplitResult, unquote, urlsplit
 
 import orjson
 
-from tecfleet.ingest.db.tables import SUMMARY_COLUMNS
-
 from .chunk import Chunk
 from .model import Simulator
 from .specs import CHANNELS, FleetSpec
@@ -163,8 +161,21 @@ def _client(parts: SplitResult, client_id: str, max_pending: int) -> Any:
 
 
 _CSV_FIELDS = ["device_id", "ts", "seq", *CHANNELS, "door_open"]
-#: Columns a fleet that reports interval summaries adds (the payload's names).
-_SUMMARY_FIELDS = list(SUMMARY_COLUMNS)
+#: Columns a fleet that reports interval summaries adds (the payload's names), written out:
+#: the agent imports this module and must not load the database tables.
+_SUMMARY_FIELDS = [
+    "interval_s",
+    "t_cabinet_mean",
+    "t_cold_mean",
+    "t_hot_mean",
+    "t_ambient_mean",
+    "current_mean",
+    "current_sq_mean",
+    "power_mean",
+    "on_share",
+    "t_cabinet_min",
+    "t_cabinet_max",
+]
 
 
 class FileSink(Sink):

@@ -133,31 +133,41 @@ def fleet_summary(engine: Engine, sites: Collection[str] | None = None) -> dict[
 
 def fleet_counts(engine: Engine, sites: Collection[str] | None = None) -> dict[str, Any]:
     """What :func:`fleet_summary` says of the whole fleet without its units: counts by
-    state, the worst units and the COP spread. Only the listed units' figures are put in
-    words, so a fleet of ten thousand is summed up in one pass over light rows."""
-    rows = overview.state_rows(engine, SPREAD_KEYS + tuple(WORST_BY.values()), sites)
+    state, the worst units and the COP spread. The database ranks the worst units and pairs
+    the COPs, and only the listed units' figures are put in words, so a fleet of ten thousand
+    is summed up from one light row per unit."""
+    rows = overview.count_rows(engine, tuple(WORST_BY.values()), SPREAD_KEYS, WORST_COUNT, sites)
     with engine.connect() as conn:
         overrides = alert_records.load_overrides(conn)
     base = AlertPolicy()
     wall_ms = int(time.time() * 1000)
+    bands: dict[tuple[Any, ...], Band] = {}
     units = []
-    for d in rows.devices:
-        band = policy_for(base, overrides, d.device_id, d.site).band(d.cabinet)
-        t_now = d.t_cabinet_now
-        est = rows.estimates.get(d.device_id, {})
+    for device_id, site, status, last_ms, t_now, low, high in rows.devices:
+        # A band depends on the overrides in force and the registration's limits only.
+        own = ("device", device_id) in overrides
+        which = ("device", device_id, low, high) if own else ("site", site, low, high)
+        band = bands.get(which)
+        if band is None:
+            policy = policy_for(base, overrides, device_id, site)
+            band = bands[which] = policy.band({"low_limit_c": low, "high_limit_c": high})
         units.append(
             {
-                "device_id": d.device_id,
-                "label": d.label,
-                "online": _online(d, wall_ms),
+                "online": _is_online(last_ms, status, wall_ms),
                 "in_range": None if t_now is None else band.low_c <= t_now <= band.high_c,
-                "open_alerts": rows.open_alerts.get(d.device_id, {}),
-                "figures": {
-                    k: {"value": e.value, "reliable": bool(e.reliable)} for k, e in est.items()
-                },
+                "open_alerts": rows.open_alerts.get(device_id, {}),
             }
         )
-    return _at_a_glance(units)
+    worst = {
+        name: [
+            _worst_entry(key, r.device_id, r.label, float(r.value), bool(r.reliable))
+            for r in rows.highest[key]
+        ]
+        for name, key in WORST_BY.items()
+    }
+    cops = [cop for cop, _ in rows.cop_pairs]
+    ratios = [cop / best for cop, best in rows.cop_pairs if best]
+    return _glance(_counts(units), worst, cops, ratios)
 
 
 #: Estimate keys the COP spread is drawn from.
@@ -165,10 +175,14 @@ SPREAD_KEYS = ("performance.cop", "performance.cop_max")
 
 
 def _online(d: Any, wall_ms: int) -> bool:
+    return _is_online(d.last_reading_ms, d.status, wall_ms)
+
+
+def _is_online(last_reading_ms: int | None, status: str | None, wall_ms: int) -> bool:
     return (
-        d.last_reading_ms is not None
-        and wall_ms - int(d.last_reading_ms) <= STALE_AFTER_MS
-        and d.status != "offline"
+        last_reading_ms is not None
+        and wall_ms - int(last_reading_ms) <= STALE_AFTER_MS
+        and status != "offline"
     )
 
 
@@ -177,9 +191,30 @@ def _value(u: dict[str, Any], key: str) -> Any:
 
 
 def _at_a_glance(units: list[dict[str, Any]]) -> dict[str, Any]:
-    """Counts by state, worst units and COP spread of units as :func:`_units` makes them
-    (figures without their text are put in words here)."""
-    counts = {
+    """Counts by state, worst units and COP spread of units as :func:`_units` makes them."""
+    worst: dict[str, list[dict[str, Any]]] = {}
+    for name, key in WORST_BY.items():
+        ranked = [u for u in units if _value(u, key) is not None]
+        ranked.sort(key=lambda u: -float(_value(u, key)))
+        worst[name] = [
+            _worst_entry(
+                key, u["device_id"], u["label"], _value(u, key), u["figures"][key]["reliable"]
+            )
+            for u in ranked[:WORST_COUNT]
+        ]
+    cops, ratios = [], []
+    for u in units:
+        cop, best = _value(u, "performance.cop"), _value(u, "performance.cop_max")
+        if cop is not None:
+            cops.append(float(cop))
+            if best:
+                ratios.append(float(cop) / float(best))
+    return _glance(_counts(units), worst, cops, ratios)
+
+
+def _counts(units: list[dict[str, Any]]) -> dict[str, int]:
+    """Units by state, from each unit's ``online``, ``in_range`` and ``open_alerts``."""
+    return {
         "total": len(units),
         "online": sum(u["online"] for u in units),
         "offline": sum(not u["online"] for u in units),
@@ -191,27 +226,26 @@ def _at_a_glance(units: list[dict[str, Any]]) -> dict[str, Any]:
         ),
         "clear": sum(not u["open_alerts"] for u in units),
     }
-    worst: dict[str, list[dict[str, Any]]] = {}
-    for name, key in WORST_BY.items():
-        ranked = [u for u in units if _value(u, key) is not None]
-        ranked.sort(key=lambda u: -float(_value(u, key)))
-        worst[name] = [
-            {
-                "device_id": u["device_id"],
-                "label": u["label"],
-                "value": _value(u, key),
-                "text": readout.estimate_text(key, _value(u, key)),
-                "reliable": u["figures"][key]["reliable"],
-            }
-            for u in ranked[:WORST_COUNT]
-        ]
-    cops, ratios = [], []
-    for u in units:
-        cop, best = _value(u, "performance.cop"), _value(u, "performance.cop_max")
-        if cop is not None:
-            cops.append(float(cop))
-            if best:
-                ratios.append(float(cop) / float(best))
+
+
+def _worst_entry(
+    key: str, device_id: str, label: str | None, value: Any, reliable: bool
+) -> dict[str, Any]:
+    return {
+        "device_id": device_id,
+        "label": label,
+        "value": value,
+        "text": readout.estimate_text(key, value),
+        "reliable": reliable,
+    }
+
+
+def _glance(
+    counts: dict[str, int],
+    worst: dict[str, list[dict[str, Any]]],
+    cops: list[float],
+    ratios: list[float],
+) -> dict[str, Any]:
     return {
         "generated_at": ms_to_rfc3339(int(time.time() * 1000)),
         "counts": counts,

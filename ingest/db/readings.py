@@ -76,35 +76,55 @@ class StatusUpdate:
     at_ms: int
 
 
+def _newer(bound: Any) -> Any:
+    """The device's newest stored reading is older than the batch's (or there is none)."""
+    return sa.or_(devices.c.last_reading_ms.is_(None), devices.c.last_reading_ms < bound)
+
+
+def _older(bound: Any) -> Any:
+    """The device's first reading time is later than ``bound`` (or unknown)."""
+    return sa.or_(devices.c.first_reading_ms.is_(None), devices.c.first_reading_ms > bound)
+
+
+# Every right-hand side reads the row as it was before the update (SQL's rule), so the
+# cabinet temperature follows the same test as the time it belongs to.
 _DEVICE_BUMP = (
     devices.update()
     .where(devices.c.device_id == sa.bindparam("b_device"))
     .values(
         readings=devices.c.readings + sa.bindparam("b_count"),
         last_reading_ms=sa.case(
-            (
-                sa.or_(
-                    devices.c.last_reading_ms.is_(None),
-                    devices.c.last_reading_ms < sa.bindparam("b_newest"),
-                ),
-                sa.bindparam("b_newest"),
-            ),
+            (_newer(sa.bindparam("b_newest")), sa.bindparam("b_newest")),
             else_=devices.c.last_reading_ms,
+        ),
+        last_t_cabinet=sa.case(
+            (_newer(sa.bindparam("b_newest")), sa.bindparam("b_t_cabinet")),
+            else_=devices.c.last_t_cabinet,
+        ),
+        first_reading_ms=sa.case(
+            (_older(sa.bindparam("b_oldest")), sa.bindparam("b_oldest")),
+            else_=devices.c.first_reading_ms,
         ),
     )
 )
+
+_OWN = readings.c.device_id == sa.bindparam("b_device")
+_NEWEST_TS = sa.select(sa.func.max(readings.c.ts_ms)).where(_OWN).scalar_subquery()
+_OLDEST_TS = sa.select(sa.func.min(readings.c.ts_ms)).where(_OWN).scalar_subquery()
 
 _DEVICE_RECOUNT = (
     devices.update()
     .where(devices.c.device_id == sa.bindparam("b_device"))
     .values(
-        readings=sa.select(sa.func.count())
-        .select_from(readings)
-        .where(readings.c.device_id == sa.bindparam("b_device"))
+        readings=sa.select(sa.func.count()).select_from(readings).where(_OWN).scalar_subquery(),
+        last_reading_ms=_NEWEST_TS,
+        last_t_cabinet=sa.select(readings.c.t_cabinet)
+        .where(_OWN, readings.c.ts_ms == _NEWEST_TS)
         .scalar_subquery(),
-        last_reading_ms=sa.select(sa.func.max(readings.c.ts_ms))
-        .where(readings.c.device_id == sa.bindparam("b_device"))
-        .scalar_subquery(),
+        # The first ever: readings dropped by retention do not move it later.
+        first_reading_ms=sa.case(
+            (_older(_OLDEST_TS), _OLDEST_TS), else_=devices.c.first_reading_ms
+        ),
     )
 )
 
@@ -175,6 +195,25 @@ def _insert(dialect_name: str, table: sa.Table) -> Any:
     return sqlite.insert(table)
 
 
+def _bumps(batch_readings: Sequence[Reading]) -> list[dict[str, Any]]:
+    """What each device gained from a batch of new readings: their count, the newest one's
+    time and cabinet temperature, and the oldest one's time."""
+    per_device: dict[str, dict[str, Any]] = {}
+    for r in batch_readings:
+        entry = per_device.get(r.device_id)
+        if entry is None:
+            per_device[r.device_id] = {
+                "b_device": r.device_id, "b_count": 1, "b_newest": r.ts_ms,
+                "b_t_cabinet": r.t_cabinet, "b_oldest": r.ts_ms,
+            }  # fmt: skip
+            continue
+        entry["b_count"] += 1
+        if r.ts_ms > entry["b_newest"]:
+            entry["b_newest"], entry["b_t_cabinet"] = r.ts_ms, r.t_cabinet
+        entry["b_oldest"] = min(entry["b_oldest"], r.ts_ms)
+    return list(per_device.values())
+
+
 def write_batch(
     connection: Connection,
     batch_readings: Sequence[Reading],
@@ -210,15 +249,7 @@ def write_batch(
             stored = connection.exec_driver_sql(sql, rows).rowcount
         if stored == len(rows):
             # Every row was new: the batch itself says what each device gained.
-            per_device: dict[str, list[int]] = {}
-            for r in batch_readings:
-                entry = per_device.setdefault(r.device_id, [0, r.ts_ms])
-                entry[0] += 1
-                entry[1] = max(entry[1], r.ts_ms)
-            connection.execute(
-                _DEVICE_BUMP,
-                [{"b_device": d, "b_count": c, "b_newest": t} for d, (c, t) in per_device.items()],
-            )
+            connection.execute(_DEVICE_BUMP, _bumps(batch_readings))
         else:
             # Some rows were already stored (a redelivery or replay): recount those devices
             # from the index rather than guess which rows were new.

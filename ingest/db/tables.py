@@ -51,6 +51,9 @@ devices = sa.Table(
     sa.Column("readings", sa.BigInteger, nullable=False, server_default="0"),
     sa.Column("status", sa.String(16)),
     sa.Column("status_at_ms", sa.BigInteger),
+    # Kept by the reading writer for the overview (migration 0012).
+    sa.Column("first_reading_ms", sa.BigInteger),
+    sa.Column("last_t_cabinet", sa.Float),
 )
 
 readings = sa.Table(
@@ -136,6 +139,8 @@ estimates_latest = sa.Table(
     sa.Column("reliable", sa.Boolean, nullable=False, server_default=sa.true()),
     sa.Column("note", sa.Text),
     sa.Column("basis", sa.Text),
+    # The fleet's worst units by a key, highest first (migration 0012).
+    sa.Index("ix_estimates_latest_key_value", "key", "value"),
 )
 
 alerts = sa.Table(

@@ -59,6 +59,7 @@ def populate(engine: sa.Engine, n_dev: int, days: float, seed: int) -> int:
             db.devices.insert(),
             [{"device_id": d, "label": d, "site": f"site-{i % 50}", "module": module,
               "cabinet": cabinet, "readings": 43_200, "last_reading_ms": now - 30_000,
+              "first_reading_ms": start, "last_t_cabinet": 3.0 + (i % 70) / 10,
               "status": "online", "status_at_ms": start, "registered_at_ms": start}
              for i, d in enumerate(ids)],
         )  # fmt: skip

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import sqlalchemy as sa
+from alembic import command
+from alembic.config import Config
 
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading, Reject, StatusUpdate
@@ -69,3 +71,64 @@ def test_rejects_are_capped_and_status_keeps_the_newest(db_url: str) -> None:
         device = c.execute(sa.select(db.devices)).one()
     assert len(reject.payload) == 4096 and reject.payload_size == 10_000
     assert device.status == "online" and device.readings == 0
+
+
+def test_first_reading_time_and_newest_cabinet_follow_the_stored_readings(db_url: str) -> None:
+    """The marks kept on the device row equal what the readings themselves say, for batches
+    in order, out of order (a backlog), through COPY (PostgreSQL, 200 rows or more), and for
+    a replay that takes the recount path."""
+    engine = db.make_engine(db_url)
+    db.migrate(engine)
+    db.store_batch(engine, [_reading("a", m, t_cabinet=4.0 + m / 100) for m in range(100, 110)])
+    # A backlog older than what is stored: the newest stays, the first moves back.
+    db.store_batch(engine, [_reading("a", m, t_cabinet=7.0) for m in range(50, 60)])
+    # A big batch, newest first inside the batch.
+    db.store_batch(engine, [_reading("b", m, t_cabinet=m / 10) for m in range(400, 150, -1)])
+    # A replay overlapping stored rows, with one newer reading.
+    db.store_batch(engine, [_reading("a", m, t_cabinet=3.3) for m in range(105, 111)])
+    r = db.readings.c
+    with engine.connect() as c:
+        marks = {d.device_id: d for d in c.execute(sa.select(db.devices))}
+        for device_id, mark in marks.items():
+            first = c.execute(
+                sa.select(sa.func.min(r.ts_ms)).where(r.device_id == device_id)
+            ).scalar_one()
+            newest = c.execute(
+                sa.select(r.t_cabinet)
+                .where(r.device_id == device_id)
+                .order_by(r.ts_ms.desc())
+                .limit(1)
+            ).scalar_one()
+            assert (mark.first_reading_ms, mark.last_t_cabinet) == (first, newest)
+    assert marks["a"].last_t_cabinet == 3.3 and marks["b"].last_t_cabinet == 40.0
+
+
+def test_the_marks_migration_fills_them_from_readings_stored_before(db_url: str) -> None:
+    engine = db.make_engine(db_url)
+    config = Config()
+    config.set_main_option("script_location", "tecfleet.ingest:migrations")
+    with engine.begin() as connection:
+        config.attributes["connection"] = connection
+        command.upgrade(config, "0010")
+    base = 1_790_000_000_000
+    with engine.begin() as c:
+        c.execute(
+            sa.text(
+                "INSERT INTO devices (device_id, readings, last_reading_ms) "
+                "VALUES ('a', 3, :last), ('quiet', 0, NULL)"
+            ),
+            {"last": base + 120_000},
+        )
+        c.execute(
+            sa.text(
+                "INSERT INTO readings (device_id, ts_ms, t_cabinet, t_ambient, current, voltage,"
+                " received_ms) VALUES ('a', :t0, 6.0, 20, 1, 2, 0), ('a', :t1, 5.0, 20, 1, 2, 0),"
+                " ('a', :t2, 4.5, 20, 1, 2, 0)"
+            ),
+            {"t0": base, "t1": base + 60_000, "t2": base + 120_000},
+        )
+    db.migrate(engine)
+    with engine.connect() as c:
+        marks = {d.device_id: d for d in c.execute(sa.select(db.devices))}
+    assert (marks["a"].first_reading_ms, marks["a"].last_t_cabinet) == (base, 4.5)
+    assert (marks["quiet"].first_reading_ms, marks["quiet"].last_t_cabinet) == (None, None)

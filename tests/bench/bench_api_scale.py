@@ -177,7 +177,9 @@ def main(argv: list[str] | None = None) -> int:
         server = serve(url, port)
         rng = np.random.default_rng(args.seed)
         headers = {"Authorization": f"Bearer {key}"}
-        with httpx.Client(base_url=f"http://127.0.0.1:{port}", headers=headers) as client:
+        with httpx.Client(
+            base_url=f"http://127.0.0.1:{port}", headers=headers, timeout=120
+        ) as client:
             picks = rng.integers(0, args.devices, size=args.requests + 200)
             health = [f"/v1/devices/cooler-{i:05d}/health" for i in picks]
             timed(client, health[:200])  # warm-up: connections, plans, caches

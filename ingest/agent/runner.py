@@ -6,6 +6,10 @@ source's new position; acknowledged readings leave the buffer; then, while conne
 the in-flight window, the oldest buffered readings go out as one batch message, paced at
 ``backlog_messages_per_s``. A stop (SIGTERM) lets what is in flight be acknowledged, says
 ``offline`` and closes the buffer; anything not acknowledged is sent again after a restart.
+
+With a ``[report]`` table the readings are samples instead: they wait in the buffer's
+``samples`` and one reading per interval is sent, carrying the interval's summaries
+(:mod:`.intervals`).
 """
 
 from __future__ import annotations
@@ -20,6 +24,7 @@ from pathlib import Path
 from typing import Protocol
 
 from tecfleet.ingest.agent.buffer import Buffer, Stamped
+from tecfleet.ingest.agent.intervals import close_intervals
 from tecfleet.ingest.agent.link import Link
 from tecfleet.ingest.agent.options import AgentConfig, Calibration, SourceSpec
 from tecfleet.ingest.agent.sources import CommandSource, FollowedFile, Polled, Sample
@@ -120,9 +125,35 @@ class Agent:
         if not polled.samples and polled.position is None and not polled.bad_lines:
             return
         stamped = [self._stamp(sample) for sample in polled.samples]
-        dropped = self.buffer.add(stamped, source.key, polled.position, polled.bad_lines)
+        if self.config.report is None:
+            dropped = self.buffer.add(stamped, source.key, polled.position, polled.bad_lines)
+        else:
+            late = self.buffer.add_samples(stamped, source.key, polled.position, polled.bad_lines)
+            if late:
+                log.warning("%d samples older than the last report left out", late)
+            dropped = self._report() if stamped else 0
         if dropped:
             log.warning("buffer full: dropped the %d oldest readings", dropped)
+
+    def _report(self) -> int:
+        """Close the intervals the samples now close; how many readings the cap dropped."""
+        assert self.config.report is not None
+        stamped = self.buffer.samples()
+        if not stamped:
+            return 0
+        samples = [Sample(s.ts_ms / 1000.0, s.values) for s in stamped if s.ts_ms is not None]
+        reports, keep_from_s = close_intervals(samples, self.config.report)
+        if keep_from_s is None:
+            return 0
+        for report in reports:
+            if report.summary.reason is not None and self.config.report.summaries:
+                log.info(
+                    "report at %.3f sent without summaries: %s", report.ts_s, report.summary.reason
+                )
+        readings = [
+            Stamped(round(r.ts_s * 1000.0), {**r.values, **r.summary.fields}) for r in reports
+        ]
+        return self.buffer.add_reports(readings, round(keep_from_s * 1000.0))
 
     def _stamp(self, sample: Sample) -> Stamped:
         values = calibrated(sample, self.config.calibration)
@@ -151,6 +182,8 @@ class Agent:
             fixed = self.buffer.restamp(self._boot, round(wall_s * 1000.0), time.monotonic_ns())
             log.info("the wall clock is set; %d held readings stamped", fixed)
             self._clock_warned = False
+            if self.config.report is not None:
+                self._report()
 
     def _finish(self) -> None:
         deadline = time.monotonic() + 5.0

@@ -95,6 +95,8 @@ class Agent:
         sent_up_to = 0  # buffer id of the newest reading handed to the connection
         next_send = 0.0
         self.link.start()
+        if self.config.report is not None:
+            self._report()  # intervals closed by samples buffered before a crash
         try:
             while not stop.is_set():
                 now = time.monotonic()
@@ -125,26 +127,27 @@ class Agent:
         if not polled.samples and polled.position is None and not polled.bad_lines:
             return
         stamped = [self._stamp(sample) for sample in polled.samples]
-        if self.config.report is None:
-            dropped = self.buffer.add(stamped, source.key, polled.position, polled.bad_lines)
-        else:
+        if self.config.report is not None:
             late = self.buffer.add_samples(stamped, source.key, polled.position, polled.bad_lines)
             if late:
                 log.warning("%d samples older than the last report left out", late)
-            dropped = self._report() if stamped else 0
+            if stamped:
+                self._report()
+            return
+        dropped = self.buffer.add(stamped, source.key, polled.position, polled.bad_lines)
         if dropped:
             log.warning("buffer full: dropped the %d oldest readings", dropped)
 
-    def _report(self) -> int:
-        """Close the intervals the samples now close; how many readings the cap dropped."""
+    def _report(self) -> None:
+        """Queue the reports of the intervals the buffered samples close."""
         assert self.config.report is not None
         stamped = self.buffer.samples()
         if not stamped:
-            return 0
+            return
         samples = [Sample(s.ts_ms / 1000.0, s.values) for s in stamped if s.ts_ms is not None]
         reports, keep_from_s = close_intervals(samples, self.config.report)
         if keep_from_s is None:
-            return 0
+            return
         for report in reports:
             if report.summary.reason is not None and self.config.report.summaries:
                 log.info(
@@ -153,7 +156,9 @@ class Agent:
         readings = [
             Stamped(round(r.ts_s * 1000.0), {**r.values, **r.summary.fields}) for r in reports
         ]
-        return self.buffer.add_reports(readings, round(keep_from_s * 1000.0))
+        dropped = self.buffer.add_reports(readings, round(keep_from_s * 1000.0))
+        if dropped:
+            log.warning("buffer full: dropped the %d oldest readings", dropped)
 
     def _stamp(self, sample: Sample) -> Stamped:
         values = calibrated(sample, self.config.calibration)

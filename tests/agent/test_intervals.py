@@ -167,6 +167,10 @@ def test_report_config_and_the_samples_in_the_buffer(tmp_path: Path) -> None:
     path.write_text(base + "[report]\nevery_s = 900\non_above_a = 0.05\n")
     report = load_config(path).report
     assert report == ReportOptions(every_s=900.0, on_above_a=0.05)
+    # The example on the page for device makers asks for 15-minute reports with summaries.
+    page = (Path(__file__).parents[2] / "ingest" / "PAYLOAD.md").read_text()
+    path.write_text(page.split("```toml\n", 1)[1].split("```", 1)[0])
+    assert load_config(path).report == ReportOptions(every_s=900.0, summaries=True)
     for bad in (
         "every_s = 0",
         "summaries = 1\nevery_s = 60",

@@ -217,6 +217,11 @@ class Buffer:
                     (wall_ms, mono_ns, boot_id),
                 )
                 fixed += cursor.rowcount
+            # A sample whose time now falls before the last report missed its interval.
+            late = self._db.execute(
+                "DELETE FROM samples WHERE ts_ms < ?", (self._counter(_REPORTED_UP_TO),)
+            ).rowcount
+            self._bump("late_samples", late)
         return fixed
 
     def counts(self) -> dict[str, int]:

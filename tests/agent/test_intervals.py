@@ -190,7 +190,10 @@ def test_report_config_and_the_samples_in_the_buffer(tmp_path: Path) -> None:
         buffer.add_reports([Stamped(2000, {"t_cabinet": 1.0})], keep_from_ms=2000)
         assert [s.ts_ms for s in buffer.samples() or []] == [2000, 3000]
         assert buffer.add_samples([Stamped(1500, {})], "s", None) == 1  # late: left out
+        buffer.add_samples([Stamped(None, {}, 7, "boot")], "s", None)
+        buffer.restamp("boot", 1500, 8)  # stamped 1500 ms, before the last report: late
+        assert [s.ts_ms for s in buffer.samples() or []] == [2000, 3000]
         counts = buffer.counts()
-        assert (counts["pending"], counts["late_samples"], buffer.position("s")) == (1, 1, "1:2:3")
+        assert (counts["pending"], counts["late_samples"], buffer.position("s")) == (1, 2, "1:2:3")
     finally:
         buffer.close()

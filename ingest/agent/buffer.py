@@ -12,6 +12,12 @@ of the cooler always gets through, and the ``dropped`` counter says how many wer
 Readings made while the wall clock was unset carry no time but the monotonic clock and the boot
 they were made in; :meth:`Buffer.restamp` gives them their time once the wall clock is set,
 within the same boot. They are never sent without a time.
+
+When the agent reports by interval (``[report]``), what the sources give goes first to
+``samples`` (with the source's position, in one transaction); closing an interval moves its
+report to ``pending`` and forgets the samples before it in one transaction, so a crash
+neither loses an interval nor reports it twice. The last report's sample stays: it starts the
+next interval. A sample older than the last report (its interval is gone) is counted as late.
 """
 
 from __future__ import annotations
@@ -36,11 +42,20 @@ CREATE TABLE IF NOT EXISTS pending (
     body TEXT NOT NULL
 );
 CREATE INDEX IF NOT EXISTS pending_unstamped ON pending (boot_id) WHERE ts_ms IS NULL;
+CREATE TABLE IF NOT EXISTS samples (
+    id INTEGER PRIMARY KEY AUTOINCREMENT,
+    ts_ms INTEGER,
+    mono_ns INTEGER,
+    boot_id TEXT,
+    body TEXT NOT NULL
+);
 CREATE TABLE IF NOT EXISTS positions (source TEXT PRIMARY KEY, position TEXT NOT NULL);
 CREATE TABLE IF NOT EXISTS counters (name TEXT PRIMARY KEY, value INTEGER NOT NULL);
 """
 
-COUNTERS = ("next_seq", "dropped", "bad_lines", "sent")
+COUNTERS = ("next_seq", "dropped", "bad_lines", "sent", "late_samples")
+#: Counter holding the time of the last interval report [ms since the epoch].
+_REPORTED_UP_TO = "reported_up_to_ms"
 
 
 class BufferError(TecfleetError):
@@ -105,25 +120,74 @@ class Buffer:
         dropped to keep the cap."""
         try:
             with self._db:
-                seq = self._counter("next_seq")
-                self._db.executemany(
-                    "INSERT INTO pending (seq, ts_ms, mono_ns, boot_id, body) VALUES (?,?,?,?,?)",
-                    [
-                        (seq + n, r.ts_ms, r.mono_ns, r.boot_id, json.dumps(r.values))
-                        for n, r in enumerate(readings)
-                    ],
-                )
-                self._bump("next_seq", len(readings))
-                self._bump("bad_lines", bad_lines)
-                if position is not None:
-                    self._db.execute(
-                        "INSERT INTO positions (source, position) VALUES (?, ?) "
-                        "ON CONFLICT (source) DO UPDATE SET position = excluded.position",
-                        (source, position),
-                    )
+                self._insert_pending(readings)
+                self._moved_on(source, position, bad_lines)
                 return self._enforce_cap()
         except sqlite3.Error as exc:
             raise BufferError(f"could not write the agent buffer: {exc}") from exc
+
+    def add_samples(
+        self, samples: Sequence[Stamped], source: str, position: str | None, bad_lines: int = 0
+    ) -> int:
+        """Store samples for interval reports with the source's new position; returns how many
+        were late (older than the last report) and left out."""
+        floor_ms = self._counter(_REPORTED_UP_TO)
+        kept = [s for s in samples if s.ts_ms is None or s.ts_ms >= floor_ms]
+        try:
+            with self._db:
+                self._db.executemany(
+                    "INSERT INTO samples (ts_ms, mono_ns, boot_id, body) VALUES (?,?,?,?)",
+                    [(s.ts_ms, s.mono_ns, s.boot_id, json.dumps(s.values)) for s in kept],
+                )
+                self._bump("late_samples", len(samples) - len(kept))
+                self._moved_on(source, position, bad_lines)
+        except sqlite3.Error as exc:
+            raise BufferError(f"could not write the agent buffer: {exc}") from exc
+        return len(samples) - len(kept)
+
+    def samples(self) -> list[Stamped] | None:
+        """The open interval's samples, oldest first; None while some still wait for a time."""
+        (held,) = self._db.execute("SELECT COUNT(*) FROM samples WHERE ts_ms IS NULL").fetchone()
+        if held:
+            return None
+        rows = self._db.execute("SELECT ts_ms, body FROM samples ORDER BY ts_ms, id")
+        return [Stamped(int(ts_ms), json.loads(body)) for ts_ms, body in rows]
+
+    def add_reports(self, reports: Sequence[Stamped], keep_from_ms: int) -> int:
+        """Queue interval reports and forget the samples before ``keep_from_ms``, in one
+        transaction; returns how many readings were dropped to keep the cap."""
+        try:
+            with self._db:
+                self._insert_pending(reports)
+                self._db.execute("DELETE FROM samples WHERE ts_ms < ?", (keep_from_ms,))
+                self._db.execute(
+                    "INSERT INTO counters (name, value) VALUES (?, ?) "
+                    "ON CONFLICT (name) DO UPDATE SET value = excluded.value",
+                    (_REPORTED_UP_TO, keep_from_ms),
+                )
+                return self._enforce_cap()
+        except sqlite3.Error as exc:
+            raise BufferError(f"could not write the agent buffer: {exc}") from exc
+
+    def _insert_pending(self, readings: Sequence[Stamped]) -> None:
+        seq = self._counter("next_seq")
+        self._db.executemany(
+            "INSERT INTO pending (seq, ts_ms, mono_ns, boot_id, body) VALUES (?,?,?,?,?)",
+            [
+                (seq + n, r.ts_ms, r.mono_ns, r.boot_id, json.dumps(r.values))
+                for n, r in enumerate(readings)
+            ],
+        )
+        self._bump("next_seq", len(readings))
+
+    def _moved_on(self, source: str, position: str | None, bad_lines: int) -> None:
+        self._bump("bad_lines", bad_lines)
+        if position is not None:
+            self._db.execute(
+                "INSERT INTO positions (source, position) VALUES (?, ?) "
+                "ON CONFLICT (source) DO UPDATE SET position = excluded.position",
+                (source, position),
+            )
 
     def ready(self, after_id: int, limit: int) -> list[Row]:
         """Stamped readings after ``after_id``, oldest first."""
@@ -142,14 +206,23 @@ class Buffer:
             self._bump("sent", len(chosen))
 
     def restamp(self, boot_id: str, wall_ms: int, mono_ns: int) -> int:
-        """Give readings of this boot made while the clock was unset their time; how many."""
+        """Give readings (and samples) of this boot made while the clock was unset their time;
+        how many."""
+        fixed = 0
         with self._db:
-            cursor = self._db.execute(
-                "UPDATE pending SET ts_ms = ? - (? - mono_ns) / 1000000 "
-                "WHERE ts_ms IS NULL AND boot_id = ?",
-                (wall_ms, mono_ns, boot_id),
-            )
-            return cursor.rowcount
+            for table in ("pending", "samples"):
+                cursor = self._db.execute(
+                    f"UPDATE {table} SET ts_ms = ? - (? - mono_ns) / 1000000 "
+                    "WHERE ts_ms IS NULL AND boot_id = ?",
+                    (wall_ms, mono_ns, boot_id),
+                )
+                fixed += cursor.rowcount
+            # A sample whose time now falls before the last report missed its interval.
+            late = self._db.execute(
+                "DELETE FROM samples WHERE ts_ms < ?", (self._counter(_REPORTED_UP_TO),)
+            ).rowcount
+            self._bump("late_samples", late)
+        return fixed
 
     def counts(self) -> dict[str, int]:
         """Pending, held (no time yet) and the counters."""

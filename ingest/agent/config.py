@@ -25,13 +25,18 @@ optional)::
 
     [options]
     read_every_s = 10
+
+    [report]                           # one reading per interval, with its summaries
+    every_s = 900
+    summaries = true
+    on_above_a = 0.1                   # a current above this counts as on [A]
 """
 
 from __future__ import annotations
 
 import re
 import tomllib
-from dataclasses import fields
+from dataclasses import fields, replace
 from pathlib import Path
 from typing import Any
 from urllib.parse import unquote, urlsplit
@@ -41,6 +46,7 @@ from tecfleet.ingest.agent.options import (
     AgentConfig,
     AgentOptions,
     Calibration,
+    ReportOptions,
     SourceSpec,
 )
 from tecfleet.ingest.errors import SettingsError
@@ -85,7 +91,10 @@ def load_config(path: Path) -> AgentConfig:
     calibration = {
         name: _calibration(name, raw) for name, raw in doc.get("calibration", {}).items()
     }
-    return _checked(doc, sources, calibration, _options(doc.get("options", {})))
+    config = _checked(doc, sources, calibration, _options(doc.get("options", {})))
+    if "report" not in doc:
+        return config
+    return replace(config, report=_report(doc["report"]))
 
 
 def _checked(
@@ -186,3 +195,27 @@ def _options(raw: Any) -> AgentOptions:
             raise SettingsError(f"options.{key} must be a positive number")
         given[key] = type(default)(value)
     return AgentOptions(**given)
+
+
+def _report(raw: Any) -> ReportOptions:
+    if not isinstance(raw, dict):
+        raise SettingsError("[report] must be a table")
+    unknown = set(raw) - {f.name for f in fields(ReportOptions)}
+    if unknown:
+        raise SettingsError(f"[report]: unknown key(s) {sorted(unknown)}")
+    if "every_s" not in raw:
+        raise SettingsError("[report] needs every_s, the reporting interval in seconds")
+    given: dict[str, Any] = {}
+    for key, value in raw.items():
+        if key == "summaries":
+            if not isinstance(value, bool):
+                raise SettingsError("report.summaries must be true or false")
+            given[key] = value
+            continue
+        if isinstance(value, bool) or not isinstance(value, int | float) or value <= 0:
+            raise SettingsError(f"report.{key} must be a positive number")
+        given[key] = float(value)
+    report = ReportOptions(**given)
+    if report.min_coverage > 1.0:
+        raise SettingsError("report.min_coverage is a share of the interval, at most 1")
+    return report

@@ -59,6 +59,28 @@ class AgentOptions:
 
 
 @dataclass(frozen=True, slots=True)
+class ReportOptions:
+    """Reporting by interval (the ``[report]`` table): the sources are sampled as often as they
+    are read, and one reading per interval is sent, with the interval's summaries."""
+
+    #: Length of a reporting interval, aligned to multiples of it in Unix time [s].
+    every_s: float
+    #: Send the interval summaries (means, on share, cabinet extremes) with each report.
+    summaries: bool = True
+    #: A current above this counts as the module on [A]; common practice, no source: well
+    #: above a current sensor's zero offset (tens of mA), well below any running module's
+    #: current (amperes).
+    on_above_a: float = 0.1
+    #: Longest hole between samples a mean may bridge [s]; common practice, no source: a
+    #: cabinet's thermostat cycle lasts minutes, so a minute without samples misplaces little;
+    #: a longer hole leaves the interval without summaries.
+    max_gap_s: float = 60.0
+    #: Share of ``every_s`` the samples must span for the summaries to be sent [-]; common
+    #: practice, no source: the first interval after a start is usually shorter.
+    min_coverage: float = 0.9
+
+
+@dataclass(frozen=True, slots=True)
 class Calibration:
     """Per-channel correction: value * scale + offset, in the channel's unit."""
 
@@ -94,6 +116,8 @@ class AgentConfig:
     key_file: Path | None = None
     calibration: dict[str, Calibration] = field(default_factory=dict)
     options: AgentOptions = field(default_factory=AgentOptions)
+    #: None: every sample is sent as it is read.
+    report: ReportOptions | None = None
 
     @property
     def telemetry_topic(self) -> str:

@@ -6,6 +6,10 @@ source's new position; acknowledged readings leave the buffer; then, while conne
 the in-flight window, the oldest buffered readings go out as one batch message, paced at
 ``backlog_messages_per_s``. A stop (SIGTERM) lets what is in flight be acknowledged, says
 ``offline`` and closes the buffer; anything not acknowledged is sent again after a restart.
+
+With a ``[report]`` table the readings are samples instead: they wait in the buffer's
+``samples`` and one reading per interval is sent, carrying the interval's summaries
+(:mod:`.intervals`).
 """
 
 from __future__ import annotations
@@ -20,6 +24,7 @@ from pathlib import Path
 from typing import Protocol
 
 from tecfleet.ingest.agent.buffer import Buffer, Stamped
+from tecfleet.ingest.agent.intervals import close_intervals
 from tecfleet.ingest.agent.link import Link
 from tecfleet.ingest.agent.options import AgentConfig, Calibration, SourceSpec
 from tecfleet.ingest.agent.sources import CommandSource, FollowedFile, Polled, Sample
@@ -90,6 +95,8 @@ class Agent:
         sent_up_to = 0  # buffer id of the newest reading handed to the connection
         next_send = 0.0
         self.link.start()
+        if self.config.report is not None:
+            self._report()  # intervals closed by samples buffered before a crash
         try:
             while not stop.is_set():
                 now = time.monotonic()
@@ -120,7 +127,36 @@ class Agent:
         if not polled.samples and polled.position is None and not polled.bad_lines:
             return
         stamped = [self._stamp(sample) for sample in polled.samples]
+        if self.config.report is not None:
+            late = self.buffer.add_samples(stamped, source.key, polled.position, polled.bad_lines)
+            if late:
+                log.warning("%d samples older than the last report left out", late)
+            if stamped:
+                self._report()
+            return
         dropped = self.buffer.add(stamped, source.key, polled.position, polled.bad_lines)
+        if dropped:
+            log.warning("buffer full: dropped the %d oldest readings", dropped)
+
+    def _report(self) -> None:
+        """Queue the reports of the intervals the buffered samples close."""
+        assert self.config.report is not None
+        stamped = self.buffer.samples()
+        if not stamped:
+            return
+        samples = [Sample(s.ts_ms / 1000.0, s.values) for s in stamped if s.ts_ms is not None]
+        reports, keep_from_s = close_intervals(samples, self.config.report)
+        if keep_from_s is None:
+            return
+        for report in reports:
+            if report.summary.reason is not None and self.config.report.summaries:
+                log.info(
+                    "report at %.3f sent without summaries: %s", report.ts_s, report.summary.reason
+                )
+        readings = [
+            Stamped(round(r.ts_s * 1000.0), {**r.values, **r.summary.fields}) for r in reports
+        ]
+        dropped = self.buffer.add_reports(readings, round(keep_from_s * 1000.0))
         if dropped:
             log.warning("buffer full: dropped the %d oldest readings", dropped)
 
@@ -151,6 +187,8 @@ class Agent:
             fixed = self.buffer.restamp(self._boot, round(wall_s * 1000.0), time.monotonic_ns())
             log.info("the wall clock is set; %d held readings stamped", fixed)
             self._clock_warned = False
+            if self.config.report is not None:
+                self._report()
 
     def _finish(self) -> None:
         deadline = time.monotonic() + 5.0

@@ -109,6 +109,10 @@ class _Thresholds:
     condensation_critical_k: float = 2.0
     condensation_hysteresis_k: float = 0.5
     condensation_delay_s: float = 1800.0
+    #: Without a cold-face probe the cabinet air bounds the face from above while the module
+    #: is driven with more than this current [A] (a module at rest pumps nothing; common
+    #: practice, no source).
+    condensation_cooling_a: float = 0.1
     #: Sensor faults (common practice, no source): delay [s]; a channel frozen over
     #: stuck_window_s [s] (stuck_window_intervals usual intervals [-] where longer, below)
     #: while another moves stuck_other_move_k [K]; spike_count spikes of

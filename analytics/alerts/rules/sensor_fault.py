@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 from pandas.api.indexers import BaseIndexer
 
+from tecfleet.analytics.alerts.coverage import set_limit
 from tecfleet.analytics.alerts.kinds import channel_fault
 from tecfleet.analytics.alerts.observations import BoolArray, FloatArray, Observations
 from tecfleet.analytics.alerts.policy import AlertPolicy
@@ -25,6 +26,7 @@ from tecfleet.analytics.alerts.rules.probe_drift import (
 from tecfleet.analytics.alerts.scope import DeviceScope, usual_interval_ms
 
 __all__ = [
+    "WARM_COLD_SIDE",
     "evidence",
     "observe",
     "sensor_fault_observations",
@@ -42,6 +44,14 @@ _PLAUSIBLE = {
     "current": (-0.1, 60.0),
     "rh": (0.0, 100.0),
 }
+
+#: The check of a cold side warmer than the cabinet, and why it is out of reach without a
+#: cold-face probe (the device's limited checks, see tecfleet.analytics.alerts.coverage).
+WARM_COLD_SIDE = "cold_side_warmer_than_cabinet"
+_WARM_NOT_PROBED = (
+    "Not judged: the cold face is not probed, so a cold side warmer than the cabinet while "
+    "the module cools, which no working cooler shows, cannot be seen."
+)
 
 #: (issue label, per-row mask) in the order the issues are listed in the evidence.
 _Checks = list[tuple[str, BoolArray]]
@@ -231,10 +241,14 @@ def _i_ref(module: Mapping[str, Any] | None) -> float | None:
 
 def observe(scope: DeviceScope) -> Observations | None:
     """The rule on the new readings (None without any), with the cabinet probe's change
-    and since when it moved in the evidence of the rows that flag it."""
+    and since when it moved in the evidence of the rows that flag it. Where the newest
+    reading has no cold face, the device's limited checks say that the cold side warmer than
+    the cabinet is not judged."""
     if not len(scope.t_new):
         return None
     policy, first = scope.policy, scope.first
+    probed = bool(np.isfinite(scope.new_column("t_cold")[-1]))
+    set_limit(scope.state, WARM_COLD_SIDE, None, None if probed else _WARM_NOT_PROBED)
     baseline = probe_baseline(scope)
     offsets = None if baseline is None else probe_offsets(scope.frame, first, baseline, policy)
     sf = sensor_fault_observations(

@@ -272,6 +272,33 @@ def test_an_alert_back_critical_before_its_resolution_was_told_is_not_told_again
     ]
 
 
+def test_in_one_call_over_weeks_a_symptom_back_under_its_open_cause_is_one_alert(
+    engine: sa.Engine,
+) -> None:
+    # A backfill: six days of history evaluated in one call. UA up 40 % (over the 35 %
+    # warning; common practice, no source) the whole time explains a cabinet out of band on
+    # day 1 and again three days later, longer apart than the 36 h reopen window. The same
+    # leak explains both (the physics of LINKS): one excursion alert, reopened, as the
+    # service evaluating every 6 h would have kept it.
+    day = 1440
+    db.store_batch(
+        engine, _spells(6 * day, [(day + 600, day + 700), (4 * day + 600, 4 * day + 700)])
+    )
+    with engine.begin() as conn:
+        for k in range(1, 24):
+            conn.execute(
+                db.estimates.insert().values(
+                    device_id="cab-1", key="cabinet.ua.change_pct", at_ms=T0 + k * 6 * 3_600_000,
+                    value=40.0, n=10, reliable=True,
+                )
+            )  # fmt: skip
+    alerts.evaluate(engine)
+    rows = _alerts(engine, "cab-1")
+    cause = next(r for r in rows if r.kind == "heat_leak")
+    (excursion,) = [r for r in rows if r.kind == "excursion"]
+    assert (excursion.incident_id, excursion.reopen_count) == (cause.id, 1)
+
+
 def test_silence_and_probe_faults_explain_nothing() -> None:
     # a silent unit may have lost its power or only its network, and a faulty probe explains
     # a reading, not a condition: neither is made the cause of another alert

@@ -163,8 +163,8 @@ def link(conn: Connection, row: Row[Any], change: str, at: int, link_ms: int) ->
 
 
 def _reroute_unsent(conn: Connection, cause: Row[Any], found: list[Any], at: int) -> None:
-    """Symptoms judged before their cause (the readings' rules run first in an evaluation,
-    and a backfill holds weeks): their notices not yet sent from after the cause opened at
+    """Symptoms that opened before their cause (a cause is judged on daily fits, which lag
+    the readings a symptom is judged on): their notices not yet sent from after the cause opened at
     ``at`` [ms] are routed as the incident would have routed them. A symptom kind joining,
     a rise above the incident's severity and a symptom's first rise to a severity go out;
     the rest stays on record only."""

@@ -8,8 +8,12 @@ first join when the cause opens. Each symptom keeps its own alert row and eviden
 
 Notices (``notice_route``): an incident is told when it opens (the cause, or the first symptom
 if that comes first, and then the cause's opening as its worsening), again when its severity
-rises or a symptom of a new kind joins it, and once when the cause resolves; every other change
-of its symptoms stays on record only (an audit row, and an ``absorbed`` outbox row).
+rises, a symptom of a new kind joins it or a symptom rises to a severity not yet told of it
+(``alerts.told_severity``: a cabinet out of band turning critical under a cause already
+critical is told once, not on each afternoon it comes back critical), and once when the cause
+resolves; every other change of its symptoms stays on record only (an audit row, and an
+``absorbed`` outbox row). Alone, an alert's rise of severity is told the same way: once per
+severity until its resolution has been told.
 
 A condition that comes back within the reopen window is the same alert, reopened and counted;
 a symptom that comes back while its cause is still open is the same alert however long it was
@@ -43,6 +47,7 @@ __all__ = [
     "link",
     "notice_route",
     "symptoms_of",
+    "told_after",
 ]
 
 
@@ -158,26 +163,52 @@ def link(conn: Connection, row: Row[Any], change: str, at: int, link_ms: int) ->
 
 
 def _reroute_unsent(conn: Connection, cause: Row[Any], found: list[Any], at: int) -> None:
-    """Symptoms judged before their cause (the readings' rules run first in an evaluation,
-    and a backfill holds weeks): their notices not yet sent from after the cause opened at
-    ``at`` [ms] are routed as the incident would have routed them. A symptom kind joining
-    and a rise above the incident's severity go out; the rest stays on record only."""
+    """Symptoms that opened before their cause (a cause is judged on daily fits, which lag
+    the readings a symptom is judged on): their notices not yet sent from after the cause opened at
+    ``at`` [ms] are routed as the incident would have routed them. A symptom kind joining,
+    a rise above the incident's severity and a symptom's first rise to a severity go out;
+    the rest stays on record only."""
     rank = SEVERITIES.index
     before = [r for r in found if int(r.opened_ms) < at]
     joined = {r.kind for r in before}
     top = max([rank(cause.severity), *(rank(r.severity) for r in before)])
+    # per symptom, the highest severity told: before the cause opened, then as kept here
+    told = {int(r.id): _told_of(conn, int(r.id), at) for r in found}
     quiet = []
-    for notice_id, kind, event, severity in records.unsent_notices(
-        conn, [int(r.id) for r in found], at
-    ):
+    for notice_id, alert_id, kind, event, severity in records.unsent_notices(conn, list(told), at):
+        s = rank(severity)
         if event in ("alert.opened", "alert.reopened") and kind not in joined:
             joined.add(kind)
-            top = max(top, rank(severity))
-        elif event != "alert.resolved" and rank(severity) > top:
-            top = rank(severity)
-        else:
+            top = max(top, s)
+        elif event != "alert.resolved" and s > top:
+            top = s
+        elif event != "alert.escalated" or s <= _rank(told[alert_id]):
             quiet.append(notice_id)
+            continue
+        told[alert_id] = told_after(told[alert_id], severity)
     records.absorb_notices(conn, quiet)
+    for alert_id, severity in told.items():
+        records.set_told(conn, alert_id, severity)
+
+
+def _rank(severity: str | None) -> int:
+    """Rank of a severity, -1 for none."""
+    return -1 if severity is None else SEVERITIES.index(severity)
+
+
+def _told_of(conn: Connection, alert_id: int, before_ms: int) -> str | None:
+    """The highest severity the notices of an alert told before ``before_ms`` [ms] since
+    its last told resolution, from its outbox rows."""
+    told = None
+    for event, severity in records.told_notices(conn, alert_id, before_ms):
+        told = None if event == "alert.resolved" else told_after(told, severity)
+    return told
+
+
+def told_after(told: str | None, severity: str) -> str:
+    """The highest severity told once a notice at ``severity`` has gone out."""
+    rank = SEVERITIES.index
+    return severity if told is None or rank(severity) > rank(told) else told
 
 
 def notice_route(
@@ -194,6 +225,10 @@ def notice_route(
     ``defer``, see ``alert_records.NOTICE_ROUTES``), the time a deferred notice waits for
     [ms], and a note for the audit trail."""
     rank = SEVERITIES.index
+    # the alert's own severity rose in this change, to one not told of it yet
+    new_high = before is not None and rank(before.severity) < rank(row.severity) > _rank(
+        row.told_severity
+    )
     if cause is not None and _open_at(cause, at):
         note = f"symptom of incident {int(cause.id)} ({cause.kind})"
         if change == "resolved":
@@ -204,11 +239,12 @@ def notice_route(
         if before is not None and before.incident_id == cause.id:
             kinds.add(before.kind)
             top = max(top, rank(before.severity))
-        worse = row.kind not in kinds or rank(row.severity) > top
+        worse = row.kind not in kinds or rank(row.severity) > top or new_high
         return ("send" if worse else "absorb"), None, note
     if change == "resolved" and int(row.reopen_count or 0) >= 1:
         return "defer", at + windows.reopen_ms, "comes and goes: told once it has stayed away"
     if change == "reopened" and records.cancel_deferred(conn, int(row.id)):
-        worse = before is not None and rank(row.severity) > rank(before.severity)
-        return ("send" if worse else "absorb"), None, "back before its resolution was told"
+        return ("send" if new_high else "absorb"), None, "back before its resolution was told"
+    if change == "escalated" and not new_high:
+        return "absorb", None, "already told at this severity"
     return "send", None, None

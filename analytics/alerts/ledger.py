@@ -107,6 +107,11 @@ class Ledger:
             self.conn, alert_id, f"alert.{change}", at, self.device.site, self._held_until(at),
             route=route, defer_until_ms=until,
         )  # fmt: skip
+        if route == "send":
+            told = (
+                None if change == "resolved" else incidents.told_after(row.told_severity, severity)
+            )
+            records.set_told(self.conn, alert_id, told)
         self.changes.append(
             AlertChange(alert_id, self.device.device_id, kind, change, severity, at, summary, ev)
         )

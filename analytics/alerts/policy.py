@@ -109,13 +109,29 @@ class _Thresholds:
     condensation_critical_k: float = 2.0
     condensation_hysteresis_k: float = 0.5
     condensation_delay_s: float = 1800.0
+    #: Without a cold-face probe the cabinet air bounds the face from above while the module
+    #: is driven with more than this current [A] (a module at rest pumps nothing; common
+    #: practice, no source).
+    condensation_cooling_a: float = 0.1
     #: Sensor faults (common practice, no source): delay [s]; a channel frozen over
-    #: stuck_window_s [s] while another moves stuck_other_move_k [K]; spike_count spikes of
+    #: stuck_window_s [s] (stuck_window_intervals usual intervals [-] where longer, below)
+    #: while another moves stuck_other_move_k [K]; spike_count spikes of
     #: spike_k [K] in an hour; a dropout_fraction [-] of the hour's samples missing; the cold
     #: side impossible_margin_k [K] warmer than the cabinet at impossible_current_fraction [-]
     #: of the rated current for impossible_on_s [s].
     sensor_delay_s: float = 900.0
     stuck_window_s: float = 3600.0
+    #: ... and at least this many equal readings in the window [-]: a probe at 0.1 K
+    #: resolution reads the same in a handful of readings of a steady room (common practice,
+    #: no source).
+    stuck_min_samples: int = 10
+    #: The frozen window is at least this many of the unit's usual reporting intervals [-]:
+    #: a slow-reporting unit must show as many equal readings as a steady probe at 0.1 K
+    #: resolution cannot. Healthy simulated units (seeds 201-210, 30 days) held a cabinet,
+    #: ambient or cold-face reading unchanged, while another channel moved 0.5 K, over 12
+    #: and 16 fifteen-minute readings and 12 five-minute ones; over 24, never (values this code
+    #: produced on the simulator). At one and two minutes the hour is the longer.
+    stuck_window_intervals: float = 24.0
     stuck_other_move_k: float = 0.5
     spike_k: float = 8.0
     spike_count: int = 3

@@ -109,12 +109,20 @@ def _condensation(
     ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any
 ) -> tuple[str, Any]:
     ev["lowest_margin_k"] = lo
-    s = (
-        f"Cold side {ev.get('t_cold_c', float('nan')):.1f} °C is below the ambient dew point "
-        f"{ev.get('dew_point_c', float('nan')):.1f} °C (down to {-(lo or 0.0):.1f} K below); "
-        "check insulation and seals around the cold side and drain moisture."
-    )
-    return s, lo
+    dew = f"{ev.get('dew_point_c', float('nan')):.1f} °C"
+    if "t_cold_at_most_c" in ev:
+        # no cold-face probe: the air, warmer than the face while it cools, is already wet
+        first = (
+            f"Cabinet air {ev['t_cold_at_most_c']:.1f} °C, which the unprobed cold side is "
+            f"colder than while cooling, is below the ambient dew point {dew} (down to "
+            f"{-(lo or 0.0):.1f} K below; the cold side is further below)"
+        )
+    else:
+        first = (
+            f"Cold side {ev.get('t_cold_c', float('nan')):.1f} °C is below the ambient dew "
+            f"point {dew} (down to {-(lo or 0.0):.1f} K below)"
+        )
+    return f"{first}; check insulation and seals around the cold side and drain moisture.", lo
 
 
 def _offline(ev: dict[str, Any], spell: Mapping[str, Any], lo: Any, hi: Any) -> tuple[str, Any]:

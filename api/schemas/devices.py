@@ -84,6 +84,16 @@ class CommissioningOut(BaseModel):
     pull_down_minutes: float | None
 
 
+class LimitedCheckOut(BaseModel):
+    """An alert check the unit's sensors leave limited: no alert from it is no all-clear."""
+
+    check: str
+    #: What the check judges on instead; None: it is not judged at all.
+    basis: str | None
+    note: str
+
+
 class DeviceDetail(DeviceOut):
     latest_reading: ReadingOut | None
     commissioning: CommissioningOut | None = None
+    limited_checks: list[LimitedCheckOut] = []

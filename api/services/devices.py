@@ -10,7 +10,13 @@ from sqlalchemy.engine import Engine, Row
 
 from tecfleet.api.auth import Principal
 from tecfleet.api.pagination import next_cursor, str_cursor
-from tecfleet.api.schemas.devices import CommissioningOut, DeviceDetail, DeviceIn, DeviceOut
+from tecfleet.api.schemas.devices import (
+    CommissioningOut,
+    DeviceDetail,
+    DeviceIn,
+    DeviceOut,
+    LimitedCheckOut,
+)
 from tecfleet.api.services.audit import record_change
 from tecfleet.api.services.readings import reading_out
 from tecfleet.api.timefmt import ms_to_rfc3339
@@ -68,10 +74,17 @@ def get_device(engine: Engine, device_id: str) -> DeviceDetail:
         raise not_found(device_id)
     row, open_alerts, latest = found
     base = _device_out(row, open_alerts, int(time.time() * 1000))
+    with engine.connect() as conn:
+        state = alert_records.read_progress(conn, device_id)[1]
+    limits = state.get("limited_checks") or {}
     return DeviceDetail(
         **base.model_dump(),
         latest_reading=reading_out(latest, _offsets(engine, device_id)) if latest else None,
-        commissioning=_commissioning(engine, device_id),
+        commissioning=_commissioning(state.get("commissioning")),
+        limited_checks=[
+            LimitedCheckOut(check=k, basis=v.get("basis"), note=str(v.get("note")))
+            for k, v in sorted(limits.items())
+        ],
     )
 
 
@@ -80,10 +93,8 @@ def _offsets(engine: Engine, device_id: str) -> list[calibration_db.Offset]:
         return calibration_db.active_offsets(conn, device_id)
 
 
-def _commissioning(engine: Engine, device_id: str) -> CommissioningOut | None:
+def _commissioning(com: dict[str, Any] | None) -> CommissioningOut | None:
     """The device's latest pull-down as the alert evaluation carries it (None before any)."""
-    with engine.connect() as conn:
-        com = alert_records.read_progress(conn, device_id)[1].get("commissioning")
     if not com:
         return None
     pull = com.get("pull_down_s")

@@ -63,8 +63,10 @@ __all__ = [
     "read_progress",
     "release_held",
     "set_incident",
+    "set_told",
     "store_policy",
     "symptoms_by_incident",
+    "told_notices",
     "unsent_notices",
     "update_alert",
     "write_progress",
@@ -353,17 +355,44 @@ def attach_symptoms(
 
 def unsent_notices(conn: Connection, alert_ids: Sequence[int], after_ms: int) -> list[Any]:
     """Notices of ``alert_ids`` not yet sent (pending or deferred) with their event at or
-    after ``after_ms`` [ms], in event order: id, kind, event and the alert's severity."""
+    after ``after_ms`` [ms], in event order: id, alert id, kind, event and the alert's
+    severity."""
     n = notifications
     rows = conn.execute(
-        sa.select(n.c.id, n.c.kind, n.c.event, n.c.payload)
+        sa.select(n.c.id, n.c.alert_id, n.c.kind, n.c.event, n.c.payload)
         .where(
             n.c.alert_id.in_(list(alert_ids)), n.c.state.in_(("pending", "deferred")),
             n.c.event_ms >= after_ms,
         )
         .order_by(n.c.event_ms, n.c.id)
     ).fetchall()  # fmt: skip
-    return [(int(r.id), r.kind, r.event, r.payload["alert"]["severity"]) for r in rows]
+    return [
+        (int(r.id), int(r.alert_id), r.kind, r.event, r.payload["alert"]["severity"]) for r in rows
+    ]
+
+
+def told_notices(
+    conn: Connection, alert_id: int, before_ms: int | None = None
+) -> list[tuple[str, str]]:
+    """The notices of one alert that were or will be told (neither absorbed, suppressed nor
+    still deferred), with their event before ``before_ms`` [ms] if given, in event order:
+    event and the alert's severity."""
+    n = notifications
+    end = 2**62 if before_ms is None else int(before_ms)
+    rows = conn.execute(
+        sa.select(n.c.event, n.c.payload)
+        .where(
+            n.c.alert_id == alert_id, n.c.event_ms < end,
+            n.c.state.not_in(("absorbed", "suppressed", "deferred")),
+        )
+        .order_by(n.c.event_ms, n.c.id)
+    ).fetchall()  # fmt: skip
+    return [(r.event, r.payload["alert"]["severity"]) for r in rows]
+
+
+def set_told(conn: Connection, alert_id: int, severity: str | None) -> None:
+    """The highest severity told of one alert (None: nothing told since its resolution)."""
+    conn.execute(alerts.update().where(alerts.c.id == alert_id).values(told_severity=severity))
 
 
 def absorb_notices(conn: Connection, notice_ids: Sequence[int]) -> None:
@@ -459,7 +488,7 @@ def release_held(conn: Connection, device_id: str, reference_ms: int) -> None:
 def _release_deferred(conn: Connection, device_id: str, reference_ms: int) -> None:
     n, a = notifications, alerts
     due = conn.execute(
-        sa.select(n.c.id, a.c.state)
+        sa.select(n.c.id, n.c.alert_id, a.c.state)
         .join(a, a.c.id == n.c.alert_id)
         .where(
             n.c.device_id == device_id, n.c.state == "deferred",
@@ -469,6 +498,8 @@ def _release_deferred(conn: Connection, device_id: str, reference_ms: int) -> No
     for r in due:
         state = "suppressed" if r.state in OPEN_STATES else "pending"
         conn.execute(n.update().where(n.c.id == r.id).values(state=state, mqtt_state=state))
+        if state == "pending":
+            set_told(conn, int(r.alert_id), None)  # its resolution is told now
 
 
 def _release_one(conn: Connection, row: Row[Any], device_id: str, held: list[Any]) -> None:

@@ -159,6 +159,9 @@ alerts = sa.Table(
     sa.Column("reopen_count", sa.Integer, nullable=False, server_default="0"),
     # the cause alert of the incident this alert belongs to (migration 0004); NULL: alone
     sa.Column("incident_id", sa.BigInteger().with_variant(sa.Integer, "sqlite"), index=True),
+    # the highest severity a notice of this alert has told since its last told resolution
+    # (migration 0011); NULL: none told
+    sa.Column("told_severity", sa.String(16)),
     sa.Index("ix_alerts_device_id_kind_state", "device_id", "kind", "state"),
 )
 

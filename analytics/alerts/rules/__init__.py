@@ -7,7 +7,11 @@ judge this call), its ``evidence`` entry builds the facts the alert carries at a
 and ``after`` runs once the kind's lifecycle has taken the observations.
 
 ``RULES`` is in evaluation order, which is also the order in which new alerts of one device
-get their ids.
+get their ids. The rules that find a cause (the estimate rules, see ``incidents.LINKS``) run
+before those of the symptoms they explain, so that in one call over weeks of history (a
+backfill) a symptom already sees its cause's whole record: a spell that comes back while the
+cause is open continues the symptom's alert instead of opening a new one. The sensor rule runs
+before the estimate rules, which it holds back while a channel is in doubt.
 """
 
 from __future__ import annotations
@@ -61,16 +65,16 @@ TREND_JUDGES: dict[str, Judge] = {
 }
 
 RULES: tuple[Rule, ...] = (
-    Rule("excursion", excursion.observe, excursion.evidence),
-    Rule("pull_down_overdue", commissioning.observe, commissioning.evidence),
-    Rule("over_temperature", over_temperature.observe, over_temperature.evidence),
-    Rule("condensation_risk", condensation.observe, condensation.evidence),
     Rule("sensor_fault", sensor_fault.observe, sensor_fault.evidence, sensor_fault.track_taint),
     Rule("offline", offline.observe, offline.evidence),
     *(
         Rule(kind, estimate_observer(kind, judge), estimate_evidence)
         for kind, judge in TREND_JUDGES.items()
     ),
+    Rule("excursion", excursion.observe, excursion.evidence),
+    Rule("pull_down_overdue", commissioning.observe, commissioning.evidence),
+    Rule("over_temperature", over_temperature.observe, over_temperature.evidence),
+    Rule("condensation_risk", condensation.observe, condensation.evidence),
 )
 
 

@@ -11,7 +11,9 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from pandas.api.indexers import BaseIndexer
 
+from tecfleet.analytics.alerts.coverage import set_limit
 from tecfleet.analytics.alerts.kinds import channel_fault
 from tecfleet.analytics.alerts.observations import BoolArray, FloatArray, Observations
 from tecfleet.analytics.alerts.policy import AlertPolicy
@@ -23,7 +25,14 @@ from tecfleet.analytics.alerts.rules.probe_drift import (
 )
 from tecfleet.analytics.alerts.scope import DeviceScope, usual_interval_ms
 
-__all__ = ["evidence", "observe", "sensor_fault_observations", "track_taint"]
+__all__ = [
+    "WARM_COLD_SIDE",
+    "evidence",
+    "observe",
+    "sensor_fault_observations",
+    "stuck_window_ms",
+    "track_taint",
+]
 
 _TEMPS = ("t_cabinet", "t_cold", "t_hot", "t_ambient")
 _PLAUSIBLE = {
@@ -35,6 +44,14 @@ _PLAUSIBLE = {
     "current": (-0.1, 60.0),
     "rh": (0.0, 100.0),
 }
+
+#: The check of a cold side warmer than the cabinet, and why it is out of reach without a
+#: cold-face probe (the device's limited checks, see tecfleet.analytics.alerts.coverage).
+WARM_COLD_SIDE = "cold_side_warmer_than_cabinet"
+_WARM_NOT_PROBED = (
+    "Not judged: the cold face is not probed, so a cold side warmer than the cabinet while "
+    "the module cools, which no working cooler shows, cannot be seen."
+)
 
 #: (issue label, per-row mask) in the order the issues are listed in the evidence.
 _Checks = list[tuple[str, BoolArray]]
@@ -50,12 +67,13 @@ def sensor_fault_observations(
 ) -> Observations:
     """Sensor faults on rows ``first:`` of ``frame`` (rows before are look-back only).
 
-    Out-of-range values, a temperature channel frozen over ``stuck_window_s`` while another
-    moves by ``stuck_other_move_k`` [K], isolated spikes of ``spike_k`` [K] (``spike_count`` in
-    an hour, judged one sample late), more than ``dropout_fraction`` of the expected samples
-    missing in the last hour, and the cold side warmer than the cabinet by
-    ``impossible_margin_k`` [K] while the module has been driven at
-    ``impossible_current_fraction`` of ``i_ref`` [A] for ``impossible_on_s``.
+    Out-of-range values, a temperature channel frozen over its window
+    (:func:`stuck_window_ms`) while another moves by ``stuck_other_move_k`` [K] (a channel
+    the unit has no probe for, NaN, is neither judged nor counted as moving), isolated
+    spikes of ``spike_k`` [K] (``spike_count`` in an hour, judged one sample late), more
+    than ``dropout_fraction`` of the expected samples missing in the last hour, and the cold
+    side warmer than the cabinet by ``impossible_margin_k`` [K] while the module has been
+    driven at ``impossible_current_fraction`` of ``i_ref`` [A] for ``impossible_on_s``.
     ``interval`` is ``usual_interval_ms`` of the frame's times, when the caller has it.
     ``probe_offset`` [K] per row (:func:`cabinet_probe_offset`) flags the cabinet probe when
     it has moved by ``drift_warning_k`` against the cold side's heat balance. An open alert is
@@ -70,10 +88,10 @@ def sensor_fault_observations(
     for col, (lo, hi) in _PLAUSIBLE.items():
         x = frame[col].to_numpy(np.float64)
         checks.append((f"{col} out of range", np.isfinite(x) & ((x < lo) | (x > hi))))
-    frozen_since_stuck = _stuck_checks(frame, t, idx, policy, checks)
-    checks.append(("spikes", _spikes(frame, idx, policy)))
     if interval is None:
         interval = usual_interval_ms(t)
+    frozen_since_stuck = _stuck_checks(frame, t, stuck_window_ms(interval, policy), policy, checks)
+    checks.append(("spikes", _spikes(frame, idx, policy)))
     checks.append(("dropouts", _dropouts(t, idx, interval, policy)))
     if i_ref is not None and i_ref > 0:
         warm = _impossible(frame, t, idx, i_ref, policy)
@@ -99,24 +117,53 @@ def sensor_fault_observations(
     )
 
 
+def stuck_window_ms(interval: FloatArray, policy: AlertPolicy) -> FloatArray:
+    """The window a channel must stay frozen over to be stuck, per reading [ms]:
+    ``stuck_window_s``, or ``stuck_window_intervals`` of the unit's usual interval
+    ``interval`` [ms] (``usual_interval_ms``) where that is longer, so that a slow-reporting
+    unit still shows ``stuck_min_samples`` equal readings. At one-minute reporting the
+    hour is the longer."""
+    scaled = np.nan_to_num(policy.stuck_window_intervals * interval, nan=0.0)
+    return np.asarray(np.maximum(policy.stuck_window_s * 1000.0, scaled), np.float64)
+
+
+class _Trailing(BaseIndexer):  # type: ignore[misc]  # pandas ships no type hints
+    """Rolling windows (t − window, t] of each reading, the window per reading: ``t_ms``
+    and ``window_ms`` [ms] are passed as keywords (pandas keeps them as attributes)."""
+
+    t_ms: Any
+    window_ms: Any
+
+    def get_window_bounds(
+        self,
+        num_values: int = 0,
+        min_periods: int | None = None,
+        center: bool | None = None,
+        closed: str | None = None,
+        step: int | None = None,
+    ) -> tuple[Any, Any]:
+        start = np.searchsorted(self.t_ms, self.t_ms - self.window_ms, side="right")
+        return start.astype(np.int64), np.arange(1, num_values + 1, dtype=np.int64)
+
+
 def _stuck_checks(
-    frame: pd.DataFrame, t: Any, idx: pd.DatetimeIndex, policy: AlertPolicy, checks: _Checks
+    frame: pd.DataFrame, t: Any, window: FloatArray, policy: AlertPolicy, checks: _Checks
 ) -> BoolArray:
-    """Append one "stuck" check per temperature channel; return the rows where a channel
-    found stuck is still frozen."""
+    """Append one "stuck" check per temperature channel, frozen over ``window`` [ms] per
+    row; return the rows where a channel found stuck is still frozen."""
     n = len(frame)
-    win = f"{int(policy.stuck_window_s)}s"
+    trailing = _Trailing(t_ms=t, window_ms=window)
     span = {}
-    counts = pd.Series(1.0, index=idx).rolling(win).sum().to_numpy()
-    covered = (t - t[0]) >= policy.stuck_window_s * 1000
+    counts = pd.Series(np.ones(n)).rolling(trailing).sum().to_numpy()
+    covered = (t - t[0]) >= window
     for col in _TEMPS:
-        s = pd.Series(frame[col].to_numpy(np.float64), index=idx).rolling(win)
+        s = pd.Series(frame[col].to_numpy(np.float64)).rolling(trailing)
         span[col] = (s.max() - s.min()).to_numpy()
     frozen_since_stuck = np.zeros(n, dtype=bool)
     for col in _TEMPS:
         # fmax skips a face the unit has no probe for (NaN), where max would spread it.
         others = np.fmax.reduce(np.vstack([span[c] for c in _TEMPS if c != col]), axis=0)
-        frozen = covered & (counts >= 10) & (span[col] <= 1e-9)
+        frozen = covered & (counts >= policy.stuck_min_samples) & (span[col] <= 1e-9)
         stuck = frozen & (others >= policy.stuck_other_move_k)
         checks.append((f"{col} stuck", stuck))
         # A channel found stuck stays in doubt while it stays frozen, also when the others
@@ -194,10 +241,14 @@ def _i_ref(module: Mapping[str, Any] | None) -> float | None:
 
 def observe(scope: DeviceScope) -> Observations | None:
     """The rule on the new readings (None without any), with the cabinet probe's change
-    and since when it moved in the evidence of the rows that flag it."""
+    and since when it moved in the evidence of the rows that flag it. Where the newest
+    reading has no cold face, the device's limited checks say that the cold side warmer than
+    the cabinet is not judged."""
     if not len(scope.t_new):
         return None
     policy, first = scope.policy, scope.first
+    probed = bool(np.isfinite(scope.new_column("t_cold")[-1]))
+    set_limit(scope.state, WARM_COLD_SIDE, None, None if probed else _WARM_NOT_PROBED)
     baseline = probe_baseline(scope)
     offsets = None if baseline is None else probe_offsets(scope.frame, first, baseline, policy)
     sf = sensor_fault_observations(
@@ -222,8 +273,9 @@ def evidence(scope: DeviceScope) -> Callable[[int], dict[str, Any]]:
 def track_taint(scope: DeviceScope) -> None:
     """Keep the spans [start, end] [ms] in which a sensor fault put a channel in doubt.
 
-    A span starts ``stuck_window_s`` before the fault's spell (a frozen channel shows only
-    after that window) and stays open while the spell lasts; it ends when the spell does.
+    A span starts a stuck window (:func:`stuck_window_ms`) before the fault's spell (a
+    frozen channel shows only after that window) and stays open while the spell lasts; it
+    ends when the spell does.
     Spells of spikes or dropouts alone do not count.
     """
     state, policy = scope.state, scope.policy
@@ -234,7 +286,8 @@ def track_taint(scope: DeviceScope) -> None:
     is_open = bool(spans) and spans[-1][1] is None
     if ep is not None and channel_fault(issues):
         if not is_open:
-            spans.append([int(ep["start"]) - int(policy.stuck_window_s * 1000), None])
+            window = stuck_window_ms(scope.interval_all[-1:], policy)
+            spans.append([int(ep["start"]) - int(window[0]), None])
     elif ep is None and is_open:
         spans[-1][1] = int(sf.get("last_t") or 0)
     del spans[:-20]  # a bounded history is enough for the taint horizon

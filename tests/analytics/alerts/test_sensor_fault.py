@@ -7,6 +7,8 @@ import pytest
 import sqlalchemy as sa
 
 from tecfleet.analytics import alerts
+from tecfleet.analytics import simulation as sim
+from tecfleet.analytics.alerts.rules.sensor_fault import stuck_window_ms
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
 from tests.analytics.alerts.cabinet import MIN, T0, cabinet_series, kinds
@@ -115,3 +117,93 @@ def test_stuck_cabinet_probe_is_found_on_a_unit_without_face_probes(engine: sa.E
     changes = alerts.evaluate(engine)
     assert kinds(changes) == [("sensor_fault", "opened")]
     assert "t_cabinet stuck" in changes[0].evidence["issues"]
+
+
+def _sim_readings(spec: sim.FleetSpec, days: float) -> list[Reading]:
+    chunks, _truth = sim.simulate(spec, days)
+    out = []
+    for chunk in chunks:
+        for row in chunk.payload_rows():
+            for item, device in zip(row, chunk.device_ids, strict=True):
+                if item is not None:
+                    out.append(
+                        Reading(
+                            device, round(item["ts"] * 1000), item["t_cabinet"],
+                            item.get("t_cold"), item.get("t_hot"), item["t_ambient"],
+                            item["current"], item["voltage"], seq=item["seq"], rh=item["rh"],
+                        )
+                    )  # fmt: skip
+    return out
+
+
+def _opened(engine: sa.Engine, device: str) -> list[tuple[int, list[str]]]:
+    a = db.alerts
+    with engine.connect() as conn:
+        rows = conn.execute(
+            sa.select(a.c.opened_ms, a.c.evidence).where(
+                a.c.device_id == device, a.c.kind == "sensor_fault"
+            )
+        ).fetchall()
+    return [(int(r.opened_ms), list(r.evidence["issues"])) for r in rows]
+
+
+@pytest.mark.parametrize(
+    ("sensor_set", "channel"),
+    [("no_cold", "t_ambient"), ("no_faces", "t_ambient"), ("no_faces", "t_cabinet")],
+)
+def test_a_stuck_probe_is_found_on_reduced_sensor_sets(
+    engine: sa.Engine, sensor_set: str, channel: str
+) -> None:
+    # The simulator freezes the probe at its value at the fault's start (its truth). On a unit
+    # without face probes the cabinet and the room are what is left to move; the fault must be
+    # found as on a fully probed unit, within the 3 h the alert bench allows a stuck probe at
+    # one-minute reporting (1 h window, 15 min delay; common practice, no source).
+    start = 1_735_689_600.0
+    at = start + 30 * 3600.0
+    spec = sim.FleetSpec(
+        devices=(sim.DeviceSpec("red-1", sensor_set=sensor_set, cuts_per_30d=0.0),),
+        start_s=start, interval_s=60.0, seed=203,
+        faults=(sim.Fault("sensor", "red-1", at, channel=channel, mode="stuck"),),
+    )  # fmt: skip
+    db.store_batch(engine, _sim_readings(spec, 2.5))
+    alerts.evaluate(engine)
+    opened = _opened(engine, "red-1")
+    assert opened, "no sensor fault opened"
+    (first_ms, issues), *_ = opened
+    assert f"{channel} stuck" in issues
+    assert 0 <= first_ms / 1000 - at <= 3 * 3600
+
+
+def test_stuck_window_scales_with_the_usual_interval() -> None:
+    # An hour at one- and two-minute reporting (60 and 30 readings), 24 usual intervals
+    # beyond (the policy's documented figures; common practice, no source).
+    policy = alerts.AlertPolicy()
+    for every_min, window_min in ((1.0, 60.0), (2.0, 60.0), (5.0, 120.0), (15.0, 360.0)):
+        got = stuck_window_ms(np.array([every_min * MIN, np.nan]), policy)
+        assert got.tolist() == [window_min * MIN, 60 * MIN]  # NaN: not known yet, the hour
+
+
+def test_at_fifteen_minutes_a_stuck_cabinet_probe_is_found_and_a_steady_one_is_not(
+    engine: sa.Engine,
+) -> None:
+    # Two units reporting every 15 minutes for 12 days; the simulator freezes one's cabinet
+    # probe on day 6 (its truth). An hour holds four readings, too few to tell a frozen probe
+    # from a steady 0.1 K one: the window is 24 intervals (6 h), and the healthy unit, whose
+    # 0.1 K probe reads the same for hours at a time, is never flagged.
+    start = 1_735_689_600.0
+    at = start + 6 * 86_400.0 + 5 * 3600.0
+    spec = sim.FleetSpec(
+        devices=(
+            sim.DeviceSpec("slow-1", cuts_per_30d=0.0, control="proportional"),
+            sim.DeviceSpec("slow-2", cuts_per_30d=0.0, control="proportional"),
+        ),
+        start_s=start, interval_s=900.0, seed=207,
+        faults=(sim.Fault("sensor", "slow-1", at, channel="t_cabinet", mode="stuck"),),
+    )  # fmt: skip
+    db.store_batch(engine, _sim_readings(spec, 12.0))
+    alerts.evaluate(engine)
+    (first_ms, issues), *_ = _opened(engine, "slow-1")
+    assert "t_cabinet stuck" in issues
+    # the 6 h window, the 15 min delay and a reading's worth of lateness
+    assert 0 <= first_ms / 1000 - at <= 6 * 3600 + 900 + 2 * 900
+    assert _opened(engine, "slow-2") == []

@@ -9,7 +9,7 @@ does not shorten a unit's time in service. The fleet's worst units by a key are 
 that key's index, not a scan of every device's newest estimates.
 
 Revision ID: 0012
-Revises: 0010
+Revises: 0011
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ import sqlalchemy as sa
 from alembic import op
 
 revision = "0012"
-down_revision = "0010"
+down_revision = "0011"
 branch_labels = None
 depends_on = None
 

@@ -96,7 +96,10 @@ class AnalysisSettings:
     #: window to two days or more, each fit holds them on its own and the figure is the
     #: newest fit's: a median over a further day added a day's lag to a leak's rise, and on
     #: simulated fleets with known truth (5-minute instants, seeds 201-210) a 1.5x leak took
-    #: up to 82 h to flag, against a 72-h target.
+    #: up to 82 h to flag, against a 72-h target. The flag's ``ua_flag_persist`` evaluations
+    #: must then be windows in a row: a single fit's figure scatters more than a day's
+    #: median, and over a 90-day season a healthy unit whose UA was served unreliable read
+    #: +45 % and +41 % in two windows with one left out between them.
     ua_recent_data_s: int = 2 * 86_400
     #: UA's values join its growing baseline (``ua_baseline_grow_days``) once the thermal
     #: window's stretch beyond this has passed after them [s]: a leak shows fully in the fit
@@ -114,7 +117,10 @@ class AnalysisSettings:
     #: hours), so two in a row confirm little, and instants so far apart cannot tell warm
     #: goods put in from a leak by the thermostat's cycles: on a simulated healthy unit (seed
     #: 203, known truth) a busy day and a half read UA +55 % in three windows running and
-    #: raised a leak flag. A leak is flagged 12 hours later; a false one is not raised.
+    #: raised a leak flag. A leak is flagged 12 hours later; a false one is not raised. Only
+    #: windows whose UA is served as reliable count towards it: 15-minute instants identify
+    #: UA only where the module rests now and then, and another healthy unit of that seed,
+    #: its UA served unreliable at ±38 %, read +50 % for a day and was flagged.
     ua_long_window_s: int = 3 * 86_400
     ua_long_window_persist: int = 4
     #: Largest standard error of a window's UA from its own scatter, relative to its value,

@@ -49,6 +49,8 @@ def track(
     at_once_pct: float | None = None,
     recent_s: float | None = None,
     admit_s: float = 0.0,
+    counts: bool = True,
+    in_a_row_s: float | None = None,
 ) -> None:
     """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
 
@@ -64,7 +66,9 @@ def track(
     on its first evaluation. The change is that of the median of the values of the last day
     (the hot side's: of the last step), or of the last ``recent_s`` [s] where given (at least
     the newest value). With ``admit_s`` [s], a value joins the growing baseline only that
-    long after its own step.
+    long after its own step. A value that does not ``counts`` never counts towards
+    ``persist``; with ``in_a_row_s`` [s], nor do values further apart than that (a step
+    that was not followed in between starts the count again).
     """
     series = state.series_by_name().setdefault(name, [])
     first = state.first_by_name().setdefault(name, b)
@@ -103,7 +107,10 @@ def track(
     # lasting fault shows in every later value, while the day's median can be made of two or
     # three disturbed ones.
     newest_ok = newest_sd is None or trends.percent_change(value + newest_sd, center) >= flag_pct
-    above[name] = int(above.get(name, 0)) + 1 if change >= flag_pct and newest_ok else 0
+    run = int(above.get(name, 0))
+    if in_a_row_s is not None and len(series) > 1 and b - series[-2][0] > in_a_row_s * 1000:
+        run = 0
+    above[name] = run + 1 if change >= flag_pct and newest_ok and counts else 0
     raised = above[name] >= persist or (
         at_once_pct is not None and change >= at_once_pct and newest_ok
     )
@@ -272,13 +279,18 @@ def track_ua(
     ua: float,
     ua_sd: float,
     cfg: AnalysisSettings,
+    served_reliable: bool = True,
 ) -> None:
-    """Follow one window's UA at the trend K [W/K] with its standard error [W/K].
+    """Follow one window's UA at the trend K [W/K] with its standard error [W/K], and
+    whether the window's UA was served as reliable.
 
     Its change is judged on the median of the fits whose readings, with the thermal window
     behind each, span ``ua_recent_data_s``: the last day's at one-minute readings (a day's
     window each), only the newest where slow reporting stretched the window to two days or
-    more, which then averages the days of use and weather on its own."""
+    more, which then averages the days of use and weather on its own; two such figures in a
+    row are then two windows in a row, none left out between them. With a window of
+    ``ua_long_window_s`` or longer, only windows whose UA was served as reliable count
+    towards the flag."""
     recent_s = max(cfg.ua_recent_data_s - cfg.thermal_window_s, 0)
     long_window = cfg.thermal_window_s >= cfg.ua_long_window_s
     persist = cfg.ua_long_window_persist if long_window else cfg.ua_flag_persist
@@ -287,6 +299,8 @@ def track_ua(
         skip_days=cfg.ua_baseline_skip_days, persist=persist,
         grow_days=cfg.ua_baseline_grow_days, newest_sd=ua_sd, recent_s=recent_s,
         admit_s=0 if long_window else max(cfg.thermal_window_s - cfg.ua_admit_window_s, 0),
+        counts=served_reliable or not long_window,
+        in_a_row_s=cfg.window_s if recent_s < cfg.window_s else None,
     )  # fmt: skip
 
 
@@ -301,4 +315,5 @@ def rebase_ua(state: DeviceState, k_trend: float, cfg: AnalysisSettings) -> None
     kept_raw, state.ua_raw = state.ua_raw or [], None
     for b, ua, ua_per_k, k_cabinet, *sd in kept_raw:
         moved = ua + ua_per_k * (k_trend - k_cabinet)
-        track_ua(scratch, state, int(b), moved, float(sd[0]) if sd else 0.0, cfg)
+        served_ok = bool(sd[1]) if len(sd) > 1 else True
+        track_ua(scratch, state, int(b), moved, float(sd[0]) if sd else 0.0, cfg, served_ok)

@@ -90,6 +90,39 @@ class AnalysisSettings:
     #: standard error a leak whose windows scatter about the threshold waited 62 h for two
     #: in a row past it.
     ua_flag_persist: int = 2
+    #: UA's change is that of the median of the fits of the last (this - the thermal window)
+    #: [s]: at one-minute readings the last day's fits, each over a day, so that two days of
+    #: use and weather stand behind the figure. Where slow reporting stretches the thermal
+    #: window to two days or more, each fit holds them on its own and the figure is the
+    #: newest fit's: a median over a further day added a day's lag to a leak's rise, and on
+    #: simulated fleets with known truth (5-minute instants, seeds 201-210) a 1.5x leak took
+    #: up to 82 h to flag, against a 72-h target. The flag's ``ua_flag_persist`` evaluations
+    #: must then be windows in a row: a single fit's figure scatters more than a day's
+    #: median, and over a 90-day season a healthy unit whose UA was served unreliable read
+    #: +45 % and +41 % in two windows with one left out between them.
+    ua_recent_data_s: int = 2 * 86_400
+    #: UA's values join its growing baseline (``ua_baseline_grow_days``) once the thermal
+    #: window's stretch beyond this has passed after them [s]: a leak shows fully in the fit
+    #: only a thermal window after it began, and the values of its rise must not make its own
+    #: baseline. At one-minute readings (a day's window) each joins at once, as before; at
+    #: 5-minute instants a day later. On simulated fleets with known truth (seeds 201-210) the
+    #: baseline rose 2-3 % with a leak's rise before its change reached the flag. Not with a
+    #: window of ``ua_long_window_s`` or longer: from 15-minute instants a healthy unit's fit
+    #: wanders by a quarter over a few days, and a baseline that held back two days of it sat
+    #: 8 % below the unit's usual value (seed 203) and let one such wander raise a flag.
+    ua_admit_window_s: int = 86_400
+    #: Where the thermal window is this long or longer (15-minute instants and slower), UA's
+    #: flag needs the change on ``ua_long_window_persist`` consecutive evaluations, a day of
+    #: new readings, not two [s, -]. The windows then share most of their readings (66 of 72
+    #: hours), so two in a row confirm little, and instants so far apart cannot tell warm
+    #: goods put in from a leak by the thermostat's cycles: on a simulated healthy unit (seed
+    #: 203, known truth) a busy day and a half read UA +55 % in three windows running and
+    #: raised a leak flag. A leak is flagged 12 hours later; a false one is not raised. Only
+    #: windows whose UA is served as reliable count towards it: 15-minute instants identify
+    #: UA only where the module rests now and then, and another healthy unit of that seed,
+    #: its UA served unreliable at ±38 %, read +50 % for a day and was flagged.
+    ua_long_window_s: int = 3 * 86_400
+    ua_long_window_persist: int = 4
     #: Largest standard error of a window's UA from its own scatter, relative to its value,
     #: for UA's change to be followed [-]. The fit calls UA reliable below 15 %; on a unit
     #: with a small UA that passes mostly the windows that happen to read high, and a

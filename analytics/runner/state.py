@@ -107,6 +107,8 @@ class Baseline(_Stored):
     n: int
     #: Values taken in while the baseline still grows; None once it is closed.
     pool: list[float] | None = None
+    #: Values waiting to be taken in ([end of step (epoch ms UTC), value]); None: none.
+    pending: list[Point] | None = None
 
 
 @dataclass

@@ -47,6 +47,10 @@ def track(
     grow_days: float = 0.0,
     newest_sd: float | None = None,
     at_once_pct: float | None = None,
+    recent_s: float | None = None,
+    admit_s: float = 0.0,
+    counts: bool = True,
+    in_a_row_s: float | None = None,
 ) -> None:
     """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
 
@@ -59,7 +63,12 @@ def track(
     ``newest_sd`` (the newest value's standard error), an evaluation counts towards
     ``persist`` only when the newest value is within one standard error of a change of
     ``flag_pct`` or beyond. With ``at_once_pct``, a change that reaches it raises the flag
-    on its first evaluation.
+    on its first evaluation. The change is that of the median of the values of the last day
+    (the hot side's: of the last step), or of the last ``recent_s`` [s] where given (at least
+    the newest value). With ``admit_s`` [s], a value joins the growing baseline only that
+    long after its own step. A value that does not ``counts`` never counts towards
+    ``persist``; with ``in_a_row_s`` [s], nor do values further apart than that (a step
+    that was not followed in between starts the count again).
     """
     series = state.series_by_name().setdefault(name, [])
     first = state.first_by_name().setdefault(name, b)
@@ -70,7 +79,7 @@ def track(
     while series and series[0][0] < horizon and series[0][0] > baseline_end:
         series.pop(0)
     bl_d = _baseline(state, name, b, value, series, baseline_start, baseline_end, grow_days,
-                     min_rel_spread, cfg)  # fmt: skip
+                     min_rel_spread, cfg, int(admit_s * 1000))  # fmt: skip
     if bl_d is None:
         return
     center, spread = float(bl_d.center), float(bl_d.spread)
@@ -79,8 +88,10 @@ def track(
         series[bisect.bisect_left(series, horizon, key=_at) :], b // MS_DAY - 1
     )
     state.series_by_name()[name] = series
-    recent_from = b - (cfg.step_s * 1000 if name == "rhot" else MS_DAY)
-    tail = series[bisect.bisect_right(series, recent_from, key=_at) :]
+    if recent_s is None:
+        recent_s = cfg.step_s if name == "rhot" else MS_DAY / 1000
+    recent_from = b - int(recent_s * 1000)
+    tail = series[bisect.bisect_right(series, recent_from, key=_at) :] or series[-1:]
     # statistics.median: the same value as numpy's for these few points, without its overhead.
     recent = float(statistics.median(x for _, x in tail))
     change = trends.percent_change(recent, center)
@@ -96,7 +107,10 @@ def track(
     # lasting fault shows in every later value, while the day's median can be made of two or
     # three disturbed ones.
     newest_ok = newest_sd is None or trends.percent_change(value + newest_sd, center) >= flag_pct
-    above[name] = int(above.get(name, 0)) + 1 if change >= flag_pct and newest_ok else 0
+    run = int(above.get(name, 0))
+    if in_a_row_s is not None and len(series) > 1 and b - series[-2][0] > in_a_row_s * 1000:
+        run = 0
+    above[name] = run + 1 if change >= flag_pct and newest_ok and counts else 0
     raised = above[name] >= persist or (
         at_once_pct is not None and change >= at_once_pct and newest_ok
     )
@@ -118,6 +132,7 @@ def _baseline(
     grow_days: float,
     min_rel_spread: float,
     cfg: AnalysisSettings,
+    admit_ms: int = 0,
 ) -> Baseline | None:
     # The quantity's baseline once its period has passed (see track), grown by ``value``
     # while it still grows; None while there is none yet.
@@ -143,10 +158,12 @@ def _baseline(
         # Closed at the end of the growing time, and for good once the change has reached
         # flag_pct: a fault's values must not make its own baseline.
         if b > baseline_start + int(grow_days * MS_DAY) or (state.above or {}).get(name):
-            pool_d.pool = None
+            pool_d.pool = pool_d.pending = None
         else:
             assert pool_d.pool is not None
-            pool_d.pool.append(value)
+            waiting = [*(pool_d.pending or []), [b, value]]
+            pool_d.pool.extend(x for at, x in waiting if at <= b - admit_ms)
+            pool_d.pending = [p for p in waiting if p[0] > b - admit_ms] or None
             bl = trends.baseline(np.array(pool_d.pool), min_rel_spread)
             pool_d.center, pool_d.spread, pool_d.n = bl.center, bl.spread, bl.n
     return bases[name]
@@ -262,12 +279,28 @@ def track_ua(
     ua: float,
     ua_sd: float,
     cfg: AnalysisSettings,
+    served_reliable: bool = True,
 ) -> None:
-    """Follow one window's UA at the trend K [W/K] with its standard error [W/K]."""
+    """Follow one window's UA at the trend K [W/K] with its standard error [W/K], and
+    whether the window's UA was served as reliable.
+
+    Its change is judged on the median of the fits whose readings, with the thermal window
+    behind each, span ``ua_recent_data_s``: the last day's at one-minute readings (a day's
+    window each), only the newest where slow reporting stretched the window to two days or
+    more, which then averages the days of use and weather on its own; two such figures in a
+    row are then two windows in a row, none left out between them. With a window of
+    ``ua_long_window_s`` or longer, only windows whose UA was served as reliable count
+    towards the flag."""
+    recent_s = max(cfg.ua_recent_data_s - cfg.thermal_window_s, 0)
+    long_window = cfg.thermal_window_s >= cfg.ua_long_window_s
+    persist = cfg.ua_long_window_persist if long_window else cfg.ua_flag_persist
     track(
         rows, state, "ua", "cabinet.ua", b, ua, cfg.ua_flag_pct, 0.03, cfg,
-        skip_days=cfg.ua_baseline_skip_days, persist=cfg.ua_flag_persist,
-        grow_days=cfg.ua_baseline_grow_days, newest_sd=ua_sd,
+        skip_days=cfg.ua_baseline_skip_days, persist=persist,
+        grow_days=cfg.ua_baseline_grow_days, newest_sd=ua_sd, recent_s=recent_s,
+        admit_s=0 if long_window else max(cfg.thermal_window_s - cfg.ua_admit_window_s, 0),
+        counts=served_reliable or not long_window,
+        in_a_row_s=cfg.window_s if recent_s < cfg.window_s else None,
     )  # fmt: skip
 
 
@@ -282,4 +315,5 @@ def rebase_ua(state: DeviceState, k_trend: float, cfg: AnalysisSettings) -> None
     kept_raw, state.ua_raw = state.ua_raw or [], None
     for b, ua, ua_per_k, k_cabinet, *sd in kept_raw:
         moved = ua + ua_per_k * (k_trend - k_cabinet)
-        track_ua(scratch, state, int(b), moved, float(sd[0]) if sd else 0.0, cfg)
+        served_ok = bool(sd[1]) if len(sd) > 1 else True
+        track_ua(scratch, state, int(b), moved, float(sd[0]) if sd else 0.0, cfg, served_ok)

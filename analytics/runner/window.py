@@ -452,7 +452,7 @@ def _module_and_cabinet_rows(
     # The value's error includes what probe offsets and the errors of S and R could do to it;
     # its tracking (below) does not, since a constant error cancels in its changes.
     ua_se = math.hypot(sd["ua"], sd["ua_probe"])
-    ua_ok = th_fit.ua_reliable and rested and ua_se <= cfg.ua_max_rel_se * th_fit.ua
+    ua_ok = _ua_served_reliable(th_fit, cfg)
     ua_note = None
     if not th_fit.ua_reliable:
         ua_note = th_fit.note
@@ -477,6 +477,13 @@ def _module_and_cabinet_rows(
             "cabinet.heat_leak_w", b, th_fit.ua * d_amb, ua_se * abs(d_amb),
             int(last_hour.sum()), ua_ok, ua_note,
         )  # fmt: skip
+
+
+def _ua_served_reliable(th_fit: dg.ThermalFit, cfg: AnalysisSettings) -> bool:
+    # UA is served as reliable: its fit pins it, the module rested, and probe offsets and the
+    # errors of S and R leave it within ``ua_max_rel_se``.
+    ua_se = math.hypot(th_fit.stderrs["ua"], th_fit.stderrs["ua_probe"])
+    return th_fit.ua_reliable and th_fit.rested and ua_se <= cfg.ua_max_rel_se * th_fit.ua
 
 
 def _rises(data: Readings, win: _Window) -> tuple[float, float, float, float]:
@@ -577,12 +584,15 @@ def _follow_ua(
     k_trend = state.k_trend
     followable = sd["ua"] <= cfg.ua_follow_rel_se * th_fit.ua and not hot_flagged
     if followable and ambient_lead_usual(state, b, rise_amb, cfg):
+        served_ok = _ua_served_reliable(th_fit, cfg)
         if k_source == "prior":
             raw = state.ua_raw = state.ua_raw if state.ua_raw is not None else []
-            raw.append([b, th_fit.ua, th_fit.ua_per_k, th_fit.k_cabinet, sd["ua"]])
+            raw.append(
+                [b, th_fit.ua, th_fit.ua_per_k, th_fit.k_cabinet, sd["ua"], float(served_ok)]
+            )
             del raw[: -cfg.ua_raw_keep]
         ua_trend = th_fit.ua + th_fit.ua_per_k * (k_trend - th_fit.k_cabinet)
-        track_ua(rows, state, b, ua_trend, sd["ua"], cfg)
+        track_ua(rows, state, b, ua_trend, sd["ua"], cfg, served_ok)
 
 
 def _performance(

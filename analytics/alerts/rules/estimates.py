@@ -45,6 +45,7 @@ LEAK_KEYS = (
     "cabinet.ua_w_per_k",
     "cabinet.ua.baseline",
     "cabinet.heat_leak_w",
+    "cabinet.ua.flag",
 )
 HOT_KEYS = (
     "hot_side.resistance.change_pct",

@@ -44,7 +44,13 @@ def module_wear_observations(series: Series, policy: AlertPolicy) -> Observation
 
 def heat_leak_observations(series: Series, policy: AlertPolicy) -> Observations:
     """Cabinet UA change [%] at or above ``heat_leak_warning_pct`` over
-    ``heat_leak_persist_s`` of consecutive estimates; critical at ``heat_leak_critical_pct``."""
+    ``heat_leak_persist_s`` of consecutive estimates, once the diagnostics' own UA flag
+    (``cabinet.ua.flag``, where published) has been raised in that spell; critical at
+    ``heat_leak_critical_pct``.
+
+    The flag's persistence grows where slow reporting stretches the cabinet fit's window
+    (see ``AnalysisSettings.ua_long_window_s``): its windows then share most of their
+    readings, and the spell's length alone would rest the alert on one disturbed stretch."""
     found = estimate_series(series, "cabinet.ua.change_pct")
     if found is None:
         return Observations.empty()
@@ -52,6 +58,9 @@ def heat_leak_observations(series: Series, policy: AlertPolicy) -> Observations:
     hyst = policy.trend_hysteresis_pct
     above = vals >= policy.heat_leak_warning_pct
     active = _persisting(ts, above, int(policy.heat_leak_persist_s * 1000))
+    if "cabinet.ua.flag" in series:
+        flagged = np.array([d.get("cabinet.ua.flag", 0.0) == 1.0 for d in details], dtype=bool)
+        active &= _raised_in_spell(above, flagged)
     hold = vals >= policy.heat_leak_warning_pct - hyst
     sev = np.where(vals >= policy.heat_leak_critical_pct, 2, np.where(active, 1, 0))
     return Observations(ts, active, hold, sev.astype(np.int8), vals, details)
@@ -69,6 +78,16 @@ def hot_side_observations(series: Series, policy: AlertPolicy) -> Observations:
     hold = vals >= policy.hot_side_warning_pct - hyst
     sev = np.where(vals >= policy.hot_side_critical_pct, 2, np.where(active, 1, 0))
     return Observations(ts, active, hold, sev.astype(np.int8), vals, details)
+
+
+def _raised_in_spell(cond: BoolArray, raised: BoolArray) -> BoolArray:
+    """True where ``raised`` has been True at some sample of the current run of ``cond``."""
+    out = np.zeros(len(cond), dtype=bool)
+    seen = False
+    for i in range(len(cond)):
+        seen = bool(cond[i]) and (seen or bool(raised[i]))
+        out[i] = seen
+    return out
 
 
 def _persisting(ts: IntArray, cond: BoolArray, span_ms: int) -> BoolArray:

@@ -3,6 +3,7 @@
 The expectations follow from the policy's documented delays (common practice, no source): an
 excursion opens after 30 minutes out of band and at least two usual intervals; offline after
 five usual intervals (at least 10 minutes) and critical after 4 hours or twice that threshold.
+A heat-leak alert needs the diagnostics' own UA flag as well as its 12-hour spell (issue 22).
 """
 
 from __future__ import annotations
@@ -12,6 +13,7 @@ import numpy as np
 from tecfleet.analytics import alerts
 from tecfleet.analytics.alerts.rules.excursion import slow_reporting_wait
 from tecfleet.analytics.alerts.rules.offline import offline_observations
+from tecfleet.analytics.alerts.rules.trends import heat_leak_observations
 
 MIN = 60_000
 
@@ -52,3 +54,35 @@ def test_offline_scales_with_the_usual_interval() -> None:
     assert _offline(1.0) == (10.0, 240.0)  # five minutes is under the 10-minute floor
     assert _offline(15.0) == (75.0, 240.0)
     assert _offline(60.0) == (300.0, 600.0)  # critical no sooner than twice the threshold
+
+
+def _leak_series(flags: list[float]) -> dict[str, list[tuple[int, float]]]:
+    # Six-hourly UA changes of +45 %, above the policy's 35 % warning, with the diagnostics'
+    # own UA flag as given.
+    at = [k * 6 * 60 * MIN for k in range(len(flags))]
+    return {
+        "cabinet.ua.change_pct": [(t, 45.0) for t in at],
+        "cabinet.ua.flag": list(zip(at, flags, strict=True)),
+    }
+
+
+def test_a_heat_leak_alert_rests_on_the_diagnostics_ua_flag() -> None:
+    # A change past the warning over the policy's 12 hours is not enough where the
+    # diagnostics have not flagged UA: at 15-minute instants their flag waits for a day of
+    # evaluations, since consecutive windows share most of their readings (issue 22: no flag
+    # on a healthy unit at any reporting interval). Once flagged, the alert follows.
+    policy = alerts.AlertPolicy()
+    quiet = heat_leak_observations(_leak_series([0.0] * 6), policy)
+    assert not quiet.active.any()
+    flagged = heat_leak_observations(_leak_series([0.0, 0.0, 0.0, 1.0, 1.0, 0.0]), policy)
+    # 12 hours of changes past the warning from the third on; the flag from the fourth, and
+    # it holds for the spell even where one window's own value dipped.
+    assert flagged.active.tolist() == [False, False, False, True, True, True]
+
+
+def test_without_the_flag_published_the_spell_alone_decides() -> None:
+    # Estimates stored before the flag was read by the rule: the 12-hour spell as before.
+    series = _leak_series([0.0] * 4)
+    del series["cabinet.ua.flag"]
+    obs = heat_leak_observations(series, alerts.AlertPolicy())
+    assert obs.active.tolist() == [False, False, True, True]

@@ -129,8 +129,8 @@ _DEVICE_RECOUNT = (
 )
 
 
-#: Reading's fields without the interval summaries: most units send none, and a database
-#: still below revision 0006 has no columns for them.
+#: Reading's fields without the interval summaries: most units send none, and a batch
+#: without them is inserted without those columns.
 _BASE_FIELDS = len(Reading._fields) - len(SUMMARY_COLUMNS)
 
 

@@ -16,6 +16,7 @@ from alembic.config import Config
 from tecfleet.ingest import db
 from tecfleet.ingest.db.tables import SUMMARY_COLUMNS
 from tecfleet.ingest.payload import parse_message
+from tests.ingest.old_schema import store_raw
 
 NOW = 1_790_000_000.0
 TOPIC = "tecfleet/unit-9/telemetry"
@@ -130,12 +131,11 @@ def _alembic(engine: sa.Engine, target: str, up: bool) -> None:
 def test_migration_0006_up_and_down_keeps_the_readings(db_url: str) -> None:
     engine = db.make_engine(db_url)
     _alembic(engine, "0005", up=True)
-    # A database below 0006 still takes readings without summaries.
-    assert db.store_batch(engine, [_reading(0, False)]) == 1
+    store_raw(engine, [_reading(0, False)])
     _alembic(engine, "0006", up=True)
     cols = {c["name"] for c in sa.inspect(engine).get_columns("readings")}
     assert set(SUMMARY_COLUMNS) <= cols
-    assert db.store_batch(engine, [_reading(15, True)]) == 1
+    store_raw(engine, [_reading(15, True)])
     _alembic(engine, "0005", up=False)
     cols = {c["name"] for c in sa.inspect(engine).get_columns("readings")}
     assert not set(SUMMARY_COLUMNS) & cols

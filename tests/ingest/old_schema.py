@@ -1,12 +1,15 @@
-"""Readings written into a database held at an older revision, for the migration tests: the
-service's writer keeps marks on the device row that an older schema has no columns for, so
-these rows go in by plain SQL, each with only the fields it carries."""
+"""A database held at an older revision, for the migration tests: moved there by alembic,
+and readings written into it. The service's writer keeps marks on the device row that an older
+schema has no columns for, so these rows go in by plain SQL, each with only the fields it
+carries."""
 
 from __future__ import annotations
 
 from collections.abc import Sequence
 
 import sqlalchemy as sa
+from alembic import command
+from alembic.config import Config
 
 from tecfleet.ingest import db
 
@@ -27,3 +30,12 @@ def store_raw(engine: sa.Engine, readings: Sequence[db.Reading], received_ms: in
             marks = ", ".join(f":{k}" for k in values)
             c.execute(sa.text(f"INSERT INTO readings ({names}) VALUES ({marks})"), values)
     return len(readings)
+
+
+def migrate_to(engine: sa.Engine, target: str, *, down: bool = False) -> None:
+    """Upgrade (or downgrade) the database to revision ``target`` with alembic."""
+    config = Config()
+    config.set_main_option("script_location", "tecfleet.ingest:migrations")
+    with engine.begin() as connection:
+        config.attributes["connection"] = connection
+        (command.downgrade if down else command.upgrade)(config, target)

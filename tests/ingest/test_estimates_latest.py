@@ -9,20 +9,11 @@ import random
 from typing import Any
 
 import sqlalchemy as sa
-from alembic import command
-from alembic.config import Config
 
 from tecfleet.ingest import db
+from tests.ingest.old_schema import migrate_to
 
 COLUMNS = ("device_id", "key", "at_ms", "value", "stderr", "n", "reliable", "note", "basis")
-
-
-def _alembic(engine: sa.Engine, target: str, *, down: bool = False) -> None:
-    config = Config()
-    config.set_main_option("script_location", "tecfleet.ingest:migrations")
-    with engine.begin() as connection:
-        config.attributes["connection"] = connection
-        (command.downgrade if down else command.upgrade)(config, target)
 
 
 def _expected(conn: sa.Connection) -> set[tuple[Any, ...]]:
@@ -92,7 +83,7 @@ def test_inserts_and_deletes_keep_the_newest_row_of_each_key(db_url: str) -> Non
 
 def test_the_migration_fills_it_from_rows_stored_before(db_url: str) -> None:
     engine = db.make_engine(db_url)
-    _alembic(engine, "0009")
+    migrate_to(engine, "0009")
     rng = random.Random(21)
     with engine.begin() as conn:
         conn.execute(db.devices.insert(), [{"device_id": d, "readings": 0} for d in ("u-1", "u-2")])
@@ -101,7 +92,7 @@ def test_the_migration_fills_it_from_rows_stored_before(db_url: str) -> None:
     with engine.connect() as conn:
         assert len(_kept(conn)) == 6
         assert _kept(conn) == _expected(conn)
-    _alembic(engine, "0009", down=True)
+    migrate_to(engine, "0009", down=True)
     assert "estimates_latest" not in sa.inspect(engine).get_table_names()
     with engine.begin() as conn:  # the triggers went with it: writing estimates still works
         _insert(conn, _rows(rng, 5))

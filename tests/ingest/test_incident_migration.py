@@ -4,19 +4,11 @@ and PostgreSQL, with alert rows and their audit trail in place."""
 from __future__ import annotations
 
 import sqlalchemy as sa
-from alembic import command
 from alembic.config import Config
 from alembic.script import ScriptDirectory
 
 from tecfleet.ingest import db
-
-
-def _alembic(engine: sa.Engine, target: str, *, down: bool = False) -> None:
-    config = Config()
-    config.set_main_option("script_location", "tecfleet.ingest:migrations")
-    with engine.begin() as connection:
-        config.attributes["connection"] = connection
-        (command.downgrade if down else command.upgrade)(config, target)
+from tests.ingest.old_schema import migrate_to
 
 
 def _columns(engine: sa.Engine) -> set[str]:
@@ -29,7 +21,7 @@ def _indexes(engine: sa.Engine) -> set[str | None]:
 
 def test_incident_column_up_down_and_up_again(db_url: str) -> None:
     engine = db.make_engine(db_url)
-    _alembic(engine, "0003")
+    migrate_to(engine, "0003")
     assert "incident_id" not in _columns(engine)
     with engine.begin() as conn:
         conn.execute(db.devices.insert().values(device_id="m-1", readings=0))
@@ -51,7 +43,7 @@ def test_incident_column_up_down_and_up_again(db_url: str) -> None:
     assert "ix_alerts_incident_id" in _indexes(engine)
     with engine.begin() as conn:
         conn.execute(db.alerts.update().values(incident_id=1))
-    _alembic(engine, "0003", down=True)
+    migrate_to(engine, "0003", down=True)
     assert "incident_id" not in _columns(engine)
     assert "ix_alerts_incident_id" not in _indexes(engine)
     with engine.connect() as conn:

@@ -10,13 +10,11 @@ from typing import Any
 
 import pytest
 import sqlalchemy as sa
-from alembic import command
-from alembic.config import Config
 
 from tecfleet.ingest import db
 from tecfleet.ingest.db.tables import SUMMARY_COLUMNS
 from tecfleet.ingest.payload import parse_message
-from tests.ingest.old_schema import store_raw
+from tests.ingest.old_schema import migrate_to, store_raw
 
 NOW = 1_790_000_000.0
 TOPIC = "tecfleet/unit-9/telemetry"
@@ -120,23 +118,15 @@ def test_summaries_are_stored_and_read_back_where_sent(db_url: str) -> None:
     engine.dispose()
 
 
-def _alembic(engine: sa.Engine, target: str, up: bool) -> None:
-    config = Config()
-    config.set_main_option("script_location", "tecfleet.ingest:migrations")
-    with engine.begin() as connection:
-        config.attributes["connection"] = connection
-        (command.upgrade if up else command.downgrade)(config, target)
-
-
 def test_migration_0006_up_and_down_keeps_the_readings(db_url: str) -> None:
     engine = db.make_engine(db_url)
-    _alembic(engine, "0005", up=True)
+    migrate_to(engine, "0005")
     store_raw(engine, [_reading(0, False)])
-    _alembic(engine, "0006", up=True)
+    migrate_to(engine, "0006")
     cols = {c["name"] for c in sa.inspect(engine).get_columns("readings")}
     assert set(SUMMARY_COLUMNS) <= cols
     store_raw(engine, [_reading(15, True)])
-    _alembic(engine, "0005", up=False)
+    migrate_to(engine, "0005", down=True)
     cols = {c["name"] for c in sa.inspect(engine).get_columns("readings")}
     assert not set(SUMMARY_COLUMNS) & cols
     with engine.connect() as c:

@@ -7,26 +7,16 @@ import math
 
 import pytest
 import sqlalchemy as sa
-from alembic import command
-from alembic.config import Config
 
 from tecfleet.ingest import db
 from tecfleet.ingest.errors import StoreError
-from tests.ingest.old_schema import store_raw
+from tests.ingest.old_schema import migrate_to, store_raw
 
 T0_MS = 1_790_000_000_000
 
 
 def _reading(device: str, minute: int, t_cold: float | None, t_hot: float | None) -> db.Reading:
     return db.Reading(device, T0_MS + 60_000 * minute, 4.0, t_cold, t_hot, 22.0, 3.0, 8.0)
-
-
-def _alembic(engine: sa.Engine, target: str, up: bool) -> None:
-    config = Config()
-    config.set_main_option("script_location", "tecfleet.ingest:migrations")
-    with engine.begin() as connection:
-        config.attributes["connection"] = connection
-        (command.upgrade if up else command.downgrade)(config, target)
 
 
 def test_missing_faces_are_stored_as_null_and_read_as_nan(db_url: str) -> None:
@@ -58,7 +48,7 @@ def test_missing_faces_are_stored_as_null_and_read_as_nan(db_url: str) -> None:
 
 def test_migration_0005_up_and_down_keeps_rows(db_url: str) -> None:
     engine = db.make_engine(db_url)
-    _alembic(engine, "0004", up=True)
+    migrate_to(engine, "0004")
     with engine.begin() as c:
         c.execute(db.devices.insert().values(device_id="a", readings=0))
         c.execute(
@@ -69,7 +59,7 @@ def test_migration_0005_up_and_down_keeps_rows(db_url: str) -> None:
         )
     before = sa.inspect(engine).get_columns("readings")
     assert not next(c for c in before if c["name"] == "t_cold")["nullable"]
-    _alembic(engine, "0005", up=True)
+    migrate_to(engine, "0005")
     after = {c["name"]: c for c in sa.inspect(engine).get_columns("readings")}
     assert after["t_cold"]["nullable"] and after["t_hot"]["nullable"]
     assert "basis" in {c["name"] for c in sa.inspect(engine).get_columns("estimates")}
@@ -79,10 +69,10 @@ def test_migration_0005_up_and_down_keeps_rows(db_url: str) -> None:
     assert n == 2
     # A NULL face cannot go back under NOT NULL: the downgrade refuses rather than drop rows.
     with pytest.raises(StoreError, match="1 stored readings lack a face temperature"):
-        _alembic(engine, "0004", up=False)
+        migrate_to(engine, "0004", down=True)
     with engine.begin() as c:
         c.execute(db.readings.delete().where(db.readings.c.t_cold.is_(None)))
-    _alembic(engine, "0004", up=False)
+    migrate_to(engine, "0004", down=True)
     down = {c["name"]: c for c in sa.inspect(engine).get_columns("readings")}
     assert not down["t_cold"]["nullable"] and not down["t_hot"]["nullable"]
     with engine.connect() as c:

@@ -9,12 +9,11 @@ import datetime as dt
 import numpy as np
 import pandas as pd
 import sqlalchemy as sa
-from alembic import command
-from alembic.config import Config
 
 from tecfleet.ingest import db
 from tecfleet.ingest.db.partitions import day_partitions
 from tecfleet.ingest.db.retention import RetentionPolicy, apply_retention
+from tests.ingest.old_schema import migrate_to
 
 DAY_MS = 86_400_000
 T0_MS = 1_790_000_000_000
@@ -22,14 +21,6 @@ _ALL = (
     "id, device_id, ts_ms, seq, t_cabinet, t_cold, t_hot, t_ambient, current, voltage, rh, "
     "door_open, received_ms"
 )
-
-
-def _alembic(engine: sa.Engine, target: str, up: bool) -> None:
-    config = Config()
-    config.set_main_option("script_location", "tecfleet.ingest:migrations")
-    with engine.begin() as connection:
-        config.attributes["connection"] = connection
-        (command.upgrade if up else command.downgrade)(config, target)
 
 
 def _days(start_ms: int, end_ms: int) -> list[str]:
@@ -85,7 +76,7 @@ def test_partitions_are_made_ahead_and_backfill_finds_its_day(pg_url: str) -> No
 
 
 def _populate_at_0005(engine: sa.Engine) -> None:
-    _alembic(engine, "0005", up=True)
+    migrate_to(engine, "0005")
     rng = np.random.default_rng(205)
     with engine.begin() as c:
         c.execute(db.devices.insert(), [{"device_id": d, "readings": 0} for d in "abc"])
@@ -127,5 +118,5 @@ def test_migrating_a_populated_database_keeps_every_row(db_url: str) -> None:
     after = _all_rows(engine)
     assert after[:-1] == before and after[-1][0] > before[-1][0]
     # and back down, every row kept
-    _alembic(engine, "0005", up=False)
+    migrate_to(engine, "0005", down=True)
     assert _all_rows(engine) == after

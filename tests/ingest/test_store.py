@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import sqlalchemy as sa
-from alembic import command
-from alembic.config import Config
 
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading, Reject, StatusUpdate
+from tests.ingest.old_schema import migrate_to
 
 
 def _reading(device: str, minute: int, t_cabinet: float = 4.0) -> Reading:
@@ -105,11 +104,7 @@ def test_first_reading_time_and_newest_cabinet_follow_the_stored_readings(db_url
 
 def test_the_marks_migration_fills_them_from_readings_stored_before(db_url: str) -> None:
     engine = db.make_engine(db_url)
-    config = Config()
-    config.set_main_option("script_location", "tecfleet.ingest:migrations")
-    with engine.begin() as connection:
-        config.attributes["connection"] = connection
-        command.upgrade(config, "0010")
+    migrate_to(engine, "0010")
     base = 1_790_000_000_000
     with engine.begin() as c:
         c.execute(

@@ -4,18 +4,9 @@ and PostgreSQL, with an alert row in place."""
 from __future__ import annotations
 
 import sqlalchemy as sa
-from alembic import command
-from alembic.config import Config
 
 from tecfleet.ingest import db
-
-
-def _alembic(engine: sa.Engine, target: str, *, down: bool = False) -> None:
-    config = Config()
-    config.set_main_option("script_location", "tecfleet.ingest:migrations")
-    with engine.begin() as connection:
-        config.attributes["connection"] = connection
-        (command.downgrade if down else command.upgrade)(config, target)
+from tests.ingest.old_schema import migrate_to
 
 
 def _columns(engine: sa.Engine) -> set[str]:
@@ -24,7 +15,7 @@ def _columns(engine: sa.Engine) -> set[str]:
 
 def test_told_severity_up_down_and_up_again(db_url: str) -> None:
     engine = db.make_engine(db_url)
-    _alembic(engine, "0010")
+    migrate_to(engine, "0010")
     assert "told_severity" not in _columns(engine)
     with engine.begin() as conn:
         conn.execute(db.devices.insert().values(device_id="m-1", readings=0))
@@ -42,13 +33,13 @@ def test_told_severity_up_down_and_up_again(db_url: str) -> None:
                 " VALUES (1, 1, 'open', 'critical', 'system')"
             )
         )
-    _alembic(engine, "0011")
+    migrate_to(engine, "0011")
     with engine.connect() as conn:
         # an alert stored before: nothing known told, so its next rise is told once
         assert conn.execute(sa.select(db.alerts.c.told_severity)).scalar_one() is None
     with engine.begin() as conn:
         conn.execute(db.alerts.update().values(told_severity="critical"))
-    _alembic(engine, "0010", down=True)
+    migrate_to(engine, "0010", down=True)
     assert "told_severity" not in _columns(engine)
     with engine.connect() as conn:
         assert conn.execute(sa.text("SELECT summary FROM alerts")).scalar_one() == "warm"

@@ -160,6 +160,19 @@ def test_a_condition_back_every_day_is_told_once_it_stays_away(engine: sa.Engine
     assert told[-1].hold_until_ms >= T0 + (700 + 2 * day) * MIN + 36 * 3600 * 1000
 
 
+def _ua_change(engine: sa.Engine, pct: float, fits: int) -> None:
+    """``fits`` reliable UA changes of ``pct`` [%] on cab-1, one every 6 h from T0 + 6 h."""
+    with engine.begin() as conn:
+        conn.execute(
+            db.estimates.insert(),
+            [
+                {"device_id": "cab-1", "key": "cabinet.ua.change_pct", "n": 10, "reliable": True,
+                 "at_ms": T0 + k * 6 * 3_600_000, "value": pct}
+                for k in range(1, fits + 1)
+            ],
+        )  # fmt: skip
+
+
 def test_a_symptom_is_told_when_it_joins_or_worsens_the_incident(engine: sa.Engine) -> None:
     # UA up 40 % (over the 35 % warning, under the 60 % critical; common practice, no source)
     # explains a cabinet out of band: 11.7 h out of band turns the excursion critical at 10 h
@@ -167,14 +180,7 @@ def test_a_symptom_is_told_when_it_joins_or_worsens_the_incident(engine: sa.Engi
     first = cabinet_series(3 * 1440, hot=(1500, 2200))
     again = cabinet_series(3 * 1440, hot=(2600, 2700))
     db.store_batch(engine, first[:2600] + again[2600:])
-    with engine.begin() as conn:
-        for k in range(1, 12):
-            conn.execute(
-                db.estimates.insert().values(
-                    device_id="cab-1", key="cabinet.ua.change_pct", at_ms=T0 + k * 6 * 3_600_000,
-                    value=40.0, n=10, reliable=True,
-                )
-            )  # fmt: skip
+    _ua_change(engine, 40.0, fits=11)
     alerts.evaluate(engine)
     rows = _alerts(engine, "cab-1")
     cause = next(r for r in rows if r.kind == "heat_leak")
@@ -216,14 +222,7 @@ def test_a_symptom_turning_critical_under_a_critical_cause_is_told_once(
     # cause's own critical did not say: told once; the same again the next day is not (a
     # repeating alarm told once, common practice, no source).
     db.store_batch(engine, _spells(4 * 1440, [(1500, 2200), (2600, 3300)]))
-    with engine.begin() as conn:
-        for k in range(1, 16):
-            conn.execute(
-                db.estimates.insert().values(
-                    device_id="cab-1", key="cabinet.ua.change_pct", at_ms=T0 + k * 6 * 3_600_000,
-                    value=70.0, n=10, reliable=True,
-                )
-            )  # fmt: skip
+    _ua_change(engine, 70.0, fits=15)
     alerts.evaluate(engine)
     rows = _alerts(engine, "cab-1")
     cause = next(r for r in rows if r.kind == "heat_leak")
@@ -284,14 +283,7 @@ def test_in_one_call_over_weeks_a_symptom_back_under_its_open_cause_is_one_alert
     db.store_batch(
         engine, _spells(6 * day, [(day + 600, day + 700), (4 * day + 600, 4 * day + 700)])
     )
-    with engine.begin() as conn:
-        for k in range(1, 24):
-            conn.execute(
-                db.estimates.insert().values(
-                    device_id="cab-1", key="cabinet.ua.change_pct", at_ms=T0 + k * 6 * 3_600_000,
-                    value=40.0, n=10, reliable=True,
-                )
-            )  # fmt: skip
+    _ua_change(engine, 40.0, fits=23)
     alerts.evaluate(engine)
     rows = _alerts(engine, "cab-1")
     cause = next(r for r in rows if r.kind == "heat_leak")

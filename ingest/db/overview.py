@@ -7,7 +7,7 @@ from collections.abc import Collection, Sequence
 from typing import Any, NamedTuple
 
 import sqlalchemy as sa
-from sqlalchemy.engine import Engine
+from sqlalchemy.engine import Connection, Engine
 
 from tecfleet.ingest.db.fleet import OPEN_STATES
 from tecfleet.ingest.db.sites import devices_at
@@ -57,14 +57,20 @@ def _open_alerts() -> sa.Select[Any]:
     )
 
 
+def _by_device(conn: Connection, alert_q: sa.Select[Any]) -> dict[str, dict[str, int]]:
+    """Open alerts per device and severity, from the rows of :func:`_open_alerts`."""
+    found: dict[str, dict[str, int]] = {}
+    for row in conn.execute(alert_q).all():
+        found.setdefault(row.device_id, {})[row.severity] = int(row.n)
+    return found
+
+
 def _read(
     engine: Engine, device_q: sa.Select[Any], alert_q: sa.Select[Any], estimate_q: sa.Select[Any]
 ) -> FleetRows:
     with engine.connect() as conn:
         device_rows = list(conn.execute(device_q).all())
-        open_alerts: dict[str, dict[str, int]] = {}
-        for row in conn.execute(alert_q).all():
-            open_alerts.setdefault(row.device_id, {})[row.severity] = int(row.n)
+        open_alerts = _by_device(conn, alert_q)
         found: dict[str, dict[str, LatestEstimate]] = {}
         for row in conn.execute(estimate_q).all():
             found.setdefault(row.device_id, {})[row.key] = LatestEstimate(
@@ -122,9 +128,7 @@ def count_rows(
         alert_q = alert_q.where(alerts.c.device_id.in_(devices_at(sites)))
     with engine.connect() as conn:
         device_rows = list(conn.execute(device_q).all())
-        open_alerts: dict[str, dict[str, int]] = {}
-        for row in conn.execute(alert_q).all():
-            open_alerts.setdefault(row.device_id, {})[row.severity] = int(row.n)
+        open_alerts = _by_device(conn, alert_q)
         highest = {key: list(conn.execute(_highest(key, top, sites)).all()) for key in ranked_keys}
         best = estimates_latest.alias("best")
         cop_q = (

@@ -29,6 +29,15 @@ from tecfleet.ingest.errors import NotFoundError
 STALE_AFTER_MS = 15 * 60 * 1000
 
 
+def is_online(last_reading_ms: int | None, status: str | None, wall_ms: int) -> bool:
+    """Heard from within ``STALE_AFTER_MS`` of ``wall_ms`` [ms] and not reported offline."""
+    return (
+        last_reading_ms is not None
+        and wall_ms - int(last_reading_ms) <= STALE_AFTER_MS
+        and status != "offline"
+    )
+
+
 def not_found(device_id: str) -> NotFoundError:
     return NotFoundError(f"device {device_id!r} is not known")
 
@@ -40,7 +49,6 @@ def require_device(engine: Engine, device_id: str) -> None:
 
 
 def _device_out(row: Row[Any], open_alerts: int, wall_ms: int) -> DeviceOut:
-    fresh = row.last_reading_ms is not None and wall_ms - row.last_reading_ms <= STALE_AFTER_MS
     return DeviceOut(
         device_id=row.device_id,
         label=row.label,
@@ -51,7 +59,7 @@ def _device_out(row: Row[Any], open_alerts: int, wall_ms: int) -> DeviceOut:
         first_seen_at=ms_to_rfc3339(row.first_seen_ms),
         last_reading_at=ms_to_rfc3339(row.last_reading_ms),
         readings=int(row.readings or 0),
-        online=bool(fresh and row.status != "offline"),
+        online=is_online(row.last_reading_ms, row.status, wall_ms),
         status=row.status,
         open_alerts=open_alerts,
     )

@@ -15,7 +15,7 @@ from tecfleet.analytics import runner
 from tecfleet.analytics.alerts import AlertPolicy, Band, policy_for
 from tecfleet.api import readout
 from tecfleet.api.services.alerts import list_alerts
-from tecfleet.api.services.devices import STALE_AFTER_MS, not_found, require_device
+from tecfleet.api.services.devices import is_online, not_found, require_device
 from tecfleet.api.timefmt import ms_to_rfc3339, rfc3339_to_ms
 from tecfleet.ingest.db import alert_records, buckets, overview
 from tecfleet.ingest.db import fleet as fleet_db
@@ -98,7 +98,7 @@ def _units(engine: Engine, device_id: str | None = None) -> list[dict[str, Any]]
                 "device_id": d.device_id,
                 "label": d.label,
                 "site": d.site,
-                "online": _online(d, wall_ms),
+                "online": is_online(d.last_reading_ms, d.status, wall_ms),
                 "in_range": None if t_now is None else band.low_c <= t_now <= band.high_c,
                 "t_cabinet_c": t_now,
                 "last_reading_at": ms_to_rfc3339(d.last_reading_ms),
@@ -153,7 +153,7 @@ def fleet_counts(engine: Engine, sites: Collection[str] | None = None) -> dict[s
             band = bands[which] = policy.band({"low_limit_c": low, "high_limit_c": high})
         units.append(
             {
-                "online": _is_online(last_ms, status, wall_ms),
+                "online": is_online(last_ms, status, wall_ms),
                 "in_range": None if t_now is None else band.low_c <= t_now <= band.high_c,
                 "open_alerts": rows.open_alerts.get(device_id, {}),
             }
@@ -172,18 +172,6 @@ def fleet_counts(engine: Engine, sites: Collection[str] | None = None) -> dict[s
 
 #: Estimate keys the COP spread is drawn from.
 SPREAD_KEYS = ("performance.cop", "performance.cop_max")
-
-
-def _online(d: Any, wall_ms: int) -> bool:
-    return _is_online(d.last_reading_ms, d.status, wall_ms)
-
-
-def _is_online(last_reading_ms: int | None, status: str | None, wall_ms: int) -> bool:
-    return (
-        last_reading_ms is not None
-        and wall_ms - int(last_reading_ms) <= STALE_AFTER_MS
-        and status != "offline"
-    )
 
 
 def _value(u: dict[str, Any], key: str) -> Any:

@@ -18,6 +18,9 @@ When the agent reports by interval (``[report]``), what the sources give goes fi
 report to ``pending`` and forgets the samples before it in one transaction, so a crash
 neither loses an interval nor reports it twice. The last report's sample stays: it starts the
 next interval. A sample older than the last report (its interval is gone) is counted as late.
+``samples`` has the same cap as ``pending``: while the clock stays unset, or a source gives no
+sample past an interval's end, the oldest samples are dropped and ``dropped_samples`` counts
+them, so a stalled interval cannot fill the controller's disk.
 """
 
 from __future__ import annotations
@@ -53,7 +56,7 @@ CREATE TABLE IF NOT EXISTS positions (source TEXT PRIMARY KEY, position TEXT NOT
 CREATE TABLE IF NOT EXISTS counters (name TEXT PRIMARY KEY, value INTEGER NOT NULL);
 """
 
-COUNTERS = ("next_seq", "dropped", "bad_lines", "sent", "late_samples")
+COUNTERS = ("next_seq", "dropped", "bad_lines", "sent", "late_samples", "dropped_samples")
 #: Counter holding the time of the last interval report [ms since the epoch].
 _REPORTED_UP_TO = "reported_up_to_ms"
 
@@ -122,7 +125,7 @@ class Buffer:
             with self._db:
                 self._insert_pending(readings)
                 self._moved_on(source, position, bad_lines)
-                return self._enforce_cap()
+                return self._enforce_cap("pending", "dropped")
         except sqlite3.Error as exc:
             raise BufferError(f"could not write the agent buffer: {exc}") from exc
 
@@ -130,7 +133,8 @@ class Buffer:
         self, samples: Sequence[Stamped], source: str, position: str | None, bad_lines: int = 0
     ) -> int:
         """Store samples for interval reports with the source's new position; returns how many
-        were late (older than the last report) and left out."""
+        were late (older than the last report) and left out. Past the cap the oldest samples
+        are dropped (counted in ``dropped_samples``)."""
         floor_ms = self._counter(_REPORTED_UP_TO)
         kept = [s for s in samples if s.ts_ms is None or s.ts_ms >= floor_ms]
         try:
@@ -141,6 +145,7 @@ class Buffer:
                 )
                 self._bump("late_samples", len(samples) - len(kept))
                 self._moved_on(source, position, bad_lines)
+                self._enforce_cap("samples", "dropped_samples")
         except sqlite3.Error as exc:
             raise BufferError(f"could not write the agent buffer: {exc}") from exc
         return len(samples) - len(kept)
@@ -165,7 +170,7 @@ class Buffer:
                     "ON CONFLICT (name) DO UPDATE SET value = excluded.value",
                     (_REPORTED_UP_TO, keep_from_ms),
                 )
-                return self._enforce_cap()
+                return self._enforce_cap("pending", "dropped")
         except sqlite3.Error as exc:
             raise BufferError(f"could not write the agent buffer: {exc}") from exc
 
@@ -245,16 +250,17 @@ class Buffer:
                 (name, by),
             )
 
-    def _enforce_cap(self) -> int:
-        (count,) = self._db.execute("SELECT COUNT(*) FROM pending").fetchone()
+    def _enforce_cap(self, table: str, counter: str) -> int:
+        """Drop the oldest rows of ``table`` past the cap; how many (added to ``counter``)."""
+        (count,) = self._db.execute(f"SELECT COUNT(*) FROM {table}").fetchone()
         excess = int(count) - self.max_readings
         if excess <= 0:
             return 0
         self._db.execute(
-            "DELETE FROM pending WHERE id IN (SELECT id FROM pending ORDER BY id LIMIT ?)",
+            f"DELETE FROM {table} WHERE id IN (SELECT id FROM {table} ORDER BY id LIMIT ?)",
             (excess,),
         )
-        self._bump("dropped", excess)
+        self._bump(counter, excess)
         return excess
 
 

@@ -12,7 +12,7 @@ import threading
 from pathlib import Path
 from types import FrameType
 
-from tecfleet.ingest.agent.config import config_from_flags, load_config
+from tecfleet.ingest.agent.config import config_from_flags, load_config, with_report_flags
 from tecfleet.ingest.agent.runner import Agent
 from tecfleet.ingest.errors import SettingsError
 
@@ -30,6 +30,18 @@ def add_agent_arguments(parser: argparse.ArgumentParser) -> None:
         help="csv:PATH or jsonl:PATH, a file that grows (repeatable)",
     )
     parser.add_argument("--topic-prefix", default="tecfleet")
+    parser.add_argument(
+        "--report-every",
+        type=float,
+        metavar="SECONDS",
+        help="send one reading per interval of SECONDS with its summaries "
+        "(the [report] table's every_s; overrides it)",
+    )
+    parser.add_argument(
+        "--instants-only",
+        action="store_true",
+        help="with --report-every: send the instant values at each interval's end, no summaries",
+    )
 
 
 def run_agent(args: argparse.Namespace) -> int:
@@ -52,6 +64,7 @@ def run_agent(args: argparse.Namespace) -> int:
         config = config_from_flags(
             args.device_id, args.mqtt_url, args.buffer, args.source, args.topic_prefix
         )
+    config = with_report_flags(config, args.report_every, args.instants_only)
     stop = threading.Event()
 
     def on_signal(_number: int, _frame: FrameType | None) -> None:

@@ -97,6 +97,24 @@ def load_config(path: Path) -> AgentConfig:
     return replace(config, report=_report(doc["report"]))
 
 
+def with_report_flags(
+    config: AgentConfig, every_s: float | None, instants_only: bool
+) -> AgentConfig:
+    """``--report-every`` and ``--instants-only`` over the config: the interval replaces the
+    ``[report]`` table's ``every_s`` (its other keys kept); checked like the table."""
+    if every_s is None:
+        if instants_only:
+            raise SettingsError("--instants-only needs --report-every SECONDS")
+        return config
+    raw: dict[str, Any] = {}
+    if config.report is not None:
+        raw = {f.name: getattr(config.report, f.name) for f in fields(ReportOptions)}
+    raw["every_s"] = every_s
+    if instants_only:
+        raw["summaries"] = False
+    return replace(config, report=_report(raw))
+
+
 def _checked(
     doc: dict[str, Any],
     sources: tuple[SourceSpec, ...],

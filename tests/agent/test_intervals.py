@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 
 from tecfleet.ingest.agent.buffer import Buffer, Stamped
-from tecfleet.ingest.agent.config import load_config
+from tecfleet.ingest.agent.config import config_from_flags, load_config, with_report_flags
 from tecfleet.ingest.agent.intervals import close_intervals, summarise, trapezoid_mean
 from tecfleet.ingest.agent.options import ReportOptions
 from tecfleet.ingest.agent.sources import Sample
@@ -195,5 +195,46 @@ def test_report_config_and_the_samples_in_the_buffer(tmp_path: Path) -> None:
         assert [s.ts_ms for s in buffer.samples() or []] == [2000, 3000]
         counts = buffer.counts()
         assert (counts["pending"], counts["late_samples"], buffer.position("s")) == (1, 2, "1:2:3")
+    finally:
+        buffer.close()
+
+
+def test_report_flags_over_the_config(tmp_path: Path) -> None:
+    """``--report-every`` sets the interval (keeping the table's other keys); bad values get
+    the table's own errors."""
+    path = tmp_path / "a.toml"
+    path.write_text(
+        'device_id = "c"\nmqtt_url = "mqtt://h"\nbuffer = "b"\n[[sources]]\nkind = "csv"\n'
+        'path = "r.csv"\n[report]\nevery_s = 900\non_above_a = 0.05\n'
+    )
+    config = load_config(path)
+    assert with_report_flags(config, None, False) is config
+    assert with_report_flags(config, 300, False).report == ReportOptions(
+        every_s=300.0, on_above_a=0.05
+    )
+    flags = config_from_flags("c", "mqtt://h", "b", ["csv:r.csv"], "tecfleet")
+    assert flags.report is None
+    assert with_report_flags(flags, 600, True).report == ReportOptions(
+        every_s=600.0, summaries=False
+    )
+    with pytest.raises(SettingsError, match="every_s"):
+        with_report_flags(flags, 0, False)
+    with pytest.raises(SettingsError, match="--report-every"):
+        with_report_flags(flags, None, True)
+
+
+def test_samples_are_capped_like_readings(tmp_path: Path) -> None:
+    """With the clock unset no interval can close; the samples table keeps the buffer's cap,
+    dropping the oldest and counting them."""
+    buffer = Buffer(tmp_path / "buffer.sqlite", 5)
+    try:
+        unstamped = [Stamped(None, {"t_cabinet": float(n)}, n, "boot") for n in range(8)]
+        buffer.add_samples(unstamped[:4], "s", "1:0:4")
+        buffer.add_samples(unstamped[4:], "s", "1:0:8")
+        buffer.restamp("boot", 10_000, 7)
+        kept = buffer.samples() or []
+        assert [s.values["t_cabinet"] for s in kept] == [3.0, 4.0, 5.0, 6.0, 7.0]
+        assert buffer.counts()["dropped_samples"] == 3
+        assert buffer.position("s") == "1:0:8"
     finally:
         buffer.close()

@@ -176,6 +176,12 @@ class _Thresholds:
     #: baseline (seeds 201-210, 14 days; values this code produced on the simulator,
     #: tests/bench/bench_alerts.py).
     drift_min_samples_floor: int = 8
+    #: Running samples whose hot-to-cold difference exceeds the commissioning's largest by
+    #: more than this [K] are not judged: the balance from the module's ratings is trusted
+    #: where it was fitted, and a failed hot-side fan or a pull-down after a power cut drives
+    #: the module far beyond that (common practice, no source). Healthy simulated units stay
+    #: within it (seeds 201-210; values this code produced on the simulator).
+    drift_dt_margin_k: float = 5.0
     #: Module wear on R25 change: +10 % as end of useful life (common practice, no source),
     #: warning from +5 % or when the limit is under wear_days_warning days away at a rise
     #: whose 95 % confidence interval lies above zero: the days left extrapolate the slope,

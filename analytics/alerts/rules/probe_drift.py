@@ -195,9 +195,12 @@ def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
     if fit is None:
         state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
         return None
+    running = base["current"].to_numpy(np.float64) > policy.drift_min_current_a
+    across = (base["t_hot"] - base["t_cold"]).to_numpy(np.float64)[running]
     state["probe_baseline"] = {
         "from_ms": int(first_ms), "to_ms": end_ms, "offset_k": fit[0], "r_cold": fit[1],
         "seebeck": consts[0], "conductance": consts[1],
+        "dt_max_k": float(np.nanmax(across)) if np.isfinite(across).any() else None,
     }  # fmt: skip
     return dict(state["probe_baseline"])
 
@@ -208,9 +211,17 @@ def probe_offsets(
     """Per row of ``frame``, the cabinet probe's change against its commissioning heat
     balance [K]; NaN before the commissioning window ended. ``interval`` is the usual
     interval per row [ms] (``usual_interval_ms``), which sets the running samples a figure
-    needs (:func:`running_samples_needed`)."""
+    needs (:func:`running_samples_needed`). Samples whose hot-to-cold difference exceeds the
+    commissioning's largest by ``drift_dt_margin_k`` [K] are not judged: the balance from
+    the module's ratings holds where it was fitted, and a failed fan or a pull-down after a
+    power cut drives the module far beyond it."""
     t = frame["ts_ms"].to_numpy(np.int64)
     cur = frame["current"].to_numpy(np.float64)
+    running = cur > policy.drift_min_current_a
+    if baseline.get("dt_max_k") is not None:
+        across = (frame["t_hot"] - frame["t_cold"]).to_numpy(np.float64)
+        with np.errstate(invalid="ignore"):
+            running &= ~(across > float(baseline["dt_max_k"]) + policy.drift_dt_margin_k)
     qc = cold_side_heat_balance(
         cur, frame["t_cold"].to_numpy(np.float64), frame["t_hot"].to_numpy(np.float64),
         frame["voltage"].to_numpy(np.float64), float(baseline["seebeck"]),
@@ -218,7 +229,7 @@ def probe_offsets(
     )  # fmt: skip
     off = cabinet_probe_offset(
         t, frame["t_cabinet"].to_numpy(np.float64), frame["t_cold"].to_numpy(np.float64), qc,
-        cur > policy.drift_min_current_a, (float(baseline["offset_k"]), float(baseline["r_cold"])),
+        running, (float(baseline["offset_k"]), float(baseline["r_cold"])),
         policy.drift_window_s,
         running_samples_needed(policy.drift_min_samples, interval, policy.drift_min_samples_floor),
     )  # fmt: skip

@@ -9,7 +9,11 @@ import sqlalchemy as sa
 
 from tecfleet.analytics import alerts
 from tecfleet.analytics import simulation as sim
-from tecfleet.analytics.alerts.rules.probe_drift import PROBE_DRIFT_ISSUE, running_samples_needed
+from tecfleet.analytics.alerts.rules.probe_drift import (
+    PROBE_DRIFT_ISSUE,
+    probe_offsets,
+    running_samples_needed,
+)
 from tecfleet.analytics.alerts.rules.sensor_fault import stuck_window_ms
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
@@ -348,3 +352,35 @@ def test_at_fifteen_minutes_a_drifting_cabinet_probe_is_found_and_a_steady_one_i
     assert PROBE_DRIFT_ISSUE in issues
     assert 0 <= first_ms / 1000 - at <= 3 * 86_400
     assert _opened(engine, "dr-2") == []
+
+
+def test_the_probe_balance_is_not_judged_far_beyond_its_commissioning_range() -> None:
+    # A failed hot-side fan drives the module to a hot-to-cold difference far beyond the
+    # commissioning's, where the balance from the module's ratings no longer holds (the
+    # constant-property module equations, Goldsmid 2010, ch. 2, are fitted near the rating
+    # point). There the cabinet probe is not judged: no figure rather than a wrong one.
+    # A 127-couple module, S 0.05 V/K, K 0.5 W/K, 4 A, R 2 ohm (from memory).
+    n = 8 * 96  # eight days of 15-minute readings
+    t = T0 + 15 * MIN * np.arange(n, dtype=np.int64)
+    failed = np.arange(n) >= 6 * 96
+    t_cold = np.full(n, -8.0)
+    t_hot = np.where(failed, 75.0, 40.0)
+    current = np.full(n, 4.0)
+    voltage = 0.05 * (t_hot - t_cold) + 4.0 * 2.0
+    qc = alerts.cold_side_heat_balance(current, t_cold, t_hot, voltage, 0.05, 0.5)
+    # the cabinet follows the balance, and 2 K off it where the module runs out of range
+    t_cab = t_cold + 0.4 + 0.3 * qc + np.where(failed, 2.0, 0.0)
+    frame = pd.DataFrame(
+        {"ts_ms": t, "t_cabinet": t_cab, "t_cold": t_cold, "t_hot": t_hot,
+         "current": current, "voltage": voltage}
+    )  # fmt: skip
+    baseline = {
+        "to_ms": int(T0 + 2 * 86_400_000), "offset_k": 0.4, "r_cold": 0.3, "seebeck": 0.05,
+        "conductance": 0.5, "dt_max_k": 48.0,
+    }  # fmt: skip
+    policy = alerts.AlertPolicy()
+    off = probe_offsets(frame, baseline, policy, np.full(n, 15.0 * MIN))
+    judged = ~failed & (t >= baseline["to_ms"])
+    assert np.nanmax(np.abs(off[judged])) < 1e-9
+    # carried two hours past the last in-range sample, then not judged at all
+    assert np.isnan(off[failed][9:]).all()

@@ -133,6 +133,20 @@ class _Thresholds:
     #: produced on the simulator). At one and two minutes the hour is the longer.
     stuck_window_intervals: float = 24.0
     stuck_other_move_k: float = 0.5
+    #: The hot face's probe frozen while the module's current stepped by
+    #: ``stuck_driven_step_a`` [A] ``stuck_driven_steps`` times [-] is stuck over a shorter
+    #: window: the longer of ``stuck_window_s`` and ``stuck_driven_intervals`` usual
+    #: intervals [-], holding at least ``stuck_driven_min_samples`` readings [-]. An amp more
+    #: through a 127-couple module (S about 0.05 V/K, from memory) gives off some 15 W more at
+    #: the hot face, kelvin through a 0.1-0.3 K/W sink (common practice, no source). Healthy
+    #: simulated units (seeds 201-210, 14 days, 5 and 15 minutes) never held a hot-face
+    #: reading across such a step, not even for two readings, while the cold face held one
+    #: across a door opening's step for four (values this code produced on the simulator,
+    #: tests/bench/bench_alerts.py).
+    stuck_driven_step_a: float = 1.0
+    stuck_driven_steps: int = 1
+    stuck_driven_intervals: float = 6.0
+    stuck_driven_min_samples: int = 5
     spike_k: float = 8.0
     spike_count: int = 3
     dropout_fraction: float = 0.3
@@ -152,6 +166,22 @@ class _Thresholds:
     drift_min_current_a: float = 0.1
     drift_min_samples: int = 60
     drift_warning_k: float = 1.0
+    #: The commissioning fit needs this many running samples [-] (five hours of running at
+    #: one reading a minute; common practice, no source).
+    drift_baseline_min_samples: int = 300
+    #: Both sample counts are for one-minute reporting: at a slower usual interval they ask
+    #: for the same running time (an hour in the window, five in the commissioning fit), so
+    #: a unit reporting every 15 minutes needs a fifteenth of them, and at least this many
+    #: [-]. At 5 and 15 minutes the healthy simulated units stay within 0.3 K of their
+    #: baseline (seeds 201-210, 14 days; values this code produced on the simulator,
+    #: tests/bench/bench_alerts.py).
+    drift_min_samples_floor: int = 8
+    #: Running samples whose hot-to-cold difference exceeds the commissioning's largest by
+    #: more than this [K] are not judged: the balance from the module's ratings is trusted
+    #: where it was fitted, and a failed hot-side fan or a pull-down after a power cut drives
+    #: the module far beyond that (common practice, no source). Healthy simulated units stay
+    #: within it (seeds 201-210; values this code produced on the simulator).
+    drift_dt_margin_k: float = 5.0
     #: Module wear on R25 change: +10 % as end of useful life (common practice, no source),
     #: warning from +5 % or when the limit is under wear_days_warning days away at a rise
     #: whose 95 % confidence interval lies above zero: the days left extrapolate the slope,
@@ -188,6 +218,11 @@ class _Thresholds:
     #: sensor rule (a frozen channel shows only over ``stuck_window_s``) has seen them first
     #: [s] (common practice, no source).
     trend_settle_s: float = 2700.0
+    #: ... and at least this many of the unit's usual reporting intervals [-]: the frozen
+    #: window grows to ``stuck_window_intervals`` of them at slow reporting, and the settle
+    #: keeps the same three quarters of it as the 45 minutes of the hour (common practice,
+    #: no source). At one and two minutes the 45 minutes are the longer.
+    trend_settle_intervals: float = 18.0
     #: After a sensor fault on a temperature, current or voltage channel clears, estimates
     #: stay suspect this long: the cabinet fit spans a day and change figures take the
     #: median of the last day (see tecfleet.analytics.runner) [s].

@@ -20,13 +20,14 @@ Detection-delay targets (the diagnostics' own targets, common practice, no sourc
 rise flagged within 7 days of crossing 5 %, a 1.5x UA step within 2 days, a 3x hot-side
 resistance step within 2 hours. The others follow from the alert policy's delays (common
 practice, no source): a stuck probe within 3 hours (1 h window, 15 min delay, hourly
-evaluation), offline within 2 hours (5 intervals, hourly evaluation), an excursion within
-2 hours of the true cabinet air leaving its band (30 min out of band, plus the lag of the
-probe behind the air). Excursions are expected wherever the simulator's true cabinet air left
-its band (``FleetTruth.excursions``), whatever the cause, and required where it stayed more
-than a probe's tolerance (0.5 K) beyond the limit for at least the rule's 30 min; an opening
-up to an hour before the true air crossed (a probe reading warm within its tolerance) answers
-it. Capacity alerts are judged against
+evaluation; on a steadily driven unit at slow reporting the still-room window, see
+``steady_stuck_target_s``), offline within 2 hours (5 intervals, hourly evaluation), an
+excursion within 2 hours of the true cabinet air leaving its band (30 min out of band, plus
+the lag of the probe behind the air). Excursions are expected wherever the simulator's true
+cabinet air left its band (``FleetTruth.excursions``), whatever the cause, and required where
+it stayed more than a probe's tolerance (0.5 K) beyond the limit for at least the rule's 30
+min; an opening up to an hour before the true air crossed (a probe reading warm within its
+tolerance) answers it. Capacity alerts are judged against
 the true spare cooling computed from the simulator's parameters.
 """
 
@@ -84,6 +85,22 @@ def targets_s(interval_s: float) -> dict[str, float]:
         out[label] = TARGETS_S[label] + interval_s
     out["offline"] = max(TARGETS_S["offline"], 5 * interval_s + HOUR_S)
     return out
+
+
+def steady_stuck_target_s(interval_s: float) -> float:
+    """The target for a stuck probe on a unit driven steadily (proportional control) at a
+    reporting interval of ``interval_s`` [s]. No step of the current shows its frozen hot
+    face, and a 0.1 K probe on a steady unit reads the same for hours at slow reporting
+    (healthy hot faces held one value over 8 fifteen-minute readings, cold faces over 24;
+    values the code produced on the simulator, seeds 201-210), so only the policy's
+    still-room window tells: its usual intervals, the sensor delay, and two reporting
+    intervals more (the window fills only from the last reading before the fault, and the
+    delay ends at a reading); never under the target of a unit whose drive steps. At one to
+    five minutes that is the 3 hours (plus an interval) of the others; at 15 minutes 6.75
+    hours."""
+    policy = alerts.AlertPolicy()
+    still = policy.stuck_window_intervals * interval_s + policy.sensor_delay_s + 2 * interval_s
+    return max(targets_s(interval_s)["sensor_stuck"], still)
 
 
 @dataclass
@@ -172,6 +189,7 @@ def scoring_fleet(
         summaries=summaries,
     )
     truth = sim.FleetTruth(spec)
+    steady = {d.device_id for d in devs if d.control == "proportional"}
     expected: list[Expected] = []
     for w in truth.fault_windows():
         label = w["kind"] if w["kind"] != "sensor" else f"sensor_{w['mode']}"
@@ -179,12 +197,12 @@ def scoring_fleet(
         if w["kind"] == "wear":
             # the ramp crosses +5 % at this fraction of its length
             clock += (0.05 / (w["magnitude"] - 1.0)) * (w["developed_s"] - w["start_s"])
+        target = targets_s(interval_s)[label]
+        if label == "sensor_stuck" and w["device_id"] in steady:
+            target = steady_stuck_target_s(interval_s)
         expected.append(
-            Expected(
-                label, w["device_id"], w["alert_kind"], float(w["start_s"]), clock,
-                targets_s(interval_s)[label],
-            )
-        )  # fmt: skip
+            Expected(label, w["device_id"], w["alert_kind"], float(w["start_s"]), clock, target)
+        )
     return spec, expected
 
 

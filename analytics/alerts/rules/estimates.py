@@ -29,6 +29,7 @@ __all__ = [
     "estimate_evidence",
     "estimate_observer",
     "estimate_series",
+    "settle_ms",
 ]
 
 # Estimate keys of tecfleet.analytics.runner that the trend rules read.
@@ -121,7 +122,7 @@ def _window(scope: DeviceScope) -> _Window:
     w = _Window(
         done_ms=est_done,
         newest_ms=est_done,
-        cutoff_ms=newest - int(policy.trend_settle_s * 1000),
+        cutoff_ms=newest - settle_ms(scope.interval_all, policy),
         taints=[tuple(x) for x in state.get("sensor_taint", [])],
         taint_after_ms=int(policy.sensor_taint_after_s * 1000),
         every=records.read_estimates(
@@ -135,6 +136,15 @@ def _window(scope: DeviceScope) -> _Window:
 
     scope.finishers.append(keep_newest)
     return w
+
+
+def settle_ms(interval: FloatArray, policy: AlertPolicy) -> int:
+    """How old the readings behind an estimate must be before it is judged [ms]:
+    ``trend_settle_s``, or ``trend_settle_intervals`` of the unit's newest usual interval
+    ``interval`` [ms] per reading (``usual_interval_ms``) where that is longer, as the frozen
+    window the sensor rule waits for grows with it (``sensor_fault.stuck_window_ms``)."""
+    usual = float(interval[-1]) if len(interval) and np.isfinite(interval[-1]) else 0.0
+    return int(max(policy.trend_settle_s * 1000.0, policy.trend_settle_intervals * usual))
 
 
 def _tainted(t: int, spans: Sequence[tuple[Any, ...]], after_ms: int) -> bool:

@@ -25,6 +25,7 @@ __all__ = [
     "fit_cold_side_baseline",
     "probe_baseline",
     "probe_offsets",
+    "running_samples_needed",
 ]
 
 #: The sensor-fault issue a moved cabinet probe raises.
@@ -56,17 +57,22 @@ def cold_side_heat_balance(
 
 
 def fit_cold_side_baseline(
-    t_cabinet: FloatArray, t_cold: FloatArray, qc: FloatArray, running: BoolArray
+    t_cabinet: FloatArray,
+    t_cold: FloatArray,
+    qc: FloatArray,
+    running: BoolArray,
+    min_samples: int = 300,
 ) -> tuple[float, float] | None:
     """Commissioning fit t_cabinet − t_cold = offset + r_cold·Qc over running samples.
 
     The cabinet air gives its heat to the cold side through r_cold [K/W], so with the module
     running the difference follows the pumped heat; ``offset`` [K] holds the probes' fixed
     biases and what the rated module parameters miss. Returns (offset, r_cold), or None when
-    there are under 300 running samples or the fit is not physical (r_cold ≤ 0).
+    there are under ``min_samples`` running samples (see :func:`running_samples_needed`) or
+    the fit is not physical (r_cold ≤ 0).
     """
     ok = running & np.isfinite(t_cabinet) & np.isfinite(t_cold) & np.isfinite(qc)
-    if int(ok.sum()) < 300 or float(np.std(qc[ok])) <= 0.0:
+    if int(ok.sum()) < min_samples or float(np.std(qc[ok])) <= 0.0:
         return None
     x = np.column_stack([np.ones(int(ok.sum())), qc[ok]])
     coef, *_ = np.linalg.lstsq(x, t_cabinet[ok] - t_cold[ok], rcond=None)
@@ -84,13 +90,14 @@ def cabinet_probe_offset(
     running: BoolArray,
     baseline: tuple[float, float],
     window_s: float,
-    min_samples: int,
+    min_samples: float | FloatArray,
 ) -> FloatArray:
     """Change of the cabinet probe's reading against the cold side's heat balance [K].
 
     Per sample: the median, over the running samples of the last ``window_s``, of
     (t_cabinet − t_cold − r_cold·Qc) minus the commissioning ``offset``; NaN with fewer than
-    ``min_samples`` running samples, and carried over idle stretches of up to two hours.
+    ``min_samples`` running samples (one figure, or one per sample of ``t_ms``), and carried
+    over idle stretches of up to two hours.
     A drifting cabinet probe moves it by its drift; the faces and the module equations do not.
     """
     n = len(t_ms)
@@ -100,12 +107,12 @@ def cabinet_probe_offset(
     if on.size == 0:
         return out
     resid = t_cabinet[on] - t_cold[on] - r_cold * qc[on] - offset
-    med = (
-        pd.Series(resid, index=pd.to_datetime(t_ms[on], unit="ms"))
-        .rolling(f"{int(window_s)}s", min_periods=max(int(min_samples), 1))
-        .median()
-        .to_numpy(np.float64)
+    rolling = pd.Series(resid, index=pd.to_datetime(t_ms[on], unit="ms")).rolling(
+        f"{int(window_s)}s", min_periods=1
     )
+    med = np.array(rolling.median(), np.float64)
+    needed = np.broadcast_to(np.maximum(np.asarray(min_samples, np.float64), 1.0), t_ms.shape)
+    med[rolling.count().to_numpy(np.float64) < needed[on]] = np.nan
     # each sample takes the newest running sample's value at or before it, if recent
     k = np.searchsorted(t_ms[on], t_ms, side="right") - 1
     has = k >= 0
@@ -113,6 +120,18 @@ def cabinet_probe_offset(
     recent = has & (t_ms - t_ms[on][kk] <= 2 * MS_HOUR)
     out[recent] = med[kk[recent]]
     return out
+
+
+def running_samples_needed(
+    count: float, interval_ms: FloatArray | float, floor: float
+) -> FloatArray:
+    """Running samples a drift figure needs at the usual interval ``interval_ms`` [ms]:
+    ``count`` [-] at one-minute reporting or faster; at a slower interval as many as span the
+    same running time (count · 60 s / interval), and at least ``floor`` [-]. A unit reporting
+    every 15 minutes has a fifteenth of the samples in any window, each one as good."""
+    usual = np.nan_to_num(np.asarray(interval_ms, np.float64), nan=60_000.0)
+    scaled = count * 60_000.0 / np.maximum(usual, 60_000.0)
+    return np.asarray(np.maximum(np.rint(scaled), min(floor, count)), np.float64)
 
 
 def _module_constants(module: Mapping[str, Any] | None) -> tuple[float, float] | None:
@@ -156,6 +175,12 @@ def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
         state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
         return None
     base = load_readings(conn, dev.device_id, int(first_ms) - 1, end_ms)
+    spacing = np.diff(base["ts_ms"].to_numpy(np.float64))
+    needed = running_samples_needed(
+        policy.drift_baseline_min_samples,
+        float(np.median(spacing)) if spacing.size else 60_000.0,
+        policy.drift_min_samples_floor,
+    )
     qc = cold_side_heat_balance(
         base["current"].to_numpy(np.float64), base["t_cold"].to_numpy(np.float64),
         base["t_hot"].to_numpy(np.float64), base["voltage"].to_numpy(np.float64), *consts,
@@ -165,24 +190,38 @@ def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
         base["t_cold"].to_numpy(np.float64),
         qc,
         base["current"].to_numpy(np.float64) > policy.drift_min_current_a,
+        int(needed),
     )
     if fit is None:
         state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
         return None
+    running = base["current"].to_numpy(np.float64) > policy.drift_min_current_a
+    across = (base["t_hot"] - base["t_cold"]).to_numpy(np.float64)[running]
     state["probe_baseline"] = {
         "from_ms": int(first_ms), "to_ms": end_ms, "offset_k": fit[0], "r_cold": fit[1],
         "seebeck": consts[0], "conductance": consts[1],
+        "dt_max_k": float(np.nanmax(across)) if np.isfinite(across).any() else None,
     }  # fmt: skip
     return dict(state["probe_baseline"])
 
 
 def probe_offsets(
-    frame: pd.DataFrame, first: int, baseline: Mapping[str, Any], policy: AlertPolicy
+    frame: pd.DataFrame, baseline: Mapping[str, Any], policy: AlertPolicy, interval: FloatArray
 ) -> FloatArray:
     """Per row of ``frame``, the cabinet probe's change against its commissioning heat
-    balance [K]; NaN before the commissioning window ended."""
+    balance [K]; NaN before the commissioning window ended. ``interval`` is the usual
+    interval per row [ms] (``usual_interval_ms``), which sets the running samples a figure
+    needs (:func:`running_samples_needed`). Samples whose hot-to-cold difference exceeds the
+    commissioning's largest by ``drift_dt_margin_k`` [K] are not judged: the balance from
+    the module's ratings holds where it was fitted, and a failed fan or a pull-down after a
+    power cut drives the module far beyond it."""
     t = frame["ts_ms"].to_numpy(np.int64)
     cur = frame["current"].to_numpy(np.float64)
+    running = cur > policy.drift_min_current_a
+    if baseline.get("dt_max_k") is not None:
+        across = (frame["t_hot"] - frame["t_cold"]).to_numpy(np.float64)
+        with np.errstate(invalid="ignore"):
+            running &= ~(across > float(baseline["dt_max_k"]) + policy.drift_dt_margin_k)
     qc = cold_side_heat_balance(
         cur, frame["t_cold"].to_numpy(np.float64), frame["t_hot"].to_numpy(np.float64),
         frame["voltage"].to_numpy(np.float64), float(baseline["seebeck"]),
@@ -190,8 +229,9 @@ def probe_offsets(
     )  # fmt: skip
     off = cabinet_probe_offset(
         t, frame["t_cabinet"].to_numpy(np.float64), frame["t_cold"].to_numpy(np.float64), qc,
-        cur > policy.drift_min_current_a, (float(baseline["offset_k"]), float(baseline["r_cold"])),
-        policy.drift_window_s, policy.drift_min_samples,
+        running, (float(baseline["offset_k"]), float(baseline["r_cold"])),
+        policy.drift_window_s,
+        running_samples_needed(policy.drift_min_samples, interval, policy.drift_min_samples_floor),
     )  # fmt: skip
     off[t < int(baseline["to_ms"])] = np.nan
     return off

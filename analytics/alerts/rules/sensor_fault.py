@@ -35,6 +35,9 @@ __all__ = [
 ]
 
 _TEMPS = ("t_cabinet", "t_cold", "t_hot", "t_ambient")
+#: The channels that must move when the module's current steps: the hot face gives off the
+#: pumped heat and the electrical power, both of which rise with the current.
+_DRIVEN = ("t_hot",)
 _PLAUSIBLE = {
     # Plausible ranges of a cooler's sensors (common practice, no source).
     "t_cabinet": (-40.0, 60.0),
@@ -90,7 +93,7 @@ def sensor_fault_observations(
         checks.append((f"{col} out of range", np.isfinite(x) & ((x < lo) | (x > hi))))
     if interval is None:
         interval = usual_interval_ms(t)
-    frozen_since_stuck = _stuck_checks(frame, t, stuck_window_ms(interval, policy), policy, checks)
+    frozen_since_stuck = _stuck_checks(frame, t, interval, policy, checks)
     checks.append(("spikes", _spikes(frame, idx, policy)))
     checks.append(("dropouts", _dropouts(t, idx, interval, policy)))
     if i_ref is not None and i_ref > 0:
@@ -146,30 +149,75 @@ class _Trailing(BaseIndexer):  # type: ignore[misc]  # pandas ships no type hint
         return start.astype(np.int64), np.arange(1, num_values + 1, dtype=np.int64)
 
 
-def _stuck_checks(
-    frame: pd.DataFrame, t: Any, window: FloatArray, policy: AlertPolicy, checks: _Checks
-) -> BoolArray:
-    """Append one "stuck" check per temperature channel, frozen over ``window`` [ms] per
-    row; return the rows where a channel found stuck is still frozen."""
-    n = len(frame)
+def driven_window_ms(interval: FloatArray, policy: AlertPolicy) -> FloatArray:
+    """The window the hot face's probe must stay frozen over while the module's current
+    steps, per reading [ms]: ``stuck_window_s``, or ``stuck_driven_intervals`` of the unit's usual
+    interval ``interval`` [ms] where that is longer. At one-minute reporting the hour, as
+    :func:`stuck_window_ms`."""
+    scaled = np.nan_to_num(policy.stuck_driven_intervals * interval, nan=0.0)
+    return np.asarray(np.maximum(policy.stuck_window_s * 1000.0, scaled), np.float64)
+
+
+def _frozen_spans(
+    frame: pd.DataFrame, t: Any, window: FloatArray, min_samples: int
+) -> tuple[BoolArray, dict[str, FloatArray]]:
+    """The rows whose trailing ``window`` [ms] is covered and holds ``min_samples``, and per
+    temperature channel the span of its readings over that window per row [K]."""
     trailing = _Trailing(t_ms=t, window_ms=window)
-    span = {}
-    counts = pd.Series(np.ones(n)).rolling(trailing).sum().to_numpy()
-    covered = (t - t[0]) >= window
+    counts = pd.Series(np.ones(len(frame))).rolling(trailing).sum().to_numpy()
+    spans = {}
     for col in _TEMPS:
         s = pd.Series(frame[col].to_numpy(np.float64)).rolling(trailing)
-        span[col] = (s.max() - s.min()).to_numpy()
-    frozen_since_stuck = np.zeros(n, dtype=bool)
+        spans[col] = np.asarray((s.max() - s.min()).to_numpy(), np.float64)
+    return np.asarray(((t - t[0]) >= window) & (counts >= min_samples), bool), spans
+
+
+def _steps(frame: pd.DataFrame, t: Any, window: FloatArray, policy: AlertPolicy) -> Any:
+    """Steps of the module's current of ``stuck_driven_step_a`` [A] or more between
+    consecutive readings of the trailing ``window`` [ms], per row."""
+    cur = frame["current"].to_numpy(np.float64)
+    with np.errstate(invalid="ignore"):
+        step = np.abs(np.diff(cur)) >= policy.stuck_driven_step_a
+    count = np.concatenate([[0], np.cumsum(step)])
+    first = np.searchsorted(t, t - window, side="right")
+    return count - count[first]
+
+
+def _stuck_checks(
+    frame: pd.DataFrame, t: Any, interval: FloatArray, policy: AlertPolicy, checks: _Checks
+) -> BoolArray:
+    """Append one "stuck" check per temperature channel; return the rows where a channel
+    found stuck is still frozen.
+
+    A channel is stuck when frozen over :func:`stuck_window_ms` while another moves, or, for
+    the hot face, frozen over :func:`driven_window_ms` while the module's current stepped by
+    ``stuck_driven_step_a`` ``stuck_driven_steps`` times: the hot face gives off
+    Qh = S·I·Th + ½·I²·R − K·(Th − Tc) (Ioffe 1957; Goldsmid 2010, ch. 2), which an amp
+    changes by watts, kelvin through the sink. The cold face sits between a cabinet that
+    warms (a door opened, the cause of the step) and a module that cools it, which can
+    cancel; the cabinet air and the room may rest within a probe step across thermostat
+    cycles: those are judged on the other channels only."""
+    long_ok, long = _frozen_spans(
+        frame, t, stuck_window_ms(interval, policy), policy.stuck_min_samples
+    )
+    driven_window = driven_window_ms(interval, policy)
+    short_ok, short = _frozen_spans(frame, t, driven_window, policy.stuck_driven_min_samples)
+    stepped = _steps(frame, t, driven_window, policy) >= policy.stuck_driven_steps
+    frozen_since_stuck = np.zeros(len(frame), dtype=bool)
     for col in _TEMPS:
         # fmax skips a face the unit has no probe for (NaN), where max would spread it.
-        others = np.fmax.reduce(np.vstack([span[c] for c in _TEMPS if c != col]), axis=0)
-        frozen = covered & (counts >= policy.stuck_min_samples) & (span[col] <= 1e-9)
+        others = np.fmax.reduce(np.vstack([long[c] for c in _TEMPS if c != col]), axis=0)
+        frozen = long_ok & (long[col] <= 1e-9)
         stuck = frozen & (others >= policy.stuck_other_move_k)
+        frozen_now = frozen | (short_ok & (short[col] <= 1e-9))
+        if col in _DRIVEN:
+            stuck |= frozen_now & stepped
         checks.append((f"{col} stuck", stuck))
         # A channel found stuck stays in doubt while it stays frozen, also when the others
         # then rest too (a quiet night): no resolve and reopen on the same frozen probe.
-        run = np.cumsum(~frozen)
-        frozen_since_stuck |= frozen & pd.Series(stuck).groupby(run).cummax().to_numpy(dtype=bool)
+        run = np.cumsum(~frozen_now)
+        held = pd.Series(stuck).groupby(run).cummax().to_numpy(dtype=bool)
+        frozen_since_stuck |= frozen_now & held
     return frozen_since_stuck
 
 
@@ -250,7 +298,11 @@ def observe(scope: DeviceScope) -> Observations | None:
     probed = bool(np.isfinite(scope.new_column("t_cold")[-1]))
     set_limit(scope.state, WARM_COLD_SIDE, None, None if probed else _WARM_NOT_PROBED)
     baseline = probe_baseline(scope)
-    offsets = None if baseline is None else probe_offsets(scope.frame, first, baseline, policy)
+    offsets = (
+        None
+        if baseline is None
+        else probe_offsets(scope.frame, baseline, policy, scope.interval_all)
+    )
     sf = sensor_fault_observations(
         scope.frame, first, policy, _i_ref(scope.dev.module), scope.interval_all, offsets
     )

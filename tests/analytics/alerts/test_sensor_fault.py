@@ -3,11 +3,17 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 import sqlalchemy as sa
 
 from tecfleet.analytics import alerts
 from tecfleet.analytics import simulation as sim
+from tecfleet.analytics.alerts.rules.probe_drift import (
+    PROBE_DRIFT_ISSUE,
+    probe_offsets,
+    running_samples_needed,
+)
 from tecfleet.analytics.alerts.rules.sensor_fault import stuck_window_ms
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
@@ -207,3 +213,174 @@ def test_at_fifteen_minutes_a_stuck_cabinet_probe_is_found_and_a_steady_one_is_n
     # the 6 h window, the 15 min delay and a reading's worth of lateness
     assert 0 <= first_ms / 1000 - at <= 6 * 3600 + 900 + 2 * 900
     assert _opened(engine, "slow-2") == []
+
+
+def _switching_unit(every_min: float, n: int, frozen: str, at: int) -> list[Reading]:
+    """A thermostat-cycled unit reporting every ``every_min`` minutes: the module on for two
+    readings and off for one, its faces following it (hot face ~10 K above the room while
+    on, cold face ~8 K below the cabinet; common practice, no source), the cabinet a steady
+    5.0 °C and the room 22.0 °C as a 0.1 K probe reads a quiet one; ``frozen`` keeps its
+    reading of row ``at`` from there on."""
+    out = []
+    for i in range(n):
+        on = i % 3 != 2
+        row = {
+            "t_cabinet": 5.0,
+            "t_cold": -3.0 + 0.1 * (i % 2) if on else 4.0,
+            "t_hot": 32.0 + 0.1 * (i % 2) if on else 24.5,
+            "t_ambient": 22.0,
+        }
+        if i >= at:
+            row[frozen] = out[at - 1][frozen] if at else row[frozen]
+        out.append(row)
+    return [
+        Reading(
+            "sw-1", T0 + round(i * every_min * MIN), r["t_cabinet"], r["t_cold"], r["t_hot"],
+            r["t_ambient"], 4.0 if i % 3 != 2 else 0.0, 8.0 if i % 3 != 2 else 0.0, seq=i,
+        )
+        for i, r in enumerate(out)
+    ]  # fmt: skip
+
+
+def test_a_hot_face_probe_frozen_while_the_module_switches_is_stuck_in_the_short_window() -> None:
+    # The hot face gives off Qh = S·I·Th + ½·I²·R − K·ΔT and sits R_hot·Qh above the room, so
+    # switching a module off drops it by kelvin (Ioffe 1957; Goldsmid 2010, ch. 2). At 15
+    # minutes the hot-face probe freezing at reading 40 is stuck once the policy's short
+    # window (six intervals, 90 min) holds only its frozen value and a step of the current,
+    # long before the 24-interval (6 h) window of the still-room test.
+    policy = alerts.AlertPolicy()
+    frame = pd.DataFrame([r._asdict() for r in _switching_unit(15.0, 80, "t_hot", 40)])
+    obs = alerts.sensor_fault_observations(frame, 0, policy, None)
+    flagged = [i for i, d in enumerate(obs.detail or []) if "t_hot stuck" in d.get("issues", [])]
+    assert flagged, "the frozen hot face was not found"
+    # the frozen value is the reading of row 39; the window (t − 90 min, t] first holds only
+    # it at row 44 (rows 39..44), with the module switched on and off between them
+    assert flagged[0] == 44
+    assert not any("t_cold stuck" in d.get("issues", []) for d in obs.detail or [])
+
+
+def test_a_steady_cabinet_while_the_module_switches_is_not_stuck() -> None:
+    # The cabinet air may rest within one probe step across several thermostat cycles (the
+    # module takes away what leaks in): only the hot face is judged on the current's steps.
+    # The cabinet and the room read 5.0 and 22.0 °C throughout while the module switches
+    # every few readings; over 23 readings (under the 24 intervals the still-room test needs
+    # covered) nothing is stuck.
+    policy = alerts.AlertPolicy()
+    frame = pd.DataFrame([r._asdict() for r in _switching_unit(15.0, 23, "t_cabinet", 0)])
+    obs = alerts.sensor_fault_observations(frame, 0, policy, None)
+    assert not obs.active.any()
+
+
+def test_at_fifteen_minutes_a_stuck_hot_face_probe_is_found_within_the_bench_target(
+    engine: sa.Engine,
+) -> None:
+    # Two thermostat-cycled units reporting every 15 minutes for 5 days; the simulator freezes
+    # one's hot-face probe on day 3 (its truth). The first switch of the module after the
+    # short window (90 min) shows it frozen: within the 3 h the alert bench allows a stuck
+    # probe, plus one reporting interval (common practice, no source), where the still-room
+    # test needs 6 h.
+    start = 1_735_689_600.0
+    at = start + 3 * 86_400.0 + 5 * 3600.0
+    spec = sim.FleetSpec(
+        devices=(
+            sim.DeviceSpec("hot-1", cuts_per_30d=0.0),
+            sim.DeviceSpec("hot-2", cuts_per_30d=0.0),
+        ),
+        start_s=start, interval_s=900.0, seed=204,
+        faults=(sim.Fault("sensor", "hot-1", at, channel="t_hot", mode="stuck"),),
+    )  # fmt: skip
+    db.store_batch(engine, _sim_readings(spec, 5.0))
+    alerts.evaluate(engine)
+    (first_ms, issues), *_ = _opened(engine, "hot-1")
+    assert "t_hot stuck" in issues
+    assert 0 <= first_ms / 1000 - at <= 3 * 3600 + 900
+    assert _opened(engine, "hot-2") == []
+
+
+def test_running_samples_for_the_drift_figures_scale_with_the_usual_interval() -> None:
+    # The same running time at every interval (the policy's documented rule): an hour in the
+    # window (60 one-minute samples) and five hours in the commissioning fit (300), at least
+    # the policy's floor of 8; a unit reporting faster than once a minute needs no more.
+    policy = alerts.AlertPolicy()
+    for every_min, window, base in ((0.5, 60, 300), (1.0, 60, 300), (5.0, 12, 60), (15.0, 8, 20)):
+        iv = every_min * MIN
+        got = running_samples_needed(policy.drift_min_samples, iv, policy.drift_min_samples_floor)
+        assert float(got) == window
+        got = running_samples_needed(
+            policy.drift_baseline_min_samples, iv, policy.drift_min_samples_floor
+        )
+        assert float(got) == base
+
+
+def test_at_fifteen_minutes_a_drifting_cabinet_probe_is_found_and_a_steady_one_is_not(
+    engine: sa.Engine,
+) -> None:
+    # Two units reporting every 15 minutes for 9 days; the simulator drifts one's cabinet
+    # probe by 3 K over 3 days from day 3.5 (its truth), so it is 1 K off a day in. The
+    # commissioning fit over the first two days holds under 300 running samples at this
+    # interval: the drift must still be found, within the 3 days the alert bench allows
+    # (common practice, no source), and the steady unit never flagged.
+    start = 1_735_689_600.0
+    at = start + 3.5 * 86_400.0
+    spec = sim.FleetSpec(
+        devices=(
+            sim.DeviceSpec("dr-1", cuts_per_30d=0.0),
+            sim.DeviceSpec("dr-2", cuts_per_30d=0.0),
+        ),
+        start_s=start, interval_s=900.0, seed=206,
+        faults=(
+            sim.Fault(
+                "sensor", "dr-1", at, magnitude=3.0, ramp_s=3 * 86_400.0, channel="t_cabinet",
+                mode="drift",
+            ),
+        ),
+    )  # fmt: skip
+    with engine.begin() as conn:  # registered with their modules' ratings, as in the field
+        for d in spec.devices:
+            reg = d.registration()
+            conn.execute(
+                db.devices.insert().values(
+                    device_id=d.device_id, module=reg["module"], cabinet=reg["cabinet"],
+                    readings=0, first_seen_ms=int(start * 1000),
+                )
+            )  # fmt: skip
+    db.store_batch(engine, _sim_readings(spec, 9.0))
+    alerts.evaluate(engine)
+    opened = _opened(engine, "dr-1")
+    assert opened, "the drifting probe was not found"
+    (first_ms, issues), *_ = opened
+    assert PROBE_DRIFT_ISSUE in issues
+    assert 0 <= first_ms / 1000 - at <= 3 * 86_400
+    assert _opened(engine, "dr-2") == []
+
+
+def test_the_probe_balance_is_not_judged_far_beyond_its_commissioning_range() -> None:
+    # A failed hot-side fan drives the module to a hot-to-cold difference far beyond the
+    # commissioning's, where the balance from the module's ratings no longer holds (the
+    # constant-property module equations, Goldsmid 2010, ch. 2, are fitted near the rating
+    # point). There the cabinet probe is not judged: no figure rather than a wrong one.
+    # A 127-couple module, S 0.05 V/K, K 0.5 W/K, 4 A, R 2 ohm (from memory).
+    n = 8 * 96  # eight days of 15-minute readings
+    t = T0 + 15 * MIN * np.arange(n, dtype=np.int64)
+    failed = np.arange(n) >= 6 * 96
+    t_cold = np.full(n, -8.0)
+    t_hot = np.where(failed, 75.0, 40.0)
+    current = np.full(n, 4.0)
+    voltage = 0.05 * (t_hot - t_cold) + 4.0 * 2.0
+    qc = alerts.cold_side_heat_balance(current, t_cold, t_hot, voltage, 0.05, 0.5)
+    # the cabinet follows the balance, and 2 K off it where the module runs out of range
+    t_cab = t_cold + 0.4 + 0.3 * qc + np.where(failed, 2.0, 0.0)
+    frame = pd.DataFrame(
+        {"ts_ms": t, "t_cabinet": t_cab, "t_cold": t_cold, "t_hot": t_hot,
+         "current": current, "voltage": voltage}
+    )  # fmt: skip
+    baseline = {
+        "to_ms": int(T0 + 2 * 86_400_000), "offset_k": 0.4, "r_cold": 0.3, "seebeck": 0.05,
+        "conductance": 0.5, "dt_max_k": 48.0,
+    }  # fmt: skip
+    policy = alerts.AlertPolicy()
+    off = probe_offsets(frame, baseline, policy, np.full(n, 15.0 * MIN))
+    judged = ~failed & (t >= baseline["to_ms"])
+    assert np.nanmax(np.abs(off[judged])) < 1e-9
+    # carried two hours past the last in-range sample, then not judged at all
+    assert np.isnan(off[failed][9:]).all()

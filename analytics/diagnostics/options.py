@@ -75,6 +75,12 @@ class DiagnosticsOptions:
     #: within its offset while an open module shows S·ΔT, tenths of a volt a few kelvin
     #: across a 127-couple stack (common practice, no source).
     floating_min_voltage: float = 0.03
+    #: Span of the windows whose electrical rows are pooled for the served S [s]: S does not
+    #: wear, and a week holds the ambient's daily and weather swings that move the operating
+    #: point enough to separate S from R and the readings' offsets (common practice, no
+    #: source). Chosen against simulated fleets with known truth (seeds 201-210): one window
+    #: left S at the ratings on most zero-volt and proportional drivers.
+    seebeck_pool_s: float = 7 * 86_400.0
 
     #: One step of the voltage reading, 10 mV (common practice, no source) [V]: the mean of a
     #: quantised reading is known to no better than step/√12.

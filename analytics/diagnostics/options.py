@@ -225,6 +225,11 @@ class DiagnosticsOptions:
     #: is taken from the registered ratings to read ΔT from the voltage: a few per cent
     #: (common practice, no source) [-].
     seebeck_unit_rel_sd: float = 0.03
+    #: Largest residual standard deviation of the cold face's steady balance for its R25 to
+    #: count (:func:`.module_thermometer.balance_resistance`): the voltage's and current's
+    #: reading steps alone read ΔT to a few tenths of a kelvin; sinks that store heat leave
+    #: kelvins (common practice, no source) [K].
+    balance_max_residual_k: float = 1.0
 
 
 #: The options as measured and documented; the default of every estimator.

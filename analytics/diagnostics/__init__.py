@@ -8,6 +8,8 @@ Modules, in the order the diagnosis runs:
 
 - :mod:`.quality` - which samples are usable (:func:`flag_samples`);
 - :mod:`.electrical` - R and S from V = I·R + S·ΔT (:func:`fit_electrical`, :func:`harman_steps`);
+- :mod:`.seebeck_pool` - the served S pooled over a unit's recent windows
+  (:func:`.seebeck_pool.pool_seebeck`);
 - :mod:`.module_thermometer` - ΔT and a missing face from the module's own voltage
   (:func:`reconstruct_faces`);
 - :mod:`.thermal` - K, the sinks, UA, C and the internal load (:func:`fit_thermal`), built on

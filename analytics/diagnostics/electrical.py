@@ -20,6 +20,7 @@ from .error_budget import electrical_offsets
 from .estimates import BoolArray
 from .least_squares import ridge, trimmed_lstsq
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
+from .seebeck_pool import window_sums
 
 __all__ = [
     "ElectricalFit",
@@ -117,6 +118,8 @@ class ElectricalFit:
         held there (see :meth:`r25_at`) [ohm], [K/A].
     r_sd_fixed_s : Standard error of R25 from the readings' scatter alone with S held [ohm].
     current_ok : The current is large enough that its reading's offset does not dominate R.
+    sums : The kept rows' normal-equation sums for pooling S over windows
+        (:func:`.seebeck_pool.window_sums`) [-].
     """
 
     r25: float
@@ -134,11 +137,40 @@ class ElectricalFit:
     r_lever: float = math.nan
     r_sd_fixed_s: float = math.nan
     current_ok: bool = True
+    sums: tuple[float, ...] = ()
 
     def r25_at(self, s25: float) -> float:
         """R25 fitted with S25 held at ``s25`` [V/K]: least squares in R alone, so an error
         δS of ``s25`` moves it by -``r_lever``·δS [ohm]."""
         return self.r_at_zero_s - self.r_lever * s25
+
+
+def neighbour_means(x: FloatArray, on: BoolArray) -> FloatArray:
+    """Each row's instrument: the mean of the previous and the next row in the same state.
+
+    A reading's own noise is in its row alone, while the neighbours share its slow part: as
+    instruments they remove the bias that noise in the regressors gives least squares
+    (errors in variables; Durbin, "Errors in variables", Rev. Int. Stat. Inst. 22, 23, 1954).
+    A row alone in its state gets its only neighbour, or itself.
+
+    Parameters
+    ----------
+    x : Rows of regressors, time-ordered [any].
+    on : Whether each row has current (the two states) [-].
+
+    Returns
+    -------
+    The instruments, shaped as ``x`` [as ``x``].
+    """
+    z = np.array(x, dtype=np.float64)
+    for state in (True, False):
+        idx = np.flatnonzero(on == state)
+        if idx.size < 2:
+            continue
+        prev = np.concatenate([idx[1:2], idx[:-1]])
+        nxt = np.concatenate([idx[1:], idx[-2:-1]])
+        z[idx] = 0.5 * (x[prev] + x[nxt])
+    return z
 
 
 @dataclass(frozen=True)
@@ -154,6 +186,7 @@ class _Design:
     xtx: FloatArray
     data_ok: bool  # both pinned to within max_rel_stderr by the data
     note: str | None
+    z: FloatArray  # instruments of the columns of x: neighbours in the same state
 
 
 def _design(
@@ -173,8 +206,9 @@ def _design(
     f_r, f_s = (1.0 + alpha * tm)[rows], (1.0 + beta * tm)[rows]
     x = np.column_stack([i[rows] * f_r, dt[rows] * f_s])
     y = v[rows]
+    z = neighbour_means(x, on[rows])
     coef, keep = trimmed_lstsq(x, y)
-    x, y = x[keep], y[keep]
+    x, y, z = x[keep], y[keep], z[keep]
     f_r, f_s = f_r[keep], f_s[keep]
     if int(np.sum(x[:, 0] != 0.0)) < min_on // 2:
         raise InsufficientDataError(
@@ -198,7 +232,7 @@ def _design(
             note = "constant current and no open-circuit voltage: R and S not separable"
         else:
             note = "readings do not vary enough to separate R and S"
-    return _Design(x, y, f_r, f_s, coef, sigma, xtx, bool(data_ok), note)
+    return _Design(x, y, f_r, f_s, coef, sigma, xtx, bool(data_ok), note, z)
 
 
 def _with_prior(
@@ -362,6 +396,7 @@ def fit_electrical(
         r_lever=r_lever,
         r_sd_fixed_s=d.sigma / math.sqrt(x00),
         current_ok=current_ok,
+        sums=tuple(window_sums(d.x, d.y, d.f_s, d.z)),
     )
 
 

@@ -29,10 +29,12 @@ from typing import TypeAlias
 
 import numpy as np
 from numpy.typing import NDArray
+from scipy.optimize import minimize_scalar
 
 from .. import physics
 from .._validate import T_25C_K, FloatArray
 from ..errors import InsufficientDataError
+from .electrical import neighbour_means
 from .estimates import BoolArray
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 
@@ -40,6 +42,7 @@ __all__ = [
     "FaceReconstruction",
     "NotSeparableError",
     "StepResistance",
+    "balance_resistance",
     "delta_t_from_hot_face",
     "floating_without_faces",
     "reconstruct_delta_t",
@@ -235,6 +238,141 @@ def step_resistance(
     return StepResistance(r25, se, int(k.size), reliable, note)
 
 
+def _balance_ssr(
+    r25: float,
+    rows: tuple[FloatArray, ...],
+    s25: float,
+    alpha: float,
+    beta: float,
+    options: DiagnosticsOptions,
+) -> tuple[float, float, int]:
+    # The cold face's balance at R25 = r25, instrumented: the residual's part the instruments
+    # explain [K²] (the criterion R25 minimises), the residual sum of squares [K²] and the
+    # rows used.
+    i, v, tcab, th = rows
+    dt = delta_t_from_hot_face(i, v, th, True, r25, s25, alpha=alpha, beta=beta, options=options)
+    ok = np.isfinite(dt)
+    i, dt, th, tcab = i[ok], dt[ok], th[ok], tcab[ok]
+    x = th - 0.5 * dt - T_25C_K
+    tc = th - dt
+    q = s25 * (1.0 + beta * x) * i * tc - 0.5 * i**2 * r25 * (1.0 + alpha * x)
+    a = np.column_stack([q, -dt])
+    on = i > options.on_current
+    # More instruments than unknowns: a wrong R25 leaves a residual in step with the current
+    # (I·δR/S), which the current's, the cabinet's and the hot face's neighbours reveal.
+    z = np.column_stack([
+        neighbour_means(np.column_stack([q, -dt, i, tcab, th]), on), on, np.ones(i.size),
+    ])  # fmt: skip
+    a = np.column_stack([a, np.ones(i.size)])
+    y = tcab - tc
+    # Two-stage least squares: the regressors' part the instruments explain, then the fit.
+    a_hat = z @ np.linalg.lstsq(z, a, rcond=None)[0]
+    coef = np.linalg.lstsq(a_hat, y, rcond=None)[0]
+    res = y - a @ coef
+    explained = z @ np.linalg.lstsq(z, res, rcond=None)[0]
+    return float(explained @ explained), float(res @ res), int(ok.sum())
+
+
+def balance_resistance(
+    current: FloatArray,
+    voltage: FloatArray,
+    t_cabinet: FloatArray,
+    t_hot: FloatArray,
+    usable: BoolArray,
+    *,
+    s25: float,
+    r25_guess: float,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> StepResistance:
+    """R25 from the cold face's heat balance, with the hot face probed and no cold probe.
+
+    Where the faces carry no heat capacity to speak of they follow the current within a
+    sample and no switch-off step gives R; instead every sample holds the cold face's steady
+    balance (Goldsmid 2010, ch. 2; the cold side's path as in :mod:`..heat_paths`)::
+
+        (Tcab - Tc)/r_cold = S·I·Tc - ½·I²·R - K·(Th - Tc),   Tc = Th - ΔT,
+
+    with ΔT read from the voltage at a trial R25 (:func:`delta_t_from_hot_face`; V_oc/S
+    while floating). At a given R25 this is linear in r_cold, K·r_cold and a constant (the
+    probes' offsets): Tcab - Tc = r_cold·Q - K·r_cold·ΔT + c. A wrong R25 shifts ΔT by
+    I·δR/S on the driven samples only, which no choice of the three can absorb once current,
+    cabinet and ambient vary; R25 minimises the balance's residual (a bounded
+    one-dimensional search, ``scipy.optimize.minimize_scalar``). Its standard error: the
+    profile's curvature, σ²/(½·d²SSR/dR²), and S's spread between units
+    (``seebeck_unit_rel_sd``) carried by refitting at S·(1 ± it).
+
+    Parameters
+    ----------
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_cabinet : Cabinet air [K].
+    t_hot : Hot face [K].
+    usable : Samples that may be used (off ones only where the driver floats) [-].
+    s25 : Registered ratings' S25 [V/K].
+    r25_guess : Registered ratings' R25, the middle of the search (±30 %) [ohm].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : ``on_current`` [A], ``min_on`` [-], ``seebeck_unit_rel_sd`` [-],
+        ``step_r_max_rel_stderr`` [-], ``balance_max_residual_k`` [K].
+
+    Returns
+    -------
+    The resistance and its error (``n_steps``: the samples behind it).
+
+    Raises
+    ------
+    InsufficientDataError : fewer than ``min_on`` driven samples.
+    """
+    i = np.asarray(current, dtype=np.float64)
+    ok = np.asarray(usable, dtype=bool) & np.isfinite(i) & np.isfinite(t_hot)
+    ok &= np.isfinite(voltage) & np.isfinite(t_cabinet)
+    if int((ok & (i > options.on_current)).sum()) < options.min_on:
+        raise InsufficientDataError(
+            "too few driven samples for the cold face's balance", "module hardly ran"
+        )
+    rows = tuple(np.asarray(x, dtype=np.float64)[ok] for x in (i, voltage, t_cabinet, t_hot))
+
+    def best(s: float) -> float:
+        res = minimize_scalar(
+            lambda r: _balance_ssr(r, rows, s, alpha, beta, options)[0],
+            bounds=(0.7 * r25_guess, 1.3 * r25_guess), method="bounded",
+            options={"xatol": 1e-5 * r25_guess},
+        )  # fmt: skip
+        return float(res.x)
+
+    r25 = best(s25)
+    crit, ssr, n = _balance_ssr(r25, rows, s25, alpha, beta, options)
+    sigma = math.sqrt(ssr / max(n - 4, 1))
+    h = 1e-3 * r25
+    curv = (
+        _balance_ssr(r25 + h, rows, s25, alpha, beta, options)[0] - 2.0 * crit
+        + _balance_ssr(r25 - h, rows, s25, alpha, beta, options)[0]
+    ) / h**2  # fmt: skip
+    scatter = sigma / math.sqrt(0.5 * curv) if curv > 0.0 else math.inf
+    ds = options.seebeck_unit_rel_sd
+    s_part = 0.5 * abs(best(s25 * (1.0 + ds)) - best(s25 * (1.0 - ds)))
+    se = math.hypot(scatter, s_part)
+    on = rows[0] > options.on_current
+    k = np.flatnonzero(on[:-2] & ~on[1:-1] & ~on[2:])  # switch-offs with two off samples
+    # Faces that store heat move smoothly across a switch-off, and a slow drift fits a steady
+    # balance with the wrong R: the hot probe must jump at most switch-offs, where the unit
+    # switches at all.
+    smooth = k.size >= options.min_steps and float(np.mean(_faces_jump(rows[3], k, options))) < 0.5
+    fits = sigma <= options.balance_max_residual_k and not smooth
+    reliable = fits and se <= options.step_r_max_rel_stderr * r25
+    note = None
+    if not fits:
+        note = (
+            f"the cold face's steady balance leaves {sigma:.2f} K unexplained"
+            + (" and the hot face moves smoothly across the switch-offs" if smooth else "")
+            + ": the faces store heat, so their balance is not steady"
+        )
+    elif not reliable:
+        note = f"R from the cold face's balance only within ±{100 * se / r25:.1f} %"
+    return StepResistance(r25, se, n, reliable, note)
+
+
 def reconstruct_delta_t(
     current: FloatArray,
     voltage: FloatArray,
@@ -397,6 +535,32 @@ def _check_lift(dt: FloatArray, dt_se: FloatArray, on: BoolArray, lead: FloatArr
         )
 
 
+def _faces_at(
+    i: FloatArray,
+    v: FloatArray,
+    tcab: FloatArray,
+    ta: FloatArray,
+    th: FloatArray | None,
+    r25: float,
+    s25: float,
+    alpha: float,
+    beta: float,
+    options: DiagnosticsOptions,
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    # ΔT, Tm and Tm's sd read from the voltage at R25: with a hot probe Tm = Th - ΔT/2 solved
+    # with ΔT, else the middle of cabinet and ambient within its bound.
+    if th is not None:
+        dt = delta_t_from_hot_face(
+            i, v, th, True, r25, s25, alpha=alpha, beta=beta, options=options
+        )
+        return dt, th - 0.5 * dt, np.full_like(dt, options.probe_offset_k)
+    tm = 0.5 * (tcab + ta)
+    dt, _ = reconstruct_delta_t(
+        i, v, tm, True, r25, 0.0, s25, 0.0, alpha=alpha, beta=beta, options=options
+    )
+    return dt, tm, _unanchored_sd(dt, tcab, ta, options.probe_offset_k)
+
+
 def reconstruct_faces(
     time_s: FloatArray,
     current: FloatArray,
@@ -408,13 +572,16 @@ def reconstruct_faces(
     *,
     floating: bool,
     s25: float,
+    r25_guess: float | None = None,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
     beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> FaceReconstruction:
     """ΔT, and the cold face where the hot one is probed, from the module's own voltage.
 
-    R25 from switch-off steps (:func:`step_resistance`), S25 held at ``s25`` (registered
+    R25 from switch-off steps (:func:`step_resistance`), or where they give none (faces that
+    follow the current within a sample) and the hot face is probed from the cold face's
+    steady balance (:func:`balance_resistance`); S25 held at ``s25`` (registered
     ratings) with the spread between units of a type (``seebeck_unit_rel_sd``), then ΔT from
     the voltage; Tc = Th - ΔT. The mean module temperature behind R(Tm) and S(Tm) matters
     (about 1 K of ΔT per kelvin): with a hot probe Tm = Th - ΔT/2 is solved together with ΔT
@@ -436,9 +603,12 @@ def reconstruct_faces(
     usable : Samples that may be used [-].
     floating : Whether off samples show the open-circuit voltage [-].
     s25 : Registered ratings' S25 [V/K].
+    r25_guess : Registered ratings' R25, where known: with the hot face probed, R25 then
+        comes from the cold face's balance (:func:`balance_resistance`) where the steps give
+        none [ohm].
     alpha, beta : Temperature coefficients of R and S [1/K].
-    options : as :func:`step_resistance`, and ``seebeck_unit_rel_sd`` [-],
-        ``probe_offset_k`` [K].
+    options : as :func:`step_resistance` and :func:`balance_resistance`, and
+        ``seebeck_unit_rel_sd`` [-], ``probe_offset_k`` [K].
 
     Returns
     -------
@@ -450,7 +620,7 @@ def reconstruct_faces(
     InsufficientDataError : too few switch-off steps, or a ΔT read with their R that the
         heat flows rule out (below the ambient's lead over the cabinet while cooling).
     """
-    if not floating:
+    if not floating and (t_hot is None or r25_guess is None):
         raise NotSeparableError(
             "no open-circuit voltage and no face probes: R25 and S not separable",
             "no open-circuit voltage seen (a driver that holds the module at zero volts while "
@@ -460,30 +630,42 @@ def reconstruct_faces(
     i, v = np.asarray(current, dtype=np.float64), np.asarray(voltage, dtype=np.float64)
     tcab, ta = np.asarray(t_cabinet, dtype=np.float64), np.asarray(t_ambient, dtype=np.float64)
     th = None if t_hot is None else np.asarray(t_hot, dtype=np.float64)
-    s_rel, probe = options.seebeck_unit_rel_sd, options.probe_offset_k
-    step = step_resistance(
-        time_s, i, v, tcab, ta, th, usable, s25=s25, alpha=alpha, options=options
-    )
+    s_rel = options.seebeck_unit_rel_sd
+    try:
+        if not floating:
+            raise InsufficientDataError("no open-circuit voltage", "no switch-off steps")
+        step = step_resistance(
+            time_s, i, v, tcab, ta, th, usable, s25=s25, alpha=alpha, options=options
+        )
+        how = f"R25 from {step.n_steps} switch-off steps"
+        dt, tm, tm_sd = _faces_at(i, v, tcab, ta, th, step.r25, s25, alpha, beta, options)
+        _check_lift(dt, reconstruct_delta_t(
+            i, v, tm, floating, step.r25, step.r25_se, s25, s_rel, t_mean_sd_k=tm_sd, alpha=alpha,
+            beta=beta, options=options,
+        )[1], i > options.on_current, ta - tcab)  # fmt: skip
+    except InsufficientDataError:
+        # Faces that follow the current within a sample: no step gives R, but with the hot
+        # face probed the cold face's steady balance does.
+        if th is None or r25_guess is None:
+            raise
+        rows = usable & (floating | (i > options.on_current))
+        step = balance_resistance(
+            i, v, tcab, th, rows, s25=s25, r25_guess=r25_guess, alpha=alpha, beta=beta,
+            options=options,
+        )  # fmt: skip
+        how = f"R25 from the cold face's steady heat balance over {step.n_steps} samples"
+        dt, tm, tm_sd = _faces_at(i, v, tcab, ta, th, step.r25, s25, alpha, beta, options)
+        if not floating:
+            dt = np.where(i > options.on_current, dt, np.nan)
     r25 = step.r25
-    if th is not None:
-        dt = delta_t_from_hot_face(
-            i, v, th, True, r25, s25, alpha=alpha, beta=beta, options=options
-        )
-        tm, tm_sd = th - 0.5 * dt, np.full_like(dt, probe)
-    else:
-        tm = 0.5 * (tcab + ta)
-        dt, _ = reconstruct_delta_t(
-            i, v, tm, True, r25, 0.0, s25, 0.0, alpha=alpha, beta=beta, options=options
-        )
-        tm_sd = _unanchored_sd(dt, tcab, ta, probe)
     _, dt_se = reconstruct_delta_t(
-        i, v, tm, True, r25, step.r25_se, s25, s_rel, t_mean_sd_k=tm_sd, alpha=alpha,
+        i, v, tm, floating, r25, step.r25_se, s25, s_rel, t_mean_sd_k=tm_sd, alpha=alpha,
         beta=beta, options=options,
     )  # fmt: skip
     if th is not None:
         tm_sd = np.hypot(tm_sd, 0.5 * dt_se)
     _check_lift(dt, dt_se, i > options.on_current, ta - tcab)
-    rs = f"R25 from {step.n_steps} switch-off steps, S from the registered ratings"
+    rs = f"{how}, S from the registered ratings"
     if th is None:
         tc, tc_se = np.full_like(dt, np.nan), np.full_like(dt, np.nan)
         basis = f"no face probes: ΔT from the module's voltage ({rs}); faces unanchored"

@@ -75,6 +75,12 @@ class DiagnosticsOptions:
     #: within its offset while an open module shows S·ΔT, tenths of a volt a few kelvin
     #: across a 127-couple stack (common practice, no source).
     floating_min_voltage: float = 0.03
+    #: Span of the windows whose electrical rows are pooled for the served S [s]: S does not
+    #: wear, and a week holds the ambient's daily and weather swings that move the operating
+    #: point enough to separate S from R and the readings' offsets (common practice, no
+    #: source). Chosen against simulated fleets with known truth (seeds 201-210): one window
+    #: left S at the ratings on most zero-volt and proportional drivers.
+    seebeck_pool_s: float = 7 * 86_400.0
 
     #: One step of the voltage reading, 10 mV (common practice, no source) [V]: the mean of a
     #: quantised reading is known to no better than step/√12.
@@ -219,6 +225,11 @@ class DiagnosticsOptions:
     #: is taken from the registered ratings to read ΔT from the voltage: a few per cent
     #: (common practice, no source) [-].
     seebeck_unit_rel_sd: float = 0.03
+    #: Largest residual standard deviation of the cold face's steady balance for its R25 to
+    #: count (:func:`.module_thermometer.balance_resistance`): the voltage's and current's
+    #: reading steps alone read ΔT to a few tenths of a kelvin; sinks that store heat leave
+    #: kelvins (common practice, no source) [K].
+    balance_max_residual_k: float = 1.0
 
 
 #: The options as measured and documented; the default of every estimator.

@@ -149,7 +149,7 @@ def complete_faces(
     try:
         data.faces = dg.reconstruct_faces(
             data.t[sl], i, v, data.tcab[sl], data.ta[sl], hot, ok, floating=floating,
-            s25=prior.seebeck, alpha=cfg.alpha, beta=cfg.beta,
+            s25=prior.seebeck, r25_guess=prior.resistance, alpha=cfg.alpha, beta=cfg.beta,
             options=opts,
         )  # fmt: skip
     except PhysicsError as exc:

@@ -187,6 +187,9 @@ class DeviceState(_Stored):
     params: ModuleParams | None = None
     #: Recent own S at 25 °C and its standard error, [V/K, V/K].
     s_hist: list[list[float]] | None = None
+    #: Recent windows' electrical normal-equation sums (see ``runner.seebeck``): [end of the
+    #: window (epoch ms UTC), weight, ΔT offset taken off [K], sums...].
+    s_sums: list[list[float]] | None = None
     #: Recent internal loads of well-determined cabinet fits [W].
     q_hist: list[float] | None = None
     #: Recent sink time constants and their standard errors (cold, sd, hot, sd) [s].

@@ -18,7 +18,7 @@ from tecfleet.analytics import physics
 from tecfleet.analytics._validate import T_25C_K, FloatArray
 from tecfleet.analytics.diagnostics import probe_offsets as po
 from tecfleet.analytics.errors import InsufficientDataError, PhysicsError
-from tecfleet.analytics.runner import offsets, settled
+from tecfleet.analytics.runner import offsets, seebeck, settled
 from tecfleet.analytics.runner.data import Readings, complete_faces, faces_basis, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import (
@@ -292,8 +292,7 @@ def _electrical(
     # Served: the module's own S, its fit allowing for a constant ΔT offset (the heat balances
     # below use the median of the unit's recent ones).
     s_own, se_own = el.s25_offset_free, el.s25_offset_free_se
-    rows.add("module.seebeck_25c_v_per_k", b, s_own, se_own, n_el, el.reliable, el.note)
-    rows.add("module.seebeck_v_per_k", b, s_own * f_s, se_own * f_s, n_el, el.reliable, el.note)
+    seebeck.serve_seebeck(rows, state, b, el, prior, float(t[-1] - t[0]), f_s, cfg)
     if held is not None:
         return _Electrical(el, on, tm_on, f_r, f_s, s_own, se_own)
     if floating:

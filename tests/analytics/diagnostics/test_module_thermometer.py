@@ -259,3 +259,73 @@ def test_runner_states_why_a_zero_volt_unit_without_face_probes_has_no_faces(
     assert data.faces is None
     assert data.faces_missing is not None and "cannot be told apart" in data.faces_missing
     assert np.isnan(data.tc).all()
+
+
+def _massless_trace(seed: int) -> tuple[np.ndarray, ...]:
+    # Faces without heat capacity, both balances steady at every sample (Goldsmid 2010,
+    # ch. 2, constant S, R, K: α = β = 0 here):
+    #   (Tcab - Tc)/r_cold = S·I·Tc - ½·I²·R - K·ΔT,   (Th - Ta)/r_hot = S·I·Th + ½·I²·R - K·ΔT,
+    # solved by hand as a 2×2 linear system per sample. A thermostat switching every few
+    # minutes at 3-4 A, the cabinet drifting over 2 K and the ambient over a day's 4 K; the
+    # module of the hand-worked example, K = 0.5 W/K, r_cold = 0.4 K/W, r_hot = 0.25 K/W (a
+    # small cooler; from memory). Readings with 0.05 K probe noise and 5 mV/5 mA noise.
+    rng = np.random.default_rng(seed)
+    n = 1440
+    t = np.arange(n) * 60.0
+    on = (np.arange(n) // 2) % 3 != 0
+    i = np.where(on, 3.5 + 0.5 * np.sin(t / 7000.0), 0.0)
+    tcab = 278.0 + 1.0 * np.sin(t / 5000.0)
+    ta = 295.0 + 2.0 * np.sin(2.0 * np.pi * t / 86_400.0)
+    k, rc, rh = 0.5, 0.4, 0.25
+    jh = 0.5 * i**2 * R_HAND
+    a11, a12 = 1.0 / rc + S_HAND * i + k, -k
+    a21, a22 = -k, 1.0 / rh - S_HAND * i + k
+    b1, b2 = tcab / rc + jh, ta / rh + jh
+    det = a11 * a22 - a12 * a21
+    tc = (b1 * a22 - a12 * b2) / det
+    th = (a11 * b2 - a21 * b1) / det
+    v = S_HAND * (th - tc) + i * R_HAND
+    noisy = [x + rng.normal(0.0, sd, n) for x, sd in ((tcab, 0.05), (th, 0.05), (v, 0.005))]
+    i_read = np.where(on, i + rng.normal(0.0, 0.005, n), 0.0)
+    return t, i_read, noisy[2], noisy[0], ta, noisy[1]
+
+
+def test_faces_that_jump_give_r_from_the_cold_faces_steady_balance() -> None:
+    # No switch-off step gives R here (ΔT jumps with the current), but every sample holds the
+    # cold face's balance: R25 comes back within 1 % and twice its stated error, from the hot
+    # probe, the cabinet probe and the voltage (the hand-worked 2.0 Ω), S from the ratings.
+    t, i, v, tcab, ta, th = _massless_trace(11)
+    n = t.size
+    ok = np.ones(n, dtype=bool)
+    with pytest.raises(InsufficientDataError):
+        mt.step_resistance(t, i, v, tcab, ta, th, ok, s25=S_HAND, alpha=0.0)
+    res = mt.balance_resistance(i, v, tcab, th, ok, s25=S_HAND, r25_guess=2.3, alpha=0.0,
+                                beta=0.0)  # fmt: skip
+    assert res.r25 == pytest.approx(R_HAND, rel=0.01)
+    assert abs(res.r25 - R_HAND) <= 2.0 * res.r25_se
+    rec = mt.reconstruct_faces(
+        t, i, v, tcab, ta, th, ok, floating=True, s25=S_HAND, r25_guess=2.3, alpha=0.0,
+        beta=0.0,
+    )  # fmt: skip
+    assert "steady heat balance" in rec.basis
+    assert rec.step.r25 == pytest.approx(res.r25)
+
+
+def test_faces_that_store_heat_are_not_read_from_a_steady_balance() -> None:
+    # The same module with both faces lagging their steady values by a 5-minute time
+    # constant (sinks that store heat): a slow drift can fit a steady balance with the wrong
+    # R, but the hot probe then moves smoothly across the switch-offs instead of jumping, and
+    # the R is not called reliable.
+    t, i, v, tcab, _ta, th = _massless_trace(12)
+    dt = (v - i * R_HAND) / S_HAND
+    faces = np.column_stack([th - dt, th])
+    w = 1.0 - math.exp(-60.0 / 300.0)
+    for j in range(1, t.size):
+        faces[j] = faces[j - 1] + w * (faces[j] - faces[j - 1])
+    v_lag = S_HAND * (faces[:, 1] - faces[:, 0]) + i * R_HAND
+    ok = np.ones(t.size, dtype=bool)
+    res = mt.balance_resistance(
+        i, v_lag, tcab, faces[:, 1], ok, s25=S_HAND, r25_guess=2.3, alpha=0.0, beta=0.0
+    )
+    assert not res.reliable
+    assert res.note is not None and "store heat" in res.note

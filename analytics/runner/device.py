@@ -18,6 +18,7 @@ from tecfleet.analytics.runner.settings import (
     for_reporting,
 )
 from tecfleet.analytics.runner.state import DeviceState
+from tecfleet.analytics.runner.tracks import FLAGS_HELD_FACES_FROM_VOLTAGE
 from tecfleet.analytics.runner.window import fit_window
 from tecfleet.ingest import db
 from tecfleet.ingest.db import analysis as analysis_db
@@ -77,6 +78,7 @@ def analyze_device(
     cabinet = dev.cabinet if isinstance(dev.cabinet, dict) else {}
     steps = 0
     hot: dict[int, dg.Estimate | None] = {}
+    held = None if data.probed == (True, True) else FLAGS_HELD_FACES_FROM_VOLTAGE
     for b in range(done + step, end + 1, step):
         steps += 1
         if b % window == 0:
@@ -90,6 +92,6 @@ def analyze_device(
             # baseline, in which constant offsets cancel, and an offset found mid-season
             # must not step them.
             hot = hot_side(data, b, min(b // window * window + window - step, end), state, cfg)
-        hourly(b, hot.get(b), rows, state, cfg)
+        hourly(b, hot.get(b), rows, state, cfg, held)
     analysis_db.write_results(conn, dev.device_id, rows.rows, end, state.to_json())
     return steps, len(rows.rows)

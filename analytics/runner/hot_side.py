@@ -107,21 +107,32 @@ def _faces_followed(state: DeviceState) -> bool:
 
 
 def hourly(
-    b: int, est: dg.Estimate | None, rows: EstimateRows, state: DeviceState, cfg: AnalysisSettings
+    b: int,
+    est: dg.Estimate | None,
+    rows: EstimateRows,
+    state: DeviceState,
+    cfg: AnalysisSettings,
+    held: str | None = None,
 ) -> None:
-    """Store the hour's hot-side resistance ending at ``b`` and follow its changes."""
+    """Store the hour's hot-side resistance ending at ``b`` and follow its changes
+    (``held``: the reason no flag is raised, see :func:`tracks.track`)."""
     if est is None:
         return
     rows.est("hot_side.resistance_k_per_w", b, est)
     rows.basis = est.basis
     try:
-        _follow(b, est, rows, state, cfg)
+        _follow(b, est, rows, state, cfg, held)
     finally:
         rows.basis = None
 
 
 def _follow(
-    b: int, est: dg.Estimate, rows: EstimateRows, state: DeviceState, cfg: AnalysisSettings
+    b: int,
+    est: dg.Estimate,
+    rows: EstimateRows,
+    state: DeviceState,
+    cfg: AnalysisSettings,
+    held: str | None,
 ) -> None:
     # Where the sinks store heat faster than the samples follow, the hour's figure carries a
     # steady bias (see diagnostics.hot_side_resistance_ratios): not reliable, but precise
@@ -136,4 +147,5 @@ def _follow(
     track(
         rows, state, "rhot", "hot_side.resistance", b, est.value, cfg.r_hot_flag_pct, 0.03, cfg,
         persist=2 if slow else 1, at_once_pct=2.0 * cfg.r_hot_flag_pct if slow else None,
+        held=held,
     )  # fmt: skip

@@ -31,6 +31,15 @@ __all__ = [
 ]
 
 
+#: Why no flag is raised on a unit whose faces are read from the module's voltage: the
+#: estimates there are served, but detection on reduced sensor sets has not yet been shown
+#: to keep a healthy unit unflagged over a season.
+FLAGS_HELD_FACES_FROM_VOLTAGE = (
+    "faces read from the module's voltage: changes are followed, but no flag is raised on "
+    "this sensor set until detection there is validated"
+)
+
+
 def track(
     rows: EstimateRows,
     state: DeviceState,
@@ -51,6 +60,7 @@ def track(
     admit_s: float = 0.0,
     counts: bool = True,
     in_a_row_s: float | None = None,
+    held: str | None = None,
 ) -> None:
     """Append a value to its series and emit baseline, change, CUSUM and flag estimates.
 
@@ -68,7 +78,9 @@ def track(
     the newest value). With ``admit_s`` [s], a value joins the growing baseline only that
     long after its own step. A value that does not ``counts`` never counts towards
     ``persist``; with ``in_a_row_s`` [s], nor do values further apart than that (a step
-    that was not followed in between starts the count again).
+    that was not followed in between starts the count again). With ``held`` (the reason),
+    the change is followed and served but no flag is raised: the flag row is marked not
+    reliable with that reason.
     """
     series = state.series_by_name().setdefault(name, [])
     first = state.first_by_name().setdefault(name, b)
@@ -110,11 +122,11 @@ def track(
     run = int(above.get(name, 0))
     if in_a_row_s is not None and len(series) > 1 and b - series[-2][0] > in_a_row_s * 1000:
         run = 0
-    above[name] = run + 1 if change >= flag_pct and newest_ok and counts else 0
-    raised = above[name] >= persist or (
-        at_once_pct is not None and change >= at_once_pct and newest_ok
+    above[name] = run + 1 if change >= flag_pct and newest_ok and counts and not held else 0
+    raised = held is None and (
+        above[name] >= persist or (at_once_pct is not None and change >= at_once_pct and newest_ok)
     )
-    rows.add(f"{prefix}.flag", b, 1.0 if raised else 0.0, None, n_base)
+    rows.add(f"{prefix}.flag", b, 1.0 if raised else 0.0, None, n_base, held is None, held)
     if b % (cfg.window_s * 1000) == 0:
         # Slow-moving figures: once per window is enough, also for the hourly series.
         rows.add(f"{prefix}.baseline", b, center, spread / math.sqrt(max(n_base, 1)), n_base)
@@ -280,9 +292,10 @@ def track_ua(
     ua_sd: float,
     cfg: AnalysisSettings,
     served_reliable: bool = True,
+    held: str | None = None,
 ) -> None:
     """Follow one window's UA at the trend K [W/K] with its standard error [W/K], and
-    whether the window's UA was served as reliable.
+    whether the window's UA was served as reliable (``held``: see :func:`track`).
 
     Its change is judged on the median of the fits whose readings, with the thermal window
     behind each, span ``ua_recent_data_s``: the last day's at one-minute readings (a day's
@@ -300,7 +313,7 @@ def track_ua(
         grow_days=cfg.ua_baseline_grow_days, newest_sd=ua_sd, recent_s=recent_s,
         admit_s=0 if long_window else max(cfg.thermal_window_s - cfg.ua_admit_window_s, 0),
         counts=served_reliable or not long_window,
-        in_a_row_s=cfg.window_s if recent_s < cfg.window_s else None,
+        in_a_row_s=cfg.window_s if recent_s < cfg.window_s else None, held=held,
     )  # fmt: skip
 
 

@@ -27,7 +27,13 @@ from tecfleet.analytics.runner.settings import (
     for_reporting,
 )
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
-from tecfleet.analytics.runner.tracks import ambient_lead_usual, rebase_ua, track_r25, track_ua
+from tecfleet.analytics.runner.tracks import (
+    FLAGS_HELD_FACES_FROM_VOLTAGE,
+    ambient_lead_usual,
+    rebase_ua,
+    track_r25,
+    track_ua,
+)
 
 __all__ = ["fit_window"]
 
@@ -130,7 +136,8 @@ def fit_window(
         _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
-        _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg)
+        held = None if win.probed == (True, True) else FLAGS_HELD_FACES_FROM_VOLTAGE
+        _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held)
         rows.basis = f"module model at the operating point, {faces}"
         _performance(win, ele, th_fit, cov3, rows, cfg)
     finally:
@@ -550,6 +557,7 @@ def _follow_ua(
     rows: EstimateRows,
     state: DeviceState,
     cfg: AnalysisSettings,
+    held: str | None,
 ) -> None:
     # While the hot side's resistance is flagged (a failed fan, a clogged sink) the module runs
     # at a hot face and often without pause, a regime the cabinet balance was not judged in:
@@ -591,7 +599,7 @@ def _follow_ua(
             )
             del raw[: -cfg.ua_raw_keep]
         ua_trend = th_fit.ua + th_fit.ua_per_k * (k_trend - th_fit.k_cabinet)
-        track_ua(rows, state, b, ua_trend, sd["ua"], cfg, served_ok)
+        track_ua(rows, state, b, ua_trend, sd["ua"], cfg, served_ok, held)
 
 
 def _performance(

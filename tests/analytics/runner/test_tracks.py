@@ -2,13 +2,15 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pytest
 
 from tecfleet.analytics.runner import AnalysisSettings
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.state import DeviceState
-from tecfleet.analytics.runner.tracks import track
+from tecfleet.analytics.runner.tracks import FLAGS_HELD_FACES_FROM_VOLTAGE, track
 from tecfleet.ingest.db.analysis import ESTIMATE_COLUMNS
 
 DEVICE = "cab-demo-1"
@@ -134,3 +136,33 @@ def test_hot_side_flag_where_sinks_store_heat_waits_for_a_second_hour_unless_it_
         ]
         first[label] = raised[0] if raised else None
     assert first == {"single": None, "two": 81, "fan": 80}
+
+
+def test_a_held_track_follows_the_change_but_raises_no_flag() -> None:
+    # Series made here, as in the first test: 6-hourly UA of 0.50 W/K then a lasting step to
+    # 0.80 W/K (+60 %). Followed plainly it is flagged; held (faces read from the module's
+    # voltage), the same change is served, and the flag row says why it is not judged.
+    cfg = AnalysisSettings()
+    six_h = 6 * 3_600_000
+    values = [0.50] * 20 + [0.80] * 12
+    out: dict[str | None, list[dict[str, Any]]] = {}
+    for held in (None, FLAGS_HELD_FACES_FROM_VOLTAGE):
+        rows = EstimateRows(DEVICE)
+        state = DeviceState()
+        for j, ua in enumerate(values):
+            track(
+                rows, state, "ua", "cabinet.ua", (j + 1) * six_h, ua, cfg.ua_flag_pct, 0.03,
+                cfg, persist=cfg.ua_flag_persist, held=held,
+            )  # fmt: skip
+        out[held] = [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+    plain, held_rows = out[None], out[FLAGS_HELD_FACES_FROM_VOLTAGE]
+
+    def of(recs: list[dict[str, Any]], key: str) -> list[Any]:
+        return [r["value"] for r in recs if r["key"] == key]
+
+    assert of(plain, "cabinet.ua.change_pct") == of(held_rows, "cabinet.ua.change_pct")
+    assert max(of(held_rows, "cabinet.ua.change_pct")) == pytest.approx(60.0)
+    assert 1.0 in of(plain, "cabinet.ua.flag")
+    flags = [r for r in held_rows if r["key"] == "cabinet.ua.flag"]
+    assert flags and all(r["value"] == 0.0 and not r["reliable"] for r in flags)
+    assert all(r["note"] == FLAGS_HELD_FACES_FROM_VOLTAGE for r in flags)

@@ -561,6 +561,35 @@ def _faces_at(
     return dt, tm, _unanchored_sd(dt, tcab, ta, options.probe_offset_k)
 
 
+def _faces_checked(
+    i: FloatArray,
+    v: FloatArray,
+    tcab: FloatArray,
+    ta: FloatArray,
+    th: FloatArray | None,
+    step: StepResistance,
+    floating: bool,
+    s25: float,
+    alpha: float,
+    beta: float,
+    options: DiagnosticsOptions,
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
+    # ΔT and its sd, Tm and its sd read from the voltage at the step's R25 (ΔT only while
+    # driven where the driver does not float), refused where the heat flows rule that ΔT out.
+    dt, tm, tm_sd = _faces_at(i, v, tcab, ta, th, step.r25, s25, alpha, beta, options)
+    on = i > options.on_current
+    if not floating:
+        dt = np.where(on, dt, np.nan)
+    _, dt_se = reconstruct_delta_t(
+        i, v, tm, floating, step.r25, step.r25_se, s25, options.seebeck_unit_rel_sd,
+        t_mean_sd_k=tm_sd, alpha=alpha, beta=beta, options=options,
+    )  # fmt: skip
+    if th is not None:
+        tm_sd = np.hypot(tm_sd, 0.5 * dt_se)
+    _check_lift(dt, dt_se, on, ta - tcab)
+    return dt, dt_se, tm, tm_sd
+
+
 def reconstruct_faces(
     time_s: FloatArray,
     current: FloatArray,
@@ -630,7 +659,6 @@ def reconstruct_faces(
     i, v = np.asarray(current, dtype=np.float64), np.asarray(voltage, dtype=np.float64)
     tcab, ta = np.asarray(t_cabinet, dtype=np.float64), np.asarray(t_ambient, dtype=np.float64)
     th = None if t_hot is None else np.asarray(t_hot, dtype=np.float64)
-    s_rel = options.seebeck_unit_rel_sd
     try:
         if not floating:
             raise InsufficientDataError("no open-circuit voltage", "no switch-off steps")
@@ -638,11 +666,9 @@ def reconstruct_faces(
             time_s, i, v, tcab, ta, th, usable, s25=s25, alpha=alpha, options=options
         )
         how = f"R25 from {step.n_steps} switch-off steps"
-        dt, tm, tm_sd = _faces_at(i, v, tcab, ta, th, step.r25, s25, alpha, beta, options)
-        _check_lift(dt, reconstruct_delta_t(
-            i, v, tm, floating, step.r25, step.r25_se, s25, s_rel, t_mean_sd_k=tm_sd, alpha=alpha,
-            beta=beta, options=options,
-        )[1], i > options.on_current, ta - tcab)  # fmt: skip
+        dt, dt_se, tm, tm_sd = _faces_checked(
+            i, v, tcab, ta, th, step, floating, s25, alpha, beta, options
+        )
     except InsufficientDataError:
         # Faces that follow the current within a sample: no step gives R, but with the hot
         # face probed the cold face's steady balance does.
@@ -654,17 +680,9 @@ def reconstruct_faces(
             options=options,
         )  # fmt: skip
         how = f"R25 from the cold face's steady heat balance over {step.n_steps} samples"
-        dt, tm, tm_sd = _faces_at(i, v, tcab, ta, th, step.r25, s25, alpha, beta, options)
-        if not floating:
-            dt = np.where(i > options.on_current, dt, np.nan)
-    r25 = step.r25
-    _, dt_se = reconstruct_delta_t(
-        i, v, tm, floating, r25, step.r25_se, s25, s_rel, t_mean_sd_k=tm_sd, alpha=alpha,
-        beta=beta, options=options,
-    )  # fmt: skip
-    if th is not None:
-        tm_sd = np.hypot(tm_sd, 0.5 * dt_se)
-    _check_lift(dt, dt_se, i > options.on_current, ta - tcab)
+        dt, dt_se, tm, tm_sd = _faces_checked(
+            i, v, tcab, ta, th, step, floating, s25, alpha, beta, options
+        )
     rs = f"{how}, S from the registered ratings"
     if th is None:
         tc, tc_se = np.full_like(dt, np.nan), np.full_like(dt, np.nan)

@@ -18,7 +18,7 @@ from tecfleet.analytics.runner.settings import (
     for_reporting,
 )
 from tecfleet.analytics.runner.state import DeviceState
-from tecfleet.analytics.runner.tracks import FLAGS_HELD_FACES_FROM_VOLTAGE
+from tecfleet.analytics.runner.tracks import flags_held
 from tecfleet.analytics.runner.window import fit_window
 from tecfleet.ingest import db
 from tecfleet.ingest.db import analysis as analysis_db
@@ -78,7 +78,7 @@ def analyze_device(
     cabinet = dev.cabinet if isinstance(dev.cabinet, dict) else {}
     steps = 0
     hot: dict[int, dg.Estimate | None] = {}
-    held = None if data.probed == (True, True) else FLAGS_HELD_FACES_FROM_VOLTAGE
+    held = flags_held(data.probed)
     for b in range(done + step, end + 1, step):
         steps += 1
         if b % window == 0:

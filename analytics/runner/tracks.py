@@ -22,8 +22,10 @@ from tecfleet.analytics.runner.settled import s_settled
 from tecfleet.analytics.runner.state import Baseline, DeviceState, Point, UaLead
 
 __all__ = [
+    "FLAGS_HELD_FACES_FROM_VOLTAGE",
     "ambient_lead_usual",
     "daily_medians_before",
+    "flags_held",
     "rebase_ua",
     "track",
     "track_r25",
@@ -38,6 +40,11 @@ FLAGS_HELD_FACES_FROM_VOLTAGE = (
     "faces read from the module's voltage: changes are followed, but no flag is raised on "
     "this sensor set until detection there is validated"
 )
+
+
+def flags_held(probed: tuple[bool, bool]) -> str | None:
+    """Why a unit with these face probes (cold, hot) raises no flag; None where it may."""
+    return None if probed == (True, True) else FLAGS_HELD_FACES_FROM_VOLTAGE
 
 
 def track(

@@ -28,8 +28,8 @@ from tecfleet.analytics.runner.settings import (
 )
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
 from tecfleet.analytics.runner.tracks import (
-    FLAGS_HELD_FACES_FROM_VOLTAGE,
     ambient_lead_usual,
+    flags_held,
     rebase_ua,
     track_r25,
     track_ua,
@@ -136,8 +136,7 @@ def fit_window(
         _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
-        held = None if win.probed == (True, True) else FLAGS_HELD_FACES_FROM_VOLTAGE
-        _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held)
+        _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, flags_held(win.probed))
         rows.basis = f"module model at the operating point, {faces}"
         _performance(win, ele, th_fit, cov3, rows, cfg)
     finally:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -189,6 +191,40 @@ def test_stuck_window_scales_with_the_usual_interval() -> None:
         assert got.tolist() == [window_min * MIN, 60 * MIN]  # NaN: not known yet, the hour
 
 
+START_15 = 1_735_689_600.0
+
+
+def _store_pair_at_fifteen_minutes(
+    engine: sa.Engine,
+    prefix: str,
+    seed: int,
+    fault: sim.Fault,
+    days: float,
+    registered: bool = False,
+    **unit: Any,
+) -> None:
+    """Store two simulated units ``<prefix>-1`` (with ``fault``) and ``<prefix>-2`` reporting
+    every 15 minutes from ``START_15`` without power cuts; ``registered``: with their
+    modules' ratings registered first, as in the field."""
+    spec = sim.FleetSpec(
+        devices=tuple(
+            sim.DeviceSpec(f"{prefix}-{k}", cuts_per_30d=0.0, **unit) for k in (1, 2)
+        ),
+        start_s=START_15, interval_s=900.0, seed=seed, faults=(fault,),
+    )  # fmt: skip
+    if registered:
+        with engine.begin() as conn:
+            for d in spec.devices:
+                reg = d.registration()
+                conn.execute(
+                    db.devices.insert().values(
+                        device_id=d.device_id, module=reg["module"], cabinet=reg["cabinet"],
+                        readings=0, first_seen_ms=int(START_15 * 1000),
+                    )
+                )  # fmt: skip
+    db.store_batch(engine, _sim_readings(spec, days))
+
+
 def test_at_fifteen_minutes_a_stuck_cabinet_probe_is_found_and_a_steady_one_is_not(
     engine: sa.Engine,
 ) -> None:
@@ -196,17 +232,9 @@ def test_at_fifteen_minutes_a_stuck_cabinet_probe_is_found_and_a_steady_one_is_n
     # probe on day 6 (its truth). An hour holds four readings, too few to tell a frozen probe
     # from a steady 0.1 K one: the window is 24 intervals (6 h), and the healthy unit, whose
     # 0.1 K probe reads the same for hours at a time, is never flagged.
-    start = 1_735_689_600.0
-    at = start + 6 * 86_400.0 + 5 * 3600.0
-    spec = sim.FleetSpec(
-        devices=(
-            sim.DeviceSpec("slow-1", cuts_per_30d=0.0, control="proportional"),
-            sim.DeviceSpec("slow-2", cuts_per_30d=0.0, control="proportional"),
-        ),
-        start_s=start, interval_s=900.0, seed=207,
-        faults=(sim.Fault("sensor", "slow-1", at, channel="t_cabinet", mode="stuck"),),
-    )  # fmt: skip
-    db.store_batch(engine, _sim_readings(spec, 12.0))
+    at = START_15 + 6 * 86_400.0 + 5 * 3600.0
+    fault = sim.Fault("sensor", "slow-1", at, channel="t_cabinet", mode="stuck")
+    _store_pair_at_fifteen_minutes(engine, "slow", 207, fault, 12.0, control="proportional")
     alerts.evaluate(engine)
     (first_ms, issues), *_ = _opened(engine, "slow-1")
     assert "t_cabinet stuck" in issues
@@ -279,17 +307,9 @@ def test_at_fifteen_minutes_a_stuck_hot_face_probe_is_found_within_the_bench_tar
     # short window (90 min) shows it frozen: within the 3 h the alert bench allows a stuck
     # probe, plus one reporting interval (common practice, no source), where the still-room
     # test needs 6 h.
-    start = 1_735_689_600.0
-    at = start + 3 * 86_400.0 + 5 * 3600.0
-    spec = sim.FleetSpec(
-        devices=(
-            sim.DeviceSpec("hot-1", cuts_per_30d=0.0),
-            sim.DeviceSpec("hot-2", cuts_per_30d=0.0),
-        ),
-        start_s=start, interval_s=900.0, seed=204,
-        faults=(sim.Fault("sensor", "hot-1", at, channel="t_hot", mode="stuck"),),
-    )  # fmt: skip
-    db.store_batch(engine, _sim_readings(spec, 5.0))
+    at = START_15 + 3 * 86_400.0 + 5 * 3600.0
+    fault = sim.Fault("sensor", "hot-1", at, channel="t_hot", mode="stuck")
+    _store_pair_at_fifteen_minutes(engine, "hot", 204, fault, 5.0)
     alerts.evaluate(engine)
     (first_ms, issues), *_ = _opened(engine, "hot-1")
     assert "t_hot stuck" in issues
@@ -320,31 +340,12 @@ def test_at_fifteen_minutes_a_drifting_cabinet_probe_is_found_and_a_steady_one_i
     # commissioning fit over the first two days holds under 300 running samples at this
     # interval: the drift must still be found, within the 3 days the alert bench allows
     # (common practice, no source), and the steady unit never flagged.
-    start = 1_735_689_600.0
-    at = start + 3.5 * 86_400.0
-    spec = sim.FleetSpec(
-        devices=(
-            sim.DeviceSpec("dr-1", cuts_per_30d=0.0),
-            sim.DeviceSpec("dr-2", cuts_per_30d=0.0),
-        ),
-        start_s=start, interval_s=900.0, seed=206,
-        faults=(
-            sim.Fault(
-                "sensor", "dr-1", at, magnitude=3.0, ramp_s=3 * 86_400.0, channel="t_cabinet",
-                mode="drift",
-            ),
-        ),
+    at = START_15 + 3.5 * 86_400.0
+    fault = sim.Fault(
+        "sensor", "dr-1", at, magnitude=3.0, ramp_s=3 * 86_400.0, channel="t_cabinet",
+        mode="drift",
     )  # fmt: skip
-    with engine.begin() as conn:  # registered with their modules' ratings, as in the field
-        for d in spec.devices:
-            reg = d.registration()
-            conn.execute(
-                db.devices.insert().values(
-                    device_id=d.device_id, module=reg["module"], cabinet=reg["cabinet"],
-                    readings=0, first_seen_ms=int(start * 1000),
-                )
-            )  # fmt: skip
-    db.store_batch(engine, _sim_readings(spec, 9.0))
+    _store_pair_at_fifteen_minutes(engine, "dr", 206, fault, 9.0, registered=True)
     alerts.evaluate(engine)
     opened = _opened(engine, "dr-1")
     assert opened, "the drifting probe was not found"

@@ -40,7 +40,7 @@ from .._validate import FloatArray
 from ..errors import InsufficientDataError
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
 
-__all__ = ["PooledSeebeck", "pool_seebeck", "window_sums"]
+__all__ = ["PooledSeebeck", "fold_sums", "pool_seebeck", "window_sums"]
 
 #: The stacked row u = (I·f_r, ΔT·f_s, 1, [I > 0], V, f_s, z_R, z_S) whose cross-products a
 #: window keeps: the pooled design A (first four), the voltage, S's temperature factor (to put
@@ -86,6 +86,32 @@ def _full(sums: FloatArray, shift: float) -> FloatArray:
     t = np.eye(8)
     t[_X1, _F] = t[_Z1, _F] = shift
     return np.asarray(t @ m @ t.T, dtype=np.float64)
+
+
+def fold_sums(
+    block: Sequence[float] | None, sums: Sequence[float], weight: float, shift: float
+) -> list[float]:
+    """Add one window's sums to a block of windows, so that a block pools as its windows would.
+
+    ``pool_seebeck([fold_sums(...)], [1.0], [0.0], ...)`` solves the same equations as
+    ``pool_seebeck`` given the block's windows one by one: the sums are linear in the rows,
+    so the window's weight and ΔT shift are applied here, once.
+
+    Parameters
+    ----------
+    block : The block's folded sums so far, or None for a new block [-].
+    sums : One :func:`window_sums` result [-].
+    weight : The window's weight (see :func:`pool_seebeck`) [-].
+    shift : The constant taken off the window's ΔT before its fit [K].
+
+    Returns
+    -------
+    The block's folded sums, upper triangle row-major like :func:`window_sums` [-].
+    """
+    m = weight * _full(np.asarray(sums, dtype=np.float64), shift)
+    if block is not None:
+        m = m + _full(np.asarray(block, dtype=np.float64), 0.0)
+    return m[_IU].tolist()  # type: ignore[no-any-return]
 
 
 @dataclass(frozen=True)

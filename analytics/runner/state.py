@@ -187,8 +187,11 @@ class DeviceState(_Stored):
     params: ModuleParams | None = None
     #: Recent own S at 25 °C and its standard error, [V/K, V/K].
     s_hist: list[list[float]] | None = None
-    #: Recent windows' electrical normal-equation sums (see ``runner.seebeck``): [end of the
-    #: window (epoch ms UTC), weight, ΔT offset taken off [K], sums...].
+    #: Recent days' electrical normal-equation sums (see ``runner.seebeck``), one block per
+    #: UTC day: [end of its first and of its last window (epoch ms UTC), windows, folded sums].
+    s_days: list[list[float]] | None = None
+    #: The older layout, one entry per window: [end of the window (epoch ms UTC), weight, ΔT
+    #: offset taken off [K], sums...]; folded into ``s_days`` when next analysed.
     s_sums: list[list[float]] | None = None
     #: Recent internal loads of well-determined cabinet fits [W].
     q_hist: list[float] | None = None

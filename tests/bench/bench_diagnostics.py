@@ -563,6 +563,7 @@ def part_speed(n_dev: int, days: float) -> None:
         t0 = time.perf_counter()
         rep2 = runner.analyze(engine)
         print(f"re-run with nothing new: {time.perf_counter() - t0:.2f} s ({rep2.steps} steps)")
+        _state_sizes(engine)
         # The live case: one more hour arrives, then one analysis run, as the service does.
         hour = round(3600.0 / spec.interval_s)
         per_reading = []
@@ -576,6 +577,21 @@ def part_speed(n_dev: int, days: float) -> None:
               f"{spent:.2f} s; median over 6 hours {1e6 * float(np.median(per_reading)):.0f} "
               f"µs per reading (the ingest bench's figures are per reading too)")  # fmt: skip
         engine.dispose()
+
+
+def _state_sizes(engine: Any) -> None:
+    # What each analysis pass rewrites per device: its stored state, as JSON text.
+    with engine.connect() as c:
+        states = [r[0] for r in c.execute(sa.select(db.analysis_state.c.state))]
+    sizes = np.array([len(_json(s)) for s in states], dtype=float)
+    parts: dict[str, float] = {}
+    for s in states:
+        for k, v in s.items():
+            parts[k] = parts.get(k, 0.0) + len(_json(v)) / len(states)
+    top = sorted(parts.items(), key=lambda kv: -kv[1])[:4]
+    print(f"stored state per device: mean {sizes.mean() / 1e3:.1f} KB, max "
+          f"{sizes.max() / 1e3:.1f} KB; largest parts (mean KB): "
+          + ", ".join(f"{k} {v / 1e3:.1f}" for k, v in top))  # fmt: skip
 
 
 def _chunk_columns(spec: sim.FleetSpec, c: Any) -> list[list[Any]]:

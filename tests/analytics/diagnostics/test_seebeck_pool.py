@@ -161,3 +161,27 @@ def test_instruments_are_the_neighbours_in_the_same_state() -> None:
     on = np.array([True, False, True, False, True, False])
     z = dg.electrical.neighbour_means(x, on)
     np.testing.assert_allclose(z[:, 0], [2.0, 20.0, 2.0, 20.0, 2.0, 20.0])
+
+
+def test_windows_folded_into_day_blocks_pool_as_the_windows_do() -> None:
+    # The sums are linear in the rows, so a day's windows folded into one block (each with
+    # its weight and ΔT shift applied once) give the same pooled equations as the windows
+    # one by one: the same S, R and errors to rounding (the exact identity of the algebra).
+    w = _week("proportional", seed=7)
+    sums = _window_sums(w)
+    weights = [1.0 if k % 3 else 0.5 for k in range(len(sums))]
+    shifts = [0.05 * np.cos(k) for k in range(len(sums))]
+    by_window = sp.pool_seebeck(sums, weights, shifts, (R25 * 1.1, S25 * 0.95, 0.15))
+    blocks: list[list[float]] = []
+    for k, (s, wk, d) in enumerate(zip(sums, weights, shifts, strict=True)):
+        if k % 4 == 0:  # four six-hour windows a day
+            blocks.append(sp.fold_sums(None, s, wk, d))
+        else:
+            blocks[-1] = sp.fold_sums(blocks[-1], s, wk, d)
+    n = len(blocks)
+    by_day = sp.pool_seebeck(blocks, [1.0] * n, [0.0] * n, (R25 * 1.1, S25 * 0.95, 0.15))
+    assert n == 7
+    assert by_day.s25 == pytest.approx(by_window.s25, rel=1e-9)
+    assert by_day.r25 == pytest.approx(by_window.r25, rel=1e-9)
+    assert by_day.s25_se == pytest.approx(by_window.s25_se, rel=1e-6)
+    assert by_day.n == pytest.approx(by_window.n, rel=1e-12)

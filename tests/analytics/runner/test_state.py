@@ -17,8 +17,9 @@ from tecfleet.ingest.db import analysis as analysis_db
 #: (rated S and K, kept windows), a fan failure (hot side flagged) and twelve days (a growing
 #: UA baseline); stored since, two and a half days of a unit with the hourly ambient behind its
 #: design ambient, and the final state of a unit with a rest (power cut) kept and the offsets
-#: it gave, from the estimator on a simulated unit; and a day of a simulated unit with its
-#: windows' electrical sums kept for the pooled S.
+#: it gave, from the estimator on a simulated unit; a day of a simulated unit with its
+#: windows' electrical sums kept for the pooled S (the older layout, one entry a window); and
+#: 1.6 days of one with those sums folded into day blocks.
 STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
 
 

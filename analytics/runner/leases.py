@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from sqlalchemy.engine import Connection, Engine
+from threadpoolctl import threadpool_limits
 
 from tecfleet.analytics.alerts.engine import evaluate_device
 from tecfleet.analytics.alerts.policy import AlertPolicy, policy_for
@@ -89,35 +90,38 @@ class ShardedAnalysis:
                 conn, self.worker_id, wall_ms(), self.lease_ms, report.workers
             )
         step = self.devices_per_commit
-        for k in range(0, len(report.held), step):
-            if k:
-                # A long round still counts as alive, so the others keep to their share.
-                with self.engine.begin() as conn:
-                    leases_db.heartbeat(conn, self.worker_id, wall_ms(), self.lease_ms)
-            with self.engine.begin() as conn:
-                mine = leases_db.hold(
-                    conn, self.worker_id, report.held[k : k + step], wall_ms(), self.lease_ms
-                )
-                overrides = records.load_overrides(conn)
-                done = leases_db.progress(conn, mine)
-                devs = leases_db.devices_of(conn, mine)
-                # Only the states of devices with a complete step to analyse are read: a round
-                # comes far more often than a step completes.
-                step_ms = self.settings.step_s * 1000
-                due = [
-                    d.device_id
-                    for d in devs
-                    if d.device_id in done
-                    and d.last_reading_ms // step_ms * step_ms > done[d.device_id]
-                ]
-                states = analysis_db.read_states(conn, due)
-                for dev in devs:
-                    saved = None
-                    if dev.device_id in done:
-                        saved = (done[dev.device_id], states.get(dev.device_id, {}))
-                    self._analyse(conn, dev, saved, now_ms, overrides, report)
+        with threadpool_limits(self.settings.blas_threads, user_api="blas"):
+            for k in range(0, len(report.held), step):
+                if k:
+                    # A long round still counts as alive, so the others keep to their share.
+                    with self.engine.begin() as conn:
+                        leases_db.heartbeat(conn, self.worker_id, wall_ms(), self.lease_ms)
+                self._analyse_batch(report.held[k : k + step], now_ms, report)
         report.seconds = time.perf_counter() - started
         return report
+
+    def _analyse_batch(self, ids: list[str], now_ms: int | None, report: ShardReport) -> None:
+        """Hold ``ids`` again, then analyse those still this worker's in one transaction."""
+        with self.engine.begin() as conn:
+            mine = leases_db.hold(conn, self.worker_id, ids, wall_ms(), self.lease_ms)
+            overrides = records.load_overrides(conn)
+            done = leases_db.progress(conn, mine)
+            devs = leases_db.devices_of(conn, mine)
+            # Only the states of devices with a complete step to analyse are read: a round
+            # comes far more often than a step completes.
+            step_ms = self.settings.step_s * 1000
+            due = [
+                d.device_id
+                for d in devs
+                if d.device_id in done
+                and d.last_reading_ms // step_ms * step_ms > done[d.device_id]
+            ]
+            states = analysis_db.read_states(conn, due)
+            for dev in devs:
+                saved = None
+                if dev.device_id in done:
+                    saved = (done[dev.device_id], states.get(dev.device_id, {}))
+                self._analyse(conn, dev, saved, now_ms, overrides, report)
 
     def retire(self) -> None:
         """Give the leases back at once (a clean stop); the others take over next round."""

@@ -10,6 +10,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from sqlalchemy.engine import Engine
+from threadpoolctl import threadpool_limits
 
 from tecfleet.analytics.runner.device import analyze_device
 from tecfleet.analytics.runner.settings import AnalysisSettings
@@ -69,7 +70,7 @@ def analyze(
         results = []
         # One transaction for the run: a live run is an hour per device, and a commit each
         # (a disk flush under synchronous=FULL) would cost more than the analysis.
-        with engine.begin() as conn:
+        with engine.begin() as conn, threadpool_limits(cfg.blas_threads, user_api="blas"):
             for dev, saved in jobs:
                 results.append((dev.device_id, *analyze_device(conn, dev, saved, cfg)))
     for dev_id, n_steps, n_est in sorted(results):
@@ -122,5 +123,5 @@ def _device_job(
     engine = _WORKER_ENGINES.get(url)
     if engine is None:
         engine = _WORKER_ENGINES[url] = db.make_engine(url)
-    with engine.begin() as conn:
+    with engine.begin() as conn, threadpool_limits(cfg.blas_threads, user_api="blas"):
         return (dev.device_id, *analyze_device(conn, dev, saved, cfg))

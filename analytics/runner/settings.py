@@ -222,6 +222,13 @@ class AnalysisSettings:
     #: Fewest pending steps, summed over devices, worth starting worker processes for: a
     #: live run (a step or two per device) stays in this process.
     parallel_min_steps: int = 2000
+    #: Threads of the linear-algebra library (BLAS) in each analysing process [-]. The fits'
+    #: matrices are small (a window's rows by a handful of columns), where the library's
+    #: threads cost more than they give: a least-squares solve of 1440 x 8 took 2.4 ms with
+    #: its default threads and 0.22 ms with one on a loaded two-core machine, and a no-cold-probe
+    #: fleet's analysis ran about ten times faster (measured, tests/bench/bench_diagnostics.py
+    #: --part speed). Devices are analysed in parallel by ``workers`` instead.
+    blas_threads: int = 1
 
 
 def for_reporting(cfg: AnalysisSettings, interval_s: float, summarised: bool) -> AnalysisSettings:

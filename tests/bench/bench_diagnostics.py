@@ -545,9 +545,13 @@ def _season_one(seed: int, n_dev: int, days: float, sensors: str) -> int:
     return len({f.split()[0] for f in sea.flags})
 
 
-def part_speed(n_dev: int, days: float) -> None:
-    print(f"\n== Speed: {n_dev} devices x {days:g} days of one-minute data, from scratch ==")
+def part_speed(n_dev: int, days: float, sensors: str = "full") -> None:
+    print(f"\n== Speed: {n_dev} devices x {days:g} days of one-minute data ({sensors} sensor "
+          "set), from scratch ==")  # fmt: skip
     spec = sim.random_fleet(n_dev, seed=5, start_s=START_S, days=days + 1.0)
+    spec = dataclasses.replace(
+        spec, devices=tuple(dataclasses.replace(d, sensor_set=sensors) for d in spec.devices)
+    )
     simulator = sim.Simulator(spec)
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "speed.db"
@@ -693,7 +697,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--season-seeds", default="1,2,3,4,5,6,7,8,9")
     ap.add_argument(
         "--sensors", default="full", choices=(*SENSOR_SETS, "all"),
-        help="face probes of every unit in the accuracy, detect and season parts: both "
+        help="face probes of every unit in the accuracy, detect, season and speed parts: both "
         "(full), none on the cold side (no_cold), none on either face (no_faces); all: "
         "each set in turn",
     )  # fmt: skip
@@ -734,8 +738,8 @@ def main(argv: list[str] | None = None) -> int:
         if "season" in parts:
             seeds = [int(x) for x in args.season_seeds.split(",")]
             part_season(seeds, 4, args.season_days, sensors)
-    if "speed" in parts:
-        part_speed(args.speed_devices, args.speed_days)
+        if "speed" in parts:
+            part_speed(args.speed_devices, args.speed_days, sensors)
     if "live-pg" in parts:
         part_live_postgres(args.speed_devices, 3.0)
     return 0

@@ -19,8 +19,8 @@ from tecfleet.ingest.db import analysis as analysis_db
 #: design ambient, and the final state of a unit with a rest (power cut) kept and the offsets
 #: it gave, from the estimator on a simulated unit; and a day of a simulated unit with its
 #: windows' electrical sums kept for the pooled S; and a unit without a cold-face probe whose
-#: R25 read from the module's voltage is followed (the track's source kept), its windows from
-#: the runner on a simulated worn unit.
+#: R25 read from the module's voltage is followed (the track's source kept): the runner's
+#: final state of a simulated worn unit, its served R25 windows then followed by the tracker.
 STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
 
 

@@ -74,6 +74,14 @@ class AnalysisSettings:
     #: the operating point (ΔT per ampere) since the baseline, for a window to be followed:
     #: a quarter of ``r25_flag_pct``.
     r25_lever_shift_pct: float = 1.0
+    #: Where R25 is read from the module's voltage (no cold-face probe): the span of recent
+    #: windows whose median is R25's change [s]. Two days: wear takes weeks, while the cold
+    #: face's balance can read a day of one unit's windows a few per cent off with a tight
+    #: stated error (seen on simulated fleets; common practice, no source).
+    r25_voltage_recent_s: float = 2 * 86_400.0
+    #: Where R25 is read from the module's voltage: windows followed with the change at or
+    #: beyond ``r25_flag_pct`` before the flag is raised [-] (common practice, no source).
+    r25_voltage_persist: int = 3
     #: Change of UA against its baseline that raises its flag [%] (common practice, no
     #: source).
     ua_flag_pct: float = 35.0

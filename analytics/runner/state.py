@@ -177,6 +177,9 @@ class DeviceState(_Stored):
     r25_raw: list[list[Any]] | None = None
     #: Levers (ΣI·ΔT/ΣI²) of the windows in R25's baseline.
     r25_levers: list[float] | None = None
+    #: What R25's track rests on where not on probed faces: "voltage" (R25 read from the
+    #: module's voltage, the rated S held); None for the fit to probed faces.
+    r25_from: str | None = None
     #: The trend K [W/K], at which UA's and the hot side's changes are judged.
     k_trend: float | None = None
     #: Whether the trend K is the unit's own settled one ("own") or the rated one ("prior").

@@ -29,6 +29,7 @@ __all__ = [
     "rebase_ua",
     "track",
     "track_r25",
+    "track_r25_from_voltage",
     "track_ua",
 ]
 
@@ -224,6 +225,11 @@ def track_r25(
     # changes. A window is followed when its R25 at the trend S is pinned by its readings, and once
     # there is a baseline, when its lever is near enough the baseline's that S's uncertainty cannot
     # move R25 by more than ``r25_lever_shift_pct`` (a hot spell changes ΔT per ampere).
+    if state.r25_from is not None:
+        # The track rests on R25 read from the module's voltage: the probed faces judge R25
+        # at another S, so their track starts anew.
+        state.restart_track("r25")
+        state.r25_from = None
     settled = s_settled(state, cfg)
     if settled is not None:
         source, s_ref, s_sd = "own", settled[0], settled[1]
@@ -276,6 +282,40 @@ def _follow_r25(
     else:
         levers.append(r_lever)
     track(rows, state, "r25", "module.resistance_25c", b, r, cfg.r25_flag_pct, 0.003, cfg)
+
+
+def track_r25_from_voltage(
+    rows: EstimateRows,
+    state: DeviceState,
+    b: int,
+    r25: float,
+    r25_se: float,
+    reliable: bool,
+    cfg: AnalysisSettings,
+) -> None:
+    """Follow one window's R25 read from the module's voltage where the cold face has no
+    probe (:func:`diagnostics.reconstruct_faces`), with its stated standard error [ohm] and
+    whether it was served as reliable.
+
+    The rated S is held there, the same in every window, so R25's changes are judged at it
+    (no trend S to settle). Only windows served as reliable whose stated error is within
+    ``r25_max_rel_se`` of R25 are followed: an unreliable window neither joins the baseline
+    nor moves the change. The change is the median of the windows of the last
+    ``r25_voltage_recent_s``; a window counts towards the flag only where it shows the
+    change itself within its stated error (``newest_sd``), and the flag waits for
+    ``r25_voltage_persist`` such windows."""
+    if state.r25_from != "voltage":
+        # A track made at the trend S from probed faces rests on another S: start anew.
+        state.restart_track("r25")
+        state.s_trend = state.s_trend_source = None
+        state.r25_raw = state.r25_levers = None
+        state.r25_from = "voltage"
+    if not (reliable and r25 > 0.0 and r25_se <= cfg.r25_max_rel_se * r25):
+        return
+    track(
+        rows, state, "r25", "module.resistance_25c", b, r25, cfg.r25_flag_pct, 0.003, cfg,
+        persist=cfg.r25_voltage_persist, newest_sd=r25_se, recent_s=cfg.r25_voltage_recent_s,
+    )  # fmt: skip
 
 
 def ambient_lead_usual(state: DeviceState, b: int, rise_amb: float, cfg: AnalysisSettings) -> bool:

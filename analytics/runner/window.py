@@ -32,6 +32,7 @@ from tecfleet.analytics.runner.tracks import (
     flags_held,
     rebase_ua,
     track_r25,
+    track_r25_from_voltage,
     track_ua,
 )
 
@@ -300,6 +301,8 @@ def _electrical(
     s_own, se_own = el.s25_offset_free, el.s25_offset_free_se
     seebeck.serve_seebeck(rows, state, b, el, prior, float(t[-1] - t[0]), f_s, cfg)
     if held is not None:
+        # R25 read from the module's voltage: followed where it was served as reliable.
+        track_r25_from_voltage(rows, state, b, el.r25, se_r, el.r_reliable, cfg)
         return _Electrical(el, on, tm_on, f_r, f_s, s_own, se_own)
     if floating:
         s_steps, _ = dg.harman_steps(t, i, v, tc, th, usable, options=diagnostics_options(cfg))

@@ -18,8 +18,11 @@ from tecfleet.ingest.db import analysis as analysis_db
 #: UA baseline); stored since, two and a half days of a unit with the hourly ambient behind its
 #: design ambient, and the final state of a unit with a rest (power cut) kept and the offsets
 #: it gave, from the estimator on a simulated unit; a day of a simulated unit with its
-#: windows' electrical sums kept for the pooled S (the older layout, one entry a window); and
-#: 1.6 days of one with those sums folded into day blocks.
+#: windows' electrical sums kept for the pooled S (the older layout, one entry a window);
+#: 1.6 days of one with those sums folded into day blocks; and a unit without a cold-face
+#: probe whose R25 read from the module's voltage is followed (the track's source kept): the
+#: runner's final state of a simulated worn unit, its served R25 windows then followed by the
+#: tracker.
 STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
 
 

@@ -54,6 +54,21 @@ def fill(
     return ids
 
 
+def register(engine: Engine, spec: sim.FleetSpec, first_seen_ms: int | None) -> None:
+    """Register ``spec``'s units with their modules' and cabinets' ratings, as in the field
+    (no site, no readings yet), first seen at ``first_seen_ms`` (epoch ms UTC)."""
+    with engine.begin() as conn:
+        conn.execute(
+            db.devices.insert(),
+            [
+                {"device_id": d.device_id, "module": d.registration()["module"],
+                 "cabinet": d.registration()["cabinet"], "readings": 0,
+                 "first_seen_ms": first_seen_ms}
+                for d in spec.devices
+            ],
+        )  # fmt: skip
+
+
 def _readings(spec: Any, chunk: Any) -> list[db.Reading]:
     m = chunk.measured
     j, i = np.nonzero(chunk.present)

@@ -53,6 +53,10 @@ from tecfleet.ingest import db
 from tecfleet.ingest.db import alert_records
 from tecfleet.ingest.db.tables import SUMMARY_COLUMNS
 
+sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+
+from tests.fleet_fixture import register
+
 START_S = 1_735_689_600.0  # 2025-01-01T00:00Z, a day boundary
 DAY_S = 86_400.0
 HOUR_S = 3_600.0
@@ -223,18 +227,6 @@ def _readings(chunk: sim.Chunk) -> list[db.Reading]:
     return out
 
 
-def _register(engine: sa.Engine, spec: sim.FleetSpec) -> None:
-    with engine.begin() as conn:
-        for d in spec.devices:
-            reg = d.registration()
-            conn.execute(
-                db.devices.insert().values(
-                    device_id=d.device_id, module=reg["module"], cabinet=reg["cabinet"],
-                    site=None, readings=0, first_seen_ms=db.now_ms(),
-                )
-            )  # fmt: skip
-
-
 #: Per device, per excursion: (largest distance beyond the limit [K], time it first exceeded
 #: PROBE_TOLERANCE_K [s] or None, time spent beyond PROBE_TOLERANCE_K [s]).
 Beyond = dict[str, list[tuple[float, float | None, float]]]
@@ -260,7 +252,7 @@ def run_fleet(
     """
     engine = db.make_engine(f"sqlite:///{db_path}")
     db.migrate(engine)
-    _register(engine, spec)
+    register(engine, spec, db.now_ms())
     simulator = sim.Simulator(spec)
     per_step = round(step_hours * HOUR_S / spec.interval_s)
     total = round(days * DAY_S / spec.interval_s)

@@ -20,6 +20,7 @@ from tecfleet.analytics.alerts.rules.sensor_fault import stuck_window_ms
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
 from tests.analytics.alerts.cabinet import MIN, T0, cabinet_series, kinds
+from tests.fleet_fixture import register
 
 
 def test_stuck_cabinet_probe_is_a_sensor_fault(engine: sa.Engine) -> None:
@@ -213,15 +214,7 @@ def _store_pair_at_fifteen_minutes(
         start_s=START_15, interval_s=900.0, seed=seed, faults=(fault,),
     )  # fmt: skip
     if registered:
-        with engine.begin() as conn:
-            for d in spec.devices:
-                reg = d.registration()
-                conn.execute(
-                    db.devices.insert().values(
-                        device_id=d.device_id, module=reg["module"], cabinet=reg["cabinet"],
-                        readings=0, first_seen_ms=int(START_15 * 1000),
-                    )
-                )  # fmt: skip
+        register(engine, spec, int(START_15 * 1000))
     db.store_batch(engine, _sim_readings(spec, days))
 
 

@@ -424,7 +424,10 @@ def reconstruct_delta_t(
     dt = (v - ohmic) / s_t
     if not floating:
         dt = np.where(on, dt, np.nan)
-    r_part = np.where(on, i * r25_se * f_r / s_t, 0.0)
+    # R25 without a finite error (a flat balance) leaves the driven ΔT unknown (inf); the
+    # off samples carry none of R's error, whatever it is.
+    with np.errstate(invalid="ignore"):
+        r_part = np.where(on, i * r25_se * f_r / s_t, 0.0)
     tm_part = (np.where(on, i * r25 * alpha, 0.0) + dt * s25 * beta) / s_t * t_mean_sd_k
     se = np.sqrt(
         r_part**2 + (dt * s25_rel_sd) ** 2 + (options.voltage_offset / s_t) ** 2 + tm_part**2

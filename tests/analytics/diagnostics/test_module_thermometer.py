@@ -61,6 +61,20 @@ def test_hand_worked_voltage_errors_follow_first_order_propagation() -> None:
     assert by_hand == pytest.approx(1.498, abs=1e-3)
 
 
+def test_an_r25_without_a_finite_error_leaves_driven_delta_t_unknown_and_off_ones_kept() -> None:
+    # ΔT = (V - I·R)/S (Goldsmid 2010, ch. 2): an unbounded error of R makes the driven ΔT's
+    # error unbounded, while the floating sample's V_oc/S carries none of R (Harman 1958),
+    # so its error stays the voltage offset's 0.01 V / 0.0508 V/K; quietly, with no warning.
+    with np.errstate(all="raise"):
+        dt, se = mt.reconstruct_delta_t(
+            np.array([I_HAND, 0.0]), np.array([V_ON_HAND, V_OC_HAND]), np.full(2, T_25C_K),
+            True, R_HAND, math.inf, S_HAND, 0.0,
+        )  # fmt: skip
+    assert dt == pytest.approx([DT_HAND, DT_HAND], abs=1e-9)
+    assert math.isinf(se[0])
+    assert se[1] == pytest.approx(0.01 / 0.0508, rel=1e-9)
+
+
 def test_zero_volt_driver_off_samples_carry_no_delta_t() -> None:
     # A driver that shorts the module while off shows 0 V whatever ΔT (Harman's open circuit
     # is missing): ΔT there is unknown, not zero.

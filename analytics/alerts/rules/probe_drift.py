@@ -15,6 +15,7 @@ from tecfleet.analytics.alerts.constants import MS_HOUR, T0
 from tecfleet.analytics.alerts.observations import BoolArray, FloatArray, IntArray
 from tecfleet.analytics.alerts.policy import AlertPolicy
 from tecfleet.analytics.alerts.scope import DeviceScope, load_readings
+from tecfleet.analytics.diagnostics.intervals import usual_interval
 from tecfleet.ingest import db
 
 __all__ = [
@@ -175,12 +176,12 @@ def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
         state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
         return None
     base = load_readings(conn, dev.device_id, int(first_ms) - 1, end_ms)
-    spacing = np.diff(base["ts_ms"].to_numpy(np.float64))
     needed = running_samples_needed(
         policy.drift_baseline_min_samples,
-        float(np.median(spacing)) if spacing.size else 60_000.0,
+        1000.0 * usual_interval(base["ts_ms"].to_numpy(np.float64) / 1000.0),
         policy.drift_min_samples_floor,
     )
+    running = base["current"].to_numpy(np.float64) > policy.drift_min_current_a
     qc = cold_side_heat_balance(
         base["current"].to_numpy(np.float64), base["t_cold"].to_numpy(np.float64),
         base["t_hot"].to_numpy(np.float64), base["voltage"].to_numpy(np.float64), *consts,
@@ -189,13 +190,12 @@ def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
         base["t_cabinet"].to_numpy(np.float64),
         base["t_cold"].to_numpy(np.float64),
         qc,
-        base["current"].to_numpy(np.float64) > policy.drift_min_current_a,
+        running,
         int(needed),
     )
     if fit is None:
         state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
         return None
-    running = base["current"].to_numpy(np.float64) > policy.drift_min_current_a
     across = (base["t_hot"] - base["t_cold"]).to_numpy(np.float64)[running]
     state["probe_baseline"] = {
         "from_ms": int(first_ms), "to_ms": end_ms, "offset_k": fit[0], "r_cold": fit[1],

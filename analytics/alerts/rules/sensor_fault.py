@@ -126,7 +126,13 @@ def stuck_window_ms(interval: FloatArray, policy: AlertPolicy) -> FloatArray:
     ``interval`` [ms] (``usual_interval_ms``) where that is longer, so that a slow-reporting
     unit still shows ``stuck_min_samples`` equal readings. At one-minute reporting the
     hour is the longer."""
-    scaled = np.nan_to_num(policy.stuck_window_intervals * interval, nan=0.0)
+    return _hour_or_intervals(policy.stuck_window_intervals, interval, policy)
+
+
+def _hour_or_intervals(count: float, interval: FloatArray, policy: AlertPolicy) -> FloatArray:
+    # The longer of ``stuck_window_s`` and ``count`` usual intervals, per reading [ms] (the
+    # hour where the interval is not known yet).
+    scaled = np.nan_to_num(count * interval, nan=0.0)
     return np.asarray(np.maximum(policy.stuck_window_s * 1000.0, scaled), np.float64)
 
 
@@ -154,8 +160,7 @@ def driven_window_ms(interval: FloatArray, policy: AlertPolicy) -> FloatArray:
     steps, per reading [ms]: ``stuck_window_s``, or ``stuck_driven_intervals`` of the unit's usual
     interval ``interval`` [ms] where that is longer. At one-minute reporting the hour, as
     :func:`stuck_window_ms`."""
-    scaled = np.nan_to_num(policy.stuck_driven_intervals * interval, nan=0.0)
-    return np.asarray(np.maximum(policy.stuck_window_s * 1000.0, scaled), np.float64)
+    return _hour_or_intervals(policy.stuck_driven_intervals, interval, policy)
 
 
 def _frozen_spans(

@@ -225,11 +225,7 @@ def track_r25(
     # changes. A window is followed when its R25 at the trend S is pinned by its readings, and once
     # there is a baseline, when its lever is near enough the baseline's that S's uncertainty cannot
     # move R25 by more than ``r25_lever_shift_pct`` (a hot spell changes ΔT per ampere).
-    if state.r25_from is not None:
-        # The track rests on R25 read from the module's voltage: the probed faces judge R25
-        # at another S, so their track starts anew.
-        state.restart_track("r25")
-        state.r25_from = None
+    _r25_source(state, None)
     settled = s_settled(state, cfg)
     if settled is not None:
         source, s_ref, s_sd = "own", settled[0], settled[1]
@@ -304,18 +300,24 @@ def track_r25_from_voltage(
     ``r25_voltage_recent_s``; a window counts towards the flag only where it shows the
     change itself within its stated error (``newest_sd``), and the flag waits for
     ``r25_voltage_persist`` such windows."""
-    if state.r25_from != "voltage":
-        # A track made at the trend S from probed faces rests on another S: start anew.
-        state.restart_track("r25")
-        state.s_trend = state.s_trend_source = None
-        state.r25_raw = state.r25_levers = None
-        state.r25_from = "voltage"
+    _r25_source(state, "voltage")
     if not (reliable and r25 > 0.0 and r25_se <= cfg.r25_max_rel_se * r25):
         return
     track(
         rows, state, "r25", "module.resistance_25c", b, r25, cfg.r25_flag_pct, 0.003, cfg,
         persist=cfg.r25_voltage_persist, newest_sd=r25_se, recent_s=cfg.r25_voltage_recent_s,
     )  # fmt: skip
+
+
+def _r25_source(state: DeviceState, source: str | None) -> None:
+    # R25's track rests on one source: probed faces (None), judged at the trend S, or the
+    # module's voltage ("voltage"), at the rated S. Changes made at one S do not carry to
+    # the other, so a new source starts the track, and what the trend S kept, anew.
+    if state.r25_from != source:
+        state.restart_track("r25")
+        state.s_trend = state.s_trend_source = None
+        state.r25_raw = state.r25_levers = None
+        state.r25_from = source
 
 
 def ambient_lead_usual(state: DeviceState, b: int, rise_amb: float, cfg: AnalysisSettings) -> bool:

@@ -24,7 +24,7 @@ two unknowns at every sample: R and S are not separable (:class:`NotSeparableErr
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TypeAlias
 
 import numpy as np
@@ -593,6 +593,13 @@ def _faces_checked(
     return dt, dt_se, tm, tm_sd
 
 
+def _read_at(step: StepResistance, r25_read: tuple[float, float] | None) -> StepResistance:
+    # The resistance ΔT is read at: the readings' own, or a steadier one given.
+    if r25_read is None:
+        return step
+    return replace(step, r25=r25_read[0], r25_se=r25_read[1])
+
+
 def reconstruct_faces(
     time_s: FloatArray,
     current: FloatArray,
@@ -605,6 +612,7 @@ def reconstruct_faces(
     floating: bool,
     s25: float,
     r25_guess: float | None = None,
+    r25_read: tuple[float, float] | None = None,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
     beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
@@ -638,6 +646,9 @@ def reconstruct_faces(
     r25_guess : Registered ratings' R25, where known: with the hot face probed, R25 then
         comes from the cold face's balance (:func:`balance_resistance`) where the steps give
         none [ohm].
+    r25_read : R25 and its standard error to read ΔT at, where a steadier one than these
+        readings' own is known (the unit's recent windows); ``step`` stays these readings'
+        own [ohm, ohm].
     alpha, beta : Temperature coefficients of R and S [1/K].
     options : as :func:`step_resistance` and :func:`balance_resistance`, and
         ``seebeck_unit_rel_sd`` [-], ``probe_offset_k`` [K].
@@ -670,7 +681,7 @@ def reconstruct_faces(
         )
         how = f"R25 from {step.n_steps} switch-off steps"
         dt, dt_se, tm, tm_sd = _faces_checked(
-            i, v, tcab, ta, th, step, floating, s25, alpha, beta, options
+            i, v, tcab, ta, th, _read_at(step, r25_read), floating, s25, alpha, beta, options
         )
     except InsufficientDataError:
         # Faces that follow the current within a sample: no step gives R, but with the hot
@@ -684,8 +695,10 @@ def reconstruct_faces(
         )  # fmt: skip
         how = f"R25 from the cold face's steady heat balance over {step.n_steps} samples"
         dt, dt_se, tm, tm_sd = _faces_checked(
-            i, v, tcab, ta, th, step, floating, s25, alpha, beta, options
+            i, v, tcab, ta, th, _read_at(step, r25_read), floating, s25, alpha, beta, options
         )
+    if r25_read is not None:
+        how = f"R25 {r25_read[0]:.4g} ohm from the unit's recent windows"
     rs = f"{how}, S from the registered ratings"
     if th is None:
         tc, tc_se = np.full_like(dt, np.nan), np.full_like(dt, np.nan)

@@ -128,13 +128,19 @@ def load(conn: Connection, device_id: str, start_ms: int, end_ms: int) -> Readin
 
 
 def complete_faces(
-    data: Readings, sl: slice, prior: physics.ModuleParameters | None, cfg: AnalysisSettings
+    data: Readings,
+    sl: slice,
+    prior: physics.ModuleParameters | None,
+    cfg: AnalysisSettings,
+    r25_read: tuple[float, float] | None = None,
 ) -> None:
     """Where the cold-side probe (or both face probes) reported nothing in this load, read
     the faces of the readings in ``sl`` from the module's voltage
     (:func:`diagnostics.reconstruct_faces`, from those readings alone): the cold face filled
     in where the hot one is probed, the reconstruction kept in ``data.faces``, or the reason
-    there is none in ``data.faces_missing``. With both probes nothing is touched."""
+    there is none in ``data.faces_missing``. With both probes nothing is touched.
+    ``r25_read``: the R25 and its error to read the faces at [ohm, ohm] (see
+    :func:`tracks.faces_r25`), None for the readings' own."""
     data.faces, data.faces_missing = None, None
     if data.cold_probe:
         return
@@ -149,8 +155,8 @@ def complete_faces(
     try:
         data.faces = dg.reconstruct_faces(
             data.t[sl], i, v, data.tcab[sl], data.ta[sl], hot, ok, floating=floating,
-            s25=prior.seebeck, r25_guess=prior.resistance, alpha=cfg.alpha, beta=cfg.beta,
-            options=opts,
+            s25=prior.seebeck, r25_guess=prior.resistance, r25_read=r25_read,
+            alpha=cfg.alpha, beta=cfg.beta, options=opts,
         )  # fmt: skip
     except PhysicsError as exc:
         data.faces_missing = getattr(exc, "reason", str(exc))

@@ -18,7 +18,6 @@ from tecfleet.analytics.runner.settings import (
     for_reporting,
 )
 from tecfleet.analytics.runner.state import DeviceState
-from tecfleet.analytics.runner.tracks import flags_held
 from tecfleet.analytics.runner.window import fit_window
 from tecfleet.ingest import db
 from tecfleet.ingest.db import analysis as analysis_db
@@ -78,7 +77,6 @@ def analyze_device(
     cabinet = dev.cabinet if isinstance(dev.cabinet, dict) else {}
     steps = 0
     hot: dict[int, dg.Estimate | None] = {}
-    held = flags_held(data.probed)
     for b in range(done + step, end + 1, step):
         steps += 1
         if b % window == 0:
@@ -92,6 +90,6 @@ def analyze_device(
             # baseline, in which constant offsets cancel, and an offset found mid-season
             # must not step them.
             hot = hot_side(data, b, min(b // window * window + window - step, end), state, cfg)
-        hourly(b, hot.get(b), rows, state, cfg, held)
+        hourly(b, hot.get(b), rows, state, cfg, data.probed)
     analysis_db.write_results(conn, dev.device_id, rows.rows, end, state.to_json())
     return steps, len(rows.rows)

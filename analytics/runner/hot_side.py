@@ -15,7 +15,7 @@ from tecfleet.analytics.runner.data import Readings, faces_basis, fill_cold_face
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState
-from tecfleet.analytics.runner.tracks import track
+from tecfleet.analytics.runner.tracks import faces_judged, faces_r25, track
 
 __all__ = ["hot_side", "hourly", "stretch_steps"]
 
@@ -37,7 +37,8 @@ def hot_side(
     interval = dg.usual_interval(data.t[data.slice(first - 2 * step, last)])
     span = stretch_steps(interval, cfg, data.summarised)
     w = data.slice(first - span * step, last)
-    fill_cold_face(data, w, params.r25, params.s25, cfg)
+    pooled = faces_r25(state, last, cfg)
+    fill_cold_face(data, w, params.r25 if pooled is None else pooled[0], params.s25, cfg)
     ts = data.ts[w]
     tm = 0.5 * (data.tc[w] + data.th[w])
     s = params.s25 * (1.0 + cfg.beta * (tm - T_25C_K))
@@ -112,13 +113,17 @@ def hourly(
     rows: EstimateRows,
     state: DeviceState,
     cfg: AnalysisSettings,
-    held: str | None = None,
+    probed: tuple[bool, bool] = (True, True),
 ) -> None:
-    """Store the hour's hot-side resistance ending at ``b`` and follow its changes
-    (``held``: the reason no flag is raised, see :func:`tracks.track`)."""
+    """Store the hour's hot-side resistance ending at ``b`` and follow its changes, where
+    the unit's face probes (cold, hot) allow (see :func:`tracks.faces_judged`)."""
     if est is None:
         return
     rows.est("hot_side.resistance_k_per_w", b, est)
+    p = state.params
+    follow, held = faces_judged(probed, p is not None and bool(p.r25_reliable))
+    if not follow:
+        return
     rows.basis = est.basis
     try:
         _follow(b, est, rows, state, cfg, held)

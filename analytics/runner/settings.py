@@ -82,6 +82,16 @@ class AnalysisSettings:
     #: Where R25 is read from the module's voltage: windows followed with the change at or
     #: beyond ``r25_flag_pct`` before the flag is raised [-] (common practice, no source).
     r25_voltage_persist: int = 3
+    #: Where R25 is read from the module's voltage: the faces are read at the median R25 of
+    #: the followed windows of this last span [s], not at the window's own, once
+    #: ``faces_r25_min_n`` windows are there. One window's steps scatter by 1-2 % (simulated
+    #: fleets), which moves ΔT by I·R/S per unit of R (Goldsmid 2010, ch. 2: 1.2 K per 1 % at
+    #: 3 A, 2 ohm and 50 mV/K, about twice that with Tm = Th - ΔT/2 solved with ΔT) and UA by
+    #: tens of per cent; wear moves R25 by a few per cent a week at most (common practice,
+    #: no source).
+    faces_r25_span_s: float = 2 * 86_400.0
+    #: Fewest followed windows behind that median [-].
+    faces_r25_min_n: int = 4
     #: Change of UA against its baseline that raises its flag [%] (common practice, no
     #: source).
     ua_flag_pct: float = 35.0

@@ -144,6 +144,8 @@ class ModuleParams(_Stored):
     i_seen: float | None = None
     #: Whether the samples follow the sinks (False where they store heat faster).
     faces_followed: bool | None = None
+    #: Whether the newest window's R25 was served as reliable.
+    r25_reliable: bool | None = None
 
 
 def _baselines(obj: dict[str, Any]) -> dict[str, Baseline]:

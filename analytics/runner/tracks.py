@@ -25,7 +25,8 @@ __all__ = [
     "FLAGS_HELD_FACES_FROM_VOLTAGE",
     "ambient_lead_usual",
     "daily_medians_before",
-    "flags_held",
+    "faces_judged",
+    "faces_r25",
     "rebase_ua",
     "track",
     "track_r25",
@@ -34,18 +35,31 @@ __all__ = [
 ]
 
 
-#: Why no flag is raised on a unit whose faces are read from the module's voltage: the
-#: estimates there are served, but detection on reduced sensor sets has not yet been shown
-#: to keep a healthy unit unflagged over a season.
+#: Why no flag is raised on a unit whose hot face, or both faces, are read from the
+#: module's voltage: the estimates there are served, but detection on these sensor sets has
+#: not yet been shown to keep a healthy unit unflagged over a season.
 FLAGS_HELD_FACES_FROM_VOLTAGE = (
     "faces read from the module's voltage: changes are followed, but no flag is raised on "
     "this sensor set until detection there is validated"
 )
 
 
-def flags_held(probed: tuple[bool, bool]) -> str | None:
-    """Why a unit with these face probes (cold, hot) raises no flag; None where it may."""
-    return None if probed == (True, True) else FLAGS_HELD_FACES_FROM_VOLTAGE
+def faces_judged(probed: tuple[bool, bool], r25_reliable: bool | None) -> tuple[bool, str | None]:
+    """Whether the thermal changes of a unit with these face probes (cold, hot) are followed,
+    and why no flag is raised (None where one may be), given whether the R25 its cold face
+    was read with was served as reliable.
+
+    Where only the cold face is read from the voltage, ΔT = (V - I·R)/S moves by I·R/S per
+    unit relative error of R (Goldsmid 2010, ch. 2): at 3 A through 2 ohm and 50 mV/K, 1.2 K
+    per 1 %, about twice that with Tm = Th - ΔT/2 solved with ΔT. A window's R25 that the
+    readings could not pin down (a module that never rests) wanders by several per cent
+    from window to window, so those windows' UA and hot-side figures are not followed; the
+    others are, and flag as on the full set."""
+    if probed == (True, True):
+        return True, None
+    if probed == (False, True):
+        return bool(r25_reliable), None
+    return True, FLAGS_HELD_FACES_FROM_VOLTAGE
 
 
 def track(
@@ -307,6 +321,25 @@ def track_r25_from_voltage(
         rows, state, "r25", "module.resistance_25c", b, r25, cfg.r25_flag_pct, 0.003, cfg,
         persist=cfg.r25_voltage_persist, newest_sd=r25_se, recent_s=cfg.r25_voltage_recent_s,
     )  # fmt: skip
+
+
+def faces_r25(state: DeviceState, b: int, cfg: AnalysisSettings) -> tuple[float, float] | None:
+    """The R25 to read a window's faces at where R25 is read from the module's voltage, and
+    its standard error [ohm, ohm]: the median of the windows followed over the last
+    ``faces_r25_span_s`` before ``b``, with their spread (robust sd) as its error; None
+    where fewer than ``faces_r25_min_n`` are there or R25 rests on probed faces."""
+    if state.r25_from != "voltage":
+        return None
+    since = b - int(cfg.faces_r25_span_s * 1000)
+    recent = [p[1] for p in state.series_by_name().get("r25", []) if since <= p[0] < b]
+    if len(recent) < cfg.faces_r25_min_n:
+        return None
+    values = np.asarray(recent, dtype=np.float64)
+    center = float(np.median(values))
+    # Normal-consistent sd from the MAD, no less than the 0.3 % R25's track takes as its
+    # least spread.
+    spread = 1.4826 * float(np.median(np.abs(values - center)))
+    return center, max(spread, 0.003 * center)
 
 
 def _r25_source(state: DeviceState, source: str | None) -> None:

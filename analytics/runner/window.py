@@ -29,7 +29,8 @@ from tecfleet.analytics.runner.settings import (
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
 from tecfleet.analytics.runner.tracks import (
     ambient_lead_usual,
-    flags_held,
+    faces_judged,
+    faces_r25,
     rebase_ua,
     track_r25,
     track_r25_from_voltage,
@@ -113,7 +114,7 @@ def fit_window(
     data, cfg_el, cfg = offsets.corrected(data, state), cfg, offsets.settings_for(state, cfg)
     # Where a face probe is missing, the faces of the thermal window from its own readings.
     wt = data.slice(b - max(cfg.thermal_window_s, cfg.window_s) * 1000, b)
-    complete_faces(data, wt, prior, cfg)
+    complete_faces(data, wt, prior, cfg, faces_r25(state, b, cfg))
     win = _window(data, b, cfg)
     if win is None:
         return
@@ -137,7 +138,10 @@ def fit_window(
         _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
-        _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, flags_held(win.probed))
+        follow, held = faces_judged(win.probed, ele.el.r_reliable)
+        if follow:
+            reduced = win.probed != (True, True)
+            _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held, reduced)
         rows.basis = f"module model at the operating point, {faces}"
         _performance(win, ele, th_fit, cov3, rows, cfg)
     finally:
@@ -376,6 +380,7 @@ def _thermal(
         state.params = ModuleParams(k=k0, s25=el.s25, r25=el.r25)
     else:
         state.params.s25, state.params.r25 = el.s25, el.r25
+    state.params.r25_reliable = el.r_reliable
     state.params.cov_rs = el.cov.tolist()
     k_settled = settled.k_settled(state, cfg)
     try:
@@ -560,7 +565,12 @@ def _follow_ua(
     state: DeviceState,
     cfg: AnalysisSettings,
     held: str | None,
+    served_only: bool = False,
 ) -> None:
+    # With ``served_only`` (faces read from the module's voltage) only windows whose UA was
+    # served as reliable are followed: there UA moves with the R25 the cold face was read
+    # with (simulated proportional units: UA +40 % with R25 +3.5 %, both stated reliable).
+    #
     # While the hot side's resistance is flagged (a failed fan, a clogged sink) the module runs
     # at a hot face and often without pause, a regime the cabinet balance was not judged in:
     # UA's changes are not followed then, so that one fault raises one flag (common practice,
@@ -592,8 +602,12 @@ def _follow_ua(
         state.k_trend = th_fit.k_cabinet
     k_trend = state.k_trend
     followable = sd["ua"] <= cfg.ua_follow_rel_se * th_fit.ua and not hot_flagged
-    if followable and ambient_lead_usual(state, b, rise_amb, cfg):
-        served_ok = _ua_served_reliable(th_fit, cfg)
+    served_ok = _ua_served_reliable(th_fit, cfg)
+    if (
+        followable
+        and (served_ok or not served_only)
+        and ambient_lead_usual(state, b, rise_amb, cfg)
+    ):
         if k_source == "prior":
             raw = state.ua_raw = state.ua_raw if state.ua_raw is not None else []
             raw.append(

@@ -343,3 +343,37 @@ def test_faces_that_store_heat_are_not_read_from_a_steady_balance() -> None:
     )
     assert not res.reliable
     assert res.note is not None and "store heat" in res.note
+
+
+def test_faces_read_at_a_given_resistance_shift_by_its_ohmic_part(
+    simulated: tuple[sim.FleetSpec, Chunk],
+) -> None:
+    # V = S(Tm)·ΔT + I·R(Tm) (Goldsmid 2010, ch. 2) with Tm = Th - ΔT/2 and R, S linear in
+    # Tm: reading ΔT at an R25 1 % higher takes I·R·1 % / (S - ΔT·S25·β/2 - I·R25·α/2) off
+    # every driven sample's ΔT (implicit differentiation, by hand). 10 % tolerance: the
+    # step is not infinitesimal. The readings' own R25 (their steps) is kept.
+    spec, c = simulated
+    d, j = spec.devices[0], 0
+    ok, m = c.present[:, j], c.measured
+    prior = priors(d.registration()["module"], AnalysisSettings())
+    assert prior is not None
+    args = (
+        c.ts[ok, j], m["current"][ok, j], m["voltage"][ok, j], m["t_cabinet"][ok, j] + T0,
+        m["t_ambient"][ok, j] + T0, m["t_hot"][ok, j] + T0, np.ones(int(ok.sum()), dtype=bool),
+    )  # fmt: skip
+    own = mt.reconstruct_faces(*args, floating=True, s25=prior.seebeck)
+    read = (1.01 * own.step.r25, own.step.r25_se)
+    moved = mt.reconstruct_faces(*args, floating=True, s25=prior.seebeck, r25_read=read)
+    assert moved.step == own.step
+    i = m["current"][ok, j]
+    on = (i > 0.5) & np.isfinite(own.delta_t) & np.isfinite(moved.delta_t)
+    assert on.sum() > 100
+    alpha, beta = mt.physics.BI2TE3_RESISTANCE_TEMPCO, mt.physics.BI2TE3_SEEBECK_TEMPCO
+    r25, s25, dt = own.step.r25, prior.seebeck, own.delta_t[on]
+    f_r = 1.0 + alpha * (own.t_mean[on] - T_25C_K)
+    f_s = 1.0 + beta * (own.t_mean[on] - T_25C_K)
+    slope = s25 * f_s - dt * s25 * beta / 2.0 - i[on] * r25 * alpha / 2.0
+    expected = i[on] * 0.01 * r25 * f_r / slope
+    shift = own.delta_t[on] - moved.delta_t[on]
+    assert np.allclose(shift, expected, rtol=0.10)
+    assert "recent windows" in moved.basis

@@ -7,9 +7,11 @@ from typing import Any
 import numpy as np
 import pytest
 
+from tecfleet.analytics.diagnostics import Estimate
 from tecfleet.analytics.runner import AnalysisSettings
+from tecfleet.analytics.runner.hot_side import hourly
 from tecfleet.analytics.runner.rows import EstimateRows
-from tecfleet.analytics.runner.state import DeviceState
+from tecfleet.analytics.runner.state import DeviceState, ModuleParams
 from tecfleet.analytics.runner.tracks import (
     FLAGS_HELD_FACES_FROM_VOLTAGE,
     track,
@@ -260,3 +262,40 @@ def test_r25_tracks_of_probed_faces_and_of_the_voltage_are_kept_apart() -> None:
     track_r25_from_voltage(rows, state, 6 * 3_600_000, 2.1, 0.01, True, cfg)
     assert state.r25_from == "voltage" and state.s_trend is None
     assert state.series["r25"] == [[6 * 3_600_000, 2.1]]
+
+
+def test_hot_side_followed_without_a_cold_probe_only_at_a_reliable_r25() -> None:
+    # Series made here: hourly r_hot 0.20 K/W for 80 hours, then a failed fan's 3x. Where
+    # the cold face is read from the module's voltage, ΔT = (V - I·R)/S moves by I·R/S per
+    # unit error of R (Goldsmid 2010, ch. 2), so an hour is followed only while the R25 it
+    # was read with was served as reliable; then it flags as on the full set. With neither
+    # face probed the change is followed but no flag is raised.
+    cfg = AnalysisSettings()
+    hour = 3_600_000
+    values = [0.20] * 80 + [0.60] * 4
+
+    def run(probed: tuple[bool, bool], r25_reliable: bool) -> list[dict[str, Any]]:
+        rows = EstimateRows(DEVICE)
+        state = DeviceState(k_trend=0.5)
+        state.params = ModuleParams(k=0.5, s25=0.05, r25=2.0, r25_reliable=r25_reliable)
+        for j, v in enumerate(values):
+            hourly((j + 1) * hour, Estimate(v, 0.01 * v, 60), rows, state, cfg, probed)
+        return [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+
+    def keys(recs: list[dict[str, Any]], key: str) -> list[dict[str, Any]]:
+        return [r for r in recs if r["key"] == key]
+
+    full = run((True, True), False)
+    reliable = run((False, True), True)
+    wandering = run((False, True), False)
+    no_faces = run((False, False), True)
+    for recs in (full, reliable, wandering, no_faces):
+        assert len(keys(recs, "hot_side.resistance_k_per_w")) == len(values)  # always served
+    for recs in (full, reliable):
+        flags = keys(recs, "hot_side.resistance.flag")
+        assert next(r["at_ms"] // hour for r in flags if r["value"] == 1.0) == 81
+    assert not keys(wandering, "hot_side.resistance.change_pct")
+    held = keys(no_faces, "hot_side.resistance.flag")
+    assert held and all(r["value"] == 0.0 for r in held)
+    assert all(r["note"] == FLAGS_HELD_FACES_FROM_VOLTAGE for r in held)
+    assert max(r["value"] for r in keys(no_faces, "hot_side.resistance.change_pct")) > 150.0

@@ -22,6 +22,7 @@ from tecfleet.analytics.runner.settled import s_settled
 from tecfleet.analytics.runner.state import Baseline, DeviceState, Point, UaLead
 
 __all__ = [
+    "FLAGS_HELD_CABINET_PROBE_UNCHECKED",
     "FLAGS_HELD_FACES_FROM_VOLTAGE",
     "ambient_lead_usual",
     "daily_medians_before",
@@ -44,21 +45,34 @@ FLAGS_HELD_FACES_FROM_VOLTAGE = (
 )
 
 
-def faces_judged(probed: tuple[bool, bool], r25_reliable: bool | None) -> tuple[bool, str | None]:
-    """Whether the thermal changes of a unit with these face probes (cold, hot) are followed,
-    and why no flag is raised (None where one may be), given whether the R25 its cold face
-    was read with was served as reliable.
+#: Why UA raises no flag on a unit with a hot-face probe and none on the cold face: the
+#: cabinet probe's drift is told from the cold face's probe (``alerts.rules.probe_drift``),
+#: and a cabinet probe drifting warm reads as a heat leak (simulated: UA +36 % from a 3 K
+#: drift over six days).
+FLAGS_HELD_CABINET_PROBE_UNCHECKED = (
+    "no cold-face probe: UA's changes are followed, but no flag is raised, since a drifting "
+    "cabinet probe, which only the cold-face probe shows, would read as a heat leak"
+)
+
+
+def faces_judged(
+    probed: tuple[bool, bool], r25_reliable: bool | None, quantity: str = "rhot"
+) -> tuple[bool, str | None]:
+    """Whether the changes of a thermal ``quantity`` ("rhot" or "ua") of a unit with these
+    face probes (cold, hot) are followed, and why no flag is raised (None where one may
+    be), given whether the R25 its cold face was read with was served as reliable.
 
     Where only the cold face is read from the voltage, ΔT = (V - I·R)/S moves by I·R/S per
     unit relative error of R (Goldsmid 2010, ch. 2): at 3 A through 2 ohm and 50 mV/K, 1.2 K
     per 1 %, about twice that with Tm = Th - ΔT/2 solved with ΔT. A window's R25 that the
     readings could not pin down (a module that never rests) wanders by several per cent
-    from window to window, so those windows' UA and hot-side figures are not followed; the
-    others are, and flag as on the full set."""
+    from window to window, so those windows' UA and hot-side figures are not followed. The
+    others are: the hot side flags as on the full set, UA's flag is held
+    (:data:`FLAGS_HELD_CABINET_PROBE_UNCHECKED`)."""
     if probed == (True, True):
         return True, None
     if probed == (False, True):
-        return bool(r25_reliable), None
+        return bool(r25_reliable), FLAGS_HELD_CABINET_PROBE_UNCHECKED if quantity == "ua" else None
     return True, FLAGS_HELD_FACES_FROM_VOLTAGE
 
 

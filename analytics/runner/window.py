@@ -138,7 +138,7 @@ def fit_window(
         _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
-        follow, held = faces_judged(win.probed, ele.el.r_reliable)
+        follow, held = faces_judged(win.probed, ele.el.r_reliable, "ua")
         if follow:
             reduced = win.probed != (True, True)
             _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held, reduced)

@@ -147,13 +147,17 @@ def scoring_fleet(
     interval_s: float = 60.0,
     drift: bool = True,
     summaries: bool = False,
+    sensors: str = "full",
 ) -> tuple[sim.FleetSpec, list[Expected]]:
     """One unit per fault kind plus ``healthy`` units; faults placed after the 3-day baseline.
 
     Fault times are fractions of the run so a shorter run keeps every fault inside it.
     ``drift`` False leaves out the drifting cabinet probe; ``summaries`` has every unit
-    report its interval summaries.
+    report its interval summaries; ``sensors`` gives every unit those face probes (the
+    stuck probe is the hot face's, so a set without it is refused).
     """
+    if sensors not in ("full", "no_cold"):
+        raise ValueError(f"the alert bench needs the hot-face probe; got sensors={sensors!r}")
     n_faulty = 7 if drift else 6
     base = sim.random_fleet(n_faulty + healthy, seed=seed, start_s=START_S, days=days, prefix="sc")
     # no random power cuts: one is scheduled where it is wanted
@@ -192,6 +196,7 @@ def scoring_fleet(
         events=events,
         summaries=summaries,
     )
+    spec = sim.with_sensor_set(spec, sensors)
     truth = sim.FleetTruth(spec)
     steady = {d.device_id for d in devs if d.control == "proportional"}
     expected: list[Expected] = []
@@ -218,8 +223,8 @@ def _readings(chunk: sim.Chunk) -> list[db.Reading]:
                 continue
             out.append(
                 db.Reading(
-                    device, round(item["ts"] * 1000), item["t_cabinet"], item["t_cold"],
-                    item["t_hot"], item["t_ambient"], item["current"], item["voltage"],
+                    device, round(item["ts"] * 1000), item["t_cabinet"], item.get("t_cold"),
+                    item.get("t_hot"), item["t_ambient"], item["current"], item["voltage"],
                     seq=item["seq"], rh=item["rh"], door_open=item["door_open"],
                     **{k: item.get(k) for k in SUMMARY_COLUMNS},
                 )
@@ -509,6 +514,12 @@ def main(argv: list[str] | None = None) -> int:
         "--summaries", action="store_true", help="every reading carries its interval summaries"
     )
     ap.add_argument(
+        "--sensors",
+        choices=("full", "no_cold"),
+        default="full",
+        help="face probes of every unit: both (full) or none on the cold face (no_cold)",
+    )
+    ap.add_argument(
         "--switched-on",
         action="store_true",
         help="a healthy fleet of --healthy units switched on warm instead: pull-downs, alerts",
@@ -523,7 +534,7 @@ def main(argv: list[str] | None = None) -> int:
         return 0
     spec, expected = scoring_fleet(
         args.days, healthy=args.healthy, seed=args.seed, interval_s=60.0 * args.interval,
-        summaries=args.summaries,
+        summaries=args.summaries, sensors=args.sensors,
     )  # fmt: skip
     with tempfile.TemporaryDirectory() as tmp:
         db_path = args.keep if args.keep is not None else Path(tmp) / "bench.db"
@@ -535,7 +546,7 @@ def main(argv: list[str] | None = None) -> int:
     print(
         f"{len(spec.devices)} units ({args.healthy} healthy), {args.days:g} days, "
         f"{args.interval:g}-minute {'summaries' if args.summaries else 'instants'}, "
-        f"seed {args.seed}, evaluated every {args.step_hours:g} h"
+        f"{args.sensors} sensor set, seed {args.seed}, evaluated every {args.step_hours:g} h"
     )
     print(table(result))
     print("seconds: " + ", ".join(f"{k} {v:.1f}" for k, v in spent.items()))

@@ -13,7 +13,9 @@ from tecfleet.analytics.runner.hot_side import hourly
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams
 from tecfleet.analytics.runner.tracks import (
+    FLAGS_HELD_CABINET_PROBE_UNCHECKED,
     FLAGS_HELD_FACES_FROM_VOLTAGE,
+    faces_judged,
     track,
     track_r25_from_voltage,
 )
@@ -299,3 +301,14 @@ def test_hot_side_followed_without_a_cold_probe_only_at_a_reliable_r25() -> None
     assert held and all(r["value"] == 0.0 for r in held)
     assert all(r["note"] == FLAGS_HELD_FACES_FROM_VOLTAGE for r in held)
     assert max(r["value"] for r in keys(no_faces, "hot_side.resistance.change_pct")) > 150.0
+
+
+def test_ua_without_a_cold_probe_is_followed_at_a_reliable_r25_but_not_flagged() -> None:
+    # A cabinet probe drifting warm lowers Ta - Tcab and so raises UA = Q/(Ta - Tcab) (the
+    # lumped balance, Incropera et al. 2007, ch. 5); only the cold-face probe shows the drift,
+    # so without it UA's change is served and its flag held, with the reason.
+    assert faces_judged((True, True), False, "ua") == (True, None)
+    assert faces_judged((False, True), True, "ua") == (True, FLAGS_HELD_CABINET_PROBE_UNCHECKED)
+    assert faces_judged((False, True), False, "ua")[0] is False
+    assert faces_judged((False, True), True, "rhot") == (True, None)
+    assert faces_judged((False, False), True, "ua") == (True, FLAGS_HELD_FACES_FROM_VOLTAGE)

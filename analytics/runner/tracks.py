@@ -116,7 +116,7 @@ def track(
     ``persist``; with ``in_a_row_s`` [s], nor do values further apart than that (a step
     that was not followed in between starts the count again). With ``held`` (the reason),
     the change is followed and served but no flag is raised: the flag row is marked not
-    reliable with that reason.
+    reliable with that reason, and so is the change row.
     """
     series = state.series_by_name().setdefault(name, [])
     first = state.first_by_name().setdefault(name, b)
@@ -149,7 +149,9 @@ def track(
     )
     cus[name] = c_new
     n_base = int(bl_d.n)
-    rows.add(f"{prefix}.change_pct", b, change, 100.0 * spread / center, n_base)
+    # A held change is served with its reason, not as reliable: the alert rules judge
+    # reliable changes only, so holding the flag holds the alert too.
+    rows.add(f"{prefix}.change_pct", b, change, 100.0 * spread / center, n_base, held is None, held)
     above = state.above_by_name()
     # With newest_sd the newest value must show the change as well, to its own precision: a
     # lasting fault shows in every later value, while the day's median can be made of two or

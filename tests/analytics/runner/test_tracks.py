@@ -174,6 +174,9 @@ def test_a_held_track_follows_the_change_but_raises_no_flag() -> None:
     flags = [r for r in held_rows if r["key"] == "cabinet.ua.flag"]
     assert flags and all(r["value"] == 0.0 and not r["reliable"] for r in flags)
     assert all(r["note"] == FLAGS_HELD_FACES_FROM_VOLTAGE for r in flags)
+    # The alert rules read reliable rows only: the held change must not raise an alert.
+    changes = [r for r in held_rows if r["key"] == "cabinet.ua.change_pct"]
+    assert changes and not any(r["reliable"] for r in changes)
 
 
 def _voltage_track(

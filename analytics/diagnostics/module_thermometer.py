@@ -823,6 +823,8 @@ def reconstruct_faces(
             options=options,
         )  # fmt: skip
         how = f"R25 from the cold face's steady heat balance over {step.n_steps} samples"
+        if step.drift_per_day != 0.0:
+            how += f", moving {100.0 * step.drift_per_day:+.2f} %/day across them"
         dt, dt_se, tm, tm_sd = _faces_checked(
             i, v, tcab, ta, th, step, floating, s25, alpha, beta, options
         )

@@ -243,23 +243,24 @@ def step_resistance(
 
 
 def _balance_ssr(
-    r25: float,
+    r25: float | FloatArray,
     rows: tuple[FloatArray, ...],
     s25: float,
     alpha: float,
     beta: float,
     options: DiagnosticsOptions,
 ) -> tuple[float, float, int]:
-    # The cold face's balance at R25 = r25, instrumented: the residual's part the instruments
-    # explain [K²] (the criterion R25 minimises), the residual sum of squares [K²] and the
-    # rows used.
+    # The cold face's balance at R25 = r25 (one per row where it moves), instrumented: the
+    # residual's part the instruments explain [K²] (the criterion R25 minimises), the
+    # residual sum of squares [K²] and the rows used.
     i, v, tcab, th = rows
-    dt = delta_t_from_hot_face(i, v, th, True, r25, s25, alpha=alpha, beta=beta, options=options)
+    r = np.broadcast_to(np.asarray(r25, dtype=np.float64), i.shape)
+    dt = delta_t_from_hot_face(i, v, th, True, r, s25, alpha=alpha, beta=beta, options=options)
     ok = np.isfinite(dt)
-    i, dt, th, tcab = i[ok], dt[ok], th[ok], tcab[ok]
+    i, dt, th, tcab, r = i[ok], dt[ok], th[ok], tcab[ok], r[ok]
     x = th - 0.5 * dt - T_25C_K
     tc = th - dt
-    q = s25 * (1.0 + beta * x) * i * tc - 0.5 * i**2 * r25 * (1.0 + alpha * x)
+    q = s25 * (1.0 + beta * x) * i * tc - 0.5 * i**2 * r * (1.0 + alpha * x)
     a = np.column_stack([q, -dt])
     on = i > options.on_current
     # More instruments than unknowns: a wrong R25 leaves a residual in step with the current
@@ -614,7 +615,7 @@ def delta_t_from_hot_face(
     voltage: FloatArray,
     t_hot: FloatArray,
     floating: bool,
-    r25: float,
+    r25: float | FloatArray,
     s25: float,
     *,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
@@ -636,7 +637,8 @@ def delta_t_from_hot_face(
     voltage : Module voltage [V].
     t_hot : Hot face [K].
     floating : Whether off samples show the open-circuit voltage [-].
-    r25, s25 : Module resistance [ohm] and Seebeck coefficient [V/K] at 25 °C.
+    r25 : Module resistance at 25 °C, one per sample where it moves across them [ohm].
+    s25 : Module Seebeck coefficient at 25 °C [V/K].
     alpha, beta : Temperature coefficients of R and S [1/K].
     options : ``on_current`` [A].
 

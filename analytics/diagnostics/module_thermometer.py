@@ -24,12 +24,13 @@ two unknowns at every sample: R and S are not separable (:class:`NotSeparableErr
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from typing import TypeAlias
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.optimize import minimize_scalar
+from scipy.optimize import minimize, minimize_scalar
 
 from .. import physics
 from .._validate import T_25C_K, FloatArray
@@ -94,6 +95,8 @@ class StepResistance:
     n_steps : Steps used [-].
     reliable : ``r25_se`` within ``step_r_max_rel_stderr`` of ``r25``.
     note : Why not reliable, else None.
+    drift_per_day : R25's relative change per day across the window, where the cold face's
+        balance gave it (0 from the steps) [1/day].
     """
 
     r25: float
@@ -101,6 +104,7 @@ class StepResistance:
     n_steps: int
     reliable: bool
     note: str | None
+    drift_per_day: float = 0.0
 
 
 IntArray: TypeAlias = NDArray[np.intp]
@@ -239,23 +243,24 @@ def step_resistance(
 
 
 def _balance_ssr(
-    r25: float,
+    r25: float | FloatArray,
     rows: tuple[FloatArray, ...],
     s25: float,
     alpha: float,
     beta: float,
     options: DiagnosticsOptions,
 ) -> tuple[float, float, int]:
-    # The cold face's balance at R25 = r25, instrumented: the residual's part the instruments
-    # explain [K²] (the criterion R25 minimises), the residual sum of squares [K²] and the
-    # rows used.
+    # The cold face's balance at R25 = r25 (one per row where it moves), instrumented: the
+    # residual's part the instruments explain [K²] (the criterion R25 minimises), the
+    # residual sum of squares [K²] and the rows used.
     i, v, tcab, th = rows
-    dt = delta_t_from_hot_face(i, v, th, True, r25, s25, alpha=alpha, beta=beta, options=options)
+    r = np.broadcast_to(np.asarray(r25, dtype=np.float64), i.shape)
+    dt = delta_t_from_hot_face(i, v, th, True, r, s25, alpha=alpha, beta=beta, options=options)
     ok = np.isfinite(dt)
-    i, dt, th, tcab = i[ok], dt[ok], th[ok], tcab[ok]
+    i, dt, th, tcab, r = i[ok], dt[ok], th[ok], tcab[ok], r[ok]
     x = th - 0.5 * dt - T_25C_K
     tc = th - dt
-    q = s25 * (1.0 + beta * x) * i * tc - 0.5 * i**2 * r25 * (1.0 + alpha * x)
+    q = s25 * (1.0 + beta * x) * i * tc - 0.5 * i**2 * r * (1.0 + alpha * x)
     a = np.column_stack([q, -dt])
     on = i > options.on_current
     # More instruments than unknowns: a wrong R25 leaves a residual in step with the current
@@ -273,7 +278,134 @@ def _balance_ssr(
     return float(explained @ explained), float(res @ res), int(ok.sum())
 
 
+def _balance_crit(
+    x: FloatArray,
+    rows: tuple[FloatArray, ...],
+    tau: FloatArray,
+    s25: float,
+    r25_guess: float,
+    alpha: float,
+    beta: float,
+    options: DiagnosticsOptions,
+) -> float:
+    # The balance's criterion at R25 = r25_guess·(1 + x[0]) moving by x[1] per day [K²].
+    r = r25_guess * (1.0 + float(x[0]))
+    return _balance_ssr(r * (1.0 + float(x[1]) * tau), rows, s25, alpha, beta, options)[0]
+
+
+def _flat_fit(
+    rows: tuple[FloatArray, ...],
+    s25: float,
+    r25_guess: float,
+    alpha: float,
+    beta: float,
+    options: DiagnosticsOptions,
+) -> float:
+    # R25 held across the window by a bounded search (±30 % of the guess) [ohm].
+    res = minimize_scalar(
+        lambda r: _balance_ssr(r, rows, s25, alpha, beta, options)[0],
+        bounds=(0.7 * r25_guess, 1.3 * r25_guess), method="bounded",
+        options={"xatol": 1e-5 * r25_guess},
+    )  # fmt: skip
+    return float(res.x)
+
+
+def _drift_fit(
+    rows: tuple[FloatArray, ...],
+    tau: FloatArray,
+    s25: float,
+    r25_guess: float,
+    start: FloatArray,
+    alpha: float,
+    beta: float,
+    options: DiagnosticsOptions,
+    reach: float = 1.0,
+) -> FloatArray:
+    # (R25/r25_guess - 1, drift per day) minimising the criterion from ``start``,
+    # Nelder-Mead within ±30 % and ±balance_max_drift_per_day, the first simplex 2 % of R25
+    # and a fifth of the drift's bound wide times ``reach`` (smaller from a nearby optimum).
+    g_max = options.balance_max_drift_per_day
+    x0 = np.clip(start, [-0.3, -g_max], [0.3, g_max])
+    simplex = x0 + np.array([[0.0, 0.0], [0.02 * reach, 0.0], [0.0, 0.2 * g_max * reach]])
+    res = minimize(
+        _balance_crit, x0, args=(rows, tau, s25, r25_guess, alpha, beta, options),
+        method="Nelder-Mead", bounds=[(-0.3, 0.3), (-g_max, g_max)],
+        options={"initial_simplex": simplex, "xatol": 1e-4, "fatol": 1e-4},
+    )  # fmt: skip
+    return np.asarray(res.x, dtype=np.float64)
+
+
+def _curvature(
+    x0: FloatArray, crit: Callable[[FloatArray], float], scale: FloatArray
+) -> tuple[FloatArray, FloatArray]:
+    # Gradient and Hessian of ``crit`` at ``x0`` by central differences of ``scale``.
+    m = x0.size
+    c0 = crit(x0)
+    grad, hess = np.zeros(m), np.zeros((m, m))
+    for a in range(m):
+        ea = np.eye(m)[a] * scale[a]
+        up, down = crit(x0 + ea), crit(x0 - ea)
+        grad[a] = (up - down) / (2.0 * scale[a])
+        hess[a, a] = (up - 2.0 * c0 + down) / scale[a] ** 2
+        for b in range(a):
+            eb = np.eye(m)[b] * scale[b]
+            hess[a, b] = hess[b, a] = (
+                crit(x0 + ea + eb) - crit(x0 + ea - eb) - crit(x0 - ea + eb)
+                + crit(x0 - ea - eb)
+            ) / (4.0 * scale[a] * scale[b])  # fmt: skip
+    return grad, hess
+
+
+def _half_hessian_inverse(hess: FloatArray) -> FloatArray:
+    # (½·H)⁻¹, for σ²·(½·H)⁻¹ as in least squares; inf where the criterion is not curved
+    # upwards.
+    if not (np.all(np.isfinite(hess)) and np.all(np.linalg.eigvalsh(hess) > 0.0)):
+        return np.full(hess.shape, math.inf)
+    return np.asarray(np.linalg.inv(0.5 * hess), dtype=np.float64)
+
+
+def _held_or_drifting(
+    rows: tuple[FloatArray, ...],
+    tau: FloatArray,
+    s25: float,
+    r25_guess: float,
+    alpha: float,
+    beta: float,
+    options: DiagnosticsOptions,
+) -> tuple[float, float, float, float]:
+    # R25 [ohm] held across the window or moving by a drift [1/day] (0 where held), the
+    # scatter part of its standard error [ohm] and the balance's residual sd [K]. The drift
+    # is kept where it lowers the criterion by more than σ²·ln n (G. Schwarz, Ann. Statist.
+    # 6(2), 1978: one more parameter), so a steady module keeps the held fit's precision.
+    # The drift is fitted only where the held fit's quadratic model (its gradient and
+    # curvature in the drift, ½·dᵀH⁻¹d) promises half that drop or where it is not curved
+    # upwards: most windows of a steady module are spared the two-parameter search.
+    def crit(x: FloatArray) -> float:
+        return _balance_crit(x, rows, tau, s25, r25_guess, alpha, beta, options)
+
+    def sigma_at(x: FloatArray, dof: int) -> float:
+        r = r25_guess * (1.0 + x[0]) * (1.0 + x[1] * tau)
+        _, ssr, used = _balance_ssr(r, rows, s25, alpha, beta, options)
+        return math.sqrt(ssr / max(used - dof, 1))
+
+    flat = np.array([_flat_fit(rows, s25, r25_guess, alpha, beta, options) / r25_guess - 1.0, 0.0])
+    grad, hess = _curvature(flat, crit, np.array([1e-3, 1e-3]))
+    cov = _half_hessian_inverse(hess)
+    sigma, penalty = sigma_at(flat, 4), math.log(rows[0].size)
+    x, cov_r = flat, _half_hessian_inverse(hess[:1, :1])[0, 0]
+    promised = 0.25 * float(grad @ cov @ grad) if np.all(np.isfinite(cov)) else math.inf
+    if promised > 0.5 * sigma**2 * penalty:
+        moving = _drift_fit(rows, tau, s25, r25_guess, np.zeros(2), alpha, beta, options)
+        sigma_m = sigma_at(moving, 5)
+        if crit(flat) - crit(moving) > sigma_m**2 * penalty:
+            x, sigma = moving, sigma_m
+            cov_r = _half_hessian_inverse(_curvature(moving, crit, np.array([1e-3, 1e-3]))[1])[0, 0]
+    scatter = r25_guess * sigma * math.sqrt(cov_r) if math.isfinite(cov_r) else math.inf
+    return r25_guess * (1.0 + float(x[0])), float(x[1]), scatter, sigma
+
+
 def balance_resistance(
+    time_s: FloatArray,
     current: FloatArray,
     voltage: FloatArray,
     t_cabinet: FloatArray,
@@ -299,12 +431,22 @@ def balance_resistance(
     probes' offsets): Tcab - Tc = r_cold·Q - K·r_cold·ΔT + c. A wrong R25 shifts ΔT by
     I·δR/S on the driven samples only, which no choice of the three can absorb once current,
     cabinet and ambient vary; R25 minimises the balance's residual (a bounded
-    one-dimensional search, ``scipy.optimize.minimize_scalar``). Its standard error: the
-    profile's curvature, σ²/(½·d²SSR/dR²), and S's spread between units
-    (``seebeck_unit_rel_sd``) carried by refitting at S·(1 ± it).
+    one-dimensional search, ``scipy.optimize.minimize_scalar``, then with the drift below by
+    ``scipy.optimize.minimize``, Nelder-Mead within bounds).
+
+    A module that wears changes R25 within the window, and the balance is that sensitive to
+    it: a constant R25 leaves a residual in step with the current that grows along the
+    window (δΔT = I·R25·g·(t - t0)/S, about 1 K per per cent of R), which no constant R25
+    absorbs. So R25 is allowed to move linearly across the window,
+    R25(t) = R25·(1 + g·(t - t0)), t0 the mean time of the driven samples (where R25 is
+    served), g within ±``balance_max_drift_per_day``. Its standard error: the criterion's
+    curvature in (R25, g), σ²·(½·H)⁻¹ (the profile's curvature over the drift, as for any
+    least-squares pair), and S's spread between units (``seebeck_unit_rel_sd``) carried by
+    refitting at S·(1 ± it).
 
     Parameters
     ----------
+    time_s : Sample times [s].
     current : Module current [A].
     voltage : Module voltage [V].
     t_cabinet : Cabinet air [K].
@@ -314,11 +456,13 @@ def balance_resistance(
     r25_guess : Registered ratings' R25, the middle of the search (±30 %) [ohm].
     alpha, beta : Temperature coefficients of R and S [1/K].
     options : ``on_current`` [A], ``min_on`` [-], ``seebeck_unit_rel_sd`` [-],
-        ``step_r_max_rel_stderr`` [-], ``balance_max_residual_k`` [K].
+        ``step_r_max_rel_stderr`` [-], ``balance_max_residual_k`` [K],
+        ``balance_max_drift_per_day`` [1/day].
 
     Returns
     -------
-    The resistance and its error (``n_steps``: the samples behind it).
+    The resistance at the driven samples' mean time, its error and its drift
+    (``n_steps``: the samples behind it).
 
     Raises
     ------
@@ -326,32 +470,29 @@ def balance_resistance(
     """
     i = np.asarray(current, dtype=np.float64)
     ok = np.asarray(usable, dtype=bool) & np.isfinite(i) & np.isfinite(t_hot)
-    ok &= np.isfinite(voltage) & np.isfinite(t_cabinet)
-    if int((ok & (i > options.on_current)).sum()) < options.min_on:
+    ok &= np.isfinite(voltage) & np.isfinite(t_cabinet) & np.isfinite(time_s)
+    driven = ok & (i > options.on_current)
+    if int(driven.sum()) < options.min_on:
         raise InsufficientDataError(
             "too few driven samples for the cold face's balance", "module hardly ran"
         )
     rows = tuple(np.asarray(x, dtype=np.float64)[ok] for x in (i, voltage, t_cabinet, t_hot))
-
-    def best(s: float) -> float:
-        res = minimize_scalar(
-            lambda r: _balance_ssr(r, rows, s, alpha, beta, options)[0],
-            bounds=(0.7 * r25_guess, 1.3 * r25_guess), method="bounded",
-            options={"xatol": 1e-5 * r25_guess},
-        )  # fmt: skip
-        return float(res.x)
-
-    r25 = best(s25)
-    crit, ssr, n = _balance_ssr(r25, rows, s25, alpha, beta, options)
-    sigma = math.sqrt(ssr / max(n - 4, 1))
-    h = 1e-3 * r25
-    curv = (
-        _balance_ssr(r25 + h, rows, s25, alpha, beta, options)[0] - 2.0 * crit
-        + _balance_ssr(r25 - h, rows, s25, alpha, beta, options)[0]
-    ) / h**2  # fmt: skip
-    scatter = sigma / math.sqrt(0.5 * curv) if curv > 0.0 else math.inf
+    t = np.asarray(time_s, dtype=np.float64)
+    tau = (t[ok] - float(np.mean(t[driven]))) / 86_400.0
+    r25, drift, scatter, sigma = _held_or_drifting(rows, tau, s25, r25_guess, alpha, beta, options)
     ds = options.seebeck_unit_rel_sd
-    s_part = 0.5 * abs(best(s25 * (1.0 + ds)) - best(s25 * (1.0 - ds)))
+    if drift == 0.0:
+        ends = [
+            _flat_fit(rows, s25 * (1.0 + e), r25_guess, alpha, beta, options) for e in (ds, -ds)
+        ]
+    else:
+        start = np.array([r25 / r25_guess - 1.0, drift])
+        ends = [
+            r25_guess * (1.0 + _drift_fit(rows, tau, s25 * (1.0 + e), r25_guess, start, alpha,
+                                          beta, options, reach=0.25)[0])
+            for e in (ds, -ds)
+        ]  # fmt: skip
+    s_part = 0.5 * abs(ends[0] - ends[1])
     se = math.hypot(scatter, s_part)
     on = rows[0] > options.on_current
     k = np.flatnonzero(on[:-2] & ~on[1:-1] & ~on[2:])  # switch-offs with two off samples
@@ -370,7 +511,7 @@ def balance_resistance(
         )
     elif not reliable:
         note = f"R from the cold face's balance only within ±{100 * se / r25:.1f} %"
-    return StepResistance(r25, se, n, reliable, note)
+    return StepResistance(r25, se, int(ok.sum()), reliable, note, drift)
 
 
 def reconstruct_delta_t(
@@ -474,7 +615,7 @@ def delta_t_from_hot_face(
     voltage: FloatArray,
     t_hot: FloatArray,
     floating: bool,
-    r25: float,
+    r25: float | FloatArray,
     s25: float,
     *,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
@@ -496,7 +637,8 @@ def delta_t_from_hot_face(
     voltage : Module voltage [V].
     t_hot : Hot face [K].
     floating : Whether off samples show the open-circuit voltage [-].
-    r25, s25 : Module resistance [ohm] and Seebeck coefficient [V/K] at 25 °C.
+    r25 : Module resistance at 25 °C, one per sample where it moves across them [ohm].
+    s25 : Module Seebeck coefficient at 25 °C [V/K].
     alpha, beta : Temperature coefficients of R and S [1/K].
     options : ``on_current`` [A].
 
@@ -690,10 +832,12 @@ def reconstruct_faces(
             raise
         rows = usable & (floating | (i > options.on_current))
         step = balance_resistance(
-            i, v, tcab, th, rows, s25=s25, r25_guess=r25_guess, alpha=alpha, beta=beta,
+            time_s, i, v, tcab, th, rows, s25=s25, r25_guess=r25_guess, alpha=alpha, beta=beta,
             options=options,
         )  # fmt: skip
         how = f"R25 from the cold face's steady heat balance over {step.n_steps} samples"
+        if step.drift_per_day != 0.0:
+            how += f", moving {100.0 * step.drift_per_day:+.2f} %/day across them"
         dt, dt_se, tm, tm_sd = _faces_checked(
             i, v, tcab, ta, th, _read_at(step, r25_read), floating, s25, alpha, beta, options
         )

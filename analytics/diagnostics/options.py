@@ -230,6 +230,12 @@ class DiagnosticsOptions:
     #: reading steps alone read ΔT to a few tenths of a kelvin; sinks that store heat leave
     #: kelvins (common practice, no source) [K].
     balance_max_residual_k: float = 1.0
+    #: Largest relative change of R25 per day the cold face's balance allows across its
+    #: window (:func:`.module_thermometer.balance_resistance`): a module that wears gains a
+    #: few per cent over weeks, the simulated bench's fastest 10 % over 14 days, 0.7 %/day;
+    #: five per cent a day leaves room without letting the drift stand in for a constant
+    #: (common practice, no source) [1/day].
+    balance_max_drift_per_day: float = 0.05
 
 
 #: The options as measured and documented; the default of every estimator.

@@ -275,9 +275,10 @@ def test_runner_states_why_a_zero_volt_unit_without_face_probes_has_no_faces(
     assert np.isnan(data.tc).all()
 
 
-def _massless_trace(seed: int) -> tuple[np.ndarray, ...]:
+def _massless_trace(seed: int, wear_per_day: float = 0.0) -> tuple[np.ndarray, ...]:
     # Faces without heat capacity, both balances steady at every sample (Goldsmid 2010,
-    # ch. 2, constant S, R, K: α = β = 0 here):
+    # ch. 2, constant S, K: α = β = 0 here; R = R_HAND·(1 + wear_per_day·(t - 12 h)), a module
+    # wearing across the day, constant where wear_per_day is 0):
     #   (Tcab - Tc)/r_cold = S·I·Tc - ½·I²·R - K·ΔT,   (Th - Ta)/r_hot = S·I·Th + ½·I²·R - K·ΔT,
     # solved by hand as a 2×2 linear system per sample. A thermostat switching every few
     # minutes at 3-4 A, the cabinet drifting over 2 K and the ambient over a day's 4 K; the
@@ -291,14 +292,15 @@ def _massless_trace(seed: int) -> tuple[np.ndarray, ...]:
     tcab = 278.0 + 1.0 * np.sin(t / 5000.0)
     ta = 295.0 + 2.0 * np.sin(2.0 * np.pi * t / 86_400.0)
     k, rc, rh = 0.5, 0.4, 0.25
-    jh = 0.5 * i**2 * R_HAND
+    r = R_HAND * (1.0 + wear_per_day * (t - 43_200.0) / 86_400.0)
+    jh = 0.5 * i**2 * r
     a11, a12 = 1.0 / rc + S_HAND * i + k, -k
     a21, a22 = -k, 1.0 / rh - S_HAND * i + k
     b1, b2 = tcab / rc + jh, ta / rh + jh
     det = a11 * a22 - a12 * a21
     tc = (b1 * a22 - a12 * b2) / det
     th = (a11 * b2 - a21 * b1) / det
-    v = S_HAND * (th - tc) + i * R_HAND
+    v = S_HAND * (th - tc) + i * r
     noisy = [x + rng.normal(0.0, sd, n) for x, sd in ((tcab, 0.05), (th, 0.05), (v, 0.005))]
     i_read = np.where(on, i + rng.normal(0.0, 0.005, n), 0.0)
     return t, i_read, noisy[2], noisy[0], ta, noisy[1]
@@ -313,16 +315,39 @@ def test_faces_that_jump_give_r_from_the_cold_faces_steady_balance() -> None:
     ok = np.ones(n, dtype=bool)
     with pytest.raises(InsufficientDataError):
         mt.step_resistance(t, i, v, tcab, ta, th, ok, s25=S_HAND, alpha=0.0)
-    res = mt.balance_resistance(i, v, tcab, th, ok, s25=S_HAND, r25_guess=2.3, alpha=0.0,
+    res = mt.balance_resistance(t, i, v, tcab, th, ok, s25=S_HAND, r25_guess=2.3, alpha=0.0,
                                 beta=0.0)  # fmt: skip
     assert res.r25 == pytest.approx(R_HAND, rel=0.01)
     assert abs(res.r25 - R_HAND) <= 2.0 * res.r25_se
+    # A module that does not wear keeps R25 held across the window (Schwarz's criterion
+    # does not pay for the drift).
+    assert res.drift_per_day == 0.0
     rec = mt.reconstruct_faces(
         t, i, v, tcab, ta, th, ok, floating=True, s25=S_HAND, r25_guess=2.3, alpha=0.0,
         beta=0.0,
     )  # fmt: skip
     assert "steady heat balance" in rec.basis
     assert rec.step.r25 == pytest.approx(res.r25)
+
+
+def test_a_module_wearing_within_the_window_gives_r_at_its_middle_and_the_drift() -> None:
+    # The same hand-solved balance with R rising 0.7 % over the day (a module gaining 10 %
+    # in two weeks). Held across the day, R25 leaves a residual in step with the current
+    # that grows along the window (I·δR/S, about 1 K per per cent of R), far beyond the
+    # 0.05 K noise; allowed to move linearly, R25 at the driven samples' mean time (the
+    # trace's middle within the share of driven samples) comes
+    # back within 1 % and twice its stated error, the drift within a fifth of 0.7 %/day.
+    t, i, v, tcab, _ta, th = _massless_trace(13, wear_per_day=0.007)
+    ok = np.ones(t.size, dtype=bool)
+    res = mt.balance_resistance(
+        t, i, v, tcab, th, ok, s25=S_HAND, r25_guess=2.3, alpha=0.0, beta=0.0
+    )
+    on = i > 0.05
+    r_mid = R_HAND * (1.0 + 0.007 * (float(np.mean(t[on])) - 43_200.0) / 86_400.0)
+    assert res.reliable
+    assert res.r25 == pytest.approx(r_mid, rel=0.01)
+    assert abs(res.r25 - r_mid) <= 2.0 * res.r25_se
+    assert res.drift_per_day == pytest.approx(0.007, rel=0.2)
 
 
 def test_faces_that_store_heat_are_not_read_from_a_steady_balance() -> None:
@@ -339,7 +364,7 @@ def test_faces_that_store_heat_are_not_read_from_a_steady_balance() -> None:
     v_lag = S_HAND * (faces[:, 1] - faces[:, 0]) + i * R_HAND
     ok = np.ones(t.size, dtype=bool)
     res = mt.balance_resistance(
-        i, v_lag, tcab, faces[:, 1], ok, s25=S_HAND, r25_guess=2.3, alpha=0.0, beta=0.0
+        t, i, v_lag, tcab, faces[:, 1], ok, s25=S_HAND, r25_guess=2.3, alpha=0.0, beta=0.0
     )
     assert not res.reliable
     assert res.note is not None and "store heat" in res.note

@@ -735,11 +735,27 @@ def _faces_checked(
     return dt, dt_se, tm, tm_sd
 
 
-def _read_at(step: StepResistance, r25_read: tuple[float, float] | None) -> StepResistance:
-    # The resistance ΔT is read at: the readings' own, or a steadier one given.
+def _faces_vetted(
+    i: FloatArray,
+    v: FloatArray,
+    tcab: FloatArray,
+    ta: FloatArray,
+    th: FloatArray | None,
+    step: StepResistance,
+    r25_read: tuple[float, float] | None,
+    floating: bool,
+    s25: float,
+    alpha: float,
+    beta: float,
+    options: DiagnosticsOptions,
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
+    # As _faces_checked at the readings' own R25, which the heat flows must allow even where
+    # ΔT is then read at a steadier one given: a resistance they rule out is not served.
+    faces = _faces_checked(i, v, tcab, ta, th, step, floating, s25, alpha, beta, options)
     if r25_read is None:
-        return step
-    return replace(step, r25=r25_read[0], r25_se=r25_read[1])
+        return faces
+    given = replace(step, r25=r25_read[0], r25_se=r25_read[1])
+    return _faces_checked(i, v, tcab, ta, th, given, floating, s25, alpha, beta, options)
 
 
 def reconstruct_faces(
@@ -822,8 +838,8 @@ def reconstruct_faces(
             time_s, i, v, tcab, ta, th, usable, s25=s25, alpha=alpha, options=options
         )
         how = f"R25 from {step.n_steps} switch-off steps"
-        dt, dt_se, tm, tm_sd = _faces_checked(
-            i, v, tcab, ta, th, _read_at(step, r25_read), floating, s25, alpha, beta, options
+        dt, dt_se, tm, tm_sd = _faces_vetted(
+            i, v, tcab, ta, th, step, r25_read, floating, s25, alpha, beta, options
         )
     except InsufficientDataError:
         # Faces that follow the current within a sample: no step gives R, but with the hot
@@ -838,11 +854,11 @@ def reconstruct_faces(
         how = f"R25 from the cold face's steady heat balance over {step.n_steps} samples"
         if step.drift_per_day != 0.0:
             how += f", moving {100.0 * step.drift_per_day:+.2f} %/day across them"
-        dt, dt_se, tm, tm_sd = _faces_checked(
-            i, v, tcab, ta, th, _read_at(step, r25_read), floating, s25, alpha, beta, options
+        dt, dt_se, tm, tm_sd = _faces_vetted(
+            i, v, tcab, ta, th, step, r25_read, floating, s25, alpha, beta, options
         )
     if r25_read is not None:
-        how = f"R25 {r25_read[0]:.4g} ohm from the unit's recent windows"
+        how += f"; ΔT read at R25 {r25_read[0]:.4g} ohm from the unit's recent windows"
     rs = f"{how}, S from the registered ratings"
     if th is None:
         tc, tc_se = np.full_like(dt, np.nan), np.full_like(dt, np.nan)

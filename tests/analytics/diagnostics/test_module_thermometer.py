@@ -401,4 +401,21 @@ def test_faces_read_at_a_given_resistance_shift_by_its_ohmic_part(
     expected = i[on] * 0.01 * r25 * f_r / slope
     shift = own.delta_t[on] - moved.delta_t[on]
     assert np.allclose(shift, expected, rtol=0.10)
-    assert "recent windows" in moved.basis
+    assert "recent windows" in moved.basis and "switch-off steps" in moved.basis
+
+
+def test_a_resistance_the_heat_flows_rule_out_is_not_served_behind_a_given_one() -> None:
+    # The hand-made trace of the test that rules such a resistance out: the steps' R25 reads
+    # ΔT below the ambient's lead (heat flows from warm to cold; common practice, no source).
+    # Reading the faces at a plausible R25 given from elsewhere must not let it through.
+    t, i, v, _ = _hand_trace(600.0, jump=True)
+    n = t.size
+    args = (t, i, v, np.full(n, 278.0), np.full(n, 295.0), None, np.ones(n, dtype=bool))
+    with pytest.raises(InsufficientDataError, match="ambient's lead"):
+        mt.reconstruct_faces(*args, floating=True, s25=S_HAND)
+    # At the hand-worked 2.0 ohm the faces themselves would pass (ΔT = 30 K > 17 K) ...
+    dt = mt.reconstruct_delta_t(i, v, np.full(n, 298.15), True, R_HAND, 0.0, S_HAND, 0.0)[0]
+    assert float(np.nanmedian(dt[i > 0.5])) > 17.0
+    # ... but the steps' own resistance is still ruled out.
+    with pytest.raises(InsufficientDataError, match="ambient's lead"):
+        mt.reconstruct_faces(*args, floating=True, s25=S_HAND, r25_read=(R_HAND, 0.02))

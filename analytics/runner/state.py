@@ -144,7 +144,8 @@ class ModuleParams(_Stored):
     i_seen: float | None = None
     #: Whether the samples follow the sinks (False where they store heat faster).
     faces_followed: bool | None = None
-    #: Whether the newest window's R25 was served as reliable.
+    #: Whether the newest window's R25 was served as reliable, and its module rested (see
+    #: ``AnalysisSettings.faces_min_switch_offs``; always where both faces are probed).
     r25_reliable: bool | None = None
 
 

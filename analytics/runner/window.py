@@ -138,7 +138,7 @@ def fit_window(
         _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
-        follow, held = faces_judged(win.probed, ele.el.r_reliable, "ua")
+        follow, held = faces_judged(win.probed, _faces_trusted(win, ele.el, cfg), "ua")
         if follow:
             reduced = win.probed != (True, True)
             _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held, reduced)
@@ -319,6 +319,15 @@ def _electrical(
     return _Electrical(el, on, tm_on, f_r, f_s, s_own, se_own)
 
 
+def _faces_trusted(win: _Window, el: dg.ElectricalFit, cfg: AnalysisSettings) -> bool:
+    # The window's R25 was served as reliable and, where faces are read from the voltage,
+    # the module rested at least ``faces_min_switch_offs`` times.
+    if win.probed == (True, True):
+        return el.r_reliable
+    switch_offs = int(np.sum(win.fl.on[:-1] & ~win.fl.on[1:]))
+    return el.r_reliable and switch_offs >= cfg.faces_min_switch_offs
+
+
 def _dt_offset_sd(state: DeviceState) -> float | None:
     # What is left of the ΔT offset after the faces were corrected by the estimate [K].
     cov = offsets.offset_cov(state)
@@ -380,7 +389,7 @@ def _thermal(
         state.params = ModuleParams(k=k0, s25=el.s25, r25=el.r25)
     else:
         state.params.s25, state.params.r25 = el.s25, el.r25
-    state.params.r25_reliable = el.r_reliable
+    state.params.r25_reliable = _faces_trusted(win, el, cfg)
     state.params.cov_rs = el.cov.tolist()
     k_settled = settled.k_settled(state, cfg)
     try:

@@ -92,12 +92,14 @@ class AnalysisSettings:
     faces_r25_span_s: float = 2 * 86_400.0
     #: Fewest followed windows behind that median [-].
     faces_r25_min_n: int = 4
-    #: Where faces are read from the voltage, switch-offs a window needs for its thermal
-    #: changes to be followed [-]: a module that never rests gives R25 only from the cold
-    #: face's balance, whose windows stated reliable still read a few per cent apart
-    #: (simulated proportional units: a hot-side flag held for days at 5-minute instants,
-    #: UA +40 % from R25 +3.5 %); a few rests give the open-circuit voltage an anchor (common
-    #: practice, no source).
+    #: Where faces are read from the voltage, switch-offs a window needs to count as one in
+    #: which the module rested [-]; thermal changes are followed only while the module has
+    #: rested within ``faces_r25_span_s``. A module that never rests gives R25 only from the
+    #: cold face's balance, whose windows stated reliable still read a few per cent apart
+    #: (simulated proportional units: a hot-side flag held for days at 5-minute instants, UA
+    #: +40 % from R25 +3.5 %); a few rests give the open-circuit voltage an anchor. Not the
+    #: window's own rests: a failed fan keeps the module running (common practice, no
+    #: source).
     faces_min_switch_offs: int = 3
     #: Change of UA against its baseline that raises its flag [%] (common practice, no
     #: source).

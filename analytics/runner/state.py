@@ -144,8 +144,8 @@ class ModuleParams(_Stored):
     i_seen: float | None = None
     #: Whether the samples follow the sinks (False where they store heat faster).
     faces_followed: bool | None = None
-    #: Whether the newest window's R25 was served as reliable, and its module rested (see
-    #: ``AnalysisSettings.faces_min_switch_offs``; always where both faces are probed).
+    #: Whether the newest window's R25 was served as reliable and, where faces are read
+    #: from the voltage, the module had rested lately (see ``runner.window``).
     r25_reliable: bool | None = None
 
 
@@ -183,6 +183,9 @@ class DeviceState(_Stored):
     #: What R25's track rests on where not on probed faces: "voltage" (R25 read from the
     #: module's voltage, the rated S held); None for the fit to probed faces.
     r25_from: str | None = None
+    #: End of the newest window in which the module rested (switched off at least
+    #: ``faces_min_switch_offs`` times), where faces are read from the voltage (epoch ms UTC).
+    rested_ms: int | None = None
     #: The trend K [W/K], at which UA's and the hot side's changes are judged.
     k_trend: float | None = None
     #: Whether the trend K is the unit's own settled one ("own") or the rated one ("prior").

@@ -138,7 +138,8 @@ def fit_window(
         _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
-        follow, held = faces_judged(win.probed, _faces_trusted(win, ele.el, cfg), "ua")
+        trusted = state.params is not None and bool(state.params.r25_reliable)
+        follow, held = faces_judged(win.probed, trusted, "ua")
         if follow:
             reduced = win.probed != (True, True)
             _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held, reduced)
@@ -319,13 +320,18 @@ def _electrical(
     return _Electrical(el, on, tm_on, f_r, f_s, s_own, se_own)
 
 
-def _faces_trusted(win: _Window, el: dg.ElectricalFit, cfg: AnalysisSettings) -> bool:
+def _faces_trusted(
+    win: _Window, el: dg.ElectricalFit, state: DeviceState, cfg: AnalysisSettings
+) -> bool:
     # The window's R25 was served as reliable and, where faces are read from the voltage,
-    # the module rested at least ``faces_min_switch_offs`` times.
+    # the module rested (``faces_min_switch_offs``) in a window of the last
+    # ``faces_r25_span_s``, this one or an earlier one.
     if win.probed == (True, True):
         return el.r_reliable
-    switch_offs = int(np.sum(win.fl.on[:-1] & ~win.fl.on[1:]))
-    return el.r_reliable and switch_offs >= cfg.faces_min_switch_offs
+    if int(np.sum(win.fl.on[:-1] & ~win.fl.on[1:])) >= cfg.faces_min_switch_offs:
+        state.rested_ms = win.b
+    lately = state.rested_ms is not None and win.b - state.rested_ms <= cfg.faces_r25_span_s * 1000
+    return el.r_reliable and lately
 
 
 def _dt_offset_sd(state: DeviceState) -> float | None:
@@ -389,7 +395,7 @@ def _thermal(
         state.params = ModuleParams(k=k0, s25=el.s25, r25=el.r25)
     else:
         state.params.s25, state.params.r25 = el.s25, el.r25
-    state.params.r25_reliable = _faces_trusted(win, el, cfg)
+    state.params.r25_reliable = _faces_trusted(win, el, state, cfg)
     state.params.cov_rs = el.cov.tolist()
     k_settled = settled.k_settled(state, cfg)
     try:

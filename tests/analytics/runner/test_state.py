@@ -22,7 +22,8 @@ from tecfleet.ingest.db import analysis as analysis_db
 #: 1.6 days of one with those sums folded into day blocks; and a unit without a cold-face
 #: probe whose R25 read from the module's voltage is followed (the track's source kept): the
 #: runner's final state of a simulated worn unit, its served R25 windows then followed by the
-#: tracker.
+#: tracker; and three days of a unit without a cold-face probe whose module rests (the time
+#: of its newest rest and whether its faces are trusted kept).
 STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
 
 

@@ -29,6 +29,7 @@ __all__ = [
     "faces_judged",
     "faces_r25",
     "rebase_ua",
+    "rested_lately",
     "track",
     "track_r25",
     "track_r25_from_voltage",
@@ -356,6 +357,15 @@ def faces_r25(state: DeviceState, b: int, cfg: AnalysisSettings) -> tuple[float,
     # least spread.
     spread = 1.4826 * float(np.median(np.abs(values - center)))
     return center, max(spread, 0.003 * center)
+
+
+def rested_lately(state: DeviceState, b: int, switch_offs: int, cfg: AnalysisSettings) -> bool:
+    """Whether the module rested (``faces_min_switch_offs`` switch-offs in a window) within
+    ``faces_r25_span_s`` up to the window ending at ``b`` (epoch ms UTC), given this
+    window's ``switch_offs``; the newest such window is kept in ``state.rested_ms``."""
+    if switch_offs >= cfg.faces_min_switch_offs:
+        state.rested_ms = b
+    return state.rested_ms is not None and b - state.rested_ms <= cfg.faces_r25_span_s * 1000
 
 
 def _r25_source(state: DeviceState, source: str | None) -> None:

@@ -32,6 +32,7 @@ from tecfleet.analytics.runner.tracks import (
     faces_judged,
     faces_r25,
     rebase_ua,
+    rested_lately,
     track_r25,
     track_r25_from_voltage,
     track_ua,
@@ -328,10 +329,8 @@ def _faces_trusted(
     # ``faces_r25_span_s``, this one or an earlier one.
     if win.probed == (True, True):
         return el.r_reliable
-    if int(np.sum(win.fl.on[:-1] & ~win.fl.on[1:])) >= cfg.faces_min_switch_offs:
-        state.rested_ms = win.b
-    lately = state.rested_ms is not None and win.b - state.rested_ms <= cfg.faces_r25_span_s * 1000
-    return el.r_reliable and lately
+    switch_offs = int(np.sum(win.fl.on[:-1] & ~win.fl.on[1:]))
+    return rested_lately(state, win.b, switch_offs, cfg) and el.r_reliable
 
 
 def _dt_offset_sd(state: DeviceState) -> float | None:

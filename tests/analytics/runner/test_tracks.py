@@ -16,6 +16,7 @@ from tecfleet.analytics.runner.tracks import (
     FLAGS_HELD_CABINET_PROBE_UNCHECKED,
     FLAGS_HELD_FACES_FROM_VOLTAGE,
     faces_judged,
+    rested_lately,
     track,
     track_r25_from_voltage,
 )
@@ -315,3 +316,18 @@ def test_ua_without_a_cold_probe_is_followed_at_a_reliable_r25_but_not_flagged()
     assert faces_judged((False, True), False, "ua")[0] is False
     assert faces_judged((False, True), True, "rhot") == (True, None)
     assert faces_judged((False, False), True, "ua") == (True, FLAGS_HELD_FACES_FROM_VOLTAGE)
+
+
+def test_a_module_counts_as_resting_for_two_days_after_its_last_rests() -> None:
+    # Common practice, no source: a failed fan keeps the module running, so what lets the
+    # thermal changes of a unit without a cold-face probe be followed is that its module
+    # rested lately, not in this window. 6-hourly windows made here: rests in the first
+    # two, then none (a fan failing, or a module that never rests).
+    cfg = AnalysisSettings()
+    six_h = 6 * 3_600_000
+    state = DeviceState()
+    offs = [5, 4] + [0] * 12
+    lately = [rested_lately(state, (j + 1) * six_h, n, cfg) for j, n in enumerate(offs)]
+    span = int(cfg.faces_r25_span_s * 1000) // six_h  # windows within the span: 8
+    assert lately == [True] * (2 + span) + [False] * (len(offs) - 2 - span)
+    assert rested_lately(DeviceState(), six_h, cfg.faces_min_switch_offs - 1, cfg) is False

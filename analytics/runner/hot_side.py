@@ -121,7 +121,7 @@ def hourly(
         return
     rows.est("hot_side.resistance_k_per_w", b, est)
     p = state.params
-    follow, held = faces_judged(probed, p is not None and bool(p.r25_reliable))
+    follow, held = faces_judged(probed, p is not None and bool(p.faces_trusted))
     if not follow:
         return
     rows.basis = est.basis

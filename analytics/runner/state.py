@@ -146,7 +146,7 @@ class ModuleParams(_Stored):
     faces_followed: bool | None = None
     #: Whether the newest window's R25 was served as reliable and, where faces are read
     #: from the voltage, the module had rested lately (see ``runner.window``).
-    r25_reliable: bool | None = None
+    faces_trusted: bool | None = None
 
 
 def _baselines(obj: dict[str, Any]) -> dict[str, Baseline]:

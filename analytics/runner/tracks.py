@@ -57,11 +57,12 @@ FLAGS_HELD_CABINET_PROBE_UNCHECKED = (
 
 
 def faces_judged(
-    probed: tuple[bool, bool], r25_reliable: bool | None, quantity: str = "rhot"
+    probed: tuple[bool, bool], faces_trusted: bool | None, quantity: str = "rhot"
 ) -> tuple[bool, str | None]:
     """Whether the changes of a thermal ``quantity`` ("rhot" or "ua") of a unit with these
     face probes (cold, hot) are followed, and why no flag is raised (None where one may
-    be), given whether the R25 its cold face was read with was served as reliable.
+    be), given whether its faces read from the voltage are trusted: the window's R25 was
+    served as reliable and the module rested lately (:func:`rested_lately`).
 
     Where only the cold face is read from the voltage, ΔT = (V - I·R)/S moves by I·R/S per
     unit relative error of R (Goldsmid 2010, ch. 2): at 3 A through 2 ohm and 50 mV/K, 1.2 K
@@ -73,7 +74,7 @@ def faces_judged(
     if probed == (True, True):
         return True, None
     if probed == (False, True):
-        return bool(r25_reliable), FLAGS_HELD_CABINET_PROBE_UNCHECKED if quantity == "ua" else None
+        return bool(faces_trusted), FLAGS_HELD_CABINET_PROBE_UNCHECKED if quantity == "ua" else None
     return True, FLAGS_HELD_FACES_FROM_VOLTAGE
 
 

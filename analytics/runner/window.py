@@ -139,7 +139,7 @@ def fit_window(
         _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
-        trusted = state.params is not None and bool(state.params.r25_reliable)
+        trusted = state.params is not None and bool(state.params.faces_trusted)
         follow, held = faces_judged(win.probed, trusted, "ua")
         if follow:
             reduced = win.probed != (True, True)
@@ -394,7 +394,7 @@ def _thermal(
         state.params = ModuleParams(k=k0, s25=el.s25, r25=el.r25)
     else:
         state.params.s25, state.params.r25 = el.s25, el.r25
-    state.params.r25_reliable = _faces_trusted(win, el, state, cfg)
+    state.params.faces_trusted = _faces_trusted(win, el, state, cfg)
     state.params.cov_rs = el.cov.tolist()
     k_settled = settled.k_settled(state, cfg)
     try:

@@ -280,10 +280,10 @@ def test_hot_side_followed_without_a_cold_probe_only_at_a_reliable_r25() -> None
     hour = 3_600_000
     values = [0.20] * 80 + [0.60] * 4
 
-    def run(probed: tuple[bool, bool], r25_reliable: bool) -> list[dict[str, Any]]:
+    def run(probed: tuple[bool, bool], faces_trusted: bool) -> list[dict[str, Any]]:
         rows = EstimateRows(DEVICE)
         state = DeviceState(k_trend=0.5)
-        state.params = ModuleParams(k=0.5, s25=0.05, r25=2.0, r25_reliable=r25_reliable)
+        state.params = ModuleParams(k=0.5, s25=0.05, r25=2.0, faces_trusted=faces_trusted)
         for j, v in enumerate(values):
             hourly((j + 1) * hour, Estimate(v, 0.01 * v, 60), rows, state, cfg, probed)
         return [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]

@@ -278,58 +278,52 @@ def _balance_ssr(
     return float(explained @ explained), float(res @ res), int(ok.sum())
 
 
-def _balance_crit(
-    x: FloatArray,
-    rows: tuple[FloatArray, ...],
-    tau: FloatArray,
-    s25: float,
-    r25_guess: float,
-    alpha: float,
-    beta: float,
-    options: DiagnosticsOptions,
-) -> float:
-    # The balance's criterion at R25 = r25_guess·(1 + x[0]) moving by x[1] per day [K²].
-    r = r25_guess * (1.0 + float(x[0]))
-    return _balance_ssr(r * (1.0 + float(x[1]) * tau), rows, s25, alpha, beta, options)[0]
+@dataclass(frozen=True)
+class _Balance:
+    """The cold face's balance over a window's rows (current [A], voltage [V], cabinet and
+    hot face [K]), their times from the driven samples' mean ``tau`` [day], at ``s25``
+    [V/K], searched about ``r25_guess`` [ohm]."""
+
+    rows: tuple[FloatArray, ...]
+    tau: FloatArray
+    s25: float
+    r25_guess: float
+    alpha: float
+    beta: float
+    options: DiagnosticsOptions
+
+    def ssr(self, r25: float | FloatArray) -> tuple[float, float, int]:
+        # See _balance_ssr.
+        return _balance_ssr(r25, self.rows, self.s25, self.alpha, self.beta, self.options)
+
+    def r25_at(self, x: FloatArray) -> FloatArray:
+        # R25 of each row at r25_guess·(1 + x[0]) moving by x[1] per day [ohm].
+        return self.r25_guess * (1.0 + float(x[0])) * (1.0 + float(x[1]) * self.tau)
+
+    def crit(self, x: FloatArray) -> float:
+        # The balance's criterion there [K²].
+        return self.ssr(self.r25_at(x))[0]
 
 
-def _flat_fit(
-    rows: tuple[FloatArray, ...],
-    s25: float,
-    r25_guess: float,
-    alpha: float,
-    beta: float,
-    options: DiagnosticsOptions,
-) -> float:
+def _flat_fit(bal: _Balance) -> float:
     # R25 held across the window by a bounded search (±30 % of the guess) [ohm].
     res = minimize_scalar(
-        lambda r: _balance_ssr(r, rows, s25, alpha, beta, options)[0],
-        bounds=(0.7 * r25_guess, 1.3 * r25_guess), method="bounded",
-        options={"xatol": 1e-5 * r25_guess},
+        lambda r: bal.ssr(r)[0],
+        bounds=(0.7 * bal.r25_guess, 1.3 * bal.r25_guess), method="bounded",
+        options={"xatol": 1e-5 * bal.r25_guess},
     )  # fmt: skip
     return float(res.x)
 
 
-def _drift_fit(
-    rows: tuple[FloatArray, ...],
-    tau: FloatArray,
-    s25: float,
-    r25_guess: float,
-    start: FloatArray,
-    alpha: float,
-    beta: float,
-    options: DiagnosticsOptions,
-    reach: float = 1.0,
-) -> FloatArray:
+def _drift_fit(bal: _Balance, start: FloatArray, reach: float = 1.0) -> FloatArray:
     # (R25/r25_guess - 1, drift per day) minimising the criterion from ``start``,
     # Nelder-Mead within ±30 % and ±balance_max_drift_per_day, the first simplex 2 % of R25
     # and a fifth of the drift's bound wide times ``reach`` (smaller from a nearby optimum).
-    g_max = options.balance_max_drift_per_day
+    g_max = bal.options.balance_max_drift_per_day
     x0 = np.clip(start, [-0.3, -g_max], [0.3, g_max])
     simplex = x0 + np.array([[0.0, 0.0], [0.02 * reach, 0.0], [0.0, 0.2 * g_max * reach]])
     res = minimize(
-        _balance_crit, x0, args=(rows, tau, s25, r25_guess, alpha, beta, options),
-        method="Nelder-Mead", bounds=[(-0.3, 0.3), (-g_max, g_max)],
+        bal.crit, x0, method="Nelder-Mead", bounds=[(-0.3, 0.3), (-g_max, g_max)],
         options={"initial_simplex": simplex, "xatol": 1e-4, "fatol": 1e-4},
     )  # fmt: skip
     return np.asarray(res.x, dtype=np.float64)
@@ -364,15 +358,7 @@ def _half_hessian_inverse(hess: FloatArray) -> FloatArray:
     return np.asarray(np.linalg.inv(0.5 * hess), dtype=np.float64)
 
 
-def _held_or_drifting(
-    rows: tuple[FloatArray, ...],
-    tau: FloatArray,
-    s25: float,
-    r25_guess: float,
-    alpha: float,
-    beta: float,
-    options: DiagnosticsOptions,
-) -> tuple[float, float, float, float]:
+def _held_or_drifting(bal: _Balance) -> tuple[float, float, float, float]:
     # R25 [ohm] held across the window or moving by a drift [1/day] (0 where held), the
     # scatter part of its standard error [ohm] and the balance's residual sd [K]. The drift
     # is kept where it lowers the criterion by more than σ²·ln n (G. Schwarz, Ann. Statist.
@@ -380,28 +366,25 @@ def _held_or_drifting(
     # The drift is fitted only where the held fit's quadratic model (its gradient and
     # curvature in the drift, ½·dᵀH⁻¹d) promises half that drop or where it is not curved
     # upwards: most windows of a steady module are spared the two-parameter search.
-    def crit(x: FloatArray) -> float:
-        return _balance_crit(x, rows, tau, s25, r25_guess, alpha, beta, options)
-
     def sigma_at(x: FloatArray, dof: int) -> float:
-        r = r25_guess * (1.0 + x[0]) * (1.0 + x[1] * tau)
-        _, ssr, used = _balance_ssr(r, rows, s25, alpha, beta, options)
+        _, ssr, used = bal.ssr(bal.r25_at(x))
         return math.sqrt(ssr / max(used - dof, 1))
 
-    flat = np.array([_flat_fit(rows, s25, r25_guess, alpha, beta, options) / r25_guess - 1.0, 0.0])
-    grad, hess = _curvature(flat, crit, np.array([1e-3, 1e-3]))
+    crit, guess, step = bal.crit, bal.r25_guess, np.array([1e-3, 1e-3])
+    flat = np.array([_flat_fit(bal) / guess - 1.0, 0.0])
+    grad, hess = _curvature(flat, crit, step)
     cov = _half_hessian_inverse(hess)
-    sigma, penalty = sigma_at(flat, 4), math.log(rows[0].size)
+    sigma, penalty = sigma_at(flat, 4), math.log(bal.rows[0].size)
     x, cov_r = flat, _half_hessian_inverse(hess[:1, :1])[0, 0]
     promised = 0.25 * float(grad @ cov @ grad) if np.all(np.isfinite(cov)) else math.inf
     if promised > 0.5 * sigma**2 * penalty:
-        moving = _drift_fit(rows, tau, s25, r25_guess, np.zeros(2), alpha, beta, options)
+        moving = _drift_fit(bal, np.zeros(2))
         sigma_m = sigma_at(moving, 5)
         if crit(flat) - crit(moving) > sigma_m**2 * penalty:
             x, sigma = moving, sigma_m
-            cov_r = _half_hessian_inverse(_curvature(moving, crit, np.array([1e-3, 1e-3]))[1])[0, 0]
-    scatter = r25_guess * sigma * math.sqrt(cov_r) if math.isfinite(cov_r) else math.inf
-    return r25_guess * (1.0 + float(x[0])), float(x[1]), scatter, sigma
+            cov_r = _half_hessian_inverse(_curvature(moving, crit, step)[1])[0, 0]
+    scatter = guess * sigma * math.sqrt(cov_r) if math.isfinite(cov_r) else math.inf
+    return guess * (1.0 + float(x[0])), float(x[1]), scatter, sigma
 
 
 def balance_resistance(
@@ -479,19 +462,15 @@ def balance_resistance(
     rows = tuple(np.asarray(x, dtype=np.float64)[ok] for x in (i, voltage, t_cabinet, t_hot))
     t = np.asarray(time_s, dtype=np.float64)
     tau = (t[ok] - float(np.mean(t[driven]))) / 86_400.0
-    r25, drift, scatter, sigma = _held_or_drifting(rows, tau, s25, r25_guess, alpha, beta, options)
+    bal = _Balance(rows, tau, s25, r25_guess, alpha, beta, options)
+    r25, drift, scatter, sigma = _held_or_drifting(bal)
     ds = options.seebeck_unit_rel_sd
+    at_s = [replace(bal, s25=s25 * (1.0 + e)) for e in (ds, -ds)]
     if drift == 0.0:
-        ends = [
-            _flat_fit(rows, s25 * (1.0 + e), r25_guess, alpha, beta, options) for e in (ds, -ds)
-        ]
+        ends = [_flat_fit(b) for b in at_s]
     else:
         start = np.array([r25 / r25_guess - 1.0, drift])
-        ends = [
-            r25_guess * (1.0 + _drift_fit(rows, tau, s25 * (1.0 + e), r25_guess, start, alpha,
-                                          beta, options, reach=0.25)[0])
-            for e in (ds, -ds)
-        ]  # fmt: skip
+        ends = [r25_guess * (1.0 + _drift_fit(b, start, reach=0.25)[0]) for b in at_s]
     s_part = 0.5 * abs(ends[0] - ends[1])
     se = math.hypot(scatter, s_part)
     on = rows[0] > options.on_current

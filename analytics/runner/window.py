@@ -77,6 +77,7 @@ class _Window:
     floating: bool
     probed: tuple[bool, bool]
     faces_unknown: int  # usable samples whose face temperatures neither probe nor voltage gave
+    switch_offs: int  # the module's switch-offs in the window
 
 
 @dataclass
@@ -184,18 +185,18 @@ def _window(data: Readings, b: int, cfg: AnalysisSettings) -> _Window | None:
         b=b, w=w, wt=wt, n=n, fl=fl, usable_th=usable_th, t=t, tcab=tcab, tc=tc, th=th, ta=ta,
         i=i, v=v, dt=dt, tm=tm, usable=usable, off=off, floating=floating, probed=data.probed,
         faces_unknown=int((fl.usable & ~known).sum()),
+        switch_offs=int(np.sum(fl.on[:-1] & ~fl.on[1:])),
     )  # fmt: skip
 
 
 def _quality_rows(win: _Window, rows: EstimateRows) -> None:
     b, n, fl, usable = win.b, win.n, win.fl, win.fl.usable
-    switch_offs = int(np.sum(fl.on[:-1] & ~fl.on[1:]))
     excluded = int(n - usable.sum())
     rows.add("quality.samples", b, float(usable.sum()), None, n)
     rows.add("quality.left_out", b, float(excluded), None, n)
     for reason, count in fl.counts.items():
         rows.add(f"quality.left_out_{reason}", b, float(count), None, n)
-    rows.add("quality.switch_offs", b, float(switch_offs), None, n)
+    rows.add("quality.switch_offs", b, float(win.switch_offs), None, n)
     rows.add("quality.driver_floating", b, 1.0 if win.floating else 0.0, None, n)
     if win.probed != (True, True):
         missing = _missing_faces(win.probed)
@@ -329,8 +330,7 @@ def _faces_trusted(
     # ``faces_r25_span_s``, this one or an earlier one.
     if win.probed == (True, True):
         return el.r_reliable
-    switch_offs = int(np.sum(win.fl.on[:-1] & ~win.fl.on[1:]))
-    return rested_lately(state, win.b, switch_offs, cfg) and el.r_reliable
+    return rested_lately(state, win.b, win.switch_offs, cfg) and el.r_reliable
 
 
 def _dt_offset_sd(state: DeviceState) -> float | None:

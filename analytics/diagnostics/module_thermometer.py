@@ -697,9 +697,12 @@ def _faces_checked(
     alpha: float,
     beta: float,
     options: DiagnosticsOptions,
+    r25_read: tuple[float, float] | None = None,
 ) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
     # ΔT and its sd, Tm and its sd read from the voltage at the step's R25 (ΔT only while
     # driven where the driver does not float), refused where the heat flows rule that ΔT out.
+    # With ``r25_read`` (R25 and its error [ohm]) they are then read at that steadier one:
+    # the step's own must still pass, since a resistance the heat flows rule out is not served.
     dt, tm, tm_sd = _faces_at(i, v, tcab, ta, th, step.r25, s25, alpha, beta, options)
     on = i > options.on_current
     if not floating:
@@ -711,30 +714,10 @@ def _faces_checked(
     if th is not None:
         tm_sd = np.hypot(tm_sd, 0.5 * dt_se)
     _check_lift(dt, dt_se, on, ta - tcab)
+    if r25_read is not None:
+        given = replace(step, r25=r25_read[0], r25_se=r25_read[1])
+        return _faces_checked(i, v, tcab, ta, th, given, floating, s25, alpha, beta, options)
     return dt, dt_se, tm, tm_sd
-
-
-def _faces_vetted(
-    i: FloatArray,
-    v: FloatArray,
-    tcab: FloatArray,
-    ta: FloatArray,
-    th: FloatArray | None,
-    step: StepResistance,
-    r25_read: tuple[float, float] | None,
-    floating: bool,
-    s25: float,
-    alpha: float,
-    beta: float,
-    options: DiagnosticsOptions,
-) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
-    # As _faces_checked at the readings' own R25, which the heat flows must allow even where
-    # ΔT is then read at a steadier one given: a resistance they rule out is not served.
-    faces = _faces_checked(i, v, tcab, ta, th, step, floating, s25, alpha, beta, options)
-    if r25_read is None:
-        return faces
-    given = replace(step, r25=r25_read[0], r25_se=r25_read[1])
-    return _faces_checked(i, v, tcab, ta, th, given, floating, s25, alpha, beta, options)
 
 
 def reconstruct_faces(
@@ -817,8 +800,8 @@ def reconstruct_faces(
             time_s, i, v, tcab, ta, th, usable, s25=s25, alpha=alpha, options=options
         )
         how = f"R25 from {step.n_steps} switch-off steps"
-        dt, dt_se, tm, tm_sd = _faces_vetted(
-            i, v, tcab, ta, th, step, r25_read, floating, s25, alpha, beta, options
+        dt, dt_se, tm, tm_sd = _faces_checked(
+            i, v, tcab, ta, th, step, floating, s25, alpha, beta, options, r25_read
         )
     except InsufficientDataError:
         # Faces that follow the current within a sample: no step gives R, but with the hot
@@ -833,8 +816,8 @@ def reconstruct_faces(
         how = f"R25 from the cold face's steady heat balance over {step.n_steps} samples"
         if step.drift_per_day != 0.0:
             how += f", moving {100.0 * step.drift_per_day:+.2f} %/day across them"
-        dt, dt_se, tm, tm_sd = _faces_vetted(
-            i, v, tcab, ta, th, step, r25_read, floating, s25, alpha, beta, options
+        dt, dt_se, tm, tm_sd = _faces_checked(
+            i, v, tcab, ta, th, step, floating, s25, alpha, beta, options, r25_read
         )
     if r25_read is not None:
         how += f"; ΔT read at R25 {r25_read[0]:.4g} ohm from the unit's recent windows"

@@ -69,6 +69,16 @@ def register(engine: Engine, spec: sim.FleetSpec, first_seen_ms: int | None) -> 
         )  # fmt: skip
 
 
+def stored_readings(spec: sim.FleetSpec, days: float) -> list[db.Reading]:
+    """``days`` of ``spec`` simulated, as the readings the ingester stores."""
+    simulator = sim.Simulator(spec)
+    total = round(days * 86_400.0 / spec.interval_s)
+    out: list[db.Reading] = []
+    for done in range(0, total, CHUNK):
+        out += _readings(spec, simulator.run(min(CHUNK, total - done)))
+    return out
+
+
 def _readings(spec: Any, chunk: Any) -> list[db.Reading]:
     m = chunk.measured
     j, i = np.nonzero(chunk.present)

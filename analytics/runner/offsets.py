@@ -16,6 +16,7 @@ import numpy as np
 
 from tecfleet.analytics import physics
 from tecfleet.analytics._validate import T_25C_K, FloatArray
+from tecfleet.analytics.diagnostics import cabinet_probe as cp
 from tecfleet.analytics.diagnostics import probe_offsets as po
 from tecfleet.analytics.errors import PhysicsError
 from tecfleet.analytics.runner import settled
@@ -24,7 +25,7 @@ from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState, remember
 
-__all__ = ["corrected", "offset_cov", "settings_for", "update_offsets"]
+__all__ = ["check_cabinet_probe", "corrected", "offset_cov", "settings_for", "update_offsets"]
 
 #: Rest moments kept per unit [-] (common practice, no source).
 _KEEP_RESTS = 20
@@ -77,6 +78,47 @@ def update_offsets(
         # practice, no source).
         ok = bool(se < (2.0 / 3.0) * cfg.probe_offset_k / math.sqrt(2.0))
         rows.add(f"probes.offset_{name}_k", b, float(value), float(se), n, ok, est.basis)
+
+
+def check_cabinet_probe(
+    data: Readings,
+    b: int,
+    floating: bool,
+    prior: physics.ModuleParameters | None,
+    rows: EstimateRows,
+    state: DeviceState,
+    cfg: AnalysisSettings,
+) -> None:
+    """Judge the cabinet probe of a unit without a cold-face probe whose module floats, over
+    the thermal window ending at ``b`` (epoch ms UTC): the cold side's balance against the
+    face read from the open-circuit voltage (:mod:`diagnostics.cabinet_probe`), fitted on
+    the first window that has ``cabinet_check_min_samples`` off samples and kept, and this
+    window's shift from it, stored as ``probes.cabinet_shift_k`` and in
+    ``state.cabinet_shift``. The rated S and K are used throughout, so that the balance's
+    constant moves with the probe alone. The readings as the probes give them: the offsets'
+    correction follows the rests, which a drift also moves."""
+    state.cabinet_shift = None
+    if data.probed != (False, True) or not floating or prior is None:
+        return
+    wt = data.slice(b - cfg.thermal_window_s * 1000, b)
+    fl = flags_of(data, wt)
+    tc, qc = cp.floating_cold_face(data.th[wt], data.v[wt], prior.seebeck, prior.conductance)
+    judged = fl.usable & ~fl.on
+    need = cfg.cabinet_check_min_samples
+    if state.cabinet_baseline is None:
+        fit = cp.fit_cold_side_baseline(data.tcab[wt], tc, qc, judged, need)
+        if fit is None:
+            return
+        state.cabinet_baseline = list(fit)
+    base = state.cabinet_baseline
+    shift, se, n = cp.window_shift(data.tcab[wt], tc, qc, judged, (base[0], base[1]))
+    if n < need:
+        return
+    state.cabinet_shift = shift
+    rows.add(
+        "probes.cabinet_shift_k", b, shift, se, n, True, None,
+        "cabinet probe against the cold face read from the open-circuit voltage",
+    )  # fmt: skip
 
 
 def _seebeck(

@@ -101,6 +101,15 @@ class AnalysisSettings:
     #: window's own rests: a failed fan keeps the module running (common practice, no
     #: source).
     faces_min_switch_offs: int = 3
+    #: Where the cold face has no probe, off samples of a floating module a window needs to
+    #: judge the cabinet probe against the cold side's balance, and its commissioning fit
+    #: too [-]: a median of 30 samples scattering by a probe's 0.1 K step is good to a few
+    #: hundredths of a kelvin (common practice, no source).
+    cabinet_check_min_samples: int = 30
+    #: Largest shift of the cabinet probe against that balance at which UA's flag may be
+    #: raised without a cold-face probe [K]: half a kelvin over an ambient lead of 10 K or
+    #: more moves UA by 5 % at most, a seventh of ``ua_flag_pct`` (common practice, no source).
+    cabinet_shift_max_k: float = 0.5
     #: Change of UA against its baseline that raises its flag [%] (common practice, no
     #: source).
     ua_flag_pct: float = 35.0

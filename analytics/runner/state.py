@@ -219,6 +219,13 @@ class DeviceState(_Stored):
     probe_offsets: list[float] | None = None
     #: Their covariance [K²].
     probe_offset_cov: list[list[float]] | None = None
+    #: Where the cold face has no probe but the module floats: the cabinet probe's
+    #: commissioning balance against the face read from the open-circuit voltage, [offset
+    #: [K], r_cold [K/W]] (see ``runner.offsets.check_cabinet_probe``).
+    cabinet_baseline: list[float] | None = None
+    #: The newest window's shift of the cabinet probe against that balance [K]; None where
+    #: the window could not judge it.
+    cabinet_shift: float | None = None
 
     def series_by_name(self) -> dict[str, list[Point]]:
         if self.series is None:

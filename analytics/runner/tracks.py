@@ -22,9 +22,11 @@ from tecfleet.analytics.runner.settled import s_settled
 from tecfleet.analytics.runner.state import Baseline, DeviceState, Point, UaLead
 
 __all__ = [
+    "FLAGS_HELD_CABINET_PROBE_MOVED",
     "FLAGS_HELD_CABINET_PROBE_UNCHECKED",
     "FLAGS_HELD_FACES_FROM_VOLTAGE",
     "ambient_lead_usual",
+    "cabinet_moved",
     "daily_medians_before",
     "faces_judged",
     "faces_r25",
@@ -46,36 +48,60 @@ FLAGS_HELD_FACES_FROM_VOLTAGE = (
 )
 
 
-#: Why UA raises no flag on a unit with a hot-face probe and none on the cold face: the
-#: cabinet probe's drift is told from the cold face's probe (``alerts.rules.probe_drift``),
-#: and a cabinet probe drifting warm reads as a heat leak (simulated: UA +36 % from a 3 K
-#: drift over six days).
+#: Why UA raises no flag on a unit with a hot-face probe and none on the cold face whose
+#: cabinet probe could not be judged: a drifting cabinet probe reads as a heat leak
+#: (simulated: UA +36 % from a 3 K drift over six days), and without the cold-face probe only
+#: a floating module's open-circuit voltage shows it (``offsets.check_cabinet_probe``).
 FLAGS_HELD_CABINET_PROBE_UNCHECKED = (
-    "no cold-face probe: UA's changes are followed, but no flag is raised, since a drifting "
-    "cabinet probe, which only the cold-face probe shows, would read as a heat leak"
+    "no cold-face probe and no open-circuit voltage to judge the cabinet probe by: UA's "
+    "changes are followed, but no flag is raised, since a drifting cabinet probe would read "
+    "as a heat leak"
+)
+
+#: Why UA raises no flag where the cabinet probe has moved against the cold side's balance.
+FLAGS_HELD_CABINET_PROBE_MOVED = (
+    "the cabinet probe has moved against the cold face read from the open-circuit voltage: "
+    "UA's changes are followed, but no flag is raised while the probe may be drifting"
 )
 
 
 def faces_judged(
-    probed: tuple[bool, bool], faces_trusted: bool | None, quantity: str = "rhot"
+    probed: tuple[bool, bool],
+    faces_trusted: bool | None,
+    quantity: str = "rhot",
+    cabinet_moved: bool | None = None,
 ) -> tuple[bool, str | None]:
     """Whether the changes of a thermal ``quantity`` ("rhot" or "ua") of a unit with these
     face probes (cold, hot) are followed, and why no flag is raised (None where one may
     be), given whether its faces read from the voltage are trusted: the window's R25 was
-    served as reliable and the module rested lately (:func:`rested_lately`).
+    served as reliable and the module rested lately (:func:`rested_lately`), and whether
+    its cabinet probe has moved (:func:`cabinet_moved`; None: not judged).
 
     Where only the cold face is read from the voltage, ΔT = (V - I·R)/S moves by I·R/S per
     unit relative error of R (Goldsmid 2010, ch. 2): at 3 A through 2 ohm and 50 mV/K, 1.2 K
     per 1 %, about twice that with Tm = Th - ΔT/2 solved with ΔT. A window's R25 that the
     readings could not pin down (a module that never rests) wanders by several per cent
     from window to window, so those windows' UA and hot-side figures are not followed. The
-    others are: the hot side flags as on the full set, UA's flag is held
-    (:data:`FLAGS_HELD_CABINET_PROBE_UNCHECKED`)."""
+    others are: the hot side flags as on the full set, UA where its cabinet probe was judged
+    and has not moved (:data:`FLAGS_HELD_CABINET_PROBE_UNCHECKED`,
+    :data:`FLAGS_HELD_CABINET_PROBE_MOVED`)."""
     if probed == (True, True):
         return True, None
     if probed == (False, True):
-        return bool(faces_trusted), FLAGS_HELD_CABINET_PROBE_UNCHECKED if quantity == "ua" else None
+        if quantity != "ua" or cabinet_moved is False:
+            return bool(faces_trusted), None
+        held = FLAGS_HELD_CABINET_PROBE_UNCHECKED
+        return bool(faces_trusted), FLAGS_HELD_CABINET_PROBE_MOVED if cabinet_moved else held
     return True, FLAGS_HELD_FACES_FROM_VOLTAGE
+
+
+def cabinet_moved(state: DeviceState, cfg: AnalysisSettings) -> bool | None:
+    """Whether the newest window found the cabinet probe moved by more than
+    ``cabinet_shift_max_k`` against the cold side's balance (``offsets.check_cabinet_probe``);
+    None where it could not judge it."""
+    if state.cabinet_shift is None:
+        return None
+    return abs(state.cabinet_shift) > cfg.cabinet_shift_max_k
 
 
 def track(

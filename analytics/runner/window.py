@@ -29,6 +29,7 @@ from tecfleet.analytics.runner.settings import (
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
 from tecfleet.analytics.runner.tracks import (
     ambient_lead_usual,
+    cabinet_moved,
     faces_judged,
     faces_r25,
     rebase_ua,
@@ -112,6 +113,7 @@ def fit_window(
     # offset prior narrowed to what is left of it. The offsets rest on the probes as read,
     # so they are found before any face is read from the module's voltage.
     offsets.update_offsets(data, b, raw.floating, prior, rows, state, cfg)
+    offsets.check_cabinet_probe(data, b, raw.floating, prior, rows, state, cfg)
     # R and S's stated errors keep the offset prior (see diagnostics.fit_electrical).
     data, cfg_el, cfg = offsets.corrected(data, state), cfg, offsets.settings_for(state, cfg)
     # Where a face probe is missing, the faces of the thermal window from its own readings.
@@ -141,7 +143,7 @@ def fit_window(
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
         trusted = state.params is not None and bool(state.params.faces_trusted)
-        follow, held = faces_judged(win.probed, trusted, "ua")
+        follow, held = faces_judged(win.probed, trusted, "ua", cabinet_moved(state, cfg))
         if follow:
             reduced = win.probed != (True, True)
             _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held, reduced)

@@ -3,7 +3,6 @@ the probe's change since then, which a drifting probe moves and a healthy unit d
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from typing import Any
 
@@ -15,12 +14,19 @@ from tecfleet.analytics.alerts.constants import MS_HOUR, T0
 from tecfleet.analytics.alerts.observations import BoolArray, FloatArray, IntArray
 from tecfleet.analytics.alerts.policy import AlertPolicy
 from tecfleet.analytics.alerts.scope import DeviceScope, load_readings
+from tecfleet.analytics.diagnostics.cabinet_probe import (
+    cold_side_heat_balance,
+    fit_cold_side_baseline,
+    floating_cold_face,
+)
+from tecfleet.analytics.diagnostics.electrical import floating_from_voltage
 from tecfleet.analytics.diagnostics.intervals import usual_interval
 from tecfleet.ingest import db
 
 __all__ = [
     "PROBE_DRIFT_ISSUE",
     "cabinet_probe_offset",
+    "cold_side",
     "cold_side_heat_balance",
     "drift_since",
     "fit_cold_side_baseline",
@@ -31,56 +37,6 @@ __all__ = [
 
 #: The sensor-fault issue a moved cabinet probe raises.
 PROBE_DRIFT_ISSUE = "t_cabinet off the cold side's heat balance"
-
-
-def cold_side_heat_balance(
-    current: FloatArray,
-    t_cold_c: FloatArray,
-    t_hot_c: FloatArray,
-    voltage: FloatArray,
-    seebeck: float,
-    conductance: float,
-) -> FloatArray:
-    """Heat pumped at the cold face [W] from the readings.
-
-    Qc = S·I·Tc − ½·I²·R − K·(Th − Tc) (Ioffe 1957; Goldsmid 2010, ch. 2; as
-    :func:`tecfleet.analytics.physics.cold_side_heat`), with the Joule term taken from the
-    measured voltage, I·R = V − S·(Th − Tc), so a module whose resistance rises with wear does
-    not look like a drifting probe. ``seebeck`` [V/K] and ``conductance`` [W/K] of the module
-    (from its ratings), temperatures [°C], current [A], voltage [V].
-    """
-    tc = np.asarray(t_cold_c, np.float64) + T0
-    th = np.asarray(t_hot_c, np.float64) + T0
-    i = np.asarray(current, np.float64)
-    v = np.asarray(voltage, np.float64)
-    joule = 0.5 * i * (v - seebeck * (th - tc))
-    return np.asarray(seebeck * i * tc - joule - conductance * (th - tc), np.float64)
-
-
-def fit_cold_side_baseline(
-    t_cabinet: FloatArray,
-    t_cold: FloatArray,
-    qc: FloatArray,
-    running: BoolArray,
-    min_samples: int = 300,
-) -> tuple[float, float] | None:
-    """Commissioning fit t_cabinet − t_cold = offset + r_cold·Qc over running samples.
-
-    The cabinet air gives its heat to the cold side through r_cold [K/W], so with the module
-    running the difference follows the pumped heat; ``offset`` [K] holds the probes' fixed
-    biases and what the rated module parameters miss. Returns (offset, r_cold), or None when
-    there are under ``min_samples`` running samples (see :func:`running_samples_needed`) or
-    the fit is not physical (r_cold ≤ 0).
-    """
-    ok = running & np.isfinite(t_cabinet) & np.isfinite(t_cold) & np.isfinite(qc)
-    if int(ok.sum()) < min_samples or float(np.std(qc[ok])) <= 0.0:
-        return None
-    x = np.column_stack([np.ones(int(ok.sum())), qc[ok]])
-    coef, *_ = np.linalg.lstsq(x, t_cabinet[ok] - t_cold[ok], rcond=None)
-    offset, r_cold = float(coef[0]), float(coef[1])
-    if not (math.isfinite(offset) and math.isfinite(r_cold)) or r_cold <= 0.0:
-        return None
-    return offset, r_cold
 
 
 def cabinet_probe_offset(
@@ -155,6 +111,30 @@ def _module_constants(module: Mapping[str, Any] | None) -> tuple[float, float] |
     return float(params.seebeck), float(params.conductance)
 
 
+def cold_side(
+    frame: pd.DataFrame, seebeck: float, conductance: float, min_current_a: float
+) -> tuple[FloatArray, FloatArray, BoolArray]:
+    """The cold face's temperature [°C] and heat [W] per row of ``frame``, and the rows the
+    cold side's balance is judged on. With a cold-face probe: the probe and the driven
+    module's equations, on rows above ``min_current_a`` [A]. Without one, where the driver
+    lets the module float: the face read from the open-circuit voltage on rows without
+    current (:func:`tecfleet.analytics.diagnostics.cabinet_probe.floating_cold_face`); no
+    row is judged where it neither has the probe nor floats. ``seebeck`` [V/K] and
+    ``conductance`` [W/K] of the module, from its ratings."""
+    cur = frame["current"].to_numpy(np.float64)
+    v = frame["voltage"].to_numpy(np.float64)
+    t_hot = frame["t_hot"].to_numpy(np.float64)
+    t_cold = frame["t_cold"].to_numpy(np.float64)
+    if np.isfinite(t_cold).any():
+        qc = cold_side_heat_balance(cur, t_cold, t_hot, v, seebeck, conductance)
+        return t_cold, qc, cur > min_current_a
+    off = np.abs(cur) <= min_current_a
+    if not floating_from_voltage(v[off & np.isfinite(v)]):
+        return t_cold, np.full(len(frame), np.nan), np.zeros(len(frame), bool)
+    t_cold, qc = floating_cold_face(t_hot, v, seebeck, conductance)
+    return t_cold, qc, off & np.isfinite(t_cold)
+
+
 def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
     """The commissioning fit of the cabinet probe against the cold side's heat balance, made
     once over the first ``drift_baseline_s`` of the unit's readings and kept in the state."""
@@ -181,22 +161,14 @@ def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
         1000.0 * usual_interval(base["ts_ms"].to_numpy(np.float64) / 1000.0),
         policy.drift_min_samples_floor,
     )
-    running = base["current"].to_numpy(np.float64) > policy.drift_min_current_a
-    qc = cold_side_heat_balance(
-        base["current"].to_numpy(np.float64), base["t_cold"].to_numpy(np.float64),
-        base["t_hot"].to_numpy(np.float64), base["voltage"].to_numpy(np.float64), *consts,
-    )  # fmt: skip
+    t_cold, qc, running = cold_side(base, *consts, policy.drift_min_current_a)
     fit = fit_cold_side_baseline(
-        base["t_cabinet"].to_numpy(np.float64),
-        base["t_cold"].to_numpy(np.float64),
-        qc,
-        running,
-        int(needed),
+        base["t_cabinet"].to_numpy(np.float64), t_cold, qc, running, int(needed)
     )
     if fit is None:
         state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
         return None
-    across = (base["t_hot"] - base["t_cold"]).to_numpy(np.float64)[running]
+    across = (base["t_hot"].to_numpy(np.float64) - t_cold)[running]
     state["probe_baseline"] = {
         "from_ms": int(first_ms), "to_ms": end_ms, "offset_k": fit[0], "r_cold": fit[1],
         "seebeck": consts[0], "conductance": consts[1],
@@ -216,19 +188,16 @@ def probe_offsets(
     the module's ratings holds where it was fitted, and a failed fan or a pull-down after a
     power cut drives the module far beyond it."""
     t = frame["ts_ms"].to_numpy(np.int64)
-    cur = frame["current"].to_numpy(np.float64)
-    running = cur > policy.drift_min_current_a
+    t_cold, qc, running = cold_side(
+        frame, float(baseline["seebeck"]), float(baseline["conductance"]),
+        policy.drift_min_current_a,
+    )  # fmt: skip
     if baseline.get("dt_max_k") is not None:
-        across = (frame["t_hot"] - frame["t_cold"]).to_numpy(np.float64)
+        across = frame["t_hot"].to_numpy(np.float64) - t_cold
         with np.errstate(invalid="ignore"):
             running &= ~(across > float(baseline["dt_max_k"]) + policy.drift_dt_margin_k)
-    qc = cold_side_heat_balance(
-        cur, frame["t_cold"].to_numpy(np.float64), frame["t_hot"].to_numpy(np.float64),
-        frame["voltage"].to_numpy(np.float64), float(baseline["seebeck"]),
-        float(baseline["conductance"]),
-    )  # fmt: skip
     off = cabinet_probe_offset(
-        t, frame["t_cabinet"].to_numpy(np.float64), frame["t_cold"].to_numpy(np.float64), qc,
+        t, frame["t_cabinet"].to_numpy(np.float64), t_cold, qc,
         running, (float(baseline["offset_k"]), float(baseline["r_cold"])),
         policy.drift_window_s,
         running_samples_needed(policy.drift_min_samples, interval, policy.drift_min_samples_floor),

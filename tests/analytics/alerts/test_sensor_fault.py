@@ -325,20 +325,26 @@ def test_running_samples_for_the_drift_figures_scale_with_the_usual_interval() -
         assert float(got) == base
 
 
+@pytest.mark.parametrize("sensor_set", ["full", "no_cold"])
 def test_at_fifteen_minutes_a_drifting_cabinet_probe_is_found_and_a_steady_one_is_not(
-    engine: sa.Engine,
+    engine: sa.Engine, sensor_set: str
 ) -> None:
     # Two units reporting every 15 minutes for 9 days; the simulator drifts one's cabinet
     # probe by 3 K over 3 days from day 3.5 (its truth), so it is 1 K off a day in. The
     # commissioning fit over the first two days holds under 300 running samples at this
     # interval: the drift must still be found, within the 3 days the alert bench allows
-    # (common practice, no source), and the steady unit never flagged.
+    # (common practice, no source), and the steady unit never flagged. Without a cold-face
+    # probe the floating module's off samples give the cold face, Tc = Th − V/S, and its
+    # heat, −K·ΔT (Goldsmid 2010, ch. 2).
     at = START_15 + 3.5 * 86_400.0
     fault = sim.Fault(
         "sensor", "dr-1", at, magnitude=3.0, ramp_s=3 * 86_400.0, channel="t_cabinet",
         mode="drift",
     )  # fmt: skip
-    _store_pair_at_fifteen_minutes(engine, "dr", 206, fault, 9.0, registered=True)
+    _store_pair_at_fifteen_minutes(
+        engine, "dr", 206, fault, 9.0, registered=True, sensor_set=sensor_set,
+        off_voltage="open_circuit",
+    )  # fmt: skip
     alerts.evaluate(engine)
     opened = _opened(engine, "dr-1")
     assert opened, "the drifting probe was not found"

@@ -23,7 +23,9 @@ from tecfleet.ingest.db import analysis as analysis_db
 #: probe whose R25 read from the module's voltage is followed (the track's source kept): the
 #: runner's final state of a simulated worn unit, its served R25 windows then followed by the
 #: tracker; and three days of a unit without a cold-face probe whose module rests (the time
-#: of its newest rest and whether its faces are trusted kept).
+#: of its newest rest and whether its faces are trusted kept); and the final state of a
+#: simulated unit without a cold-face probe whose cabinet probe drifted 3 K (the cabinet
+#: probe's balance against the open-circuit face and its newest shift kept).
 STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
 
 

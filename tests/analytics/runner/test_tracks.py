@@ -13,8 +13,10 @@ from tecfleet.analytics.runner.hot_side import hourly
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams
 from tecfleet.analytics.runner.tracks import (
+    FLAGS_HELD_CABINET_PROBE_MOVED,
     FLAGS_HELD_CABINET_PROBE_UNCHECKED,
     FLAGS_HELD_FACES_FROM_VOLTAGE,
+    cabinet_moved,
     faces_judged,
     rested_lately,
     track,
@@ -307,15 +309,30 @@ def test_hot_side_followed_without_a_cold_probe_only_at_a_reliable_r25() -> None
     assert max(r["value"] for r in keys(no_faces, "hot_side.resistance.change_pct")) > 150.0
 
 
-def test_ua_without_a_cold_probe_is_followed_at_a_reliable_r25_but_not_flagged() -> None:
+def test_ua_without_a_cold_probe_flags_only_where_the_cabinet_probe_was_judged_unmoved() -> None:
     # A cabinet probe drifting warm lowers Ta - Tcab and so raises UA = Q/(Ta - Tcab) (the
-    # lumped balance, Incropera et al. 2007, ch. 5); only the cold-face probe shows the drift,
-    # so without it UA's change is served and its flag held, with the reason.
+    # lumped balance, Incropera et al. 2007, ch. 5). Without the cold-face probe, only a
+    # floating module's open-circuit face shows the drift: UA's flag may be raised where that
+    # check ran and found the probe in place, and is held, with the reason, where it found
+    # it moved or could not run.
     assert faces_judged((True, True), False, "ua") == (True, None)
     assert faces_judged((False, True), True, "ua") == (True, FLAGS_HELD_CABINET_PROBE_UNCHECKED)
-    assert faces_judged((False, True), False, "ua")[0] is False
+    assert faces_judged((False, True), True, "ua", None)[1] == FLAGS_HELD_CABINET_PROBE_UNCHECKED
+    assert faces_judged((False, True), True, "ua", False) == (True, None)
+    assert faces_judged((False, True), True, "ua", True) == (True, FLAGS_HELD_CABINET_PROBE_MOVED)
+    assert faces_judged((False, True), False, "ua", False)[0] is False
     assert faces_judged((False, True), True, "rhot") == (True, None)
-    assert faces_judged((False, False), True, "ua") == (True, FLAGS_HELD_FACES_FROM_VOLTAGE)
+    assert faces_judged((False, False), True, "ua", False) == (True, FLAGS_HELD_FACES_FROM_VOLTAGE)
+
+
+def test_the_cabinet_probe_counts_as_moved_beyond_its_largest_shift() -> None:
+    cfg = AnalysisSettings()
+    state = DeviceState()
+    assert cabinet_moved(state, cfg) is None
+    state.cabinet_shift = 0.9 * cfg.cabinet_shift_max_k
+    assert cabinet_moved(state, cfg) is False
+    state.cabinet_shift = -1.1 * cfg.cabinet_shift_max_k
+    assert cabinet_moved(state, cfg) is True
 
 
 def test_a_module_counts_as_resting_for_two_days_after_its_last_rests() -> None:

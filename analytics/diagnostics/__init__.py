@@ -16,6 +16,8 @@ Modules, in the order the diagnosis runs:
   :mod:`.sinks`, :mod:`.cabinet`, :mod:`.error_budget` and :mod:`.integrals`;
 - :mod:`.probe_offsets` - the probes' offsets from rests and the open-circuit voltage
   (:func:`.probe_offsets.probe_offsets`);
+- :mod:`.cabinet_probe` - the cabinet probe against the cold side's balance, with the cold
+  face from a probe or a floating module's open-circuit voltage;
 - :mod:`.hot_side` - the hot side's resistance hour by hour;
 - :mod:`.intervals` - the readings' usual interval and the time scales it sets;
 - :mod:`.performance` - cooling, COP and capacity at the setpoint;

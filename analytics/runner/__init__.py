@@ -74,6 +74,10 @@ module.days_to_wear_limit                      days until R25 reaches the wear l
 probes.offset_cabinet_k / _cold_k / _hot_k     the probe's offset from the ambient probe [K],
                                                from rests and the open-circuit voltage (note:
                                                the basis); temperatures are corrected by it
+probes.cabinet_shift_k                         without a cold-face probe: the cabinet probe's
+                                               shift against the cold face a floating module's
+                                               open-circuit voltage gives [K]; UA flags only
+                                               within cabinet_shift_max_k
 quality.samples / quality.left_out_*           samples used and left out, by reason
 quality.switch_offs / quality.driver_floating  on/off cycles seen; open-circuit voltage seen
 =============================================  ============================================

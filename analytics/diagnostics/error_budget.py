@@ -141,8 +141,7 @@ def cabinet_stderrs(
     dua_dk, dua_offset = abs(float(resp_cab[0, 0])), ua * abs(float(resp_cab[3, 0]))
     dua_el = resp_cab[1:3, 0] + dk_el * float(resp_cab[0, 0])
     cov_el = np.zeros((2, 2)) if sr_rel_cov is None else np.asarray(sr_rel_cov, dtype=np.float64)
-    k_el = math.sqrt(max(float(dk_el @ cov_el @ dk_el), 0.0))
-    ua_el = math.sqrt(max(float(dua_el @ cov_el @ dua_el), 0.0))
+    k_el, ua_el = _combined_sd(dk_el, cov_el), _combined_sd(dua_el, cov_el)
     ua_sd = math.hypot(float(sd2[0]), 0.0 if held_cab else k_sd * dua_dk)
     ua_probe = math.hypot(
         k_probe * dua_dk,
@@ -161,3 +160,15 @@ def cabinet_stderrs(
         "q_internal": float(sd2[1]),
         "c": float(sd2[2]),
     }
+
+
+def _combined_sd(weights: FloatArray, cov: FloatArray) -> float:
+    """√(wᵀ·C·w): the standard error of a first-order combination with ``weights`` of
+    parameters with covariance ``cov`` (JCGM 100:2008, eq. (13); from memory). A parameter
+    the readings left unbounded (infinite variance) makes it infinite where its weight is
+    not zero and adds nothing where it is, rather than the NaN of 0·∞."""
+    used = np.asarray(weights, np.float64) != 0.0
+    w, c = np.asarray(weights, np.float64)[used], np.asarray(cov, np.float64)[np.ix_(used, used)]
+    if not np.all(np.isfinite(c)):
+        return math.inf
+    return math.sqrt(max(float(w @ c @ w), 0.0))

@@ -25,6 +25,7 @@ __all__ = [
     "FLAGS_HELD_CABINET_PROBE_MOVED",
     "FLAGS_HELD_CABINET_PROBE_UNCHECKED",
     "FLAGS_HELD_FACES_FROM_VOLTAGE",
+    "FLAGS_HELD_R25_CABINET_PROBE_MOVED",
     "ambient_lead_usual",
     "cabinet_moved",
     "daily_medians_before",
@@ -56,6 +57,14 @@ FLAGS_HELD_CABINET_PROBE_UNCHECKED = (
     "no cold-face probe and no open-circuit voltage to judge the cabinet probe by: UA's "
     "changes are followed, but no flag is raised, since a drifting cabinet probe would read "
     "as a heat leak"
+)
+
+#: Why R25 raises no flag where the cabinet probe has moved: without a cold-face probe R25
+#: is read from the cold face's balance with the cabinet probe (and its drift within the
+#: window) where no switch-off step gives it (simulated: +3.1 % on a 3 K drift).
+FLAGS_HELD_R25_CABINET_PROBE_MOVED = (
+    "the cabinet probe has moved against the cold face read from the open-circuit voltage: "
+    "R25, read from the cold face's balance with it, is followed, but no flag is raised"
 )
 
 #: Why UA raises no flag where the cabinet probe has moved against the cold side's balance.
@@ -346,10 +355,11 @@ def track_r25_from_voltage(
     r25_se: float,
     reliable: bool,
     cfg: AnalysisSettings,
+    held: str | None = None,
 ) -> None:
     """Follow one window's R25 read from the module's voltage where the cold face has no
     probe (:func:`diagnostics.reconstruct_faces`), with its stated standard error [ohm] and
-    whether it was served as reliable.
+    whether it was served as reliable; ``held``: why no flag is raised (see :func:`track`).
 
     The rated S is held there, the same in every window, so R25's changes are judged at it
     (no trend S to settle). Only windows served as reliable whose stated error is within
@@ -364,6 +374,7 @@ def track_r25_from_voltage(
     track(
         rows, state, "r25", "module.resistance_25c", b, r25, cfg.r25_flag_pct, 0.003, cfg,
         persist=cfg.r25_voltage_persist, newest_sd=r25_se, recent_s=cfg.r25_voltage_recent_s,
+        held=held,
     )  # fmt: skip
 
 

@@ -28,6 +28,7 @@ from tecfleet.analytics.runner.settings import (
 )
 from tecfleet.analytics.runner.state import DeviceState, ModuleParams, remember
 from tecfleet.analytics.runner.tracks import (
+    FLAGS_HELD_R25_CABINET_PROBE_MOVED,
     ambient_lead_usual,
     cabinet_moved,
     faces_judged,
@@ -311,7 +312,8 @@ def _electrical(
     seebeck.serve_seebeck(rows, state, b, el, prior, float(t[-1] - t[0]), f_s, cfg)
     if held is not None:
         # R25 read from the module's voltage: followed where it was served as reliable.
-        track_r25_from_voltage(rows, state, b, el.r25, se_r, el.r_reliable, cfg)
+        moved = FLAGS_HELD_R25_CABINET_PROBE_MOVED if cabinet_moved(state, cfg) else None
+        track_r25_from_voltage(rows, state, b, el.r25, se_r, el.r_reliable, cfg, moved)
         return _Electrical(el, on, tm_on, f_r, f_s, s_own, se_own)
     if floating:
         s_steps, _ = dg.harman_steps(t, i, v, tc, th, usable, options=diagnostics_options(cfg))

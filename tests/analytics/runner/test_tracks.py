@@ -16,6 +16,7 @@ from tecfleet.analytics.runner.tracks import (
     FLAGS_HELD_CABINET_PROBE_MOVED,
     FLAGS_HELD_CABINET_PROBE_UNCHECKED,
     FLAGS_HELD_FACES_FROM_VOLTAGE,
+    FLAGS_HELD_R25_CABINET_PROBE_MOVED,
     cabinet_moved,
     faces_judged,
     rested_lately,
@@ -183,7 +184,9 @@ def test_a_held_track_follows_the_change_but_raises_no_flag() -> None:
 
 
 def _voltage_track(
-    series: list[tuple[float, float, float, bool]], cfg: AnalysisSettings
+    series: list[tuple[float, float, float, bool]],
+    cfg: AnalysisSettings,
+    held: str | None = None,
 ) -> list[dict[str, Any]]:
     # 6-hourly windows (j, R25 [ohm], its stated standard error [ohm], served reliable),
     # followed as R25 read from the module's voltage.
@@ -191,7 +194,7 @@ def _voltage_track(
     rows = EstimateRows(DEVICE)
     state = DeviceState()
     for j, r25, se, ok in series:
-        track_r25_from_voltage(rows, state, int((j + 1) * six_h), r25, se, ok, cfg)
+        track_r25_from_voltage(rows, state, int((j + 1) * six_h), r25, se, ok, cfg, held)
     return [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
 
 
@@ -220,6 +223,21 @@ def test_wear_is_flagged_from_r25_read_from_the_voltage() -> None:
     # the commissioning baseline (2.0 ohm).
     change = [r["value"] for r in recs if r["key"] == "module.resistance_25c.change_pct"]
     assert change[-1] == pytest.approx(100.0 * 0.10 / 14.0 * (19.125 - 5.0))
+
+
+def test_r25_read_with_a_moved_cabinet_probe_is_followed_but_not_flagged() -> None:
+    # Without a cold-face probe R25 comes from the cold face's balance with the cabinet
+    # probe, so a drifting probe reads as wear: with the probe found moved the same ramp as
+    # above is followed (its change served, not as reliable) and never flagged.
+    cfg = AnalysisSettings()
+    ramp = _wear_ramp(20.0, 5.0, 0.10 / 14.0)
+    series = [(j, r, 0.005 * r, True) for j, r in enumerate(ramp)]
+    recs = _voltage_track(series, cfg, FLAGS_HELD_R25_CABINET_PROBE_MOVED)
+    flags = [r for r in recs if r["key"] == "module.resistance_25c.flag"]
+    change = [r for r in recs if r["key"] == "module.resistance_25c.change_pct"]
+    assert flags and all(r["value"] == 0.0 for r in flags)
+    assert all(r["note"] == FLAGS_HELD_R25_CABINET_PROBE_MOVED for r in flags + change)
+    assert change[-1]["value"] > cfg.r25_flag_pct and not change[-1]["reliable"]
 
 
 def test_unreliable_windows_do_not_move_r25_read_from_the_voltage() -> None:

@@ -110,6 +110,11 @@ class AnalysisSettings:
     #: raised without a cold-face probe [K]: half a kelvin over an ambient lead of 10 K or
     #: more moves UA by 5 % at most, a seventh of ``ua_flag_pct`` (common practice, no source).
     cabinet_shift_max_k: float = 0.5
+    #: Slowest usual interval at which UA's flag may be raised where the cold face is read
+    #: from the module's voltage [s]: at one-minute readings healthy simulated units raised no
+    #: flag over 90-day seasons (32 units), at 5-minute instants 2 of 16 did (UA +90 % in a
+    #: hot spell, from faces read wrong), and one healthy unit of the detection bench.
+    ua_faces_max_interval_s: float = 90.0
     #: Change of UA against its baseline that raises its flag [%] (common practice, no
     #: source).
     ua_flag_pct: float = 35.0

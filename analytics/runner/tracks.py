@@ -26,6 +26,7 @@ __all__ = [
     "FLAGS_HELD_CABINET_PROBE_UNCHECKED",
     "FLAGS_HELD_FACES_FROM_VOLTAGE",
     "FLAGS_HELD_R25_CABINET_PROBE_MOVED",
+    "FLAGS_HELD_UA_SLOW_READINGS",
     "ambient_lead_usual",
     "cabinet_moved",
     "daily_medians_before",
@@ -37,6 +38,7 @@ __all__ = [
     "track_r25",
     "track_r25_from_voltage",
     "track_ua",
+    "ua_judged",
 ]
 
 
@@ -65,6 +67,14 @@ FLAGS_HELD_CABINET_PROBE_UNCHECKED = (
 FLAGS_HELD_R25_CABINET_PROBE_MOVED = (
     "the cabinet probe has moved against the cold face read from the open-circuit voltage: "
     "R25, read from the cold face's balance with it, is followed, but no flag is raised"
+)
+
+#: Why UA raises no flag on a unit whose cold face is read from the voltage and which
+#: reports more slowly than ``ua_faces_max_interval_s``: there the 90-day seasons of healthy
+#: simulated units still raised false heat-leak flags.
+FLAGS_HELD_UA_SLOW_READINGS = (
+    "cold face read from the module's voltage at this reporting interval: UA's changes are "
+    "followed, but no flag is raised until detection there is validated"
 )
 
 #: Why UA raises no flag where the cabinet probe has moved against the cold side's balance.
@@ -102,6 +112,23 @@ def faces_judged(
         held = FLAGS_HELD_CABINET_PROBE_UNCHECKED
         return bool(faces_trusted), FLAGS_HELD_CABINET_PROBE_MOVED if cabinet_moved else held
     return True, FLAGS_HELD_FACES_FROM_VOLTAGE
+
+
+def ua_judged(
+    probed: tuple[bool, bool],
+    faces_trusted: bool | None,
+    cabinet_moved: bool | None,
+    interval_s: float,
+    cfg: AnalysisSettings,
+) -> tuple[bool, str | None]:
+    """Whether UA's changes are followed on a unit with these face probes (cold, hot), and
+    why no flag is raised: :func:`faces_judged`, and where a face is read from the voltage,
+    held too at a usual interval ``interval_s`` [s] beyond ``ua_faces_max_interval_s``
+    (:data:`FLAGS_HELD_UA_SLOW_READINGS`)."""
+    follow, held = faces_judged(probed, faces_trusted, "ua", cabinet_moved)
+    if held is None and probed != (True, True) and interval_s > cfg.ua_faces_max_interval_s:
+        held = FLAGS_HELD_UA_SLOW_READINGS
+    return follow, held
 
 
 def cabinet_moved(state: DeviceState, cfg: AnalysisSettings) -> bool | None:

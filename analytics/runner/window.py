@@ -31,13 +31,13 @@ from tecfleet.analytics.runner.tracks import (
     FLAGS_HELD_R25_CABINET_PROBE_MOVED,
     ambient_lead_usual,
     cabinet_moved,
-    faces_judged,
     faces_r25,
     rebase_ua,
     rested_lately,
     track_r25,
     track_r25_from_voltage,
     track_ua,
+    ua_judged,
 )
 
 __all__ = ["fit_window"]
@@ -105,8 +105,8 @@ def fit_window(
 ) -> None:
     """All estimates of the window ending at ``b`` (epoch ms UTC), and what the state keeps."""
     data.faces, data.faces_missing = None, None
-    day = data.t[data.slice(b - cfg.thermal_window_s * 1000, b)]
-    cfg = for_reporting(cfg, dg.usual_interval(day), data.summarised)
+    interval = dg.usual_interval(data.t[data.slice(b - cfg.thermal_window_s * 1000, b)])
+    cfg = for_reporting(cfg, interval, data.summarised)
     raw = _window(data, b, cfg)
     if raw is None:
         return
@@ -144,7 +144,8 @@ def fit_window(
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
         trusted = state.params is not None and bool(state.params.faces_trusted)
-        follow, held = faces_judged(win.probed, trusted, "ua", cabinet_moved(state, cfg))
+        moved = cabinet_moved(state, cfg)
+        follow, held = ua_judged(win.probed, trusted, moved, interval, cfg)
         if follow:
             reduced = win.probed != (True, True)
             _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held, reduced)

@@ -17,11 +17,13 @@ from tecfleet.analytics.runner.tracks import (
     FLAGS_HELD_CABINET_PROBE_UNCHECKED,
     FLAGS_HELD_FACES_FROM_VOLTAGE,
     FLAGS_HELD_R25_CABINET_PROBE_MOVED,
+    FLAGS_HELD_UA_SLOW_READINGS,
     cabinet_moved,
     faces_judged,
     rested_lately,
     track,
     track_r25_from_voltage,
+    ua_judged,
 )
 from tecfleet.ingest.db.analysis import ESTIMATE_COLUMNS
 
@@ -341,6 +343,19 @@ def test_ua_without_a_cold_probe_flags_only_where_the_cabinet_probe_was_judged_u
     assert faces_judged((False, True), False, "ua", False)[0] is False
     assert faces_judged((False, True), True, "rhot") == (True, None)
     assert faces_judged((False, False), True, "ua", False) == (True, FLAGS_HELD_FACES_FROM_VOLTAGE)
+
+
+def test_uas_flag_from_faces_read_from_the_voltage_is_held_at_slow_reporting() -> None:
+    # At 5-minute instants healthy simulated units without a cold-face probe raised false
+    # heat-leak flags over 90-day seasons (values the code produced itself, stated in
+    # ``ua_faces_max_interval_s``): their changes are followed, the flag held with the reason;
+    # at one-minute readings, and on a fully probed unit at any interval, it may be raised.
+    cfg = AnalysisSettings()
+    assert ua_judged((False, True), True, False, 60.0, cfg) == (True, None)
+    assert ua_judged((False, True), True, False, 300.0, cfg) == (True, FLAGS_HELD_UA_SLOW_READINGS)
+    assert ua_judged((True, True), True, None, 900.0, cfg) == (True, None)
+    moved = ua_judged((False, True), True, True, 300.0, cfg)
+    assert moved == (True, FLAGS_HELD_CABINET_PROBE_MOVED)
 
 
 def test_the_cabinet_probe_counts_as_moved_beyond_its_largest_shift() -> None:

@@ -25,7 +25,7 @@ from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import AnalysisSettings, diagnostics_options
 from tecfleet.analytics.runner.state import DeviceState, remember
 
-__all__ = ["check_cabinet_probe", "corrected", "offset_cov", "settings_for", "update_offsets"]
+__all__ = ["corrected", "offset_cov", "settings_for", "update_offsets"]
 
 #: Rest moments kept per unit [-] (common practice, no source).
 _KEEP_RESTS = 20
@@ -41,7 +41,9 @@ def update_offsets(
     cfg: AnalysisSettings,
 ) -> None:
     """Find the rests and the open-circuit evidence of the window ending at ``b`` (epoch ms
-    UTC), keep the estimate in ``state.probe_offsets`` and store it as estimate rows."""
+    UTC), keep the estimate in ``state.probe_offsets`` and store it as estimate rows; and
+    judge the cabinet probe where the cold face has no probe (:func:`_check_cabinet_probe`)."""
+    _check_cabinet_probe(data, b, floating, prior, rows, state, cfg)
     opts = diagnostics_options(cfg)
     wt = data.slice(b - max(cfg.thermal_window_s, cfg.window_s) * 1000, b)
     usable = flags_of(data, wt).usable
@@ -80,7 +82,7 @@ def update_offsets(
         rows.add(f"probes.offset_{name}_k", b, float(value), float(se), n, ok, est.basis)
 
 
-def check_cabinet_probe(
+def _check_cabinet_probe(
     data: Readings,
     b: int,
     floating: bool,

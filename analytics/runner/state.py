@@ -221,7 +221,7 @@ class DeviceState(_Stored):
     probe_offset_cov: list[list[float]] | None = None
     #: Where the cold face has no probe but the module floats: the cabinet probe's
     #: commissioning balance against the face read from the open-circuit voltage, [offset
-    #: [K], r_cold [K/W]] (see ``runner.offsets.check_cabinet_probe``).
+    #: [K], r_cold [K/W]] (see ``runner.offsets.update_offsets``).
     cabinet_baseline: list[float] | None = None
     #: The newest window's shift of the cabinet probe against that balance [K]; None where
     #: the window could not judge it.

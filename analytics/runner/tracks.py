@@ -54,7 +54,7 @@ FLAGS_HELD_FACES_FROM_VOLTAGE = (
 #: Why UA raises no flag on a unit with a hot-face probe and none on the cold face whose
 #: cabinet probe could not be judged: a drifting cabinet probe reads as a heat leak
 #: (simulated: UA +36 % from a 3 K drift over six days), and without the cold-face probe only
-#: a floating module's open-circuit voltage shows it (``offsets.check_cabinet_probe``).
+#: a floating module's open-circuit voltage shows it (``offsets.update_offsets``).
 FLAGS_HELD_CABINET_PROBE_UNCHECKED = (
     "no cold-face probe and no open-circuit voltage to judge the cabinet probe by: UA's "
     "changes are followed, but no flag is raised, since a drifting cabinet probe would read "
@@ -133,7 +133,7 @@ def ua_judged(
 
 def cabinet_moved(state: DeviceState, cfg: AnalysisSettings) -> bool | None:
     """Whether the newest window found the cabinet probe moved by more than
-    ``cabinet_shift_max_k`` against the cold side's balance (``offsets.check_cabinet_probe``);
+    ``cabinet_shift_max_k`` against the cold side's balance (``offsets.update_offsets``);
     None where it could not judge it."""
     if state.cabinet_shift is None:
         return None

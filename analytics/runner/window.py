@@ -114,7 +114,6 @@ def fit_window(
     # offset prior narrowed to what is left of it. The offsets rest on the probes as read,
     # so they are found before any face is read from the module's voltage.
     offsets.update_offsets(data, b, raw.floating, prior, rows, state, cfg)
-    offsets.check_cabinet_probe(data, b, raw.floating, prior, rows, state, cfg)
     # R and S's stated errors keep the offset prior (see diagnostics.fit_electrical).
     data, cfg_el, cfg = offsets.corrected(data, state), cfg, offsets.settings_for(state, cfg)
     # Where a face probe is missing, the faces of the thermal window from its own readings.

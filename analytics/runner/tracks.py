@@ -27,6 +27,7 @@ __all__ = [
     "FLAGS_HELD_FACES_FROM_VOLTAGE",
     "FLAGS_HELD_R25_CABINET_PROBE_MOVED",
     "FLAGS_HELD_UA_SLOW_READINGS",
+    "FLAGS_HELD_UA_SPARSE_INSTANTS",
     "ambient_lead_usual",
     "cabinet_moved",
     "daily_medians_before",
@@ -77,6 +78,15 @@ FLAGS_HELD_UA_SLOW_READINGS = (
     "followed, but no flag is raised until detection there is validated"
 )
 
+#: Why UA raises no flag on a unit reporting single instants further apart than
+#: ``ua_instants_max_interval_s``: its thermostat cycles fall between readings, and UA read
+#: from them wanders by a third over days (the accuracy its estimate is held to there), as
+#: far as the flag's threshold.
+FLAGS_HELD_UA_SPARSE_INSTANTS = (
+    "single readings this far apart leave UA good to about a third: its changes are "
+    "followed, but no flag is raised; interval summaries in the payload allow one"
+)
+
 #: Why UA raises no flag where the cabinet probe has moved against the cold side's balance.
 FLAGS_HELD_CABINET_PROBE_MOVED = (
     "the cabinet probe has moved against the cold face read from the open-circuit voltage: "
@@ -119,15 +129,20 @@ def ua_judged(
     faces_trusted: bool | None,
     cabinet_moved: bool | None,
     interval_s: float,
+    summarised: bool,
     cfg: AnalysisSettings,
 ) -> tuple[bool, str | None]:
     """Whether UA's changes are followed on a unit with these face probes (cold, hot), and
-    why no flag is raised: :func:`faces_judged`, and where a face is read from the voltage,
-    held too at a usual interval ``interval_s`` [s] beyond ``ua_faces_max_interval_s``
-    (:data:`FLAGS_HELD_UA_SLOW_READINGS`)."""
+    why no flag is raised: :func:`faces_judged`; where a face is read from the voltage, held
+    too at a usual interval ``interval_s`` [s] beyond ``ua_faces_max_interval_s``
+    (:data:`FLAGS_HELD_UA_SLOW_READINGS`); and on any unit reporting instants (not
+    ``summarised``) further apart than ``ua_instants_max_interval_s``
+    (:data:`FLAGS_HELD_UA_SPARSE_INSTANTS`)."""
     follow, held = faces_judged(probed, faces_trusted, "ua", cabinet_moved)
     if held is None and probed != (True, True) and interval_s > cfg.ua_faces_max_interval_s:
         held = FLAGS_HELD_UA_SLOW_READINGS
+    if held is None and not summarised and interval_s > cfg.ua_instants_max_interval_s:
+        held = FLAGS_HELD_UA_SPARSE_INSTANTS
     return follow, held
 
 

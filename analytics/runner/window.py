@@ -144,7 +144,7 @@ def fit_window(
         _path_rows(win, th_fit, rises, rows, state, cfg)
         trusted = state.params is not None and bool(state.params.faces_trusted)
         moved = cabinet_moved(state, cfg)
-        follow, held = ua_judged(win.probed, trusted, moved, interval, cfg)
+        follow, held = ua_judged(win.probed, trusted, moved, interval, data.summarised, cfg)
         if follow:
             reduced = win.probed != (True, True)
             _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held, reduced)

@@ -21,6 +21,7 @@ import numpy as np
 
 from .._validate import FloatArray
 from .estimates import BoolArray
+from .least_squares import median_mad
 
 __all__ = [
     "cold_side_heat_balance",
@@ -139,6 +140,5 @@ def window_shift(
     if n == 0:
         return math.nan, math.nan, 0
     resid = t_cabinet[ok] - t_cold[ok] - baseline[1] * qc[ok] - baseline[0]
-    med = float(np.median(resid))
-    mad = 1.4826 * float(np.median(np.abs(resid - med)))
-    return med, math.sqrt(math.pi / 2.0) * mad / math.sqrt(n), n
+    med, mad = median_mad(resid)
+    return med, math.sqrt(math.pi / 2.0) * 1.4826 * mad / math.sqrt(n), n

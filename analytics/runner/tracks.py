@@ -16,6 +16,7 @@ import numpy as np
 
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics, trends
+from tecfleet.analytics.diagnostics.least_squares import robust_sd
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import MS_DAY, AnalysisSettings
 from tecfleet.analytics.runner.settled import s_settled
@@ -435,8 +436,7 @@ def faces_r25(state: DeviceState, b: int, cfg: AnalysisSettings) -> tuple[float,
     center = float(np.median(values))
     # Normal-consistent sd from the MAD, no less than the 0.3 % R25's track takes as its
     # least spread.
-    spread = 1.4826 * float(np.median(np.abs(values - center)))
-    return center, max(spread, 0.003 * center)
+    return center, max(robust_sd(values), 0.003 * center)
 
 
 def rested_lately(state: DeviceState, b: int, switch_offs: int, cfg: AnalysisSettings) -> bool:

@@ -49,6 +49,7 @@ __all__ = [
     "reconstruct_delta_t",
     "reconstruct_faces",
     "step_resistance",
+    "unanchored_mean_temperature",
 ]
 
 
@@ -159,7 +160,9 @@ def step_resistance(
     usable: BoolArray,
     *,
     s25: float,
+    k25: float | None = None,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
 ) -> StepResistance:
     """R25 from switch-off steps of a floating driver, without a cold-side probe.
@@ -174,9 +177,12 @@ def step_resistance(
     constants were several minutes (500/1500 J/K), and scattered by ±3 % at about one minute
     (150/400 J/K). R is referred to 25 °C with R25 = R/(1 + α·(Tm - 25 °C))
     (:func:`..physics.resistance_at_25c`); ΔT at the step is V_off/S, so Tm needs no R:
-    Th - ΔT/2 with a hot probe, else (Ta + Tcab)/2 within the bound of
-    :func:`reconstruct_faces`, its standard deviation carried through α. With a hot probe,
-    steps across which it jumps (faces that follow the current within a sample) are left out.
+    Th - ΔT/2 with a hot probe, else, with K known, from how the sinks share ΔT
+    (:func:`unanchored_mean_temperature`; the middle of cabinet and ambient read simulated
+    units' R25 1.5-2 % high, their faces' mean lying 2-6 K above it while the module ran),
+    or the middle of cabinet and ambient within the bound of :func:`reconstruct_faces`; its
+    standard deviation carried through α. With a hot probe, steps across which it jumps
+    (faces that follow the current within a sample) are left out.
 
     Parameters
     ----------
@@ -187,8 +193,9 @@ def step_resistance(
     t_hot : Hot-face temperature, None where not probed [K].
     usable : Samples that may be used [-].
     s25 : Module Seebeck coefficient at 25 °C, e.g. from the ratings [V/K].
-    alpha : Temperature coefficient of R [1/K].
-    options : ``on_current`` [A], ``max_gap_s`` [s], ``min_steps`` [-],
+    k25 : Module thermal conductance, e.g. from the ratings; None: Tm without it [W/K].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : ``on_current`` [A], ``max_gap_s`` [s], ``min_steps`` [-], ``sink_ratio_range`` [-],
         ``step_jump_ratio`` [-], ``step_jump_floor_k`` [K], ``current_offset`` [A],
         ``step_r_max_rel_stderr`` [-], ``seebeck_unit_rel_sd`` [-], ``probe_offset_k`` [K].
 
@@ -225,6 +232,16 @@ def step_resistance(
     f_r = 1.0 + alpha * (tm - T_25C_K)
     r25_steps = (v[k] - v_step) / (i[k] * f_r)
     r25 = float(np.median(r25_steps))
+    if th is None and k25 is not None:
+        # Tm from how the sinks share ΔT, at this first R25 (R moves it by ½·I²·δR only).
+        tm, tm_sd = unanchored_mean_temperature(
+            v_step / s25, np.asarray(t_cabinet, dtype=np.float64)[k],
+            np.asarray(t_ambient, dtype=np.float64)[k], i[k], v[k], r25=r25, s25=s25,
+            k=k25, alpha=alpha, beta=beta, options=options,
+        )  # fmt: skip
+        f_r = 1.0 + alpha * (tm - T_25C_K)
+        r25_steps = (v[k] - v_step) / (i[k] * f_r)
+        r25 = float(np.median(r25_steps))
     # The median of n normal values has a standard error of about 1.25·sd/√n.
     scatter = 1.2533 * float(np.std(r25_steps, ddof=1)) / math.sqrt(k.size)
     # Systematic, the same at every step: the unknown switch instant and the decay's
@@ -589,6 +606,86 @@ def _unanchored_sd(
     return np.asarray(np.hypot(spread / (2.0 * math.sqrt(3.0)), probe_sd), dtype=np.float64)
 
 
+def unanchored_mean_temperature(
+    delta_t: FloatArray,
+    t_cabinet: FloatArray,
+    t_ambient: FloatArray,
+    current: FloatArray,
+    voltage: FloatArray,
+    *,
+    r25: float,
+    s25: float,
+    k: float,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> tuple[FloatArray, FloatArray]:
+    """The module's mean temperature where no face is probed, from how its sinks share ΔT.
+
+    The faces sit beyond the sinks, Th = Ta + r_hot·Qh and Tc = Tcab - r_cold·Qc (the heat
+    paths of :mod:`..heat_paths`), so the sinks' rises add up to a known
+    D = ΔT - (Ta - Tcab) = r_hot·Qh + r_cold·Qc, and with ρ = r_hot/r_cold::
+
+        Tm = (Ta + Tcab)/2 + (r_hot·Qh - r_cold·Qc)/2
+           = (Ta + Tcab)/2 + D·(ρ·Qh - Qc) / (2·(ρ·Qh + Qc)),
+
+    Qh = Qc + V·I (first law at the module), Qc = S·I·Tc - ½·I²·R - K·ΔT (Goldsmid 2010,
+    ch. 2), with S and R at Tm and Tc = Tm - ΔT/2 (three fixed-point passes: Tm moves Qc by
+    S·I per kelvin, a few per cent of it). Off, Qh = Qc = -K·ΔT. While the module cools the
+    hot sink carries two to four times the cold one's heat, so Tm lies above the middle of
+    cabinet and ambient by kelvins. ρ is not known without a face probe: it is taken as
+    uniform over ``sink_ratio_range``, Tm halfway between its values at the range's ends
+    and their half-difference over √3 carried as its standard deviation, with the probes'
+    offset. Where ρ·Qh + Qc is near zero or of the other sign than D the split is not
+    defined, and Tm is the middle within the second law's bound (as without K).
+
+    Parameters
+    ----------
+    delta_t : ΔT = Th - Tc [K].
+    t_cabinet, t_ambient : Cabinet air and ambient [K].
+    current : Module current [A].
+    voltage : Module voltage [V].
+    r25 : Module resistance at 25 °C [ohm].
+    s25 : Module Seebeck coefficient at 25 °C [V/K].
+    k : Module thermal conductance [W/K].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : ``on_current`` [A], ``sink_ratio_range`` [-], ``probe_offset_k`` [K].
+
+    Returns
+    -------
+    (Tm [K], its standard deviation [K]).
+    """
+    dt = np.asarray(delta_t, dtype=np.float64)
+    tcab, ta = np.asarray(t_cabinet, dtype=np.float64), np.asarray(t_ambient, dtype=np.float64)
+    i = np.where(np.asarray(current, dtype=np.float64) > options.on_current, current, 0.0)
+    power = i * np.asarray(voltage, dtype=np.float64)
+    mid, d = 0.5 * (ta + tcab), dt - (ta - tcab)
+    shifts, defined = [], np.ones(dt.shape, dtype=bool)
+    for rho in options.sink_ratio_range:
+        tm = mid.copy()
+        for _ in range(3):
+            x = tm - T_25C_K
+            qc = (
+                s25 * (1.0 + beta * x) * i * (tm - 0.5 * dt)
+                - 0.5 * i**2 * r25 * (1.0 + alpha * x)
+                - k * dt
+            )
+            den = rho * (qc + power) + qc
+            # Near zero (within 5 % of the flows) the sinks' share is not defined.
+            ok = np.abs(den) > 0.05 * (np.abs(qc) + power) + 1e-9
+            shift = np.where(ok, 0.5 * d * (rho * (qc + power) - qc) / np.where(ok, den, 1.0), 0.0)
+            tm = mid + shift
+        defined &= ok & (den * d > 0.0) & np.isfinite(shift)
+        shifts.append(shift)
+    tm = mid + 0.5 * (shifts[0] + shifts[1])
+    sd = np.hypot(0.5 * np.abs(shifts[1] - shifts[0]) / math.sqrt(3.0), options.probe_offset_k)
+    fallback = _unanchored_sd(dt, tcab, ta, options.probe_offset_k)
+    return (
+        np.asarray(np.where(defined, tm, mid), dtype=np.float64),
+        np.asarray(np.where(defined, sd, fallback), dtype=np.float64),
+    )
+
+
 def delta_t_from_hot_face(
     current: FloatArray,
     voltage: FloatArray,
@@ -670,9 +767,11 @@ def _faces_at(
     alpha: float,
     beta: float,
     options: DiagnosticsOptions,
+    k25: float | None = None,
 ) -> tuple[FloatArray, FloatArray, FloatArray]:
     # ΔT, Tm and Tm's sd read from the voltage at R25: with a hot probe Tm = Th - ΔT/2 solved
-    # with ΔT, else the middle of cabinet and ambient within its bound.
+    # with ΔT, else from how the sinks share ΔT where K is known (ΔT read again there), else
+    # the middle of cabinet and ambient within its bound.
     if th is not None:
         dt = delta_t_from_hot_face(
             i, v, th, True, r25, s25, alpha=alpha, beta=beta, options=options
@@ -682,7 +781,15 @@ def _faces_at(
     dt, _ = reconstruct_delta_t(
         i, v, tm, True, r25, 0.0, s25, 0.0, alpha=alpha, beta=beta, options=options
     )
-    return dt, tm, _unanchored_sd(dt, tcab, ta, options.probe_offset_k)
+    if k25 is None:
+        return dt, tm, _unanchored_sd(dt, tcab, ta, options.probe_offset_k)
+    tm, tm_sd = unanchored_mean_temperature(
+        dt, tcab, ta, i, v, r25=r25, s25=s25, k=k25, alpha=alpha, beta=beta, options=options
+    )
+    dt, _ = reconstruct_delta_t(
+        i, v, tm, True, r25, 0.0, s25, 0.0, alpha=alpha, beta=beta, options=options
+    )
+    return dt, tm, tm_sd
 
 
 def _faces_checked(
@@ -698,12 +805,13 @@ def _faces_checked(
     beta: float,
     options: DiagnosticsOptions,
     r25_read: tuple[float, float] | None = None,
+    k25: float | None = None,
 ) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
     # ΔT and its sd, Tm and its sd read from the voltage at the step's R25 (ΔT only while
     # driven where the driver does not float), refused where the heat flows rule that ΔT out.
     # With ``r25_read`` (R25 and its error [ohm]) they are then read at that steadier one:
     # the step's own must still pass, since a resistance the heat flows rule out is not served.
-    dt, tm, tm_sd = _faces_at(i, v, tcab, ta, th, step.r25, s25, alpha, beta, options)
+    dt, tm, tm_sd = _faces_at(i, v, tcab, ta, th, step.r25, s25, alpha, beta, options, k25)
     on = i > options.on_current
     if not floating:
         dt = np.where(on, dt, np.nan)
@@ -716,7 +824,9 @@ def _faces_checked(
     _check_lift(dt, dt_se, on, ta - tcab)
     if r25_read is not None:
         given = replace(step, r25=r25_read[0], r25_se=r25_read[1])
-        return _faces_checked(i, v, tcab, ta, th, given, floating, s25, alpha, beta, options)
+        return _faces_checked(
+            i, v, tcab, ta, th, given, floating, s25, alpha, beta, options, k25=k25
+        )
     return dt, dt_se, tm, tm_sd
 
 
@@ -733,6 +843,7 @@ def reconstruct_faces(
     s25: float,
     r25_guess: float | None = None,
     r25_read: tuple[float, float] | None = None,
+    k25: float | None = None,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
     beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
@@ -745,8 +856,9 @@ def reconstruct_faces(
     ratings) with the spread between units of a type (``seebeck_unit_rel_sd``), then ΔT from
     the voltage; Tc = Th - ΔT. The mean module temperature behind R(Tm) and S(Tm) matters
     (about 1 K of ΔT per kelvin): with a hot probe Tm = Th - ΔT/2 is solved together with ΔT
-    (:func:`delta_t_from_hot_face`); without one it is the middle of cabinet and ambient
-    within a stated bound.
+    (:func:`delta_t_from_hot_face`); without one it comes from how the sinks share ΔT where
+    K is known (:func:`unanchored_mean_temperature`), else it is the middle of cabinet and
+    ambient within a stated bound.
     Without a hot probe the faces have no anchor (the hot sink's rise above the ambient needs
     its resistance, which needs Th): ΔT and R25 are what hold, t_cold stays NaN. While the
     module cools, ΔT must be at least the ambient's lead over the cabinet (Tc <= Tcab,
@@ -769,6 +881,8 @@ def reconstruct_faces(
     r25_read : R25 and its standard error to read ΔT at, where a steadier one than these
         readings' own is known (the unit's recent windows); ``step`` stays these readings'
         own [ohm, ohm].
+    k25 : Module thermal conductance from the ratings, where known: without a hot probe Tm
+        then comes from how the sinks share ΔT (:func:`unanchored_mean_temperature`) [W/K].
     alpha, beta : Temperature coefficients of R and S [1/K].
     options : as :func:`step_resistance` and :func:`balance_resistance`, and
         ``seebeck_unit_rel_sd`` [-], ``probe_offset_k`` [K].
@@ -797,11 +911,12 @@ def reconstruct_faces(
         if not floating:
             raise InsufficientDataError("no open-circuit voltage", "no switch-off steps")
         step = step_resistance(
-            time_s, i, v, tcab, ta, th, usable, s25=s25, alpha=alpha, options=options
-        )
+            time_s, i, v, tcab, ta, th, usable, s25=s25, k25=k25, alpha=alpha, beta=beta,
+            options=options,
+        )  # fmt: skip
         how = f"R25 from {step.n_steps} switch-off steps"
         dt, dt_se, tm, tm_sd = _faces_checked(
-            i, v, tcab, ta, th, step, floating, s25, alpha, beta, options, r25_read
+            i, v, tcab, ta, th, step, floating, s25, alpha, beta, options, r25_read, k25
         )
     except InsufficientDataError:
         # Faces that follow the current within a sample: no step gives R, but with the hot

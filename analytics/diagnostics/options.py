@@ -218,6 +218,12 @@ class DiagnosticsOptions:
     #: Allowance for the probe's reading step in that test [K]: three 0.1 K steps (common
     #: practice, no source).
     step_jump_floor_k: float = 0.3
+    #: Range of the hot sink's resistance over the cold sink's, r_hot/r_cold, behind the
+    #: module's mean temperature where no face is probed: the hot sink carries the cold
+    #: side's heat plus the electrical power, commonly two to four times as much, and is sized
+    #: with a fan-forced fin array to match, so it is usually the smaller (common practice, no
+    #: source) [-].
+    sink_ratio_range: tuple[float, float] = (0.25, 1.0)
     #: Largest relative standard error of the steps' R25 called reliable [-] (common
     #: practice, no source).
     step_r_max_rel_stderr: float = 0.02

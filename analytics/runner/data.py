@@ -156,6 +156,7 @@ def complete_faces(
         data.faces = dg.reconstruct_faces(
             data.t[sl], i, v, data.tcab[sl], data.ta[sl], hot, ok, floating=floating,
             s25=prior.seebeck, r25_guess=prior.resistance, r25_read=r25_read,
+            k25=prior.conductance,
             alpha=cfg.alpha, beta=cfg.beta, options=opts,
         )  # fmt: skip
     except PhysicsError as exc:

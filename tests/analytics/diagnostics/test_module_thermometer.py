@@ -214,6 +214,87 @@ def test_cold_face_without_its_probe_matches_the_simulated_truth(
         assert "hot probe" in rec.basis
 
 
+def _network(i: float, rho: float) -> tuple[float, float, float]:
+    # Reference: the steady module between its sinks, solved by scipy.optimize.fsolve:
+    # Qc = S·I·Tc - ½·I²·R - K·ΔT, Qh = S·I·Th + ½·I²·R - K·ΔT (Goldsmid 2010, ch. 2), S and R
+    # at Tm by the linear laws, Th = Ta + r_hot·Qh, Tc = Tcab - r_cold·Qc. A 127-couple module
+    # (S25 0.0508 V/K, R25 2.0 Ω, K 0.5 W/K), r_cold 0.4 K/W, ambient 25 °C, cabinet 5 °C
+    # (a typical small cooler; from memory). Returns (Tm, ΔT, V).
+    from scipy.optimize import fsolve
+
+    ta, tcab, k, r_cold = T_25C_K, T_25C_K - 20.0, 0.5, 0.4
+
+    def faces(x: np.ndarray) -> list[float]:
+        th, tc = float(x[0]), float(x[1])
+        tm = 0.5 * (th + tc) - T_25C_K
+        s = S_HAND * (1.0 + mt.physics.BI2TE3_SEEBECK_TEMPCO * tm)
+        r = R_HAND * (1.0 + mt.physics.BI2TE3_RESISTANCE_TEMPCO * tm)
+        qc = s * i * tc - 0.5 * i**2 * r - k * (th - tc)
+        qh = s * i * th + 0.5 * i**2 * r - k * (th - tc)
+        return [th - ta - rho * r_cold * qh, tcab - tc - r_cold * qc]
+
+    th, tc = fsolve(faces, [ta + 5.0, tcab - 5.0], xtol=1e-12)
+    tm = 0.5 * (th + tc) - T_25C_K
+    s = S_HAND * (1.0 + mt.physics.BI2TE3_SEEBECK_TEMPCO * tm)
+    r = R_HAND * (1.0 + mt.physics.BI2TE3_RESISTANCE_TEMPCO * tm)
+    return float(0.5 * (th + tc)), float(th - tc), float(s * (th - tc) + i * r)
+
+
+@pytest.mark.parametrize("i", [I_HAND, 0.0])
+def test_mean_temperature_without_face_probes_follows_the_sinks_share(i: float) -> None:
+    # With r_hot/r_cold known (a range of one value) Tm is that of the network solved by
+    # scipy; the tolerance, 0.01 K, is the fixed-point passes' remainder, (S·I·r_cold)³ of the
+    # few kelvin the first pass moves Tm.
+    rho = 0.5
+    tm, dt, v = _network(i, rho)
+    opts = dataclasses.replace(mt.DEFAULT_OPTIONS, sink_ratio_range=(rho, rho))
+    got, sd = mt.unanchored_mean_temperature(
+        np.array([dt]), np.array([T_25C_K - 20.0]), np.array([T_25C_K]), np.array([i]),
+        np.array([v]), r25=R_HAND, s25=S_HAND, k=0.5, options=opts,
+    )  # fmt: skip
+    assert float(got[0]) == pytest.approx(tm, abs=0.01)
+    assert float(sd[0]) == pytest.approx(opts.probe_offset_k)
+
+
+def test_mean_temperature_without_face_probes_states_what_the_ratio_leaves_open() -> None:
+    # Over the default range of r_hot/r_cold, networks at its ends and inside it (solved by
+    # scipy) lie within two stated standard deviations; the middle of cabinet and ambient,
+    # what the reading took before, lies kelvins below a running module's faces unless the hot
+    # sink is much the better one.
+    for rho in (0.25, 0.5, 0.7, 1.0):
+        tm, dt, v = _network(I_HAND, rho)
+        got, sd = mt.unanchored_mean_temperature(
+            np.array([dt]), np.array([T_25C_K - 20.0]), np.array([T_25C_K]),
+            np.array([I_HAND]), np.array([v]), r25=R_HAND, s25=S_HAND, k=0.5,
+        )  # fmt: skip
+        assert abs(float(got[0]) - tm) <= 2.0 * float(sd[0])
+        if rho >= 0.7:
+            assert tm - (T_25C_K - 10.0) > 2.0
+
+
+def test_resistance_without_face_probes_matches_the_simulated_truth(
+    simulated: tuple[sim.FleetSpec, Chunk],
+) -> None:
+    # Against the simulator's true R25 (simulated truth), no face probe: the switch-off steps
+    # with Tm from how the sinks share ΔT (K from the ratings) come within the stated error,
+    # and within 2 % where the middle of cabinet and ambient read all three high.
+    spec, c = simulated
+    with_k, without_k = [], []
+    for j, d in enumerate(spec.devices):
+        ok, m = c.present[:, j], c.measured
+        prior = priors(d.registration()["module"], AnalysisSettings())
+        assert prior is not None
+        args = (
+            c.ts[ok, j], m["current"][ok, j], m["voltage"][ok, j], m["t_cabinet"][ok, j] + T0,
+            m["t_ambient"][ok, j] + T0, None, np.ones(int(ok.sum()), dtype=bool),
+        )  # fmt: skip
+        step = mt.step_resistance(*args, s25=prior.seebeck, k25=prior.conductance)
+        assert abs(step.r25 / d.r25 - 1.0) <= min(0.02, 2.0 * step.r25_se / d.r25)
+        with_k.append(step.r25 / d.r25 - 1.0)
+        without_k.append(mt.step_resistance(*args, s25=prior.seebeck).r25 / d.r25 - 1.0)
+    assert float(np.mean(np.abs(with_k))) < float(np.mean(np.abs(without_k)))
+
+
 def _readings(c: Chunk, j: int) -> Readings:
     ok, m = c.present[:, j], c.measured
     ts = np.round(c.ts[ok, j] * 1000.0).astype(np.int64)

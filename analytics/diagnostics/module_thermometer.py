@@ -98,6 +98,9 @@ class StepResistance:
     note : Why not reliable, else None.
     drift_per_day : R25's relative change per day across the window, where the cold face's
         balance gave it (0 from the steps) [1/day].
+    decay_ratio : Without face probes, how many times faster the open-circuit voltage fell
+        after the switch-offs than the cabinet's and ambient's drift explains (the faces held
+        heat across the steps); None where a hot probe judged that [-].
     """
 
     r25: float
@@ -106,6 +109,7 @@ class StepResistance:
     reliable: bool
     note: str | None
     drift_per_day: float = 0.0
+    decay_ratio: float | None = None
 
 
 IntArray: TypeAlias = NDArray[np.intp]
@@ -133,6 +137,19 @@ def _faces_jump(
     return np.asarray(
         jump > options.step_jump_ratio * after + options.step_jump_floor_k, dtype=np.bool_
     )
+
+
+def _open_circuit_decay(
+    v: FloatArray, t_cabinet: FloatArray, t_ambient: FloatArray, k: IntArray, s25: float
+) -> float:
+    # How many times faster the open-circuit voltage falls over the first interval after the
+    # switch-offs k than S·|δ(Ta - Tcab)| explains (medians over the steps), the off state's
+    # ΔT following the ambient's lead over the cabinet at most one to one; one voltage
+    # quantum of 10 mV (common practice, no source) keeps a flat trace from dividing by zero.
+    lead = np.asarray(t_ambient, dtype=np.float64) - np.asarray(t_cabinet, dtype=np.float64)
+    fall = float(np.median(v[k + 1] - v[k + 2]))
+    drift = float(np.median(s25 * np.abs(lead[k + 2] - lead[k + 1])))
+    return fall / (drift + 0.01)
 
 
 def _step_mean_temperature(
@@ -221,6 +238,16 @@ def step_resistance(
             f"{options.min_steps}",
             "too few switch-offs followed by the module's open-circuit voltage",
         )
+    decay = None
+    if th is None:
+        decay = _open_circuit_decay(v, t_cabinet, t_ambient, k, s25)
+        if decay < options.step_decay_min_ratio:
+            raise InsufficientDataError(
+                f"open-circuit voltage falls {decay:.1f}x what the cabinet's drift explains",
+                "the module's open-circuit voltage does not relax after its switch-offs: its "
+                "faces follow the current within a sample (no heat capacity to speak of), so "
+                "the switch-off steps do not give R",
+            )
     gap, gap2 = t[k + 1] - t[k], t[k + 2] - t[k + 1]
     slope = (v[k + 1] - v[k + 2]) / gap2
     v_step = v[k + 1] + slope * 0.5 * gap
@@ -256,7 +283,7 @@ def step_resistance(
     note = None
     if not reliable:
         note = f"R from {k.size} switch-off steps only within ±{100 * se / abs(r25):.1f} %"
-    return StepResistance(r25, se, int(k.size), reliable, note)
+    return StepResistance(r25, se, int(k.size), reliable, note, decay_ratio=decay)
 
 
 def _balance_ssr(
@@ -915,6 +942,11 @@ def reconstruct_faces(
             options=options,
         )  # fmt: skip
         how = f"R25 from {step.n_steps} switch-off steps"
+        if step.decay_ratio is not None:
+            how += (
+                f" (their open-circuit voltage relaxing {step.decay_ratio:.0f}x faster than the "
+                "cabinet's drift explains: the faces held across them)"
+            )
         dt, dt_se, tm, tm_sd = _faces_checked(
             i, v, tcab, ta, th, step, floating, s25, alpha, beta, options, r25_read, k25
         )

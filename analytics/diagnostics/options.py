@@ -218,6 +218,13 @@ class DiagnosticsOptions:
     #: Allowance for the probe's reading step in that test [K]: three 0.1 K steps (common
     #: practice, no source).
     step_jump_floor_k: float = 0.3
+    #: Without face probes the steps count only where the open-circuit voltage falls over the
+    #: first interval after a switch-off (median over steps) by more than this many times what
+    #: the cabinet's and ambient's drift explains, S·|δ(Ta - Tcab)|: faces that hold heat
+    #: relax over minutes, faces without heat capacity jump at the switch. Simulated units
+    #: (one-minute samples) gave 0.75 without sink heat capacity and 8-14 with sinks of
+    #: 150/600 and 500/1500 J/K [-].
+    step_decay_min_ratio: float = 3.0
     #: Range of the hot sink's resistance over the cold sink's, r_hot/r_cold, behind the
     #: module's mean temperature where no face is probed: the hot sink carries the cold
     #: side's heat plus the electrical power, commonly two to four times as much, and is sized

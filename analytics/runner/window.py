@@ -247,15 +247,12 @@ def _held_electrical(
     if data.faces is None or prior is None:
         return None
     step, opts = data.faces.step, diagnostics_options(cfg)
-    # Without a hot-face probe nothing shows whether the faces jumped across the switch
-    # (massless faces make the step read S·ΔT's change as resistance): never called reliable.
-    checked = data.hot_probe
-    note = data.faces.basis + (
-        "" if checked else "; no face probe to show the faces held across the switch-offs"
-    )
+    # Massless faces make a switch-off step read S·ΔT's change as resistance: the hot probe's
+    # jumps show it, and without face probes the open-circuit voltage's relaxing does
+    # (dg.step_resistance refuses steps without it).
     return dg.fit_held(
         step.r25, step.r25_se, prior.seebeck, opts.seebeck_unit_rel_sd * prior.seebeck,
-        step.n_steps, r_reliable=step.reliable and checked, note=note,
+        step.n_steps, r_reliable=step.reliable, note=data.faces.basis,
     )  # fmt: skip
 
 

@@ -402,11 +402,17 @@ def _half_hessian_inverse(hess: FloatArray) -> FloatArray:
     return np.asarray(np.linalg.inv(0.5 * hess), dtype=np.float64)
 
 
-def _held_or_drifting(bal: _Balance) -> tuple[float, float, float, float]:
+def _held_or_drifting(
+    bal: _Balance, r25_recent: float | None = None
+) -> tuple[float, float, float, float]:
     # R25 [ohm] held across the window or moving by a drift [1/day] (0 where held), the
     # scatter part of its standard error [ohm] and the balance's residual sd [K]. The drift
     # is kept where it lowers the criterion by more than σ²·ln n (G. Schwarz, Ann. Statist.
-    # 6(2), 1978: one more parameter), so a steady module keeps the held fit's precision.
+    # 6(2), 1978: one more parameter), so a steady module keeps the held fit's precision,
+    # and, where the unit's recent windows give R25 (``r25_recent`` [ohm]), where it puts
+    # R25 at the window's middle no further from theirs than the held fit does: wear moves
+    # R25 by a few per cent over weeks, so a drift that moves this window's R25 away from
+    # the last days' has traded against R25 to absorb some other misfit of the balance.
     # The drift is fitted only where the held fit's quadratic model (its gradient and
     # curvature in the drift, ½·dᵀH⁻¹d) promises half that drop or where it is not curved
     # upwards: most windows of a steady module are spared the two-parameter search.
@@ -424,7 +430,9 @@ def _held_or_drifting(bal: _Balance) -> tuple[float, float, float, float]:
     if promised > 0.5 * sigma**2 * penalty:
         moving = _drift_fit(bal, np.zeros(2))
         sigma_m = sigma_at(moving, 5)
-        if crit(flat) - crit(moving) > sigma_m**2 * penalty:
+        r_held, r_moving = guess * (1.0 + float(flat[0])), guess * (1.0 + float(moving[0]))
+        nearer = r25_recent is None or abs(r_moving - r25_recent) <= abs(r_held - r25_recent)
+        if crit(flat) - crit(moving) > sigma_m**2 * penalty and nearer:
             x, sigma = moving, sigma_m
             cov_r = _half_hessian_inverse(_curvature(moving, crit, step)[1])[0, 0]
     scatter = guess * sigma * math.sqrt(cov_r) if math.isfinite(cov_r) else math.inf
@@ -441,6 +449,7 @@ def balance_resistance(
     *,
     s25: float,
     r25_guess: float,
+    r25_recent: float | None = None,
     alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
     beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
     options: DiagnosticsOptions = DEFAULT_OPTIONS,
@@ -466,10 +475,12 @@ def balance_resistance(
     window (δΔT = I·R25·g·(t - t0)/S, about 1 K per per cent of R), which no constant R25
     absorbs. So R25 is allowed to move linearly across the window,
     R25(t) = R25·(1 + g·(t - t0)), t0 the mean time of the driven samples (where R25 is
-    served), g within ±``balance_max_drift_per_day``. Its standard error: the criterion's
-    curvature in (R25, g), σ²·(½·H)⁻¹ (the profile's curvature over the drift, as for any
-    least-squares pair), and S's spread between units (``seebeck_unit_rel_sd``) carried by
-    refitting at S·(1 ± it).
+    served), g within ±``balance_max_drift_per_day``, kept where Schwarz's criterion pays for
+    it and, given the unit's recent R25, where it does not move R25 further from that than
+    the held fit (a drift that does has absorbed some other misfit: wear is slow). Its
+    standard error: the criterion's curvature in (R25, g), σ²·(½·H)⁻¹ (the profile's
+    curvature over the drift, as for any least-squares pair), and S's spread between units
+    (``seebeck_unit_rel_sd``) carried by refitting at S·(1 ± it).
 
     Parameters
     ----------
@@ -481,6 +492,7 @@ def balance_resistance(
     usable : Samples that may be used (off ones only where the driver floats) [-].
     s25 : Registered ratings' S25 [V/K].
     r25_guess : Registered ratings' R25, the middle of the search (±30 %) [ohm].
+    r25_recent : R25 of the unit's recent windows, where known [ohm].
     alpha, beta : Temperature coefficients of R and S [1/K].
     options : ``on_current`` [A], ``min_on`` [-], ``seebeck_unit_rel_sd`` [-],
         ``step_r_max_rel_stderr`` [-], ``balance_max_residual_k`` [K],
@@ -507,7 +519,7 @@ def balance_resistance(
     t = np.asarray(time_s, dtype=np.float64)
     tau = (t[ok] - float(np.mean(t[driven]))) / 86_400.0
     bal = _Balance(rows, tau, s25, r25_guess, alpha, beta, options)
-    r25, drift, scatter, sigma = _held_or_drifting(bal)
+    r25, drift, scatter, sigma = _held_or_drifting(bal, r25_recent)
     ds = options.seebeck_unit_rel_sd
     at_s = [replace(bal, s25=s25 * (1.0 + e)) for e in (ds, -ds)]
     if drift == 0.0:
@@ -907,7 +919,8 @@ def reconstruct_faces(
         none [ohm].
     r25_read : R25 and its standard error to read ΔT at, where a steadier one than these
         readings' own is known (the unit's recent windows); ``step`` stays these readings'
-        own [ohm, ohm].
+        own, from the balance its drift kept only where it keeps R25 as near that one as
+        the held fit (:func:`balance_resistance`) [ohm, ohm].
     k25 : Module thermal conductance from the ratings, where known: without a hot probe Tm
         then comes from how the sinks share ΔT (:func:`unanchored_mean_temperature`) [W/K].
     alpha, beta : Temperature coefficients of R and S [1/K].
@@ -957,7 +970,8 @@ def reconstruct_faces(
             raise
         rows = usable & (floating | (i > options.on_current))
         step = balance_resistance(
-            time_s, i, v, tcab, th, rows, s25=s25, r25_guess=r25_guess, alpha=alpha, beta=beta,
+            time_s, i, v, tcab, th, rows, s25=s25, r25_guess=r25_guess,
+            r25_recent=None if r25_read is None else r25_read[0], alpha=alpha, beta=beta,
             options=options,
         )  # fmt: skip
         how = f"R25 from the cold face's steady heat balance over {step.n_steps} samples"

@@ -447,6 +447,44 @@ def test_a_module_wearing_within_the_window_gives_r_at_its_middle_and_the_drift(
     assert res.drift_per_day == pytest.approx(0.007, rel=0.2)
 
 
+def test_a_wearing_module_keeps_its_drift_beside_the_recent_windows_r25() -> None:
+    # The wearing module above, with the unit's recent windows reading R25 as it was at the
+    # window's start (R_HAND·(1 - 0.007/2)): the drifting fit puts R25 at the window's
+    # middle nearer that than the held fit, so wear is still read, within 1 % of the
+    # middle's R and the drift within a fifth of 0.7 %/day.
+    t, i, v, tcab, _ta, th = _massless_trace(13, wear_per_day=0.007)
+    ok = np.ones(t.size, dtype=bool)
+    res = mt.balance_resistance(
+        t, i, v, tcab, th, ok, s25=S_HAND, r25_guess=2.3, r25_recent=R_HAND * (1.0 - 0.0035),
+        alpha=0.0, beta=0.0,
+    )  # fmt: skip
+    on = i > 0.05
+    r_mid = R_HAND * (1.0 + 0.007 * (float(np.mean(t[on])) - 43_200.0) / 86_400.0)
+    assert res.r25 == pytest.approx(r_mid, rel=0.01)
+    assert res.drift_per_day == pytest.approx(0.007, rel=0.2)
+
+
+def test_a_creeping_cabinet_probe_is_not_read_as_wear_beside_the_recent_windows_r25() -> None:
+    # The steady module of the hand-solved balance, its cabinet probe creeping by 1 K over
+    # the day (the probe drifts, the module does not): the balance pays Schwarz's price for a
+    # drift of R25 of about half a per cent a day, which absorbs the probe's creep. Given
+    # the unit's recent windows' R25 (the true one here), that drift moves R25 away from
+    # them, and the held fit is kept: no drift, R25 within 1 % (as for the steady module).
+    t, i, v, tcab, _ta, th = _massless_trace(13)
+    tcab = tcab + (t - float(np.mean(t))) / 86_400.0
+    ok = np.ones(t.size, dtype=bool)
+    alone = mt.balance_resistance(
+        t, i, v, tcab, th, ok, s25=S_HAND, r25_guess=2.3, alpha=0.0, beta=0.0
+    )
+    assert alone.drift_per_day > 0.002  # the creep read as a drift without a reference
+    res = mt.balance_resistance(
+        t, i, v, tcab, th, ok, s25=S_HAND, r25_guess=2.3, r25_recent=R_HAND, alpha=0.0,
+        beta=0.0,
+    )  # fmt: skip
+    assert res.drift_per_day == 0.0
+    assert res.r25 == pytest.approx(R_HAND, rel=0.01)
+
+
 def test_faces_that_store_heat_are_not_read_from_a_steady_balance() -> None:
     # The same module with both faces lagging their steady values by a 5-minute time
     # constant (sinks that store heat): a slow drift can fit a steady balance with the wrong

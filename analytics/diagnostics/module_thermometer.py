@@ -101,6 +101,9 @@ class StepResistance:
     decay_ratio : Without face probes, how many times faster the open-circuit voltage fell
         after the switch-offs than the cabinet's and ambient's drift explains (the faces held
         heat across the steps); None where a hot probe judged that [-].
+    change_se : The part of ``r25_se`` left in R25's changes against the unit's own
+        earlier windows, the steps' scatter: the decay's curvature, Tm's offset and the
+        current reading's offset are much the same in every window; None: all of it [ohm].
     """
 
     r25: float
@@ -110,6 +113,7 @@ class StepResistance:
     note: str | None
     drift_per_day: float = 0.0
     decay_ratio: float | None = None
+    change_se: float | None = None
 
 
 IntArray: TypeAlias = NDArray[np.intp]
@@ -283,7 +287,9 @@ def step_resistance(
     note = None
     if not reliable:
         note = f"R from {k.size} switch-off steps only within ±{100 * se / abs(r25):.1f} %"
-    return StepResistance(r25, se, int(k.size), reliable, note, decay_ratio=decay)
+    return StepResistance(
+        r25, se, int(k.size), reliable, note, decay_ratio=decay, change_se=scatter
+    )
 
 
 def _balance_ssr(

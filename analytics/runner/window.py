@@ -310,7 +310,10 @@ def _electrical(
     if held is not None:
         # R25 read from the module's voltage: followed where it was served as reliable.
         moved = FLAGS_HELD_R25_CABINET_PROBE_MOVED if cabinet_moved(state, cfg) else None
-        track_r25_from_voltage(rows, state, b, el.r25, se_r, el.r_reliable, cfg, moved)
+        # Changes are judged on the error that does not cancel against earlier windows.
+        step = data.faces.step if data.faces is not None else None
+        se_change = se_r if step is None or step.change_se is None else step.change_se
+        track_r25_from_voltage(rows, state, b, el.r25, se_change, el.r_reliable, cfg, moved)
         return _Electrical(el, on, tm_on, f_r, f_s, s_own, se_own)
     if floating:
         s_steps, _ = dg.harman_steps(t, i, v, tc, th, usable, options=diagnostics_options(cfg))

@@ -60,6 +60,9 @@ class Reporting:
 
 #: Set once by ``main`` from ``--interval`` and ``--summaries``.
 REPORTING = Reporting()
+#: Heat capacities of every unit's cold and hot sink in the detect and season parts [J/K]
+#: (0: massless faces); set from ``--sinks``.
+SINKS = (0.0, 0.0)
 
 
 def build_db(
@@ -384,14 +387,18 @@ def detection_fleet(
     seed: int, n_dev: int = 10, days: float = 26.0, sensors: str = "full"
 ) -> sim.FleetSpec:
     """Fleet with two each of wear (to +10 %), a 1.5x UA step and a 3x r_hot step, every
-    unit with the face probes of ``sensors``."""
+    unit with the face probes of ``sensors`` and the sinks of ``SINKS``."""
     spec = sim.random_fleet(n_dev, seed=seed, start_s=START_S, days=days,
                             faults="wear:2,leak:2,fan:2")  # fmt: skip
     # Leak and fan as the targets state them: a 1.5x UA step and a 3x r_hot step.
     faults = tuple(
         dataclasses.replace(f, magnitude=1.5) if f.kind == "leak" else f for f in spec.faults
     )
-    return REPORTING.apply(sim.with_sensor_set(dataclasses.replace(spec, faults=faults), sensors))
+    devices = tuple(
+        dataclasses.replace(d, c_cold_sink=SINKS[0], c_hot_sink=SINKS[1]) for d in spec.devices
+    )
+    spec = dataclasses.replace(spec, faults=faults, devices=devices)
+    return REPORTING.apply(sim.with_sensor_set(spec, sensors))
 
 
 def detection_scores(
@@ -428,7 +435,8 @@ def part_detect(
     seed: int, n_dev: int, days: float, sensors: str = "full"
 ) -> tuple[list[Detection], int]:
     print(f"\n== Detection ({sensors} sensor set): {n_dev} devices, {days:g} days of "
-          f"{REPORTING.label()}, seed {seed}, faults wear/leak/fan ==")  # fmt: skip
+          f"{REPORTING.label()}, seed {seed}, faults wear/leak/fan, sinks of "
+          f"{SINKS[0]:g}/{SINKS[1]:g} J/K ==")  # fmt: skip
     t0 = time.perf_counter()
     found, healthy, false = detection_scores(seed, n_dev, days, sensors)
     print(f"(simulation and analysis {time.perf_counter() - t0:.1f} s)")
@@ -530,8 +538,9 @@ def part_season(seeds: list[int], n_dev: int, days: float, sensors: str = "full"
 
 def _season_one(seed: int, n_dev: int, days: float, sensors: str) -> int:
     print(f"\n== Season ({sensors} sensor set): {n_dev} healthy devices, {days:g} days of "
-          f"{REPORTING.label()}, seed {seed}, ambient swinging about ±10 K ==")  # fmt: skip
-    sea = season_scores(seed, n_dev, days, sensors=sensors)
+          f"{REPORTING.label()}, seed {seed}, ambient swinging about ±10 K, sinks of "
+          f"{SINKS[0]:g}/{SINKS[1]:g} J/K ==")  # fmt: skip
+    sea = season_scores(seed, n_dev, days, SINKS, sensors)
     for f in sea.flags:
         print(f"flag: {f}")
     for dev, (lo, hi) in sea.r25_change.items():
@@ -703,7 +712,8 @@ def main(argv: list[str] | None = None) -> int:
     )  # fmt: skip
     ap.add_argument(
         "--sinks", default="0,0",
-        help="heat capacities of the cold and hot sinks for the accuracy part [J/K]; "
+        help="heat capacities of the cold and hot sinks for the accuracy, detect and season "
+        "parts [J/K]; "
         "e.g. 150,400 for small aluminium sinks (0,0: massless faces)",
     )  # fmt: skip
     ap.add_argument("--detect-seeds", default="4", help="seeds of the detect part")
@@ -717,15 +727,16 @@ def main(argv: list[str] | None = None) -> int:
         help="every reading carries the interval summaries (means over its interval)",
     )  # fmt: skip
     args = ap.parse_args(argv)
-    global REPORTING
+    global REPORTING, SINKS
     REPORTING = Reporting(60.0 * args.interval, args.summaries)
+    cc, ch = (float(x) for x in args.sinks.split(","))
+    SINKS = (cc, ch)
     parts = set(args.part.split(","))
     sets = SENSOR_SETS if args.sensors == "all" else (args.sensors,)
     for sensors in sets:
         if "accuracy" in parts:
-            cc, ch = (float(x) for x in args.sinks.split(","))
             seeds = [int(s) for s in args.seeds.split(",")]
-            part_accuracy(seeds, args.devices, 7.0, (cc, ch), sensors)
+            part_accuracy(seeds, args.devices, 7.0, SINKS, sensors)
         if "detect" in parts:
             seeds = [int(x) for x in args.detect_seeds.split(",")]
             found: list[Detection] = []

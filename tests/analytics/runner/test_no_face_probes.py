@@ -1,0 +1,59 @@
+"""A module's wear followed without any face probe, from the switch-off steps of a floating
+driver whose sinks hold heat.
+
+Readings from the fleet simulator (test data only), the truth its parameters: R25 of one
+unit rising 10 % over four days, its twin steady. The reference is the switch-off step
+(T. C. Harman, J. Appl. Phys. 29, 1373, 1958): where the faces hold their temperature
+across the switch, V_on - V_off = I·R; the open-circuit voltage relaxing over the minutes
+after it shows they did. Sinks of 500/1500 J/K (cold/hot), aluminium of about half a
+kilogram and a kilogram and a half (from memory).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from sqlalchemy.engine import Engine
+
+from tecfleet.analytics import runner
+from tecfleet.analytics import simulation as sim
+from tecfleet.ingest import db
+from tests.fleet_fixture import register, stored_readings
+
+START_S = 1_735_689_600.0
+DAYS = 9.0
+WEAR_AT_S = START_S + 3.0 * 86_400.0
+SINKS = {"c_cold_sink": 500.0, "c_hot_sink": 1500.0}
+
+
+def _analysed(tmp_path: Path) -> tuple[Engine, sim.FleetTruth]:
+    unit = {"sensor_set": "no_faces", "off_voltage": "open_circuit", "cuts_per_30d": 0.0}
+    spec = sim.FleetSpec(
+        devices=(sim.DeviceSpec("nf-1", **unit, **SINKS), sim.DeviceSpec("nf-2", **unit, **SINKS)),
+        start_s=START_S, interval_s=60.0, seed=208,
+        faults=(sim.Fault("wear", "nf-1", WEAR_AT_S, magnitude=1.1, ramp_s=4 * 86_400.0),),
+    )  # fmt: skip
+    engine = db.make_engine(f"sqlite:///{tmp_path}/nf.db")
+    db.migrate(engine)
+    register(engine, spec, int(START_S * 1000))
+    db.store_batch(engine, stored_readings(spec, DAYS))
+    runner.analyze(engine)
+    return engine, sim.Simulator(spec).truth
+
+
+def test_wear_is_flagged_without_face_probes_where_the_sinks_hold_heat(tmp_path: Path) -> None:
+    engine, truth = _analysed(tmp_path)
+    end_s = START_S + DAYS * 86_400.0
+    # The steady unit: R25 served as reliable and within 3 % of the truth (the target without
+    # face probes), and no wear flag.
+    steady = runner.latest_health(engine, "nf-2")["module.resistance_25c_ohm"]
+    assert steady["reliable"], steady.get("reason")
+    assert abs(steady["value"] / truth.params_at("nf-2", end_s)["r25"] - 1.0) <= 0.03
+    flags = list(runner.estimate_history(engine, "nf-2", "module.resistance_25c.flag", start_ms=0))
+    assert flags and max(r["value"] for r in flags) == 0.0
+    # The wearing unit: flagged once R25 has risen past the flag's 4 %, and not before the
+    # wear began.
+    worn = list(runner.estimate_history(engine, "nf-1", "module.resistance_25c.flag", start_ms=0))
+    raised = [r["at_ms"] / 1000.0 for r in worn if r["value"] == 1.0]
+    assert raised, "no wear flag without face probes"
+    assert raised[0] > WEAR_AT_S

@@ -875,6 +875,16 @@ def _faces_checked(
     return dt, dt_se, tm, tm_sd
 
 
+def _held_across(step: StepResistance) -> str:
+    # What shows the faces held across the switch-offs, where no probe did, in words.
+    if step.decay_ratio is None:
+        return ""
+    return (
+        f" (their open-circuit voltage relaxing {step.decay_ratio:.0f}x faster than the "
+        "cabinet's drift explains: the faces held across them)"
+    )
+
+
 def reconstruct_faces(
     time_s: FloatArray,
     current: FloatArray,
@@ -960,12 +970,7 @@ def reconstruct_faces(
             time_s, i, v, tcab, ta, th, usable, s25=s25, k25=k25, alpha=alpha, beta=beta,
             options=options,
         )  # fmt: skip
-        how = f"R25 from {step.n_steps} switch-off steps"
-        if step.decay_ratio is not None:
-            how += (
-                f" (their open-circuit voltage relaxing {step.decay_ratio:.0f}x faster than the "
-                "cabinet's drift explains: the faces held across them)"
-            )
+        how = f"R25 from {step.n_steps} switch-off steps" + _held_across(step)
         dt, dt_se, tm, tm_sd = _faces_checked(
             i, v, tcab, ta, th, step, floating, s25, alpha, beta, options, r25_read, k25
         )

@@ -79,6 +79,17 @@ def stored_readings(spec: sim.FleetSpec, days: float) -> list[db.Reading]:
     return out
 
 
+def analysed_fleet(path: str, spec: sim.FleetSpec, days: float) -> Engine:
+    """A fresh SQLite database at ``path`` holding ``days`` of ``spec`` registered from its
+    start, stored and analysed."""
+    engine = db.make_engine(f"sqlite:///{path}")
+    db.migrate(engine)
+    register(engine, spec, int(spec.start_s * 1000))
+    db.store_batch(engine, stored_readings(spec, days))
+    runner.analyze(engine)
+    return engine
+
+
 def _readings(spec: Any, chunk: Any) -> list[db.Reading]:
     m = chunk.measured
     j, i = np.nonzero(chunk.present)

@@ -23,9 +23,8 @@ from tecfleet.analytics.runner.tracks import (
     cabinet_moved,
     faces_judged,
 )
-from tecfleet.ingest import db
 from tecfleet.ingest.db.analysis import read_states
-from tests.fleet_fixture import register, stored_readings
+from tests.fleet_fixture import analysed_fleet
 
 START_S = 1_735_689_600.0
 DAYS = 5.0
@@ -40,11 +39,7 @@ def _analysed(tmp_path: Path) -> Engine:
         faults=(sim.Fault("sensor", "cp-1", DRIFT_AT_S, magnitude=3.0, ramp_s=2 * 86_400.0,
                           channel="t_cabinet", mode="drift"),),
     )  # fmt: skip
-    engine = db.make_engine(f"sqlite:///{tmp_path}/cp.db")
-    db.migrate(engine)
-    register(engine, spec, int(START_S * 1000))
-    db.store_batch(engine, stored_readings(spec, DAYS))
-    runner.analyze(engine)
+    engine = analysed_fleet(f"{tmp_path}/cp.db", spec, DAYS)
     return engine
 
 

@@ -17,8 +17,7 @@ from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import runner
 from tecfleet.analytics import simulation as sim
-from tecfleet.ingest import db
-from tests.fleet_fixture import register, stored_readings
+from tests.fleet_fixture import analysed_fleet
 
 START_S = 1_735_689_600.0
 DAYS = 9.0
@@ -33,11 +32,7 @@ def _analysed(tmp_path: Path) -> tuple[Engine, sim.FleetTruth]:
         start_s=START_S, interval_s=60.0, seed=208,
         faults=(sim.Fault("wear", "nf-1", WEAR_AT_S, magnitude=1.1, ramp_s=4 * 86_400.0),),
     )  # fmt: skip
-    engine = db.make_engine(f"sqlite:///{tmp_path}/nf.db")
-    db.migrate(engine)
-    register(engine, spec, int(START_S * 1000))
-    db.store_batch(engine, stored_readings(spec, DAYS))
-    runner.analyze(engine)
+    engine = analysed_fleet(f"{tmp_path}/nf.db", spec, DAYS)
     return engine, sim.Simulator(spec).truth
 
 

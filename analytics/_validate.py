@@ -17,6 +17,8 @@ FloatOrArray: TypeAlias = float | FloatArray
 T_MIN_K = 213.15
 #: Upper end of the documented temperature domain, 150 °C [K].
 T_MAX_K = 423.15
+#: 0 °C [K].
+T_0C_K = 273.15
 #: 25 °C [K].
 T_25C_K = 298.15
 

@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+from tecfleet.analytics._validate import T_0C_K
+
 #: 0 °C in kelvin [K].
-T0 = 273.15
+T0 = T_0C_K
 #: Milliseconds in a minute, an hour and a day [ms].
 MS_MIN = 60_000
 MS_HOUR = 3_600_000

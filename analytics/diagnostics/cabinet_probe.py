@@ -19,7 +19,7 @@ import math
 
 import numpy as np
 
-from .._validate import FloatArray
+from .._validate import T_0C_K, FloatArray
 from .estimates import BoolArray
 from .least_squares import median_mad
 
@@ -55,8 +55,8 @@ def cold_side_heat_balance(
     seebeck : Module Seebeck coefficient, from its ratings [V/K].
     conductance : Module thermal conductance, from its ratings [W/K].
     """
-    tc = np.asarray(t_cold_c, np.float64) + 273.15
-    th = np.asarray(t_hot_c, np.float64) + 273.15
+    tc = np.asarray(t_cold_c, np.float64) + T_0C_K
+    th = np.asarray(t_hot_c, np.float64) + T_0C_K
     i = np.asarray(current, np.float64)
     v = np.asarray(voltage, np.float64)
     joule = 0.5 * i * (v - seebeck * (th - tc))

@@ -8,11 +8,12 @@ from dataclasses import dataclass
 
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics
+from tecfleet.analytics._validate import T_0C_K
 
 __all__ = ["MS_DAY", "T0", "AnalysisSettings", "diagnostics_options", "for_reporting"]
 
 #: 0 °C in kelvin [K].
-T0 = 273.15
+T0 = T_0C_K
 #: Milliseconds in a day [ms].
 MS_DAY = 86_400_000
 

@@ -13,6 +13,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tecfleet.analytics import physics
+from tecfleet.analytics._validate import T_0C_K
 
 __all__ = [
     "CHANNELS",
@@ -31,7 +32,7 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-T0_K = 273.15
+T0_K = T_0C_K
 
 #: Measured channels in payload order (``DeviceSpec.sensor_bias`` and ``sensor_noise`` follow
 #: this order).

@@ -3,7 +3,7 @@ device or a site during maintenance, and override thresholds per device or site.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 from sqlalchemy.engine import Engine
@@ -44,14 +44,22 @@ def add_maintenance(
     site: str | None = None,
     reason: str | None = None,
     created_by: str | None = None,
+    replaced: Sequence[str] = (),
 ) -> int:
     """Hold the notices of a device or a whole site between ``start_ms`` and ``end_ms`` [ms,
-    event time]."""
+    event time]. ``replaced``: the device's parts replaced during the window (names of
+    ``REPLACEABLE_PARTS``), whose history the analysis starts afresh at ``end_ms``."""
     if (device_id is None) == (site is None):
         raise AlertError("a maintenance window names either a device or a site")
     if end_ms <= start_ms:
         raise AlertError("a maintenance window must end after it starts")
+    unknown = sorted(set(replaced) - set(records.REPLACEABLE_PARTS))
+    if unknown:
+        known = ", ".join(records.REPLACEABLE_PARTS)
+        raise AlertError(f"unknown replaced parts {unknown}: name only {known}")
+    if replaced and device_id is None:
+        raise AlertError("replaced parts are recorded on a device's window, not a site's")
     return records.insert_maintenance(
         engine, start_ms, end_ms, device_id=device_id, site=site, reason=reason,
-        created_by=created_by,
+        created_by=created_by, replaced=list(dict.fromkeys(replaced)),
     )  # fmt: skip

@@ -20,13 +20,19 @@ router = APIRouter(tags=["alerts"])
 @router.post("/v1/maintenance", status_code=201, response_model=MaintenanceOut, responses=KEYED)
 def maintenance_add(engine: EngineDep, body: MaintenanceIn, who: Writer) -> MaintenanceOut:
     """Hold notices for a device or a site between ``start`` and ``end``: alerts are still
-    judged and recorded, and their notices are sent at the window's end if still relevant."""
+    judged and recorded, and their notices are sent at the window's end if still relevant.
+    ``replaced`` names the device's parts replaced during the window: from its end the
+    analysis judges them against a commissioning of their own."""
     times = {}
     for name in ("start", "end"):
         try:
             times[name] = rfc3339_to_ms(getattr(body, name))
         except ValueError as exc:
             raise unprocessable("body", name, str(exc)) from exc
+    if body.replaced and body.device_id is None:
+        raise unprocessable(
+            "body", "replaced", "replaced parts are recorded on a device's window, not a site's"
+        )
     if not maintenance.within_sites(engine, who, body.device_id, body.site):
         raise ApiError(403, "site_not_allowed", "the key may silence only devices at its sites")
     try:
@@ -38,6 +44,7 @@ def maintenance_add(engine: EngineDep, body: MaintenanceIn, who: Writer) -> Main
             site=body.site,
             reason=body.reason,
             who=who,
+            replaced=body.replaced,
         )
     except AlertError as exc:
         raise unprocessable("body", "device_id", str(exc)) from exc

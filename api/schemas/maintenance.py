@@ -5,6 +5,8 @@ from __future__ import annotations
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from tecfleet.ingest.db.alert_records import ReplaceablePart
+
 
 class MaintenanceIn(BaseModel):
     """A window holding notices: name a device or a site, and its start and end."""
@@ -15,6 +17,15 @@ class MaintenanceIn(BaseModel):
     start: str
     end: str
     reason: str | None = Field(None, max_length=2000)
+    replaced: list[ReplaceablePart] = Field(
+        default_factory=list,
+        max_length=5,
+        description=(
+            "Parts of the named device replaced during the window: the analysis forgets what "
+            "it learned of them and starts their baselines afresh at the window's end. Only "
+            "on a device's window."
+        ),
+    )
 
 
 class MaintenanceOut(BaseModel):
@@ -27,3 +38,4 @@ class MaintenanceOut(BaseModel):
     end: str | None
     reason: str | None
     created_by: str | None
+    replaced: list[str] = Field(default_factory=list)

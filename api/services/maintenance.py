@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any
 
 from sqlalchemy.engine import Engine
@@ -24,6 +25,7 @@ def _maintenance_out(r: Any) -> MaintenanceOut:
         end=ms_to_rfc3339(r.end_ms),
         reason=r.reason,
         created_by=r.created_by,
+        replaced=list(r.replaced or []),
     )
 
 
@@ -36,9 +38,10 @@ def add_window(
     site: str | None,
     reason: str | None,
     who: Principal,
+    replaced: Sequence[str] = (),
 ) -> MaintenanceOut:
-    """Store a window (AlertError when it names neither or both, or ends before it starts),
-    on record in the audit trail."""
+    """Store a window (AlertError when it names neither or both, ends before it starts, or
+    records replaced parts on a site), on record in the audit trail."""
     window_id = rules.add_maintenance(
         engine,
         start_ms,
@@ -47,6 +50,7 @@ def add_window(
         site=site,
         reason=reason,
         created_by=who.name,
+        replaced=replaced,
     )
     out = _maintenance_out(alert_records.maintenance_window(engine, window_id))
     site = site if device_id is None else sites_db.known_site(engine, device_id)

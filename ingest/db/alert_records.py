@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Collection, Mapping, Sequence
-from typing import Any
+from typing import Any, Literal, get_args
 
 import numpy as np
 import sqlalchemy as sa
@@ -37,6 +37,8 @@ __all__ = [
     "MAINTENANCE_LIST_LIMIT",
     "NOTICE_ROUTES",
     "OPEN_STATES",
+    "REPLACEABLE_PARTS",
+    "ReplaceablePart",
     "absorb_notices",
     "acknowledge_alert",
     "active_maintenance",
@@ -62,6 +64,7 @@ __all__ = [
     "read_estimates",
     "read_progress",
     "release_held",
+    "replacements",
     "set_incident",
     "set_told",
     "store_policy",
@@ -71,6 +74,10 @@ __all__ = [
     "update_alert",
     "write_progress",
 ]
+
+#: The parts a maintenance window may record as replaced: the module and each probe.
+ReplaceablePart = Literal["module", "cabinet_probe", "cold_probe", "hot_probe", "ambient_probe"]
+REPLACEABLE_PARTS: tuple[str, ...] = get_args(ReplaceablePart)
 
 #: Alert states in which an alert is still live.
 OPEN_STATES = ("open", "acknowledged")
@@ -459,6 +466,16 @@ def active_maintenance(conn: Connection, device_id: str, site: str | None) -> li
     return [(int(r.start_ms), int(r.end_ms)) for r in rows]
 
 
+def replacements(conn: Connection, device_id: str) -> list[tuple[int, list[str]]]:
+    """The device's maintenance windows that replaced parts: (end [ms], part names), oldest
+    end first."""
+    m = maintenance_windows
+    rows = conn.execute(
+        sa.select(m.c.end_ms, m.c.replaced).where(m.c.device_id == device_id).order_by(m.c.end_ms)
+    ).fetchall()
+    return [(int(r.end_ms), list(r.replaced)) for r in rows if r.replaced]
+
+
 def release_held(conn: Connection, device_id: str, reference_ms: int) -> None:
     """Maintenance over: held notices of alerts still open go out once, the rest are dropped.
     Deferred resolutions whose wait is over go out if the alert is still resolved."""
@@ -615,19 +632,21 @@ def insert_maintenance(
     site: str | None,
     reason: str | None,
     created_by: str | None,
+    replaced: Sequence[str] = (),
 ) -> int:
-    """Store a maintenance window; returns its id."""
+    """Store a maintenance window with the parts replaced during it; returns its id."""
+    values: dict[str, Any] = {
+        "device_id": device_id, "site": site, "start_ms": start_ms, "end_ms": end_ms,
+        "reason": reason, "created_ms": now_ms(), "created_by": created_by,
+    }  # fmt: skip
+    if replaced:
+        values["replaced"] = list(replaced)  # none: the column stays NULL, as on older rows
     with engine.begin() as conn:
         return int(
             conn.execute(
-                maintenance_windows.insert()
-                .values(
-                    device_id=device_id, site=site, start_ms=start_ms, end_ms=end_ms,
-                    reason=reason, created_ms=now_ms(), created_by=created_by,
-                )
-                .returning(maintenance_windows.c.id)
+                maintenance_windows.insert().values(**values).returning(maintenance_windows.c.id)
             ).scalar_one()
-        )  # fmt: skip
+        )
 
 
 # What the API reads of alerts and maintenance windows.

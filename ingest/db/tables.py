@@ -252,6 +252,9 @@ maintenance_windows = sa.Table(
     sa.Column("reason", sa.Text),
     sa.Column("created_ms", sa.BigInteger, nullable=False),
     sa.Column("created_by", sa.String(200)),
+    # the parts replaced during the window, a list of REPLACEABLE_PARTS names (migration
+    # 0013); NULL: none recorded
+    sa.Column("replaced", sa.JSON),
 )
 
 notifications = sa.Table(

@@ -156,6 +156,15 @@ def _sensor_fault(
             moved = pd.Timestamp(int(ev["cabinet_probe_offset_since_ms"]), unit="ms")
             s += f", moving since {moved:%Y-%m-%d %H:%M} UTC"
         s += "."
+    replaced = ev.pop("cabinet_probe_replaced_ms", None)
+    if off is not None and replaced is not None and spell["start"] < replaced:
+        # the spell began on the probe since replaced: what it showed is no longer judged
+        ev["cabinet_probe_replaced_ms"] = replaced
+        at = pd.Timestamp(int(replaced), unit="ms")
+        s += (
+            f" The probe was replaced in the maintenance that ended {at:%Y-%m-%d %H:%M} UTC: "
+            "from then on it is judged against a commissioning fit of its own."
+        )
     if channel_fault(issues):
         ev["held_back"] = list(ESTIMATE_KINDS)
         s += (

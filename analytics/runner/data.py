@@ -61,6 +61,9 @@ class Readings:
     #: The readings' interval summaries (NaN where a reading carries none), None where the
     #: newest reading of the load carries none.
     means: dg.IntervalMeans | None = None
+    #: End of the newest maintenance that replaced a part (epoch ms UTC): the windows read
+    #: start there at the earliest (see ``runner.replacements``); None: no such end.
+    since_ms: int | None = None
 
     @property
     def summarised(self) -> bool:
@@ -73,9 +76,12 @@ class Readings:
         return self.cold_probe, self.hot_probe
 
     def slice(self, start_ms: int, end_ms: int) -> slice:
+        """The readings with ``start_ms <= ts < end_ms``, from ``since_ms`` at the earliest."""
+        if self.since_ms is not None:
+            start_ms = max(start_ms, self.since_ms)
         a = int(np.searchsorted(self.ts, start_ms, side="left"))
         b = int(np.searchsorted(self.ts, end_ms, side="left"))
-        return slice(a, b)
+        return slice(a, max(a, b))
 
 
 #: Reading columns the fits use, in the order of ``Readings``' arrays.

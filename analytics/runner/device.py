@@ -11,6 +11,7 @@ from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics.runner.daily import daily
 from tecfleet.analytics.runner.data import load, priors
 from tecfleet.analytics.runner.hot_side import hot_side, hourly, stretch_steps
+from tecfleet.analytics.runner.replacements import apply_replacements
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import (
     AnalysisSettings,
@@ -20,6 +21,7 @@ from tecfleet.analytics.runner.settings import (
 from tecfleet.analytics.runner.state import DeviceState
 from tecfleet.analytics.runner.window import fit_window
 from tecfleet.ingest import db
+from tecfleet.ingest.db import alert_records
 from tecfleet.ingest.db import analysis as analysis_db
 from tecfleet.ingest.db.analysis import DeviceToAnalyze
 
@@ -72,6 +74,8 @@ def analyze_device(
         data.t, data.tcab, data.tc, data.th, data.ta, data.i, data.v, data.door,
         breaks=breaks, probed=data.probed, options=diagnostics_options(cfg),
     )  # fmt: skip
+    replaced = alert_records.replacements(conn, dev.device_id)
+    data.since_ms = state.replaced_ms
     rows = EstimateRows(dev.device_id)
     prior = priors(dev.module, cfg)
     cabinet = dev.cabinet if isinstance(dev.cabinet, dict) else {}
@@ -80,6 +84,8 @@ def analyze_device(
     for b in range(done + step, end + 1, step):
         steps += 1
         if b % window == 0:
+            if replaced and apply_replacements(state, replaced, b) is not None:
+                data.since_ms = state.replaced_ms
             fit_window(data, b, rows, state, prior, cfg)
             hot = {}
         if b % (cfg.daily_s * 1000) == 0:

@@ -226,6 +226,9 @@ class DeviceState(_Stored):
     #: The newest window's shift of the cabinet probe against that balance [K]; None where
     #: the window could not judge it.
     cabinet_shift: float | None = None
+    #: End of the newest maintenance window whose replaced parts this state has forgotten
+    #: (epoch ms UTC; see ``runner.replacements``): no window reads readings before it.
+    replaced_ms: int | None = None
 
     def series_by_name(self) -> dict[str, list[Point]]:
         if self.series is None:

@@ -22,9 +22,11 @@ from tecfleet.analytics.diagnostics.cabinet_probe import (
 from tecfleet.analytics.diagnostics.electrical import floating_from_voltage
 from tecfleet.analytics.diagnostics.intervals import usual_interval
 from tecfleet.ingest import db
+from tecfleet.ingest.db import alert_records as records
 
 __all__ = [
     "PROBE_DRIFT_ISSUE",
+    "REFIT_AFTER",
     "cabinet_probe_offset",
     "cold_side",
     "cold_side_heat_balance",
@@ -135,21 +137,57 @@ def cold_side(
     return t_cold, qc, off & np.isfinite(t_cold)
 
 
+#: Replaced parts after which the commissioning fit is made again: the probes it reads (the
+#: cold face's where there is one, else the hot face's through the open-circuit voltage).
+REFIT_AFTER = ("cabinet_probe", "cold_probe", "hot_probe")
+
+
 def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
     """The commissioning fit of the cabinet probe against the cold side's heat balance, made
-    once over the first ``drift_baseline_s`` of the unit's readings and kept in the state."""
-    conn, dev, state, policy = scope.conn, scope.dev, scope.state, scope.policy
-    newest_ms = int(scope.t_all[-1])
-    if "probe_baseline" in state:
-        kept = state["probe_baseline"]
+    over the first ``drift_baseline_s`` of the unit's readings, or of its readings since the
+    end of the newest maintenance window that replaced a probe of :data:`REFIT_AFTER`, and
+    kept in the state. Where that window ended after the kept fit was made, the fit is made
+    again (``state["probe_replaced_ms"]`` keeps the window's end); the old fit still judges
+    this call's readings before that end (``until_ms`` of the fit returned)."""
+    state = scope.state
+    replaced_ms = _probe_replaced(scope)
+    kept = state.get("probe_baseline")
+    if kept is not None and (replaced_ms is None or int(kept["from_ms"]) >= replaced_ms):
         return kept if isinstance(kept, dict) and "r_cold" in kept else None
-    if not dev.module:
-        return None
-    first_ms = db.first_reading_ms(conn, dev.device_id)
+    first_ms = db.first_reading_ms(scope.conn, scope.dev.device_id)
     if first_ms is None:
         return None
+    start_ms = max(int(first_ms), replaced_ms or 0)
+    if kept is None or int(kept["from_ms"]) >= start_ms:
+        return _made_baseline(scope, start_ms)
+    del state["probe_baseline"]
+    state["probe_replaced_ms"] = start_ms
+    made = _made_baseline(scope, start_ms)
+    if made is None and "r_cold" in kept:
+        return {**kept, "until_ms": start_ms}
+    return made
+
+
+def _probe_replaced(scope: DeviceScope) -> int | None:
+    # The end of the newest maintenance window up to the newest reading that replaced a
+    # probe the fit reads [ms]; None where there is none.
+    newest_ms = int(scope.t_all[-1])
+    ends = [
+        end
+        for end, parts in records.replacements(scope.conn, scope.dev.device_id)
+        if end <= newest_ms and set(parts) & set(REFIT_AFTER)
+    ]
+    return max(ends) if ends else None
+
+
+def _made_baseline(scope: DeviceScope, first_ms: int) -> dict[str, Any] | None:
+    # The fit over the ``drift_baseline_s`` from ``first_ms`` [ms], kept in the state once
+    # that time has passed; None till then, or where it could not be made.
+    conn, dev, state, policy = scope.conn, scope.dev, scope.state, scope.policy
+    if not dev.module:
+        return None
     end_ms = int(first_ms) + int(policy.drift_baseline_s * 1000)
-    if newest_ms < end_ms:
+    if int(scope.t_all[-1]) < end_ms:
         return None  # not enough history yet
     consts = _module_constants(dev.module)
     if consts is None:
@@ -203,6 +241,8 @@ def probe_offsets(
         running_samples_needed(policy.drift_min_samples, interval, policy.drift_min_samples_floor),
     )  # fmt: skip
     off[t < int(baseline["to_ms"])] = np.nan
+    if baseline.get("until_ms") is not None:
+        off[t >= int(baseline["until_ms"])] = np.nan  # a replaced probe's fit
     return off
 
 

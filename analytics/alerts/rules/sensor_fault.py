@@ -322,9 +322,19 @@ def observe(scope: DeviceScope) -> Observations | None:
 
 
 def evidence(scope: DeviceScope) -> Callable[[int], dict[str, Any]]:
-    """Evidence: the estimate alerts held back so far because of the sensor fault."""
+    """Evidence: the estimate alerts held back so far because of the sensor fault, and from
+    the end of the maintenance that replaced a probe the cabinet probe's fit reads, that end
+    (see ``probe_drift.probe_baseline``)."""
     state = scope.state
-    return lambda _t: {"suppressed": dict(state.get("suppressed", {}))}
+
+    def context(t: int) -> dict[str, Any]:
+        out: dict[str, Any] = {"suppressed": dict(state.get("suppressed", {}))}
+        replaced = state.get("probe_replaced_ms")
+        if replaced is not None and t >= int(replaced):
+            out["cabinet_probe_replaced_ms"] = int(replaced)
+        return out
+
+    return context
 
 
 def track_taint(scope: DeviceScope) -> None:

@@ -30,21 +30,34 @@ _MODULE = (
     "r25_levers",
 )  # fmt: skip
 
+#: What UA's track keeps besides its series (see ``DeviceState.restart_track``): the windows
+#: kept at the rated K and the ambient's usual lead over the cabinet.
+_UA = ("ua_raw", "ua_lead")
+
 #: State fields each replaceable part takes with it (see ``alert_records.REPLACEABLE_PARTS``).
 _FORGOTTEN: dict[str, tuple[str, ...]] = {
-    "cabinet_probe": _PROBE + _CABINET_BALANCE,
-    "cold_probe": _PROBE + _CABINET_BALANCE,
-    "hot_probe": _PROBE + _CABINET_BALANCE,
-    "ambient_probe": _PROBE,
+    "cabinet_probe": _PROBE + _CABINET_BALANCE + _UA,
+    "cold_probe": _PROBE + _CABINET_BALANCE + _UA,
+    "hot_probe": _PROBE + _CABINET_BALANCE + _UA,
+    "ambient_probe": _PROBE + _UA,
     "module": _MODULE + _CABINET_BALANCE,
 }
-#: Tracked quantities each part starts afresh (see ``DeviceState.restart_track``).
-_RESTARTED: dict[str, tuple[str, ...]] = {"module": ("r25",)}
+#: Tracked quantities each part starts afresh: those whose value its readings move by a
+#: constant (a new probe's offset in the cabinet's or the hot sink's balance, a new module's
+#: R25), which would read as a change against the old part's baseline.
+_RESTARTED: dict[str, tuple[str, ...]] = {
+    "cabinet_probe": ("ua",),
+    "cold_probe": ("ua",),
+    "hot_probe": ("ua", "rhot"),
+    "ambient_probe": ("ua", "rhot"),
+    "module": ("r25",),
+}
 
 
-def forgotten(part: str) -> tuple[str, ...]:
-    """The ``DeviceState`` fields a replaced ``part`` takes with it."""
-    return _FORGOTTEN[part]
+def forgotten(part: str) -> tuple[tuple[str, ...], tuple[str, ...]]:
+    """The ``DeviceState`` fields a replaced ``part`` takes with it, and the tracked
+    quantities it starts afresh."""
+    return _FORGOTTEN[part], _RESTARTED[part]
 
 
 def apply_replacements(
@@ -56,12 +69,13 @@ def apply_replacements(
     done = state.replaced_ms
     newest = None
     for end, parts in replacements:
-        if end >= b or (done is not None and end <= done):
+        if not parts or end >= b or (done is not None and end <= done):
             continue
         for part in parts:
-            for name in _FORGOTTEN.get(part, ()):
+            fields, tracks = forgotten(part)
+            for name in fields:
                 setattr(state, name, None)
-            for track in _RESTARTED.get(part, ()):
+            for track in tracks:
                 state.restart_track(track)
         newest = end if newest is None else max(newest, end)
     if newest is not None:

@@ -25,7 +25,9 @@ from tecfleet.ingest.db import analysis as analysis_db
 #: tracker; and three days of a unit without a cold-face probe whose module rests (the time
 #: of its newest rest and whether its faces are trusted kept); and the final state of a
 #: simulated unit without a cold-face probe whose cabinet probe drifted 3 K (the cabinet
-#: probe's balance against the open-circuit face and its newest shift kept).
+#: probe's balance against the open-circuit face and its newest shift kept); and the final
+#: state of a simulated unit whose module was swapped in a recorded maintenance window (the
+#: window's end kept, see ``tests.analytics.replaced_fleet``).
 STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
 
 

@@ -32,7 +32,7 @@ __all__ = [
     "cold_side_heat_balance",
     "drift_since",
     "fit_cold_side_baseline",
-    "probe_baseline",
+    "probe_baselines",
     "probe_offsets",
     "running_samples_needed",
 ]
@@ -142,47 +142,50 @@ def cold_side(
 REFIT_AFTER = ("cabinet_probe", "cold_probe", "hot_probe")
 
 
-def probe_baseline(scope: DeviceScope) -> dict[str, Any] | None:
-    """The commissioning fit of the cabinet probe against the cold side's heat balance, made
-    over the first ``drift_baseline_s`` of the unit's readings, or of its readings since the
-    end of the newest maintenance window that replaced a probe of :data:`REFIT_AFTER`, and
-    kept in the state. Where that window ended after the kept fit was made, the fit is made
-    again (``state["probe_replaced_ms"]`` keeps the window's end); the old fit still judges
-    this call's readings before that end (``until_ms`` of the fit returned)."""
+def probe_baselines(scope: DeviceScope) -> list[dict[str, Any]]:
+    """The commissioning fits of the cabinet probe against the cold side's heat balance that
+    judge this call's readings, oldest first: the fit over the first ``drift_baseline_s`` of
+    the unit's readings, and one over the same time from the end of each maintenance window
+    that replaced a probe of :data:`REFIT_AFTER` (up to the newest reading), each judging the
+    readings up to the next one's start (``until_ms``). The newest fit made is kept in the
+    state, and ``state["probe_replaced_ms"]`` keeps the newest such end reached. A fit not
+    yet made (too little history since its start) ends the list."""
     state = scope.state
-    replaced_ms = _probe_replaced(scope)
     kept = state.get("probe_baseline")
-    if kept is not None and (replaced_ms is None or int(kept["from_ms"]) >= replaced_ms):
-        return kept if isinstance(kept, dict) and "r_cold" in kept else None
-    first_ms = db.first_reading_ms(scope.conn, scope.dev.device_id)
-    if first_ms is None:
-        return None
-    start_ms = max(int(first_ms), replaced_ms or 0)
-    if kept is None or int(kept["from_ms"]) >= start_ms:
-        return _made_baseline(scope, start_ms)
-    del state["probe_baseline"]
-    state["probe_replaced_ms"] = start_ms
-    made = _made_baseline(scope, start_ms)
-    if made is None and "r_cold" in kept:
-        return {**kept, "until_ms": start_ms}
-    return made
+    if kept is None:
+        first_ms = db.first_reading_ms(scope.conn, scope.dev.device_id)
+        if first_ms is None:
+            return []
+        starts = [int(first_ms)]
+    else:
+        starts = [int(kept["from_ms"])]
+    starts += [end for end in _probe_replacements(scope) if end > starts[0]]
+    fits: list[dict[str, Any]] = []
+    for k, start in enumerate(starts):
+        if k:
+            state["probe_replaced_ms"] = start
+        made = kept if k == 0 and kept is not None else _made_baseline(scope, start)
+        if made is None:
+            break
+        if "r_cold" in made:
+            fits.append({**made, "until_ms": starts[k + 1]} if k + 1 < len(starts) else made)
+    return fits
 
 
-def _probe_replaced(scope: DeviceScope) -> int | None:
-    # The end of the newest maintenance window up to the newest reading that replaced a
-    # probe the fit reads [ms]; None where there is none.
+def _probe_replacements(scope: DeviceScope) -> list[int]:
+    # Ends of the maintenance windows up to the newest reading that replaced a probe the fit
+    # reads [ms], oldest first.
     newest_ms = int(scope.t_all[-1])
-    ends = [
+    return [
         end
         for end, parts in records.replacements(scope.conn, scope.dev.device_id)
         if end <= newest_ms and set(parts) & set(REFIT_AFTER)
     ]
-    return max(ends) if ends else None
 
 
 def _made_baseline(scope: DeviceScope, first_ms: int) -> dict[str, Any] | None:
     # The fit over the ``drift_baseline_s`` from ``first_ms`` [ms], kept in the state once
-    # that time has passed; None till then, or where it could not be made.
+    # that time has passed (without ``r_cold`` where it could not be made); None till then.
     conn, dev, state, policy = scope.conn, scope.dev, scope.state, scope.policy
     if not dev.module:
         return None
@@ -192,7 +195,7 @@ def _made_baseline(scope: DeviceScope, first_ms: int) -> dict[str, Any] | None:
     consts = _module_constants(dev.module)
     if consts is None:
         state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
-        return None
+        return dict(state["probe_baseline"])
     base = load_readings(conn, dev.device_id, int(first_ms) - 1, end_ms)
     needed = running_samples_needed(
         policy.drift_baseline_min_samples,
@@ -205,7 +208,7 @@ def _made_baseline(scope: DeviceScope, first_ms: int) -> dict[str, Any] | None:
     )
     if fit is None:
         state["probe_baseline"] = {"from_ms": int(first_ms), "to_ms": end_ms}
-        return None
+        return dict(state["probe_baseline"])
     across = (base["t_hot"].to_numpy(np.float64) - t_cold)[running]
     state["probe_baseline"] = {
         "from_ms": int(first_ms), "to_ms": end_ms, "offset_k": fit[0], "r_cold": fit[1],

@@ -20,7 +20,7 @@ from tecfleet.analytics.alerts.policy import AlertPolicy
 from tecfleet.analytics.alerts.rules.probe_drift import (
     PROBE_DRIFT_ISSUE,
     drift_since,
-    probe_baseline,
+    probe_baselines,
     probe_offsets,
 )
 from tecfleet.analytics.alerts.scope import DeviceScope, usual_interval_ms
@@ -302,12 +302,12 @@ def observe(scope: DeviceScope) -> Observations | None:
     policy, first = scope.policy, scope.first
     probed = bool(np.isfinite(scope.new_column("t_cold")[-1]))
     set_limit(scope.state, WARM_COLD_SIDE, None, None if probed else _WARM_NOT_PROBED)
-    baseline = probe_baseline(scope)
-    offsets = (
-        None
-        if baseline is None
-        else probe_offsets(scope.frame, baseline, policy, scope.interval_all)
-    )
+    fits = probe_baselines(scope)
+    offsets = None
+    for fit in fits:
+        # each fit judges its own stretch (NaN elsewhere): the newer one where they meet
+        off = probe_offsets(scope.frame, fit, policy, scope.interval_all)
+        offsets = off if offsets is None else np.where(np.isnan(off), offsets, off)
     sf = sensor_fault_observations(
         scope.frame, first, policy, _i_ref(scope.dev.module), scope.interval_all, offsets
     )
@@ -315,9 +315,12 @@ def observe(scope: DeviceScope) -> Observations | None:
         since = drift_since(scope.t_new, offsets[first:], scope.state, policy.drift_warning_k / 4)
         for i in np.flatnonzero(sf.active):
             if PROBE_DRIFT_ISSUE in sf.detail[i]["issues"]:
+                t = int(scope.t_new[i])
                 sf.detail[i]["cabinet_probe_offset_k"] = round(float(offsets[first + i]), 2)
                 sf.detail[i]["cabinet_probe_offset_since_ms"] = int(since[i]) or None
-                sf.detail[i]["cabinet_probe_baseline"] = baseline
+                sf.detail[i]["cabinet_probe_baseline"] = next(
+                    f for f in reversed(fits) if int(f["to_ms"]) <= t
+                )
     return sf
 
 

@@ -59,9 +59,10 @@ def _spec() -> sim.FleetSpec:
     )  # fmt: skip
 
 
-def replaced_fleet(tmp_path: Path) -> Engine:
+def replaced_fleet(tmp_path: Path, split_ms: int | None = None) -> Engine:
     """The fleet stored in a fresh SQLite database under ``tmp_path`` with its maintenance
-    windows recorded; not yet analysed."""
+    windows recorded; not yet analysed. With ``split_ms``, the alerts are evaluated on the
+    readings before it before the rest are stored (as a live run would)."""
     spec = _spec()
     engine = db.make_engine(f"sqlite:///{tmp_path / 'replaced.db'}")
     db.migrate(engine)
@@ -71,5 +72,10 @@ def replaced_fleet(tmp_path: Path) -> Engine:
             engine, END_MS - 3_600_000, END_MS, device_id=device, replaced=parts,
             reason="part swapped",
         )  # fmt: skip
-    db.store_batch(engine, stored_readings(spec, DAYS))
+    readings = stored_readings(spec, DAYS)
+    if split_ms is not None:
+        db.store_batch(engine, [r for r in readings if r.ts_ms < split_ms])
+        alerts.evaluate(engine)
+        readings = [r for r in readings if r.ts_ms >= split_ms]
+    db.store_batch(engine, readings)
     return engine

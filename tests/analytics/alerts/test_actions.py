@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import pytest
 import sqlalchemy as sa
 
 from tecfleet.analytics import alerts
+from tecfleet.analytics.errors import AlertError
 from tecfleet.ingest import db
 from tecfleet.ingest.db import alert_records
 from tests.analytics.alerts.cabinet import MIN, T0, cabinet_series, kinds
@@ -69,3 +71,13 @@ def test_a_maintenance_window_that_ends_warm_starts_a_new_pull_down(engine: sa.E
     assert kinds(changes) == [("excursion", "opened"), ("excursion", "resolved")]
     assert changes[0].at_ms == T0 + 2030 * MIN
     assert changes[0].evidence["pull_down_s"] == 3000.0
+
+
+def test_replaced_parts_are_checked_before_they_are_stored(engine: sa.Engine) -> None:
+    with pytest.raises(AlertError, match="unknown replaced parts"):
+        alerts.add_maintenance(engine, T0, T0 + MIN, device_id="cab-1", replaced=["fan"])
+    with pytest.raises(AlertError, match="not a site's"):
+        alerts.add_maintenance(engine, T0, T0 + MIN, site="north", replaced=["module"])
+    alerts.add_maintenance(engine, T0, T0 + MIN, device_id="cab-1", replaced=["hot_probe"])
+    with engine.connect() as conn:
+        assert alert_records.replacements(conn, "cab-1") == [(T0 + MIN, ["hot_probe"])]

@@ -77,3 +77,29 @@ def test_an_open_probe_offset_alert_resolves_saying_the_probe_was_replaced(
     assert "probe was replaced" in done.summary
     # nothing about a replacement on the alert while it was open before the window's end
     assert "cabinet_probe_replaced_ms" not in found[0].evidence
+
+
+def _alert_rows(engine: Engine, device: str) -> list[tuple[Any, ...]]:
+    a = db.alerts
+    with engine.connect() as conn:
+        rows = conn.execute(
+            sa.select(a.c.kind, a.c.state, a.c.opened_ms, a.c.resolved_ms, a.c.summary)
+            .where(a.c.device_id == device)
+            .order_by(a.c.id)
+        ).fetchall()
+    return [tuple(r) for r in rows]
+
+
+def test_judged_live_in_two_parts_the_same_as_at_once(
+    judged: tuple[Engine, list[alerts.AlertChange]], tmp_path: Path
+) -> None:
+    # The readings up to two hours after the replacement evaluated first (the first fit
+    # made and kept), the rest then: the same fits and the same alerts.
+    engine, _changes = judged
+    live = replaced_fleet(tmp_path, split_ms=END_MS + 7_200_000)
+    alerts.evaluate(live)
+    for device in ("rp-cab", "rp-cab-x", "rp-fix"):
+        fit = _progress(live, device)["probe_baseline"]
+        assert fit == _progress(engine, device)["probe_baseline"]
+        assert _alert_rows(live, device) == _alert_rows(engine, device)
+    assert any(r[0] == "sensor_fault" for r in _alert_rows(live, "rp-fix"))

@@ -12,6 +12,7 @@ offset moves one for one; the warning is the policy's ``drift_warning_k`` (1 K).
 
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Any
 
 import pytest

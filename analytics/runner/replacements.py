@@ -23,11 +23,12 @@ _PROBE = ("probe_rests", "probe_offsets", "probe_offset_cov")
 #: The cabinet probe's commissioning balance against the cold face read from the module's
 #: open-circuit voltage (from the hot probe and the module's S): every part it reads.
 _CABINET_BALANCE = ("cabinet_baseline", "cabinet_shift")
-#: The module's settled values (own S, the pooled S's sums, settled K) and what R25's
-#: track is judged at (the trend S and the windows kept for it).
+#: The module's settled values (own S, the pooled S's sums, settled K), what R25's track is
+#: judged at (the trend S and the windows kept for it) and the K that UA's and the hot
+#: side's changes are judged at: a new module brings its own K, which moves both.
 _MODULE = (
     "s_hist", "s_days", "s_sums", "k_hist", "s_trend", "s_trend_source", "r25_raw",
-    "r25_levers",
+    "r25_levers", "r25_from", "k_trend", "k_trend_source",
 )  # fmt: skip
 
 #: What UA's track keeps besides its series (see ``DeviceState.restart_track``): the windows
@@ -40,17 +41,18 @@ _FORGOTTEN: dict[str, tuple[str, ...]] = {
     "cold_probe": _PROBE + _CABINET_BALANCE + _UA,
     "hot_probe": _PROBE + _CABINET_BALANCE + _UA,
     "ambient_probe": _PROBE + _UA,
-    "module": _MODULE + _CABINET_BALANCE,
+    "module": _MODULE + _CABINET_BALANCE + _UA,
 }
 #: Tracked quantities each part starts afresh: those whose value its readings move by a
 #: constant (a new probe's offset in the cabinet's or the hot sink's balance, a new module's
-#: R25), which would read as a change against the old part's baseline.
+#: R25, and its K in both balances), which would read as a change against the old part's
+#: baseline.
 _RESTARTED: dict[str, tuple[str, ...]] = {
     "cabinet_probe": ("ua",),
     "cold_probe": ("ua",),
     "hot_probe": ("ua", "rhot"),
     "ambient_probe": ("ua", "rhot"),
-    "module": ("r25",),
+    "module": ("r25", "ua", "rhot"),
 }
 
 

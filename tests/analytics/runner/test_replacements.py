@@ -51,6 +51,10 @@ def test_a_recorded_module_swap_starts_r25_afresh_and_flags_no_wear(analysed: En
     # R25's track of the recorded unit starts after the window's end, its twin's at the start
     assert recorded.first is not None and recorded.first["r25"] > END_MS
     assert unrecorded.first is not None and unrecorded.first["r25"] < END_MS
+    # a new module brings its own K, at which UA's and the hot side's changes are judged:
+    # their tracks start afresh too, the trend K from the new module's windows
+    assert recorded.first["ua"] > END_MS and unrecorded.first["ua"] < END_MS
+    assert recorded.k_trend is not None
     # Without the record the swap reads as wear: the change is the simulator's +8 %, within
     # 1 % (the windows' fitted R25 scatter by a few tenths of a per cent), and flagged.
     assert _last(analysed, "rp-mod-x", "module.resistance_25c.change_pct") == pytest.approx(

@@ -36,11 +36,16 @@ module.conductance_w_per_k                     K [W/K]; unreliable when it leans
                                                stderr includes ±probe_offset_k probe offsets
 module.z_per_k / module.zt                     Z = S²/(R·K) [1/K], ZT at the mean temperature
 module.off_leak_w                              K·ΔT while off: heat the idle module lets in [W]
-cabinet.ua_w_per_k                             UA [W/K]; stderr includes probe offsets (they
-                                               cancel in its change, which is tracked); not
-                                               reliable when that stderr exceeds ua_max_rel_se
-                                               or the module never rested
-cabinet.heat_leak_w                            UA·(Ta - Tcab) over the window's last hour [W]
+cabinet.ua_w_per_k                             UA [W/K]: the median of the window fits' UA over
+                                               the last ua_serve_span_s (2 days), its stderr
+                                               the median of theirs; reliable where at least
+                                               half of them were
+cabinet.ua_window_w_per_k                      this window's own UA [W/K]; stderr includes
+                                               probe offsets (they cancel in its change, which
+                                               is tracked); not reliable when that stderr
+                                               exceeds ua_max_rel_se or the module never rested
+cabinet.heat_leak_w                            UA·(Ta - Tcab) over the window's last hour, at
+                                               the served UA [W]
 cabinet.heat_capacity_j_per_k                  effective heat capacity [J/K]
 cabinet.internal_load_w                        heat released inside (fans, electronics) [W]
 cold_side.resistance_k_per_w                   (Tcab - Tc)/Qc [K/W]; not reliable when the

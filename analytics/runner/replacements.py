@@ -32,8 +32,9 @@ _MODULE = (
 )  # fmt: skip
 
 #: What UA's track keeps besides its series (see ``DeviceState.restart_track``): the windows
-#: kept at the rated K and the ambient's usual lead over the cabinet.
-_UA = ("ua_raw", "ua_lead")
+#: kept at the rated K and the ambient's usual lead over the cabinet; and the window fits the
+#: served UA is the median of.
+_UA = ("ua_raw", "ua_lead", "ua_windows")
 
 #: State fields each replaceable part takes with it (see ``alert_records.REPLACEABLE_PARTS``).
 _FORGOTTEN: dict[str, tuple[str, ...]] = {

@@ -244,6 +244,13 @@ class AnalysisSettings:
     #: served as reliable [-]: beyond a quarter, two standard errors span more than half the
     #: value (common practice, no source). Its changes are judged on the fit's own precision.
     ua_max_rel_se: float = 0.25
+    #: The served UA is the median of the unit's window fits over this span [s]: one window's
+    #: UA moves with its internal load along the one direction an indoor ambient hardly
+    #: separates (diagnostics README, section 4), while UA itself changes slowly. On the full
+    #: probe set, 7 days, the latest window's UA came within 15 % on 85.0 % of units on seeds
+    #: 201-210 and 88.4 % on 301-314; the median over two days, 88.7 % and 92.9 % (one day:
+    #: 86.3 %, 91.1 %; three: 87.5 %, 90.2 %). UA's changes and flags follow each window.
+    ua_serve_span_s: int = 2 * 86_400
     #: Smallest share of the thermal window with the module at rest for the served K, UA and
     #: cold-side resistance to be reliable, and below which the thermal fit treats the window
     #: as one operating point [-] (see ``window.fit_window``; common practice, no source).

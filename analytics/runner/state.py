@@ -193,6 +193,9 @@ class DeviceState(_Stored):
     #: Windows kept while the trend K is the rated one: [at, UA, dUA/dK, K, UA's sd].
     ua_raw: list[list[float]] | None = None
     ua_lead: UaLead | None = None
+    #: The window fits' UA over the last ``ua_serve_span_s``: [end of the window (epoch ms
+    #: UTC), UA [W/K], its standard error [W/K], served as reliable (1/0)].
+    ua_windows: list[list[float]] | None = None
     params: ModuleParams | None = None
     #: Recent own S at 25 °C and its standard error, [V/K, V/K].
     s_hist: list[list[float]] | None = None

@@ -140,6 +140,7 @@ def fit_window(
         _remember_fit(win, th_fit, state, cfg)
         cov3 = _cov3(ele.el, th_fit.stderrs["k"])
         _module_and_cabinet_rows(win, ele, th_fit, cov3, rows, cfg)
+        _served_ua(win, th_fit, rows, state, cfg)
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
         trusted = state.params is not None and bool(state.params.faces_trusted)
@@ -457,7 +458,7 @@ def _module_and_cabinet_rows(
     rows: EstimateRows,
     cfg: AnalysisSettings,
 ) -> None:
-    b, t, tcab, ta, usable, off, el = win.b, win.t, win.tcab, win.ta, win.usable, win.off, ele.el
+    b, off, el = win.b, win.off, ele.el
     sd = th_fit.stderrs
     ns = th_fit.n_samples
     # A module that never rests (proportional drive) works along one family of operating
@@ -482,32 +483,61 @@ def _module_and_cabinet_rows(
         )
     # The value's error includes what probe offsets and the errors of S and R could do to it;
     # its tracking (below) does not, since a constant error cancels in its changes.
-    ua_se = math.hypot(sd["ua"], sd["ua_probe"])
-    ua_ok = _ua_served_reliable(th_fit, cfg)
-    ua_note = None
-    if not th_fit.ua_reliable:
-        ua_note = th_fit.note
-    elif not rested:
-        ua_note = f"{NEVER_RESTED}; its changes are still tracked"
-    elif not ua_ok:
-        ua_note = (
-            f"probe offsets and the module's S and R could move UA by "
-            f"±{100 * ua_se / th_fit.ua:.0f} %: "
-            "its changes are still tracked"
-        )
-    rows.add("cabinet.ua_w_per_k", b, th_fit.ua, ua_se, ns, ua_ok, ua_note)
+    ua_se, ua_ok, ua_note = _window_ua(th_fit, cfg)
+    rows.add("cabinet.ua_window_w_per_k", b, th_fit.ua, ua_se, ns, ua_ok, ua_note)
     rows.add("cabinet.internal_load_w", b, th_fit.q_internal, sd["q_internal"], ns)
     rows.add(
         "cabinet.heat_capacity_j_per_k", b, th_fit.c, sd["c"], ns, th_fit.c_reliable,
         None if th_fit.c_reliable else "heat capacity poorly determined in this window",
     )  # fmt: skip
+
+
+def _served_ua(
+    win: _Window, th_fit: dg.ThermalFit, rows: EstimateRows, state: DeviceState,
+    cfg: AnalysisSettings,
+) -> None:  # fmt: skip
+    # The served UA (and the heat leak at it): the median of the window fits' UA over the
+    # last ``ua_serve_span_s``, this one included; its error the median of theirs (the
+    # windows overlap, so not narrowed by their count); reliable where at least half were.
+    b, t, usable = win.b, win.t, win.usable
+    ua_se, ua_ok, ua_note = _window_ua(th_fit, cfg)
+    since = b - cfg.ua_serve_span_s * 1000
+    kept = [w for w in state.ua_windows or [] if since < w[0] < b]
+    kept.append([float(b), th_fit.ua, ua_se, 1.0 if ua_ok else 0.0])
+    state.ua_windows = kept
+    arr = np.array(kept, dtype=np.float64)
+    ua, se = float(np.median(arr[:, 1])), float(np.median(arr[:, 2]))
+    ok = bool(2 * int(arr[:, 3].sum()) >= len(kept))
+    span_d = f"{cfg.ua_serve_span_s / 86_400:g}"
+    few = f"fewer than half of the {len(kept)} window fits of the last {span_d} days reliable"
+    note = None if ok else (few if ua_note is None else f"{ua_note}; {few}")
+    basis = f"median of the {len(kept)} window fits of the last {span_d} days: {rows.basis}"
+    rows.add("cabinet.ua_w_per_k", b, ua, se, th_fit.n_samples, ok, note, basis)
     last_hour = usable & (t >= t[-1] - 3600.0)
     if last_hour.any():
-        d_amb = float(np.mean(ta[last_hour] - tcab[last_hour]))
+        d_amb = float(np.mean(win.ta[last_hour] - win.tcab[last_hour]))
         rows.add(
-            "cabinet.heat_leak_w", b, th_fit.ua * d_amb, ua_se * abs(d_amb),
-            int(last_hour.sum()), ua_ok, ua_note,
+            "cabinet.heat_leak_w", b, ua * d_amb, se * abs(d_amb), int(last_hour.sum()), ok,
+            note, basis,
         )  # fmt: skip
+
+
+def _window_ua(th_fit: dg.ThermalFit, cfg: AnalysisSettings) -> tuple[float, bool, str | None]:
+    # This window's UA: its standard error with probe offsets and the errors of S and R,
+    # whether it is reliable, and why not.
+    ua_se = math.hypot(th_fit.stderrs["ua"], th_fit.stderrs["ua_probe"])
+    ua_ok = _ua_served_reliable(th_fit, cfg)
+    ua_note = None
+    if not th_fit.ua_reliable:
+        ua_note = th_fit.note
+    elif not th_fit.rested:
+        ua_note = f"{NEVER_RESTED}; its changes are still tracked"
+    elif not ua_ok:
+        ua_note = (
+            f"probe offsets and the module's S and R could move UA by "
+            f"±{100 * ua_se / th_fit.ua:.0f} %: its changes are still tracked"
+        )
+    return ua_se, ua_ok, ua_note
 
 
 def _ua_served_reliable(th_fit: dg.ThermalFit, cfg: AnalysisSettings) -> bool:

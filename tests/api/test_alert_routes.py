@@ -3,10 +3,8 @@ acknowledgement with its audit trail, scopes, maintenance windows and threshold 
 
 from __future__ import annotations
 
-from collections.abc import Iterator
 from datetime import UTC, datetime
 
-import pytest
 import sqlalchemy as sa
 from fastapi.testclient import TestClient
 
@@ -19,14 +17,6 @@ from tests.analytics.alerts.cabinet import cabinet_series
 
 T0 = 1_790_000_000_000
 MIN = 60_000
-
-
-@pytest.fixture
-def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
 
 
 def key(engine: sa.Engine, scope: str) -> dict[str, str]:

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-
 import pytest
 import sqlalchemy as sa
 from fastapi.testclient import TestClient
@@ -12,14 +10,6 @@ from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading, Reject
-
-
-@pytest.fixture
-def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
 
 
 @pytest.fixture

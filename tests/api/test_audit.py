@@ -10,7 +10,6 @@ from __future__ import annotations
 import csv
 import io
 import json
-from collections.abc import Iterator
 
 import pytest
 import sqlalchemy as sa
@@ -20,14 +19,6 @@ from tecfleet.api.app import create_app
 from tecfleet.api.services.audit import ACTIONS
 from tecfleet.ingest import db
 from tests.api.fleet import Fleet, populate
-
-
-@pytest.fixture
-def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
 
 
 def _make_every_change(client: TestClient, fleet: Fleet) -> None:

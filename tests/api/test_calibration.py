@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import csv
 import io
-from collections.abc import Iterator
 
 import pytest
 import sqlalchemy as sa
@@ -23,14 +22,6 @@ from tests.api.fleet import MIN, T0, populate
 
 #: The populated offset: t_cabinet -0.2 K on cab-n1 from 2026-09-21T14:00:00Z (T0 - 800 s).
 FIXTURE_OFFSET = -0.2
-
-
-@pytest.fixture
-def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
 
 
 def test_offsets_apply_as_read_and_stored_readings_stay(engine: sa.Engine) -> None:

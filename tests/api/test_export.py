@@ -9,7 +9,6 @@ import io
 import re
 import subprocess
 import sys
-from collections.abc import Iterator
 from pathlib import Path
 
 import httpx
@@ -23,14 +22,6 @@ from tests.api.fleet import populate, served
 
 ROOT = Path(__file__).resolve().parents[2]
 DAY = {"start": "2026-09-21T00:00:00Z", "end": "2026-09-22T00:00:00Z"}
-
-
-@pytest.fixture
-def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
 
 
 def table(text: str) -> list[dict[str, str]]:

@@ -11,10 +11,8 @@ import os
 import stat
 import subprocess
 import sys
-from collections.abc import Iterator
 from pathlib import Path
 
-import pytest
 import sqlalchemy as sa
 from cryptography.fernet import Fernet
 from fastapi.testclient import TestClient
@@ -24,14 +22,6 @@ from tecfleet.api.auth import create_key, hash_key
 from tecfleet.ingest import db
 from tecfleet.ingest.settings import Settings
 from tests.api.fleet import populate
-
-
-@pytest.fixture
-def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
 
 
 def bearer(key: str) -> dict[str, str]:

@@ -10,7 +10,6 @@ from __future__ import annotations
 from collections.abc import Iterator
 
 import httpx
-import pytest
 import sqlalchemy as sa
 from fastapi.testclient import TestClient
 
@@ -19,14 +18,6 @@ from tecfleet.api.auth import create_key
 from tecfleet.ingest import db
 from tecfleet.ingest.settings import Settings
 from tests.api.fleet import populate, served
-
-
-@pytest.fixture
-def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
 
 
 def bearer(key: str) -> dict[str, str]:

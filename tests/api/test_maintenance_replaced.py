@@ -4,9 +4,6 @@ site's window, and windows stored before the column existed read as replacing no
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-
-import pytest
 import sqlalchemy as sa
 from fastapi.testclient import TestClient
 
@@ -18,14 +15,6 @@ from tecfleet.ingest.db import alert_records
 from tests.ingest.old_schema import migrate_to
 
 WINDOW = {"device_id": "cab-4", "start": "2026-09-21T14:00:00Z", "end": "2026-09-21T18:00:00Z"}
-
-
-@pytest.fixture
-def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
 
 
 def _headers(engine: sa.Engine, scope: str) -> dict[str, str]:

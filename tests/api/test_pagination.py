@@ -8,9 +8,7 @@ from __future__ import annotations
 import threading
 import time
 from collections import Counter
-from collections.abc import Iterator
 
-import pytest
 import sqlalchemy as sa
 from fastapi.testclient import TestClient
 
@@ -22,14 +20,6 @@ from tecfleet.ingest.db import Reading, Reject
 T0 = 1_790_000_000_000
 MIN = 60_000
 BEFORE = 1500
-
-
-@pytest.fixture
-def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
 
 
 def reading(device: str, minute: int) -> Reading:

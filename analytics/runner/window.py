@@ -481,10 +481,6 @@ def _module_and_cabinet_rows(
         rows.add(
             "module.off_leak_w", b, th_fit.k * float(np.mean(win.dt[off])), None, int(off.sum())
         )
-    # The value's error includes what probe offsets and the errors of S and R could do to it;
-    # its tracking (below) does not, since a constant error cancels in its changes.
-    ua_se, ua_ok, ua_note = _window_ua(th_fit, cfg)
-    rows.add("cabinet.ua_window_w_per_k", b, th_fit.ua, ua_se, ns, ua_ok, ua_note)
     rows.add("cabinet.internal_load_w", b, th_fit.q_internal, sd["q_internal"], ns)
     rows.add(
         "cabinet.heat_capacity_j_per_k", b, th_fit.c, sd["c"], ns, th_fit.c_reliable,
@@ -496,11 +492,17 @@ def _served_ua(
     win: _Window, th_fit: dg.ThermalFit, rows: EstimateRows, state: DeviceState,
     cfg: AnalysisSettings,
 ) -> None:  # fmt: skip
-    # The served UA (and the heat leak at it): the median of the window fits' UA over the
-    # last ``ua_serve_span_s``, this one included; its error the median of theirs (the
-    # windows overlap, so not narrowed by their count); reliable where at least half were.
+    # This window's UA, then the served UA (and the heat leak at it): the median of the
+    # window fits' UA over the last ``ua_serve_span_s``, this one included; its error the
+    # median of theirs (the windows overlap, so not narrowed by their count); reliable where
+    # at least half were. A window's error includes what probe offsets and the errors of S
+    # and R could do to it; UA's tracking does not, since a constant error cancels in its
+    # changes.
     b, t, usable = win.b, win.t, win.usable
     ua_se, ua_ok, ua_note = _window_ua(th_fit, cfg)
+    rows.add(
+        "cabinet.ua_window_w_per_k", b, th_fit.ua, ua_se, th_fit.n_samples, ua_ok, ua_note
+    )  # fmt: skip
     since = b - cfg.ua_serve_span_s * 1000
     kept = [w for w in state.ua_windows or [] if since < w[0] < b]
     kept.append([float(b), th_fit.ua, ua_se, 1.0 if ua_ok else 0.0])

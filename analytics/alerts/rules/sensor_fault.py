@@ -327,7 +327,7 @@ def observe(scope: DeviceScope) -> Observations | None:
 def evidence(scope: DeviceScope) -> Callable[[int], dict[str, Any]]:
     """Evidence: the estimate alerts held back so far because of the sensor fault, and from
     the end of the maintenance that replaced a probe the cabinet probe's fit reads, that end
-    (see ``probe_drift.probe_baseline``)."""
+    (see ``probe_drift.probe_baselines``)."""
     state = scope.state
 
     def context(t: int) -> dict[str, Any]:

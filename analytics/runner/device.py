@@ -95,7 +95,8 @@ def analyze_device(
             # On the probes as read: the hourly figures are judged against the unit's own
             # baseline, in which constant offsets cancel, and an offset found mid-season
             # must not step them.
-            hot = hot_side(data, b, min(b // window * window + window - step, end), state, cfg)
+            last_hour = min(b // window * window + window - step, end)
+            hot = hot_side(data, b, last_hour, state, cfg, prior)
         hourly(b, hot.get(b), rows, state, cfg, data.probed)
     analysis_db.write_results(conn, dev.device_id, rows.rows, end, state.to_json())
     return steps, len(rows.rows)

@@ -476,6 +476,17 @@ class Season:
     r_swing: dict[str, float] = field(default_factory=dict)
     r25_change: dict[str, tuple[float, float]] = field(default_factory=dict)
     ua_change: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
+    r_hot_change: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
+
+
+def _change_range(engine: Any, dev: str, prefix: str) -> tuple[float, float, float, float] | None:
+    # A tracked quantity's change over the season [%]: least, most, 5th and 95th percentile.
+    rows = runner.estimate_history(engine, dev, f"{prefix}.change_pct")
+    if not rows:
+        return None
+    u = np.array([h["value"] for h in rows])
+    lo, hi = (float(x) for x in np.percentile(u, [5, 95]))
+    return float(u.min()), float(u.max()), lo, hi
 
 
 def season_scores(
@@ -519,11 +530,13 @@ def season_scores(
                 r = np.array([h["value"] for h in amb])
                 out.r_swing[d.device_id] = 100 * (float(r.max()) / float(r.min()) - 1)
                 out.r25_change[d.device_id] = (float(v.min()), float(v.max()))
-            ua = runner.estimate_history(engine, d.device_id, "cabinet.ua.change_pct")
-            if ua:
-                u = np.array([h["value"] for h in ua])
-                lo, hi = (float(x) for x in np.percentile(u, [5, 95]))
-                out.ua_change[d.device_id] = (float(u.min()), float(u.max()), lo, hi)
+            for got, prefix in (
+                (out.ua_change, "cabinet.ua"),
+                (out.r_hot_change, "hot_side.resistance"),
+            ):
+                span = _change_range(engine, d.device_id, prefix)
+                if span is not None:
+                    got[d.device_id] = span
         engine.dispose()
     return out
 
@@ -547,9 +560,10 @@ def _season_one(seed: int, n_dev: int, days: float, sensors: str) -> int:
         print(
             f"{dev}: R swings {sea.r_swing[dev]:.1f} %, R25 change within [{lo:+.1f}, {hi:+.1f}] %"
         )
-    for dev, (lo, hi, p5, p95) in sea.ua_change.items():
-        print(f"{dev}: UA change within [{lo:+.1f}, {hi:+.1f}] %, "
-              f"5-95 % range [{p5:+.1f}, {p95:+.1f}] %")  # fmt: skip
+    for name, changes in (("UA", sea.ua_change), ("r_hot", sea.r_hot_change)):
+        for dev, (lo, hi, p5, p95) in changes.items():
+            print(f"{dev}: {name} change within [{lo:+.1f}, {hi:+.1f}] %, "
+                  f"5-95 % range [{p5:+.1f}, {p95:+.1f}] %")  # fmt: skip
     print(f"flags on healthy units: {len(sea.flags)}")
     return len({f.split()[0] for f in sea.flags})
 

@@ -76,8 +76,12 @@ def hot_side(
     s = s25 * (1.0 + cfg.beta * (tm - T_25C_K))
     r = r25 * (1.0 + cfg.alpha * (tm - T_25C_K))
     # Samples whose faces are known: every usable one with both probes, else those the
-    # module's voltage gave.
-    usable = flags_of(data, w).usable & np.isfinite(tm)
+    # module's voltage gave. An open door and its settling count: the air it lets in is a
+    # load on the cabinet, not on the hot sink, whose balance Qh from the faces describes
+    # whatever the cabinet does (at 5-minute readings its quarter hour cost a busy hour a
+    # third of its samples, and a failed fan's first hours their figure).
+    flags = flags_of(data, w)
+    usable = (flags.usable | flags.door) & np.isfinite(tm)
     opts = diagnostics_options(cfg)
     if interval > 0.0:
         per_span = span * cfg.step_s / interval

@@ -49,6 +49,7 @@ from .module_thermometer import (
     floating_without_faces,
     reconstruct_delta_t,
     reconstruct_faces,
+    unanchored_faces,
 )
 from .options import DEFAULT_OPTIONS, TYPICAL_MODULE_ZT, DiagnosticsOptions
 from .performance import Performance, performance_now, setpoint_capacity
@@ -87,5 +88,6 @@ __all__ = [
     "reconstruct_faces",
     "scaled_for_interval",
     "setpoint_capacity",
+    "unanchored_faces",
     "usual_interval",
 ]

@@ -49,6 +49,7 @@ __all__ = [
     "reconstruct_delta_t",
     "reconstruct_faces",
     "step_resistance",
+    "unanchored_faces",
     "unanchored_mean_temperature",
 ]
 
@@ -729,6 +730,52 @@ def unanchored_mean_temperature(
         np.asarray(np.where(defined, tm, mid), dtype=np.float64),
         np.asarray(np.where(defined, sd, fallback), dtype=np.float64),
     )
+
+
+def unanchored_faces(
+    current: FloatArray,
+    voltage: FloatArray,
+    t_cabinet: FloatArray,
+    t_ambient: FloatArray,
+    *,
+    r25: float,
+    s25: float,
+    k: float,
+    alpha: float = physics.BI2TE3_RESISTANCE_TEMPCO,
+    beta: float = physics.BI2TE3_SEEBECK_TEMPCO,
+    options: DiagnosticsOptions = DEFAULT_OPTIONS,
+) -> tuple[FloatArray, FloatArray]:
+    """Both faces of a floating module with no face probe, placed by an assumed share of
+    the sinks: Th = Tm + ΔT/2 and Tc = Tm - ΔT/2.
+
+    ΔT is read from the voltage at R25, V = S·ΔT + I·R (Goldsmid 2010, ch. 2; V = S·ΔT off),
+    and Tm from how the sinks share D = ΔT - (Ta - Tcab) at the middle of
+    ``sink_ratio_range`` (:func:`unanchored_mean_temperature`). The hot sink's rise above the
+    ambient, Th - Ta, is then D·ρ·Qh/(ρ·Qh + Qc), right where the unit's ratio ρ of the
+    sinks' resistances is the assumed one and off by a steady factor where it is not: its
+    changes hold (a failed fan's tripled r_hot raises it by more than half), not its level.
+
+    Parameters
+    ----------
+    current : Module current [A].
+    voltage : Module voltage [V].
+    t_cabinet, t_ambient : Cabinet air and ambient [K].
+    r25 : Module resistance at 25 °C [ohm].
+    s25 : Module Seebeck coefficient at 25 °C [V/K].
+    k : Module thermal conductance [W/K].
+    alpha, beta : Temperature coefficients of R and S [1/K].
+    options : ``on_current`` [A], ``sink_ratio_range`` [-], ``probe_offset_k`` [K].
+
+    Returns
+    -------
+    (Th [K], Tc [K]); NaN where the voltage gives no ΔT.
+    """
+    tcab, ta = np.asarray(t_cabinet, dtype=np.float64), np.asarray(t_ambient, dtype=np.float64)
+    dt, tm, _ = _faces_at(
+        np.asarray(current, dtype=np.float64), np.asarray(voltage, dtype=np.float64), tcab, ta,
+        None, r25, s25, alpha, beta, options, k,
+    )  # fmt: skip
+    return tm + 0.5 * dt, tm - 0.5 * dt
 
 
 def delta_t_from_hot_face(

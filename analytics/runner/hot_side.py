@@ -10,7 +10,7 @@ import numpy as np
 
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics import physics
-from tecfleet.analytics._validate import T_25C_K
+from tecfleet.analytics._validate import T_25C_K, FloatArray
 from tecfleet.analytics.errors import PhysicsError
 from tecfleet.analytics.runner.data import Readings, faces_basis, fill_cold_face, flags_of
 from tecfleet.analytics.runner.rows import EstimateRows
@@ -21,12 +21,19 @@ from tecfleet.analytics.runner.tracks import faces_judged, faces_r25, track
 __all__ = [
     "CABINET_BASIS",
     "CABINET_NOTE",
+    "VOLTAGE_BASIS",
+    "VOLTAGE_NOTE",
     "cold_face_at_cabinet",
+    "faces_source",
     "hot_side",
     "hourly",
     "stretch_steps",
 ]
 
+#: Where the hot side's balance takes its faces from (:func:`faces_source`): the probes
+#: (with a cold face read from the voltage where only the hot one is probed), the hot probe
+#: with the cold face at the cabinet probe, or both faces from the module's voltage.
+PROBES, CABINET, VOLTAGE = "probes", "cabinet", "voltage"
 #: The faces' basis of a hot-side figure whose cold face is taken at the cabinet probe.
 CABINET_BASIS = "hot-face probe, cold face taken at the cabinet probe"
 #: Why such a figure is not served as reliable.
@@ -34,6 +41,16 @@ CABINET_NOTE = (
     "cold face taken at the cabinet probe (no cold-face probe, and the module's voltage does "
     "not give it here): the hour's figure is a few per cent off, steadily; its changes are "
     "followed"
+)
+#: The faces' basis of a hot-side figure of a unit with no face probe.
+VOLTAGE_BASIS = (
+    "no face probes: both faces from the module's voltage, placed by an assumed share of the sinks"
+)
+#: Why such a figure is not served as reliable.
+VOLTAGE_NOTE = (
+    "no face probed: the faces are read from the module's voltage and placed between cabinet "
+    "and ambient by an assumed ratio of the sinks' resistances, so the hour's figure is off "
+    "by a steady factor; its changes are followed"
 )
 
 IntArray = np.ndarray[Any, np.dtype[np.int64]]
@@ -50,29 +67,22 @@ def hot_side(
     """Hot-side resistance of the hourly steps ending at ``first`` .. ``last`` (inclusive).
 
     Each hour's stretch is the hour itself, or at slow reporting the ``hot_side_intervals``
-    usual intervals before its end, in whole hours (overlapping stretches). Where the cold
-    face is taken at the cabinet probe (:func:`cold_face_at_cabinet`), the module's rated
-    figures (``prior``) serve where known."""
+    usual intervals before its end, in whole hours (overlapping stretches). The faces come
+    from where :func:`faces_source` says; off the probes, the module's rated figures
+    (``prior``) serve where known."""
     step = cfg.step_s * 1000
     ends = range(first, last + 1, step)
-    params = state.params
-    at_cabinet = cold_face_at_cabinet(data.probed, params)
-    module = _module_figures(params, prior, at_cabinet)
+    source = faces_source(data.probed, state.params)
+    module = _module_figures(state, prior, source, last, cfg)
     if module is None:
         return dict.fromkeys(ends)
     s25, r25, k, c_hot = module
     interval = dg.usual_interval(data.t[data.slice(first - 2 * step, last)])
     span = stretch_steps(interval, cfg, data.summarised)
     w = data.slice(first - span * step, last)
-    if at_cabinet:
-        tc_w = data.tcab[w]
-    else:
-        assert params is not None
-        pooled = faces_r25(state, last, cfg)
-        fill_cold_face(data, w, params.r25 if pooled is None else pooled[0], params.s25, cfg)
-        tc_w = data.tc[w]
+    th, tc = _faces(data, w, source, state, (s25, r25, k), last, cfg)
     ts = data.ts[w]
-    tm = 0.5 * (tc_w + data.th[w])
+    tm = 0.5 * (tc + th)
     s = s25 * (1.0 + cfg.beta * (tm - T_25C_K))
     r = r25 * (1.0 + cfg.alpha * (tm - T_25C_K))
     # Samples whose faces are known: every usable one with both probes, else those the
@@ -95,12 +105,12 @@ def hot_side(
     # Stretch j holds the samples of the ``span`` hours up to the j-th end.
     bounds = np.searchsorted(ts, [first - span * step + j * step for j in range(len(ends) + span)])
     counts = [int(bounds[j + span] - bounds[j]) for j in range(len(ends))]
-    if not at_cabinet and state.k_trend is not None:
+    if source == PROBES and state.k_trend is not None:
         k = state.k_trend
     followed = _faces_followed(state)
-    t, th, ta, tc, i = data.t[w], data.th[w], data.ta[w], tc_w, data.i[w]
+    t, ta, i = data.t[w], data.ta[w], data.i[w]
     means = None if data.means is None else data.means.part(w)
-    if means is not None and at_cabinet:
+    if means is not None and source == CABINET:
         means = dataclasses.replace(means, t_cold=means.t_cabinet)
 
     def ratios(sl: slice, block: IntArray, n: int) -> list[dg.Estimate | PhysicsError]:
@@ -120,11 +130,11 @@ def hot_side(
             sl = slice(int(bounds[j]), int(bounds[j + span]))
             ests += ratios(sl, np.zeros(sl.stop - sl.start, dtype=np.int64), 1)
     every = dg.interval_basis(interval, data.summarised)
-    faces = CABINET_BASIS if at_cabinet else faces_basis(data.probed)
-    basis = f"hot-sink heat balance: ambient probe, {faces}, {every}"
+    faces = {CABINET: CABINET_BASIS, VOLTAGE: VOLTAGE_BASIS}.get(source)
+    basis = f"hot-sink heat balance: ambient probe, {faces or faces_basis(data.probed)}, {every}"
     if span > 1:
         basis += f" over {span} h"
-    note = CABINET_NOTE if at_cabinet else None
+    note = {CABINET: CABINET_NOTE, VOLTAGE: VOLTAGE_NOTE}.get(source)
     return {
         b: dataclasses.replace(
             est, basis=basis, reliable=est.reliable and note is None, note=est.note or note
@@ -152,18 +162,64 @@ def cold_face_at_cabinet(probed: tuple[bool, bool], params: ModuleParams | None)
     return params is None or not params.faces_trusted
 
 
+def faces_source(probed: tuple[bool, bool], params: ModuleParams | None) -> str:
+    """Where the hot side's balance of a unit with these face probes (cold, hot) takes its
+    faces: :data:`VOLTAGE` with neither probed (:func:`diagnostics.unanchored_faces`),
+    :data:`CABINET` where :func:`cold_face_at_cabinet`, else :data:`PROBES`."""
+    if probed == (False, False):
+        return VOLTAGE
+    return CABINET if cold_face_at_cabinet(probed, params) else PROBES
+
+
 def _module_figures(
-    params: ModuleParams | None, prior: physics.ModuleParameters | None, at_cabinet: bool
+    state: DeviceState,
+    prior: physics.ModuleParameters | None,
+    source: str,
+    last: int,
+    cfg: AnalysisSettings,
 ) -> tuple[float, float, float, float] | None:
     # S25 [V/K], R25 [ohm], K [W/K] and the hot sink's heat capacity [J/K] for the balance;
-    # None where there are none. On the cabinet basis the rated figures come first: the
-    # window's own wander there, and a steady error of them cancels in the changes.
-    if at_cabinet and prior is not None:
-        c_hot = params.c_hot if params is not None and params.c_hot is not None else 0.0
+    # None where there are none. Off the probes the rated figures come first: the window's
+    # own wander there, and a steady error of them cancels in the changes. Both faces from
+    # the voltage need the R25 of the unit's recent windows (``tracks.faces_r25``), as its
+    # windows read them.
+    params = state.params
+    c_hot = params.c_hot if params is not None and params.c_hot is not None else 0.0
+    if source == VOLTAGE:
+        pooled = faces_r25(state, last, cfg)
+        if prior is None or pooled is None:
+            return None
+        return prior.seebeck, pooled[0], prior.conductance, c_hot
+    if source == CABINET and prior is not None:
         return prior.seebeck, prior.resistance, prior.conductance, c_hot
-    if params is None or (params.c_hot is None and not at_cabinet):
+    if params is None or (params.c_hot is None and source != CABINET):
         return None
-    return params.s25, params.r25, params.k, params.c_hot or 0.0
+    return params.s25, params.r25, params.k, c_hot
+
+
+def _faces(
+    data: Readings,
+    w: slice,
+    source: str,
+    state: DeviceState,
+    module: tuple[float, float, float],
+    last: int,
+    cfg: AnalysisSettings,
+) -> tuple[FloatArray, FloatArray]:
+    # (Th, Tc) of the readings in ``w`` [K], from ``source``, with the module's (S25, R25, K).
+    if source == CABINET:
+        return data.th[w], data.tcab[w]
+    if source == VOLTAGE:
+        s25, r25, k = module
+        return dg.unanchored_faces(
+            data.i[w], data.v[w], data.tcab[w], data.ta[w], r25=r25, s25=s25, k=k,
+            alpha=cfg.alpha, beta=cfg.beta, options=diagnostics_options(cfg),
+        )  # fmt: skip
+    params = state.params
+    assert params is not None
+    pooled = faces_r25(state, last, cfg)
+    fill_cold_face(data, w, params.r25 if pooled is None else pooled[0], params.s25, cfg)
+    return data.th[w], data.tc[w]
 
 
 def stretch_steps(interval_s: float, cfg: AnalysisSettings, summarised: bool = False) -> int:
@@ -196,17 +252,17 @@ def hourly(
         return
     rows.est("hot_side.resistance_k_per_w", b, est)
     p = state.params
-    at_cabinet = cold_face_at_cabinet(probed, p)
+    source = faces_source(probed, p)
     follow, held = (
         (True, None)
-        if at_cabinet
+        if source == CABINET
         else faces_judged(probed, p is not None and bool(p.faces_trusted))
     )
     if not follow:
         return
     rows.basis = est.basis
     try:
-        _follow(b, est, rows, state, cfg, held, at_cabinet)
+        _follow(b, est, rows, state, cfg, held, source)
     finally:
         rows.basis = None
 
@@ -218,23 +274,26 @@ def _follow(
     state: DeviceState,
     cfg: AnalysisSettings,
     held: str | None,
-    at_cabinet: bool = False,
+    source: str = PROBES,
 ) -> None:
     # Where the sinks store heat faster than the samples follow, the hour's figure carries a
     # steady bias (see diagnostics.hot_side_resistance_ratios): not reliable, but precise
     # hours are still followed, since a steady bias cancels in the change. One hour there
     # can still read +50 % when the cycle drifts into step with the sampling (simulated
     # units: single hours up to +51 %, never two in a row), so the flag waits for a second,
-    # unless the hour reads twice the threshold (a failed fan's 3x does). So too with the
-    # cold face taken at the cabinet probe, whose bias moves with the heat pumped.
-    slow = not _faces_followed(state) or at_cabinet
+    # unless the hour reads twice the threshold (a failed fan's 3x does). So too with faces
+    # off the probes, whose bias moves with the heat pumped; with both faces from the
+    # voltage the flag waits for a third (simulated healthy units over 90-day seasons,
+    # sinks of 500/1500 J/K: single hours up to +50 %, 5-95 % of hours within ±21 %).
+    slow = not _faces_followed(state) or source != PROBES
+    persist = 3 if source == VOLTAGE else 2 if slow else 1
     followed = est.reliable or (slow and est.stderr is not None and est.stderr < 0.2 * est.value)
-    # The trend K keeps the balance's K fixed along the track; the cabinet basis takes the
-    # rated K throughout.
-    if not followed or (state.k_trend is None and not at_cabinet):
+    # The trend K keeps the balance's K fixed along the track; off the probes the balance
+    # takes the rated K throughout.
+    if not followed or (state.k_trend is None and source == PROBES):
         return
     track(
         rows, state, "rhot", "hot_side.resistance", b, est.value, cfg.r_hot_flag_pct, 0.03, cfg,
-        persist=2 if slow else 1, at_once_pct=2.0 * cfg.r_hot_flag_pct if slow else None,
+        persist=persist, at_once_pct=2.0 * cfg.r_hot_flag_pct if slow else None,
         held=held,
     )  # fmt: skip

@@ -44,9 +44,10 @@ __all__ = [
 ]
 
 
-#: Why no flag is raised on a unit whose hot face, or both faces, are read from the
-#: module's voltage: the estimates there are served, but detection on these sensor sets has
-#: not yet been shown to keep a healthy unit unflagged over a season.
+#: Why UA raises no flag on a unit whose hot face, or both faces, are read from the
+#: module's voltage (the hot side's flag with both faces from it: :func:`faces_judged`): the
+#: estimates there are served, but detection on these sensor sets has not yet been shown to
+#: keep a healthy unit unflagged over a season.
 FLAGS_HELD_FACES_FROM_VOLTAGE = (
     "faces read from the module's voltage: changes are followed, but no flag is raised on "
     "this sensor set until detection there is validated"
@@ -114,7 +115,10 @@ def faces_judged(
     from window to window, so those windows' UA and hot-side figures are not followed. The
     others are: the hot side flags as on the full set, UA where its cabinet probe was judged
     and has not moved (:data:`FLAGS_HELD_CABINET_PROBE_UNCHECKED`,
-    :data:`FLAGS_HELD_CABINET_PROBE_MOVED`)."""
+    :data:`FLAGS_HELD_CABINET_PROBE_MOVED`). With neither face probed, the hot side's
+    changes are followed and flag on the same terms (both faces from the voltage,
+    ``hot_side.faces_source``); UA's are followed and held
+    (:data:`FLAGS_HELD_FACES_FROM_VOLTAGE`)."""
     if probed == (True, True):
         return True, None
     if probed == (False, True):
@@ -122,6 +126,8 @@ def faces_judged(
             return bool(faces_trusted), None
         held = FLAGS_HELD_CABINET_PROBE_UNCHECKED
         return bool(faces_trusted), FLAGS_HELD_CABINET_PROBE_MOVED if cabinet_moved else held
+    if quantity == "rhot" and probed == (False, False):
+        return bool(faces_trusted), None
     return True, FLAGS_HELD_FACES_FROM_VOLTAGE
 
 

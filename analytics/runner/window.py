@@ -357,6 +357,8 @@ def _thermal(
     # none yet); None where the fit fails (its reason stored).
     b, n, wt, usable_th, el = win.b, win.n, win.wt, win.usable_th, ele.el
     if data.faces is not None and not np.isfinite(data.th[wt]).any():
+        # No face probed: the hourly hot side still reads both faces at this window's R25.
+        _electrical_params(win, el, state, prior, cfg)
         note = f"{data.faces.basis}: the heat balances need the faces"
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, note)
         return None
@@ -384,23 +386,14 @@ def _thermal(
     tm_th = 0.5 * (data.tc[wt] + data.th[wt])
     s_t = s_bal * (1.0 + cfg.beta * (tm_th - T_25C_K))
     r_t = el.r25 * (1.0 + cfg.alpha * (tm_th - T_25C_K))
-    if prior is not None:
-        k0, k_rel = prior.conductance, 0.3
-    else:
-        k0 = el.s25**2 * T_25C_K / (el.r25 * dg.TYPICAL_MODULE_ZT)
-        k_rel = 0.5
+    k0, k_rel = _k_prior(el, prior)
     # (S, R) relative errors, from the electrical fit's (R, S) covariance.
     rel = np.array([1.0 / s_bal, 1.0 / el.r25])
     sr_rel_cov = rs_cov[::-1, ::-1] * np.outer(rel, rel)
     # The sink and cabinet figures of the last thermal fit stay till the next one succeeds:
     # the hourly hot-side resistance needs them, above all in the hours after a fan fails,
     # when the day's balances often cannot be fitted.
-    if state.params is None:
-        state.params = ModuleParams(k=k0, s25=el.s25, r25=el.r25)
-    else:
-        state.params.s25, state.params.r25 = el.s25, el.r25
-    state.params.faces_trusted = _faces_trusted(win, el, state, cfg)
-    state.params.cov_rs = el.cov.tolist()
+    _electrical_params(win, el, state, prior, cfg)
     k_settled = settled.k_settled(state, cfg)
     try:
         th_fit = dg.fit_thermal(
@@ -416,6 +409,31 @@ def _thermal(
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, getattr(exc, "reason", str(exc)))
         return None
     return th_fit, k_settled
+
+
+def _k_prior(el: dg.ElectricalFit, prior: physics.ModuleParameters | None) -> tuple[float, float]:
+    # K to start from [W/K] and its relative error [-]: the ratings', else a typical
+    # module's ZT at the window's S and R.
+    if prior is not None:
+        return prior.conductance, 0.3
+    return el.s25**2 * T_25C_K / (el.r25 * dg.TYPICAL_MODULE_ZT), 0.5
+
+
+def _electrical_params(
+    win: _Window,
+    el: dg.ElectricalFit,
+    state: DeviceState,
+    prior: physics.ModuleParameters | None,
+    cfg: AnalysisSettings,
+) -> None:
+    # The window's S and R (and whether its faces may be trusted) for the next steps; K stays
+    # the last thermal fit's, or starts at the prior.
+    if state.params is None:
+        state.params = ModuleParams(k=_k_prior(el, prior)[0], s25=el.s25, r25=el.r25)
+    else:
+        state.params.s25, state.params.r25 = el.s25, el.r25
+    state.params.faces_trusted = _faces_trusted(win, el, state, cfg)
+    state.params.cov_rs = el.cov.tolist()
 
 
 def _remember_fit(

@@ -558,3 +558,33 @@ def test_a_resistance_the_heat_flows_rule_out_is_not_served_even_behind_a_given_
     # ... but the steps' own resistance is still ruled out.
     with pytest.raises(InsufficientDataError, match="ambient's lead"):
         mt.reconstruct_faces(*args, floating=True, s25=S_HAND, r25_read=(R_HAND, 0.02))
+
+
+def test_faces_without_probes_keep_the_hot_sinks_changes() -> None:
+    # Reference: the steady network solved by scipy (``_network``). With the sinks' ratio
+    # known, both faces land on the network's within 0.1 K (the fixed-point passes'
+    # remainder, as above, read twice). Over the default range the hot sink's rise Th - Ta,
+    # read for units at the range's ends, is off by a factor (the code gave 1.31 and 0.89
+    # at 3 A) that moves by under 10 % between 2 and 3 A, and a tripled r_hot (a failed fan)
+    # raises it by more than the hot side's 50 % flag.
+    ta, tcab = np.array([T_25C_K]), np.array([T_25C_K - 20.0])
+
+    def rises(i: float, rho: float, options: mt.DiagnosticsOptions) -> tuple[float, float, float]:
+        tm, dt, v = _network(i, rho)
+        th, tc = mt.unanchored_faces(
+            np.array([i]), np.array([v]), tcab, ta, r25=R_HAND, s25=S_HAND, k=0.5,
+            options=options,
+        )  # fmt: skip
+        return float(th[0] - ta[0]), tm + 0.5 * dt - float(ta[0]), float(tc[0]) - (tm - 0.5 * dt)
+
+    known = dataclasses.replace(mt.DEFAULT_OPTIONS, sink_ratio_range=(0.5, 0.5))
+    got, true, cold_err = rises(I_HAND, 0.5, known)
+    assert got == pytest.approx(true, abs=0.1) and abs(cold_err) <= 0.1
+    for rho in mt.DEFAULT_OPTIONS.sink_ratio_range:
+        factors = [
+            rises(i, rho, mt.DEFAULT_OPTIONS)[0] / rises(i, rho, mt.DEFAULT_OPTIONS)[1]
+            for i in (I_HAND, 2.0)
+        ]
+        assert abs(factors[0] / factors[1] - 1.0) < 0.10
+        failed = rises(I_HAND, 3.0 * rho, mt.DEFAULT_OPTIONS)[0]
+        assert failed / rises(I_HAND, rho, mt.DEFAULT_OPTIONS)[0] > 1.5

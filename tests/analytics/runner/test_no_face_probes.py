@@ -12,11 +12,13 @@ kilogram and a kilogram and a half (from memory).
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import runner
 from tecfleet.analytics import simulation as sim
+from tecfleet.analytics.runner.hot_side import VOLTAGE_BASIS, VOLTAGE_NOTE
 from tests.fleet_fixture import analysed_fleet
 
 START_S = 1_735_689_600.0
@@ -52,3 +54,35 @@ def test_wear_is_flagged_without_face_probes_where_the_sinks_hold_heat(tmp_path:
     raised = [r["at_ms"] / 1000.0 for r in worn if r["value"] == 1.0]
     assert raised, "no wear flag without face probes"
     assert raised[0] > WEAR_AT_S
+
+
+def test_failed_fan_is_flagged_without_face_probes_where_the_sinks_hold_heat(
+    tmp_path: Path,
+) -> None:
+    # A failed fan (the simulator's ``fan`` fault, r_hot 3x at day 5) on a floating unit with
+    # no face probe, beside a steady twin. The hot sink's balance r_hot = ∫(Th - Ta)dt /
+    # ∫Qh dt (Incropera et al. 2007, ch. 5) reads both faces from the voltage, placed by an
+    # assumed ratio of the sinks (``diagnostics.unanchored_faces``): its level is off by a
+    # steady factor, so the hours are served as not reliable, but a tripled r_hot about
+    # doubles it and is flagged within the full set's 2 hours; the twin never is.
+    unit = {"sensor_set": "no_faces", "off_voltage": "open_circuit", "cuts_per_30d": 0.0}
+    fan_s = START_S + 5.0 * 86_400.0
+    spec = sim.FleetSpec(
+        devices=(
+            sim.DeviceSpec("nf-fan", **unit, **SINKS), sim.DeviceSpec("nf-ok", **unit, **SINKS),
+        ),
+        start_s=START_S, interval_s=60.0, seed=209,
+        faults=(sim.Fault("fan", "nf-fan", fan_s, magnitude=3.0),),
+    )  # fmt: skip
+    engine = analysed_fleet(f"{tmp_path}/nf-fan.db", spec, 7.0)
+
+    def history(dev: str, key: str) -> list[dict[str, Any]]:
+        return list(runner.estimate_history(engine, dev, key, start_ms=0))
+
+    served = history("nf-ok", "hot_side.resistance_k_per_w")
+    assert len(served) > 24
+    assert all(r["reliable"] is False and r["note"] == VOLTAGE_NOTE for r in served)
+    assert all(VOLTAGE_BASIS in r["basis"] for r in served)
+    assert not [r for r in history("nf-ok", "hot_side.resistance.flag") if r["value"] == 1.0]
+    flags = [r for r in history("nf-fan", "hot_side.resistance.flag") if r["value"] == 1.0]
+    assert flags and fan_s * 1000 < flags[0]["at_ms"] <= (fan_s + 2 * 3600.0) * 1000

@@ -10,7 +10,13 @@ from sqlalchemy.engine import Connection
 from tecfleet.analytics import diagnostics as dg
 from tecfleet.analytics.runner.daily import daily
 from tecfleet.analytics.runner.data import load, priors
-from tecfleet.analytics.runner.hot_side import hot_side, hourly, stretch_steps
+from tecfleet.analytics.runner.hot_side import (
+    faces_source,
+    follow_source,
+    hot_side,
+    hourly,
+    stretch_steps,
+)
 from tecfleet.analytics.runner.replacements import apply_replacements
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import (
@@ -81,6 +87,7 @@ def analyze_device(
     cabinet = dev.cabinet if isinstance(dev.cabinet, dict) else {}
     steps = 0
     hot: dict[int, dg.Estimate | None] = {}
+    follow: dict[int, dg.Estimate | None] = {}
     for b in range(done + step, end + 1, step):
         steps += 1
         if b % window == 0:
@@ -97,6 +104,11 @@ def analyze_device(
             # must not step them.
             last_hour = min(b // window * window + window - step, end)
             hot = hot_side(data, b, last_hour, state, cfg, prior)
-        hourly(b, hot.get(b), rows, state, cfg, data.probed)
+            source = follow_source(data.probed, state.params)
+            if source != faces_source(data.probed, state.params):
+                follow = hot_side(data, b, last_hour, state, cfg, prior, source)
+            else:
+                follow = hot
+        hourly(b, hot.get(b), rows, state, cfg, data.probed, follow.get(b))
     analysis_db.write_results(conn, dev.device_id, rows.rows, end, state.to_json())
     return steps, len(rows.rows)

@@ -25,6 +25,7 @@ __all__ = [
     "VOLTAGE_NOTE",
     "cold_face_at_cabinet",
     "faces_source",
+    "follow_source",
     "hot_side",
     "hourly",
     "stretch_steps",
@@ -63,16 +64,17 @@ def hot_side(
     state: DeviceState,
     cfg: AnalysisSettings,
     prior: physics.ModuleParameters | None = None,
+    source: str | None = None,
 ) -> dict[int, dg.Estimate | None]:
     """Hot-side resistance of the hourly steps ending at ``first`` .. ``last`` (inclusive).
 
     Each hour's stretch is the hour itself, or at slow reporting the ``hot_side_intervals``
     usual intervals before its end, in whole hours (overlapping stretches). The faces come
-    from where :func:`faces_source` says; off the probes, the module's rated figures
-    (``prior``) serve where known."""
+    from ``source``, by default where :func:`faces_source` says; off the probes, the
+    module's rated figures (``prior``) serve where known."""
     step = cfg.step_s * 1000
     ends = range(first, last + 1, step)
-    source = faces_source(data.probed, state.params)
+    source = source or faces_source(data.probed, state.params)
     module = _module_figures(state, prior, source, last, cfg)
     if module is None:
         return dict.fromkeys(ends)
@@ -244,27 +246,37 @@ def hourly(
     state: DeviceState,
     cfg: AnalysisSettings,
     probed: tuple[bool, bool] = (True, True),
+    followed: dg.Estimate | None = None,
 ) -> None:
     """Store the hour's hot-side resistance ending at ``b`` and follow its changes, where
-    the unit's face probes (cold, hot) allow (see :func:`tracks.faces_judged`); always
-    where the cold face is taken at the cabinet probe (:func:`cold_face_at_cabinet`)."""
-    if est is None:
-        return
-    rows.est("hot_side.resistance_k_per_w", b, est)
-    p = state.params
-    source = faces_source(probed, p)
-    follow, held = (
-        (True, None)
-        if source == CABINET
-        else faces_judged(probed, p is not None and bool(p.faces_trusted))
-    )
-    if not follow:
+    the unit's face probes (cold, hot) allow (see :func:`tracks.faces_judged`).
+
+    A unit with a hot-face probe and none on the cold face follows the hour read with the
+    cold face at the cabinet probe (``followed``, from :func:`follow_source`), whatever its
+    served hour rests on: the figures with the cold face from the voltage and at the
+    cabinet differ by a steady part (simulated units: 25 %), and one track must not mix
+    them."""
+    if est is not None:
+        rows.est("hot_side.resistance_k_per_w", b, est)
+    source = follow_source(probed, state.params)
+    if source == CABINET:
+        follow, held, est = True, None, followed
+    else:
+        p = state.params
+        follow, held = faces_judged(probed, p is not None and bool(p.faces_trusted))
+    if not follow or est is None:
         return
     rows.basis = est.basis
     try:
         _follow(b, est, rows, state, cfg, held, source)
     finally:
         rows.basis = None
+
+
+def follow_source(probed: tuple[bool, bool], params: ModuleParams | None) -> str:
+    """Where the followed hours of the hot side take their faces: at the cabinet probe on
+    every unit with only the hot face probed, else as :func:`faces_source`."""
+    return CABINET if probed == (False, True) else faces_source(probed, params)
 
 
 def _follow(
@@ -287,6 +299,9 @@ def _follow(
     # sinks of 500/1500 J/K: single hours up to +50 %, 5-95 % of hours within ±21 %).
     slow = not _faces_followed(state) or source != PROBES
     persist = 3 if source == VOLTAGE else 2 if slow else 1
+    if state.rhot_from != (None if source == PROBES else source):
+        state.restart_track("rhot")
+        state.rhot_from = None if source == PROBES else source
     followed = est.reliable or (slow and est.stderr is not None and est.stderr < 0.2 * est.value)
     # The trend K keeps the balance's K fixed along the track; off the probes the balance
     # takes the rated K throughout.

@@ -27,8 +27,9 @@ from tecfleet.ingest.db import analysis as analysis_db
 #: simulated unit without a cold-face probe whose cabinet probe drifted 3 K (the cabinet
 #: probe's balance against the open-circuit face and its newest shift kept); and the final
 #: state of a simulated unit whose module was swapped in a recorded maintenance window (the
-#: window's end kept, see ``tests.analytics.replaced_fleet``); and three days of a simulated
-#: unit with the window fits its served UA is the median of.
+#: window's end kept, see ``tests.analytics.replaced_fleet``); three days of a simulated
+#: unit with the window fits its served UA is the median of; and four days of a simulated
+#: unit without a cold-face probe (the source its hot side's track rests on kept).
 STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
 
 

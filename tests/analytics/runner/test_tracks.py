@@ -298,9 +298,10 @@ def test_hot_side_flags_on_every_probe_set_and_ua_holds_without_face_probes() ->
     # the cold face is read from the module's voltage, ΔT = (V - I·R)/S moves by I·R/S per
     # unit error of R (Goldsmid 2010, ch. 2), so the voltage serves only while the R25 it
     # was read with was served as reliable; otherwise the hour's cold face is taken at the
-    # cabinet probe (``hot_side.cold_face_at_cabinet``). Either way the hours are followed
-    # and flag as on the full set, the cabinet's after a second hour or at twice the
-    # threshold (the 3x here). With neither face probed, both faces come from the voltage
+    # cabinet probe (``hot_side.cold_face_at_cabinet``). The followed hours take it there
+    # either way (``hot_side.follow_source``, the same series given here) and flag as on
+    # the full set, after a second hour or at twice the threshold (the 3x here). With
+    # neither face probed, both faces come from the voltage
     # (``hot_side.faces_source``): followed and flagged only at a trusted R25; UA's changes
     # there are followed but raise no flag.
     cfg = AnalysisSettings()
@@ -312,7 +313,8 @@ def test_hot_side_flags_on_every_probe_set_and_ua_holds_without_face_probes() ->
         state = DeviceState(k_trend=0.5)
         state.params = ModuleParams(k=0.5, s25=0.05, r25=2.0, faces_trusted=faces_trusted)
         for j, v in enumerate(values):
-            hourly((j + 1) * hour, Estimate(v, 0.01 * v, 60), rows, state, cfg, probed)
+            est = Estimate(v, 0.01 * v, 60)
+            hourly((j + 1) * hour, est, rows, state, cfg, probed, est)
         return [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
 
     def keys(recs: list[dict[str, Any]], key: str) -> list[dict[str, Any]]:

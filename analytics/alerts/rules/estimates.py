@@ -52,6 +52,7 @@ HOT_KEYS = (
     "hot_side.resistance.change_pct",
     "hot_side.resistance_k_per_w",
     "hot_side.resistance.baseline",
+    "hot_side.resistance.flag",
 )
 CAPACITY_KEYS = (
     "capacity.margin_w",

@@ -67,14 +67,24 @@ def heat_leak_observations(series: Series, policy: AlertPolicy) -> Observations:
 
 
 def hot_side_observations(series: Series, policy: AlertPolicy) -> Observations:
-    """Hot-side thermal resistance change [%] at or above ``hot_side_warning_pct``; critical
-    at ``hot_side_critical_pct``."""
+    """Hot-side thermal resistance change [%] at or above ``hot_side_warning_pct``, once the
+    diagnostics' own flag (``hot_side.resistance.flag``, where published) has been raised in
+    that spell; critical at ``hot_side_critical_pct``.
+
+    The flag waits for a second or third hour in a row where the hour's figure rests on
+    faces off the probes or on sinks the samples cannot follow (``runner.hot_side``), whose
+    single hours reach the warning on healthy units now and then."""
     found = estimate_series(series, "hot_side.resistance.change_pct")
     if found is None:
         return Observations.empty()
     ts, vals, details = found
     hyst = policy.trend_hysteresis_pct
     active = vals >= policy.hot_side_warning_pct
+    if "hot_side.resistance.flag" in series:
+        flagged = np.array(
+            [d.get("hot_side.resistance.flag", 0.0) == 1.0 for d in details], dtype=bool
+        )
+        active &= _raised_in_spell(active, flagged)
     hold = vals >= policy.hot_side_warning_pct - hyst
     sev = np.where(vals >= policy.hot_side_critical_pct, 2, np.where(active, 1, 0))
     return Observations(ts, active, hold, sev.astype(np.int8), vals, details)

@@ -14,7 +14,7 @@ from tecfleet.analytics import alerts
 from tecfleet.analytics.alerts.rules.estimates import settle_ms
 from tecfleet.analytics.alerts.rules.excursion import slow_reporting_wait
 from tecfleet.analytics.alerts.rules.offline import offline_observations
-from tecfleet.analytics.alerts.rules.trends import heat_leak_observations
+from tecfleet.analytics.alerts.rules.trends import heat_leak_observations, hot_side_observations
 
 MIN = 60_000
 
@@ -99,3 +99,25 @@ def test_estimates_settle_longer_at_slow_reporting() -> None:
         assert settle_ms(np.full(3, every_min * MIN), policy) == settle_min * MIN
     assert settle_ms(np.array([np.nan]), policy) == 45 * MIN
     assert settle_ms(np.array([], dtype=np.float64), policy) == 45 * MIN
+
+
+def test_a_hot_side_alert_rests_on_the_diagnostics_flag() -> None:
+    # Hourly changes made here: one hour at +55 % (past the policy's 50 % warning) that the
+    # diagnostics did not flag, as where the hour's faces are read off the probes and the
+    # flag waits for a further hour; then a failed fan's +200 %, flagged at once.
+    policy = alerts.AlertPolicy()
+    at = [k * 60 * MIN for k in range(5)]
+    series = {
+        "hot_side.resistance.change_pct": list(
+            zip(at, [0.0, 55.0, 0.0, 200.0, 200.0], strict=True)
+        ),
+        "hot_side.resistance.flag": list(zip(at, [0.0, 0.0, 0.0, 1.0, 1.0], strict=True)),
+    }
+    obs = hot_side_observations(series, policy)
+    assert obs.active.tolist() == [False, False, False, True, True]
+    assert obs.severity.tolist()[3:] == [2, 2]
+    # Stored before the flag was read by the rule: the change alone decides.
+    del series["hot_side.resistance.flag"]
+    assert hot_side_observations(series, policy).active.tolist() == [
+        False, True, False, True, True,
+    ]  # fmt: skip

@@ -102,3 +102,13 @@ def _readings(spec: Any, chunk: Any) -> list[db.Reading]:
         db.Reading(d, t, *vals, rh=rh, door_open=dr)
         for d, t, *vals, rh, dr in zip(ids, ts, *cols, door, strict=True)
     ]
+
+
+def history(engine: Engine, device_id: str, key: str) -> list[dict[str, Any]]:
+    """Every stored estimate of ``key`` for ``device_id``, oldest first."""
+    return list(runner.estimate_history(engine, device_id, key, start_ms=0))
+
+
+def raised_flags_ms(engine: Engine, device_id: str, prefix: str) -> list[int]:
+    """When the ``{prefix}.flag`` estimate of ``device_id`` stood raised [epoch ms UTC]."""
+    return [r["at_ms"] for r in history(engine, device_id, f"{prefix}.flag") if r["value"] == 1.0]

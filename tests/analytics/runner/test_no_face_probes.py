@@ -12,14 +12,13 @@ kilogram and a kilogram and a half (from memory).
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
 
 from sqlalchemy.engine import Engine
 
 from tecfleet.analytics import runner
 from tecfleet.analytics import simulation as sim
 from tecfleet.analytics.runner.hot_side import VOLTAGE_BASIS, VOLTAGE_NOTE
-from tests.fleet_fixture import analysed_fleet
+from tests.fleet_fixture import analysed_fleet, history, raised_flags_ms
 
 START_S = 1_735_689_600.0
 DAYS = 9.0
@@ -75,14 +74,10 @@ def test_failed_fan_is_flagged_without_face_probes_where_the_sinks_hold_heat(
         faults=(sim.Fault("fan", "nf-fan", fan_s, magnitude=3.0),),
     )  # fmt: skip
     engine = analysed_fleet(f"{tmp_path}/nf-fan.db", spec, 7.0)
-
-    def history(dev: str, key: str) -> list[dict[str, Any]]:
-        return list(runner.estimate_history(engine, dev, key, start_ms=0))
-
-    served = history("nf-ok", "hot_side.resistance_k_per_w")
+    served = history(engine, "nf-ok", "hot_side.resistance_k_per_w")
     assert len(served) > 24
     assert all(r["reliable"] is False and r["note"] == VOLTAGE_NOTE for r in served)
     assert all(VOLTAGE_BASIS in r["basis"] for r in served)
-    assert not [r for r in history("nf-ok", "hot_side.resistance.flag") if r["value"] == 1.0]
-    flags = [r for r in history("nf-fan", "hot_side.resistance.flag") if r["value"] == 1.0]
-    assert flags and fan_s * 1000 < flags[0]["at_ms"] <= (fan_s + 2 * 3600.0) * 1000
+    assert not raised_flags_ms(engine, "nf-ok", "hot_side.resistance")
+    flags = raised_flags_ms(engine, "nf-fan", "hot_side.resistance")
+    assert flags and fan_s * 1000 < flags[0] <= (fan_s + 2 * 3600.0) * 1000

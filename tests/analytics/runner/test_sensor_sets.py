@@ -10,7 +10,6 @@ with another ΔT give the very same voltage, checked below on the readings thems
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -23,7 +22,7 @@ from tecfleet.analytics import simulation as sim
 from tecfleet.analytics.runner.hot_side import CABINET_BASIS, CABINET_NOTE
 from tecfleet.ingest import db
 from tests.analytics.synthetic import Truth, simulate
-from tests.fleet_fixture import analysed_fleet
+from tests.fleet_fixture import analysed_fleet, history, raised_flags_ms
 
 FACE_PROBES = {"full": (True, True), "no_cold": (False, True), "no_faces": (False, False)}
 
@@ -159,17 +158,13 @@ def test_failed_fan_flagged_without_a_cold_probe_on_a_zero_volt_driver(tmp_path:
     )  # fmt: skip
     engine = analysed_fleet(str(tmp_path / "zv.db"), spec, days)
     fan_ms = int(fan_s * 1000)
-
-    def history(dev: str, key: str) -> list[dict[str, Any]]:
-        return list(runner.estimate_history(engine, dev, key, start_ms=0))
-
-    healthy = history("zv-ok", "hot_side.resistance_k_per_w")
+    healthy = history(engine, "zv-ok", "hot_side.resistance_k_per_w")
     assert len(healthy) > 100
     assert all(r["reliable"] is False and r["note"] == CABINET_NOTE for r in healthy)
     assert all(CABINET_BASIS in r["basis"] for r in healthy)
     r_hot = sim.DeviceSpec("zv-ok").r_hot
     assert all(abs(r["value"] / r_hot - 1.0) < 0.2 for r in healthy)
-    assert not [r for r in history("zv-ok", "hot_side.resistance.flag") if r["value"] == 1.0]
-    flags = [r for r in history("zv-fan", "hot_side.resistance.flag") if r["value"] == 1.0]
-    assert not [r for r in flags if r["at_ms"] < fan_ms]
-    assert flags and flags[0]["at_ms"] - fan_ms <= 2 * 3_600_000
+    assert not raised_flags_ms(engine, "zv-ok", "hot_side.resistance")
+    flags = raised_flags_ms(engine, "zv-fan", "hot_side.resistance")
+    assert not [at for at in flags if at < fan_ms]
+    assert flags and flags[0] - fan_ms <= 2 * 3_600_000

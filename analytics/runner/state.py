@@ -183,7 +183,7 @@ class DeviceState(_Stored):
     #: What R25's track rests on where not on probed faces: "voltage" (R25 read from the
     #: module's voltage, the rated S held); None for the fit to probed faces.
     r25_from: str | None = None
-    #: Where the hot side's followed hours take their faces (``hot_side.faces_source``:
+    #: Where the hot side's followed hours take their faces (``hot_side.follow_source``:
     #: "cabinet" or "voltage"); None for the probes'. A new source starts its track anew.
     rhot_from: str | None = None
     #: End of the newest window in which the module rested (switched off at least

@@ -13,9 +13,13 @@ import socket
 import subprocess
 import tempfile
 import time
+from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
+import sqlalchemy as sa
+
+from tecfleet.ingest import db
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -146,3 +150,12 @@ class Postgres:
         with contextlib.suppress(subprocess.CalledProcessError):
             self.stop()
         shutil.rmtree(self.dir, ignore_errors=True)
+
+
+def migrated(url: str) -> Iterator[sa.Engine]:
+    """A database at ``url`` migrated to the newest schema, disposed when the caller is done;
+    for fixtures, ``yield from migrated(url)``."""
+    engine = db.make_engine(url)
+    db.migrate(engine)
+    yield engine
+    engine.dispose()

@@ -8,12 +8,9 @@ from collections.abc import Iterator
 import pytest
 import sqlalchemy as sa
 
-from tecfleet.ingest import db
+from tests.services import migrated
 
 
 @pytest.fixture
 def engine(db_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(db_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
+    yield from migrated(db_url)

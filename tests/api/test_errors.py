@@ -16,18 +16,15 @@ from fastapi.testclient import TestClient
 
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
-from tecfleet.ingest import db
 from tecfleet.ingest.settings import Settings
+from tests.services import migrated
 
 SHAPE = {"code", "message", "field", "location", "errors"}
 
 
 @pytest.fixture
 def engine(sqlite_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(sqlite_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
+    yield from migrated(sqlite_url)
 
 
 def test_every_error_answers_the_one_shape(engine: sa.Engine) -> None:

@@ -20,9 +20,9 @@ from schemathesis.specs.openapi import checks
 
 from tecfleet.api.app import create_app
 from tecfleet.api.auth import create_key
-from tecfleet.ingest import db
 from tecfleet.ingest.settings import Settings
 from tests.api.fleet import populate
+from tests.services import migrated
 
 #: Examples generated per operation.
 MAX_EXAMPLES = 12
@@ -41,10 +41,7 @@ CHECKS = [
 @pytest.fixture(scope="module")
 def engine(tmp_path_factory: pytest.TempPathFactory) -> Iterator[sa.Engine]:
     path = Path(tmp_path_factory.mktemp("schemathesis")) / "tecfleet.db"
-    e = db.make_engine(f"sqlite:///{path}")
-    db.migrate(e)
-    yield e
-    e.dispose()
+    yield from migrated(f"sqlite:///{path}")
 
 
 @pytest.fixture(scope="module")

@@ -29,7 +29,7 @@ from tecfleet.api.services.webhooks import create_webhook
 from tecfleet.ingest import db
 from tecfleet.ingest.db import Reading
 from tecfleet.ingest.settings import Settings
-from tests.services import Mosquitto, free_port
+from tests.services import Mosquitto, free_port, migrated
 
 T0 = 1_790_000_000_000
 MIN = 60_000
@@ -73,10 +73,7 @@ class Receiver:
 
 @pytest.fixture
 def engine(sqlite_url: str) -> Iterator[sa.Engine]:
-    e = db.make_engine(sqlite_url)
-    db.migrate(e)
-    yield e
-    e.dispose()
+    yield from migrated(sqlite_url)
 
 
 @pytest.fixture

@@ -473,6 +473,8 @@ class Season:
     """Flags and change ranges of healthy units over a season [%]."""
 
     flags: list[str] = field(default_factory=list)
+    #: Each flag's first day after the season's start and the change it was raised on [%].
+    flag_at: dict[str, tuple[float, float]] = field(default_factory=dict)
     r_swing: dict[str, float] = field(default_factory=dict)
     r25_change: dict[str, tuple[float, float]] = field(default_factory=dict)
     ua_change: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
@@ -521,8 +523,10 @@ def season_scores(
         runner.analyze(engine)
         for d in spec.devices:
             for p in ("module.resistance_25c", "cabinet.ua", "hot_side.resistance"):
-                if _first_flag(engine, d.device_id, p, 0) is not None:
+                at = _first_flag(engine, d.device_id, p, 0)
+                if at is not None:
                     out.flags.append(f"{d.device_id} {p}")
+                    out.flag_at[out.flags[-1]] = _flag_day(engine, d.device_id, p, at)
             ch = runner.estimate_history(engine, d.device_id, "module.resistance_25c.change_pct")
             amb = runner.estimate_history(engine, d.device_id, "module.resistance_ohm")
             if ch and amb:
@@ -541,6 +545,13 @@ def season_scores(
     return out
 
 
+def _flag_day(engine: Any, dev: str, prefix: str, at_ms: int) -> tuple[float, float]:
+    # A flag's day after the season's start and the change it was raised on [%].
+    rows = runner.estimate_history(engine, dev, f"{prefix}.change_pct", at_ms, at_ms + 1)
+    change = float(rows[0]["value"]) if rows else math.nan
+    return (at_ms / 1000.0 - START_S) / 86_400.0, change
+
+
 def part_season(seeds: list[int], n_dev: int, days: float, sensors: str = "full") -> None:
     flagged = 0
     for seed in seeds:
@@ -555,7 +566,8 @@ def _season_one(seed: int, n_dev: int, days: float, sensors: str) -> int:
           f"{SINKS[0]:g}/{SINKS[1]:g} J/K ==")  # fmt: skip
     sea = season_scores(seed, n_dev, days, SINKS, sensors)
     for f in sea.flags:
-        print(f"flag: {f}")
+        day, change = sea.flag_at[f]
+        print(f"flag: {f} on day {day:.1f} (change {change:+.1f} %)")
     for dev, (lo, hi) in sea.r25_change.items():
         print(
             f"{dev}: R swings {sea.r_swing[dev]:.1f} %, R25 change within [{lo:+.1f}, {hi:+.1f}] %"

@@ -401,22 +401,30 @@ def detection_fleet(
     return REPORTING.apply(sim.with_sensor_set(spec, sensors))
 
 
+def _detectable_from(f: sim.Fault) -> float:
+    # When a fault reaches its detectable size [s]: wear its +5 % (R25 = r0·(1 + (m - 1)·frac),
+    # +5 % at frac = 0.05/(m - 1)), the others at once.
+    if f.kind == "wear":
+        return f.start_s + f.ramp_s * 0.05 / (f.magnitude - 1.0)
+    return f.start_s
+
+
 def detection_scores(
     seed: int, n_dev: int, days: float, sensors: str = "full"
 ) -> tuple[list[Detection], list[str], list[str]]:
     """:func:`detection_fleet` analysed; returns the detections, the healthy units and the
     flags raised on them."""
     spec = detection_fleet(seed, n_dev, days, sensors)
+    # Readings go on until every fault's target has passed: a wear ramp can reach +5 % less
+    # than a week before the fleet's last day, and a fault not flagged when the readings end
+    # has no verdict.
+    starts = [(f, _detectable_from(f)) for f in spec.faults]
+    ends = [(t - START_S) / 86_400.0 + detect_targets_h()[f.kind] / 24.0 for f, t in starts]
     with tempfile.TemporaryDirectory() as tmp:
-        engine, _truth, _ = build_db(Path(tmp) / "det.db", spec, days)
+        engine, _truth, _ = build_db(Path(tmp) / "det.db", spec, max([days, *ends]))
         runner.analyze(engine)
         found = []
-        for f in spec.faults:
-            if f.kind == "wear":
-                # R25 = r0·(1 + (m - 1)·frac): +5 % at frac = 0.05/(m - 1).
-                start = f.start_s + f.ramp_s * 0.05 / (f.magnitude - 1.0)
-            else:
-                start = f.start_s
+        for f, start in starts:
             hit = _first_flag(engine, f.device_id, DETECT_PREFIX[f.kind], int(f.start_s * 1000))
             found.append(Detection(f.device_id, f.kind, start, None if hit is None else hit / 1e3))
         faulty = {f.device_id for f in spec.faults}

@@ -8,7 +8,8 @@ resistance within 30 %, R25 within 2 %), here on the median unit of a small flee
 (a tuning seed), and 35 % for UA from 15-minute instants.
 
 Detection at slow reporting (issue 22): a 1.5x UA step flagged within 3 days at 5-minute
-instants; no UA flag on a unit without a leak, the simulator's fault list being the reference.
+instants; no UA flag on a unit without a leak; wear flagged within a week at 5-minute
+instants without a cold-face probe; the simulator's fault list being the reference.
 """
 
 from __future__ import annotations

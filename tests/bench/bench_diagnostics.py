@@ -409,22 +409,29 @@ def _detectable_from(f: sim.Fault) -> float:
     return f.start_s
 
 
+def readings_days(spec: sim.FleetSpec, days: float) -> float:
+    """How long a detection fleet of ``days`` reports [d]: until every fault's target has
+    passed. A wear ramp can reach +5 % less than a week before the fleet's last day, and a
+    fault not flagged when the readings end has no verdict."""
+    ends = [
+        (_detectable_from(f) - START_S) / 86_400.0 + detect_targets_h()[f.kind] / 24.0
+        for f in spec.faults
+    ]
+    return max([days, *ends])
+
+
 def detection_scores(
     seed: int, n_dev: int, days: float, sensors: str = "full"
 ) -> tuple[list[Detection], list[str], list[str]]:
     """:func:`detection_fleet` analysed; returns the detections, the healthy units and the
     flags raised on them."""
     spec = detection_fleet(seed, n_dev, days, sensors)
-    # Readings go on until every fault's target has passed: a wear ramp can reach +5 % less
-    # than a week before the fleet's last day, and a fault not flagged when the readings end
-    # has no verdict.
-    starts = [(f, _detectable_from(f)) for f in spec.faults]
-    ends = [(t - START_S) / 86_400.0 + detect_targets_h()[f.kind] / 24.0 for f, t in starts]
     with tempfile.TemporaryDirectory() as tmp:
-        engine, _truth, _ = build_db(Path(tmp) / "det.db", spec, max([days, *ends]))
+        engine, _truth, _ = build_db(Path(tmp) / "det.db", spec, readings_days(spec, days))
         runner.analyze(engine)
         found = []
-        for f, start in starts:
+        for f in spec.faults:
+            start = _detectable_from(f)
             hit = _first_flag(engine, f.device_id, DETECT_PREFIX[f.kind], int(f.start_s * 1000))
             found.append(Detection(f.device_id, f.kind, start, None if hit is None else hit / 1e3))
         faulty = {f.device_id for f in spec.faults}
@@ -447,7 +454,9 @@ def part_detect(
           f"{SINKS[0]:g}/{SINKS[1]:g} J/K ==")  # fmt: skip
     t0 = time.perf_counter()
     found, healthy, false = detection_scores(seed, n_dev, days, sensors)
-    print(f"(simulation and analysis {time.perf_counter() - t0:.1f} s)")
+    until = readings_days(detection_fleet(seed, n_dev, days, sensors), days)
+    print(f"(simulation and analysis {time.perf_counter() - t0:.1f} s; readings over "
+          f"{until:.1f} days, till every fault's target has passed)")  # fmt: skip
     modes = {
         d.device_id: f"{d.control}/{d.off_voltage}"
         for d in detection_fleet(seed, n_dev, days, sensors).devices

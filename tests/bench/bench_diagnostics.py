@@ -454,13 +454,11 @@ def part_detect(
           f"{SINKS[0]:g}/{SINKS[1]:g} J/K ==")  # fmt: skip
     t0 = time.perf_counter()
     found, healthy, false = detection_scores(seed, n_dev, days, sensors)
-    until = readings_days(detection_fleet(seed, n_dev, days, sensors), days)
+    fleet = detection_fleet(seed, n_dev, days, sensors)
+    until = readings_days(fleet, days)
     print(f"(simulation and analysis {time.perf_counter() - t0:.1f} s; readings over "
           f"{until:.1f} days, till every fault's target has passed)")  # fmt: skip
-    modes = {
-        d.device_id: f"{d.control}/{d.off_voltage}"
-        for d in detection_fleet(seed, n_dev, days, sensors).devices
-    }
+    modes = {d.device_id: f"{d.control}/{d.off_voltage}" for d in fleet.devices}
     print(f"{'device':10} {'driver':24} {'fault':6} {'from (UTC h)':>12} {'flag delay':>11} "
           f"{'target':>7}")  # fmt: skip
     for d in found:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import json
 from dataclasses import dataclass
@@ -27,6 +28,7 @@ __all__ = [
     "fill_cold_face",
     "flags_of",
     "load",
+    "placed_faces",
     "priors",
 ]
 
@@ -170,6 +172,24 @@ def complete_faces(
         return
     if data.hot_probe:
         data.tc[sl] = data.faces.t_cold
+
+
+def placed_faces(data: Readings, sl: slice) -> Readings:
+    """``data`` with both faces of the readings in ``sl`` placed where neither face is probed
+    and the module's voltage gave ΔT (``data.faces``, a floating driver): Th = Tm + ΔT/2 and
+    Tc = Tm - ΔT/2, Tm from how the sinks share ΔT (:func:`diagnostics.unanchored_faces`),
+    so that the cabinet's balance can be fitted. The cabinet takes the cold face only through
+    S·I·Tc in Qc = S·I·Tc - ½·I²·R - K·ΔT (Goldsmid 2010, ch. 2): a kelvin of Tc moves
+    Qc by S·I, about 0.15 W at 3 A and 50 mV/K, while ΔT itself is read from the voltage.
+    A copy: the next windows' rests and probe offsets see only what the probes gave.
+    ``data`` itself where a face is probed or the voltage gave no faces."""
+    faces = data.faces
+    if faces is None or data.cold_probe or data.hot_probe:
+        return data
+    tc, th = data.tc.copy(), data.th.copy()
+    half = 0.5 * faces.delta_t
+    tc[sl], th[sl] = faces.t_mean - half, faces.t_mean + half
+    return dataclasses.replace(data, tc=tc, th=th)
 
 
 def fill_cold_face(

@@ -27,6 +27,7 @@ __all__ = [
     "FLAGS_HELD_CABINET_PROBE_UNCHECKED",
     "FLAGS_HELD_FACES_FROM_VOLTAGE",
     "FLAGS_HELD_R25_CABINET_PROBE_MOVED",
+    "FLAGS_HELD_UA_RATED_S",
     "FLAGS_HELD_UA_SLOW_READINGS",
     "FLAGS_HELD_UA_SPARSE_INSTANTS",
     "ambient_lead_usual",
@@ -44,13 +45,29 @@ __all__ = [
 ]
 
 
-#: Why UA raises no flag on a unit whose hot face, or both faces, are read from the
-#: module's voltage (the hot side's flag with both faces from it: :func:`faces_judged`): the
-#: estimates there are served, but detection on these sensor sets has not yet been shown to
-#: keep a healthy unit unflagged over a season.
+#: Why UA and the hot side raise no flag on a unit whose cold face is probed and whose hot
+#: face is read from the module's voltage (:func:`faces_judged`): the estimates there are
+#: served, but detection on this sensor set has not yet been shown to keep a healthy unit
+#: unflagged over a season.
 FLAGS_HELD_FACES_FROM_VOLTAGE = (
     "faces read from the module's voltage: changes are followed, but no flag is raised on "
     "this sensor set until detection there is validated"
+)
+
+
+#: Why UA raises no flag on a unit with no face probe. The voltage gives S·ΔT only, so the
+#: cabinet's balance takes S from the ratings, and Qc = S·I·Tc - ½·I²·R - K·ΔT (Goldsmid
+#: 2010, ch. 2) then errs by about δ·(S·I·Tc + K·ΔT) for a relative error δ of S: tens of
+#: watts times δ against a pumped heat of a few watts, and the error grows with the duty, so
+#: UA's changes follow the weather. Simulated 90-day seasons (sinks of 500/1500 J/K, values
+#: the code produced itself): a unit whose S is 5.7 % above its rated one read UA about
+#: 0.20 W/K in mild weather and 0.30 W/K in a hot spell against a true 0.40 (0.32-0.44
+#: where its S was the rated one), and with the flag allowed 2 of 48 healthy units were
+#: flagged.
+FLAGS_HELD_UA_RATED_S = (
+    "no face probe: the cabinet's balance rests on the rated S (the voltage gives S·ΔT "
+    "only), whose error moves UA with the duty and the weather: UA's changes are followed, "
+    "but no flag is raised"
 )
 
 
@@ -117,8 +134,9 @@ def faces_judged(
     and has not moved (:data:`FLAGS_HELD_CABINET_PROBE_UNCHECKED`,
     :data:`FLAGS_HELD_CABINET_PROBE_MOVED`). With neither face probed, the hot side's
     changes are followed and flag on the same terms (both faces from the voltage,
-    ``hot_side.faces_source``); UA's are followed and held
-    (:data:`FLAGS_HELD_FACES_FROM_VOLTAGE`)."""
+    ``hot_side.faces_source``); UA's are followed where the faces are trusted
+    (``data.placed_faces``) and held (:data:`FLAGS_HELD_UA_RATED_S`). A cold-face probe
+    without a hot one: followed and held (:data:`FLAGS_HELD_FACES_FROM_VOLTAGE`)."""
     if probed == (True, True):
         return True, None
     if probed == (False, True):
@@ -126,8 +144,8 @@ def faces_judged(
             return bool(faces_trusted), None
         held = FLAGS_HELD_CABINET_PROBE_UNCHECKED
         return bool(faces_trusted), FLAGS_HELD_CABINET_PROBE_MOVED if cabinet_moved else held
-    if quantity == "rhot" and probed == (False, False):
-        return bool(faces_trusted), None
+    if probed == (False, False):
+        return bool(faces_trusted), FLAGS_HELD_UA_RATED_S if quantity == "ua" else None
     return True, FLAGS_HELD_FACES_FROM_VOLTAGE
 
 

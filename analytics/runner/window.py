@@ -19,7 +19,13 @@ from tecfleet.analytics._validate import T_25C_K, FloatArray
 from tecfleet.analytics.diagnostics import probe_offsets as po
 from tecfleet.analytics.errors import InsufficientDataError, PhysicsError
 from tecfleet.analytics.runner import offsets, seebeck, settled
-from tecfleet.analytics.runner.data import Readings, complete_faces, faces_basis, flags_of
+from tecfleet.analytics.runner.data import (
+    Readings,
+    complete_faces,
+    faces_basis,
+    flags_of,
+    placed_faces,
+)
 from tecfleet.analytics.runner.rows import EstimateRows
 from tecfleet.analytics.runner.settings import (
     AnalysisSettings,
@@ -45,6 +51,13 @@ __all__ = ["fit_window"]
 BoolArray = np.ndarray[Any, np.dtype[np.bool_]]
 
 NEVER_RESTED = "module never rested in this window: one operating point"
+
+#: Why what rests on the faces is served as not reliable on a unit with no face probe
+#: (``data.placed_faces``): the voltage gives S·ΔT, not S, nor where the faces sit.
+PLACED_FACES = (
+    "no face probe: S and K are the rated ones (the voltage gives S·ΔT only) and both faces "
+    "are placed by an assumed share of the sinks"
+)
 
 
 def _missing_faces(probed: tuple[bool, bool]) -> str:
@@ -119,6 +132,7 @@ def fit_window(
     # Where a face probe is missing, the faces of the thermal window from its own readings.
     wt = data.slice(b - max(cfg.thermal_window_s, cfg.window_s) * 1000, b)
     complete_faces(data, wt, prior, cfg, faces_r25(state, b, cfg))
+    data = placed_faces(data, wt)
     win = _window(data, b, cfg)
     if win is None:
         return
@@ -147,7 +161,9 @@ def fit_window(
         moved = cabinet_moved(state, cfg)
         follow, held = ua_judged(win.probed, trusted, moved, interval, data.summarised, cfg)
         if follow:
-            reduced = win.probed != (True, True)
+            # Only the cold face read from the voltage moves with each window's own R25; with
+            # neither face probed ΔT is read at the R25 of the unit's recent windows.
+            reduced = win.probed == (False, True)
             _follow_ua(b, th_fit, k_settled, rises[2], rows, state, cfg, held, reduced)
         rows.basis = f"module model at the operating point, {faces}"
         _performance(win, ele, th_fit, cov3, rows, cfg)
@@ -357,7 +373,8 @@ def _thermal(
     # none yet); None where the fit fails (its reason stored).
     b, n, wt, usable_th, el = win.b, win.n, win.wt, win.usable_th, ele.el
     if data.faces is not None and not np.isfinite(data.th[wt]).any():
-        # No face probed: the hourly hot side still reads both faces at this window's R25.
+        # No face probed nor placed: the hourly hot side still reads both faces at this
+        # window's R25.
         _electrical_params(win, el, state, prior, cfg)
         note = f"{data.faces.basis}: the heat balances need the faces"
         rows.add("cabinet.ua_w_per_k", b, None, None, n, False, note)
@@ -457,6 +474,11 @@ def _remember_fit(
     p.q_int, p.r_cold, p.r_hot = th_fit.q_internal, 1.0 / th_fit.g_cold, 1.0 / th_fit.g_hot
     p.i_seen = float(np.max(i[usable])) if usable.any() else 0.0
     p.faces_followed = th_fit.faces_followed
+    if win.probed == (False, False):
+        # Placed faces give the sinks' split and the hot sink's storage no footing: the
+        # hourly hot side stays on its own terms (``hot_side.faces_source``) and the capacity,
+        # which needs both sinks, is not estimated.
+        p.c_hot = p.r_cold = p.r_hot = p.faces_followed = None
 
 
 def _cov3(el: dg.ElectricalFit, k_sd: float) -> FloatArray:
@@ -485,8 +507,11 @@ def _module_and_cabinet_rows(
     # the cold side's resistance up to twice its value and UA 15-55 % low, often beyond their
     # stated errors: served, but not called reliable. UA's changes are still tracked.
     rested = th_fit.rested
-    k_ok = th_fit.k_from_data and rested
+    placed = win.probed == (False, False)
+    k_ok = th_fit.k_from_data and rested and not placed
     k_note = th_fit.note if not th_fit.k_from_data else (None if rested else NEVER_RESTED)
+    if placed:
+        k_note = PLACED_FACES
     rows.add("module.conductance_w_per_k", b, th_fit.k, sd["k"], ns, k_ok, k_note)
     s_m, r_m = el.s25 * ele.f_s, el.r25 * ele.f_r
     z_arr, z_err = dg.propagate(
@@ -518,6 +543,8 @@ def _served_ua(
     # changes.
     b, t, usable = win.b, win.t, win.usable
     ua_se, ua_ok, ua_note = _window_ua(th_fit, cfg)
+    if win.probed == (False, False):
+        ua_ok, ua_note = False, f"{PLACED_FACES}; its changes are still tracked"
     rows.add(
         "cabinet.ua_window_w_per_k", b, th_fit.ua, ua_se, th_fit.n_samples, ua_ok, ua_note
     )  # fmt: skip
@@ -621,6 +648,8 @@ def _path_rows(
             ok, note = False, NEVER_RESTED
         if ok and not th_fit.faces_followed and key.startswith("cold_side"):
             ok, note = False, th_fit.note
+        if win.probed == (False, False):
+            ok, note = False, PLACED_FACES
         rows.add(key, b, 1.0 / g, se, ns, ok, note)
 
 

@@ -1,5 +1,5 @@
-"""A module's wear followed without any face probe, from the switch-off steps of a floating
-driver whose sinks hold heat.
+"""A module's wear, a failed fan and a heat leak followed without any face probe, from the
+switch-off steps and the voltage of a floating driver whose sinks hold heat.
 
 Readings from the fleet simulator (test data only), the truth its parameters: R25 of one
 unit rising 10 % over four days, its twin steady. The reference is the switch-off step
@@ -18,6 +18,8 @@ from sqlalchemy.engine import Engine
 from tecfleet.analytics import runner
 from tecfleet.analytics import simulation as sim
 from tecfleet.analytics.runner.hot_side import VOLTAGE_BASIS, VOLTAGE_NOTE
+from tecfleet.analytics.runner.tracks import FLAGS_HELD_UA_RATED_S
+from tecfleet.analytics.runner.window import PLACED_FACES
 from tests.fleet_fixture import analysed_fleet, history, raised_flags_ms
 
 START_S = 1_735_689_600.0
@@ -81,3 +83,43 @@ def test_failed_fan_is_flagged_without_face_probes_where_the_sinks_hold_heat(
     assert not raised_flags_ms(engine, "nf-ok", "hot_side.resistance")
     flags = raised_flags_ms(engine, "nf-fan", "hot_side.resistance")
     assert flags and fan_s * 1000 < flags[0] <= (fan_s + 2 * 3600.0) * 1000
+
+
+def test_heat_leak_is_followed_without_face_probes_where_the_driver_floats(
+    tmp_path: Path,
+) -> None:
+    # A heat leak (the simulator's ``leak`` fault, UA 1.5x at day 4) on a floating unit with
+    # no face probe, beside a steady twin. The cabinet's balance, UA·(Ta - Tcab) + Qint =
+    # Qc with Qc = S·I·Tc - ½·I²·R - K·ΔT (Goldsmid 2010, ch. 2; Incropera et al. 2007,
+    # ch. 5), takes ΔT from the voltage, S and K from the ratings and the faces placed by an
+    # assumed share of the sinks (``runner.data.placed_faces``): UA is served, never as
+    # reliable, and its changes are followed: the leak's change passes the flag's 35 %
+    # within the 48 h asked at one-minute readings, while the flag stays held with its
+    # reason (the rated S) on both units.
+    unit = {"sensor_set": "no_faces", "off_voltage": "open_circuit", "cuts_per_30d": 0.0}
+    leak_s = START_S + 4.0 * 86_400.0
+    spec = sim.FleetSpec(
+        devices=(
+            sim.DeviceSpec("nf-leak", **unit, **SINKS), sim.DeviceSpec("nf-tight", **unit, **SINKS),
+        ),
+        start_s=START_S, interval_s=60.0, seed=210,
+        faults=(sim.Fault("leak", "nf-leak", leak_s, magnitude=1.5),),
+    )  # fmt: skip
+    engine = analysed_fleet(f"{tmp_path}/nf-leak.db", spec, 7.0)
+    for dev in ("nf-leak", "nf-tight"):
+        served = history(engine, dev, "cabinet.ua_w_per_k")
+        assert len(served) > 12
+        assert all(r["reliable"] is False and PLACED_FACES in r["note"] for r in served)
+        for key in ("module.conductance_w_per_k", "cold_side.resistance_k_per_w"):
+            assert all(r["note"] == PLACED_FACES for r in history(engine, dev, key))
+        flags = history(engine, dev, "cabinet.ua.flag")
+        assert flags and all(r["value"] == 0.0 for r in flags)
+        assert all(r["note"] == FLAGS_HELD_UA_RATED_S for r in flags)
+    after = [
+        r["value"]
+        for r in history(engine, "nf-leak", "cabinet.ua.change_pct")
+        if leak_s * 1000 < r["at_ms"] <= (leak_s + 48 * 3600.0) * 1000
+    ]
+    assert after and max(after) >= 35.0
+    tight = [r["value"] for r in history(engine, "nf-tight", "cabinet.ua.change_pct")]
+    assert tight and max(abs(v) for v in tight) < 35.0

@@ -17,6 +17,7 @@ from tecfleet.analytics.runner.tracks import (
     FLAGS_HELD_CABINET_PROBE_UNCHECKED,
     FLAGS_HELD_FACES_FROM_VOLTAGE,
     FLAGS_HELD_R25_CABINET_PROBE_MOVED,
+    FLAGS_HELD_UA_RATED_S,
     FLAGS_HELD_UA_SLOW_READINGS,
     FLAGS_HELD_UA_SPARSE_INSTANTS,
     cabinet_moved,
@@ -303,7 +304,7 @@ def test_hot_side_flags_on_every_probe_set_and_ua_holds_without_face_probes() ->
     # the full set, after a second hour or at twice the threshold (the 3x here). With
     # neither face probed, both faces come from the voltage
     # (``hot_side.faces_source``): followed and flagged only at a trusted R25; UA's changes
-    # there are followed but raise no flag.
+    # are followed at a trusted R25 but raise no flag (the rated S).
     cfg = AnalysisSettings()
     hour = 3_600_000
     values = [0.20] * 80 + [0.60] * 4
@@ -331,7 +332,11 @@ def test_hot_side_flags_on_every_probe_set_and_ua_holds_without_face_probes() ->
         flags = keys(recs, "hot_side.resistance.flag")
         assert next(r["at_ms"] // hour for r in flags if r["value"] == 1.0) == 81
     assert not keys(wandering, "hot_side.resistance.change_pct")
-    assert faces_judged((False, False), True, "ua") == (True, FLAGS_HELD_FACES_FROM_VOLTAGE)
+    # Without face probes UA is followed where the faces are trusted, its flag held (the
+    # rated S); a cold-face probe without a hot one is followed and held.
+    assert faces_judged((False, False), True, "ua") == (True, FLAGS_HELD_UA_RATED_S)
+    assert faces_judged((False, False), False, "ua") == (False, FLAGS_HELD_UA_RATED_S)
+    assert faces_judged((True, False), True, "ua") == (True, FLAGS_HELD_FACES_FROM_VOLTAGE)
 
 
 def test_ua_without_a_cold_probe_flags_only_where_the_cabinet_probe_was_judged_unmoved() -> None:
@@ -347,7 +352,7 @@ def test_ua_without_a_cold_probe_flags_only_where_the_cabinet_probe_was_judged_u
     assert faces_judged((False, True), True, "ua", True) == (True, FLAGS_HELD_CABINET_PROBE_MOVED)
     assert faces_judged((False, True), False, "ua", False)[0] is False
     assert faces_judged((False, True), True, "rhot") == (True, None)
-    assert faces_judged((False, False), True, "ua", False) == (True, FLAGS_HELD_FACES_FROM_VOLTAGE)
+    assert faces_judged((False, False), True, "ua", False) == (True, FLAGS_HELD_UA_RATED_S)
 
 
 def test_uas_flag_from_faces_read_from_the_voltage_is_held_at_slow_reporting() -> None:

@@ -152,6 +152,27 @@ def _first_flag(engine: Any, device: str, prefix: str, after_ms: int) -> int | N
     return None
 
 
+#: Each tracked quantity's flag threshold [%].
+FLAG_PCT = {
+    "module.resistance_25c": runner.AnalysisSettings().r25_flag_pct,
+    "cabinet.ua": runner.AnalysisSettings().ua_flag_pct,
+    "hot_side.resistance": runner.AnalysisSettings().r_hot_flag_pct,
+}
+
+
+def _held_change(engine: Any, device: str, prefix: str, after_ms: int) -> float | None:
+    # Where every flag evaluation from ``after_ms`` was held (its note says why): when the
+    # change first reached the flag's threshold [s], None if it never did; NaN where the
+    # flag was not held.
+    flags = runner.estimate_history(engine, device, f"{prefix}.flag", start_ms=after_ms)
+    if not flags or any(row["note"] is None for row in flags):
+        return math.nan
+    for row in runner.estimate_history(engine, device, f"{prefix}.change_pct", start_ms=after_ms):
+        if row["value"] >= FLAG_PCT[prefix]:
+            return int(row["at_ms"]) / 1e3
+    return None
+
+
 #: (name, served estimate, truth parameter)
 ACCURACY_CHECKS = (
     ("R25", "module.resistance_25c_ohm", "r25"),
@@ -373,10 +394,24 @@ class Detection:
     kind: str
     start_s: float  # when the fault reached its detectable size [s]
     flagged_s: float | None  # first flag at or after the fault's start [s]
+    #: Where no flag was raised and every flag evaluation after the fault's start was held
+    #: (with its reason): when the change first reached the flag's threshold [s], None if
+    #: never; NaN where the flag was not held.
+    held_change_s: float | None = math.nan
 
     @property
     def delay_h(self) -> float:
         return math.inf if self.flagged_s is None else (self.flagged_s - self.start_s) / 3600.0
+
+    @property
+    def held(self) -> bool:
+        return self.held_change_s is None or not math.isnan(self.held_change_s)
+
+    @property
+    def held_delay_h(self) -> float:
+        # The change's delay past the threshold on a held flag [h]; inf if it never got there.
+        at = self.held_change_s
+        return math.inf if at is None or math.isnan(at) else (at - self.start_s) / 3600.0
 
     @property
     def in_time(self) -> bool:
@@ -432,8 +467,12 @@ def detection_scores(
         found = []
         for f in spec.faults:
             start = _detectable_from(f)
-            hit = _first_flag(engine, f.device_id, DETECT_PREFIX[f.kind], int(f.start_s * 1000))
-            found.append(Detection(f.device_id, f.kind, start, None if hit is None else hit / 1e3))
+            prefix, after = DETECT_PREFIX[f.kind], int(f.start_s * 1000)
+            hit = _first_flag(engine, f.device_id, prefix, after)
+            held = math.nan if hit is not None else _held_change(engine, f.device_id, prefix, after)
+            found.append(
+                Detection(f.device_id, f.kind, start, None if hit is None else hit / 1e3, held)
+            )
         faulty = {f.device_id for f in spec.faults}
         healthy = [d.device_id for d in spec.devices if d.device_id not in faulty]
         false = [
@@ -463,6 +502,12 @@ def part_detect(
           f"{'target':>7}")  # fmt: skip
     for d in found:
         delay = "never" if d.flagged_s is None else f"{d.delay_h:9.1f} h"
+        if d.held:
+            # A held flag: the change is still served; when it passed the threshold.
+            past = d.held_delay_h
+            delay = "held, change " + (
+                "never past" if math.isinf(past) else f"past at {past:.0f} h"
+            )
         print(f"{d.device_id:10} {modes[d.device_id]:24} {d.kind:6} "
               f"{(d.start_s - START_S) / 3600:12.1f} {delay:>11} "
               f"{detect_targets_h()[d.kind]:6.0f}h")  # fmt: skip
@@ -480,6 +525,11 @@ def _detect_summary(found: list[Detection], false: int, seeds: int, sensors: str
         shown = ", ".join("never" if not math.isfinite(x) else f"{x:.0f}" for x in delays)
         print(f"  {kind:5} in time ({target:.0f} h): {sum(d.in_time for d in mine)} of "
               f"{len(mine)}; delays [h]: {shown}")  # fmt: skip
+        held = sorted(d.held_delay_h for d in mine if d.held)
+        if held:
+            past = ", ".join("never" if math.isinf(x) else f"{x:.0f}" for x in held)
+            print(f"        flag held on {len(held)} (with its reason); their change past the "
+                  f"threshold after [h]: {past}")  # fmt: skip
     print(f"  false flags on healthy units: {false}")
 
 

@@ -28,19 +28,25 @@ WEAR_AT_S = START_S + 3.0 * 86_400.0
 SINKS = {"c_cold_sink": 500.0, "c_hot_sink": 1500.0}
 
 
-def _analysed(tmp_path: Path) -> tuple[Engine, sim.FleetTruth]:
+def _twins(
+    tmp_path: Path, fault: sim.Fault, twin: str, seed: int, days: float
+) -> tuple[Engine, sim.FleetTruth]:
+    # A floating unit with no face probe carrying ``fault`` beside a steady ``twin``, both
+    # with sinks that hold heat, stored and analysed over ``days``.
     unit = {"sensor_set": "no_faces", "off_voltage": "open_circuit", "cuts_per_30d": 0.0}
     spec = sim.FleetSpec(
-        devices=(sim.DeviceSpec("nf-1", **unit, **SINKS), sim.DeviceSpec("nf-2", **unit, **SINKS)),
-        start_s=START_S, interval_s=60.0, seed=208,
-        faults=(sim.Fault("wear", "nf-1", WEAR_AT_S, magnitude=1.1, ramp_s=4 * 86_400.0),),
+        devices=(
+            sim.DeviceSpec(fault.device_id, **unit, **SINKS), sim.DeviceSpec(twin, **unit, **SINKS),
+        ),
+        start_s=START_S, interval_s=60.0, seed=seed, faults=(fault,),
     )  # fmt: skip
-    engine = analysed_fleet(f"{tmp_path}/nf.db", spec, DAYS)
+    engine = analysed_fleet(f"{tmp_path}/{fault.device_id}.db", spec, days)
     return engine, sim.Simulator(spec).truth
 
 
 def test_wear_is_flagged_without_face_probes_where_the_sinks_hold_heat(tmp_path: Path) -> None:
-    engine, truth = _analysed(tmp_path)
+    wear = sim.Fault("wear", "nf-1", WEAR_AT_S, magnitude=1.1, ramp_s=4 * 86_400.0)
+    engine, truth = _twins(tmp_path, wear, "nf-2", 208, DAYS)
     end_s = START_S + DAYS * 86_400.0
     # The steady unit: R25 served as reliable and within 3 % of the truth (the target without
     # face probes), and no wear flag.
@@ -66,16 +72,10 @@ def test_failed_fan_is_flagged_without_face_probes_where_the_sinks_hold_heat(
     # assumed ratio of the sinks (``diagnostics.unanchored_faces``): its level is off by a
     # steady factor, so the hours are served as not reliable, but a tripled r_hot about
     # doubles it and is flagged within the full set's 2 hours; the twin never is.
-    unit = {"sensor_set": "no_faces", "off_voltage": "open_circuit", "cuts_per_30d": 0.0}
     fan_s = START_S + 5.0 * 86_400.0
-    spec = sim.FleetSpec(
-        devices=(
-            sim.DeviceSpec("nf-fan", **unit, **SINKS), sim.DeviceSpec("nf-ok", **unit, **SINKS),
-        ),
-        start_s=START_S, interval_s=60.0, seed=209,
-        faults=(sim.Fault("fan", "nf-fan", fan_s, magnitude=3.0),),
-    )  # fmt: skip
-    engine = analysed_fleet(f"{tmp_path}/nf-fan.db", spec, 7.0)
+    engine, _ = _twins(
+        tmp_path, sim.Fault("fan", "nf-fan", fan_s, magnitude=3.0), "nf-ok", 209, 7.0
+    )
     served = history(engine, "nf-ok", "hot_side.resistance_k_per_w")
     assert len(served) > 24
     assert all(r["reliable"] is False and r["note"] == VOLTAGE_NOTE for r in served)
@@ -96,16 +96,9 @@ def test_heat_leak_is_followed_without_face_probes_where_the_driver_floats(
     # reliable, and its changes are followed: the leak's change passes the flag's 35 %
     # within the 48 h asked at one-minute readings, while the flag stays held with its
     # reason (the rated S) on both units.
-    unit = {"sensor_set": "no_faces", "off_voltage": "open_circuit", "cuts_per_30d": 0.0}
     leak_s = START_S + 4.0 * 86_400.0
-    spec = sim.FleetSpec(
-        devices=(
-            sim.DeviceSpec("nf-leak", **unit, **SINKS), sim.DeviceSpec("nf-tight", **unit, **SINKS),
-        ),
-        start_s=START_S, interval_s=60.0, seed=210,
-        faults=(sim.Fault("leak", "nf-leak", leak_s, magnitude=1.5),),
-    )  # fmt: skip
-    engine = analysed_fleet(f"{tmp_path}/nf-leak.db", spec, 7.0)
+    leak = sim.Fault("leak", "nf-leak", leak_s, magnitude=1.5)
+    engine, _ = _twins(tmp_path, leak, "nf-tight", 210, 7.0)
     for dev in ("nf-leak", "nf-tight"):
         served = history(engine, dev, "cabinet.ua_w_per_k")
         assert len(served) > 12

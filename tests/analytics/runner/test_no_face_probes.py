@@ -15,7 +15,7 @@ from pathlib import Path
 
 from sqlalchemy.engine import Engine
 
-from tecfleet.analytics import runner
+from tecfleet.analytics import alerts, runner
 from tecfleet.analytics import simulation as sim
 from tecfleet.analytics.runner.hot_side import VOLTAGE_BASIS, VOLTAGE_NOTE
 from tecfleet.analytics.runner.tracks import FLAGS_HELD_UA_RATED_S
@@ -116,3 +116,6 @@ def test_heat_leak_is_followed_without_face_probes_where_the_driver_floats(
     assert after and max(after) >= 35.0
     tight = [r["value"] for r in history(engine, "nf-tight", "cabinet.ua.change_pct")]
     assert tight and max(abs(v) for v in tight) < 35.0
+    # A held change is served as not reliable, and the alert rules judge reliable changes
+    # only: no heat-leak alert on either unit.
+    assert not [c for c in alerts.evaluate(engine) if c.kind == "heat_leak"]

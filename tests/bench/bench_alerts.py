@@ -153,15 +153,21 @@ def scoring_fleet(
 
     Fault times are fractions of the run so a shorter run keeps every fault inside it.
     ``drift`` False leaves out the drifting cabinet probe; ``summaries`` has every unit
-    report its interval summaries; ``sensors`` gives every unit those face probes (the
-    stuck probe is the hot face's, so a set without it is refused).
+    report its interval summaries; ``sensors`` gives every unit those face probes. The stuck
+    probe is the hot face's, or the cabinet's where the hot face has none; without face
+    probes every unit's sinks hold heat (500/1500 J/K, cold/hot: aluminium of about half a
+    kilogram and a kilogram and a half, from memory), since massless faces leave R25
+    unknown there.
     """
-    if sensors not in ("full", "no_cold"):
-        raise ValueError(f"the alert bench needs the hot-face probe; got sensors={sensors!r}")
+    if sensors not in sim.SENSOR_SETS:
+        raise ValueError(f"unknown sensor set {sensors!r}; known: {sim.SENSOR_SETS}")
+    stuck_channel = "t_cabinet" if sensors == "no_faces" else "t_hot"
     n_faulty = 7 if drift else 6
     base = sim.random_fleet(n_faulty + healthy, seed=seed, start_s=START_S, days=days, prefix="sc")
     # no random power cuts: one is scheduled where it is wanted
     devs = [dataclasses.replace(d, cuts_per_30d=0.0) for d in base.devices]
+    if sensors == "no_faces":
+        devs = [dataclasses.replace(d, c_cold_sink=500.0, c_hot_sink=1500.0) for d in devs]
     ids = [d.device_id for d in devs]
     at = lambda frac: START_S + frac * days * DAY_S  # noqa: E731
     wear_start = at(0.32)
@@ -182,7 +188,7 @@ def scoring_fleet(
         sim.Fault("wear", ids[0], wear_start, magnitude=1.10, ramp_s=wear_ramp),
         sim.Fault("leak", ids[1], at(0.55), magnitude=1.5),
         sim.Fault("fan", ids[2], at(0.7), magnitude=3.0),
-        sim.Fault("sensor", ids[3], at(0.45), channel="t_hot", mode="stuck"),
+        sim.Fault("sensor", ids[3], at(0.45), channel=stuck_channel, mode="stuck"),
         sim.Fault("offline", ids[4], at(0.6), end_s=at(0.6) + 10 * HOUR_S),
         *drifting,
     )
@@ -515,9 +521,10 @@ def main(argv: list[str] | None = None) -> int:
     )
     ap.add_argument(
         "--sensors",
-        choices=("full", "no_cold"),
+        choices=("full", "no_cold", "no_faces"),
         default="full",
-        help="face probes of every unit: both (full) or none on the cold face (no_cold)",
+        help="face probes of every unit: both (full), none on the cold face (no_cold) or "
+        "none at all (no_faces)",
     )
     ap.add_argument(
         "--switched-on",

@@ -121,3 +121,18 @@ def test_no_false_positive_of_the_reading_rules(scored: Score) -> None:
     # truth says when each should have fired
     reading_kinds = {"excursion", "offline", "sensor_fault", "over_temperature"}
     assert [a for a in scored.false_positives if a["kind"] in reading_kinds] == []
+
+
+def test_the_scoring_fleet_without_face_probes_sticks_the_cabinet_probe() -> None:
+    # Without face probes there is no hot face to freeze: the stuck probe is the cabinet's,
+    # and every unit's sinks hold heat, without which its R25 is unknown there. A set the
+    # simulator does not know is refused.
+    spec, _ = scoring_fleet(DAYS, healthy=2, seed=3, sensors="no_faces")
+    stuck = [f for f in spec.faults if f.kind == "sensor" and f.mode == "stuck"]
+    assert [f.channel for f in stuck] == ["t_cabinet"]
+    assert all(d.sensor_set == "no_faces" for d in spec.devices)
+    assert all((d.c_cold_sink, d.c_hot_sink) == (500.0, 1500.0) for d in spec.devices)
+    spec, _ = scoring_fleet(DAYS, healthy=2, seed=3)
+    assert [f.channel for f in spec.faults if f.mode == "stuck"] == ["t_hot"]
+    with pytest.raises(ValueError, match="unknown sensor set"):
+        scoring_fleet(DAYS, healthy=2, seed=3, sensors="no_ambient")

@@ -45,10 +45,9 @@ __all__ = [
 ]
 
 
-#: Why UA and the hot side raise no flag on a unit whose cold face is probed and whose hot
-#: face is read from the module's voltage (:func:`faces_judged`): the estimates there are
-#: served, but detection on this sensor set has not yet been shown to keep a healthy unit
-#: unflagged over a season.
+#: Why UA and the hot side raise no flag on a unit with a cold-face probe and none on the
+#: hot face (:func:`faces_judged`): what is served there has not been shown to keep a
+#: healthy unit unflagged over a season.
 FLAGS_HELD_FACES_FROM_VOLTAGE = (
     "faces read from the module's voltage: changes are followed, but no flag is raised on "
     "this sensor set until detection there is validated"

@@ -152,11 +152,12 @@ def _first_flag(engine: Any, device: str, prefix: str, after_ms: int) -> int | N
     return None
 
 
+_SETTINGS = runner.AnalysisSettings()
 #: Each tracked quantity's flag threshold [%].
 FLAG_PCT = {
-    "module.resistance_25c": runner.AnalysisSettings().r25_flag_pct,
-    "cabinet.ua": runner.AnalysisSettings().ua_flag_pct,
-    "hot_side.resistance": runner.AnalysisSettings().r_hot_flag_pct,
+    "module.resistance_25c": _SETTINGS.r25_flag_pct,
+    "cabinet.ua": _SETTINGS.ua_flag_pct,
+    "hot_side.resistance": _SETTINGS.r_hot_flag_pct,
 }
 
 

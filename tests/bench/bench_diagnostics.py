@@ -161,13 +161,15 @@ FLAG_PCT = {
 }
 
 
-def _held_change(engine: Any, device: str, prefix: str, after_ms: int) -> float | None:
-    # Where every flag evaluation from ``after_ms`` was held (its note says why): when the
-    # change first reached the flag's threshold [s], None if it never did; NaN where the
-    # flag was not held.
+def _all_held(engine: Any, device: str, prefix: str, after_ms: int) -> bool:
+    # Whether every flag evaluation from ``after_ms`` on was held (its note says why).
     flags = runner.estimate_history(engine, device, f"{prefix}.flag", start_ms=after_ms)
-    if not flags or any(row["note"] is None for row in flags):
-        return math.nan
+    return bool(flags) and all(row["note"] is not None for row in flags)
+
+
+def _first_past(engine: Any, device: str, prefix: str, after_ms: int) -> float | None:
+    # When the change first reached the flag's threshold from ``after_ms`` on [s]; None if
+    # it never did.
     for row in runner.estimate_history(engine, device, f"{prefix}.change_pct", start_ms=after_ms):
         if row["value"] >= FLAG_PCT[prefix]:
             return int(row["at_ms"]) / 1e3
@@ -395,24 +397,21 @@ class Detection:
     kind: str
     start_s: float  # when the fault reached its detectable size [s]
     flagged_s: float | None  # first flag at or after the fault's start [s]
-    #: Where no flag was raised and every flag evaluation after the fault's start was held
-    #: (with its reason): when the change first reached the flag's threshold [s], None if
-    #: never; NaN where the flag was not held.
-    held_change_s: float | None = math.nan
+    #: No flag was raised and every flag evaluation after the fault's start was held (with
+    #: its reason).
+    held: bool = False
+    #: On a held flag: when the change first reached the flag's threshold [s], None if never.
+    held_change_s: float | None = None
 
     @property
     def delay_h(self) -> float:
         return math.inf if self.flagged_s is None else (self.flagged_s - self.start_s) / 3600.0
 
     @property
-    def held(self) -> bool:
-        return self.held_change_s is None or not math.isnan(self.held_change_s)
-
-    @property
     def held_delay_h(self) -> float:
         # The change's delay past the threshold on a held flag [h]; inf if it never got there.
         at = self.held_change_s
-        return math.inf if at is None or math.isnan(at) else (at - self.start_s) / 3600.0
+        return math.inf if at is None else (at - self.start_s) / 3600.0
 
     @property
     def in_time(self) -> bool:
@@ -470,10 +469,10 @@ def detection_scores(
             start = _detectable_from(f)
             prefix, after = DETECT_PREFIX[f.kind], int(f.start_s * 1000)
             hit = _first_flag(engine, f.device_id, prefix, after)
-            held = math.nan if hit is not None else _held_change(engine, f.device_id, prefix, after)
-            found.append(
-                Detection(f.device_id, f.kind, start, None if hit is None else hit / 1e3, held)
-            )
+            held = hit is None and _all_held(engine, f.device_id, prefix, after)
+            past = _first_past(engine, f.device_id, prefix, after) if held else None
+            flagged = None if hit is None else hit / 1e3
+            found.append(Detection(f.device_id, f.kind, start, flagged, held, past))
         faulty = {f.device_id for f in spec.faults}
         healthy = [d.device_id for d in spec.devices if d.device_id not in faulty]
         false = [

@@ -94,6 +94,13 @@ class _Window:
     faces_unknown: int  # usable samples whose face temperatures neither probe nor voltage gave
     switch_offs: int  # the module's switch-offs in the window
 
+    @property
+    def faces_placed(self) -> bool:
+        """Neither face is probed: where the thermal fit runs, both faces were placed from
+        the module's voltage (``data.placed_faces``), and what rests on where they sit is
+        served as not reliable (:data:`PLACED_FACES`)."""
+        return self.probed == (False, False)
+
 
 @dataclass
 class _Electrical:
@@ -474,7 +481,7 @@ def _remember_fit(
     p.q_int, p.r_cold, p.r_hot = th_fit.q_internal, 1.0 / th_fit.g_cold, 1.0 / th_fit.g_hot
     p.i_seen = float(np.max(i[usable])) if usable.any() else 0.0
     p.faces_followed = th_fit.faces_followed
-    if win.probed == (False, False):
+    if win.faces_placed:
         # Placed faces give the sinks' split and the hot sink's storage no footing: the
         # hourly hot side stays on its own terms (``hot_side.faces_source``) and the capacity,
         # which needs both sinks, is not estimated.
@@ -507,10 +514,9 @@ def _module_and_cabinet_rows(
     # the cold side's resistance up to twice its value and UA 15-55 % low, often beyond their
     # stated errors: served, but not called reliable. UA's changes are still tracked.
     rested = th_fit.rested
-    placed = win.probed == (False, False)
-    k_ok = th_fit.k_from_data and rested and not placed
+    k_ok = th_fit.k_from_data and rested and not win.faces_placed
     k_note = th_fit.note if not th_fit.k_from_data else (None if rested else NEVER_RESTED)
-    if placed:
+    if win.faces_placed:
         k_note = PLACED_FACES
     rows.add("module.conductance_w_per_k", b, th_fit.k, sd["k"], ns, k_ok, k_note)
     s_m, r_m = el.s25 * ele.f_s, el.r25 * ele.f_r
@@ -543,7 +549,7 @@ def _served_ua(
     # changes.
     b, t, usable = win.b, win.t, win.usable
     ua_se, ua_ok, ua_note = _window_ua(th_fit, cfg)
-    if win.probed == (False, False):
+    if win.faces_placed:
         ua_ok, ua_note = False, f"{PLACED_FACES}; its changes are still tracked"
     rows.add(
         "cabinet.ua_window_w_per_k", b, th_fit.ua, ua_se, th_fit.n_samples, ua_ok, ua_note
@@ -648,7 +654,7 @@ def _path_rows(
             ok, note = False, NEVER_RESTED
         if ok and not th_fit.faces_followed and key.startswith("cold_side"):
             ok, note = False, th_fit.note
-        if win.probed == (False, False):
+        if win.faces_placed:
             ok, note = False, PLACED_FACES
         rows.add(key, b, 1.0 / g, se, ns, ok, note)
 

@@ -10,6 +10,9 @@ set -euo pipefail
 cd "$(dirname "$0")/.."
 
 need=()
+# A bare Debian may lack Python itself or its venv module (ensurepip).
+command -v python3 >/dev/null 2>&1 || need+=(python3)
+python3 -c 'import ensurepip' >/dev/null 2>&1 || need+=(python3-venv)
 command -v mosquitto >/dev/null 2>&1 || [ -x /usr/sbin/mosquitto ] || need+=(mosquitto)
 compgen -G "/usr/lib/postgresql/*/bin/initdb" >/dev/null || need+=(postgresql)
 command -v chromium >/dev/null 2>&1 || need+=(chromium)

@@ -84,6 +84,10 @@ class AnalysisSettings:
     #: Where R25 is read from the module's voltage: windows followed with the change at or
     #: beyond ``r25_flag_pct`` before the flag is raised [-] (common practice, no source).
     r25_voltage_persist: int = 3
+    #: Where R25 is read from the module's voltage: the largest relative standard error of a
+    #: window's R25 change for the window to be followed, at any reporting interval [-]
+    #: (half of ``r25_flag_pct``; common practice, no source).
+    r25_voltage_max_rel_se: float = 0.02
     #: Where R25 is read from the module's voltage: the faces are read at the median R25 of
     #: the followed windows of this last span [s], not at the window's own, once
     #: ``faces_r25_min_n`` windows are there. One window's steps scatter by 1-2 % (simulated

@@ -435,7 +435,8 @@ def track_r25_from_voltage(
     change itself within its stated error (``newest_sd``), and the flag waits for
     ``r25_voltage_persist`` such windows."""
     _r25_source(state, "voltage")
-    if not (reliable and r25 > 0.0 and r25_se <= cfg.r25_max_rel_se * r25):
+    limit = max(cfg.r25_max_rel_se, cfg.r25_voltage_max_rel_se)
+    if not (reliable and r25 > 0.0 and r25_se <= limit * r25):
         return
     track(
         rows, state, "r25", "module.resistance_25c", b, r25, cfg.r25_flag_pct, 0.003, cfg,

@@ -294,11 +294,14 @@ def _follow(
     # can still read +50 % when the cycle drifts into step with the sampling (simulated
     # units: single hours up to +51 %, never two in a row), so the flag waits for a second,
     # unless the hour reads twice the threshold (a failed fan's 3x does). So too with faces
-    # off the probes, whose bias moves with the heat pumped; with both faces from the
-    # voltage the flag waits for a third (simulated healthy units over 90-day seasons,
-    # sinks of 500/1500 J/K: single hours up to +50 %, 5-95 % of hours within ±21 %).
+    # off the probes, whose bias moves with the heat pumped. With both faces from the
+    # voltage that bias follows the weather for hours together, so only twice the threshold
+    # raises the flag: on simulated healthy units over 90-day seasons (sinks of 500/1500 J/K)
+    # a hot spell held the hours at +43 to +52 % for half a day, while a failed fan's 3x read
+    # +175 to +283 % in its first full hour (development seeds 201-203).
     slow = not _faces_followed(state) or source != PROBES
-    persist = 3 if source == VOLTAGE else 2 if slow else 1
+    persist = 2 if slow else 1
+    flag_pct = cfg.r_hot_flag_pct * (2.0 if source == VOLTAGE else 1.0)
     if state.rhot_from != (None if source == PROBES else source):
         state.restart_track("rhot")
         state.rhot_from = None if source == PROBES else source
@@ -308,7 +311,7 @@ def _follow(
     if not followed or (state.k_trend is None and source == PROBES):
         return
     track(
-        rows, state, "rhot", "hot_side.resistance", b, est.value, cfg.r_hot_flag_pct, 0.03, cfg,
+        rows, state, "rhot", "hot_side.resistance", b, est.value, flag_pct, 0.03, cfg,
         persist=persist, at_once_pct=2.0 * cfg.r_hot_flag_pct if slow else None,
         held=held,
     )  # fmt: skip

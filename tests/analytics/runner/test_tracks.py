@@ -356,6 +356,31 @@ def test_hot_side_flags_on_every_probe_set_and_ua_holds_without_face_probes() ->
     assert faces_judged((True, False), True, "ua") == (True, FLAGS_HELD_FACES_FROM_VOLTAGE)
 
 
+def test_hot_side_from_the_voltage_alone_flags_only_at_twice_the_threshold() -> None:
+    # Series made here: hourly r_hot 0.20 K/W for 80 hours, then half a day at +60 % (a
+    # hot spell moves the hours of a unit without face probes that far for hours together:
+    # +43 to +52 % on simulated healthy units), then a failed fan's 3x. Probed faces flag
+    # the +60 % hours on the first one; with both faces from the voltage only the 3x flags,
+    # on its first hour (twice r_hot_flag_pct, 50 %: common practice, no source).
+    cfg = AnalysisSettings()
+    hour = 3_600_000
+    values = [0.20] * 80 + [0.32] * 12 + [0.20] * 12 + [0.60] * 2
+
+    def first_flag(probed: tuple[bool, bool]) -> int | None:
+        rows = EstimateRows(DEVICE)
+        state = DeviceState(k_trend=0.5)
+        state.params = ModuleParams(k=0.5, s25=0.05, r25=2.0, faces_trusted=True)
+        for j, v in enumerate(values):
+            est = Estimate(v, 0.01 * v, 60)
+            hourly((j + 1) * hour, est, rows, state, cfg, probed, est)
+        recs = [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+        flags = [r for r in recs if r["key"] == "hot_side.resistance.flag" and r["value"]]
+        return int(flags[0]["at_ms"] // hour) if flags else None
+
+    assert first_flag((True, True)) == 81
+    assert first_flag((False, False)) == 80 + 12 + 12 + 1
+
+
 def test_ua_without_a_cold_probe_flags_only_where_the_cabinet_probe_was_judged_unmoved() -> None:
     # A cabinet probe drifting warm lowers Ta - Tcab and so raises UA = Q/(Ta - Tcab) (the
     # lumped balance, Incropera et al. 2007, ch. 5). Without the cold-face probe, only a

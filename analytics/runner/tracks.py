@@ -429,11 +429,11 @@ def track_r25_from_voltage(
 
     The rated S is held there, the same in every window, so R25's changes are judged at it
     (no trend S to settle). Only windows served as reliable whose stated error is within
-    ``r25_max_rel_se`` of R25 are followed: an unreliable window neither joins the baseline
-    nor moves the change. The change is the median of the windows of the last
-    ``r25_voltage_recent_s``; a window counts towards the flag only where it shows the
-    change itself within its stated error (``newest_sd``), and the flag waits for
-    ``r25_voltage_persist`` such windows."""
+    ``r25_voltage_max_rel_se`` of R25 (or ``r25_max_rel_se`` where that is larger) are
+    followed: an unreliable window neither joins the baseline nor moves the change. The
+    change is the median of the windows of the last ``r25_voltage_recent_s``; a window
+    counts towards the flag only where it shows the change itself within its stated error
+    (``newest_sd``), and the flag waits for ``r25_voltage_persist`` such windows."""
     _r25_source(state, "voltage")
     limit = max(cfg.r25_max_rel_se, cfg.r25_voltage_max_rel_se)
     if not (reliable and r25 > 0.0 and r25_se <= limit * r25):

@@ -311,6 +311,21 @@ def test_r25_tracks_of_probed_faces_and_of_the_voltage_are_kept_apart() -> None:
     assert state.series["r25"] == [[6 * 3_600_000, 2.1]]
 
 
+def _hot_side_track(
+    values: list[float], probed: tuple[bool, bool], faces_trusted: bool
+) -> list[dict[str, Any]]:
+    # Hourly hot-side resistances [K/W] (1 % stated error) followed on a unit with these face
+    # probes (cold, hot) whose faces read from the voltage are trusted or not.
+    cfg = AnalysisSettings()
+    rows = EstimateRows(DEVICE)
+    state = DeviceState(k_trend=0.5)
+    state.params = ModuleParams(k=0.5, s25=0.05, r25=2.0, faces_trusted=faces_trusted)
+    for j, v in enumerate(values):
+        est = Estimate(v, 0.01 * v, 60)
+        hourly((j + 1) * 3_600_000, est, rows, state, cfg, probed, est)
+    return [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+
+
 def test_hot_side_flags_on_every_probe_set_and_ua_holds_without_face_probes() -> None:
     # Series made here: hourly r_hot 0.20 K/W for 80 hours, then a failed fan's 3x. Where
     # the cold face is read from the module's voltage, ΔT = (V - I·R)/S moves by I·R/S per
@@ -322,18 +337,11 @@ def test_hot_side_flags_on_every_probe_set_and_ua_holds_without_face_probes() ->
     # neither face probed, both faces come from the voltage
     # (``hot_side.faces_source``): followed and flagged only at a trusted R25; UA's changes
     # are followed at a trusted R25 but raise no flag (the rated S).
-    cfg = AnalysisSettings()
     hour = 3_600_000
     values = [0.20] * 80 + [0.60] * 4
 
     def run(probed: tuple[bool, bool], faces_trusted: bool) -> list[dict[str, Any]]:
-        rows = EstimateRows(DEVICE)
-        state = DeviceState(k_trend=0.5)
-        state.params = ModuleParams(k=0.5, s25=0.05, r25=2.0, faces_trusted=faces_trusted)
-        for j, v in enumerate(values):
-            est = Estimate(v, 0.01 * v, 60)
-            hourly((j + 1) * hour, est, rows, state, cfg, probed, est)
-        return [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+        return _hot_side_track(values, probed, faces_trusted)
 
     def keys(recs: list[dict[str, Any]], key: str) -> list[dict[str, Any]]:
         return [r for r in recs if r["key"] == key]
@@ -362,20 +370,12 @@ def test_hot_side_from_the_voltage_alone_flags_only_at_twice_the_threshold() -> 
     # +43 to +52 % on simulated healthy units), then a failed fan's 3x. Probed faces flag
     # the +60 % hours on the first one; with both faces from the voltage only the 3x flags,
     # on its first hour (twice r_hot_flag_pct, 50 %: common practice, no source).
-    cfg = AnalysisSettings()
-    hour = 3_600_000
     values = [0.20] * 80 + [0.32] * 12 + [0.20] * 12 + [0.60] * 2
 
     def first_flag(probed: tuple[bool, bool]) -> int | None:
-        rows = EstimateRows(DEVICE)
-        state = DeviceState(k_trend=0.5)
-        state.params = ModuleParams(k=0.5, s25=0.05, r25=2.0, faces_trusted=True)
-        for j, v in enumerate(values):
-            est = Estimate(v, 0.01 * v, 60)
-            hourly((j + 1) * hour, est, rows, state, cfg, probed, est)
-        recs = [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+        recs = _hot_side_track(values, probed, True)
         flags = [r for r in recs if r["key"] == "hot_side.resistance.flag" and r["value"]]
-        return int(flags[0]["at_ms"] // hour) if flags else None
+        return int(flags[0]["at_ms"] // 3_600_000) if flags else None
 
     assert first_flag((True, True)) == 81
     assert first_flag((False, False)) == 80 + 12 + 12 + 1

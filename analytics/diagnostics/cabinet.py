@@ -4,15 +4,17 @@ internal load.
 Over blocks of ``cabinet_block_s`` with Qc = Pc - K·ΔT (Goldsmid 2010, ch. 2) and the lumped
 cabinet balance (Incropera et al. 2007, ch. 5)::
 
-    ∫Qc = UA·∫(Ta - Tcab) + q_int·τ - C·δTcab [- Cn·δTn]
+    ∫Qc = UA·∫(Ta - Tcab) + q_int·τ - C·δTcab [- Cn·δTn] [+ Σ a_j·∫exp(-(t - t_j)/τ_j)]
 
 with a prior on q_int, held at that prior when the fit would make the internal load
 negative (fans and electronics release heat). Blocks of an hour or more average over the
 thermostat cycles, so heat exchanged with slowly following contents mostly cancels; where
 the module never rests (or runs flat out through a warm spell) a contents node Tn following
-Tcab through a first-order lag joins. Left out: single blocks the model cannot explain,
-runs of blocks with warm goods put in, blocks whose on/off cycle is locked to the sampling,
-and the hours of a warm spell with cooling lost and ``recovery_s`` after it.
+Tcab through a first-order lag joins. Warm goods put in give up their heat as a lumped body
+does, a release decaying from its start t_j (:func:`release`); up to two join where the
+readings show them. Left out: single blocks the model cannot explain, runs of blocks with
+warm goods put in, blocks whose on/off cycle is locked to the sampling, and the hours of a
+warm spell with cooling lost and ``recovery_s`` after it.
 """
 
 from __future__ import annotations
@@ -428,7 +430,12 @@ def fit_cabinet(
     x_cab, p2, cov2 = _with_contents_node(
         grid, tcab, segs, x_cab, y_cab, (p2, cov2), taus, (q0, q_sd)
     )
-    x_rel = _with_releases(grid, segs, x_cab, y_cab, options.cabinet_block_s, (q0, q_sd))
+    # Releases only where the module rests: where it never does, the contents node carries
+    # the contents' heat, and a release beside it traded UA with it (simulated proportional
+    # units: UA -17 % and +26 %, from within 15 %).
+    x_rel = x_cab
+    if not taus:
+        x_rel = _with_releases(grid, segs, x_cab, y_cab, options.cabinet_block_s, (q0, q_sd))
     if x_rel.shape[1] > x_cab.shape[1]:
         x_cab = x_rel
         p2, cov2, _, _ = robust_weighted(

@@ -100,7 +100,8 @@ def scaled_for_interval(
     The largest gap integrated across becomes ``max_gap_intervals`` usual intervals, the sink
     segments ``segment_intervals`` and the cabinet blocks ``block_intervals`` of them, each
     at least its one-minute value: the balances keep the number of samples behind each of
-    their rows. Where the readings carry interval summaries (``summarised``) each pair's
+    their rows; warm goods' releases are fitted only up to ``releases_max_interval_s``.
+    Where the readings carry interval summaries (``summarised``) each pair's
     integral is exact whatever the interval, so only the largest gap grows. Parameters: the
     options for one-minute readings; the usual interval [s]; whether summaries are used.
     """
@@ -115,6 +116,9 @@ def scaled_for_interval(
         max_gap_s=max(options.max_gap_s, options.max_gap_intervals * interval_s),
         segment_s=max(options.segment_s, options.segment_intervals * interval_s),
         cabinet_block_s=max(options.cabinet_block_s, options.block_intervals * interval_s),
+        warm_goods_releases=(
+            options.warm_goods_releases and interval_s <= options.releases_max_interval_s
+        ),
     )
 
 

@@ -37,6 +37,11 @@ def test_slow_readings_stretch_gap_segments_and_blocks_by_the_interval() -> None
     assert slow.max_gap_s == 3 * 900.0
     assert slow.segment_s == 6 * 900.0
     assert slow.cabinet_block_s == 12 * 900.0
+    # Warm goods' releases are not looked for in the scatter of slow instants' block sums;
+    # with interval means (below) they are, as at one minute.
+    assert not slow.warm_goods_releases
+    assert not dg.scaled_for_interval(opts, 300.0).warm_goods_releases
+    assert dg.scaled_for_interval(opts, 120.0).warm_goods_releases
     # Interval means integrate each pair exactly: only the largest gap grows.
     means = dg.scaled_for_interval(opts, 900.0, summarised=True)
     assert dataclasses.replace(means, max_gap_s=opts.max_gap_s) == opts

@@ -315,8 +315,13 @@ def _with_releases(
         return x_cab
     t = grid.t
     starts = t[0] + block_s * np.arange(max(int((t[-1] - t[0]) // block_s), 0))
+    # A release must show its decay, two time constants of it, before the window ends: a step
+    # that lasts (a leak) is not one.
     cols = [
-        segs.sums(grid.trap(release(t, float(s0), tau))) for tau in RELEASE_TAUS_S for s0 in starts
+        segs.sums(grid.trap(release(t, float(s0), tau)))
+        for tau in RELEASE_TAUS_S
+        for s0 in starts
+        if t[-1] - s0 >= 2.0 * tau
     ]
     penalty = 3.0 * math.log(n)
     # The internal load's prior as one more row, weighted by the residual scale, so that a

@@ -30,7 +30,7 @@ from .._validate import FloatArray
 from ..errors import EstimationError, InsufficientDataError
 from .estimates import BoolArray
 from .integrals import SampleGrid, Segments
-from .least_squares import median_mad, robust_sd, robust_weighted, segment_sums
+from .least_squares import median_mad, prior_rows, robust_sd, robust_weighted, segment_sums
 from .options import DiagnosticsOptions
 
 __all__ = [
@@ -316,33 +316,32 @@ def _with_releases(
         return x_cab
     t = grid.t
     starts = t[0] + block_s * np.arange(max(int((t[-1] - t[0]) // block_s), 0))
+    # The internal load's prior as rows of the design, weighted by the residuals' scale, so
+    # that a release is chosen for the balance it will be fitted in, not one free to trade
+    # UA against a constant load.
+    q0, q_sd = q_prior
+    n_par = x_cab.shape[1]
+    means, sds = [0.0] * n_par, [math.inf] * n_par
+    means[1], sds[1] = q0, q_sd
+    rows_x, rows_y = prior_rows(math.sqrt(_rss(x_cab, y_cab)[0] / n), means, sds)
+    x_cab, y_cab = np.vstack([x_cab, rows_x]), np.concatenate([y_cab, rows_y])
     # A release must show its decay, two time constants of it, before the window ends: a step
     # that lasts (a leak) is not one.
     cols = [
-        segs.sums(grid.trap(release(t, float(s0), tau)))
+        np.append(col, np.zeros(n_par))
         for tau in RELEASE_TAUS_S
         for s0 in starts
         if t[-1] - s0 >= 2.0 * tau
+        for col in [segs.sums(grid.trap(release(t, float(s0), tau)))]
+        if np.any(col > 0.0)
     ]
     penalty = 3.0 * math.log(n)
-    # The internal load's prior as one more row, weighted by the residual scale, so that a
-    # release is chosen for the balance it will be fitted in, not one free to trade UA
-    # against a constant load.
-    q0, q_sd = q_prior
-    scale = math.sqrt(_rss(x_cab, y_cab)[0] / n)
-    prior_row = np.zeros((1, x_cab.shape[1]))
-    prior_row[0, 1] = scale / q_sd
-    x_cab = np.vstack([x_cab, prior_row])
-    y_cab = np.concatenate([y_cab, [scale / q_sd * q0]])
-    cols = [np.append(col, 0.0) for col in cols]
     for _ in range(RELEASES_MAX):
         rss0 = _rss(x_cab, y_cab)[0]
         if not rss0 > 0.0:
             break
         best, best_col = 0.0, None
         for col in cols:
-            if not np.any(col > 0.0):
-                continue
             rss, size = _rss(np.column_stack([x_cab, col]), y_cab)
             # Only heat given up: nothing in the cabinet takes heat out but the module.
             drop = n * math.log(rss0 / max(rss, 1e-300)) - penalty
@@ -351,7 +350,7 @@ def _with_releases(
         if best_col is None or best < RELEASE_MIN_BIC_DROP:
             break
         x_cab = np.column_stack([x_cab, best_col])
-    return x_cab[:-1]
+    return x_cab[:n]
 
 
 def _without_warm_goods(

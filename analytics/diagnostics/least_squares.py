@@ -82,15 +82,22 @@ def trimmed_lstsq(
     return coef, keep
 
 
+def prior_rows(sigma: float, means: list[float], sds: list[float]) -> tuple[FloatArray, FloatArray]:
+    """Rows to append to a design and its left-hand side for an independent Gaussian prior
+    on each column: one row per column, weighted by sigma / sd, with sigma the residuals'
+    scale (an infinite sd gives a row of zeros, which adds nothing)."""
+    w = sigma / np.array(sds, dtype=np.float64)
+    return np.diag(w), w * np.array(means, dtype=np.float64)
+
+
 def ridge(
     x: FloatArray, y: FloatArray, sigma: float, means: list[float], sds: list[float]
 ) -> tuple[FloatArray, FloatArray]:
-    """Least squares with an independent Gaussian prior on each column (Bayesian ridge: one
-    row per prior appended to the design, weighted by sigma / sd; an infinite sd adds
-    nothing). Returns the coefficients and their covariance."""
-    w = sigma / np.array(sds, dtype=np.float64)
-    xa = np.vstack([x, np.diag(w)])
-    ya = np.concatenate([y, w * np.array(means, dtype=np.float64)])
+    """Least squares with an independent Gaussian prior on each column (Bayesian ridge: the
+    design with :func:`prior_rows`). Returns the coefficients and their covariance."""
+    rows_x, rows_y = prior_rows(sigma, means, sds)
+    xa = np.vstack([x, rows_x])
+    ya = np.concatenate([y, rows_y])
     coef = np.asarray(np.linalg.lstsq(xa, ya, rcond=None)[0], dtype=np.float64)
     return coef, np.asarray(sigma**2 * np.linalg.inv(xa.T @ xa), dtype=np.float64)
 

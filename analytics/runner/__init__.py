@@ -82,7 +82,8 @@ probes.offset_cabinet_k / _cold_k / _hot_k     the probe's offset from the ambie
 probes.cabinet_shift_k                         without a cold-face probe: the cabinet probe's
                                                shift against the cold face a floating module's
                                                open-circuit voltage gives [K]; UA flags only
-                                               within cabinet_shift_max_k
+                                               within cabinet_shift_max_k, judged within
+                                               cabinet_check_keep_s
 quality.samples / quality.left_out_*           samples used and left out, by reason
 quality.switch_offs / quality.driver_floating  on/off cycles seen; open-circuit voltage seen
 =============================================  ============================================

@@ -96,10 +96,11 @@ def _check_cabinet_probe(
     face read from the open-circuit voltage (:mod:`diagnostics.cabinet_probe`), fitted on
     the first window that has ``cabinet_check_min_samples`` off samples and kept, and this
     window's shift from it, stored as ``probes.cabinet_shift_k`` and in
-    ``state.cabinet_shift``. The rated S and K are used throughout, so that the balance's
-    constant moves with the probe alone. The readings as the probes give them: the offsets'
-    correction follows the rests, which a drift also moves."""
-    state.cabinet_shift = None
+    ``state.cabinet_shift`` with the window's end; a window that cannot judge it leaves
+    them as they were (see ``tracks.cabinet_moved``). The rated S and K are used
+    throughout, so that the balance's constant moves with the probe alone. The readings as
+    the probes give them: the offsets' correction follows the rests, which a drift also
+    moves."""
     if data.probed != (False, True) or not floating or prior is None:
         return
     wt = data.slice(b - cfg.thermal_window_s * 1000, b)
@@ -116,7 +117,7 @@ def _check_cabinet_probe(
     shift, se, n = cp.window_shift(data.tcab[wt], tc, qc, judged, (base[0], base[1]))
     if n < need:
         return
-    state.cabinet_shift = shift
+    state.cabinet_shift, state.cabinet_shift_ms = shift, b
     rows.add(
         "probes.cabinet_shift_k", b, shift, se, n, True, None,
         "cabinet probe against the cold face read from the open-circuit voltage",

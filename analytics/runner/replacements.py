@@ -22,7 +22,7 @@ __all__ = ["apply_replacements", "forgotten"]
 _PROBE = ("probe_rests", "probe_offsets", "probe_offset_cov")
 #: The cabinet probe's commissioning balance against the cold face read from the module's
 #: open-circuit voltage (from the hot probe and the module's S): every part it reads.
-_CABINET_BALANCE = ("cabinet_baseline", "cabinet_shift")
+_CABINET_BALANCE = ("cabinet_baseline", "cabinet_shift", "cabinet_shift_ms")
 #: The module's settled values (own S, the pooled S's sums, settled K), what R25's track is
 #: judged at (the trend S and the windows kept for it) and the K that UA's and the hot
 #: side's changes are judged at: a new module brings its own K, which moves both.

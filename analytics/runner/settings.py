@@ -116,6 +116,12 @@ class AnalysisSettings:
     #: raised without a cold-face probe [K]: half a kelvin over an ambient lead of 10 K or
     #: more moves UA by 5 % at most, a seventh of ``ua_flag_pct`` (common practice, no source).
     cabinet_shift_max_k: float = 0.5
+    #: A window that cannot judge the cabinet probe keeps the newest judgement for this long
+    #: after the window that made it [s]: a leak keeps the module running, and its off spells
+    #: grow too few to judge the probe just when the flag is due (a simulated 1.5x leak at
+    #: one-minute readings was flagged 6 h late, held by one such window), while a probe's
+    #: drift of half a kelvin takes days (common practice, no source).
+    cabinet_check_keep_s: int = 86_400
     #: Slowest usual interval at which UA's flag may be raised where the cold face is read
     #: from the module's voltage [s]: at one-minute readings healthy simulated units raised no
     #: flag over 90-day seasons (32 units), at 5-minute instants 2 of 16 did (UA +90 % in a

@@ -229,9 +229,11 @@ class DeviceState(_Stored):
     #: commissioning balance against the face read from the open-circuit voltage, [offset
     #: [K], r_cold [K/W]] (see ``runner.offsets.update_offsets``).
     cabinet_baseline: list[float] | None = None
-    #: The newest window's shift of the cabinet probe against that balance [K]; None where
-    #: the window could not judge it.
+    #: The newest judged window's shift of the cabinet probe against that balance [K]; None
+    #: where none within ``cabinet_check_keep_s`` could judge it.
     cabinet_shift: float | None = None
+    #: End of the window that judged it (epoch ms UTC); see ``cabinet_check_keep_s``.
+    cabinet_shift_ms: int | None = None
     #: End of the newest maintenance window whose replaced parts this state has forgotten
     #: (epoch ms UTC; see ``runner.replacements``): no window reads readings before it.
     replaced_ms: int | None = None

@@ -170,11 +170,13 @@ def ua_judged(
     return follow, held
 
 
-def cabinet_moved(state: DeviceState, cfg: AnalysisSettings) -> bool | None:
-    """Whether the newest window found the cabinet probe moved by more than
-    ``cabinet_shift_max_k`` against the cold side's balance (``offsets.update_offsets``);
-    None where it could not judge it."""
-    if state.cabinet_shift is None:
+def cabinet_moved(state: DeviceState, b: int, cfg: AnalysisSettings) -> bool | None:
+    """Whether the newest window that judged the cabinet probe found it moved by more than
+    ``cabinet_shift_max_k`` against the cold side's balance (``offsets.update_offsets``),
+    as judged at the window ending at ``b`` (epoch ms UTC); None where no window within
+    ``cabinet_check_keep_s`` before it could judge it."""
+    at = state.cabinet_shift_ms
+    if state.cabinet_shift is None or at is None or b - at > cfg.cabinet_check_keep_s * 1000:
         return None
     return abs(state.cabinet_shift) > cfg.cabinet_shift_max_k
 

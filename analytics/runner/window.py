@@ -165,7 +165,7 @@ def fit_window(
         rises = _rises(data, win)
         _path_rows(win, th_fit, rises, rows, state, cfg)
         trusted = state.params is not None and bool(state.params.faces_trusted)
-        moved = cabinet_moved(state, cfg)
+        moved = cabinet_moved(state, b, cfg)
         follow, held = ua_judged(win.probed, trusted, moved, interval, data.summarised, cfg)
         if follow:
             # Only the cold face read from the voltage moves with each window's own R25; with
@@ -333,7 +333,7 @@ def _electrical(
     seebeck.serve_seebeck(rows, state, b, el, prior, float(t[-1] - t[0]), f_s, cfg)
     if held is not None:
         # R25 read from the module's voltage: followed where it was served as reliable.
-        moved = FLAGS_HELD_R25_CABINET_PROBE_MOVED if cabinet_moved(state, cfg) else None
+        moved = FLAGS_HELD_R25_CABINET_PROBE_MOVED if cabinet_moved(state, b, cfg) else None
         # Changes are judged on the error that does not cancel against earlier windows.
         step = data.faces.step if data.faces is not None else None
         se_change = se_r if step is None or step.change_se is None else step.change_se

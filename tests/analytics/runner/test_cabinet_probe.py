@@ -61,6 +61,8 @@ def test_the_cabinet_probe_shift_follows_a_drift_and_holds_uas_flag(tmp_path: Pa
         states = read_states(conn, ["cp-1", "cp-2"])
     cfg = AnalysisSettings()
     moved, kept = (DeviceState.from_json(states[d]) for d in ("cp-1", "cp-2"))
-    assert cabinet_moved(moved, cfg) is True
-    assert cabinet_moved(kept, cfg) is False
+    for state in (moved, kept):
+        assert state.cabinet_shift_ms is not None
+    assert cabinet_moved(moved, int(moved.cabinet_shift_ms or 0), cfg) is True
+    assert cabinet_moved(kept, int(kept.cabinet_shift_ms or 0), cfg) is False
     assert faces_judged((False, True), True, "ua", True)[1] == FLAGS_HELD_CABINET_PROBE_MOVED

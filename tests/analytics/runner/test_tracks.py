@@ -424,11 +424,28 @@ def test_uas_flag_is_held_at_sparse_instants_and_raised_from_interval_summaries(
 def test_the_cabinet_probe_counts_as_moved_beyond_its_largest_shift() -> None:
     cfg = AnalysisSettings()
     state = DeviceState()
-    assert cabinet_moved(state, cfg) is None
-    state.cabinet_shift = 0.9 * cfg.cabinet_shift_max_k
-    assert cabinet_moved(state, cfg) is False
+    b = 1_735_689_600_000
+    assert cabinet_moved(state, b, cfg) is None
+    state.cabinet_shift, state.cabinet_shift_ms = 0.9 * cfg.cabinet_shift_max_k, b
+    assert cabinet_moved(state, b, cfg) is False
     state.cabinet_shift = -1.1 * cfg.cabinet_shift_max_k
-    assert cabinet_moved(state, cfg) is True
+    assert cabinet_moved(state, b, cfg) is True
+
+
+def test_a_judgement_of_the_cabinet_probe_lasts_a_day() -> None:
+    # Common practice, no source: a probe drifts by half a kelvin over days, while a leak
+    # keeps the module running so that the windows after it cannot judge the probe; the
+    # newest judgement stands for cabinet_check_keep_s after its window, then none does.
+    cfg = AnalysisSettings()
+    state = DeviceState()
+    b = 1_735_689_600_000
+    keep_ms = cfg.cabinet_check_keep_s * 1000
+    state.cabinet_shift, state.cabinet_shift_ms = 0.2, b
+    assert cabinet_moved(state, b + keep_ms, cfg) is False
+    assert cabinet_moved(state, b + keep_ms + 1, cfg) is None
+    state.cabinet_shift = 0.8
+    assert cabinet_moved(state, b + keep_ms, cfg) is True
+    assert cabinet_moved(state, b + keep_ms + 1, cfg) is None
 
 
 def test_a_module_counts_as_resting_for_two_days_after_its_last_rests() -> None:

@@ -119,8 +119,9 @@ class AnalysisSettings:
     #: A window that cannot judge the cabinet probe keeps the newest judgement for this long
     #: after the window that made it [s]: a leak keeps the module running, and its off spells
     #: grow too few to judge the probe just when the flag is due (a simulated 1.5x leak at
-    #: one-minute readings was flagged 6 h late, held by one such window), while a probe's
-    #: drift of half a kelvin takes days (common practice, no source).
+    #: one-minute readings was flagged 12 h later, held by one such window). A drifting probe
+    #: leaves the off spells be: simulated drifts of 6 K over two days were judged in every
+    #: window (a day: common practice, no source).
     cabinet_check_keep_s: int = 86_400
     #: Slowest usual interval at which UA's flag may be raised where the cold face is read
     #: from the module's voltage [s]: at one-minute readings healthy simulated units raised no

@@ -456,11 +456,16 @@ def readings_days(spec: sim.FleetSpec, days: float) -> float:
 
 
 def detection_scores(
-    seed: int, n_dev: int, days: float, sensors: str = "full"
+    seed: int,
+    n_dev: int,
+    days: float,
+    sensors: str = "full",
+    spec: sim.FleetSpec | None = None,
 ) -> tuple[list[Detection], list[str], list[str]]:
-    """:func:`detection_fleet` analysed; returns the detections, the healthy units and the
-    flags raised on them."""
-    spec = detection_fleet(seed, n_dev, days, sensors)
+    """:func:`detection_fleet` (or ``spec``, one drawn by it) analysed; returns the
+    detections, the healthy units and the flags raised on them."""
+    if spec is None:
+        spec = detection_fleet(seed, n_dev, days, sensors)
     with tempfile.TemporaryDirectory() as tmp:
         engine, _truth, _ = build_db(Path(tmp) / "det.db", spec, readings_days(spec, days))
         runner.analyze(engine)
@@ -492,8 +497,8 @@ def part_detect(
           f"{REPORTING.label()}, seed {seed}, faults wear/leak/fan, sinks of "
           f"{SINKS[0]:g}/{SINKS[1]:g} J/K ==")  # fmt: skip
     t0 = time.perf_counter()
-    found, healthy, false = detection_scores(seed, n_dev, days, sensors)
     fleet = detection_fleet(seed, n_dev, days, sensors)
+    found, healthy, false = detection_scores(seed, n_dev, days, sensors, fleet)
     until = readings_days(fleet, days)
     print(f"(simulation and analysis {time.perf_counter() - t0:.1f} s; readings over "
           f"{until:.1f} days, till every fault's target has passed)")  # fmt: skip

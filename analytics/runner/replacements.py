@@ -34,7 +34,7 @@ _MODULE = (
 #: What UA's track keeps besides its series (see ``DeviceState.restart_track``): the windows
 #: kept at the rated K and the ambient's usual lead over the cabinet; and the window fits the
 #: served UA is the median of.
-_UA = ("ua_raw", "ua_lead", "ua_windows")
+_UA = ("ua_raw", "ua_lead", "ua_windows", "ua_pinned")
 
 #: State fields each replaceable part takes with it (see ``alert_records.REPLACEABLE_PARTS``).
 _FORGOTTEN: dict[str, tuple[str, ...]] = {

@@ -189,6 +189,9 @@ class DeviceState(_Stored):
     #: End of the newest window in which the module rested (switched off at least
     #: ``faces_min_switch_offs`` times), where faces are read from the voltage (epoch ms UTC).
     rested_ms: int | None = None
+    #: UA was served as reliable in a window followed: the unit's readings can pin it (see
+    #: ``ua_pinned_window_s``).
+    ua_pinned: bool | None = None
     #: The trend K [W/K], at which UA's and the hot side's changes are judged.
     k_trend: float | None = None
     #: Whether the trend K is the unit's own settled one ("own") or the rated one ("prior").

@@ -517,16 +517,20 @@ def track_ua(
     more, which then averages the days of use and weather on its own; two such figures in a
     row are then two windows in a row, none left out between them. With a window of
     ``ua_long_window_s`` or longer, only windows whose UA was served as reliable count
-    towards the flag."""
+    towards the flag; so they do with one of ``ua_pinned_window_s`` or longer once such a
+    window has come (``state.ua_pinned``)."""
     recent_s = max(cfg.ua_recent_data_s - cfg.thermal_window_s, 0)
     long_window = cfg.thermal_window_s >= cfg.ua_long_window_s
     persist = cfg.ua_long_window_persist if long_window else cfg.ua_flag_persist
+    if served_reliable:
+        state.ua_pinned = True
+    pinned = bool(state.ua_pinned) and cfg.thermal_window_s >= cfg.ua_pinned_window_s
     track(
         rows, state, "ua", "cabinet.ua", b, ua, cfg.ua_flag_pct, 0.03, cfg,
         skip_days=cfg.ua_baseline_skip_days, persist=persist,
         grow_days=cfg.ua_baseline_grow_days, newest_sd=ua_sd, recent_s=recent_s,
         admit_s=0 if long_window else max(cfg.thermal_window_s - cfg.ua_admit_window_s, 0),
-        counts=served_reliable or not long_window,
+        counts=served_reliable or not (long_window or pinned),
         in_a_row_s=cfg.window_s if recent_s < cfg.window_s else None, held=held,
     )  # fmt: skip
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from typing import Any
 
 import numpy as np
@@ -25,6 +26,7 @@ from tecfleet.analytics.runner.tracks import (
     rested_lately,
     track,
     track_r25_from_voltage,
+    track_ua,
     ua_judged,
 )
 from tecfleet.ingest.db.analysis import ESTIMATE_COLUMNS
@@ -120,6 +122,34 @@ def test_ua_baseline_grows_over_the_commissioning_weeks_until_a_change_shows() -
         else:
             assert raised and raised[0] >= 80 and raised[0] - 80 <= 8
             assert state.baseline_by_name()["ua"].center > 0.48  # most of the way from 0.40
+
+
+def test_at_slow_reporting_a_unit_whose_readings_pin_ua_flags_only_on_pinned_windows() -> None:
+    # Series made here, 6-hourly UA over two-day windows (5-minute instants): 0.50 W/K,
+    # a busy day whose two windows read 0.80 W/K served as unreliable, 0.50 again, then a
+    # lasting step to 0.80 W/K (a leak). A unit whose readings pinned UA before (windows
+    # served as reliable) does not flag the busy day and flags the leak on its second
+    # window; one whose windows are never pinned (a zero-volt driver) counts them all, as
+    # before: the busy day is flagged, and so is the leak. Persistence of two evaluations:
+    # common practice, no source.
+    cfg = dataclasses.replace(AnalysisSettings(), thermal_window_s=2 * 86_400)
+    six_h = 6 * 3_600_000
+    busy, leak = (40, 41), 60
+    raised = {}
+    for pins in (True, False):
+        rows = EstimateRows(DEVICE)
+        state = DeviceState()
+        for j in range(70):
+            ua = 0.80 if j in busy or j >= leak else 0.50
+            served_ok = pins and j not in busy
+            track_ua(rows, state, (j + 1) * six_h, ua, 0.05, cfg, served_ok)
+        recs = [dict(zip(ESTIMATE_COLUMNS, r, strict=True)) for r in rows.rows]
+        raised[pins] = [
+            r["at_ms"] // six_h - 1 for r in recs if r["key"] == "cabinet.ua.flag" and r["value"]
+        ]
+    assert raised[True] and raised[True][0] == leak + 1
+    assert raised[False] and raised[False][0] == busy[1]
+    assert leak + 1 in raised[False]
 
 
 def test_hot_side_flag_where_sinks_store_heat_waits_for_a_second_hour_unless_it_doubles() -> None:

@@ -29,7 +29,10 @@ from tecfleet.ingest.db import analysis as analysis_db
 #: state of a simulated unit whose module was swapped in a recorded maintenance window (the
 #: window's end kept, see ``tests.analytics.replaced_fleet``); three days of a simulated
 #: unit with the window fits its served UA is the median of; and four days of a simulated
-#: unit without a cold-face probe (the source its hot side's track rests on kept).
+#: unit without a cold-face probe (the source its hot side's track rests on kept); three
+#: days of a simulated floating unit without a cold-face probe (the window that last judged
+#: its cabinet probe kept) and eight days of a simulated unit at 5-minute instants whose UA
+#: was pinned (served as reliable).
 STORED = Path(__file__).parent / "data" / "stored_states.jsonl"
 
 

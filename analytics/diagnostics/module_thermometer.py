@@ -35,6 +35,7 @@ from scipy.optimize import minimize, minimize_scalar
 from .. import physics
 from .._validate import T_25C_K, FloatArray
 from ..errors import InsufficientDataError
+from .cabinet import after_warm_spells
 from .electrical import neighbour_means
 from .estimates import BoolArray
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
@@ -932,6 +933,21 @@ def _held_across(step: StepResistance) -> str:
     )
 
 
+def _cooling_lost(
+    time_s: FloatArray, t_cabinet: FloatArray, current: FloatArray, options: DiagnosticsOptions
+) -> BoolArray:
+    # Samples of a warm spell with the cooling lost (:func:`.cabinet.after_warm_spells`, no
+    # recovery): a power cut stops the fans with the module, so the cold side's path is not
+    # the one the steady balance fits there (its samples moved a simulated 5-minute window's
+    # R25 by +2 % for as long as a 0.9-hour cut stayed in it). Once the supply is back the
+    # path is the usual one again, however warm the contents still are.
+    lost, _ = after_warm_spells(
+        np.asarray(time_s, dtype=np.float64), t_cabinet, options.warm_spell_k,
+        options.warm_spell_min_s, 0.0, current > options.on_current, options.saturated_share,
+    )  # fmt: skip
+    return lost
+
+
 def reconstruct_faces(
     time_s: FloatArray,
     current: FloatArray,
@@ -954,7 +970,8 @@ def reconstruct_faces(
 
     R25 from switch-off steps (:func:`step_resistance`), or where they give none (faces that
     follow the current within a sample) and the hot face is probed from the cold face's
-    steady balance (:func:`balance_resistance`); S25 held at ``s25`` (registered
+    steady balance (:func:`balance_resistance`), without the samples of a warm spell with the
+    cooling lost (a power cut stops the fans too); S25 held at ``s25`` (registered
     ratings) with the spread between units of a type (``seebeck_unit_rel_sd``), then ΔT from
     the voltage; Tc = Th - ΔT. The mean module temperature behind R(Tm) and S(Tm) matters
     (about 1 K of ΔT per kelvin): with a hot probe Tm = Th - ΔT/2 is solved together with ΔT
@@ -1026,13 +1043,16 @@ def reconstruct_faces(
         # face probed the cold face's steady balance does.
         if th is None or r25_guess is None:
             raise
-        rows = usable & (floating | (i > options.on_current))
+        lost = _cooling_lost(time_s, tcab, i, options)
+        rows = usable & (floating | (i > options.on_current)) & ~lost
         step = balance_resistance(
             time_s, i, v, tcab, th, rows, s25=s25, r25_guess=r25_guess,
             r25_recent=None if r25_read is None else r25_read[0], alpha=alpha, beta=beta,
             options=options,
         )  # fmt: skip
         how = f"R25 from the cold face's steady heat balance over {step.n_steps} samples"
+        if np.any(usable & lost):
+            how += f", leaving out {int(np.sum(usable & lost))} of a spell with the cooling lost"
         if step.drift_per_day != 0.0:
             how += f", moving {100.0 * step.drift_per_day:+.2f} %/day across them"
         dt, dt_se, tm, tm_sd = _faces_checked(

@@ -535,6 +535,35 @@ def track_ua(
     )  # fmt: skip
 
 
+def follow_k_trend(
+    state: DeviceState, k_window: float, source: str, cfg: AnalysisSettings
+) -> float:
+    """The unit's trend K [W/K], at which UA's and the hot side's changes are judged, given
+    the K of this window's cabinet balance [W/K] and where it came from (``source``: "own",
+    the unit's settled K, or "prior", the rated one).
+
+    The settled K follows the unit's newest windows and drifts a little with the seasons, so
+    the changes are judged at one K, kept from the first window of UA's track on. Till that
+    window the trend K is each window's: the first settled K rests on a unit's first few
+    windows and can lie far from the later ones (a simulated unit at 5-minute instants
+    without a cold-face probe: 0.626 W/K, 0.47 a few days later, truth 0.484), and UA moved
+    to a K that far off moves about twice as far, scattering its changes by tens of per
+    cent. A trend K taken from the rated prior (the module never rested in its first warm
+    days) can be several per cent off: once the unit has a settled K of its own, the trend K
+    becomes that, and UA's track is made again from the windows followed so far, each moved
+    to the new K (see :func:`rebase_ua`); the hot side's hourly track goes on from its
+    baseline, since its flag threshold is far beyond the per cent or two that the change of
+    K moves it by (starting it again would take a fan failing in the next days into a new
+    baseline)."""
+    if state.k_trend_source == "prior" and source == "own":
+        state.k_trend = k_window
+        rebase_ua(state, k_window, cfg)
+    state.k_trend_source = source
+    if state.k_trend is None or (state.first or {}).get("ua") is None:
+        state.k_trend = k_window
+    return state.k_trend
+
+
 def rebase_ua(state: DeviceState, k_trend: float, cfg: AnalysisSettings) -> None:
     """Make UA's track again at a new trend K [W/K] from the windows kept (``ua_raw``)."""
     # The unit's own K has settled while UA was followed at the rated K: its track is made

@@ -38,7 +38,7 @@ from tecfleet.analytics.runner.tracks import (
     ambient_lead_usual,
     cabinet_moved,
     faces_r25,
-    rebase_ua,
+    follow_k_trend,
     rested_lately,
     track_r25,
     track_r25_from_voltage,
@@ -681,29 +681,15 @@ def _follow_ua(
     #
     # K·ΔT, the module's own leak, is a large term in both the cabinet's and the hot sink's
     # balance (where the module never rests, often larger than the cabinet's leak), so their
-    # changes are judged at one K, the unit's trend K: taken from the first window whose K is
-    # not this window's own (the rated prior, or the unit's settled K) and kept, since the
-    # settled K follows the unit's newest windows and drifts a little with the seasons. UA is
-    # moved there to first order; the hourly hot-side resistance uses it. A trend K taken
-    # from the rated prior (the module never rested in its first warm days) can be several
-    # per cent off: once the unit has a settled K of its own, the trend K becomes that. UA's
-    # track is then made again from the windows followed so far, each moved to the new K
-    # (see rebase_ua); the hot side's hourly track goes on from its baseline, since its
-    # flag threshold is far beyond the per cent or two that the change of K moves it by
-    # (starting it again would take a fan failing in the next days into a new baseline).
-    # Windows whose K is their own and not yet settled are not followed.
+    # changes are judged at one K, the unit's trend K (see tracks.follow_k_trend). UA is
+    # moved there to first order; the hourly hot-side resistance uses it. Windows whose K is
+    # their own and not yet settled are not followed.
     sd = th_fit.stderrs
     hot_flagged = int((state.above or {}).get("rhot", 0)) >= 1
     k_source = "own" if k_settled is not None else "data" if th_fit.k_from_data else "prior"
     if k_source == "data":
         return
-    if state.k_trend_source == "prior" and k_source == "own":
-        state.k_trend = th_fit.k_cabinet
-        rebase_ua(state, th_fit.k_cabinet, cfg)
-    state.k_trend_source = k_source
-    if state.k_trend is None:
-        state.k_trend = th_fit.k_cabinet
-    k_trend = state.k_trend
+    k_trend = follow_k_trend(state, th_fit.k_cabinet, k_source, cfg)
     followable = sd["ua"] <= cfg.ua_follow_rel_se * th_fit.ua and not hot_flagged
     served_ok = _ua_served_reliable(th_fit, cfg)
     if (

@@ -23,6 +23,7 @@ from tecfleet.analytics.runner.tracks import (
     FLAGS_HELD_UA_SPARSE_INSTANTS,
     cabinet_moved,
     faces_judged,
+    follow_k_trend,
     rested_lately,
     track,
     track_r25_from_voltage,
@@ -491,3 +492,34 @@ def test_a_module_counts_as_resting_for_two_days_after_its_last_rests() -> None:
     span = int(cfg.faces_r25_span_s * 1000) // six_h  # windows within the span: 8
     assert lately == [True] * (2 + span) + [False] * (len(offs) - 2 - span)
     assert rested_lately(DeviceState(), six_h, cfg.faces_min_switch_offs - 1, cfg) is False
+
+
+def test_the_trend_k_is_each_windows_till_ua_is_first_followed_then_kept() -> None:
+    # UA moved to a K that is off moves about twice as far (dUA/dK = -ΔT/(Ta - Tcab), the
+    # face ΔT about twice the ambient's lead: Goldsmid 2010, ch. 2, with the lumped cabinet
+    # balance), so the K its changes are judged at is the one of UA's first followed window,
+    # not an early settled K resting on a unit's first few windows. Values made here: a first
+    # settled K of 0.63 W/K, then 0.47 once more windows settle it, then a drift to 0.45.
+    cfg = AnalysisSettings()
+    state = DeviceState()
+    assert follow_k_trend(state, 0.63, "own", cfg) == pytest.approx(0.63)
+    assert follow_k_trend(state, 0.47, "own", cfg) == pytest.approx(0.47)
+    track_ua(EstimateRows(DEVICE), state, 6 * 3_600_000, 0.5, 0.02, cfg)
+    assert state.first is not None and "ua" in state.first
+    # from the first followed window on, the trend K stays where it was
+    assert follow_k_trend(state, 0.45, "own", cfg) == pytest.approx(0.47)
+    assert state.k_trend_source == "own"
+
+
+def test_a_trend_k_from_the_ratings_gives_way_to_the_units_own_and_remakes_uas_track() -> None:
+    # Followed at the rated K (0.50 W/K) while the unit had none of its own, UA's windows are
+    # moved to the unit's first settled K (0.45) by their own first-order response, here
+    # -2 W/K of UA per W/K of K: 0.40 W/K becomes 0.40 + (-2)(0.45 - 0.50) = 0.50 (made here).
+    cfg = AnalysisSettings()
+    state = DeviceState()
+    assert follow_k_trend(state, 0.50, "prior", cfg) == pytest.approx(0.50)
+    state.ua_raw = [[6 * 3_600_000, 0.40, -2.0, 0.50, 0.02, 1.0]]
+    track_ua(EstimateRows(DEVICE), state, 6 * 3_600_000, 0.40, 0.02, cfg)
+    assert follow_k_trend(state, 0.45, "own", cfg) == pytest.approx(0.45)
+    assert state.series is not None
+    assert state.series["ua"] == [[6 * 3_600_000, pytest.approx(0.50)]]

@@ -126,7 +126,11 @@ class AnalysisSettings:
     #: Slowest usual interval at which UA's flag may be raised where the cold face is read
     #: from the module's voltage [s]: at one-minute readings healthy simulated units raised no
     #: flag over 90-day seasons (32 units), at 5-minute instants 2 of 16 did (UA +90 % in a
-    #: hot spell, from faces read wrong), and one healthy unit of the detection bench.
+    #: hot spell, from faces read wrong), and one healthy unit of the detection bench. Tried
+    #: again at 5 minutes (development seeds, the faces read at the median R25 of six days
+    #: instead of two): 2 of the 5 leaks on floating thermostat units flagged in time and no
+    #: healthy unit of the detection fleets, but 3 of 32 healthy units over 90-day seasons,
+    #: in their warm weeks (:data:`~.tracks.FLAGS_HELD_UA_SLOW_READINGS`).
     ua_faces_max_interval_s: float = 90.0
     #: Slowest usual interval of single readings (no interval summaries) at which UA's flag
     #: may be raised [s]. At 15-minute instants UA is held to 35 % (the accuracy asked of it

@@ -89,11 +89,15 @@ FLAGS_HELD_R25_CABINET_PROBE_MOVED = (
 )
 
 #: Why UA raises no flag on a unit whose cold face is read from the voltage and which
-#: reports more slowly than ``ua_faces_max_interval_s``: there the 90-day seasons of healthy
-#: simulated units still raised false heat-leak flags.
+#: reports more slowly than ``ua_faces_max_interval_s``: ΔT = (V - I·R)/S is read at an R25
+#: that such readings pin only within about 1 % from day to day, and K·ΔT in Qc (Goldsmid
+#: 2010, ch. 2) carries that into UA at 20-30 % per 1 % (simulated units at 5-minute
+#: instants; values the code produced itself); the 90-day seasons of healthy simulated units
+#: still raised false heat-leak flags (``ua_faces_max_interval_s``).
 FLAGS_HELD_UA_SLOW_READINGS = (
-    "cold face read from the module's voltage at this reporting interval: UA's changes are "
-    "followed, but no flag is raised until detection there is validated"
+    "cold face read from the module's voltage at this reporting interval: UA moves by "
+    "20-30 % for each per cent of error in the R25 the face is read at, which these readings "
+    "give only within about 1 %: UA's changes are followed, but no flag is raised"
 )
 
 #: Why UA raises no flag on a unit reporting single instants further apart than

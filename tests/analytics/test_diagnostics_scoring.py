@@ -86,11 +86,13 @@ def test_cabinet_ua(scores: list[UnitScore]) -> None:
 
 
 def test_faults_are_flagged_in_time_and_healthy_units_are_not() -> None:
-    found, healthy, false = detection_scores(4, 10, 26.0)
+    found, healthy, false, other = detection_scores(4, 10, 26.0)
     assert sorted(d.kind for d in found) == ["fan", "fan", "leak", "leak", "wear", "wear"]
     late = [(d.device_id, d.kind, d.delay_h) for d in found if not d.in_time]
     assert not late
     assert healthy and not false
+    # one fault, its own flag: no faulty unit raises a flag of another kind
+    assert not other
 
 
 @pytest.mark.parametrize("seed", [2, 6, 13, 17])

@@ -36,6 +36,7 @@ from .options import DiagnosticsOptions
 __all__ = [
     "CabinetFit",
     "after_warm_spells",
+    "cooling_lost",
     "fit_cabinet",
     "lag_one_autocorrelation",
     "release",
@@ -217,6 +218,20 @@ def after_warm_spells(
             a0 = int(before[-1]) if before.size else 0
             out |= (t >= t[a0]) & (t <= t[b - 1] + recovery_s)
     return out, sat
+
+
+def cooling_lost(
+    t: FloatArray, tcab: FloatArray, on: BoolArray, options: DiagnosticsOptions
+) -> BoolArray:
+    """Samples of a warm spell with the cooling lost, however short, without recovery
+    (:func:`after_warm_spells`): the cabinet air ``tcab`` [K] more than ``warm_spell_k``
+    above its usual low while the module (``on``) was not running flat out. A power cut
+    stops the fans with the module, so the cold and hot sides' paths there are not the ones
+    the balances fit; once the supply is back they are the usual ones again. ``t`` [s]."""
+    lost, _ = after_warm_spells(
+        t, tcab, options.warm_spell_k, 0.0, 0.0, on, options.saturated_share
+    )
+    return lost
 
 
 def _blocks(

@@ -27,7 +27,7 @@ import numpy as np
 
 from .._validate import FloatArray
 from ..errors import InsufficientDataError
-from .cabinet import CabinetFit, fit_cabinet
+from .cabinet import CabinetFit, cooling_lost, fit_cabinet
 from .error_budget import cabinet_stderrs, sink_k_errors
 from .estimates import BoolArray
 from .integrals import SampleGrid
@@ -264,10 +264,14 @@ def fit_thermal(
     dtv = th - tc
     grid = SampleGrid.of(t, closing)
     on = i > options.on_current
-    base, pair = _pairs(t, on, usable, options)
+    base = _pairs(t, on, usable, options)[0]
+    # The sinks' balances without a power cut: its fans stood still, and on a module that
+    # never rests its off samples would be the balances' only second operating point.
+    sink_usable = usable & ~cooling_lost(t, tcab, on, options)
+    pair = _pairs(t, on, sink_usable, options)[1]
     sk = fit_sinks(
-        grid, pair, (pc, ph, dtv), (tcab, tc, th, ta), i, s, r, usable, k_prior, k_prior_rel,
-        k_settled, sink_taus_settled, options, offset_cov, off_share,
+        grid, pair, (pc, ph, dtv), (tcab, tc, th, ta), i, s, r, sink_usable, k_prior,
+        k_prior_rel, k_settled, sink_taus_settled, options, offset_cov, off_share,
     )  # fmt: skip
     k = float(sk.params[0])
     k_sd, k_probe, k_from_data = sink_k_errors(

@@ -510,6 +510,27 @@ def test_module_at_one_operating_point_keeps_k_at_its_prior() -> None:
     assert slope == pytest.approx(own.ua_per_k, rel=0.02)
 
 
+def test_a_power_cut_is_no_second_operating_point_for_the_sinks() -> None:
+    # The proportionally driven cooler above with a 40-minute power cut at hour 36: the fans
+    # stop with the module, the cabinet air warms several kelvin within minutes, and the
+    # cut's off samples are the only ones of the day. Taken into the sink balances they were
+    # a second operating point through paths that were not the usual ones (the fans stood
+    # still): K read 34 % high on a simulated unit of the detection bench, and the hot
+    # side's hourly resistance followed at it drifted +46 % (values this code produced
+    # before). Left out, the day is a single operating point again: K is held at its prior
+    # (here the true value) and both sink resistances come out within 2 %, as without a cut.
+    cut = sm.ScheduledEvent("power_cut", "unit-1", SIM_START + 36 * 3600.0, 2400.0)
+    dev, a, p, truth = _simulated_cooler((cut,), 2.0, control="proportional")
+    assert truth.power_cuts.get("unit-1")
+    sel = a["t"] >= 86_400.0
+    assert np.any(a["current"][sel] < 0.1)  # the cut is inside the fitted day
+    fit = _fit_simulated(a, p, sel)
+    assert not fit.k_from_data
+    assert fit.k == pytest.approx(p["k"], rel=1e-9)
+    assert 1.0 / fit.g_cold == pytest.approx(dev.r_cold, rel=0.02)
+    assert 1.0 / fit.g_hot == pytest.approx(dev.r_hot, rel=0.02)
+
+
 def test_contents_lag_of_a_module_that_never_rests_does_not_pull_ua_low() -> None:
     # The same proportionally driven cooler (contents 30 kJ/K at 2 W/K, time constant 4.2 h):
     # its air moves with the load and the contents follow hours late. Without a contents term

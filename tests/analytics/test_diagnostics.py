@@ -618,9 +618,10 @@ def test_power_cut_aftermath_is_left_out_of_the_cabinet_balance() -> None:
     # for hours. Left in, the day after the cut read UA about 19 % high (value this code
     # produced with the warm-spell rule switched off); with the spell and 12 h after it left
     # out, UA is within the 10 % of a quiet day. Windows holding the cut itself keep little of
-    # the cabinet's normal behaviour (with the sink balances assuming exact probes, K read
-    # 21-24 % high there and UA half its value: values this code produced): their UA must be
-    # refused, not called reliable, or within two of its stated standard errors.
+    # the cabinet's normal behaviour (while the sink balances took the cut's samples, K read
+    # 21-24 % high there and UA half its value; with them left out, K within 2 % and UA 3-10 %
+    # low: values this code produced): their UA must be refused, not called reliable, or
+    # within two of its stated standard errors.
     # Lumped balances: Incropera et al. (2007), ch. 5.
     cut = sm.ScheduledEvent("power_cut", "unit-1", SIM_START + 44 * 3600.0, 6 * 3600.0)
     dev, a, p, truth = _simulated_cooler((cut,), 3.0)

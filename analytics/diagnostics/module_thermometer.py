@@ -35,7 +35,7 @@ from scipy.optimize import minimize, minimize_scalar
 from .. import physics
 from .._validate import T_25C_K, FloatArray
 from ..errors import InsufficientDataError
-from .cabinet import after_warm_spells
+from .cabinet import cooling_lost
 from .electrical import neighbour_means
 from .estimates import BoolArray
 from .options import DEFAULT_OPTIONS, DiagnosticsOptions
@@ -933,21 +933,6 @@ def _held_across(step: StepResistance) -> str:
     )
 
 
-def _cooling_lost(
-    time_s: FloatArray, t_cabinet: FloatArray, current: FloatArray, options: DiagnosticsOptions
-) -> BoolArray:
-    # Samples of a warm spell with the cooling lost (:func:`.cabinet.after_warm_spells`, no
-    # recovery): a power cut stops the fans with the module, so the cold side's path is not
-    # the one the steady balance fits there (its samples moved a simulated 5-minute window's
-    # R25 by +2 % for as long as a 0.9-hour cut stayed in it). Once the supply is back the
-    # path is the usual one again, however warm the contents still are.
-    lost, _ = after_warm_spells(
-        np.asarray(time_s, dtype=np.float64), t_cabinet, options.warm_spell_k,
-        options.warm_spell_min_s, 0.0, current > options.on_current, options.saturated_share,
-    )  # fmt: skip
-    return lost
-
-
 def reconstruct_faces(
     time_s: FloatArray,
     current: FloatArray,
@@ -1043,8 +1028,12 @@ def reconstruct_faces(
         # face probed the cold face's steady balance does.
         if th is None or r25_guess is None:
             raise
-        lost = _cooling_lost(time_s, tcab, i, options)
-        rows = usable & (floating | (i > options.on_current)) & ~lost
+        # A power cut stops the fans with the module, so through it the cold side's path is
+        # not the one the steady balance fits (its samples moved a simulated 5-minute
+        # window's R25 by +2 % for as long as a 0.9-hour cut stayed in it).
+        on = i > options.on_current
+        lost = cooling_lost(np.asarray(time_s, dtype=np.float64), tcab, on, options)
+        rows = usable & (floating | on) & ~lost
         step = balance_resistance(
             time_s, i, v, tcab, th, rows, s25=s25, r25_guess=r25_guess,
             r25_recent=None if r25_read is None else r25_read[0], alpha=alpha, beta=beta,

@@ -194,7 +194,8 @@ def fit_thermal(
 
     Stage 1, :func:`.sinks.fit_sinks`: the cold and hot sink balances over segments of
     ``segment_s``, with a prior K = ``k_prior`` ± ``k_prior_rel`` and constant heat flows for
-    the probe offsets; K held at a single operating point and where the sinks store heat
+    the probe offsets, without a power cut's samples (:func:`.cabinet.cooling_lost`: its fans
+    stood still); K held at a single operating point and where the sinks store heat
     faster than the samples follow. Stage 2, :func:`.cabinet.fit_cabinet`: the cabinet
     balance over blocks of ``cabinet_block_s``, ∫Qc = UA·∫(Ta - Tcab) + q_int·τ - C·δTcab
     with Qc = S·I·Tc - ½·I²·R - K·ΔT (Goldsmid 2010, ch. 2). Lumped-capacitance balances:

@@ -955,14 +955,13 @@ def reconstruct_faces(
 
     R25 from switch-off steps (:func:`step_resistance`), or where they give none (faces that
     follow the current within a sample) and the hot face is probed from the cold face's
-    steady balance (:func:`balance_resistance`), without the samples of a warm spell with the
-    cooling lost (a power cut stops the fans too); S25 held at ``s25`` (registered
-    ratings) with the spread between units of a type (``seebeck_unit_rel_sd``), then ΔT from
-    the voltage; Tc = Th - ΔT. The mean module temperature behind R(Tm) and S(Tm) matters
-    (about 1 K of ΔT per kelvin): with a hot probe Tm = Th - ΔT/2 is solved together with ΔT
-    (:func:`delta_t_from_hot_face`); without one it comes from how the sinks share ΔT where
-    K is known (:func:`unanchored_mean_temperature`), else it is the middle of cabinet and
-    ambient within a stated bound.
+    steady balance (:func:`balance_resistance`) without a power cut (:func:`.cooling_lost`);
+    S25 held at ``s25`` (registered ratings) with the spread between units of a type
+    (``seebeck_unit_rel_sd``), then ΔT from the voltage; Tc = Th - ΔT. The mean module
+    temperature behind R(Tm) and S(Tm) matters (about 1 K of ΔT per kelvin): with a hot probe
+    Tm = Th - ΔT/2 is solved together with ΔT (:func:`delta_t_from_hot_face`); without one it
+    comes from how the sinks share ΔT where K is known (:func:`unanchored_mean_temperature`),
+    else it is the middle of cabinet and ambient within a stated bound.
     Without a hot probe the faces have no anchor (the hot sink's rise above the ambient needs
     its resistance, which needs Th): ΔT and R25 are what hold, t_cold stays NaN. While the
     module cools, ΔT must be at least the ambient's lead over the cabinet (Tc <= Tcab,
@@ -1028,10 +1027,7 @@ def reconstruct_faces(
         # face probed the cold face's steady balance does.
         if th is None or r25_guess is None:
             raise
-        # A power cut stops the fans with the module, so through it the cold side's path is
-        # not the one the steady balance fits (its samples moved a simulated 5-minute
-        # window's R25 by +2 % for as long as a 0.9-hour cut stayed in it).
-        on = i > options.on_current
+        on = i > options.on_current  # a power cut's fans stand still: not the usual path
         lost = cooling_lost(np.asarray(time_s, dtype=np.float64), tcab, on, options)
         rows = usable & (floating | on) & ~lost
         step = balance_resistance(

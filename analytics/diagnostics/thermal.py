@@ -194,12 +194,13 @@ def fit_thermal(
 
     Stage 1, :func:`.sinks.fit_sinks`: the cold and hot sink balances over segments of
     ``segment_s``, with a prior K = ``k_prior`` ± ``k_prior_rel`` and constant heat flows for
-    the probe offsets, without a power cut's samples (:func:`.cabinet.cooling_lost`: its fans
-    stood still); K held at a single operating point and where the sinks store heat
-    faster than the samples follow. Stage 2, :func:`.cabinet.fit_cabinet`: the cabinet
-    balance over blocks of ``cabinet_block_s``, ∫Qc = UA·∫(Ta - Tcab) + q_int·τ - C·δTcab
-    with Qc = S·I·Tc - ½·I²·R - K·ΔT (Goldsmid 2010, ch. 2). Lumped-capacitance balances:
-    Incropera et al. (2007), ch. 5. Stated errors: :mod:`.error_budget`.
+    the probe offsets, without a power cut (:func:`.cabinet.cooling_lost`: no second
+    operating point through stopped fans); K held at a single operating point and where the
+    sinks store heat faster than the samples follow. Stage 2, :func:`.cabinet.fit_cabinet`:
+    the cabinet balance over blocks of ``cabinet_block_s``, ∫Qc = UA·∫(Ta - Tcab) +
+    q_int·τ - C·δTcab with Qc = S·I·Tc - ½·I²·R - K·ΔT (Goldsmid 2010, ch. 2).
+    Lumped-capacitance balances: Incropera et al. (2007), ch. 5. Stated errors:
+    :mod:`.error_budget`.
 
     Parameters
     ----------
@@ -266,9 +267,7 @@ def fit_thermal(
     grid = SampleGrid.of(t, closing)
     on = i > options.on_current
     base = _pairs(t, on, usable, options)[0]
-    # The sinks' balances without a power cut: its fans stood still, and on a module that
-    # never rests its off samples would be the balances' only second operating point.
-    sink_usable = usable & ~cooling_lost(t, tcab, on, options)
+    sink_usable = usable & ~cooling_lost(t, tcab, on, options)  # fans stand still in a cut
     pair = _pairs(t, on, sink_usable, options)[1]
     sk = fit_sinks(
         grid, pair, (pc, ph, dtv), (tcab, tc, th, ta), i, s, r, sink_usable, k_prior,

@@ -518,7 +518,9 @@ def test_a_power_cut_is_no_second_operating_point_for_the_sinks() -> None:
     # still): K read 34 % high on a simulated unit of the detection bench, and the hot
     # side's hourly resistance followed at it drifted +46 % (values this code produced
     # before). Left out, the day is a single operating point again: K is held at its prior
-    # (here the true value) and both sink resistances come out within 2 %, as without a cut.
+    # (here the true value) and both sink resistances come out within 2 %, as without a cut
+    # (the sink balances: Goldsmid 2010, ch. 2; fans stopped in a cut: common practice, no
+    # source).
     cut = sm.ScheduledEvent("power_cut", "unit-1", SIM_START + 36 * 3600.0, 2400.0)
     dev, a, p, truth = _simulated_cooler((cut,), 2.0, control="proportional")
     assert truth.power_cuts.get("unit-1")

@@ -487,14 +487,13 @@ def detection_scores(
             for p in DETECT_PREFIX.values()
             if _first_flag(engine, dev, p, 0) is not None
         ]
-        other = [
-            f"{f.device_id} ({f.kind}) {p} on day {(at / 1e3 - START_S) / 86_400:.1f}"
-            for f in spec.faults
-            for p in DETECT_PREFIX.values()
-            if p != DETECT_PREFIX[f.kind]
-            for at in [_first_flag(engine, f.device_id, p, 0)]
-            if at is not None
-        ]
+        other = []
+        for f in spec.faults:
+            for p in (p for k, p in DETECT_PREFIX.items() if k != f.kind):
+                at = _first_flag(engine, f.device_id, p, 0)
+                if at is not None:
+                    day = (at / 1e3 - START_S) / 86_400
+                    other.append(f"{f.device_id} ({f.kind}) {p} on day {day:.1f}")
         engine.dispose()
     return found, healthy, false, other
 
